@@ -1,0 +1,162 @@
+"""One error hierarchy for everything heatweave tells a user.
+
+Every error about the user's input carries a :class:`Location` (file, line, column and the
+source line) and a hint: a fix to try.  The command line prints :meth:`HeatweaveError.render`
+and exits with :attr:`HeatweaveError.exit_code`; no traceback is ever shown for bad input.
+
+Exit codes are stable and documented in the README:
+
+==  =====================================================================
+0   all good
+1   a check failed (``check``, ``lint`` errors, ``emit --check`` stale)
+2   unusable input: deck, annotation file, command-line option
+3   the simulator ran but gave no answer (no convergence, other failure)
+4   the simulator stopped: timestep too small
+5   the ngspice program is not installed
+6   the ngspice shared library is not installed or cannot be loaded
+7   thermal runaway: the electrothermal operating point does not exist
+==  =====================================================================
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+EXIT_OK = 0
+EXIT_CHECK_FAILED = 1
+EXIT_BAD_INPUT = 2
+EXIT_SIMULATION_FAILED = 3
+EXIT_TIMESTEP_TOO_SMALL = 4
+EXIT_NGSPICE_MISSING = 5
+EXIT_LIBNGSPICE_MISSING = 6
+EXIT_THERMAL_RUNAWAY = 7
+
+
+@dataclass(frozen=True, slots=True)
+class Location:
+    """Where in which file something is: 1-based line and column, and that line's text."""
+
+    file: str
+    line: int
+    column: int = 1
+    source_line: str | None = None
+
+    def prefix(self) -> str:
+        """``FILE:LINE:COL`` as compilers print it."""
+        return f"{self.file}:{self.line}:{self.column}"
+
+    def excerpt(self) -> str:
+        """The source line with a caret under the column, or an empty string."""
+        if self.source_line is None:
+            return ""
+        text = self.source_line.rstrip("\r\n")
+        # Tabs before the column are kept so the caret lines up in a terminal.
+        lead = "".join(ch if ch == "\t" else " " for ch in text[: max(self.column - 1, 0)])
+        return f"    {text}\n    {lead}^"
+
+
+class HeatweaveError(Exception):
+    """Base of every error heatweave reports to a user."""
+
+    exit_code: int = EXIT_BAD_INPUT
+    severity: str = "error"
+
+    def __init__(
+        self, message: str, location: Location | None = None, hint: str | None = None
+    ) -> None:
+        super().__init__(message)
+        self.message = message
+        self.location = location
+        self.hint = hint
+
+    def render(self) -> str:
+        """The full message: ``FILE:LINE:COL: error: ...``, the source excerpt, the hint."""
+        head = f"{self.severity}: {self.message}"
+        if self.location is not None:
+            head = f"{self.location.prefix()}: {head}"
+        parts = [head]
+        if self.location is not None and self.location.source_line is not None:
+            parts.append(self.location.excerpt())
+        if self.hint:
+            parts.append(f"  hint: {self.hint}")
+        return "\n".join(parts)
+
+    def __str__(self) -> str:
+        return self.render()
+
+
+class InputError(HeatweaveError):
+    """The user's input cannot be used as it is (exit status 2)."""
+
+
+class DeckSyntaxError(InputError):
+    """A card of the deck does not follow ngspice's syntax."""
+
+
+class DeckStructureError(InputError):
+    """The deck's structure is broken: include cycles, missing files, unclosed blocks."""
+
+
+class AnnotationError(InputError):
+    """The annotation file is malformed or does not fit the deck."""
+
+
+class EmitError(InputError):
+    """The electrothermal deck cannot be written, e.g. a reserved name is already taken."""
+
+
+class UsageError(InputError):
+    """A command-line option has an unusable value."""
+
+
+class SimulatorError(HeatweaveError):
+    """The simulator ran but gave no usable answer."""
+
+    exit_code = EXIT_SIMULATION_FAILED
+
+
+class ConvergenceError(SimulatorError):
+    """ngspice did not converge."""
+
+
+class TimestepTooSmallError(SimulatorError):
+    """ngspice stopped a transient because its timestep became too small."""
+
+    exit_code = EXIT_TIMESTEP_TOO_SMALL
+
+
+class NgspiceMissingError(SimulatorError):
+    """The ``ngspice`` program is not installed."""
+
+    exit_code = EXIT_NGSPICE_MISSING
+
+
+class LibngspiceMissingError(SimulatorError):
+    """The ngspice shared library cannot be found or loaded."""
+
+    exit_code = EXIT_LIBNGSPICE_MISSING
+
+
+class ThermalRunawayError(SimulatorError):
+    """The electrothermal operating point does not exist, or temperatures grow without bound."""
+
+    exit_code = EXIT_THERMAL_RUNAWAY
+
+
+@dataclass(frozen=True, slots=True)
+class Finding:
+    """A non-fatal message (lint finding, warning) with the same shape as an error."""
+
+    severity: str  # "error" | "warning" | "note"
+    message: str
+    location: Location | None = None
+    hint: str | None = None
+
+    def render(self) -> str:
+        """One line ``FILE:LINE:COL: severity: message`` plus hint, as lint prints it."""
+        head = f"{self.severity}: {self.message}"
+        if self.location is not None:
+            head = f"{self.location.prefix()}: {head}"
+        if self.hint:
+            head = f"{head} (hint: {self.hint})"
+        return head

@@ -1,0 +1,91 @@
+"""SPICE numbers: scale factors exactly as ngspice 39 reads them.
+
+ngspice (manual 2.1.4.2/2.1.4.3, checked against 39.3 in ``shared/reference``):
+scale factors ``T G Meg K mil m u n p f`` are case-insensitive, ``M`` is milli (mega is
+``meg``), there is no atto, letters after a number or after a scale factor are ignored
+(``10kOhm`` = 1e4, ``3.3MOhm`` = 3.3e-3, ``1k5`` = 1e3).  Inside ``{...}`` expressions
+``mil`` is not recognised; that is the expression evaluator's business, not this module's.
+"""
+
+from __future__ import annotations
+
+import re
+
+import click
+
+_NUMBER = re.compile(
+    r"\s*(?P<num>[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)(?P<suffix>[A-Za-z_]\w*)?\s*$"
+)
+
+# Longest first: "meg" and "mil" before "m".
+_SCALES: tuple[tuple[str, float], ...] = (
+    ("meg", 1e6),
+    ("mil", 25.4e-6),
+    ("t", 1e12),
+    ("g", 1e9),
+    ("k", 1e3),
+    ("m", 1e-3),
+    ("u", 1e-6),
+    ("n", 1e-9),
+    ("p", 1e-12),
+    ("f", 1e-15),
+)
+
+
+def scale_of(suffix: str) -> float:
+    """The multiplier a suffix stands for; unknown letters (units) give 1."""
+    low = suffix.lower()
+    for name, factor in _SCALES:
+        if low.startswith(name):
+            return factor
+    return 1.0
+
+
+def parse_number(text: str) -> float | None:
+    """Read a SPICE number such as ``4.7k``, ``10kOhm``, ``1e-3`` or ``2MEG``.
+
+    Returns ``None`` when *text* is not a number (an expression, a parameter name).
+    Trailing digits after the scale factor (``1k5``) are ignored as ngspice does.
+    """
+    m = _NUMBER.match(text)
+    if m is None:
+        return None
+    return float(m.group("num")) * scale_of(m.group("suffix") or "")
+
+
+def format_number(value: float) -> str:
+    """A compact, exact (``repr``-precise) SPICE number for emitted decks."""
+    if value == 0:
+        return "0"
+    text = repr(float(value))
+    if text.endswith(".0"):
+        text = text[:-2]
+    return text
+
+
+class SpiceQuantity(click.ParamType):
+    """A click option type taking plain numbers or SPICE scale factors (``1m``, ``10u``)."""
+
+    name = "quantity"
+
+    def __init__(self, unit: str = "", positive: bool = False) -> None:
+        self.unit = unit
+        self.positive = positive
+
+    def convert(
+        self, value: object, param: click.Parameter | None, ctx: click.Context | None
+    ) -> float:
+        if isinstance(value, int | float):
+            number: float | None = float(value)
+        else:
+            number = parse_number(str(value))
+        if number is None:
+            self.fail(
+                f"{value!r} is not a number; write it as ngspice would, e.g. 10m, 2.5u, 1e-3"
+                + (f" ({self.unit})" if self.unit else ""),
+                param,
+                ctx,
+            )
+        if self.positive and number <= 0:
+            self.fail(f"{value!r} must be greater than zero", param, ctx)
+        return number
