@@ -1,0 +1,148 @@
+"""The one interface every temperature model implements, and the key declarations.
+
+A model is a frozen dataclass built from annotation keys.  Each model declares the keys it
+accepts as :class:`ParamSpec` rows; the annotation validator and the JSON Schema are both
+generated from these rows, so a key documented in one place is checked in the other.
+"""
+
+from __future__ import annotations
+
+import math
+from abc import ABC, abstractmethod
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import ClassVar, Self, overload
+
+import numpy as np
+import numpy.typing as npt
+
+FloatArray = npt.NDArray[np.float64]
+# A validated annotation value: a number, or a list of (x, y) points for table-like keys.
+ParamValue = float | tuple[tuple[float, float], ...]
+
+KELVIN_OFFSET = 273.15
+
+
+@dataclass(frozen=True, slots=True)
+class ParamSpec:
+    """One annotation key a model accepts.
+
+    ``group`` names the quantity; several keys of one group are aliases in different units
+    (``tc1`` in 1/K, ``tc1_ppm`` in ppm/K) and at most one of them may be written.  ``scale``
+    turns the key's unit into the group's unit.  ``required`` applies to the group.
+    """
+
+    key: str
+    unit: str
+    meaning: str
+    group: str = ""
+    scale: float = 1.0
+    required: bool = False
+    default: float | None = None
+    positive: bool = False
+    kind: str = "number"  # "number" | "points"
+
+    @property
+    def group_name(self) -> str:
+        return self.group or self.key
+
+
+@dataclass(frozen=True, slots=True)
+class ParamWarning:
+    """A likely unit slip or implausible value: which key, what looks wrong, what to try."""
+
+    key: str
+    message: str
+    hint: str | None = None
+
+
+def pick(
+    params: Mapping[str, ParamValue], specs: tuple[ParamSpec, ...], group: str
+) -> float | None:
+    """*group*'s value in the group's unit, from whichever alias was written, else the default."""
+    default: float | None = None
+    for spec in specs:
+        if spec.group_name != group:
+            continue
+        if spec.default is not None:
+            default = spec.default
+        value = params.get(spec.key)
+        if isinstance(value, int | float):
+            return float(value) * spec.scale
+    return default
+
+
+def written(params: Mapping[str, ParamValue], key: str) -> float | None:
+    """The number written under *key*, or ``None``."""
+    value = params.get(key)
+    return float(value) if isinstance(value, int | float) else None
+
+
+class TempModel(ABC):
+    """R as a function of the part's own temperature (degC), for Python and for ngspice."""
+
+    __slots__ = ()
+
+    name: ClassVar[str]
+    summary: ClassVar[str]
+    params: ClassVar[tuple[ParamSpec, ...]]
+    # The temperature at which the deck's value holds when the annotation gives no ``tref``.
+    default_tref: ClassVar[float] = 25.0
+
+    @classmethod
+    @abstractmethod
+    def from_params(
+        cls, params: Mapping[str, ParamValue], r_nominal: float, tref: float | None = None
+    ) -> Self:
+        """Build from validated key values; *r_nominal* (ohm) holds at *tref* (degC)."""
+
+    @abstractmethod
+    def _resistance(self, t_c: FloatArray) -> FloatArray: ...
+
+    @abstractmethod
+    def _slope(self, t_c: FloatArray) -> FloatArray: ...
+
+    @abstractmethod
+    def expression(self, temp: str) -> str:
+        """An ngspice B-source expression for R in ohms; *temp* is the temperature in degC."""
+
+    @classmethod
+    def warnings(cls, params: Mapping[str, ParamValue]) -> tuple[ParamWarning, ...]:
+        """Likely unit slips in the written keys; none by default."""
+        return ()
+
+    @overload
+    def resistance(self, t_c: float) -> float: ...
+    @overload
+    def resistance(self, t_c: FloatArray) -> FloatArray: ...
+    def resistance(self, t_c: float | FloatArray) -> float | FloatArray:
+        """R in ohms at part temperature *t_c* (degC)."""
+        return _apply(self._resistance, t_c)
+
+    @overload
+    def slope(self, t_c: float) -> float: ...
+    @overload
+    def slope(self, t_c: FloatArray) -> FloatArray: ...
+    def slope(self, t_c: float | FloatArray) -> float | FloatArray:
+        """dR/dT in ohm/K at *t_c* (degC)."""
+        return _apply(self._slope, t_c)
+
+
+def _apply(func: object, t_c: float | FloatArray) -> float | FloatArray:
+    assert callable(func)
+    result: FloatArray = func(np.asarray(t_c, dtype=np.float64))
+    if np.ndim(t_c) == 0:
+        return float(result)
+    return result
+
+
+def paren(expr: str) -> str:
+    """*expr* in parentheses, so it can be used as an operand."""
+    return f"({expr})"
+
+
+def check_positive(name: str, value: float) -> float:
+    """*value* if it is a finite positive number, else ValueError naming *name*."""
+    if not (math.isfinite(value) and value > 0):
+        raise ValueError(f"{name} must be a positive number, not {value!r}")
+    return value

@@ -1,0 +1,85 @@
+"""``ntc-beta``: NTC thermistor by the Beta equation.
+
+R(T) = R_ref exp(B (1/T - 1/T_ref)), T in kelvin (degC + 273.15).  With ``r25`` written,
+R_ref = r25 at T_ref = 25 degC; otherwise R_ref is the deck's value at ``tref`` (default 25).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import ClassVar, Self
+
+import numpy as np
+
+from heatweave.quantities import format_number as fmt
+from heatweave.tempmodels import register
+from heatweave.tempmodels.base import (
+    KELVIN_OFFSET,
+    FloatArray,
+    ParamSpec,
+    ParamValue,
+    ParamWarning,
+    TempModel,
+    paren,
+    written,
+)
+
+
+@register
+@dataclass(frozen=True, slots=True)
+class NtcBeta(TempModel):
+    """R = R_ref exp(beta (1/T - 1/T_ref)), kelvin (the thermistor Beta equation)."""
+
+    name: ClassVar[str] = "ntc-beta"
+    summary: ClassVar[str] = "NTC thermistor, Beta equation"
+    params: ClassVar[tuple[ParamSpec, ...]] = (
+        ParamSpec(
+            "r25", "ohm", "resistance at 25 degC (default: the deck's value at tref)", positive=True
+        ),
+        ParamSpec("beta", "K", "Beta constant", required=True, positive=True),
+    )
+
+    r_ref: float
+    t_ref: float  # degC
+    beta: float
+
+    @classmethod
+    def from_params(
+        cls, params: Mapping[str, ParamValue], r_nominal: float, tref: float | None = None
+    ) -> Self:
+        beta = written(params, "beta")
+        assert beta is not None
+        r25 = written(params, "r25")
+        if r25 is not None:
+            return cls(r25, 25.0, beta)
+        return cls(r_nominal, cls.default_tref if tref is None else tref, beta)
+
+    def _resistance(self, t_c: FloatArray) -> FloatArray:
+        inv = 1.0 / (t_c + KELVIN_OFFSET) - 1.0 / (self.t_ref + KELVIN_OFFSET)
+        return self.r_ref * np.exp(self.beta * inv)
+
+    def _slope(self, t_c: FloatArray) -> FloatArray:
+        kelvin = t_c + KELVIN_OFFSET
+        return -self.beta / (kelvin * kelvin) * self._resistance(t_c)
+
+    def expression(self, temp: str) -> str:
+        inv_ref = 1.0 / (self.t_ref + KELVIN_OFFSET)
+        return (
+            f"{paren(fmt(self.r_ref))}*exp({paren(fmt(self.beta))}*"
+            f"(1/({paren(temp)}+{fmt(KELVIN_OFFSET)})-{paren(fmt(inv_ref))}))"
+        )
+
+    @classmethod
+    def warnings(cls, params: Mapping[str, ParamValue]) -> tuple[ParamWarning, ...]:
+        beta = written(params, "beta")
+        # Common practice: NTC Beta constants lie between about 2000 K and 6000 K.
+        if beta is not None and not 1000 <= beta <= 10000:
+            return (
+                ParamWarning(
+                    "beta",
+                    f"beta = {fmt(beta)} K is outside the usual 1000..10000 K of NTC thermistors",
+                    "beta is in kelvin, e.g. beta = 3435",
+                ),
+            )
+        return ()

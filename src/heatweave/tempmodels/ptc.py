@@ -1,0 +1,145 @@
+"""``ptc``: a switching PTC thermistor, smooth enough for Newton's method.
+
+R(T) = r_cold (1 + F) / (1 + F r_cold / r_max),  F = 10^((T - t_switch) / decade).
+
+Well below ``t_switch`` F vanishes and R = r_cold; above it R rises tenfold every ``decade``
+kelvin (or by ``alpha_pct`` percent per kelvin) and levels off at ``r_max``.  At ``t_switch``
+R is about twice r_cold, the usual way switch temperatures are stated (common practice).
+The blend is smooth (no step), monotonic and bounded.  The exponent is clamped to +-200 in
+Python and ngspice alike: ngspice 39.3's B-source ``exp`` saturates near 1e99 (argument ~228,
+checked in the tests), and at +-200 the blend is already flat to double precision.
+
+r_cold is ``r25`` if written, else chosen so that the deck's value holds at ``tref``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import ClassVar, Self
+
+import numpy as np
+
+from heatweave.quantities import format_number as fmt
+from heatweave.tempmodels import register
+from heatweave.tempmodels.base import (
+    FloatArray,
+    ParamSpec,
+    ParamValue,
+    ParamWarning,
+    TempModel,
+    paren,
+    written,
+)
+
+EXP_CLAMP = 200.0
+DEFAULT_RATIO = 1e4
+
+
+@register
+@dataclass(frozen=True, slots=True)
+class Ptc(TempModel):
+    """Switching PTC: r_cold (1 + F) / (1 + F r_cold / r_max), F = exp(k (T - t_switch))."""
+
+    name: ClassVar[str] = "ptc"
+    summary: ClassVar[str] = "switching PTC thermistor, smooth exponential rise to r_max"
+    params: ClassVar[tuple[ParamSpec, ...]] = (
+        ParamSpec(
+            "r25", "ohm", "cold resistance (default: from the deck's value at tref)", positive=True
+        ),
+        ParamSpec("t_switch", "degC", "switch temperature, where R is about 2 r25", required=True),
+        ParamSpec(
+            "decade",
+            "K",
+            "kelvin per tenfold rise above t_switch",
+            group="rise",
+            required=True,
+            positive=True,
+        ),
+        ParamSpec(
+            "alpha_pct",
+            "%/K",
+            "rise above t_switch in percent per kelvin",
+            group="rise",
+            required=True,
+            positive=True,
+        ),
+        ParamSpec(
+            "r_max",
+            "ohm",
+            f"resistance the rise levels off at (default {DEFAULT_RATIO:g} r25)",
+            positive=True,
+        ),
+    )
+
+    r_cold: float
+    t_switch: float
+    k: float  # natural-log rise per kelvin
+    r_max: float
+
+    @classmethod
+    def from_params(
+        cls, params: Mapping[str, ParamValue], r_nominal: float, tref: float | None = None
+    ) -> Self:
+        t_switch = written(params, "t_switch")
+        assert t_switch is not None
+        decade = written(params, "decade")
+        alpha = written(params, "alpha_pct")
+        if decade is not None:
+            k = math.log(10.0) / decade
+        else:
+            assert alpha is not None
+            k = math.log1p(alpha / 100.0)
+        r25 = written(params, "r25")
+        ratio = written(params, "r_max")
+        shape = cls(1.0, t_switch, k, (ratio / r25) if (ratio and r25) else DEFAULT_RATIO)
+        if r25 is None:
+            r25 = r_nominal / shape.resistance(cls.default_tref if tref is None else tref)
+        r_max = ratio if ratio is not None else DEFAULT_RATIO * r25
+        if r_max <= r25:
+            raise ValueError(f"r_max ({fmt(r_max)} ohm) must exceed the cold resistance")
+        return cls(r25, t_switch, k, r_max)
+
+    def _rise(self, t_c: FloatArray) -> FloatArray:
+        return np.exp(np.clip(self.k * (t_c - self.t_switch), -EXP_CLAMP, EXP_CLAMP))
+
+    def _resistance(self, t_c: FloatArray) -> FloatArray:
+        f = self._rise(t_c)
+        return self.r_cold * (1.0 + f) / (1.0 + f * (self.r_cold / self.r_max))
+
+    def _slope(self, t_c: FloatArray) -> FloatArray:
+        f = self._rise(t_c)
+        q = self.r_cold / self.r_max
+        inside = np.abs(self.k * (t_c - self.t_switch)) < EXP_CLAMP
+        df = np.where(inside, self.k * f, 0.0)
+        return self.r_cold * (1.0 - q) * df / (1.0 + f * q) ** 2
+
+    def expression(self, temp: str) -> str:
+        arg = f"{paren(fmt(self.k))}*({paren(temp)}-{paren(fmt(self.t_switch))})"
+        f = f"exp(min(max({arg},{fmt(-EXP_CLAMP)}),{fmt(EXP_CLAMP)}))"
+        q = self.r_cold / self.r_max
+        return f"{paren(fmt(self.r_cold))}*(1+{f})/(1+{f}*{paren(fmt(q))})"
+
+    @classmethod
+    def warnings(cls, params: Mapping[str, ParamValue]) -> tuple[ParamWarning, ...]:
+        found: list[ParamWarning] = []
+        decade = written(params, "decade")
+        if decade is not None and decade < 0.2:
+            found.append(
+                ParamWarning(
+                    "decade",
+                    f"decade = {fmt(decade)} K is a near-step rise that Newton may not follow",
+                    "a real PTC rises tenfold over a few kelvin, e.g. decade = 5",
+                )
+            )
+        alpha = written(params, "alpha_pct")
+        if alpha is not None and alpha < 1:
+            found.append(
+                ParamWarning(
+                    "alpha_pct",
+                    f"alpha_pct = {fmt(alpha)} %/K is a very slow rise for a switching PTC",
+                    "alpha_pct is in percent per kelvin, e.g. alpha_pct = 50",
+                )
+            )
+        return tuple(found)
