@@ -63,7 +63,7 @@ def format_number(value: float) -> str:
     return text
 
 
-class SpiceQuantity(click.ParamType):
+class SpiceQuantity(click.ParamType):  # type: ignore[type-arg]
     """A click option type taking plain numbers or SPICE scale factors (``1m``, ``10u``)."""
 
     name = "quantity"

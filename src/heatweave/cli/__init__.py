@@ -1,0 +1,46 @@
+"""The ``heatweave`` command line: one click group, one module per command.
+
+Commands are loaded lazily so that ``heatweave --help`` and the fast ``emit`` path do not
+import numpy, matplotlib or PySpice when they do not need them.
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import Any
+
+import click
+
+from heatweave import __version__
+
+# command name -> "module:attribute"; a new command is one module and one line here.
+COMMANDS: dict[str, str] = {
+    "emit": "heatweave.cli.emit_cmd:emit",
+    "lint": "heatweave.cli.lint_cmd:lint",
+}
+
+
+class LazyGroup(click.Group):
+    """A click group whose subcommands are imported on first use."""
+
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        return sorted(COMMANDS)
+
+    def get_command(self, ctx: click.Context, cmd_name: str) -> click.Command | None:
+        target = COMMANDS.get(cmd_name)
+        if target is None:
+            return None
+        module_name, attr = target.split(":")
+        command: Any = getattr(importlib.import_module(module_name), attr)
+        assert isinstance(command, click.Command)
+        return command
+
+
+@click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="heatweave")
+def main() -> None:
+    """Self-heating for plain SPICE decks.
+
+    Annotate which parts heat up and how, and heatweave writes an electrothermal deck that
+    stock ngspice runs, simulates it, and reports temperatures, drift and rating margins.
+    """

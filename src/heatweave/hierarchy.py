@@ -1,0 +1,266 @@
+"""Includes, libraries, subcircuits and instance paths: what a deck's names refer to.
+
+:func:`load_project` reads a deck and follows its ``.include`` and ``.lib FILE SECTION``
+cards (relative to the including file, as ngspice does), so that every element, model and
+subcircuit is known; the files themselves are never changed.  :class:`DeckIndex` indexes
+subcircuit definitions (with their nesting scopes) and instances, so that a path such as
+``X1.X3.R2`` resolves to the card of ``R2`` and the chain of instances that leads to it.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from heatweave.deck import Block, Card, Deck, Node
+from heatweave.errors import DeckStructureError, Location
+from heatweave.reader import read_file
+
+
+@dataclass(frozen=True, slots=True)
+class Include:
+    """One followed ``.include``/``.lib`` card and what it brought in."""
+
+    card: Card
+    path: str
+    section: str | None
+    deck: Deck
+    body: tuple[Node, ...]
+
+
+@dataclass(frozen=True, slots=True)
+class Project:
+    """A top-level deck and every file it includes, each read once."""
+
+    deck: Deck
+    includes: tuple[Include, ...]
+
+    def include_for(self, card: Card) -> Include | None:
+        """The include that a given ``.include``/``.lib`` card brought in."""
+        for inc in self.includes:
+            if inc.card is card:
+                return inc
+        return None
+
+
+def load_project(path: str) -> Project:
+    """Read *path* and, recursively, every file it includes."""
+    deck = read_file(path)
+    includes: list[Include] = []
+    cache: dict[str, Deck] = {}
+    _follow(deck.body, deck.path, (os.path.abspath(path),), includes, cache)
+    return Project(deck, tuple(includes))
+
+
+def _include_target(card: Card) -> tuple[str, str | None] | None:
+    """(file name, library section) of an include card, or ``None`` for other cards."""
+    name = card.name
+    if name not in (".include", ".inc", ".lib"):
+        return None
+    fields = card.fields()
+    if len(fields) < 2:
+        return None
+    if name == ".lib" and len(fields) < 3:
+        return None  # a section header inside a library file
+    target = fields[1].strip("\"'")
+    section = fields[2].strip("\"'") if name == ".lib" else None
+    return target, section
+
+
+def _follow(
+    body: tuple[Node, ...],
+    including: str,
+    chain: tuple[str, ...],
+    out: list[Include],
+    cache: dict[str, Deck],
+) -> None:
+    for node in body:
+        if isinstance(node, Block):
+            if node.kind == "lib":
+                continue  # sections are followed only when a .lib card names them
+            _follow(node.body, including, chain, out, cache)
+            continue
+        if not isinstance(node, Card):
+            continue
+        target = _include_target(node)
+        if target is None:
+            continue
+        name, section = target
+        base = Path(including).parent if including not in ("-", "<deck>") else Path(".")
+        full = (base / os.path.expanduser(name)).resolve()
+        where = node.location()
+        if str(full) in chain:
+            cycle = " -> ".join([*(os.path.basename(c) for c in chain), full.name])
+            raise DeckStructureError(
+                f"include cycle: {cycle}",
+                where,
+                hint="remove the include that leads back to a file already being read",
+            )
+        if not full.is_file():
+            raise DeckStructureError(
+                f"included file {name!r} not found (looked for {full})",
+                where,
+                hint="paths are relative to the file that holds the include card",
+            )
+        key = str(full)
+        deck = cache.get(key)
+        if deck is None:
+            deck = read_file(key, title=False)
+            cache[key] = deck
+        chosen = deck.body
+        if section is not None:
+            chosen = _section(deck, section, where)
+        out.append(Include(node, key, section, deck, chosen))
+        _follow(chosen, key, (*chain, key), out, cache)
+
+
+def _section(deck: Deck, section: str, where: Location | None) -> tuple[Node, ...]:
+    names = []
+    for node in deck.body:
+        if isinstance(node, Block) and node.kind == "lib":
+            names.append(node.label)
+            if node.label.lower() == section.lower():
+                return node.body
+    known = ", ".join(names) or "none"
+    raise DeckStructureError(
+        f"library section {section!r} not found in {deck.path}",
+        where,
+        hint=f"sections in that file: {known}",
+    )
+
+
+def x_card_parts(card: Card) -> tuple[list[str], str, list[str]]:
+    """(nodes, subcircuit name, parameter fields) of an ``X`` card.
+
+    The subcircuit name is the last positional field before the first ``key=value`` pair or
+    the optional ``params:`` keyword (manual 2.5.3, 2.9.3).
+    """
+    fields = card.fields()[1:]
+    stop = len(fields)
+    for i, f in enumerate(fields):
+        if f.lower() == "params:" or (i + 1 < len(fields) and fields[i + 1] == "="):
+            stop = i
+            break
+    positional = fields[:stop]
+    if not positional:
+        return [], "", fields[stop:]
+    return positional[:-1], positional[-1], fields[stop:]
+
+
+@dataclass(frozen=True, slots=True)
+class Scope:
+    """The cards visible in one body: the top level or one subcircuit definition."""
+
+    name: str  # "" for the top level
+    parent: Scope | None
+    cards: tuple[Card, ...]
+    subckts: dict[str, Block] = field(default_factory=dict)
+    scopes: dict[str, Scope] = field(default_factory=dict)
+    by_name: dict[str, Card] = field(default_factory=dict)
+
+
+@dataclass(frozen=True, slots=True)
+class Resolved:
+    """An element found by instance path: its card and the ``X`` cards leading to it."""
+
+    path: str
+    card: Card
+    instances: tuple[Card, ...]
+    definitions: tuple[Block, ...]
+
+
+class DeckIndex:
+    """Subcircuits, models and elements of a project, by case-insensitive name."""
+
+    def __init__(self, project: Project) -> None:
+        self.project = project
+        self.deck_file = project.deck.path
+        self.models: dict[str, Card] = {}
+        self.top = self._scope("", None, self._expand(project.deck.body))
+
+    def _expand(self, body: tuple[Node, ...]) -> list[Node]:
+        """Nodes of a body with included bodies put in place of their include cards."""
+        out: list[Node] = []
+        for node in body:
+            out.append(node)
+            if isinstance(node, Card) and _include_target(node) is not None:
+                inc = self.project.include_for(node)
+                if inc is not None:
+                    out.extend(self._expand(inc.body))
+        return out
+
+    def _scope(self, name: str, parent: Scope | None, nodes: list[Node]) -> Scope:
+        cards: list[Card] = []
+        blocks: list[Block] = []
+        for node in nodes:
+            if isinstance(node, Card):
+                if node.is_element:
+                    cards.append(node)
+                elif node.name == ".model":
+                    fields = node.fields()
+                    if len(fields) > 1:
+                        self.models.setdefault(fields[1].lower(), node)
+            elif isinstance(node, Block) and node.kind == "subckt":
+                blocks.append(node)
+        scope = Scope(name, parent, tuple(cards))
+        for card in cards:
+            scope.by_name.setdefault(card.name, card)
+        for block in blocks:
+            key = block.label.lower()
+            scope.subckts.setdefault(key, block)
+            scope.scopes.setdefault(key, self._scope(key, scope, list(block.body)))
+        return scope
+
+    def lookup_subckt(self, name: str, scope: Scope) -> tuple[Block, Scope] | None:
+        """A subcircuit definition visible from *scope* (local first, then outward)."""
+        key = name.lower()
+        current: Scope | None = scope
+        while current is not None:
+            if key in current.subckts:
+                return current.subckts[key], current.scopes[key]
+            current = current.parent
+        return None
+
+    def element_paths(self) -> Sequence[str]:
+        """Every element of the circuit with its instance path, in the user's spelling."""
+        return list(self._walk(self.top, "", ()))
+
+    def _walk(self, scope: Scope, prefix: str, seen: tuple[str, ...]) -> Iterator[str]:
+        for card in scope.cards:
+            path = prefix + card.head
+            yield path
+            if card.letter == "X":
+                _nodes, sub, _params = x_card_parts(card)
+                found = self.lookup_subckt(sub, scope)
+                if found is None or found[1].name in seen:
+                    continue
+                yield from self._walk(found[1], path + ".", (*seen, found[1].name))
+
+    def element_kind(self, path: str) -> str:
+        """The type letter of the element at *path* (upper case)."""
+        return path.rsplit(".", 1)[-1][:1].upper()
+
+    def resolve(self, path: str) -> Resolved | None:
+        """The element at an instance path such as ``X1.X3.R2`` (case-insensitive)."""
+        parts = path.split(".")
+        scope = self.top
+        instances: list[Card] = []
+        definitions: list[Block] = []
+        for depth, part in enumerate(parts):
+            key = part.lower()
+            card = scope.by_name.get(key)
+            if card is None:
+                return None
+            if depth == len(parts) - 1:
+                return Resolved(path, card, tuple(instances), tuple(definitions))
+            if card.letter != "X":
+                return None
+            found = self.lookup_subckt(x_card_parts(card)[1], scope)
+            if found is None:
+                return None
+            instances.append(card)
+            definitions.append(found[0])
+            scope = found[1]
+        return None
