@@ -1,0 +1,199 @@
+"""Reading Zth(t) CSV data and network TOML snippets; writing networks as TOML snippets.
+
+Every problem with a file is reported at ``FILE:LINE:COL`` with the line and a hint.
+"""
+
+from __future__ import annotations
+
+import re
+import tomllib
+from dataclasses import dataclass
+
+import numpy as np
+
+from heatweave.errors import InputError, Location
+from heatweave.networks.base import FORMS, FloatArray, NetworkError, NetworkForm
+from heatweave.networks.cauer import Cauer
+from heatweave.networks.foster import Foster
+from heatweave.networks.single import Single
+from heatweave.quantities import parse_number
+
+
+class DataFileError(InputError):
+    """A row of a data file cannot be read."""
+
+
+@dataclass(frozen=True, slots=True)
+class ZthData:
+    """Zth(t) samples read from a file, with the line each came from."""
+
+    t: FloatArray
+    zth: FloatArray
+    lines: tuple[int, ...]
+
+
+def _fields(text: str) -> list[tuple[int, str]]:
+    """Comma-separated fields with their 1-based start columns, blanks stripped."""
+    out, start = [], 0
+    for piece in text.split(","):
+        lead = len(piece) - len(piece.lstrip())
+        out.append((start + lead + 1, piece.strip()))
+        start += len(piece) + 1
+    return out
+
+
+def read_zth_csv(text: str, filename: str) -> ZthData:
+    """Two columns, time (s) and Zth (K/W); an optional header row; ``#`` starts a comment.
+
+    Numbers may carry SPICE scale factors (``10u``, ``1m``).
+    """
+    times: list[float] = []
+    values: list[float] = []
+    lines: list[int] = []
+    seen_row = False
+    for number, raw in enumerate(text.splitlines(), start=1):
+        content = raw.split("#", 1)[0]
+        if not content.strip():
+            continue
+        fields = _fields(content)
+        where = Location(filename, number, fields[0][0], raw)
+        if len(fields) != 2:
+            raise DataFileError(
+                f"expected 2 columns (time, Zth), found {len(fields)}",
+                where,
+                "write one 'time, zth' pair per line, separated by a comma",
+            )
+        parsed = [parse_number(field) if field else None for _, field in fields]
+        if not seen_row and all(value is None for value in parsed):
+            seen_row = True  # a header row
+            continue
+        seen_row = True
+        for (column, field), value, what in zip(fields, parsed, ("time", "Zth"), strict=True):
+            spot = Location(filename, number, column, raw)
+            if value is None:
+                raise DataFileError(
+                    f"{what} {field!r} is not a number", spot,
+                    "write a plain number such as 1.5e-3 or one with a SPICE scale factor (1.5m)",
+                )
+            if value <= 0:
+                raise DataFileError(
+                    f"{what} {field} is not greater than zero", spot,
+                    "times and Zth values must be positive; drop the t = 0 point",
+                )
+        times.append(float(parsed[0]))  # type: ignore[arg-type]
+        values.append(float(parsed[1]))  # type: ignore[arg-type]
+        lines.append(number)
+    return ZthData(np.array(times), np.array(values), tuple(lines))
+
+
+_TOML_POSITION = re.compile(r"\(at line (\d+), column (\d+)\)")
+
+
+def _line_of(text: str, pattern: str, after: int = 0) -> int | None:
+    lines = text.splitlines()
+    for index in range(after, len(lines)):
+        if re.match(pattern, lines[index]):
+            return index + 1
+    return None
+
+
+def _where(text: str, filename: str, line: int | None) -> Location | None:
+    if line is None:
+        return None
+    lines = text.splitlines()
+    return Location(filename, line, 1, lines[line - 1] if line <= len(lines) else None)
+
+
+def read_network_toml(text: str, filename: str, part: str | None = None) -> NetworkForm:
+    """One network from a TOML snippet.
+
+    The rule: a network key (``foster``, ``cauer``, ``single``) at the top level wins;
+    otherwise the ``[part.NAME]`` table named by *part*, or the only part that has one.
+    """
+    try:
+        document = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        found = _TOML_POSITION.search(str(err))
+        line, column = (int(found[1]), int(found[2])) if found else (1, 1)
+        lines = text.splitlines()
+        source = lines[line - 1] if 0 < line <= len(lines) else None
+        raise DataFileError(
+            _TOML_POSITION.sub("", str(err)).strip(),
+            Location(filename, line, column, source),
+            "see https://toml.io for the syntax; a network is e.g. foster = [[0.5, 1e-3]]",
+        ) from None
+    table, header_line = _select(document, text, filename, part)
+    keys = [key for key in FORMS if key in table]
+    if len(keys) != 1:
+        found_keys = ", ".join(keys) if keys else "none"
+        raise DataFileError(
+            f"expected exactly one network key ({', '.join(sorted(FORMS))}), found {found_keys}",
+            _where(text, filename, header_line or 1),
+            "keep one of foster = [...], cauer = [...] or single = [...]",
+        )
+    key = keys[0]
+    value = table[key]
+    data = tuple(tuple(x) if isinstance(x, list) else x for x in value) if isinstance(
+        value, list) else value
+    try:
+        return FORMS[key].from_annotation(data)
+    except NetworkError as err:
+        key_line = _line_of(text, rf"\s*{key}\s*=", max((header_line or 1) - 1, 0))
+        raise err.at(_where(text, filename, key_line)) from None
+
+
+def _select(
+    document: dict[str, object], text: str, filename: str, part: str | None
+) -> tuple[dict[str, object], int | None]:
+    if part is None and any(key in document for key in FORMS):
+        return document, None
+    parts = document.get("part")
+    if not isinstance(parts, dict):
+        raise DataFileError(
+            "no thermal network found", _where(text, filename, 1),
+            "write foster = [[rth, tau], ...] or cauer = [[rth, cth], ...] at the top level",
+        )
+    with_network = sorted(name for name, body in parts.items()
+                          if isinstance(body, dict) and any(key in body for key in FORMS))
+    if part is None:
+        if len(with_network) != 1:
+            raise DataFileError(
+                f"{len(with_network)} parts hold a network: {', '.join(with_network) or 'none'}",
+                _where(text, filename, 1),
+                "choose one with --part NAME",
+            )
+        part = with_network[0]
+    assert part is not None
+    body = parts.get(part)
+    if not isinstance(body, dict):
+        raise DataFileError(
+            f"there is no [part.{part}] table", _where(text, filename, 1),
+            "parts with a network: " + (", ".join(with_network) or "none"),
+        )
+    header = _line_of(text, rf"\s*\[\s*part\s*\.\s*\"?{re.escape(part)}\"?\s*\]")
+    return body, header
+
+
+def _number(value: float) -> str:
+    return repr(float(value))
+
+
+def network_toml(network: NetworkForm, comments: tuple[str, ...] = ()) -> str:
+    """The network as a TOML snippet to paste into an annotation file."""
+    out = [f"# {line}" for line in comments]
+    if isinstance(network, Single):
+        out.append("# rth in K/W, cth in J/K")
+        out.append(f"single = [{_number(network.rth)}, {_number(network.cth)}]")
+        return "\n".join(out) + "\n"
+    if isinstance(network, Foster):
+        out.append("# [rth in K/W, tau in s], tau ascending")
+        key, pairs = "foster", network.stages
+    elif isinstance(network, Cauer):
+        out.append("# [rth in K/W, cth in J/K], hot spot first")
+        key, pairs = "cauer", network.stages
+    else:
+        raise NetworkError(f"no TOML form for {network.kind!r} networks")
+    out.append(f"{key} = [")
+    out.extend(f"  [{_number(a)}, {_number(b)}]," for a, b in pairs)
+    out.append("]")
+    return "\n".join(out) + "\n"
