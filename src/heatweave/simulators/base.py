@@ -1,0 +1,182 @@
+"""The interface every simulator back end offers, and the immutable results it returns.
+
+A back end takes the complete text of a deck (already prepared by the caller), optionally
+analyses to run instead of or after the deck's own, and returns a :class:`SimResult`: the
+plots in the order ngspice ran them, the simulator's log, its warnings and ``.meas`` results.
+Both back ends drive ngspice with the same command script (:func:`command_script`), so the
+same deck gives the same plots, names and numbers.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+import tempfile
+from abc import ABC, abstractmethod
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import MappingProxyType
+from typing import ClassVar
+
+import numpy as np
+import numpy.typing as npt
+
+from heatweave.errors import UsageError
+
+from .naming import vector_name
+
+Array = npt.NDArray[np.float64] | npt.NDArray[np.complex128]
+Progress = Callable[[float], None]
+
+ANALYSIS_COMMANDS = frozenset(
+    {"op", "tran", "ac", "dc", "noise", "tf", "sens", "pz", "disto", "sp"}
+)
+_UNSAFE = re.compile(r"[\r\n;]")
+
+
+def _frozen(values: Mapping[str, Array]) -> Mapping[str, Array]:
+    for array in values.values():
+        array.setflags(write=False)
+    return MappingProxyType(dict(values))
+
+
+@dataclass(frozen=True, slots=True)
+class Plot:
+    """One analysis result: ``name`` like ``tran1``, ``kind`` like ``tran``.
+
+    ``scale`` names the x-axis vector (``time``, ``frequency``, ``v-sweep``) or is ``None``
+    for plots without one (``op``).  ``vectors`` maps normalised names to read-only arrays:
+    float64, or complex128 for ``ac`` and other complex plots.
+    """
+
+    name: str
+    kind: str
+    scale: str | None
+    vectors: Mapping[str, Array]
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "vectors", _frozen(self.vectors))
+
+    def __getitem__(self, name: str) -> Array:
+        """A vector by normalised name; ``"out"`` and ``"V(OUT)"`` both find ``v(out)``."""
+        key = name.strip().lower()
+        if key in self.vectors:
+            return self.vectors[key]
+        for vector_type in ("voltage", "current"):
+            alias = vector_name(key, vector_type)
+            if alias in self.vectors:
+                return self.vectors[alias]
+        raise KeyError(f"plot {self.name} has no vector {name!r}")
+
+    def __contains__(self, name: object) -> bool:
+        if not isinstance(name, str):
+            return False
+        try:
+            self[name]
+        except KeyError:
+            return False
+        return True
+
+    @property
+    def scale_values(self) -> Array | None:
+        """The scale vector, or ``None``."""
+        return None if self.scale is None else self.vectors[self.scale]
+
+
+@dataclass(frozen=True, slots=True)
+class SimResult:
+    """Everything one simulator run produced."""
+
+    plots: tuple[Plot, ...]
+    log: str
+    warnings: tuple[str, ...] = ()
+    measurements: Mapping[str, float] = field(default_factory=dict)
+    backend: str = ""
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "measurements", MappingProxyType(dict(self.measurements)))
+
+    def plot(self, kind: str, index: int = 0) -> Plot:
+        """The *index*-th plot (0-based, run order) of analysis *kind*."""
+        found = [plot for plot in self.plots if plot.kind == kind]
+        if index >= len(found):
+            raise KeyError(f"no {kind} plot number {index + 1} (have {len(found)})")
+        return found[index]
+
+
+def check_analysis(command: str) -> str:
+    """An analysis request such as ``tran 1u 1m uic`` checked and normalised to one line."""
+    words = command.split()
+    if (
+        not words
+        or words[0].lower().lstrip(".") not in ANALYSIS_COMMANDS
+        or _UNSAFE.search(command)
+    ):
+        raise UsageError(
+            f"not an analysis request: {command!r}",
+            hint="give one analysis per request, e.g. 'op', 'tran 1u 10m' or 'ac dec 10 1 1meg'",
+        )
+    return " ".join([words[0].lower().lstrip("."), *words[1:]])
+
+
+def command_script(analyses: Sequence[str], deck_analyses: bool, save: Sequence[str]) -> list[str]:
+    """The ngspice commands both back ends issue after loading the deck, in order."""
+    script = []
+    if save:
+        for name in save:
+            if _UNSAFE.search(name) or not name.strip():
+                raise UsageError(f"not a vector to save: {name!r}", hint="e.g. v(out) or i(v1)")
+        script.append("save " + " ".join(name.strip() for name in save))
+    if deck_analyses:
+        script.append("run")
+    script.extend(check_analysis(command) for command in analyses)
+    return script
+
+
+@contextmanager
+def working_folder(workdir: str | os.PathLike[str] | None) -> Iterator[Path]:
+    """*workdir* as given (kept), or a fresh temporary folder removed afterwards."""
+    if workdir is not None:
+        path = Path(workdir)
+        path.mkdir(parents=True, exist_ok=True)
+        yield path
+        return
+    path = Path(tempfile.mkdtemp(prefix="heatweave-sim-"))
+    try:
+        yield path
+    finally:
+        shutil.rmtree(path, ignore_errors=True)
+
+
+class Simulator(ABC):
+    """A way to run ngspice on a deck."""
+
+    name: ClassVar[str]
+
+    @abstractmethod
+    def run(
+        self,
+        deck: str,
+        *,
+        analyses: Sequence[str] = (),
+        deck_analyses: bool = True,
+        save: Sequence[str] = (),
+        cwd: str | os.PathLike[str] | None = None,
+        workdir: str | os.PathLike[str] | None = None,
+        timeout: float | None = None,
+        progress: Progress | None = None,
+    ) -> SimResult:
+        """Simulate *deck* and return every plot it produced.
+
+        ``analyses`` are extra analysis commands (``op``, ``tran 1u 1m``) run after the
+        deck's own analysis cards, or instead of them when ``deck_analyses`` is false.
+        ``save`` limits the vectors kept (ngspice's ``save``).  ``cwd`` is the folder
+        relative ``.include`` paths are resolved against (default: the working folder).
+        ``workdir`` keeps ngspice's files in that folder; by default a temporary one is used
+        and removed.  ``timeout`` in seconds stops a run that takes too long.
+        ``progress(fraction)`` is called with the fraction done when the back end knows it.
+        Raises :class:`heatweave.errors.SimulatorError` or one of its subclasses.
+        """

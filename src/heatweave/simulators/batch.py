@@ -1,0 +1,144 @@
+"""The batch back end: ``ngspice -b`` in a subprocess, results read from a raw file.
+
+ngspice refuses ``.meas`` in batch mode when ``-r FILE`` is given, so instead of ``-r`` the
+deck gets a small ``.control`` block appended: it runs the command script of
+:func:`heatweave.simulators.base.command_script`, then walks the plots from the newest back
+to the ``const`` plot and writes each one to the raw file (``set appendwrite``).  The reader
+reverses that order, so plots come back in the order ngspice ran them, as in the shared back
+end.  ngspice's own log (``-o``) is the result's log.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import subprocess
+from collections.abc import Sequence
+from dataclasses import replace
+from pathlib import Path
+from typing import ClassVar
+
+from heatweave import files
+from heatweave.errors import NgspiceMissingError, SimulatorError, UsageError
+
+from . import diagnose
+from .base import Plot, Progress, SimResult, Simulator, command_script, working_folder
+from .naming import number_plots
+from .rawfile import read_raw
+
+DECK_NAME = "heatweave-deck.cir"
+RAW_NAME = "heatweave-out.raw"
+LOG_NAME = "heatweave-out.log"
+MISSING_HINT = "install it with 'apt-get install ngspice', or give the path to the program"
+
+
+def control_block(script: Sequence[str], raw_path: Path, filetype: str) -> str:
+    """The ``.control`` block that runs *script* and writes every plot to *raw_path*."""
+    lines = [".control", f"set filetype={filetype}", *script, "set appendwrite"]
+    lines += [
+        "repeat",
+        "strcmp hw_at_const $curplot const",
+        "if $hw_at_const = 0",
+        "break",
+        "end",
+        f"write {raw_path}",
+        "setplot previous",
+        "end",
+        "quit",
+        ".endc",
+    ]
+    return "\n".join(lines) + "\n"
+
+
+def in_run_order(written: Sequence[Plot]) -> tuple[Plot, ...]:
+    """Plots written newest first, reversed and renamed ``kind1, kind2 ...`` in run order."""
+    ordered = list(reversed(written))
+    names = number_plots([plot.kind for plot in ordered])
+    return tuple(replace(plot, name=name) for plot, name in zip(ordered, names, strict=True))
+
+
+class BatchSimulator(Simulator):
+    """Runs ``ngspice -b``; *executable* is the program's name or path."""
+
+    name: ClassVar[str] = "batch"
+
+    def __init__(self, executable: str = "ngspice", filetype: str = "binary") -> None:
+        if filetype not in ("binary", "ascii"):
+            raise ValueError(f"filetype must be 'binary' or 'ascii', not {filetype!r}")
+        self.executable = executable
+        self.filetype = filetype
+
+    def program(self) -> str:
+        """The full path of the ngspice program, or :class:`NgspiceMissingError`."""
+        found = shutil.which(self.executable)
+        if found is None:
+            raise NgspiceMissingError(
+                f"the ngspice program {self.executable!r} was not found", hint=MISSING_HINT
+            )
+        return found
+
+    def run(
+        self,
+        deck: str,
+        *,
+        analyses: Sequence[str] = (),
+        deck_analyses: bool = True,
+        save: Sequence[str] = (),
+        cwd: str | os.PathLike[str] | None = None,
+        workdir: str | os.PathLike[str] | None = None,
+        timeout: float | None = None,
+        progress: Progress | None = None,
+    ) -> SimResult:
+        """See :meth:`Simulator.run`; the batch back end reports progress only at the end."""
+        script = command_script(analyses, deck_analyses, save)
+        program = self.program()
+        with working_folder(workdir) as folder:
+            folder = folder.resolve()
+            if any(ch.isspace() for ch in str(folder)):
+                raise UsageError(
+                    f"ngspice cannot write into a folder whose path has blanks: {folder}",
+                    hint="choose a working folder without blanks in its path",
+                )
+            raw_path = folder / RAW_NAME
+            log_path = folder / LOG_NAME
+            raw_path.unlink(missing_ok=True)
+            text = deck if deck.endswith("\n") else deck + "\n"
+            text += control_block(script, raw_path, self.filetype)
+            deck_path = folder / DECK_NAME
+            deck_path.write_bytes(files.encode(text))
+            command = [program, "-b", "-o", str(log_path), str(deck_path)]
+            try:
+                subprocess.run(
+                    command,
+                    cwd=Path(cwd) if cwd is not None else folder,
+                    stdin=subprocess.DEVNULL,
+                    stdout=subprocess.DEVNULL,
+                    stderr=subprocess.PIPE,
+                    timeout=timeout,
+                    check=False,
+                )
+            except subprocess.TimeoutExpired as exc:
+                raise SimulatorError(
+                    f"ngspice did not finish within {timeout:g} s and was stopped",
+                    hint="give a longer timeout, or a shorter or coarser analysis",
+                ) from exc
+            except OSError as exc:
+                raise NgspiceMissingError(
+                    f"the ngspice program {program!r} could not be started: {exc}",
+                    hint=MISSING_HINT,
+                ) from exc
+            log = files.decode(log_path.read_bytes()) if log_path.exists() else ""
+            lines = diagnose.log_lines(log)
+            error = diagnose.failure(lines)
+            if error is not None:
+                raise error
+            plots = in_run_order(read_raw(raw_path)) if raw_path.exists() else ()
+        if progress is not None:
+            progress(1.0)
+        return SimResult(
+            plots=plots,
+            log=log,
+            warnings=diagnose.warnings(lines),
+            measurements=diagnose.measurements(lines),
+            backend=self.name,
+        )

@@ -1,0 +1,121 @@
+"""Turn ngspice's log into heatweave's error hierarchy, warnings and ``.meas`` results.
+
+Both back ends feed the same log lines through :func:`failure`, so a deck fails with the same
+exception class and message whichever way ngspice was run.  The patterns are ngspice 39's own
+wording (checked by running decks under ``tests/fixtures/sim/``):
+
+* ``doAnalyses: TRAN:  Timestep too small; time = 1.23e-06, timestep = 1.25e-21: ...``
+  -> :class:`TimestepTooSmallError` (a transient that started and then stalled);
+* ``doAnalyses: OP: ...``, ``... initial timepoint ...``, ``iteration limit reached``,
+  ``no convergence``, ``DC solution failed``, gmin/source stepping failed, when the run
+  stopped -> :class:`ConvergenceError` (steps that failed before a later one succeeded only
+  give warnings);
+* any other ``Error`` line, ``unknown subckt``, ``could not find a valid modelname``,
+  ``run simulation(s) aborted`` -> :class:`SimulatorError` quoting ngspice's lines.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterable, Sequence
+
+from heatweave.errors import ConvergenceError, SimulatorError, TimestepTooSmallError
+
+_TIMESTEP = re.compile(r"timestep too small;\s*time\s*=\s*(?P<time>[-+0-9.eE]+)", re.IGNORECASE)
+_CONVERGENCE = re.compile(
+    r"iteration limit reached|no convergence|dc solution failed|transient solution failed"
+    r"|timestep too small|gmin stepping failed|source stepping failed",
+    re.IGNORECASE,
+)
+_FATAL = re.compile(
+    r"\berror\b|unknown subckt|could not find a valid modelname|simulation\(s\) aborted"
+    r"|simulation interrupted|there aren't any circuits loaded",
+    re.IGNORECASE,
+)
+# Lines with "error" that do not stop the run: failed or noisy .meas statements.
+_HARMLESS = re.compile(r"^\s*error: measure|\.meas(ure)?\b.*failed!|^\s*\.meas", re.IGNORECASE)
+_WARNING = re.compile(r"\bwarning\b[:,]?\s*(?P<text>.*)", re.IGNORECASE)
+_MEAS_HEADER = re.compile(r"^\s*Measurements for ", re.IGNORECASE)
+_MEAS_VALUE = re.compile(
+    r"^\s*(?P<name>[a-z_][\w.\[\]-]*)\s+=\s+(?P<value>[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?)(\s|$)",
+    re.IGNORECASE,
+)
+_MAX_QUOTED = 6
+
+CONVERGENCE_HINT = (
+    "check for floating nodes and loops of ideal sources; try '.options gmin=1e-10 "
+    "reltol=1e-3 itl1=500' or give starting values with '.nodeset'"
+)
+TIMESTEP_HINT = (
+    "smooth the discontinuity near that time (finite rise times, a small series resistance "
+    "or capacitance), or try '.options method=gear reltol=1e-3'"
+)
+
+
+def log_lines(text: str) -> list[str]:
+    """The log split into lines, trailing blanks removed."""
+    return [line.rstrip() for line in text.splitlines()]
+
+
+def failure(lines: Sequence[str]) -> SimulatorError | None:
+    """The error the log shows, or ``None`` when ngspice finished its analyses."""
+    relevant = [line for line in lines if not _HARMLESS.search(line)]
+    for line in relevant:
+        match = _TIMESTEP.search(line)
+        if match and "tran" in line.lower() and "initial timepoint" not in line.lower():
+            return TimestepTooSmallError(
+                f"ngspice stopped the transient at t = {match['time']} s, timestep too small: "
+                f"{line.strip()}",
+                hint=TIMESTEP_HINT,
+            )
+    fatal = [line.strip() for line in relevant if _FATAL.search(line)]
+    if not fatal:
+        return None
+    converge = [line.strip() for line in relevant if _CONVERGENCE.search(line)]
+    if converge and any(_CONVERGENCE.search(line) for line in fatal):
+        quoted = _best(converge)
+        return ConvergenceError(
+            f"ngspice found no operating point: {quoted}", hint=CONVERGENCE_HINT
+        )
+    return SimulatorError(
+        "ngspice could not simulate the deck: " + " | ".join(fatal[:_MAX_QUOTED]),
+        hint="fix the deck lines ngspice names; its log shows them in context",
+    )
+
+
+def _best(lines: Sequence[str]) -> str:
+    """ngspice's most telling line: its ``doAnalyses:`` verdict when there is one."""
+    for line in lines:
+        if line.startswith("doAnalyses:"):
+            return line
+    return lines[-1]
+
+
+def warnings(lines: Iterable[str]) -> tuple[str, ...]:
+    """Every distinct warning text, in order of first appearance, plus failed measurements."""
+    seen: dict[str, None] = {}
+    for line in lines:
+        match = _WARNING.search(line)
+        if match and match["text"]:
+            seen.setdefault(match["text"].strip(), None)
+        elif ".meas" in line.lower() and line.rstrip().endswith("failed!"):
+            seen.setdefault(line.strip(), None)
+    return tuple(seen)
+
+
+def measurements(lines: Iterable[str]) -> dict[str, float]:
+    """``.meas`` results ngspice printed: ``name = value`` after a "Measurements for" header.
+
+    A measurement run again by a later analysis keeps its latest value.
+    """
+    found: dict[str, float] = {}
+    active = False
+    for line in lines:
+        if _MEAS_HEADER.search(line):
+            active = True
+            continue
+        if active:
+            match = _MEAS_VALUE.match(line)
+            if match:
+                found[match["name"].lower()] = float(match["value"])
+    return found
