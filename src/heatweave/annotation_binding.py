@@ -1,0 +1,193 @@
+"""Binding part tables to a deck's elements, and Monte Carlo sampling of tolerances."""
+
+from __future__ import annotations
+
+import difflib
+import fnmatch
+from collections.abc import Sequence
+from dataclasses import replace
+from typing import Protocol
+
+import numpy as np
+
+from heatweave.annotation_fields import (
+    NODE_FIELDS,
+    PART_FIELDS,
+    PATH_FIELDS,
+    Distribution,
+    Field,
+    fits,
+    model_fields,
+)
+from heatweave.annotation_types import (
+    Annotation,
+    BoundPart,
+    NetworkSpec,
+    PartSpec,
+    Tolerances,
+)
+from heatweave.errors import AnnotationError
+from heatweave.tempmodels import REGISTRY
+
+RESISTOR = "R"
+_MAX_DRAWS = 1000
+
+
+class DeckCatalog(Protocol):
+    """What :func:`bind` needs to know about a deck."""
+
+    @property
+    def deck_file(self) -> str:
+        """The deck's file name, for messages."""
+        ...
+
+    def element_paths(self) -> Sequence[str]:
+        """Every element with its instance path in the user's spelling: "R1", "X2.R4"."""
+        ...
+
+    def element_kind(self, path: str) -> str:
+        """The element's first letter, upper case ("R", "Q", ...)."""
+        ...
+
+
+def _leaf(path: str) -> str:
+    return path.rsplit(".", 1)[-1]
+
+
+def bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
+    """Each deck element that a part table names, with that table, in deck order.
+
+    Exact keys beat globs; an element matched by two globs (and no exact key) is an error.
+    """
+    elements = list(catalog.element_paths())
+    by_upper: dict[str, str] = {e.upper(): e for e in elements}
+    exact: dict[str, PartSpec] = {}
+    globbed: dict[str, list[PartSpec]] = {}
+    for spec in annotation.parts:
+        if spec.is_glob:
+            hits = [e for e in elements if fnmatch.fnmatchcase(e.upper(), spec.pattern.upper())]
+            if not hits:
+                raise AnnotationError(
+                    f'pattern "{spec.pattern}" matches no element of {catalog.deck_file}',
+                    spec.location,
+                    "check the spelling; a pattern covers the whole instance path, "
+                    "so reach elements inside subcircuit instance X1 with X1.*",
+                )
+            for element in hits:
+                globbed.setdefault(element, []).append(spec)
+            continue
+        found = by_upper.get(spec.pattern.upper())
+        if found is None:
+            raise AnnotationError(
+                f'part "{spec.pattern}" is not in {catalog.deck_file}',
+                spec.location,
+                _suggest(spec.pattern, elements),
+            )
+        element = found
+        if element in exact:
+            raise AnnotationError(
+                f'parts "{exact[element].pattern}" and "{spec.pattern}" name the same element '
+                "(SPICE names ignore case)",
+                spec.location,
+                "merge the two tables",
+            )
+        exact[element] = spec
+    bound: list[BoundPart] = []
+    for element in elements:
+        chosen = exact.get(element)
+        if chosen is None:
+            candidates = globbed.get(element, [])
+            if len(candidates) > 1:
+                raise AnnotationError(
+                    f'element "{element}" matches both "{candidates[0].pattern}" '
+                    f'and "{candidates[1].pattern}"',
+                    candidates[1].location,
+                    f'make the patterns disjoint, or add [part."{element}"], '
+                    "which takes precedence over patterns",
+                )
+            if not candidates:
+                continue
+            chosen = candidates[0]
+        spec = chosen
+        kind = catalog.element_kind(element).upper()
+        _check_kind(element, kind, spec)
+        bound.append(BoundPart(element, kind, spec))
+    return tuple(bound)
+
+
+def _suggest(name: str, elements: Sequence[str]) -> str:
+    upper = {e.upper(): e for e in elements}
+    near = difflib.get_close_matches(name.upper(), list(upper), n=1, cutoff=0.6)
+    if not near:
+        leaf = {_leaf(e).upper(): e for e in elements}
+        near = [p.upper() for p in (leaf.get(name.upper()),) if p]
+    if near:
+        return f'did you mean "{upper[near[0]]}"?'
+    return "name an element as the deck does: R1, or X2.R4 for R4 inside subcircuit instance X2"
+
+
+def _check_kind(element: str, kind: str, spec: PartSpec) -> None:
+    via = f' (matched by "{spec.pattern}")' if spec.is_glob else ""
+    if kind == RESISTOR and spec.model is None:
+        raise AnnotationError(
+            f'resistor "{element}"{via} has no temperature model',
+            spec.location,
+            'add model = "linear" and tc1_ppm = ..., or another model: '
+            + ", ".join(sorted(REGISTRY)),
+        )
+    if kind != RESISTOR and spec.model is not None:
+        raise AnnotationError(
+            f'model "{spec.model}" is for resistors; "{element}"{via} is a {kind} element',
+            spec.location,
+            "remove model and its keys: the element is then heat only, its V*I heats `to`",
+        )
+
+
+# --------------------------------------------------------------------------- sampling
+
+
+def _draw(dist: Distribution, spec: Field, rng: np.random.Generator) -> float:
+    """A draw inside the key's valid range (redrawn, i.e. a truncated distribution)."""
+    for _ in range(_MAX_DRAWS):
+        value = dist.draw(rng)
+        if fits(spec.kind, value):
+            return value
+    return dist.nominal
+
+
+def _drawn(
+    tolerances: Tolerances, fields: tuple[Field, ...], rng: np.random.Generator
+) -> dict[str, float]:
+    by_key = {f.key: f for f in fields}
+    return {key: _draw(dist, by_key[key], rng) for key, dist in tolerances}
+
+
+def _sample_part(part: PartSpec, rng: np.random.Generator) -> PartSpec:
+    if not part.tolerances:
+        return part
+    extra = model_fields(REGISTRY[part.model].params) if part.model else ()
+    values = _drawn(part.tolerances, PART_FIELDS + extra, rng)
+    params = tuple((k, values.get(k, v)) for k, v in part.params)
+    network = part.network
+    if network.kind == "single":
+        rth, cth = network.stages[0]
+        network = NetworkSpec("single", ((values.get("rth", rth), values.get("cth", cth)),))
+    return replace(part, params=params, network=network)
+
+
+def sample(annotation: Annotation, rng: np.random.Generator) -> Annotation:
+    """A new annotation with each toleranced key drawn from its distribution.
+
+    Normal draws outside a key's valid range (a negative rth) are drawn again, so the
+    distribution is truncated there.  Keys without a tolerance keep their values.
+    """
+    nodes = []
+    for node in annotation.nodes:
+        drawn = _drawn(node.tolerances, NODE_FIELDS, rng)
+        nodes.append(replace(node, rth=drawn.get("rth", node.rth), cth=drawn.get("cth", node.cth)))
+    paths = []
+    for coupling in annotation.paths:
+        drawn = _drawn(coupling.tolerances, PATH_FIELDS, rng)
+        paths.append(replace(coupling, rth=drawn.get("rth", coupling.rth)))
+    parts = tuple(_sample_part(p, rng) for p in annotation.parts)
+    return replace(annotation, nodes=tuple(nodes), parts=parts, paths=tuple(paths))

@@ -1,0 +1,29 @@
+"""``heatweave schema``: print the JSON Schema of the annotation file."""
+
+from __future__ import annotations
+
+import json
+
+import click
+
+from heatweave.annotations import schema as annotation_schema
+from heatweave.cli.common import guarded
+from heatweave.files import write_atomic
+
+
+@click.command("schema")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, writable=True),
+    default="-",
+    show_default=True,
+    help="Write the schema to this file instead of standard output.",
+)
+@guarded
+def schema(output: str) -> None:
+    """Print the JSON Schema (draft 2020-12) of DECK.thermal.toml files.
+
+    Editors with TOML schema support use it for completion and checks.
+    """
+    write_atomic(output, json.dumps(annotation_schema(), indent=2) + "\n")
