@@ -143,17 +143,17 @@ def _engine(path: str) -> Any:
     """The process's one PySpice ngspice instance for library *path*."""
     if path in _LOADED:
         return _LOADED[path]
-    if _LOADED:
-        raise LibngspiceMissingError(
-            f"another ngspice library is already loaded ({next(iter(_LOADED))})",
-            hint="use one library per process",
-        )
     try:
         ctypes.CDLL(path)
     except OSError as exc:
         raise LibngspiceMissingError(
             f"the ngspice shared library {path} cannot be loaded: {exc}", hint=MISSING_HINT
         ) from exc
+    if _LOADED:
+        raise LibngspiceMissingError(
+            f"another ngspice library is already loaded ({next(iter(_LOADED))})",
+            hint="use one library per process",
+        )
     try:
         from PySpice.Spice.NgSpice.Shared import NgSpiceShared, ffi
     except ImportError as exc:
