@@ -1,0 +1,423 @@
+"""The emitter: a plain deck plus its thermal circuit becomes an electrothermal deck.
+
+What it writes uses standard ngspice cards only (behavioural sources, resistors,
+capacitors, voltage sources), so any ngspice 39 runs it as is:
+
+* an annotated resistor ``R1 a b 1k`` becomes ``Bhw_r1 a b I = V(a,b)/(R(T))`` with R(T)
+  from its temperature model, plus ``Bhw_p_r1 0 hw_t_r1 I = V(a,b)^2/(R(T))``: its
+  dissipation as a heat flow into its hot-spot node ``hw_t_r1``;
+* a heat-only element (diode, transistor, subcircuit instance) keeps its card, with
+  zero-volt sense sources in series with all but its last terminal, and a behavioural
+  source injecting ``sum (V(k) - V(last)) * I(k)`` into its hot-spot node;
+* each part's thermal network (single stage, Foster, Cauer) joins the hot spot to its
+  ``to`` node; shared nodes, ``[[path]]`` couplings and the ambient source follow at the end;
+* a transient starts cold (``.ic`` of every thermal node at ambient) unless the annotation
+  asks for ``start = "steady"``; ``.op`` gives the coupled steady state directly.
+
+Parts inside subcircuit instances are handled by specialising the definition for that
+instance path (a copy named ``<subckt>__hw_<path>``, placed beside the original), so two
+instances of one definition never share a hot spot; thermal nodes are ``.global``.
+
+Unannotated cards are untouched; each replaced card stays above its replacement as a
+comment; the output is deterministic, so diffs of emitted decks stay small.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import re
+from collections.abc import Iterable
+from dataclasses import dataclass, field, replace
+
+from heatweave import __version__
+from heatweave.deck import Block, Card, Deck, Node
+from heatweave.elements import card_nodes, rewrite_nodes
+from heatweave.errors import EmitError, Finding
+from heatweave.hierarchy import DeckIndex, Project, Resolved, x_card_parts
+from heatweave.quantities import format_number
+from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
+
+MARK = "*hw* "  # marks lines heatweave writes around replaced cards
+
+
+@dataclass(frozen=True, slots=True)
+class Emitted:
+    """An emitted deck: its text, the names it added, and what the user should hear."""
+
+    text: str
+    added_nodes: tuple[str, ...]
+    findings: tuple[Finding, ...] = ()
+    circuit: ThermalCircuit | None = None
+    probes: dict[str, str] = field(default_factory=dict)
+
+
+def sha256(text: str) -> str:
+    """Hex SHA-256 of a text as heatweave reads files (lossless UTF-8)."""
+    from heatweave.files import encode
+
+    return hashlib.sha256(encode(text)).hexdigest()
+
+
+def header(deck_name: str, deck_text: str, annotation_name: str, annotation_text: str) -> str:
+    """The comment block after the title: sources, their hashes, the unit convention."""
+    lines = [
+        f"* electrothermal deck written by heatweave {__version__}; edit the sources, not this",
+        f"* source deck: {deck_name} sha256 {sha256(deck_text)}",
+        f"* annotations: {annotation_name} sha256 {sha256(annotation_text)}",
+        "* units: thermal node voltages are temperatures, 1 V = 1 degC (1 K of rise);",
+        "*        currents into thermal nodes are heat flows, 1 A = 1 W;",
+        "*        thermal resistors 1 ohm = 1 K/W; thermal capacitors 1 F = 1 J/K",
+    ]
+    return "".join(line + "\n" for line in lines)
+
+
+def stale_reason(committed: str, fresh: str) -> str:
+    """Which input changed between a committed emitted deck and a fresh one."""
+
+    def tagged(text: str, tag: str) -> str | None:
+        for line in text.splitlines()[:12]:
+            if line.startswith(tag):
+                return line
+        return None
+
+    reasons = []
+    for tag, what in (
+        ("* source deck:", "the deck changed"),
+        ("* annotations:", "the annotation file changed"),
+        ("* electrothermal deck written by", "heatweave's version changed"),
+    ):
+        if tagged(committed, tag) != tagged(fresh, tag):
+            reasons.append(what)
+    return "; ".join(reasons) or "its text differs from what emit writes now"
+
+
+class _Rewriter:
+    """Rewrites bodies for one thermal circuit; keeps the bookkeeping of names and copies."""
+
+    def __init__(self, index: DeckIndex, circuit: ThermalCircuit, reference: bool) -> None:
+        self.index = index
+        self.circuit = circuit
+        self.reference = reference
+        self.findings: list[Finding] = []
+        self.added: list[str] = []
+        self.parts: dict[str, PartPlan] = {p.path.lower(): p for p in circuit.parts}
+        self.resolved: dict[str, Resolved] = {}
+        # instance path prefix (lower) -> definition it needs a specialised copy of
+        self.copies: dict[str, Block] = {}
+        for part in circuit.parts:
+            found = index.resolve(part.path)
+            if found is None:
+                raise EmitError(f"part {part.path!r} is not in the deck", part.location)
+            self.resolved[part.path.lower()] = found
+            prefix = ""
+            for instance, definition in zip(found.instances, found.definitions, strict=True):
+                prefix = f"{prefix}.{instance.head}" if prefix else instance.head
+                self.copies[prefix.lower()] = definition
+        self.placed: set[str] = set()
+        self.root_cards = {id(c) for c in index.project.deck.cards()}
+
+    # -- bodies -------------------------------------------------------------------------
+
+    def body(self, nodes: Iterable[Node], prefix: str, top: bool) -> list[Node]:
+        out: list[Node] = []
+        for node in nodes:
+            if isinstance(node, Card) and node.is_element:
+                out.extend(self.card(node, prefix))
+            elif isinstance(node, Block) and node.kind == "subckt":
+                out.append(node)
+                out.extend(self.copies_of(node, prefix, top))
+            else:
+                out.append(node)
+        return out
+
+    def card(self, card: Card, prefix: str) -> list[Node]:
+        path = f"{prefix}.{card.head}" if prefix else card.head
+        key = path.lower()
+        part = self.parts.get(key)
+        if part is not None:
+            return self.replace_part(card, part)
+        if card.letter == "X" and key in self.copies:
+            _nodes, sub, _params = x_card_parts(card)
+            return [self.retarget(card, sub, copy_name(sub, path))]
+        return [card]
+
+    def copies_of(self, block: Block, prefix: str, top: bool) -> list[Node]:
+        """Specialised copies of *block* that belong in the body being rewritten."""
+        out: list[Node] = []
+        for path, definition in sorted(self.copies.items()):
+            if definition is not block or path in self.placed:
+                continue
+            parent = path.rsplit(".", 1)[0] if "." in path else ""
+            if not top and parent != prefix.lower():
+                continue
+            self.placed.add(path)
+            name = copy_name(block.label, self._spelled(path))
+            header = self.retarget(block.header, block.label, name, comment=False)
+            body = tuple(self.body(block.body, self._spelled(path), top=False))
+            out.append(Block(header, body, block.end and _ends(block.end, name)))
+        return out
+
+    def unplaced(self) -> list[Node]:
+        """Copies of definitions that live in included files: written at the top level."""
+        out: list[Node] = []
+        for path, definition in sorted(self.copies.items()):
+            if path not in self.placed and "." not in path:
+                out.extend(self.copies_of(definition, "", top=True))
+        return out
+
+    def _spelled(self, lower_path: str) -> str:
+        for part in self.circuit.parts:
+            if part.path.lower().startswith(lower_path):
+                return part.path[: len(lower_path)]
+        return lower_path
+
+    # -- cards ---------------------------------------------------------------------------
+
+    def retarget(self, card: Card, old: str, new: str, comment: bool = True) -> Card:
+        """The same card with the subcircuit name *old* replaced by *new*."""
+        logical = card.logical().text
+        fields = card.fields()
+        # The name is the field after the nodes: replace its last occurrence before params.
+        position = logical.lower().rfind(old.lower(), 0, _params_start(logical, fields))
+        if position < 0:
+            raise EmitError(f"cannot find subcircuit name {old!r} on {card.head}", card.location())
+        text = logical[:position] + new + logical[position + len(old) :] + "\n"
+        lead = card.lead + (card.commented(MARK) if comment else "")
+        return Card(text, lead)
+
+    def replace_part(self, card: Card, part: PartPlan) -> list[Node]:
+        if card.source is not None and id(card) not in self.root_cards:
+            raise EmitError(
+                f"{part.path} is defined in an included file ({card.source.path})",
+                part.location,
+                hint="heatweave leaves included files untouched: move the card into the deck "
+                "or into a subcircuit definition",
+            )
+        name = safe(part.path)
+        lines = [f"{MARK}{part.path}: " + describe(part)]
+        if part.is_resistor:
+            lines.extend(self.resistor_cards(card, part, name))
+        else:
+            lines.extend(self.heat_only_cards(card, part, name))
+        net = part.network.elements(f"{PREFIX}{name}_", part.node, part.to, "0")
+        for element in net.elements:
+            lines.append(f"{element.name} {element.node1} {element.node2} "
+                         f"{format_number(element.value)}")
+        self.added.extend([part.node, *net.nodes])
+        text = "".join(line + "\n" for line in lines)
+        return [Card(text, card.lead + card.commented(MARK))]
+
+    def resistor_cards(self, card: Card, part: PartPlan, name: str) -> list[str]:
+        assert part.model is not None
+        nodes = card_nodes(card, self.index)
+        if len(nodes) != 2:
+            raise EmitError(f"{card.head} needs two nodes", card.location())
+        a, b = nodes
+        r_expr = part.model.expression(f"V({part.node})")
+        v = f"V({a},{b})"
+        return [
+            f"B{PREFIX}{name} {a} {b} I = {v}/({r_expr})",
+            f"B{PREFIX}p_{name} 0 {part.node} I = {v}*{v}/({r_expr})",
+        ]
+
+    def heat_only_cards(self, card: Card, part: PartPlan, name: str) -> list[str]:
+        nodes = card_nodes(card, self.index)
+        if len(nodes) < 2:
+            raise EmitError(
+                f"cannot find the terminals of {card.head}",
+                card.location(),
+                hint="heat-only parts need at least two terminals",
+            )
+        sensed = [f"{PREFIX}s_{name}_{k + 1}" for k in range(len(nodes) - 1)]
+        rewritten = rewrite_nodes(card, dict(enumerate(sensed)))
+        lines = [rewritten.rstrip("\n")]
+        terms = []
+        for k, node in enumerate(nodes[:-1]):
+            source = f"V{PREFIX}s_{name}_{k + 1}"
+            lines.append(f"{source} {node} {sensed[k]} 0")
+            terms.append(f"(V({node})-V({nodes[-1]}))*I({source})")
+        self.added.extend(sensed)
+        lines.append(f"B{PREFIX}p_{name} 0 {part.node} I = " + " + ".join(terms))
+        return lines
+
+
+def _params_start(logical: str, fields: list[str]) -> int:
+    """Offset in *logical* where ``key=value`` parameters (or ``params:``) begin."""
+    lower = logical.lower()
+    cut = len(logical)
+    at = lower.find("params:")
+    if at >= 0:
+        cut = at
+    for i, f in enumerate(fields):
+        if i + 1 < len(fields) and fields[i + 1] == "=":
+            at = lower.find(f.lower(), 0, cut)
+            # The key's last occurrence before its '=' is the key itself.
+            eq = lower.find("=", 0, cut)
+            if eq >= 0:
+                key_start = lower.rfind(f.lower(), 0, eq)
+                cut = min(cut, key_start if key_start >= 0 else at)
+            break
+    return cut
+
+
+def _ends(card: Card, name: str) -> Card:
+    """A ``.ends`` for a copy: named when the original named its definition."""
+    fields = card.fields()
+    if len(fields) > 1:
+        return Card(f"{fields[0]} {name}\n")
+    return Card(card.text if card.text.endswith("\n") else card.text + "\n")
+
+
+def copy_name(subckt: str, path: str) -> str:
+    """The name of the copy of *subckt* specialised for instance path *path*."""
+    return f"{subckt}__{PREFIX}{safe(path)}"
+
+
+def describe(part: PartPlan) -> str:
+    """One line saying how a part is modelled, for the comment above its cards."""
+    net = part.network
+    what = f"model {part.model_name}" if part.model_name else "heat only"
+    return f"{what}, {net.kind} network {format_number(net.total_rth)} K/W to {part.to_label}"
+
+
+def thermal_section(circuit: ThermalCircuit, global_nodes: list[str]) -> str:
+    """Ambient source, shared nodes, couplings, ``.global`` and the cold-start ``.ic``."""
+    lines = [f"{MARK}thermal network"]
+    if isinstance(circuit.ambient, tuple):
+        points = " ".join(f"{format_number(t)} {format_number(v)}" for t, v in circuit.ambient)
+        lines.append(f"V{AMBIENT_NODE} {AMBIENT_NODE} 0 PWL({points})")
+    else:
+        lines.append(f"V{AMBIENT_NODE} {AMBIENT_NODE} 0 DC {format_number(circuit.ambient)}")
+    for node in circuit.nodes:
+        lines.append(f"R{node.node} {node.node} {node.to} {format_number(node.rth)}")
+        if node.cth > 0:
+            lines.append(f"C{node.node} {node.node} 0 {format_number(node.cth)}")
+    for k, coupling in enumerate(circuit.couplings, start=1):
+        lines.append(
+            f"R{PREFIX}path{k} {coupling.a} {coupling.b} {format_number(coupling.rth)}"
+            f" ; {coupling.labels[0]} - {coupling.labels[1]}"
+        )
+    if global_nodes:
+        lines.extend(_wrap(".global", global_nodes))
+    if circuit.start == "cold":
+        t0 = format_number(circuit.ambient_at_start)
+        nodes = [n.node for n in circuit.nodes] + [
+            n for p in circuit.parts for n in (p.node,)
+        ]
+        nodes += [n for n in global_nodes if n not in nodes]
+        lines.extend(_wrap(".ic", [f"V({n})={t0}" for n in nodes]))
+    return "".join(line + "\n" for line in lines)
+
+
+def _wrap(card: str, items: list[str], width: int = 90) -> list[str]:
+    """A card with many items, continued with ``+`` lines to stay readable."""
+    lines: list[str] = []
+    current = card
+    for item in items:
+        if len(current) + 1 + len(item) > width and current not in (card, "+"):
+            lines.append(current)
+            current = "+"
+        current += " " + item
+    lines.append(current)
+    return lines
+
+
+def emit_deck(
+    project: Project,
+    index: DeckIndex,
+    circuit: ThermalCircuit,
+    head: str,
+    *,
+    reference: bool = False,
+) -> Emitted:
+    """Rewrite *project*'s top deck for *circuit*; *head* is the header comment block."""
+    deck: Deck = project.deck
+    rewriter = _Rewriter(index, circuit, reference)
+    body = rewriter.body(deck.body, "", top=True)
+    body.extend(rewriter.unplaced())
+    internal = [n for n in rewriter.added if n not in {p.node for p in circuit.parts}]
+    needs_global = bool(rewriter.copies)
+    global_nodes: list[str] = []
+    if needs_global:
+        global_nodes = [AMBIENT_NODE, *(n.node for n in circuit.nodes)]
+        global_nodes += [p.node for p in circuit.parts] + internal
+    section = Card(thermal_section(circuit, global_nodes if needs_global else []))
+    if circuit.start == "cold" and not needs_global and internal:
+        t0 = format_number(circuit.ambient_at_start)
+        extra = "".join(line + "\n" for line in _wrap(".ic", [f"V({n})={t0}" for n in internal]))
+        section = Card(section.text + extra)
+    body = _insert_before_end(body, section)
+    title = deck.title or "heatweave electrothermal deck\n"
+    if not title.endswith("\n"):
+        title += "\n"
+    out = replace(deck, title=title + head, body=tuple(body))
+    text = out.write()
+    check_names(index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)])
+    return Emitted(text, tuple(rewriter.added), tuple(rewriter.findings), circuit)
+
+
+def _insert_before_end(body: list[Node], section: Card) -> list[Node]:
+    """Put the thermal section before the top-level ``.end`` (or last, without one)."""
+    for i in range(len(body) - 1, -1, -1):
+        node = body[i]
+        if isinstance(node, Card) and node.name == ".end":
+            return [*body[:i], section, *body[i:]]
+    last = body[-1] if body else None
+    if isinstance(last, Card | Block) and not last.write().endswith("\n"):
+        pass
+    return [*body, section]
+
+
+def check_names(index: DeckIndex, added: list[str]) -> None:
+    """Every added name must be new: a collision is an error, never a silent rename.
+
+    Only cards whose text holds the reserved prefix can collide, so the files are searched
+    for it first; the field-level check runs on those cards alone.
+    """
+    wanted = {name.lower() for name in added}
+    for card in _all_cards(index):
+        if PREFIX not in card.text.lower():
+            continue
+        for field_text in card.fields():
+            low = field_text.lower()
+            if PREFIX in low and (low in wanted or low[1:] in wanted):
+                raise EmitError(
+                    f"the deck already uses the name {field_text!r}, which heatweave reserves",
+                    card.location(),
+                    hint=f"rename it: names containing {PREFIX!r} are heatweave's",
+                )
+
+
+def _all_cards(index: DeckIndex) -> Iterable[Card]:
+    decks = [index.project.deck, *(inc.deck for inc in index.project.includes)]
+    for deck in decks:
+        if deck.source is None or _PREFIX_RE.search(deck.source.text):
+            yield from deck.cards()
+
+
+_PREFIX_RE = re.compile(re.escape(PREFIX), re.IGNORECASE)
+
+
+def emit_files(deck_path: str, annotation_path: str, *, reference: bool = False) -> Emitted:
+    """Read a deck, its includes and its annotation file; return the emitted deck."""
+    from heatweave.annotations import bind, load
+    from heatweave.hierarchy import load_project
+    from heatweave.thermal_circuit import build_circuit
+
+    project = load_project(deck_path)
+    annotation = load(annotation_path, deck_name=deck_path)
+    index = DeckIndex(project)
+    bound = bind(annotation, index)
+    circuit, findings = build_circuit(annotation, bound, index)
+    deck_text = project.deck.write()
+    head = header(
+        _basename(deck_path), deck_text, _basename(annotation_path), annotation.text
+    )
+    emitted = emit_deck(project, index, circuit, head, reference=reference)
+    return replace(emitted, findings=findings + emitted.findings)
+
+
+def _basename(path: str) -> str:
+    from pathlib import Path
+
+    return Path(path).name
