@@ -18,6 +18,7 @@ FIXTURES = Path(__file__).parent / "fixtures" / "sim"
 LOWPASS = FIXTURES / "lowpass.cir"
 R_SERIES, C_SHUNT = 1e3, 1e-6  # the values in lowpass.cir
 
+Written = tuple[str, Path, str]  # filetype, raw file, ngspice's log
 needs_ngspice = pytest.mark.skipif(shutil.which("ngspice") is None, reason="ngspice missing")
 
 
@@ -88,14 +89,14 @@ def _ngspice_raw(tmp_path: Path, filetype: str) -> tuple[Path, str]:
 
 
 @pytest.fixture(scope="module", params=["binary", "ascii"])
-def written(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-untyped-def]
+def written(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory) -> Written:
     raw, log = _ngspice_raw(tmp_path_factory.mktemp("raw"), request.param)
     return request.param, raw, log
 
 
 @pytest.mark.ngspice
 @needs_ngspice
-def test_plots_and_points_match_ngspice_log(written) -> None:  # type: ignore[no-untyped-def]
+def test_plots_and_points_match_ngspice_log(written: Written) -> None:
     filetype, raw, log = written
     data = raw.read_bytes()
     assert (b"Binary:" in data) == (filetype == "binary")
@@ -112,7 +113,7 @@ def test_plots_and_points_match_ngspice_log(written) -> None:  # type: ignore[no
 
 @pytest.mark.ngspice
 @needs_ngspice
-def test_operating_point_values(written) -> None:  # type: ignore[no-untyped-def]
+def test_operating_point_values(written: Written) -> None:
     _, raw, _ = written
     op = next(plot for plot in read_raw(raw) if plot.kind == "op")
     assert op.scale is None
@@ -124,7 +125,7 @@ def test_operating_point_values(written) -> None:  # type: ignore[no-untyped-def
 
 @pytest.mark.ngspice
 @needs_ngspice
-def test_ac_plot_is_complex_and_matches_first_order_lowpass(written) -> None:  # type: ignore[no-untyped-def]
+def test_ac_plot_is_complex_and_matches_first_order_lowpass(written: Written) -> None:
     _, raw, _ = written
     ac = next(plot for plot in read_raw(raw) if plot.kind == "ac")
     assert ac.scale == "frequency"
@@ -141,7 +142,7 @@ def test_ac_plot_is_complex_and_matches_first_order_lowpass(written) -> None:  #
 
 @pytest.mark.ngspice
 @needs_ngspice
-def test_transient_scale(written) -> None:  # type: ignore[no-untyped-def]
+def test_transient_scale(written: Written) -> None:
     _, raw, _ = written
     tran = next(plot for plot in read_raw(raw) if plot.kind == "tran")
     time = tran.scale_values
