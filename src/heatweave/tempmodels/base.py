@@ -9,16 +9,24 @@ from __future__ import annotations
 
 import math
 from abc import ABC, abstractmethod
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import ClassVar, Self, overload
 
 import numpy as np
 import numpy.typing as npt
 
+from heatweave.quantities import format_number
+
 FloatArray = npt.NDArray[np.float64]
 # A validated annotation value: a number, or a list of (x, y) points for table-like keys.
 ParamValue = float | tuple[tuple[float, float], ...]
+
+# Writes a constant into an expression.  The default writes the number itself; ngspice 39.3
+# rounds numbers written inside B-source expressions to 11 significant digits (a `.param`
+# value keeps full double precision), so an emitter that needs more can pass a function
+# that declares `.param NAME = VALUE` and returns NAME.
+NumberFormat = Callable[[float], str]
 
 KELVIN_OFFSET = 273.15
 
@@ -103,8 +111,11 @@ class TempModel(ABC):
     def _slope(self, t_c: FloatArray) -> FloatArray: ...
 
     @abstractmethod
-    def expression(self, temp: str) -> str:
-        """An ngspice B-source expression for R in ohms; *temp* is the temperature in degC."""
+    def expression(self, temp: str, number: NumberFormat = format_number) -> str:
+        """An ngspice B-source expression for R in ohms; *temp* is the temperature in degC.
+
+        Every constant goes through *number* (see :data:`NumberFormat`).
+        """
 
     @classmethod
     def warnings(cls, params: Mapping[str, ParamValue]) -> tuple[ParamWarning, ...]:

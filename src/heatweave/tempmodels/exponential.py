@@ -17,6 +17,7 @@ from heatweave.quantities import format_number as fmt
 from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     FloatArray,
+    NumberFormat,
     ParamSpec,
     ParamValue,
     ParamWarning,
@@ -63,10 +64,10 @@ class Exponential(TempModel):
     def _slope(self, t_c: FloatArray) -> FloatArray:
         return self._k * self._resistance(t_c)
 
-    def expression(self, temp: str) -> str:
+    def expression(self, temp: str, number: NumberFormat = fmt) -> str:
         return (
-            f"{paren(fmt(self.r0))}*exp({paren(fmt(self._k))}*"
-            f"({paren(temp)}-{paren(fmt(self.tref))}))"
+            f"{paren(number(self.r0))}*exp({paren(number(self._k))}*"
+            f"({paren(temp)}-{paren(number(self.tref))}))"
         )
 
     @classmethod

@@ -13,6 +13,7 @@ from heatweave.quantities import format_number as fmt
 from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     FloatArray,
+    NumberFormat,
     ParamSpec,
     ParamValue,
     ParamWarning,
@@ -105,12 +106,12 @@ class Polynomial(TempModel):
         dt = t_c - self.tref
         return self.r0 * (self.tc1 + 2.0 * self.tc2 * dt)
 
-    def expression(self, temp: str) -> str:
-        dt = f"({paren(temp)}-{paren(fmt(self.tref))})"
-        poly = f"1+{paren(fmt(self.tc1))}*{dt}"
+    def expression(self, temp: str, number: NumberFormat = fmt) -> str:
+        dt = f"({paren(temp)}-{paren(number(self.tref))})"
+        poly = f"1+{paren(number(self.tc1))}*{dt}"
         if self.tc2 != 0.0:
-            poly += f"+{paren(fmt(self.tc2))}*{dt}*{dt}"
-        return f"{paren(fmt(self.r0))}*({poly})"
+            poly += f"+{paren(number(self.tc2))}*{dt}*{dt}"
+        return f"{paren(number(self.r0))}*({poly})"
 
     @classmethod
     def warnings(cls, params: Mapping[str, ParamValue]) -> tuple[ParamWarning, ...]:

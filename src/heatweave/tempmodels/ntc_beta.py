@@ -17,6 +17,7 @@ from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     KELVIN_OFFSET,
     FloatArray,
+    NumberFormat,
     ParamSpec,
     ParamValue,
     ParamWarning,
@@ -63,11 +64,11 @@ class NtcBeta(TempModel):
         kelvin = t_c + KELVIN_OFFSET
         return -self.beta / (kelvin * kelvin) * self._resistance(t_c)
 
-    def expression(self, temp: str) -> str:
+    def expression(self, temp: str, number: NumberFormat = fmt) -> str:
         inv_ref = 1.0 / (self.t_ref + KELVIN_OFFSET)
         return (
-            f"{paren(fmt(self.r_ref))}*exp({paren(fmt(self.beta))}*"
-            f"(1/({paren(temp)}+{fmt(KELVIN_OFFSET)})-{paren(fmt(inv_ref))}))"
+            f"{paren(number(self.r_ref))}*exp({paren(number(self.beta))}*"
+            f"(1/({paren(temp)}+{number(KELVIN_OFFSET)})-{paren(number(inv_ref))}))"
         )
 
     @classmethod

@@ -22,6 +22,7 @@ from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     KELVIN_OFFSET,
     FloatArray,
+    NumberFormat,
     ParamSpec,
     ParamValue,
     ParamWarning,
@@ -77,14 +78,14 @@ class NtcSteinhartHart(TempModel):
         # d(1/T)/dx = b + 3 c x^2 and d(1/T)/dT = -1/T^2, so dR/dT = -R / (T^2 (b + 3 c x^2)).
         return -np.exp(x) / (kelvin * kelvin * (self.b + 3.0 * self.c * x * x))
 
-    def expression(self, temp: str) -> str:
-        inv_t = f"(1/({paren(temp)}+{fmt(KELVIN_OFFSET)}))"
+    def expression(self, temp: str, number: NumberFormat = fmt) -> str:
+        inv_t = f"(1/({paren(temp)}+{number(KELVIN_OFFSET)}))"
         if self.c == 0.0:
-            return f"exp(({inv_t}-{paren(fmt(self.a))})*{paren(fmt(1.0 / self.b))})"
+            return f"exp(({inv_t}-{paren(number(self.a))})*{paren(number(1.0 / self.b))})"
         p3 = self.b / (3.0 * self.c)
-        y = f"(({paren(fmt(self.a))}-{inv_t})*{paren(fmt(0.5 / self.c))})"
-        u = f"pow(sqrt({paren(fmt(p3**3))}+{y}*{y})-{y},{fmt(1.0 / 3.0)})"
-        return f"exp({u}-{paren(fmt(p3))}/{u})"
+        y = f"(({paren(number(self.a))}-{inv_t})*{paren(number(0.5 / self.c))})"
+        u = f"pow(sqrt({paren(number(p3**3))}+{y}*{y})-{y},{number(1.0 / 3.0)})"
+        return f"exp({u}-{paren(number(p3))}/{u})"
 
     @classmethod
     def warnings(cls, params: Mapping[str, ParamValue]) -> tuple[ParamWarning, ...]:

@@ -25,6 +25,7 @@ from heatweave.quantities import format_number as fmt
 from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     FloatArray,
+    NumberFormat,
     ParamSpec,
     ParamValue,
     ParamWarning,
@@ -115,11 +116,11 @@ class Ptc(TempModel):
         df = np.where(inside, self.k * f, 0.0)
         return self.r_cold * (1.0 - q) * df / (1.0 + f * q) ** 2
 
-    def expression(self, temp: str) -> str:
-        arg = f"{paren(fmt(self.k))}*({paren(temp)}-{paren(fmt(self.t_switch))})"
-        f = f"exp(min(max({arg},{fmt(-EXP_CLAMP)}),{fmt(EXP_CLAMP)}))"
+    def expression(self, temp: str, number: NumberFormat = fmt) -> str:
+        arg = f"{paren(number(self.k))}*({paren(temp)}-{paren(number(self.t_switch))})"
+        f = f"exp(min(max({arg},{number(-EXP_CLAMP)}),{number(EXP_CLAMP)}))"
         q = self.r_cold / self.r_max
-        return f"{paren(fmt(self.r_cold))}*(1+{f})/(1+{f}*{paren(fmt(q))})"
+        return f"{paren(number(self.r_cold))}*(1+{f})/(1+{f}*{paren(number(q))})"
 
     @classmethod
     def warnings(cls, params: Mapping[str, ParamValue]) -> tuple[ParamWarning, ...]:

@@ -20,6 +20,7 @@ from heatweave.quantities import format_number as fmt
 from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     FloatArray,
+    NumberFormat,
     ParamSpec,
     ParamValue,
     ParamWarning,
@@ -80,13 +81,13 @@ class Rtd(TempModel):
         cold = np.minimum(t_c, 0.0)
         return self.r0 * (self.a + 2.0 * self.b * t_c + self.c * (4.0 * cold**3 - 300.0 * cold**2))
 
-    def expression(self, temp: str) -> str:
+    def expression(self, temp: str, number: NumberFormat = fmt) -> str:
         t = paren(temp)
         # min(t, 0) makes the C term vanish above 0 degC; products, not ^, keep the sign.
         cold = f"min({t},0)"
         return (
-            f"{paren(fmt(self.r0))}*(1+{paren(fmt(self.a))}*{t}+{paren(fmt(self.b))}*{t}*{t}"
-            f"+{paren(fmt(self.c))}*({cold}-100)*{cold}*{cold}*{cold})"
+            f"{paren(number(self.r0))}*(1+{paren(number(self.a))}*{t}+{paren(number(self.b))}*{t}*{t}"
+            f"+{paren(number(self.c))}*({cold}-100)*{cold}*{cold}*{cold})"
         )
 
     @classmethod

@@ -18,7 +18,14 @@ import numpy as np
 
 from heatweave.quantities import format_number as fmt
 from heatweave.tempmodels import register
-from heatweave.tempmodels.base import FloatArray, ParamSpec, ParamValue, TempModel, paren
+from heatweave.tempmodels.base import (
+    FloatArray,
+    NumberFormat,
+    ParamSpec,
+    ParamValue,
+    TempModel,
+    paren,
+)
 
 
 @register
@@ -80,7 +87,9 @@ class Table(TempModel):
         inside = (index >= 0) & (index < len(steps))
         return np.where(inside, steps[np.clip(index, 0, len(steps) - 1)], 0.0)
 
-    def expression(self, temp: str) -> str:
-        clamped = f"min(max({paren(temp)},{fmt(self.temps[0])}),{fmt(self.temps[-1])})"
-        pairs = ",".join(f"{fmt(t)},{fmt(r)}" for t, r in zip(self.temps, self.ohms, strict=True))
+    def expression(self, temp: str, number: NumberFormat = fmt) -> str:
+        clamped = f"min(max({paren(temp)},{number(self.temps[0])}),{number(self.temps[-1])})"
+        pairs = ",".join(
+            f"{number(t)},{number(r)}" for t, r in zip(self.temps, self.ohms, strict=True)
+        )
         return f"pwl({clamped},{pairs})"
