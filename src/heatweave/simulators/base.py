@@ -24,7 +24,7 @@ from typing import ClassVar
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.errors import UsageError
+from heatweave.errors import SimulatorError, UsageError
 
 from .naming import vector_name
 
@@ -134,6 +134,14 @@ def command_script(analyses: Sequence[str], deck_analyses: bool, save: Sequence[
         script.append("run")
     script.extend(check_analysis(command) for command in analyses)
     return script
+
+
+def timed_out(timeout: float | None) -> SimulatorError:
+    """The error for a run stopped after *timeout* seconds (same wording in every back end)."""
+    return SimulatorError(
+        f"ngspice did not finish within {timeout:g} s and was stopped",
+        hint="give a longer timeout, or a shorter or coarser analysis",
+    )
 
 
 @contextmanager

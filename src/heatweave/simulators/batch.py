@@ -18,17 +18,20 @@ from dataclasses import replace
 from pathlib import Path
 from typing import ClassVar
 
+import numpy as np
+
 from heatweave import files
-from heatweave.errors import NgspiceMissingError, SimulatorError, UsageError
+from heatweave.errors import NgspiceMissingError, UsageError
 
 from . import diagnose
-from .base import Plot, Progress, SimResult, Simulator, command_script, working_folder
+from .base import Plot, Progress, SimResult, Simulator, command_script, timed_out, working_folder
 from .naming import number_plots
 from .rawfile import read_raw
 
 DECK_NAME = "heatweave-deck.cir"
 RAW_NAME = "heatweave-out.raw"
 LOG_NAME = "heatweave-out.log"
+ALL_ECHO = "v(all)"
 MISSING_HINT = "install it with 'apt-get install ngspice', or give the path to the program"
 
 
@@ -50,9 +53,25 @@ def control_block(script: Sequence[str], raw_path: Path, filetype: str) -> str:
     return "\n".join(lines) + "\n"
 
 
+def _without_echo(plot: Plot) -> Plot:
+    """*plot* without the ``v(all)`` copy ngspice's ``write`` adds to a one-vector plot.
+
+    With ``save v(x)`` an operating point has just ``x``, which ngspice also takes as the
+    scale; ``write`` then writes the scale and, again, the expression ``all`` as ``v(all)``.
+    """
+    echo = plot.vectors.get(ALL_ECHO)
+    if echo is None:
+        return plot
+    for name, values in plot.vectors.items():
+        if name != ALL_ECHO and np.array_equal(values, echo):
+            kept = {key: value for key, value in plot.vectors.items() if key != ALL_ECHO}
+            return replace(plot, vectors=kept)
+    return plot
+
+
 def in_run_order(written: Sequence[Plot]) -> tuple[Plot, ...]:
     """Plots written newest first, reversed and renamed ``kind1, kind2 ...`` in run order."""
-    ordered = list(reversed(written))
+    ordered = [_without_echo(plot) for plot in reversed(written)]
     names = number_plots([plot.kind for plot in ordered])
     return tuple(replace(plot, name=name) for plot, name in zip(ordered, names, strict=True))
 
@@ -108,7 +127,7 @@ class BatchSimulator(Simulator):
             deck_path.write_bytes(files.encode(text))
             command = [program, "-b", "-o", str(log_path), str(deck_path)]
             try:
-                subprocess.run(
+                finished = subprocess.run(
                     command,
                     cwd=Path(cwd) if cwd is not None else folder,
                     stdin=subprocess.DEVNULL,
@@ -118,16 +137,17 @@ class BatchSimulator(Simulator):
                     check=False,
                 )
             except subprocess.TimeoutExpired as exc:
-                raise SimulatorError(
-                    f"ngspice did not finish within {timeout:g} s and was stopped",
-                    hint="give a longer timeout, or a shorter or coarser analysis",
-                ) from exc
+                raise timed_out(timeout) from exc
             except OSError as exc:
                 raise NgspiceMissingError(
                     f"the ngspice program {program!r} could not be started: {exc}",
                     hint=MISSING_HINT,
                 ) from exc
             log = files.decode(log_path.read_bytes()) if log_path.exists() else ""
+            # A few messages go to standard error even with -o; they belong to the log too.
+            stray = files.decode(finished.stderr).strip()
+            if stray:
+                log = f"{log.rstrip()}\n{stray}\n"
             lines = diagnose.log_lines(log)
             error = diagnose.failure(lines)
             if error is not None:
@@ -135,10 +155,4 @@ class BatchSimulator(Simulator):
             plots = in_run_order(read_raw(raw_path)) if raw_path.exists() else ()
         if progress is not None:
             progress(1.0)
-        return SimResult(
-            plots=plots,
-            log=log,
-            warnings=diagnose.warnings(lines),
-            measurements=diagnose.measurements(lines),
-            backend=self.name,
-        )
+        return diagnose.result(plots, log, self.name)

@@ -21,6 +21,8 @@ from collections.abc import Iterable, Sequence
 
 from heatweave.errors import ConvergenceError, SimulatorError, TimestepTooSmallError
 
+from .base import Plot, SimResult
+
 _TIMESTEP = re.compile(r"timestep too small;\s*time\s*=\s*(?P<time>[-+0-9.eE]+)", re.IGNORECASE)
 _CONVERGENCE = re.compile(
     r"iteration limit reached|no convergence|dc solution failed|transient solution failed"
@@ -74,9 +76,7 @@ def failure(lines: Sequence[str]) -> SimulatorError | None:
     converge = [line.strip() for line in relevant if _CONVERGENCE.search(line)]
     if converge and any(_CONVERGENCE.search(line) for line in fatal):
         quoted = _best(converge)
-        return ConvergenceError(
-            f"ngspice found no operating point: {quoted}", hint=CONVERGENCE_HINT
-        )
+        return ConvergenceError(f"ngspice did not converge: {quoted}", hint=CONVERGENCE_HINT)
     return SimulatorError(
         "ngspice could not simulate the deck: " + " | ".join(fatal[:_MAX_QUOTED]),
         hint="fix the deck lines ngspice names; its log shows them in context",
@@ -119,3 +119,21 @@ def measurements(lines: Iterable[str]) -> dict[str, float]:
             if match:
                 found[match["name"].lower()] = float(match["value"])
     return found
+
+
+NO_ANALYSIS = "no analysis ran: the deck has no analysis card and none was requested"
+
+
+def result(plots: tuple[Plot, ...], log: str, backend: str) -> SimResult:
+    """The :class:`SimResult` of a run that did not fail, the same way for every back end."""
+    lines = log_lines(log)
+    found = warnings(lines)
+    if not plots:
+        found = (*found, NO_ANALYSIS)
+    return SimResult(
+        plots=plots,
+        log=log,
+        warnings=found,
+        measurements=measurements(lines),
+        backend=backend,
+    )

@@ -31,10 +31,19 @@ from typing import Any, ClassVar
 import numpy as np
 
 from heatweave import files
-from heatweave.errors import LibngspiceMissingError, SimulatorError
+from heatweave.errors import LibngspiceMissingError
 
 from . import diagnose
-from .base import Array, Plot, Progress, SimResult, Simulator, command_script, working_folder
+from .base import (
+    Array,
+    Plot,
+    Progress,
+    SimResult,
+    Simulator,
+    command_script,
+    timed_out,
+    working_folder,
+)
 from .naming import (
     CURRENT,
     FREQUENCY,
@@ -246,7 +255,7 @@ class SharedSimulator(Simulator):
                         for command in script:
                             _run_command(engine, command, deadline, timeout)
                 log = "\n".join(engine.heatweave_log)
-                lines = _raise_failure(engine.heatweave_log)
+                _raise_failure(engine.heatweave_log)
                 plots = _read_plots(engine)
             finally:
                 engine.heatweave_progress = None
@@ -255,22 +264,14 @@ class SharedSimulator(Simulator):
                 engine.heatweave_log.clear()
         if progress is not None:
             progress(1.0)
-        return SimResult(
-            plots=plots,
-            log=log,
-            warnings=diagnose.warnings(lines),
-            measurements=diagnose.measurements(lines),
-            backend=self.name,
-        )
+        return diagnose.result(plots, log, self.name)
 
 
-def _raise_failure(log: list[str]) -> list[str]:
-    """The log's lines; raises the error they show, if any."""
-    lines = diagnose.log_lines("\n".join(log))
-    error = diagnose.failure(lines)
+def _raise_failure(log: list[str]) -> None:
+    """Raise the error the log shows, if any."""
+    error = diagnose.failure(diagnose.log_lines("\n".join(log)))
     if error is not None:
         raise error
-    return lines
 
 
 def _command(engine: Any, command: str) -> int:
@@ -300,10 +301,7 @@ def _run_command(engine: Any, command: str, deadline: float | None, timeout: flo
         if deadline is not None and now > deadline:
             _command(engine, "bg_halt")
             engine.heatweave_done.wait(5.0)
-            raise SimulatorError(
-                f"ngspice did not finish within {timeout:g} s and was stopped",
-                hint="give a longer timeout, or a shorter or coarser analysis",
-            )
+            raise timed_out(timeout)
         if lib.ngSpice_running():
             idle_since = None
         elif idle_since is None:

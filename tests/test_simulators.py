@@ -1,0 +1,304 @@
+"""Both simulator back ends on decks with known answers, against each other, and failing.
+
+Every test here that simulates really runs ngspice 39 (program or shared library).
+"""
+
+from __future__ import annotations
+
+import shutil
+from collections.abc import Iterator
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from heatweave.errors import (
+    EXIT_LIBNGSPICE_MISSING,
+    EXIT_NGSPICE_MISSING,
+    EXIT_SIMULATION_FAILED,
+    EXIT_TIMESTEP_TOO_SMALL,
+    ConvergenceError,
+    LibngspiceMissingError,
+    NgspiceMissingError,
+    SimulatorError,
+    TimestepTooSmallError,
+    UsageError,
+)
+from heatweave.simulators import (
+    BatchSimulator,
+    SharedSimulator,
+    SimResult,
+    Simulator,
+    get_simulator,
+)
+from heatweave.simulators.shared import DEBIAN_LIBRARY, ENV_LIBRARY
+
+FIXTURES = Path(__file__).parent / "fixtures" / "sim"
+BACKENDS = ["batch", "shared"]
+TAU = 1e3 * 1e-6  # Rcharge * Ccharge in rc_step.cir and measure.cir
+
+pytestmark = pytest.mark.ngspice
+
+
+def deck(name: str) -> str:
+    return (FIXTURES / name).read_text()
+
+
+def make(name: str) -> Simulator:
+    if name == "batch" and shutil.which("ngspice") is None:
+        pytest.skip("ngspice program missing")
+    if name == "shared" and not Path(DEBIAN_LIBRARY).exists():
+        pytest.skip("libngspice missing")
+    return get_simulator(name)
+
+
+@pytest.fixture(params=BACKENDS)
+def simulator(request: pytest.FixtureRequest) -> Simulator:
+    return make(request.param)
+
+
+def test_rc_step_follows_closed_form(simulator: Simulator) -> None:
+    tran = simulator.run(deck("rc_step.cir")).plot("tran")
+    time, vcap = tran["time"], tran["v(cap)"]
+    assert time[-1] == pytest.approx(5e-3, rel=1e-12)
+    assert len(time) > 900  # 5 us maximum step over 5 ms
+    # First-order step response v = 1 - exp(-t/RC) (standard circuit theory, from memory).
+    # Tolerance: the 1 ns source ramp delays the response by t_r/2, an error of at most
+    # t_r/(2 RC) = 5e-7 V; ngspice's integration error at reltol=1e-6 is below that.
+    np.testing.assert_allclose(vcap, 1.0 - np.exp(-time / TAU), rtol=0, atol=2e-6)
+    # The source current is the capacitor's charging current -(1 V - v)/R (Ohm's law).
+    late = time > 1e-5
+    np.testing.assert_allclose(
+        tran["i(vstep)"][late], -(1.0 - vcap[late]) / 1e3, rtol=0, atol=1e-12
+    )
+
+
+def test_divider_obeys_ohms_law(simulator: Simulator) -> None:
+    result = simulator.run(deck("divider.cir"))
+    assert [plot.name for plot in result.plots] == ["op1"]
+    op = result.plot("op")
+    assert op.scale is None
+    # 10 V over 3k + (1k + 1k): I = 10/5k = 2 mA; mid = 2 mA * 2k; x1.n3 = 2 mA * 1k.
+    assert op["v(top)"][0] == pytest.approx(10.0, rel=1e-12)
+    assert op["v(mid)"][0] == pytest.approx(4.0, rel=1e-9)
+    assert op["v(xlower.n3)"][0] == pytest.approx(2.0, rel=1e-9)
+    # ngspice counts a source's current from + through the source to -: delivering is negative.
+    assert op["i(vsupply)"][0] == pytest.approx(-2e-3, rel=1e-9)
+    assert "mid" in op and "V(MID)" in op and "i(vsupply)" in op
+
+
+def test_measurements_match_closed_form(simulator: Simulator) -> None:
+    result = simulator.run(deck("measure.cir"))
+    # ngspice prints .meas values with 7 significant digits; a crossing time interpolated
+    # between 5 us points is off by about h^2/(8 RC) = 3 ns: rel 1e-5 covers both.
+    assert result.measurements["vsettled"] == pytest.approx(1.0 - np.exp(-5.0), rel=1e-5)
+    # 10 % to 90 % of a first-order step takes RC ln 9 (standard result, from memory).
+    assert result.measurements["trise"] == pytest.approx(TAU * np.log(9.0), rel=1e-5)
+
+
+def test_failed_measurement_is_a_warning(simulator: Simulator) -> None:
+    text = deck("measure.cir").replace(".end\n", ".meas tran late find v(cap) at=50m\n.end\n")
+    result = simulator.run(text)
+    assert "late" not in result.measurements
+    assert any("late" in warning and "failed" in warning for warning in result.warnings)
+
+
+def test_requested_analyses_instead_of_the_decks(simulator: Simulator) -> None:
+    result = simulator.run(deck("lowpass.cir"), analyses=["tran 10u 1m", "op"], deck_analyses=False)
+    assert [(p.name, p.kind) for p in result.plots] == [("tran1", "tran"), ("op1", "op")]
+    assert result.plot("tran")["time"][-1] == pytest.approx(1e-3, rel=1e-12)
+
+
+def test_requested_analyses_after_the_decks(simulator: Simulator) -> None:
+    result = simulator.run(deck("divider.cir"), analyses=["dc vsupply 0 10 5"])
+    assert [plot.kind for plot in result.plots] == ["op", "dc"]
+    dc = result.plot("dc")
+    assert dc.scale == "v-sweep"
+    np.testing.assert_allclose(dc["v-sweep"], [0.0, 5.0, 10.0], atol=1e-12)
+    np.testing.assert_allclose(dc["v(mid)"], 0.4 * dc["v-sweep"], rtol=1e-9, atol=1e-12)
+
+
+def test_save_limits_the_vectors(simulator: Simulator) -> None:
+    op = simulator.run(deck("divider.cir"), save=["v(mid)"]).plot("op")
+    assert set(op.vectors) == {"v(mid)"}
+
+
+def test_include_resolved_against_cwd(simulator: Simulator) -> None:
+    op = simulator.run(deck("uses_include.cir"), cwd=FIXTURES).plot("op")
+    # 6 V over 2k + 1k: mid = 6 * 1k / 3k (voltage divider rule).
+    assert op["v(mid)"][0] == pytest.approx(2.0, rel=1e-9)
+
+
+def test_include_missing_without_cwd(simulator: Simulator) -> None:
+    with pytest.raises(SimulatorError):
+        simulator.run(deck("uses_include.cir"))
+
+
+def test_workdir_is_kept_when_given(simulator: Simulator, tmp_path: Path) -> None:
+    simulator.run(deck("divider.cir"), workdir=tmp_path / "keep")
+    assert (tmp_path / "keep").is_dir()
+
+
+@pytest.mark.parametrize(
+    ("name", "error", "exit_code", "quoted"),
+    [
+        ("no_operating_point.cir", ConvergenceError, EXIT_SIMULATION_FAILED, "doAnalyses: OP"),
+        ("no_initial_point.cir", ConvergenceError, EXIT_SIMULATION_FAILED, "initial timepoint"),
+        (
+            "timestep_too_small.cir",
+            TimestepTooSmallError,
+            EXIT_TIMESTEP_TOO_SMALL,
+            "t = 1.23447e-06 s",
+        ),
+        ("unknown_model.cir", SimulatorError, EXIT_SIMULATION_FAILED, "valid modelname"),
+        ("unknown_subckt.cir", SimulatorError, EXIT_SIMULATION_FAILED, "unknown subckt"),
+    ],
+)
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_failures_are_classified_alike(
+    backend: str, name: str, error: type[SimulatorError], exit_code: int, quoted: str
+) -> None:
+    with pytest.raises(SimulatorError) as caught:
+        make(backend).run(deck(name))
+    assert type(caught.value) is error
+    assert caught.value.exit_code == exit_code
+    assert quoted in caught.value.message
+    assert caught.value.hint
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_timeout_stops_the_run_and_the_next_run_works(backend: str) -> None:
+    simulator = make(backend)
+    with pytest.raises(SimulatorError, match="did not finish within 1 s") as caught:
+        simulator.run(deck("never_settles.cir"), timeout=1.0)
+    assert type(caught.value) is SimulatorError
+    op = simulator.run(deck("divider.cir")).plot("op")
+    assert op["v(mid)"][0] == pytest.approx(4.0, rel=1e-9)
+
+
+def _same(one: SimResult, other: SimResult) -> None:
+    assert [(p.name, p.kind, p.scale) for p in one.plots] == [
+        (p.name, p.kind, p.scale) for p in other.plots
+    ]
+    for a, b in zip(one.plots, other.plots, strict=True):
+        assert a.vectors.keys() == b.vectors.keys()
+        for name in a.vectors:
+            # Same ngspice code, same deck, same commands; the binary raw file keeps every
+            # float64 bit, so the numbers must agree exactly.
+            np.testing.assert_array_equal(a[name], b[name], err_msg=f"{a.name} {name}")
+    assert one.measurements == other.measurements
+
+
+@pytest.mark.parametrize(
+    ("name", "analyses"),
+    [
+        ("rc_step.cir", ()),
+        ("divider.cir", ("dc vsupply 0 10 1",)),
+        ("lowpass.cir", ("tran 1u 100u",)),
+        ("measure.cir", ()),
+    ],
+)
+def test_both_backends_agree(name: str, analyses: tuple[str, ...]) -> None:
+    batch = make("batch").run(deck(name), analyses=analyses)
+    shared = make("shared").run(deck(name), analyses=analyses)
+    _same(batch, shared)
+
+
+def test_ascii_raw_transfer_matches_binary() -> None:
+    make("batch")
+    binary = BatchSimulator().run(deck("lowpass.cir"))
+    ascii_ = BatchSimulator(filetype="ascii").run(deck("lowpass.cir"))
+    for a, b in zip(binary.plots, ascii_.plots, strict=True):
+        for name in a.vectors:
+            # ASCII keeps 16 significant digits: relative rounding below 1e-15.
+            np.testing.assert_allclose(a[name], b[name], rtol=1e-14, atol=1e-300)
+
+
+def test_shared_runs_are_independent() -> None:
+    simulator = make("shared")
+    first = simulator.run(deck("divider.cir"))
+    second = simulator.run(deck("rc_step.cir"))
+    third = simulator.run(deck("divider.cir"))
+    assert [p.kind for p in second.plots] == ["tran"]
+    assert "v(mid)" not in second.plot("tran")
+    assert "v(cap)" not in third.plot("op")
+    _same(first, third)
+
+
+def test_shared_progress_reaches_one() -> None:
+    seen: list[float] = []
+    make("shared").run(deck("rc_step.cir"), analyses=["tran 1u 50m"], progress=seen.append)
+    assert len(seen) >= 2 and seen[-1] == 1.0
+    assert all(0.0 <= f <= 1.0 for f in seen)
+    assert seen == sorted(seen)
+
+
+def test_shared_keeps_ngspice_and_pyspice_quiet(capfd: pytest.CaptureFixture[str]) -> None:
+    text = deck("measure.cir").replace(".end\n", ".meas tran late find v(cap) at=50m\n.end\n")
+    result = make("shared").run(text)
+    captured = capfd.readouterr()
+    assert captured.out == "" and captured.err == ""
+    assert "Circuit: rc step with .meas" in result.log
+
+
+def test_batch_progress_reports_completion() -> None:
+    seen: list[float] = []
+    make("batch").run(deck("divider.cir"), progress=seen.append)
+    assert seen == [1.0]
+
+
+def test_missing_program() -> None:
+    with pytest.raises(NgspiceMissingError) as caught:
+        BatchSimulator("/nonexistent/bin/ngspice").run(deck("divider.cir"))
+    assert caught.value.exit_code == EXIT_NGSPICE_MISSING
+    assert "apt-get install ngspice" in caught.value.render()
+
+
+def test_missing_library() -> None:
+    with pytest.raises(LibngspiceMissingError) as caught:
+        SharedSimulator("/nonexistent/lib/libngspice.so.0").run(deck("divider.cir"))
+    assert caught.value.exit_code == EXIT_LIBNGSPICE_MISSING
+    assert "libngspice0-dev" in caught.value.render()
+    assert ENV_LIBRARY in caught.value.render()
+
+
+def test_unloadable_library(tmp_path: Path) -> None:
+    fake = tmp_path / "libngspice.so.0"
+    fake.write_text("not a shared object\n")
+    with pytest.raises(LibngspiceMissingError, match="cannot be loaded"):
+        SharedSimulator(fake).load()
+
+
+def test_library_from_environment(monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv(ENV_LIBRARY, "/nonexistent/from-env/libngspice.so")
+    with pytest.raises(LibngspiceMissingError, match="from-env"):
+        get_simulator("shared")
+    assert isinstance(get_simulator("auto"), BatchSimulator)
+
+
+@pytest.fixture
+def real_library(monkeypatch: pytest.MonkeyPatch) -> Iterator[None]:
+    monkeypatch.delenv(ENV_LIBRARY, raising=False)
+    make("shared")
+    yield
+
+
+def test_auto_prefers_the_shared_library(real_library: None) -> None:
+    assert isinstance(get_simulator("auto"), SharedSimulator)
+
+
+@pytest.mark.parametrize("bad", ["plot v(out)", "tran 1u 1m\nshell rm x", "", "op; quit"])
+def test_bad_analysis_requests(bad: str) -> None:
+    with pytest.raises(UsageError):
+        BatchSimulator().run(deck("divider.cir"), analyses=[bad])
+
+
+def test_unknown_backend_name() -> None:
+    with pytest.raises(UsageError, match="unknown simulator back end"):
+        get_simulator("spicy")
+
+
+def test_deck_without_analysis_warns(simulator: Simulator) -> None:
+    result = simulator.run(deck("divider.cir").replace(".op\n", ""))
+    assert result.plots == ()
+    assert any(warning.startswith("no analysis ran") for warning in result.warnings)
