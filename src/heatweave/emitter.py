@@ -30,6 +30,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
 from heatweave import __version__
+from heatweave.annotations import Annotation, BoundPart
 from heatweave.deck import Block, Card, Deck, Node
 from heatweave.elements import card_nodes, rewrite_nodes
 from heatweave.errors import EmitError, Finding
@@ -94,10 +95,13 @@ def stale_reason(committed: str, fresh: str) -> str:
 class _Rewriter:
     """Rewrites bodies for one thermal circuit; keeps the bookkeeping of names and copies."""
 
-    def __init__(self, index: DeckIndex, circuit: ThermalCircuit, reference: bool) -> None:
+    def __init__(
+        self, index: DeckIndex, circuit: ThermalCircuit, reference: bool, heating: bool
+    ) -> None:
         self.index = index
         self.circuit = circuit
         self.reference = reference
+        self.heating = heating
         self.findings: list[Finding] = []
         self.added: list[str] = []
         self.parts: dict[str, PartPlan] = {p.path.lower(): p for p in circuit.parts}
@@ -201,8 +205,9 @@ class _Rewriter:
             lines.extend(self.heat_only_cards(card, part, name))
         net = part.network.elements(f"{PREFIX}{name}_", part.node, part.to, "0")
         for element in net.elements:
-            lines.append(f"{element.name} {element.node1} {element.node2} "
-                         f"{format_number(element.value)}")
+            lines.append(
+                f"{element.name} {element.node1} {element.node2} {format_number(element.value)}"
+            )
         self.added.extend([part.node, *net.nodes])
         text = "".join(line + "\n" for line in lines)
         return [Card(text, card.lead + card.commented(MARK))]
@@ -215,10 +220,10 @@ class _Rewriter:
         a, b = nodes
         r_expr = part.model.expression(f"V({part.node})")
         v = f"V({a},{b})"
-        return [
-            f"B{PREFIX}{name} {a} {b} I = {v}/({r_expr})",
-            f"B{PREFIX}p_{name} 0 {part.node} I = {v}*{v}/({r_expr})",
-        ]
+        cards = [f"B{PREFIX}{name} {a} {b} I = {v}/({r_expr})"]
+        if self.heating:
+            cards.append(f"B{PREFIX}p_{name} 0 {part.node} I = {v}*{v}/({r_expr})")
+        return cards
 
     def heat_only_cards(self, card: Card, part: PartPlan, name: str) -> list[str]:
         nodes = card_nodes(card, self.index)
@@ -237,7 +242,8 @@ class _Rewriter:
             lines.append(f"{source} {node} {sensed[k]} 0")
             terms.append(f"(V({node})-V({nodes[-1]}))*I({source})")
         self.added.extend(sensed)
-        lines.append(f"B{PREFIX}p_{name} 0 {part.node} I = " + " + ".join(terms))
+        if self.heating:
+            lines.append(f"B{PREFIX}p_{name} 0 {part.node} I = " + " + ".join(terms))
         return lines
 
 
@@ -301,9 +307,7 @@ def thermal_section(circuit: ThermalCircuit, global_nodes: list[str]) -> str:
         lines.extend(_wrap(".global", global_nodes))
     if circuit.start == "cold":
         t0 = format_number(circuit.ambient_at_start)
-        nodes = [n.node for n in circuit.nodes] + [
-            n for p in circuit.parts for n in (p.node,)
-        ]
+        nodes = [n.node for n in circuit.nodes] + [n for p in circuit.parts for n in (p.node,)]
         nodes += [n for n in global_nodes if n not in nodes]
         lines.extend(_wrap(".ic", [f"V({n})={t0}" for n in nodes]))
     return "".join(line + "\n" for line in lines)
@@ -329,10 +333,15 @@ def emit_deck(
     head: str,
     *,
     reference: bool = False,
+    heating: bool = True,
 ) -> Emitted:
-    """Rewrite *project*'s top deck for *circuit*; *head* is the header comment block."""
+    """Rewrite *project*'s top deck for *circuit*; *head* is the header comment block.
+
+    With ``heating=False`` no part injects its dissipation: every part stays at ambient,
+    which is the baseline that drift limits are measured against.
+    """
     deck: Deck = project.deck
-    rewriter = _Rewriter(index, circuit, reference)
+    rewriter = _Rewriter(index, circuit, reference, heating)
     body = rewriter.body(deck.body, "", top=True)
     body.extend(rewriter.unplaced())
     internal = [n for n in rewriter.added if n not in {p.node for p in circuit.parts}]
@@ -398,23 +407,64 @@ def _all_cards(index: DeckIndex) -> Iterable[Card]:
 _PREFIX_RE = re.compile(re.escape(PREFIX), re.IGNORECASE)
 
 
-def emit_files(deck_path: str, annotation_path: str, *, reference: bool = False) -> Emitted:
-    """Read a deck, its includes and its annotation file; return the emitted deck."""
+@dataclass(frozen=True, slots=True)
+class Inputs:
+    """A deck with its includes and its annotation file, read, validated and bound."""
+
+    deck_path: str
+    annotation_path: str
+    project: Project
+    index: DeckIndex
+    annotation: Annotation
+    bound: tuple[BoundPart, ...]
+
+
+def load_inputs(deck_path: str, annotation_path: str) -> Inputs:
+    """Read a deck, its includes and its annotation file, and bind the parts."""
     from heatweave.annotations import bind, load
     from heatweave.hierarchy import load_project
-    from heatweave.thermal_circuit import build_circuit
 
     project = load_project(deck_path)
     annotation = load(annotation_path, deck_name=deck_path)
     index = DeckIndex(project)
-    bound = bind(annotation, index)
-    circuit, findings = build_circuit(annotation, bound, index)
-    deck_text = project.deck.write()
+    return Inputs(deck_path, annotation_path, project, index, annotation, bind(annotation, index))
+
+
+def emit_inputs(
+    inputs: Inputs,
+    *,
+    annotation: Annotation | None = None,
+    ambient: float | None = None,
+    reference: bool = False,
+    heating: bool = True,
+) -> Emitted:
+    """The emitted deck for *inputs*; *annotation* replaces the file's (a Monte Carlo draw,
+    a corner) and *ambient* overrides its ambient temperature.  ``heating=False`` gives
+    the same deck with every part held at ambient (see :func:`emit_deck`)."""
+    from heatweave.thermal_circuit import build_circuit
+
+    chosen = annotation or inputs.annotation
+    bound = inputs.bound
+    if annotation is not None:
+        from heatweave.annotations import bind
+
+        bound = bind(annotation, inputs.index)
+    circuit, findings = build_circuit(chosen, bound, inputs.index)
+    if ambient is not None:
+        circuit = replace(circuit, ambient=float(ambient))
+    deck_text = inputs.project.deck.write()
     head = header(
-        _basename(deck_path), deck_text, _basename(annotation_path), annotation.text
+        _basename(inputs.deck_path), deck_text, _basename(inputs.annotation_path), chosen.text
     )
-    emitted = emit_deck(project, index, circuit, head, reference=reference)
+    emitted = emit_deck(
+        inputs.project, inputs.index, circuit, head, reference=reference, heating=heating
+    )
     return replace(emitted, findings=findings + emitted.findings)
+
+
+def emit_files(deck_path: str, annotation_path: str, *, reference: bool = False) -> Emitted:
+    """Read a deck, its includes and its annotation file; return the emitted deck."""
+    return emit_inputs(load_inputs(deck_path, annotation_path), reference=reference)
 
 
 def _basename(path: str) -> str:

@@ -264,3 +264,45 @@ class DeckIndex:
             definitions.append(found[0])
             scope = found[1]
         return None
+
+
+def subckt_ports(block: Block) -> list[str]:
+    """The port names of a ``.subckt`` header, before ``params:`` or ``key=value``."""
+    fields = block.header.fields()[2:]
+    ports: list[str] = []
+    for i, f in enumerate(fields):
+        if f.lower() == "params:" or (i + 1 < len(fields) and fields[i + 1] == "="):
+            break
+        ports.append(f)
+    return ports
+
+
+def global_names(index: DeckIndex) -> set[str]:
+    """Nodes that are the same everywhere: ground, ``gnd`` and every ``.global`` node."""
+    names = {"0", "gnd"}
+    decks = [index.project.deck, *(inc.deck for inc in index.project.includes)]
+    for deck in decks:
+        for card in deck.cards():
+            if card.name == ".global":
+                names.update(f.lower() for f in card.fields()[1:])
+    return names
+
+
+def top_level_node(resolved: Resolved, node: str, globals_: set[str]) -> str:
+    """The name ngspice gives, at the top level, to *node* of the element at *resolved*.
+
+    Ports are followed up through each instance's connections; other nodes inside an
+    instance get the instance path as a prefix (``x1.x3.n5``), as ngspice names them.
+    """
+    name = node.lower()
+    for depth in range(len(resolved.instances) - 1, -1, -1):
+        if name in globals_:
+            return name
+        ports = [p.lower() for p in subckt_ports(resolved.definitions[depth])]
+        if name in ports:
+            outer_nodes, _sub, _params = x_card_parts(resolved.instances[depth])
+            name = outer_nodes[ports.index(name)].lower()
+        else:
+            path = ".".join(card.name for card in resolved.instances[: depth + 1])
+            return f"{path}.{name}"
+    return name

@@ -17,6 +17,8 @@ from heatweave import __version__
 COMMANDS: dict[str, str] = {
     "emit": "heatweave.cli.emit_cmd:emit",
     "lint": "heatweave.cli.lint_cmd:lint",
+    "network": "heatweave.cli.network_cmd:network",
+    "schema": "heatweave.cli.schema_cmd:schema",
 }
 
 

@@ -1,0 +1,169 @@
+"""Running an electrothermal deck: emit, make it safe to run, simulate, read the results.
+
+``run`` is what ``heatweave run`` and ``check`` do, and what ``settle`` and ``sweep`` call for
+each corner.  Shared decks may carry ``.control`` blocks, whose commands can run shell
+commands: they are dropped unless the caller allows them, and heatweave drives the analyses
+itself.  Nothing is written except in a temporary working folder.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+from heatweave.annotations import Annotation
+from heatweave.deck import Block, Card, ControlBlock, Node
+from heatweave.emitter import Emitted, Inputs, emit_inputs, load_inputs
+from heatweave.errors import Finding, UsageError
+from heatweave.reader import read
+from heatweave.results import RunResults, extract
+from heatweave.simulators import Progress, SimResult, get_simulator
+
+#: Dot cards that ask ngspice for an analysis (manual 15.3).
+ANALYSIS_CARDS = frozenset(
+    {".op", ".tran", ".dc", ".ac", ".tf", ".noise", ".pz", ".sens", ".disto", ".sp", ".pss"}
+)
+
+
+@dataclass(frozen=True, slots=True)
+class RunOptions:
+    """How to run: analyses to use instead of the deck's own, overrides, back end."""
+
+    analyses: tuple[str, ...] = ()
+    ambient: float | None = None
+    backend: str = "auto"
+    allow_control: bool = False
+    timeout: float | None = None
+    reference: bool = False
+    progress: Progress | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Prepared:
+    """An emitted deck made ready to simulate, and the analyses to run on it."""
+
+    emitted: Emitted
+    text: str
+    analyses: tuple[str, ...]
+    deck_analyses: bool
+    findings: tuple[Finding, ...]
+    cwd: str
+
+
+@dataclass(frozen=True, slots=True)
+class RunOutcome:
+    """A finished run: what was simulated, what ngspice returned, what it means."""
+
+    prepared: Prepared
+    sim: SimResult
+    results: RunResults
+
+
+def strip_control(text: str, path: str, allow: bool) -> tuple[str, tuple[Finding, ...]]:
+    """The deck without its ``.control`` blocks (unless *allow*), and a warning if any."""
+    deck = read(text, path)
+    blocks = [n for n in deck.body if isinstance(n, ControlBlock)]
+    if allow or not blocks:
+        return text, ()
+    kept: list[Node] = [n for n in deck.body if not isinstance(n, ControlBlock)]
+    first = blocks[0]
+    where = first.source.location(first.offset) if first.source else None
+    warning = Finding(
+        "warning",
+        f"dropped {len(blocks)} .control block(s): their commands can run anything on this "
+        "machine, so heatweave drives the analyses itself",
+        where,
+        "pass --allow-control to keep them if you trust this deck",
+    )
+    return deck.with_body(tuple(kept)).write(), (warning,)
+
+
+def deck_analyses_of(text: str) -> list[str]:
+    """The analysis cards of a deck (top level), as written."""
+    deck = read(text)
+    return [
+        n.logical().text.strip()
+        for n in deck.body
+        if isinstance(n, Card) and n.name in ANALYSIS_CARDS
+    ]
+
+
+def prepare(
+    inputs: Inputs,
+    options: RunOptions,
+    annotation: Annotation | None = None,
+    *,
+    heating: bool = True,
+) -> Prepared:
+    """Emit the electrothermal deck and make it ready for the simulator."""
+    emitted = emit_inputs(
+        inputs,
+        annotation=annotation,
+        ambient=options.ambient,
+        reference=options.reference,
+        heating=heating,
+    )
+    text, dropped = strip_control(emitted.text, inputs.deck_path, options.allow_control)
+    own = deck_analyses_of(text)
+    if not options.analyses and not own and not options.allow_control:
+        raise UsageError(
+            f"{inputs.deck_path} asks for no analysis (.op, .tran, ...)",
+            hint="add an analysis card to the deck, or pass --op or --tran TSTEP TSTOP",
+        )
+    return Prepared(
+        emitted,
+        text,
+        tuple(options.analyses),
+        deck_analyses=not options.analyses,
+        findings=emitted.findings + dropped,
+        cwd=str(Path(inputs.deck_path).resolve().parent),
+    )
+
+
+def simulate(prepared: Prepared, options: RunOptions) -> SimResult:
+    """Run ngspice on a prepared deck."""
+    simulator = get_simulator(options.backend)
+    return simulator.run(
+        prepared.text,
+        analyses=prepared.analyses,
+        deck_analyses=prepared.deck_analyses,
+        cwd=prepared.cwd,
+        timeout=options.timeout,
+        progress=options.progress,
+    )
+
+
+def run(
+    deck_path: str,
+    annotation_path: str,
+    options: RunOptions = RunOptions(),
+    *,
+    inputs: Inputs | None = None,
+    annotation: Annotation | None = None,
+) -> RunOutcome:
+    """Emit, simulate and read back one electrothermal run."""
+    inputs = inputs or load_inputs(deck_path, annotation_path)
+    prepared = prepare(inputs, options, annotation)
+    sim = simulate(prepared, options)
+    assert prepared.emitted.circuit is not None
+    results = extract(sim, prepared.emitted.circuit, inputs.index)
+    return RunOutcome(prepared, sim, results)
+
+
+def run_baseline(
+    inputs: Inputs, options: RunOptions, annotation: Annotation | None = None
+) -> RunOutcome:
+    """The same deck without self-heating: every part held at ambient, same analyses.
+
+    Drift limits compare against this run, so a drift is what self-heating alone causes.
+    """
+    quiet = replace(options, progress=None)
+    prepared = prepare(inputs, quiet, annotation, heating=False)
+    sim = simulate(prepared, quiet)
+    assert prepared.emitted.circuit is not None
+    return RunOutcome(prepared, sim, extract(sim, prepared.emitted.circuit, inputs.index))
+
+
+def top_level_cards(body: tuple[Node, ...]) -> list[Card]:
+    """Cards of a body that are not inside blocks."""
+    return [n for n in body if isinstance(n, Card) and not isinstance(n, Block)]
