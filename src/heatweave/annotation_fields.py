@@ -116,9 +116,12 @@ def model_fields(specs: Iterable[ParamSpec]) -> tuple[Field, ...]:
     fields: list[Field] = []
     for spec in specs:
         if spec.kind == "points":
-            fields.append(Field(spec.key, "points", spec.unit, spec.meaning, "[[0, 1], [100, 2]]"))
+            example = spec.example or "[[0, 1], [100, 2]]"
+            fields.append(Field(spec.key, "points", spec.unit, spec.meaning, example))
         else:
-            example = format_number(spec.default) if spec.default is not None else "1.0"
+            example = spec.example or (
+                format_number(spec.default) if spec.default is not None else "1.0"
+            )
             kind: Kind = "positive" if spec.positive else "number"
             fields.append(Field(spec.key, kind, spec.unit, spec.meaning, example, tolerance=True))
     return tuple(fields)
@@ -160,6 +163,8 @@ def shown(value: object) -> str:
     if isinstance(value, int | float):
         return format_number(float(value))
     if isinstance(value, list):
+        if len(value) <= 4 and all(not isinstance(v, list | dict) for v in value):
+            return "[" + ", ".join(shown(v) for v in value) + "]"
         return "an array"
     if isinstance(value, dict):
         return "a table"
@@ -200,7 +205,7 @@ LocateFn = Callable[[], Location]
 
 
 def _fail(field: Field, value: object, where: LocateFn, what: str | None = None) -> AnnotationError:
-    unit = f" in {field.unit}" if field.unit else ""
+    unit = f" in {field.unit}" if field.unit and what is None else ""
     words = what or _NUMBER_WORDS.get(field.kind, "a value")
     return AnnotationError(
         f"{field.key} must be {words}{unit}, not {shown(value)}",

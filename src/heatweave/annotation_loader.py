@@ -73,8 +73,8 @@ def loads(text: str, file: str = "<annotation>", deck_name: str | None = None) -
     except tomllib.TOMLDecodeError as err:
         raise syntax_error(err, file, text) from None
     reader = TableReader(Locator(file, text))
+    _check_schema(raw.get("schema"), reader)
     top = reader.read(raw, TOP_FIELDS, (), extra=TOP_TABLES)
-    _check_schema(top.values.get("schema"), reader)
     ambient = _ambient(raw.get("ambient"), reader)
     nodes = tuple(_node(name, table, reader) for name, table in reader.tables(raw, "node").items())
     parts = tuple(_part(name, table, reader) for name, table in reader.tables(raw, "part").items())

@@ -195,6 +195,11 @@ def syntax_error(err: tomllib.TOMLDecodeError, file: str, text: str) -> Annotati
         line, column = _first_failing_line(lines, str(err)), 1
         if 0 < line <= len(lines):
             column = len(lines[line - 1]) - len(lines[line - 1].lstrip(" \t")) + 1
+        opened = [spot for spot in Locator(file, text).spots.values() if spot.line <= line]
+        if message.startswith(("Unclosed", "Unterminated")) and opened:
+            # The value that never ends starts at the last key before the failure.
+            last = max(opened, key=lambda spot: spot.line)
+            line, column = last.line, last.value_column
     source = lines[line - 1] if 0 < line <= len(lines) else None
     return AnnotationError(
         f"TOML syntax: {message[:1].lower()}{message[1:]}",

@@ -49,6 +49,7 @@ class ParamSpec:
     default: float | None = None
     positive: bool = False
     kind: str = "number"  # "number" | "points"
+    example: str = ""  # a typical value, for hints
 
     @property
     def group_name(self) -> str:

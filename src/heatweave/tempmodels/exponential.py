@@ -38,7 +38,11 @@ class Exponential(TempModel):
     summary: ClassVar[str] = "ngspice's tce model: R0 1.01^(tce dT)"
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
-            "tce", "%/K", "exponent of 1.01 per kelvin (about percent per kelvin)", required=True
+            "tce",
+            "%/K",
+            "exponent of 1.01 per kelvin (about percent per kelvin)",
+            required=True,
+            example="0.5",
         ),
     )
 

@@ -6,7 +6,7 @@ The formula is ngspice's resistor temperature equation (manual 3.3.3, eq. 14) wi
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import ClassVar, Self
 
 from heatweave.quantities import format_number as fmt
@@ -24,13 +24,25 @@ from heatweave.tempmodels.base import (
 )
 
 TC1 = (
-    ParamSpec("tc1", "1/K", "first-order temperature coefficient", group="tc1"),
-    ParamSpec("tc1_ppm", "ppm/K", "first-order temperature coefficient", group="tc1", scale=1e-6),
+    ParamSpec("tc1", "1/K", "first-order temperature coefficient", group="tc1", example="5e-5"),
+    ParamSpec(
+        "tc1_ppm",
+        "ppm/K",
+        "first-order temperature coefficient",
+        group="tc1",
+        scale=1e-6,
+        example="50",
+    ),
 )
 TC2 = (
-    ParamSpec("tc2", "1/K^2", "second-order temperature coefficient", group="tc2"),
+    ParamSpec("tc2", "1/K^2", "second-order temperature coefficient", group="tc2", example="-6e-7"),
     ParamSpec(
-        "tc2_ppm", "ppm/K^2", "second-order temperature coefficient", group="tc2", scale=1e-6
+        "tc2_ppm",
+        "ppm/K^2",
+        "second-order temperature coefficient",
+        group="tc2",
+        scale=1e-6,
+        example="-0.6",
     ),
 )
 
@@ -125,6 +137,4 @@ class Linear(Polynomial):
 
     name: ClassVar[str] = "linear"
     summary: ClassVar[str] = "first-order TCR: R0 (1 + tc1 dT)"
-    params: ClassVar[tuple[ParamSpec, ...]] = tuple(
-        ParamSpec(s.key, s.unit, s.meaning, s.group, s.scale, required=True) for s in TC1
-    )
+    params: ClassVar[tuple[ParamSpec, ...]] = tuple(replace(s, required=True) for s in TC1)

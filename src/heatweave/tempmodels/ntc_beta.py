@@ -36,9 +36,13 @@ class NtcBeta(TempModel):
     summary: ClassVar[str] = "NTC thermistor, Beta equation"
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
-            "r25", "ohm", "resistance at 25 degC (default: the deck's value at tref)", positive=True
+            "r25",
+            "ohm",
+            "resistance at 25 degC (default: the deck's value at tref)",
+            positive=True,
+            example="10e3",
         ),
-        ParamSpec("beta", "K", "Beta constant", required=True, positive=True),
+        ParamSpec("beta", "K", "Beta constant", required=True, positive=True, example="3435"),
     )
 
     r_ref: float

@@ -40,9 +40,18 @@ class NtcSteinhartHart(TempModel):
     name: ClassVar[str] = "ntc-sh"
     summary: ClassVar[str] = "NTC thermistor, Steinhart-Hart equation"
     params: ClassVar[tuple[ParamSpec, ...]] = (
-        ParamSpec("a", "1/K", "Steinhart-Hart A", required=True),
-        ParamSpec("b", "1/K", "Steinhart-Hart B (positive)", required=True, positive=True),
-        ParamSpec("c", "1/K", "Steinhart-Hart C (zero or positive)", required=True),
+        ParamSpec("a", "1/K", "Steinhart-Hart A", required=True, example="1.129148e-3"),
+        ParamSpec(
+            "b",
+            "1/K",
+            "Steinhart-Hart B (positive)",
+            required=True,
+            positive=True,
+            example="2.34125e-4",
+        ),
+        ParamSpec(
+            "c", "1/K", "Steinhart-Hart C (zero or positive)", required=True, example="8.76741e-8"
+        ),
     )
 
     a: float

@@ -47,13 +47,24 @@ class Ptc(TempModel):
     summary: ClassVar[str] = "switching PTC thermistor, smooth exponential rise to r_max"
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
-            "r25", "ohm", "cold resistance (default: from the deck's value at tref)", positive=True
+            "r25",
+            "ohm",
+            "cold resistance (default: from the deck's value at tref)",
+            positive=True,
+            example="47.0",
         ),
-        ParamSpec("t_switch", "degC", "switch temperature, where R is about 2 r25", required=True),
+        ParamSpec(
+            "t_switch",
+            "degC",
+            "switch temperature, where R is about 2 r25",
+            required=True,
+            example="120.0",
+        ),
         ParamSpec(
             "decade",
             "K",
             "kelvin per tenfold rise above t_switch",
+            example="5.0",
             group="rise",
             required=True,
             positive=True,
@@ -62,6 +73,7 @@ class Ptc(TempModel):
             "alpha_pct",
             "%/K",
             "rise above t_switch in percent per kelvin",
+            example="50",
             group="rise",
             required=True,
             positive=True,

@@ -6,7 +6,7 @@ to 0, tc2 is required (without it, use ``linear``).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import ClassVar
 
 from heatweave.tempmodels import register
@@ -21,6 +21,4 @@ class Quadratic(Polynomial):
 
     name: ClassVar[str] = "quadratic"
     summary: ClassVar[str] = "second-order TCR: R0 (1 + tc1 dT + tc2 dT^2)"
-    params: ClassVar[tuple[ParamSpec, ...]] = TC1 + tuple(
-        ParamSpec(s.key, s.unit, s.meaning, s.group, s.scale, required=True) for s in TC2
-    )
+    params: ClassVar[tuple[ParamSpec, ...]] = TC1 + tuple(replace(s, required=True) for s in TC2)

@@ -45,7 +45,11 @@ class Rtd(TempModel):
     default_tref: ClassVar[float] = 0.0
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
-            "r0", "ohm", "resistance at 0 degC (default: the deck's value at tref)", positive=True
+            "r0",
+            "ohm",
+            "resistance at 0 degC (default: the deck's value at tref)",
+            positive=True,
+            example="100.0",
         ),
         ParamSpec("a", "1/K", "Callendar-Van Dusen A", default=IEC_A),
         ParamSpec("b", "1/K^2", "Callendar-Van Dusen B", default=IEC_B),
