@@ -14,7 +14,14 @@ from pathlib import Path
 from heatweave.annotations import Annotation
 from heatweave.deck import Block, Card, ControlBlock, Node
 from heatweave.emitter import Emitted, Inputs, emit_inputs, load_inputs
-from heatweave.errors import Finding, UsageError
+from heatweave.errors import (
+    ConvergenceError,
+    Finding,
+    SimulatorError,
+    ThermalRunawayError,
+    TimestepTooSmallError,
+    UsageError,
+)
 from heatweave.reader import read
 from heatweave.results import RunResults, extract
 from heatweave.simulators import Progress, SimResult, get_simulator
@@ -144,10 +151,50 @@ def run(
     """Emit, simulate and read back one electrothermal run."""
     inputs = inputs or load_inputs(deck_path, annotation_path)
     prepared = prepare(inputs, options, annotation)
-    sim = simulate(prepared, options)
     assert prepared.emitted.circuit is not None
+    try:
+        sim = simulate(prepared, options)
+    except (ConvergenceError, TimestepTooSmallError) as failure:
+        # No electrothermal solution: find out whether self-heating ran away.
+        explained = explain_runaway(inputs, options, prepared, failure, None)
+        raise (explained or failure) from None
     results = extract(sim, prepared.emitted.circuit, inputs.index)
+    if implausible(results):
+        explained = explain_runaway(inputs, options, prepared, None, results)
+        if explained is not None:
+            raise explained
     return RunOutcome(prepared, sim, results)
+
+
+#: Above this (degC) a part temperature is no longer a physical answer but a runaway.
+IMPLAUSIBLE_TEMPERATURE = 1000.0
+
+
+def implausible(results: RunResults) -> bool:
+    """True when some part's temperature or resistance cannot be physical."""
+    import math
+
+    for part in results.parts:
+        values = [part.temperature, part.hottest]
+        if any(not math.isfinite(v) or v > IMPLAUSIBLE_TEMPERATURE for v in values):
+            return True
+        if part.resistance is not None and not part.resistance > 0:
+            return True
+    return False
+
+
+def explain_runaway(
+    inputs: Inputs,
+    options: RunOptions,
+    prepared: Prepared,
+    failure: SimulatorError | None,
+    results: RunResults | None,
+) -> ThermalRunawayError | None:
+    """A thermal-runaway error naming the part, its loop gain and the drive level, when
+    that is what went wrong; ``None`` when the failure has another cause."""
+    from heatweave.runaway import explain
+
+    return explain(inputs, options, prepared, failure, results)
 
 
 def run_baseline(
