@@ -8,11 +8,11 @@ values belong to one ``ic=0.6, 5`` pair, and the typed dot cards.
 
 from __future__ import annotations
 
+import threading
 from typing import Any, TypeGuard
 
 from lark import Token as LarkToken
-from lark import Transformer, v_args
-from lark.tree import Meta
+from lark import Transformer
 
 from heatweave.syntax import (
     Call,
@@ -98,7 +98,6 @@ FIXED_NODES: dict[str, int] = {
     "q": 3,
     "j": 3,
     "z": 3,
-    "m": 4,
     "t": 4,
     "o": 4,
     "y": 4,
@@ -166,15 +165,26 @@ def _end_of(fields: list[Field], default: int) -> int:
     return fields[-1].end if fields else default
 
 
+_LOCAL = threading.local()
+
+
+def use_text(text: str) -> None:
+    """Set the logical text the (shared, inline) transformer slices; per thread."""
+    _LOCAL.text = text
+
+
 class ToSyntax(Transformer[LarkToken, Any]):
-    """The lark Transformer at the boundary: tokens to :mod:`heatweave.syntax` objects."""
+    """The lark Transformer at the boundary: tokens to :mod:`heatweave.syntax` objects.
 
-    def __init__(self, text: str) -> None:
-        super().__init__(visit_tokens=True)
-        self.text = text
+    It runs inside the LALR parser (``Lark(transformer=...)``), so no parse tree is built;
+    :func:`use_text` gives it the card's text for the slices of calls and groups.
+    """
 
-    def _slice(self, meta: Meta) -> str:
-        return self.text[meta.start_pos : meta.end_pos]
+    @property
+    def text(self) -> str:
+        """The card being parsed."""
+        text: str = _LOCAL.text
+        return text
 
     # -- terminals ------------------------------------------------------------------------
     def WORD(self, tok: LarkToken) -> Value:
@@ -195,49 +205,44 @@ class ToSyntax(Transformer[LarkToken, Any]):
     TITLE_KW = IF_KW = _plain
 
     # -- field rules ----------------------------------------------------------------------
-    @v_args(meta=True)
-    def call(self, meta: Meta, children: list[Any]) -> Call:
+    def call(self, children: list[Any]) -> Call:
         name, group = children
         args = tuple(f for f in group.items if not isinstance(f, Param))
         params = tuple(f for f in group.items if isinstance(f, Param))
-        return Call(self._slice(meta), meta.start_pos, name, args, params)
+        return Call(self.text[name.offset : group.end], name.offset, name, args, params)
 
-    @v_args(meta=True)
-    def group(self, meta: Meta, children: list[Field]) -> Group:
-        return Group(self._slice(meta), meta.start_pos, tuple(join_fields(children, self.text)))
+    def group(self, children: list[Any]) -> Group:
+        start, end = children[0].start_pos, children[-1].end_pos
+        items = join_fields(children[1:-1], self.text)
+        return Group(self.text[start:end], start, tuple(items))
 
-    @v_args(meta=True)
-    def vector(self, meta: Meta, children: list[Field]) -> Port:
+    def vector(self, children: list[Any]) -> Port:
         nodes: list[Token] = []
         inverted: list[bool] = []
-        for item in children:
+        for item in children[1:-1]:
             if isinstance(item, Port):
                 nodes.extend(item.nodes)
                 inverted.extend(item.inverted)
             elif isinstance(item, Value):
                 nodes.append(Token(item.text, item.offset))
                 inverted.append(False)
-        return Port(None, tuple(nodes), tuple(inverted), True, meta.start_pos, meta.end_pos)
+        start, end = children[0].start_pos, children[-1].end_pos
+        return Port(None, tuple(nodes), tuple(inverted), True, start, end)
 
-    @v_args(meta=True)
-    def port(self, meta: Meta, children: list[Any]) -> Port:
+    def port(self, children: list[Any]) -> Port:
         prefix, inner = children
         if isinstance(inner, Port):
-            return Port(
-                prefix, inner.nodes, inner.inverted, inner.vector, meta.start_pos, meta.end_pos
-            )
+            return Port(prefix, inner.nodes, inner.inverted, inner.vector, prefix.offset, inner.end)
         items = inner.items if isinstance(inner, Group) else (inner,)
         nodes = tuple(Token(i.text, i.offset) for i in items if isinstance(i, Value))
-        return Port(prefix, nodes, (False,) * len(nodes), False, meta.start_pos, meta.end_pos)
+        return Port(prefix, nodes, (False,) * len(nodes), False, prefix.offset, inner.end)
 
-    @v_args(meta=True)
-    def inverted(self, meta: Meta, children: list[Value]) -> Port:
-        word = children[0]
+    def inverted(self, children: list[Any]) -> Port:
+        tilde, word = children
         node = Token(word.text, word.offset)
-        return Port(None, (node,), (True,), False, meta.start_pos, meta.end_pos)
+        return Port(None, (node,), (True,), False, tilde.start_pos, word.end)
 
-    @v_args(meta=True)
-    def pair(self, meta: Meta, children: list[Any]) -> Param:
+    def pair(self, children: list[Any]) -> Param:
         key, value = children
         if isinstance(value, Port):  # an XSPICE vector value: in_offset=[0.1 -0.2]
             value = Value(self.text[value.offset : value.end], value.offset, ValueKind.VECTOR)
@@ -474,8 +479,14 @@ def _node_count(letter: str, fields: list[Field], text: str) -> int:
     if letter in "eg":
         _, rest = take_nodes(fields, 2, letter, text)
         return 2 if rest and _head_key(rest[0]) in _NONLINEAR_KEYS else 4
+    thermal = any(isinstance(f, Value) and f.key == "thermal" for f in fields)
     if letter == "d":
-        return 3 if any(isinstance(f, Value) and f.key == "thermal" for f in fields) else 2
+        return 3 if thermal else 2
+    if letter == "m":  # MOSFET d g s b; VDMOS d g s, or d g s tj tc with "thermal" (11.3)
+        if thermal:
+            return 5
+        words, _ = _leading_words(fields, drop_last=1)
+        return 3 if len(words) == 3 else 4
     if letter == "u":
         gate = _head_key(fields[0]) if fields else ""
         if gate in _DIGITAL_GATES:  # U<name> <gate>[(n)] <pwr> <gnd> <nodes...> <tmodel> <io>

@@ -13,9 +13,8 @@ import importlib.resources
 from pathlib import Path
 
 from lark import Lark, UnexpectedCharacters, UnexpectedInput, UnexpectedToken
-from lark.exceptions import VisitError
 
-from heatweave.cardbuild import BuildError, ToSyntax
+from heatweave.cardbuild import BuildError, ToSyntax, use_text
 from heatweave.syntax import CardSyntax
 
 GRAMMAR_FILE = "spice.lark"
@@ -57,9 +56,9 @@ def parser() -> Lark:
     return Lark.open(
         str(folder / GRAMMAR_FILE),
         parser="lalr",
-        propagate_positions=True,
         import_paths=[str(folder)],
         maybe_placeholders=False,
+        transformer=ToSyntax(),
     )
 
 
@@ -68,17 +67,13 @@ def parse_card(text: str) -> CardSyntax:
 
     Raises :class:`CardSyntaxError` with the offset of the problem in *text*.
     """
+    use_text(text)
     try:
-        tree = parser().parse(text)
+        result: CardSyntax = parser().parse(text)
     except UnexpectedInput as exc:
         raise _describe(exc, text) from None
-    try:
-        result: CardSyntax = ToSyntax(text).transform(tree)
-    except VisitError as exc:
-        if isinstance(exc.orig_exc, BuildError):
-            err = exc.orig_exc
-            raise CardSyntaxError(err.offset, err.message, err.hint) from None
-        raise
+    except BuildError as exc:
+        raise CardSyntaxError(exc.offset, exc.message, exc.hint) from None
     return result
 
 

@@ -153,6 +153,10 @@ class ElementSyntax:
                 found = p
         return found
 
+    def source(self) -> SourceParts:
+        """The parts of an independent source's value (manual 4.1), for V and I cards."""
+        return SourceParts.of(self.positional)
+
     def split_nodes(self, model_names: Container[str]) -> ElementSyntax:
         """Decide Q/M node counts from the deck's (lower-case) model names.
 
@@ -175,6 +179,41 @@ class ElementSyntax:
                 moved = tuple(classify(w.text, w.offset) for w in words[count:])
                 return replace(self, nodes=nodes, positional=moved + self.positional[used:])
         return self
+
+
+TRANSIENT_FUNCTIONS = frozenset(
+    {"pulse", "sin", "exp", "pwl", "sffm", "am", "trnoise", "trrandom"}
+)  # manual 4.1.1-4.1.9
+
+
+@dataclass(frozen=True, slots=True)
+class SourceParts:
+    """``[dc] v  ac mag [phase]  distof1 mag [phase]  distof2 ...  pulse(...)`` split up."""
+
+    dc: Field | None = None
+    ac: tuple[Field, ...] = ()
+    function: Call | None = None
+    distof1: tuple[Field, ...] = ()
+    distof2: tuple[Field, ...] = ()
+
+    @classmethod
+    def of(cls, fields: tuple[Field, ...]) -> SourceParts:
+        """Read the positional fields of a V or I card."""
+        parts: dict[str, list[Field]] = {"dc": [], "ac": [], "distof1": [], "distof2": []}
+        function: Call | None = None
+        current = "dc"
+        for field in fields:
+            if isinstance(field, Call) and field.name.key in TRANSIENT_FUNCTIONS:
+                function = field
+                current = ""
+            elif isinstance(field, Value) and field.key in parts:
+                current = field.key
+            elif current and len(parts[current]) < (1 if current == "dc" else 2):
+                parts[current].append(field)
+        dc = parts["dc"][0] if parts["dc"] else None
+        return cls(
+            dc, tuple(parts["ac"]), function, tuple(parts["distof1"]), tuple(parts["distof2"])
+        )
 
 
 _NODE_KINDS = (ValueKind.NAME, ValueKind.NUMBER, ValueKind.EXPRESSION)
