@@ -11,6 +11,7 @@ from __future__ import annotations
 import functools
 import importlib.resources
 from pathlib import Path
+from typing import cast
 
 from lark import Lark, UnexpectedCharacters, UnexpectedInput, UnexpectedToken
 
@@ -69,7 +70,8 @@ def parse_card(text: str) -> CardSyntax:
     """
     use_text(text)
     try:
-        result: CardSyntax = parser().parse(text)
+        # The inline transformer makes parse() return syntax objects, not a Tree.
+        result = cast(CardSyntax, parser().parse(text))
     except UnexpectedInput as exc:
         raise _describe(exc, text) from None
     except BuildError as exc:
