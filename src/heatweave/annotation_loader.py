@@ -260,7 +260,10 @@ def _model_params(
         groups.setdefault(spec.group_name, []).append(spec.key)
     params: dict[str, ParamValue] = {}
     for keys in groups.values():
-        written = [k for k in keys if k in got.values]
+        written = sorted(
+            (k for k in keys if k in got.values),
+            key=lambda k: reader.key_location((*path, k)).line,
+        )
         required = any(s.required for s in cls.params if s.key in keys)
         if required and not written:
             example = next(f for f in model_fields(cls.params) if f.key == keys[-1]).example
