@@ -105,6 +105,11 @@ class TempModel(ABC):
     ) -> Self:
         """Build from validated key values; *r_nominal* (ohm) holds at *tref* (degC)."""
 
+    @classmethod
+    def reference(cls, tref: float | None) -> float:
+        """The temperature (degC) at which the deck's value holds: *tref*, else the default."""
+        return cls.default_tref if tref is None else tref
+
     @abstractmethod
     def _resistance(self, t_c: FloatArray) -> FloatArray: ...
 

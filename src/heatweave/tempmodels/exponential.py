@@ -56,7 +56,7 @@ class Exponential(TempModel):
     ) -> Self:
         tce = written(params, "tce")
         assert tce is not None
-        return cls(r0=r_nominal, tref=cls.default_tref if tref is None else tref, tce=tce)
+        return cls(r0=r_nominal, tref=cls.reference(tref), tce=tce)
 
     @property
     def _k(self) -> float:

@@ -105,7 +105,7 @@ class Polynomial(TempModel):
     ) -> Self:
         return cls(
             r0=r_nominal,
-            tref=cls.default_tref if tref is None else tref,
+            tref=cls.reference(tref),
             tc1=pick(params, cls.params, "tc1") or 0.0,
             tc2=pick(params, cls.params, "tc2") or 0.0,
         )

@@ -58,7 +58,7 @@ class NtcBeta(TempModel):
         r25 = written(params, "r25")
         if r25 is not None:
             return cls(r25, 25.0, beta)
-        return cls(r_nominal, cls.default_tref if tref is None else tref, beta)
+        return cls(r_nominal, cls.reference(tref), beta)
 
     def _resistance(self, t_c: FloatArray) -> FloatArray:
         inv = 1.0 / (t_c + KELVIN_OFFSET) - 1.0 / (self.t_ref + KELVIN_OFFSET)

@@ -108,7 +108,7 @@ class Ptc(TempModel):
         ratio = written(params, "r_max")
         shape = cls(1.0, t_switch, k, (ratio / r25) if (ratio and r25) else DEFAULT_RATIO)
         if r25 is None:
-            r25 = r_nominal / shape.resistance(cls.default_tref if tref is None else tref)
+            r25 = r_nominal / shape.resistance(cls.reference(tref))
         r_max = ratio if ratio is not None else DEFAULT_RATIO * r25
         if r_max <= r25:
             raise ValueError(f"r_max ({fmt(r_max)} ohm) must exceed the cold resistance")

@@ -72,7 +72,7 @@ class Rtd(TempModel):
         shape = cls(1.0, a, b, c)
         r0 = written(params, "r0")
         if r0 is None:
-            r0 = r_nominal / shape.resistance(cls.default_tref if tref is None else tref)
+            r0 = r_nominal / shape.resistance(cls.reference(tref))
         return cls(r0, a, b, c)
 
     def _resistance(self, t_c: FloatArray) -> FloatArray:

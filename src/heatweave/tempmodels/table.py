@@ -69,7 +69,7 @@ class Table(TempModel):
             points = params.get("ratio")
             assert isinstance(points, tuple)
             shape = cls(tuple(p[0] for p in points), tuple(p[1] for p in points))
-            scale = r_nominal / shape.resistance(cls.default_tref if tref is None else tref)
+            scale = r_nominal / shape.resistance(cls.reference(tref))
         temps = tuple(float(p[0]) for p in points)
         if len(temps) < 2 or any(b <= a for a, b in itertools.pairwise(temps)):
             raise ValueError("table temperatures must increase strictly, at least two points")
