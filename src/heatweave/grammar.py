@@ -16,7 +16,7 @@ from typing import cast
 from lark import Lark, UnexpectedCharacters, UnexpectedInput, UnexpectedToken
 
 from heatweave.cardbuild import BuildError, ToSyntax, use_text
-from heatweave.syntax import CardSyntax
+from heatweave.syntax import Call, CardSyntax, Token, Value
 
 GRAMMAR_FILE = "spice.lark"
 
@@ -79,17 +79,19 @@ def parse_card(text: str) -> CardSyntax:
     return result
 
 
-# Messages for the parser states after a dot keyword, keyed by the keyword's lark terminal.
+# Messages for the parser states right after a dot keyword (lower case, as written).
 _AFTER_KEYWORD: dict[str, tuple[str, str]] = {
-    "SUBCKT_KW": ("expected a subcircuit name", "write .subckt <name> <ports...>"),
-    "MODEL_KW": ("expected a model name", "write .model <name> <type> (<params>)"),
-    "FUNC_KW": (
+    ".subckt": ("expected a subcircuit name", "write .subckt <name> <ports...>"),
+    ".model": ("expected a model name", "write .model <name> <type> (<params>)"),
+    ".func": (
         "expected a function name with its arguments",
         "write .func <name>(<args>) {<expression>}",
     ),
-    "INCLUDE_KW": ("expected a file name", "write .include <file>"),
-    "LIB_KW": ("expected a file name or a section name", "write .lib <file> <section>"),
-    "IF_KW": ("expected '(' and a condition", "write .if(<expression>)"),
+    ".include": ("expected a file name", "write .include <file>"),
+    ".inc": ("expected a file name", "write .include <file>"),
+    ".lib": ("expected a file name or a section name", "write .lib <file> <section>"),
+    ".if": ("expected '(' and a condition", "write .if(<expression>)"),
+    ".elseif": ("expected '(' and a condition", "write .elseif(<expression>)"),
 }
 
 
@@ -107,10 +109,12 @@ def _describe(exc: UnexpectedInput, text: str) -> CardSyntaxError:
     if len(stack) == 1 and stack[0] in _AFTER_KEYWORD:
         message, hint = _AFTER_KEYWORD[stack[0]]
         return CardSyntaxError(offset, message, hint)
-    if stack == ["MODEL_KW", "WORD"]:
+    if stack == [".model", "value"]:
         return CardSyntaxError(offset, "expected a model type", "e.g. .model dmod d (is=1e-14)")
-    if stack[:2] == ["FUNC_KW", "call"] and (at_end or token.type == "EQUAL"):
+    if stack[:2] == [".func", "call"] and (at_end or token.type == "EQUAL"):
         return CardSyntaxError(offset, "expected the function body", "e.g. .func f(x) {2*x}")
+    if text[offset : offset + 1] in ("{", "'", '"') and token.type not in _DELIMITED:
+        return _bad_character(offset, text)  # the delimited field never closes
     if before.endswith("="):
         return CardSyntaxError(offset, "expected a value after '='", "write <name>=<value>")
     if at_end and "RPAR" in expected:
@@ -120,14 +124,24 @@ def _describe(exc: UnexpectedInput, text: str) -> CardSyntaxError:
     return _bad_character(offset, text)
 
 
+_DELIMITED = ("BRACE", "SQUOTE", "DQUOTE", "PATH")
+
+
 def _stack_types(exc: UnexpectedToken) -> list[str]:
-    """Terminal or rule names of what the parser had read when it stopped."""
+    """What the parser had read when it stopped: dot keywords (lower case), else kinds."""
     interactive = exc.interactive_parser
     if interactive is None:
         return []
     names: list[str] = []
     for item in interactive.parser_state.value_stack:
-        names.append(str(getattr(item, "type", None) or getattr(item, "data", "")))
+        if isinstance(item, Call):
+            names.append("call")
+        elif isinstance(item, Value):
+            names.append("value")
+        elif isinstance(item, Token) and item.key.startswith("."):
+            names.append(item.key)
+        else:
+            names.append(type(item).__name__)
     return names
 
 
