@@ -103,22 +103,31 @@ class _Rewriter:
         self.reference = reference
         self.heating = heating
         self.findings: list[Finding] = []
-        self.added: list[str] = []
+        self.added: list[str] = []  # every node name added, for the collision check
+        self.thermal: list[str] = []  # hot spots and network nodes, for .ic and .global
         self.parts: dict[str, PartPlan] = {p.path.lower(): p for p in circuit.parts}
         self.resolved: dict[str, Resolved] = {}
         # instance path prefix (lower) -> definition it needs a specialised copy of
         self.copies: dict[str, Block] = {}
+        self.root_cards = {id(c) for c in index.project.deck.cards()}
         for part in circuit.parts:
             found = index.resolve(part.path)
             if found is None:
                 raise EmitError(f"part {part.path!r} is not in the deck", part.location)
+            if not found.instances and id(found.card) not in self.root_cards:
+                where = found.card.source.path if found.card.source else "an included file"
+                raise EmitError(
+                    f"{part.path} is defined in an included file ({where})",
+                    part.location,
+                    hint="heatweave leaves included files untouched: move the card into the "
+                    "deck, or into a subcircuit definition (those are specialised in the deck)",
+                )
             self.resolved[part.path.lower()] = found
             prefix = ""
             for instance, definition in zip(found.instances, found.definitions, strict=True):
                 prefix = f"{prefix}.{instance.head}" if prefix else instance.head
                 self.copies[prefix.lower()] = definition
         self.placed: set[str] = set()
-        self.root_cards = {id(c) for c in index.project.deck.cards()}
 
     # -- bodies -------------------------------------------------------------------------
 
@@ -190,13 +199,6 @@ class _Rewriter:
         return Card(text, lead)
 
     def replace_part(self, card: Card, part: PartPlan) -> list[Node]:
-        if card.source is not None and id(card) not in self.root_cards:
-            raise EmitError(
-                f"{part.path} is defined in an included file ({card.source.path})",
-                part.location,
-                hint="heatweave leaves included files untouched: move the card into the deck "
-                "or into a subcircuit definition",
-            )
         name = safe(part.path)
         lines = [f"{MARK}{part.path}: " + describe(part)]
         if part.is_resistor:
@@ -209,6 +211,7 @@ class _Rewriter:
                 f"{element.name} {element.node1} {element.node2} {format_number(element.value)}"
             )
         self.added.extend([part.node, *net.nodes])
+        self.thermal.extend([part.node, *net.nodes])
         text = "".join(line + "\n" for line in lines)
         return [Card(text, card.lead + card.commented(MARK))]
 
@@ -286,8 +289,9 @@ def describe(part: PartPlan) -> str:
     return f"{what}, {net.kind} network {format_number(net.total_rth)} K/W to {part.to_label}"
 
 
-def thermal_section(circuit: ThermalCircuit, global_nodes: list[str]) -> str:
-    """Ambient source, shared nodes, couplings, ``.global`` and the cold-start ``.ic``."""
+def thermal_section(circuit: ThermalCircuit, thermal: list[str], shared: bool) -> str:
+    """Ambient source, shared nodes, couplings, and for the thermal nodes: ``.global``
+    when subcircuit copies reach them (*shared*), ``.ic`` at ambient for a cold start."""
     lines = [f"{MARK}thermal network"]
     if isinstance(circuit.ambient, tuple):
         points = " ".join(f"{format_number(t)} {format_number(v)}" for t, v in circuit.ambient)
@@ -303,13 +307,11 @@ def thermal_section(circuit: ThermalCircuit, global_nodes: list[str]) -> str:
             f"R{PREFIX}path{k} {coupling.a} {coupling.b} {format_number(coupling.rth)}"
             f" ; {coupling.labels[0]} - {coupling.labels[1]}"
         )
-    if global_nodes:
-        lines.extend(_wrap(".global", global_nodes))
+    if shared:
+        lines.extend(_wrap(".global", thermal))
     if circuit.start == "cold":
         t0 = format_number(circuit.ambient_at_start)
-        nodes = [n.node for n in circuit.nodes] + [n for p in circuit.parts for n in (p.node,)]
-        nodes += [n for n in global_nodes if n not in nodes]
-        lines.extend(_wrap(".ic", [f"V({n})={t0}" for n in nodes]))
+        lines.extend(_wrap(".ic", [f"V({n})={t0}" for n in thermal if n != AMBIENT_NODE]))
     return "".join(line + "\n" for line in lines)
 
 
@@ -344,17 +346,8 @@ def emit_deck(
     rewriter = _Rewriter(index, circuit, reference, heating)
     body = rewriter.body(deck.body, "", top=True)
     body.extend(rewriter.unplaced())
-    internal = [n for n in rewriter.added if n not in {p.node for p in circuit.parts}]
-    needs_global = bool(rewriter.copies)
-    global_nodes: list[str] = []
-    if needs_global:
-        global_nodes = [AMBIENT_NODE, *(n.node for n in circuit.nodes)]
-        global_nodes += [p.node for p in circuit.parts] + internal
-    section = Card(thermal_section(circuit, global_nodes if needs_global else []))
-    if circuit.start == "cold" and not needs_global and internal:
-        t0 = format_number(circuit.ambient_at_start)
-        extra = "".join(line + "\n" for line in _wrap(".ic", [f"V({n})={t0}" for n in internal]))
-        section = Card(section.text + extra)
+    thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
+    section = Card(thermal_section(circuit, thermal, bool(rewriter.copies)))
     body = _insert_before_end(body, section)
     title = deck.title or "heatweave electrothermal deck\n"
     if not title.endswith("\n"):

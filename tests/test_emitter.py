@@ -1,0 +1,289 @@
+"""The emitter against the outside: emitted decks simulated by ngspice 39, compared with
+closed forms and with scipy's solvers on the same equations; and the emitter's contract
+(untouched cards, comments, determinism, names, hierarchy)."""
+
+from __future__ import annotations
+
+import math
+import shutil
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+from scipy.optimize import brentq
+
+from heatweave.emitter import emit_files, emit_inputs, load_inputs, stale_reason
+from heatweave.errors import EmitError
+from heatweave.reader import read
+from heatweave.runner import RunOptions, run
+from heatweave.simulators import get_simulator
+
+FIXTURES = Path(__file__).parent / "fixtures" / "emit"
+pytestmark = pytest.mark.ngspice
+
+
+def write_case(tmp_path: Path, deck: str, annotation: str, name: str = "case") -> Path:
+    (tmp_path / f"{name}.cir").write_text(deck)
+    (tmp_path / f"{name}.thermal.toml").write_text(annotation)
+    return tmp_path / f"{name}.cir"
+
+
+def simulate(text: str, *analyses: str) -> dict[str, np.ndarray]:
+    sim = get_simulator("batch").run(text, analyses=analyses, deck_analyses=not analyses)
+    plot = sim.plots[-1]
+    return {name: np.real(np.asarray(v)) for name, v in plot.vectors.items()}
+
+
+# --- the self-heated divider: steady state and transient ---------------------------------
+
+V_SUPPLY, R1, R2, TC1, RTH, CTH, TA = 10.0, 100.0, 100.0, 0.004, 50.0, 0.01, 25.0
+
+
+def r1_at(t: float) -> float:
+    return R1 * (1 + TC1 * (t - 25.0))
+
+
+def power_at(t: float) -> float:
+    r = r1_at(t)
+    return V_SUPPLY**2 * r / (r + R2) ** 2
+
+
+def test_divider_steady_state_matches_root_of_power_balance() -> None:
+    # The fixed point T = Ta + Rth * P(T), found independently by scipy's brentq.
+    expected = brentq(lambda t: t - TA - RTH * power_at(t), TA, TA + 500)
+    out = run(str(FIXTURES / "divider.cir"), str(FIXTURES / "divider.thermal.toml"))
+    part = out.results.part("R1")
+    assert part.temperature == pytest.approx(expected, abs=1e-4)
+    r = r1_at(expected)
+    assert out.results.voltages["out"] == pytest.approx(V_SUPPLY * R2 / (r + R2), rel=1e-6)
+    assert part.power == pytest.approx(power_at(expected), rel=1e-5)
+    assert part.resistance == pytest.approx(r, rel=1e-6)
+
+
+def test_divider_transient_matches_solve_ivp() -> None:
+    # C dT/dt = P(T) - (T - Ta)/Rth from a cold start, integrated by scipy to 1e-10.
+    reference = solve_ivp(
+        lambda _t, y: [(power_at(y[0]) - (y[0] - TA) / RTH) / CTH],
+        (0.0, 2.0),
+        [TA],
+        rtol=1e-10,
+        atol=1e-10,
+        dense_output=True,
+    )
+    out = run(
+        str(FIXTURES / "divider.cir"),
+        str(FIXTURES / "divider.thermal.toml"),
+        RunOptions(analyses=("tran 1m 2 0 1m",)),
+    )
+    part = out.results.part("R1")
+    time = out.results.time
+    assert time is not None and part.temperature_series is not None
+    assert part.temperature_series[0] == pytest.approx(TA, abs=1e-9)  # starts cold
+    for t_check in (0.1, 0.5, 1.0, 2.0):
+        got = np.interp(t_check, time, part.temperature_series)
+        # ngspice's trapezoidal integration with 1 ms steps on a 0.5 s time constant:
+        # the local error is far below 1 mK.
+        assert got == pytest.approx(reference.sol(t_check)[0], abs=2e-3)
+
+
+@pytest.mark.parametrize(
+    ("n_tau", "fraction"),
+    [
+        # Standard first-order step response 1 - exp(-n): 63.2 %, 95.0 %, 99.3 %
+        # (the rule quoted in any circuits or heat-transfer textbook).
+        (1, 0.632),
+        (3, 0.950),
+        (5, 0.993),
+    ],
+)
+def test_time_constant_rule(tmp_path: Path, n_tau: int, fraction: float) -> None:
+    # A current-fed resistor with no TCR dissipates a constant I^2 R = 1 W.
+    deck = write_case(
+        tmp_path,
+        "constant power\nI1 0 a DC 1\nR1 a 0 1\n.tran 1m 1\n.end\n",
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\nrth = 10.0\ncth = 0.01\n',
+    )
+    out = run(str(deck), str(deck.with_suffix(".thermal.toml")), RunOptions(
+        analyses=("tran 0.1m 0.6 0 0.1m",)))
+    part = out.results.part("R1")
+    assert out.results.time is not None and part.temperature_series is not None
+    tau = 10.0 * 0.01
+    rise = np.interp(n_tau * tau, out.results.time, part.temperature_series) - 25.0
+    assert rise / 10.0 == pytest.approx(fraction, abs=0.0006)
+
+
+def test_foster_step_response(tmp_path: Path) -> None:
+    # Zth(t) = sum Ri (1 - exp(-t/tau_i)) for a Foster network under a 1 W step
+    # (definition of the Foster form; e.g. JEDEC JESD51-14 uses the same expression).
+    stages = [(2.0, 0.01), (5.0, 0.1), (10.0, 1.0)]
+    deck = write_case(
+        tmp_path,
+        "foster step\nI1 0 a DC 1\nR1 a 0 1\n.end\n",
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\n'
+        f"foster = {[list(s) for s in stages]}\n",
+    )
+    out = run(str(deck), str(deck.with_suffix(".thermal.toml")),
+              RunOptions(analyses=("tran 1m 4 0 1m",)))
+    part = out.results.part("R1")
+    assert out.results.time is not None and part.temperature_series is not None
+    for t in (0.005, 0.02, 0.3, 1.0, 3.0):
+        expected = sum(r * (1 - math.exp(-t / tau)) for r, tau in stages)
+        got = np.interp(t, out.results.time, part.temperature_series) - 25.0
+        assert got == pytest.approx(expected, abs=5e-3)
+
+
+def test_copper_winding(tmp_path: Path) -> None:
+    # Annealed copper: 0.00393 /K at 20 degC (IEC 60028). A 1 ohm winding at 20 degC
+    # carrying 1 A through Rth = 50 K/W: the fixed point of T = Ta + Rth I^2 R(T).
+    deck = write_case(
+        tmp_path,
+        "copper winding\nI1 0 a DC 1\nRW a 0 1\n.op\n.end\n",
+        'schema = 1\n[ambient]\ntemperature = 20.0\n[part.RW]\nmodel = "linear"\n'
+        "tc1 = 0.00393\ntref = 20.0\nrth = 50.0\n",
+    )
+    out = run(str(deck), str(deck.with_suffix(".thermal.toml")))
+    expected = brentq(lambda t: t - 20 - 50 * (1 + 0.00393 * (t - 20)), 20, 500)
+    assert out.results.part("RW").temperature == pytest.approx(expected, abs=1e-4)
+
+
+def test_shared_nodes_and_heat_only_part() -> None:
+    out = run(str(FIXTURES / "shared.cir"), str(FIXTURES / "shared.thermal.toml"))
+    res = out.results
+    # The transistor's own dissipation, V * I from the plain deck (collector and base at
+    # 0.7 V, emitter at 0): the supply current of VC.
+    plain = simulate((FIXTURES / "shared.cir").read_text())
+    p_q = -0.7 * plain["i(vc)"][-1]
+    assert res.part("QX").power == pytest.approx(p_q, rel=1e-6)
+    # Steady-state heat balance, solved by hand as a linear system G T = P.
+    p_a, p_b = 1.0**2 * 2.0, 0.5**2 * 4.0
+    g = np.zeros((5, 5))
+    rhs = np.zeros(5)
+    ta, i_a, i_b, i_q, i_board, i_sink = 40.0, 0, 1, 2, 3, 4
+
+    def link(i: int, j: int | None, r: float) -> None:
+        g[i, i] += 1 / r
+        if j is None:
+            rhs[i] += ta / r
+        else:
+            g[j, j] += 1 / r
+            g[i, j] -= 1 / r
+            g[j, i] -= 1 / r
+
+    link(i_a, i_board, 20.0)
+    link(i_b, i_board, 30.0)
+    link(i_q, i_board, 50.0)
+    link(i_board, None, 10.0)
+    link(i_sink, None, 5.0)
+    link(i_board, i_sink, 4.0)
+    rhs[[i_a, i_b, i_q]] += [p_a, p_b, p_q]
+    temps = np.linalg.solve(g, rhs)
+    assert res.part("RA").temperature == pytest.approx(temps[i_a], abs=1e-6)
+    assert res.part("RB").temperature == pytest.approx(temps[i_b], abs=1e-6)
+    assert res.part("QX").temperature == pytest.approx(temps[i_q], abs=1e-6)
+    assert res.nodes["board"] == pytest.approx(temps[i_board], abs=1e-6)
+    assert res.nodes["sink"] == pytest.approx(temps[i_sink], abs=1e-6)
+
+
+def test_instances_get_their_own_hot_spots() -> None:
+    out = run(str(FIXTURES / "hier.cir"), str(FIXTURES / "hier.thermal.toml"))
+    hot = {p.path: p for p in out.results.parts}
+    assert set(hot) == {"X1.Rload", "X2.Rload"}
+    for path, supply in (("X1.Rload", 5.0), ("X2.Rload", 10.0)):
+
+        def balance(t: float, v: float = supply) -> float:
+            r = 50 * (1 + 100e-6 * (t - 25))
+            return t - 25 - 100 * (v / (r + 1)) ** 2 * r
+
+        assert hot[path].temperature == pytest.approx(brentq(balance, 25, 1000), abs=1e-3)
+
+
+# --- the contract of the emitted deck ------------------------------------------------------
+
+
+def test_unannotated_cards_untouched_and_replaced_cards_commented() -> None:
+    source = (FIXTURES / "divider.cir").read_text()
+    text = emit_files(str(FIXTURES / "divider.cir"), str(FIXTURES / "divider.thermal.toml")).text
+    assert text.startswith(source.splitlines(keepends=True)[0])
+    for line in ("V1 in 0 DC 10\n", "R2 out 0 100\n", ".op\n", ".end\n"):
+        assert line in text
+    assert "*hw* R1 in out 100 ; the part that heats\n" in text
+    assert "\nR1 in out" not in text
+    assert "sha256" in text and "1 V = 1 degC" in text
+
+
+def test_deterministic_and_small_diffs(tmp_path: Path) -> None:
+    for name in ("shared.cir", "shared.thermal.toml"):
+        shutil.copy(FIXTURES / name, tmp_path / name)
+    deck, notes = tmp_path / "shared.cir", tmp_path / "shared.thermal.toml"
+    first = emit_files(str(deck), str(notes)).text
+    assert emit_files(str(deck), str(notes)).text == first
+    notes.write_text(notes.read_text().replace("rth = 30.0", "rth = 35.0"))
+    second = emit_files(str(deck), str(notes)).text
+    changed = [
+        (a, b) for a, b in zip(first.splitlines(), second.splitlines(), strict=True) if a != b
+    ]
+    # The annotation's hash in the header, RB's comment line and RB's network resistor.
+    assert len(changed) == 3
+    assert all("RB" in b or "rb" in b or "annotations:" in b for _a, b in changed)
+    assert "annotation file changed" in stale_reason(first, second)
+
+
+def test_name_collision_is_an_error(tmp_path: Path) -> None:
+    deck = write_case(
+        tmp_path,
+        "collides\nV1 in 0 1\nR1 in hw_t_r1 1k\nR2 hw_t_r1 0 1k\n.op\n.end\n",
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\nrth = 10.0\n',
+    )
+    with pytest.raises(EmitError, match="already uses the name 'hw_t_r1'") as info:
+        emit_files(str(deck), str(deck.with_suffix(".thermal.toml")))
+    assert info.value.location is not None and info.value.location.line == 3
+
+
+def test_op_is_steady_state_and_tran_starts_cold_unless_steady(tmp_path: Path) -> None:
+    deck = write_case(
+        tmp_path,
+        "start\nI1 0 a DC 1\nR1 a 0 1\n.end\n",
+        'schema = 1\nstart = "steady"\n[part.R1]\nmodel = "linear"\ntc1 = 0\n'
+        "rth = 10.0\ncth = 1.0\n",
+    )
+    out = run(str(deck), str(deck.with_suffix(".thermal.toml")),
+              RunOptions(analyses=("tran 1m 10m",)))
+    series = out.results.part("R1").temperature_series
+    assert series is not None
+    assert series[0] == pytest.approx(35.0, abs=1e-6)  # hot from the start
+    assert ".ic" not in out.prepared.text
+
+
+def test_ambient_profile(tmp_path: Path) -> None:
+    deck = write_case(
+        tmp_path,
+        "profile\nI1 0 a DC 0\nR1 a 0 1\n.end\n",
+        'schema = 1\n[ambient]\nprofile = [[0, 25], [1, 45]]\n[part.R1]\nmodel = "linear"\n'
+        "tc1 = 0\nrth = 10.0\ncth = 0.001\n",
+    )
+    out = run(str(deck), str(deck.with_suffix(".thermal.toml")),
+              RunOptions(analyses=("tran 1m 1",)))
+    assert out.results.ambient == pytest.approx(45.0)
+    # tau = 10 ms, a 20 K/s ramp: the part lags the ambient by rate * tau = 0.2 K.
+    assert out.results.part("R1").temperature == pytest.approx(45.0 - 0.2, abs=0.01)
+
+
+def test_part_in_included_file_is_refused(tmp_path: Path) -> None:
+    (tmp_path / "parts.inc").write_text("R1 in 0 1k\n")
+    deck = write_case(
+        tmp_path,
+        "include\nV1 in 0 1\n.include parts.inc\n.op\n.end\n",
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\nrth = 10.0\n',
+    )
+    with pytest.raises(EmitError, match="included file"):
+        emit_files(str(deck), str(deck.with_suffix(".thermal.toml")))
+
+
+def test_emitted_deck_round_trips_and_heating_off_baseline() -> None:
+    inputs = load_inputs(str(FIXTURES / "divider.cir"), str(FIXTURES / "divider.thermal.toml"))
+    text = emit_inputs(inputs, heating=False).text
+    assert read(text).write() == text
+    values = simulate(text)
+    assert values["v(out)"][-1] == pytest.approx(5.0, rel=1e-9)
+    assert values["v(hw_t_r1)"][-1] == pytest.approx(25.0, abs=1e-9)
