@@ -289,6 +289,8 @@ SOURCES = [
     ("V1 a 0 am(1 0 1k 100k 0)", None, [], "am", ["1", "0", "1k", "100k", "0"]),
     ("V1 a 0 dc 0 trnoise(20n 0.5n 0 0)", "0", [], "trnoise", ["20n", "0.5n", "0", "0"]),
     ("V1 a 0 dc 0 trrandom(2 10m 0 1)", "0", [], "trrandom", ["2", "10m", "0", "1"]),
+    # 4.1.11: an RF port; portnum is not an AC phase
+    ("V1 in 0 dc 0 ac 1 portnum 1 z0 50", "0", ["1"], None, []),
 ]
 
 

@@ -208,6 +208,8 @@ class SourceParts:
                 current = ""
             elif isinstance(field, Value) and field.key in parts:
                 current = field.key
+            elif isinstance(field, Value) and field.kind is ValueKind.NAME:
+                current = ""  # another keyword, e.g. portnum (4.1.11)
             elif current and len(parts[current]) < (1 if current == "dc" else 2):
                 parts[current].append(field)
         dc = parts["dc"][0] if parts["dc"] else None
