@@ -11,12 +11,12 @@ from __future__ import annotations
 import functools
 import importlib.resources
 from pathlib import Path
-from typing import cast
+from typing import TYPE_CHECKING, cast
 
-from lark import Lark, UnexpectedCharacters, UnexpectedInput, UnexpectedToken
-
-from heatweave.cardbuild import BuildError, ToSyntax, use_text
 from heatweave.syntax import Call, CardSyntax, Token, Value
+
+if TYPE_CHECKING:  # lark is imported on first use, so importing this module stays cheap
+    from lark import Lark, UnexpectedInput, UnexpectedToken
 
 GRAMMAR_FILE = "spice.lark"
 
@@ -53,6 +53,10 @@ def grammar_dir() -> Path:
 @functools.cache
 def parser() -> Lark:
     """The LALR parser, built once per process."""
+    from lark import Lark
+
+    from heatweave.cardbuild import ToSyntax
+
     folder = grammar_dir()
     return Lark.open(
         str(folder / GRAMMAR_FILE),
@@ -60,14 +64,21 @@ def parser() -> Lark:
         import_paths=[str(folder)],
         maybe_placeholders=False,
         transformer=ToSyntax(),
+        cache=True,  # lark keeps the LALR tables in the temp folder: ~5 ms instead of ~100
     )
 
 
+@functools.lru_cache(maxsize=4096)
 def parse_card(text: str) -> CardSyntax:
     """The typed syntax of one logical card (see :mod:`heatweave.syntax`).
 
-    Raises :class:`CardSyntaxError` with the offset of the problem in *text*.
+    Raises :class:`CardSyntaxError` with the offset of the problem in *text*.  Results are
+    immutable, so the same card text (lint, then the emitter) is parsed only once.
     """
+    from lark import UnexpectedInput
+
+    from heatweave.cardbuild import BuildError, use_text
+
     use_text(text)
     try:
         # The inline transformer makes parse() return syntax objects, not a Tree.
@@ -97,6 +108,8 @@ _AFTER_KEYWORD: dict[str, tuple[str, str]] = {
 
 def _describe(exc: UnexpectedInput, text: str) -> CardSyntaxError:
     """Turn lark's exception into plain words at the right offset."""
+    from lark import UnexpectedCharacters, UnexpectedToken
+
     if isinstance(exc, UnexpectedCharacters):
         return _bad_character(exc.pos_in_stream or 0, text)
     assert isinstance(exc, UnexpectedToken)
