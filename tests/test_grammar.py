@@ -740,3 +740,14 @@ def test_missing_grammar_is_reported(monkeypatch: pytest.MonkeyPatch, tmp_path: 
     monkeypatch.setattr(grammar, "grammar_dirs", lambda: [tmp_path / "a", tmp_path / "b"])
     with pytest.raises(FileNotFoundError, match=r"spice\.lark"):
         grammar.grammar_dir()
+
+
+def test_later_param_wins() -> None:
+    # A repeated instance parameter overrides the earlier one: checked with ngspice 39.3,
+    # "R1 1 0 r=1k r=2k" across 1 V draws 0.5 mA.
+    syntax = element("R1 a b 1k TC1=1m tc1=2m")
+    found = syntax.param("Tc1")
+    assert found is not None and found.value.text == "2m"
+    model = parse_card(".model rm r tc1=1m")
+    assert isinstance(model, ModelSyntax)
+    assert model.param("TC1") is not None and model.param("tc2") is None

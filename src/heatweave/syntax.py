@@ -121,6 +121,16 @@ class Port:
 Field = Value | Call | Group | Param | Port
 
 
+def last_param(params: tuple[Param, ...], key: str) -> Param | None:
+    """The last pair named *key* (case-insensitive) in *params*, or ``None``."""
+    low = key.lower()
+    found = None
+    for p in params:
+        if p.key.key == low:
+            found = p
+    return found
+
+
 @dataclass(frozen=True, slots=True)
 class ElementSyntax:
     """An element card: ``R1 a b 1k tc1=0.01`` and every other letter of Table 2.1.
@@ -146,12 +156,7 @@ class ElementSyntax:
 
     def param(self, key: str) -> Param | None:
         """The last ``key=`` pair (case-insensitive), as ngspice lets a later one win."""
-        low = key.lower()
-        found = None
-        for p in self.params:
-            if p.key.key == low:
-                found = p
-        return found
+        return last_param(self.params, key)
 
     def source(self) -> SourceParts:
         """The parts of an independent source's value (manual 4.1), for V and I cards."""
@@ -291,13 +296,8 @@ class ModelSyntax:
     args: tuple[Field, ...] = ()
 
     def param(self, key: str) -> Param | None:
-        """The last ``key`` pair (case-insensitive)."""
-        low = key.lower()
-        found = None
-        for p in self.params:
-            if p.key.key == low:
-                found = p
-        return found
+        """The last ``key=`` pair (case-insensitive), as ngspice lets a later one win."""
+        return last_param(self.params, key)
 
 
 @dataclass(frozen=True, slots=True)
