@@ -318,7 +318,7 @@ class ToSyntax(Transformer[LarkToken, Any]):
 
     def other_dot(self, children: list[Any]) -> CardSyntax:
         keyword, *fields = children
-        return build_dot(keyword, join_fields(fields, self.text), self.text)
+        return build_dot(keyword, fields, self.text)
 
 
 def _name(value: Token) -> Token:
@@ -339,7 +339,7 @@ def _last_value(field: Field) -> Field:
     return field
 
 
-def _linked(prev: Field, nxt: Field) -> bool:
+def _linked(prev: Field, nxt: Field, across_blanks: bool) -> bool:
     """Whether *nxt* continues the unbraced expression that *prev* ends (2.9.7, 5.1)."""
     if isinstance(prev, Port) or isinstance(nxt, Param | Port):
         return False
@@ -347,6 +347,8 @@ def _linked(prev: Field, nxt: Field) -> bool:
         return False
     if prev.end == nxt.offset:  # glued: v(1)*10k, {a}*2
         return True
+    if not across_blanks:
+        return False
     if (
         isinstance(prev, Value)
         and prev.kind is not ValueKind.STRING
@@ -360,14 +362,18 @@ def _linked(prev: Field, nxt: Field) -> bool:
     ) or (isinstance(nxt, Call) and nxt.name.text[0] in _OPERATOR_CHARS)
 
 
-def join_fields(fields: list[Field], text: str) -> list[Field]:
-    """Merge the pieces of unbraced expressions, and ``k=a, b`` values, into single fields."""
+def join_fields(fields: list[Field], text: str, across_blanks: bool = True) -> list[Field]:
+    """Merge the pieces of unbraced expressions, and ``k=a, b`` values, into single fields.
+
+    Run-time expressions (B, E, G, R values) may hold blanks around operators (5.1.1,
+    ``V(1) < {Vlow} ? ...``); ``.param`` values may not (*across_blanks* false, 2.9.1).
+    """
     out: list[Field] = []
     for field in fields:
         if out:
             prev = out[-1]
             last = _last_value(prev)
-            if _linked(last, field):
+            if _linked(last, field, across_blanks):
                 merged = Value(text[last.offset : field.end], last.offset, ValueKind.EXPRESSION)
                 out[-1] = _replace_last(prev, merged)
                 continue
@@ -569,18 +575,22 @@ def _build_xspice(name: Token, fields: list[Field], text: str) -> ElementSyntax:
     return ElementSyntax(name, "a", nodes, positional[-1:], params, tuple(ports))
 
 
+def _param_card(keyword: Token, fields: list[Field]) -> ParamCardSyntax:
+    """``.param``: an unbraced value ends at a blank (2.9.1: ``.param c = a + 123 $ won't
+    work``); what follows it up to the next pair is kept as ``stray`` for lint to report.
+    ngspice 39.3 accepts even ``.param x`` without a value, so nothing here is an error."""
+    params = tuple(f for f in fields if isinstance(f, Param))
+    stray = tuple(f for f in fields if not isinstance(f, Param))
+    return ParamCardSyntax(keyword, params, stray)
+
+
 def build_dot(keyword: Token, fields: list[Field], text: str) -> CardSyntax:
     """Dot cards whose head is a plain keyword: typed where it matters, else DotSyntax."""
     word = keyword.key
-    positional, params = _split(fields)
     if word in (".param", ".csparam"):
-        if positional:
-            raise BuildError(
-                positional[0].offset,
-                "expected a name=value pair",
-                f"write {keyword.text} <name>=<value>",
-            )
-        return ParamCardSyntax(keyword, params)
+        return _param_card(keyword, join_fields(fields, text, across_blanks=False))
+    fields = join_fields(fields, text)
+    positional, params = _split(fields)
     if word in (".ic", ".nodeset"):
         settings: list[NodeSetting] = []
         others: list[Param] = []
@@ -592,10 +602,7 @@ def build_dot(keyword: Token, fields: list[Field], text: str) -> CardSyntax:
             else:
                 others.append(p)
         return InitialSyntax(keyword, tuple(settings), tuple(others))
-    if word == ".global":
-        nodes, rest = _leading_words(list(positional), drop_last=0)
-        if rest or params:
-            bad = (rest or list(params))[0]
-            raise BuildError(bad.offset, "expected a node name", "write .global <node> ...")
+    if word == ".global":  # ngspice 39.3 accepts ".global a=1" too; the pairs are ignored
+        nodes, _ = _leading_words(list(positional), drop_last=0)
         return GlobalSyntax(keyword, tuple(nodes))
     return DotSyntax(keyword, positional, params)

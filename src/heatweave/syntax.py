@@ -302,10 +302,15 @@ class ModelSyntax:
 
 @dataclass(frozen=True, slots=True)
 class ParamCardSyntax:
-    """``.param k=v ...`` and ``.csparam k=v ...`` (2.9.1, 2.11); values may be unbraced."""
+    """``.param k=v ...`` and ``.csparam k=v ...`` (2.9.1, 2.11); values may be unbraced.
+
+    An unbraced value ends at a blank, as in ngspice: ``.param a = 123 * 3`` gives a = 123
+    (2.9.1, and ngspice 39.3 does so); the ignored rest (``*``, ``3``) is in ``stray``.
+    """
 
     keyword: Token
     params: tuple[Param, ...]
+    stray: tuple[Field, ...] = ()
 
 
 @dataclass(frozen=True, slots=True)
