@@ -19,6 +19,8 @@ from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from heatweave import grammar
 from heatweave.files import read_text
@@ -774,3 +776,19 @@ def test_later_param_wins() -> None:
     model = parse_card(".model rm r tc1=1m")
     assert isinstance(model, ModelSyntax)
     assert model.param("TC1") is not None and model.param("tc2") is None
+
+
+# Any text at all gives typed syntax or a CardSyntaxError inside the card: never a traceback.
+_PIECES = [*"RrCcVvEeGgXxAaQqMmUuKkDd .,=(){}'\"[]%~+-*/<>!?:01kmu", "%vd", ".model ",
+           ".subckt ", ".func ", ".param ", ".if", ".lib ", ".include ", "v(", "poly(2) ",
+           "table ", "params: ", " thermal", " null", ".ic ", "\t"]  # fmt: skip
+
+
+@given(st.lists(st.sampled_from(_PIECES), min_size=1, max_size=16).map("".join))
+@settings(max_examples=400, deadline=None)
+def test_any_text_parses_or_fails_cleanly(text: str) -> None:
+    try:
+        parse_card(text)
+    except CardSyntaxError as error:
+        assert 0 <= error.offset <= len(text)
+        assert not re.search(r"\b[A-Z_]{4,}\b", error.message)
