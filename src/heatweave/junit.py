@@ -1,0 +1,86 @@
+"""JUnit XML for CI servers: one ``<testsuite>`` per deck, one ``<testcase>`` per limit.
+
+The layout follows the JUnit XML report format as CI servers read it: a ``<testsuites>``
+root with ``tests``/``failures``/``errors``/``time`` totals; each ``<testsuite>`` with
+``name``, ``tests``, ``failures``, ``errors``, ``skipped``, ``time``, ``timestamp``,
+``hostname``, ``id`` and ``package``; each ``<testcase>`` with ``name``, ``classname`` and
+``time``, and a ``<failure message=... type=...>`` child when the limit is violated.
+"""
+
+from __future__ import annotations
+
+import xml.etree.ElementTree as ET
+from collections.abc import Sequence
+from dataclasses import dataclass
+from datetime import UTC, datetime
+
+
+@dataclass(frozen=True, slots=True)
+class Case:
+    """One test case: a limit, with the failure message when it was violated."""
+
+    name: str
+    classname: str
+    time: float = 0.0
+    failure: str | None = None
+    failure_type: str = "LimitViolated"
+
+
+@dataclass(frozen=True, slots=True)
+class Suite:
+    """The test cases of one deck."""
+
+    name: str
+    cases: tuple[Case, ...]
+    time: float = 0.0
+    timestamp: datetime | None = None
+
+    @property
+    def failures(self) -> int:
+        return sum(case.failure is not None for case in self.cases)
+
+
+def _seconds(value: float) -> str:
+    return f"{value:.3f}"
+
+
+def render(suites: Sequence[Suite], name: str = "heatweave check") -> str:
+    """The XML document (UTF-8 declaration, indented) for *suites*."""
+    root = ET.Element(
+        "testsuites",
+        name=name,
+        tests=str(sum(len(s.cases) for s in suites)),
+        failures=str(sum(s.failures for s in suites)),
+        errors="0",
+        time=_seconds(sum(s.time for s in suites)),
+    )
+    for number, suite in enumerate(suites):
+        stamp = (suite.timestamp or datetime.now(UTC)).strftime("%Y-%m-%dT%H:%M:%S")
+        element = ET.SubElement(
+            root,
+            "testsuite",
+            name=suite.name,
+            tests=str(len(suite.cases)),
+            failures=str(suite.failures),
+            errors="0",
+            skipped="0",
+            time=_seconds(suite.time),
+            timestamp=stamp,
+            hostname="localhost",
+            id=str(number),
+            package="heatweave",
+        )
+        for case in suite.cases:
+            item = ET.SubElement(
+                element, "testcase", name=case.name, classname=case.classname,
+                time=_seconds(case.time),
+            )  # fmt: skip
+            if case.failure is not None:
+                failure = ET.SubElement(
+                    item, "failure", message=case.failure, type=case.failure_type
+                )
+                failure.text = case.failure
+    ET.indent(root)
+    return ET.tostring(root, encoding="unicode", xml_declaration=False).join(
+        ('<?xml version="1.0" encoding="UTF-8"?>\n', "\n")
+    )
