@@ -1,0 +1,155 @@
+"""``heatweave settle``: the thermal steady state of a periodically driven circuit."""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from heatweave.cli.common import guarded, is_terminal, report_findings
+from heatweave.errors import UsageError
+from heatweave.quantities import SpiceQuantity
+
+BACKENDS = ("auto", "shared", "batch")
+
+
+@click.command()
+@click.argument("deck", type=click.Path(dir_okay=False, exists=True))
+@click.option(
+    "-a",
+    "--annotations",
+    type=click.Path(dir_okay=False, exists=True),
+    help="Annotation file (default: DECK.thermal.toml beside the deck).",
+)
+@click.option(
+    "--period",
+    required=True,
+    type=SpiceQuantity("s", positive=True),
+    metavar="T",
+    help="Period of the drive, e.g. 1m or 10u.",
+)
+@click.option(
+    "--periods",
+    type=click.IntRange(min=2),
+    default=4,
+    show_default=True,
+    help="Electrical periods per iteration (doubled until two periods agree).",
+)
+@click.option(
+    "--tstep",
+    type=SpiceQuantity("s", positive=True),
+    metavar="TSTEP",
+    help="Largest transient step (default: period/400).",
+)
+@click.option(
+    "--tol",
+    type=SpiceQuantity("K", positive=True),
+    default=0.01,
+    show_default=True,
+    help="Stop when no part temperature changes by more than this (K).",
+)
+@click.option(
+    "--max-iter",
+    type=click.IntRange(min=1),
+    default=30,
+    show_default=True,
+    help="Give up after this many iterations.",
+)
+@click.option(
+    "--wave-tol",
+    type=SpiceQuantity(positive=True),
+    default=1e-4,
+    show_default=True,
+    help="Relative difference allowed between two successive periods.",
+)
+@click.option(
+    "--envelope",
+    type=SpiceQuantity("s", positive=True),
+    metavar="TSTOP",
+    help="Also compute the warm-up from cold up to TSTOP (JSON and CSV).",
+)
+@click.option(
+    "--ambient",
+    type=SpiceQuantity("degC"),
+    metavar="DEGC",
+    help="Ambient temperature instead of the annotation file's.",
+)
+@click.option(
+    "--backend",
+    type=click.Choice(BACKENDS),
+    default="auto",
+    show_default=True,
+    help="How to drive ngspice: shared library, batch program, or whichever works.",
+)
+@click.option(
+    "--allow-control",
+    is_flag=True,
+    help="Keep the deck's .control blocks (they can run any command).",
+)
+@click.option("--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout).")
+@click.option(
+    "--csv",
+    "csv_file",
+    metavar="FILE",
+    help="Write the --envelope warm-up curve as CSV (- is stdout).",
+)
+@click.option(
+    "--timeout",
+    type=SpiceQuantity("s", positive=True),
+    metavar="SECONDS",
+    help="Stop each ngspice run after this long.",
+)
+@click.option("-q", "--quiet", is_flag=True, help="No table and no progress; warnings only.")
+@guarded
+def settle(
+    deck: str, annotations: str | None, period: float, periods: int, tstep: float | None,
+    tol: float, max_iter: int, wave_tol: float, envelope: float | None,
+    ambient: float | None, backend: str, allow_control: bool, json_file: str | None,
+    csv_file: str | None, timeout: float | None, quiet: bool,
+) -> None:  # fmt: skip
+    """Find the thermal steady state of DECK driven periodically with period T.
+
+    Simulates a few periods at fixed part temperatures, averages each part's dissipation
+    over a period, solves the thermal network for its steady state, and repeats until
+    the temperatures stop changing; then reports each part's cycle-mean, peak and valley
+    temperature within the settled period.  Exit status 7 reports thermal runaway.
+    """
+    from heatweave.cli.emit_cmd import default_annotation
+    from heatweave.emitter import load_inputs
+    from heatweave.files import write_atomic
+    from heatweave.settle import SettleOptions, Step
+    from heatweave.settle import settle as settle_deck
+    from heatweave.settle_report import progress_line, render_csv, render_json, render_table
+
+    if csv_file is not None and envelope is None:
+        raise UsageError("--csv writes the warm-up curve", hint="add --envelope TSTOP")
+    outputs = {"--json": json_file, "--csv": csv_file}
+    if json_file == csv_file == "-":
+        raise UsageError("--json and --csv both write to stdout", hint="give one a file name")
+    chosen = annotations or default_annotation(deck)
+    if chosen is None:
+        raise UsageError(
+            f"no annotation file for {deck}",
+            hint="pass -a FILE, or put DECK.thermal.toml beside the deck",
+        )
+    annotation_path = str(chosen)
+    inputs = load_inputs(deck, annotation_path)
+
+    def show(step: Step) -> None:
+        click.echo(progress_line(step), err=True)
+
+    options = SettleOptions(
+        period=period, periods=periods, tstep=tstep, tol=tol, max_iter=max_iter,
+        wave_tol=wave_tol, envelope=envelope, ambient=ambient, backend=backend,
+        allow_control=allow_control, timeout=timeout,
+        progress=show if not quiet and is_terminal() else None,
+    )  # fmt: skip
+    settled = settle_deck(deck, annotation_path, options, inputs=inputs)
+    report_findings(list(settled.findings))
+    if json_file is not None:
+        write_atomic(json_file, render_json(settled, inputs))
+    if csv_file is not None:
+        write_atomic(csv_file, render_csv(settled))
+    if not quiet:
+        stream = sys.stderr if "-" in outputs.values() else sys.stdout
+        click.echo(render_table(settled), file=stream, nl=False)
