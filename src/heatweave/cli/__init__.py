@@ -20,6 +20,7 @@ COMMANDS: dict[str, str] = {
     "lint": "heatweave.cli.lint_cmd:lint",
     "network": "heatweave.cli.network_cmd:network",
     "schema": "heatweave.cli.schema_cmd:schema",
+    "settle": "heatweave.cli.settle_cmd:settle",
 }
 
 
