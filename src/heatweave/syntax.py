@@ -227,6 +227,7 @@ _NODE_KINDS = (ValueKind.NAME, ValueKind.NUMBER, ValueKind.EXPRESSION)
 _FLEXIBLE_NODES: dict[str, tuple[int, ...]] = {"q": (3, 4, 5), "m": (4, 3, 5)}
 
 
+_NUMBER_START = frozenset("0123456789.+-")
 _KEYWORD_COLON = re.compile(r"[A-Za-z_]\w*:")  # params:, optional:
 _OPERATOR = re.compile(r"[-+*/^<>!?:&|%\\]")
 
@@ -240,7 +241,7 @@ def classify(text: str, offset: int) -> Value:
         kind = ValueKind.QUOTED
     elif first == '"':
         kind = ValueKind.STRING
-    elif parse_number(text) is not None:
+    elif first in _NUMBER_START and parse_number(text) is not None:
         kind = ValueKind.NUMBER
     elif _OPERATOR.search(text) and not _KEYWORD_COLON.fullmatch(text):
         kind = ValueKind.EXPRESSION
