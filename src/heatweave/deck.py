@@ -128,8 +128,10 @@ class Card:
     @property
     def head(self) -> str:
         """The first field as written: the element name or the dot keyword."""
-        match = _HEAD.match(self.text)
-        return strip_inline_comment(match.group(1)) if match else ""
+        head = _HEAD.match(self.text).group(1)  # type: ignore[union-attr]  # always matches
+        if ";" in head or "//" in head:
+            head = strip_inline_comment(head)
+        return head
 
     @property
     def name(self) -> str:
@@ -144,13 +146,13 @@ class Card:
     @property
     def is_element(self) -> bool:
         """True for element cards: the first character is a letter."""
-        head = self.head
-        return bool(head) and head[0].isalpha()
+        return self.head[:1].isalpha()
 
     @property
     def letter(self) -> str:
         """The element type letter, upper case (``R``, ``X``), or ``""`` for other cards."""
-        return self.head[0].upper() if self.is_element else ""
+        first = self.head[:1]
+        return first.upper() if first.isalpha() else ""
 
     def physical_lines(self) -> list[str]:
         """The card's own lines without line endings."""

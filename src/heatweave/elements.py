@@ -200,6 +200,9 @@ def _eval(node: ast.expr, params: Mapping[str, float]) -> float:
 def top_params(index: DeckIndex) -> dict[str, float]:
     """Numeric values of the top-level ``.param`` cards, in order, later ones winning."""
     values: dict[str, float] = {}
+    source = index.project.deck.source
+    if source is not None and ".param" not in source.text.lower():
+        return values
     for card in index.project.deck.body:
         if not isinstance(card, Card) or card.name != ".param":
             continue

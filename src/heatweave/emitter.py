@@ -109,12 +109,12 @@ class _Rewriter:
         self.resolved: dict[str, Resolved] = {}
         # instance path prefix (lower) -> definition it needs a specialised copy of
         self.copies: dict[str, Block] = {}
-        self.root_cards = {id(c) for c in index.project.deck.cards()}
+        root = index.project.deck.source
         for part in circuit.parts:
             found = index.resolve(part.path)
             if found is None:
                 raise EmitError(f"part {part.path!r} is not in the deck", part.location)
-            if not found.instances and id(found.card) not in self.root_cards:
+            if not found.instances and found.card.source is not root:
                 where = found.card.source.path if found.card.source else "an included file"
                 raise EmitError(
                     f"{part.path} is defined in an included file ({where})",
@@ -133,26 +133,29 @@ class _Rewriter:
 
     def body(self, nodes: Iterable[Node], prefix: str, top: bool) -> list[Node]:
         out: list[Node] = []
+        parts, copies = self.parts, self.copies
         for node in nodes:
-            if isinstance(node, Card) and node.is_element:
-                out.extend(self.card(node, prefix))
+            if type(node) is Card:
+                head = node.head
+                if not head[:1].isalpha():
+                    out.append(node)
+                    continue
+                path = f"{prefix}.{head}" if prefix else head
+                key = path.lower()
+                part = parts.get(key)
+                if part is not None:
+                    out.extend(self.replace_part(node, part))
+                elif key in copies and head[:1] in "xX":
+                    _nodes, sub, _params = x_card_parts(node)
+                    out.append(self.retarget(node, sub, copy_name(sub, path)))
+                else:
+                    out.append(node)
             elif isinstance(node, Block) and node.kind == "subckt":
                 out.append(node)
                 out.extend(self.copies_of(node, prefix, top))
             else:
                 out.append(node)
         return out
-
-    def card(self, card: Card, prefix: str) -> list[Node]:
-        path = f"{prefix}.{card.head}" if prefix else card.head
-        key = path.lower()
-        part = self.parts.get(key)
-        if part is not None:
-            return self.replace_part(card, part)
-        if card.letter == "X" and key in self.copies:
-            _nodes, sub, _params = x_card_parts(card)
-            return [self.retarget(card, sub, copy_name(sub, path))]
-        return [card]
 
     def copies_of(self, block: Block, prefix: str, top: bool) -> list[Node]:
         """Specialised copies of *block* that belong in the body being rewritten."""
@@ -343,6 +346,9 @@ def emit_deck(
     which is the baseline that drift limits are measured against.
     """
     deck: Deck = project.deck
+    if not circuit.parts:
+        # Nothing heats: the deck is written back unchanged, byte for byte.
+        return Emitted(deck.write(), (), (), circuit)
     rewriter = _Rewriter(index, circuit, reference, heating)
     body = rewriter.body(deck.body, "", top=True)
     body.extend(rewriter.unplaced())

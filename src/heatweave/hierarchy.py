@@ -10,6 +10,7 @@ subcircuit definitions (with their nesting scopes) and instances, so that a path
 from __future__ import annotations
 
 import os
+import re
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -50,8 +51,13 @@ def load_project(path: str) -> Project:
     deck = read_file(path)
     includes: list[Include] = []
     cache: dict[str, Deck] = {}
-    _follow(deck.body, deck.path, (os.path.abspath(path),), includes, cache)
+    if deck.source is None or _MAY_INCLUDE.search(deck.source.text):
+        _follow(deck.body, deck.path, (os.path.abspath(path),), includes, cache)
     return Project(deck, tuple(includes))
+
+
+# A cheap first look: a file without such a line includes nothing.
+_MAY_INCLUDE = re.compile(r"^[ \t]*\.(?:inc|lib)", re.IGNORECASE | re.MULTILINE)
 
 
 def _include_target(card: Card) -> tuple[str, str | None] | None:
@@ -109,6 +115,10 @@ def _follow(
         if deck is None:
             deck = read_file(key, title=False)
             cache[key] = deck
+        if deck.source is not None and not _MAY_INCLUDE.search(deck.source.text):
+            out.append(Include(node, key, section, deck, _section(deck, section, where)
+                               if section is not None else deck.body))
+            continue
         chosen = deck.body
         if section is not None:
             chosen = _section(deck, section, where)
@@ -156,6 +166,7 @@ class Scope:
     name: str  # "" for the top level
     parent: Scope | None
     cards: tuple[Card, ...]
+    heads: tuple[str, ...]  # each card's name as written
     subckts: dict[str, Block] = field(default_factory=dict)
     scopes: dict[str, Scope] = field(default_factory=dict)
     by_name: dict[str, Card] = field(default_factory=dict)
@@ -182,10 +193,12 @@ class DeckIndex:
 
     def _expand(self, body: tuple[Node, ...]) -> list[Node]:
         """Nodes of a body with included bodies put in place of their include cards."""
+        if not self.project.includes:
+            return list(body)
         out: list[Node] = []
         for node in body:
             out.append(node)
-            if isinstance(node, Card) and _include_target(node) is not None:
+            if isinstance(node, Card) and node.is_dot and _include_target(node) is not None:
                 inc = self.project.include_for(node)
                 if inc is not None:
                     out.extend(self._expand(inc.body))
@@ -193,20 +206,24 @@ class DeckIndex:
 
     def _scope(self, name: str, parent: Scope | None, nodes: list[Node]) -> Scope:
         cards: list[Card] = []
+        heads: list[str] = []
         blocks: list[Block] = []
         for node in nodes:
-            if isinstance(node, Card):
-                if node.is_element:
+            if type(node) is Card:
+                head = node.head
+                if head[:1].isalpha():
                     cards.append(node)
-                elif node.name == ".model":
+                    heads.append(head)
+                elif head.lower() == ".model":
                     fields = node.fields()
                     if len(fields) > 1:
                         self.models.setdefault(fields[1].lower(), node)
             elif isinstance(node, Block) and node.kind == "subckt":
                 blocks.append(node)
-        scope = Scope(name, parent, tuple(cards))
-        for card in cards:
-            scope.by_name.setdefault(card.name, card)
+        scope = Scope(name, parent, tuple(cards), tuple(heads))
+        by_name = scope.by_name
+        for head, card in zip(reversed(heads), reversed(cards), strict=True):
+            by_name[head.lower()] = card  # the first definition of a name wins
         for block in blocks:
             key = block.label.lower()
             scope.subckts.setdefault(key, block)
@@ -228,10 +245,13 @@ class DeckIndex:
         return list(self._walk(self.top, "", ()))
 
     def _walk(self, scope: Scope, prefix: str, seen: tuple[str, ...]) -> Iterator[str]:
-        for card in scope.cards:
-            path = prefix + card.head
+        if not prefix and not any(h[:1] in "xX" for h in scope.heads):
+            yield from scope.heads  # a flat deck: the names are the paths
+            return
+        for card, head in zip(scope.cards, scope.heads, strict=True):
+            path = prefix + head
             yield path
-            if card.letter == "X":
+            if head[:1] in "xX":
                 _nodes, sub, _params = x_card_parts(card)
                 found = self.lookup_subckt(sub, scope)
                 if found is None or found[1].name in seen:
