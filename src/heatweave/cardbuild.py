@@ -163,10 +163,10 @@ class ToSyntax(Transformer[LarkToken, Any]):
         return SubcktSyntax(keyword, plain(name), ports, params)
 
     def ends(self, children: list[Any]) -> EndsSyntax:
-        return EndsSyntax(children[0], plain(children[1]) if len(children) > 1 else None)
+        return EndsSyntax(children[0], _first_name(children[1:]))
 
     def endl(self, children: list[Any]) -> EndlSyntax:
-        return EndlSyntax(children[0], plain(children[1]) if len(children) > 1 else None)
+        return EndlSyntax(children[0], _first_name(children[1:]))
 
     def model(self, children: list[Any]) -> ModelSyntax:
         keyword, name, kind, *fields = children
@@ -185,9 +185,10 @@ class ToSyntax(Transformer[LarkToken, Any]):
         return IncludeSyntax(children[0], children[1])
 
     def lib(self, children: list[Any]) -> LibSyntax:
-        if len(children) == 3:
-            return LibSyntax(children[0], children[1], plain(children[2]))
-        return LibSyntax(children[0], None, plain(children[1]))
+        keyword, path, *rest = children
+        if rest:  # .lib <file> <section>; anything after the section is ignored, as ngspice does
+            return LibSyntax(keyword, path, _first_name(rest))
+        return LibSyntax(keyword, None, plain(path))
 
     def title(self, children: list[Any]) -> TitleSyntax:
         return TitleSyntax(children[0], children[1] if len(children) > 1 else None)
@@ -208,6 +209,12 @@ class ToSyntax(Transformer[LarkToken, Any]):
     def other_dot(self, children: list[Any]) -> CardSyntax:
         keyword, *fields = children
         return build_dot(keyword, fields, self.text)
+
+
+def _first_name(fields: list[Field]) -> Token | None:
+    """The first field as a name (``.ends amp``, ``.endl fast``); extra fields are ignored."""
+    first = fields[0] if fields else None
+    return Token(first.text, first.offset) if isinstance(first, Token) else None
 
 
 def _param_card(keyword: Token, fields: list[Field]) -> ParamCardSyntax:
