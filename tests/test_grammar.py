@@ -396,6 +396,7 @@ DOTS = [
     (".subckt bare p q", SubcktSyntax, {"name": "bare", "ports": ["p", "q"], "params": []}),
     (".ends amp", EndsSyntax, {"name": "amp"}),
     (".ends", EndsSyntax, {"name": None}),
+    (".ends amp trailing", EndsSyntax, {"name": "amp"}),  # ngspice 39.3 accepts and ignores
     # 2.4 and 21.4: parentheses optional, "=" optional
     (
         ".model dfast d (is=2e-14 n=1.05 rs=0.3)",
