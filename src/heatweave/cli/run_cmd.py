@@ -1,0 +1,202 @@
+"""``heatweave run``: simulate a deck with self-heating and report what it does to the parts."""
+
+from __future__ import annotations
+
+import sys
+from collections.abc import Callable
+from pathlib import Path
+
+import click
+
+from heatweave.cli.common import guarded, is_terminal, report_findings
+from heatweave.errors import UsageError
+from heatweave.quantities import SpiceQuantity, format_number
+
+BACKENDS = ("auto", "shared", "batch")
+
+
+def analyses_of(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
+    """The analyses asked for on the command line (none: the deck's own cards)."""
+    if op and tran is not None:
+        raise UsageError(
+            "--op and --tran ask for two different analyses",
+            hint="give one of them; the report is read from a single analysis",
+        )
+    if op:
+        return ("op",)
+    if tran is not None:
+        step, stop = tran
+        if step >= stop:
+            raise UsageError(
+                f"--tran step {format_number(step)} s is not below the stop time "
+                f"{format_number(stop)} s",
+                hint="write --tran TSTEP TSTOP, e.g. --tran 1m 10",
+            )
+        return (f"tran {format_number(step)} {format_number(stop)}",)
+    return ()
+
+
+def check_outputs(outputs: dict[str, str | None], deck: str) -> None:
+    """At most one output on stdout, and none of them the input deck."""
+    from heatweave.files import same_file
+
+    on_stdout = [name for name, path in outputs.items() if path == "-"]
+    if len(on_stdout) > 1:
+        raise UsageError(
+            f"{' and '.join(on_stdout)} both write to stdout",
+            hint="send at most one of them to -; give the others file names",
+        )
+    for name, path in outputs.items():
+        if path is not None and path != "-" and Path(path).exists() and same_file(path, deck):
+            raise UsageError(
+                f"{name} {path} is the input deck, which run never overwrites",
+                hint=f"choose another file name for {name}",
+            )
+
+
+def progress_printer(enabled: bool) -> Callable[[float], None] | None:
+    """A progress callback drawing ``simulated NN%`` on stderr, or ``None`` when quiet."""
+    if not enabled:
+        return None
+    shown = [-1]
+
+    def show(fraction: float) -> None:
+        percent = int(fraction * 100)
+        if percent == shown[0]:
+            return
+        shown[0] = percent
+        end = "\n" if percent >= 100 else ""
+        click.echo(f"\rsimulated {percent:3d}% of the transient", err=True, nl=False)
+        if end:
+            click.echo("\r" + " " * 32 + "\r", err=True, nl=False)
+
+    return show
+
+
+def probe_nodes(probes: tuple[str, ...], voltages: dict[str, float]) -> tuple[str, ...]:
+    """``--probe`` names (``out`` or ``V(out)``) as the result's node names, checked."""
+    found = []
+    for probe in probes:
+        name = probe.strip().lower()
+        if name.startswith("v(") and name.endswith(")"):
+            name = name[2:-1]
+        if name not in voltages:
+            known = ", ".join(sorted(voltages)) or "none"
+            raise UsageError(
+                f"--probe {probe}: the deck has no node {name!r}",
+                hint=f"nodes of this deck: {known}",
+            )
+        found.append(name)
+    return tuple(found)
+
+
+@click.command()
+@click.argument("deck", type=click.Path(dir_okay=False, exists=True))
+@click.option(
+    "-a",
+    "--annotations",
+    type=click.Path(dir_okay=False, exists=True),
+    help="Annotation file (default: DECK.thermal.toml beside the deck).",
+)
+@click.option("--op", is_flag=True, help="Run an operating point instead of the deck's analyses.")
+@click.option(
+    "--tran",
+    type=(SpiceQuantity("s", positive=True), SpiceQuantity("s", positive=True)),
+    metavar="TSTEP TSTOP",
+    help="Run a transient instead of the deck's analyses, e.g. 1m 10.",
+)
+@click.option(
+    "--ambient",
+    type=SpiceQuantity("degC"),
+    metavar="DEGC",
+    help="Ambient temperature instead of the annotation file's.",
+)
+@click.option(
+    "--backend",
+    type=click.Choice(BACKENDS),
+    default="auto",
+    show_default=True,
+    help="How to drive ngspice: shared library, batch program, or whichever works.",
+)
+@click.option(
+    "--allow-control",
+    is_flag=True,
+    help="Keep the deck's .control blocks (they can run any command).",
+)
+@click.option("--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout).")
+@click.option("--csv", "csv_file", metavar="FILE", help="Write the waveforms as CSV (- is stdout).")
+@click.option("--plot", "plot_file", metavar="FILE.png", help="Write a PNG figure.")
+@click.option(
+    "--probe",
+    multiple=True,
+    metavar="NODE",
+    help="Deck node whose voltage the plot shows (repeatable).",
+)
+@click.option(
+    "--timeout",
+    type=SpiceQuantity("s", positive=True),
+    metavar="SECONDS",
+    help="Stop ngspice after this long.",
+)
+@click.option("-q", "--quiet", is_flag=True, help="No table and no progress; warnings only.")
+@guarded
+def run(
+    deck: str,
+    annotations: str | None,
+    op: bool,
+    tran: tuple[float, float] | None,
+    ambient: float | None,
+    backend: str,
+    allow_control: bool,
+    json_file: str | None,
+    csv_file: str | None,
+    plot_file: str | None,
+    probe: tuple[str, ...],
+    timeout: float | None,
+    quiet: bool,
+) -> None:
+    """Simulate DECK with self-heating and report part temperatures, drift and margins.
+
+    The summary table goes to stdout (to stderr when a report is written to stdout).
+    """  # fmt: skip
+    from heatweave.annotations import default_path
+    from heatweave.emitter import load_inputs
+    from heatweave.files import write_atomic
+    from heatweave.reports import build_report
+    from heatweave.runner import RunOptions
+    from heatweave.runner import run as run_deck
+
+    analyses = analyses_of(op, tran)
+    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file}
+    check_outputs(outputs, deck)
+    annotation_path = annotations or str(default_path(deck))
+    inputs = load_inputs(deck, annotation_path)
+    options = RunOptions(
+        analyses=analyses,
+        ambient=ambient,
+        backend=backend,
+        allow_control=allow_control,
+        timeout=timeout,
+        progress=progress_printer(not quiet and is_terminal()),
+    )
+    outcome = run_deck(deck, annotation_path, options, inputs=inputs)
+    report_findings(list(outcome.prepared.findings))
+    report = build_report(inputs, outcome, probe_nodes(probe, outcome.results.voltages))
+    if json_file is not None:
+        from heatweave.reports import json_report
+
+        write_atomic(json_file, json_report.render(report))
+    if csv_file is not None:
+        from heatweave.reports import csv_report
+
+        write_atomic(csv_file, csv_report.render(report))
+    if plot_file is not None:
+        from heatweave.reports import plot
+
+        write_atomic(plot_file, plot.render_png(report))
+    if not quiet:
+        from heatweave.reports import table
+
+        to_stderr = "-" in outputs.values()
+        stream = sys.stderr if to_stderr else sys.stdout
+        click.echo(table.render(report, colour=is_terminal(stream)), file=stream, nl=False)

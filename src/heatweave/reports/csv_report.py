@@ -1,0 +1,57 @@
+"""The CSV of ``heatweave run --csv FILE``: waveforms, one column per quantity.
+
+One header row; each column name carries its unit in brackets::
+
+    time [s], T(R1) [degC], R(R1) [ohm], P(R1) [W], T(@board) [degC], V(out) [V]
+
+Parts come in annotation order (temperature, resistance for resistors, dissipation), then
+shared thermal nodes (``@`` before the node name, so a node never reads like a part), then
+the deck's node voltages.  A transient gives one row per time point ngspice returned; an
+operating point one row, without the time column.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+
+import numpy as np
+
+from heatweave.reports.model import RunReport
+from heatweave.results import FloatArray
+
+
+def columns(report: RunReport) -> list[tuple[str, FloatArray]]:
+    """(header, values) for every column, in file order."""
+    results = report.results
+
+    def series(final: float, values: FloatArray | None) -> FloatArray:
+        return np.asarray([final] if values is None else values, dtype=np.float64)
+
+    out: list[tuple[str, FloatArray]] = []
+    if report.transient:
+        assert results.time is not None
+        out.append(("time [s]", results.time))
+    for row in report.rows:
+        part = row.result
+        out.append((f"T({part.path}) [degC]", series(part.temperature, part.temperature_series)))
+        if part.resistance is not None:
+            out.append((f"R({part.path}) [ohm]", series(part.resistance, part.resistance_series)))
+        out.append((f"P({part.path}) [W]", series(part.power, part.power_series)))
+    for label, final in results.nodes.items():
+        out.append((f"T(@{label}) [degC]", series(final, results.node_series.get(label))))
+    for node, final in results.voltages.items():
+        out.append((f"V({node}) [V]", series(final, results.voltage_series.get(node))))
+    return out
+
+
+def render(report: RunReport) -> str:
+    """The CSV text; numbers written with full precision (``repr``)."""
+    cols = columns(report)
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow([name for name, _ in cols])
+    rows = len(cols[0][1]) if cols else 0
+    for i in range(rows):
+        writer.writerow([repr(float(values[i])) for _, values in cols])
+    return buffer.getvalue()

@@ -1,0 +1,135 @@
+"""What every report shows, computed once from a finished run.
+
+The table, JSON, CSV and plot writers read a :class:`RunReport`, so a number printed on the
+terminal is the very number written to the JSON.  Rating margins follow
+:mod:`heatweave.ratings`, judged as ``check`` judges them: the local ambient of a part is the
+temperature at the cold end of its thermal path (the ambient, or the shared node it sits on);
+the power margin is taken at the instant of the run where the derated rating is closest to
+being exceeded; the temperature margin uses the hottest temperature reached.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from heatweave.annotations import AMBIENT
+from heatweave.emitter import Inputs
+from heatweave.ratings import Margins, margins, worst_instant
+from heatweave.results import FloatArray, PartResult, RunResults
+from heatweave.runner import RunOutcome, deck_analyses_of
+
+PPM = 1e6
+
+
+@dataclass(frozen=True, slots=True)
+class PartRow:
+    """One heated part as reports show it; ``local_ambient`` is the temperature (degC) at the
+    cold end of its thermal path at the instant that decides its power margin."""
+
+    result: PartResult
+    to: str  # the annotation's name of the node its thermal path ends at
+    local_ambient: float
+    power_rating: float | None
+    tmax: float | None
+    derating_knee: float
+    margins: Margins
+
+    @property
+    def path(self) -> str:
+        return self.result.path
+
+    @property
+    def change_ppm(self) -> float | None:
+        """Resistance change against the deck's value in ppm (final point)."""
+        change = self.result.resistance_change
+        return None if change is None else change * PPM
+
+    def drift_series(self) -> FloatArray | None:
+        """Resistance change over time (ppm), for resistors in a transient."""
+        series, nominal = self.result.resistance_series, self.result.nominal_resistance
+        if series is None or not nominal:
+            return None
+        return (series / nominal - 1.0) * PPM
+
+
+def is_transient(results: RunResults) -> bool:
+    """True when the results hold waveforms over time."""
+    return results.analysis == "tran" and results.time is not None
+
+
+@dataclass(frozen=True, slots=True)
+class RunReport:
+    """A run with everything reports need: sources, settings, rows, findings."""
+
+    deck: str
+    annotations: str
+    annotations_sha256: str
+    analyses: tuple[str, ...]
+    backend: str
+    results: RunResults
+    rows: tuple[PartRow, ...]
+    warnings: tuple[str, ...] = ()
+    probes: tuple[str, ...] = ()
+    ambient_series: FloatArray | None = field(default=None, repr=False)
+
+    @property
+    def transient(self) -> bool:
+        return is_transient(self.results)
+
+
+def local_ambient(results: RunResults, label: str, ambient: FloatArray) -> FloatArray:
+    """The temperature at the cold end of a part's thermal path over the run: the ambient,
+    or the shared node *label*; one value for an operating point."""
+    if label == AMBIENT:
+        return ambient
+    series = results.node_series.get(label)
+    return series if series is not None else np.array([results.nodes[label]])
+
+
+def part_row(part: PartResult, results: RunResults, ambient: FloatArray) -> PartRow:
+    """A part's row, its power margin taken at the worst instant of the run (as ``check``
+    judges it, :func:`heatweave.ratings.worst_instant`)."""
+    plan = part.plan
+    assert plan is not None
+    local = local_ambient(results, plan.to_label, ambient)
+    power = part.power_series if part.power_series is not None else np.array([part.power])
+    worst = len(power) - 1
+    if plan.power_rating is not None:
+        worst = worst_instant(
+            plan.power_rating, power.tolist(), local.tolist(), plan.derating_knee, plan.tmax
+        )
+    row_margins = margins(
+        hottest=part.hottest,
+        power=float(power[worst]),
+        local_ambient=float(local[worst]),
+        rating=plan.power_rating,
+        tmax=plan.tmax,
+        knee=plan.derating_knee,
+    )
+    return PartRow(
+        part, plan.to_label, float(local[worst]), plan.power_rating, plan.tmax,
+        plan.derating_knee, row_margins,
+    )  # fmt: skip
+
+
+def build_report(inputs: Inputs, outcome: RunOutcome, probes: tuple[str, ...] = ()) -> RunReport:
+    """The report of one finished run of *inputs*; *probes* are deck nodes to plot."""
+    from heatweave.checks import ambient_series
+
+    results = outcome.results
+    prepared = outcome.prepared
+    ambient = ambient_series(outcome)
+    return RunReport(
+        deck=inputs.deck_path,
+        annotations=inputs.annotation_path,
+        annotations_sha256=inputs.annotation.sha256,
+        analyses=prepared.analyses or tuple(deck_analyses_of(prepared.text)),
+        backend=outcome.sim.backend,
+        results=results,
+        rows=tuple(part_row(part, results, ambient) for part in results.parts),
+        warnings=tuple(f.render() for f in prepared.findings),
+        probes=probes,
+        ambient_series=ambient if is_transient(results) else None,
+    )

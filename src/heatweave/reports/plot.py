@@ -1,0 +1,219 @@
+"""The figure of ``heatweave run --plot FILE.png``.
+
+A transient gives stacked panels over one time axis: temperatures of every part (solid) and
+shared thermal node (dashed) with the ambient (dotted grey); the resistance drift of each
+resistor in ppm; the deck node voltages asked for with ``--probe``.  Each curve is named at
+its right end, outside the data, so no legend has to be searched; a part keeps its colour in
+every panel.  An operating point gives bar charts of the same quantities instead.
+
+The figure is built on matplotlib's object interface with the Agg canvas: no window, no
+global pyplot state, so building it in tests or threads is safe.
+"""
+
+from __future__ import annotations
+
+import io
+from collections.abc import Sequence
+
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from heatweave.reports.model import RunReport
+from heatweave.results import FloatArray
+
+AMBIENT_COLOUR = "0.45"
+#: Smallest vertical distance between two end labels, as a share of the panel's height.
+LABEL_GAP = 0.075
+TIME_UNITS = ((1.0, "s"), (1e-3, "ms"), (1e-6, "us"), (1e-9, "ns"))
+
+
+def palette(names: Sequence[str], family: str = "thermal") -> dict[str, str]:
+    """One colour per curve name, stable across panels.  Thermal curves (parts, nodes) use
+    matplotlib's tab10/tab20 cycle; voltages use Dark2, so a voltage never wears a part's
+    colour."""
+    import matplotlib
+
+    name = "Dark2" if family != "thermal" else ("tab10" if len(names) <= 10 else "tab20")
+    cmap = matplotlib.colormaps[name]
+    count = getattr(cmap, "N", 8)
+    return {n: matplotlib.colors.to_hex(cmap(i % count)) for i, n in enumerate(names)}
+
+
+def node_name(label: str) -> str:
+    """How a shared thermal node is named in the figure."""
+    return f"node {label}"
+
+
+def time_scale(stop: float) -> tuple[float, str]:
+    """The factor and unit that keep the time axis numbers readable."""
+    for factor, unit in TIME_UNITS:
+        if stop >= factor:
+            return factor, unit
+    return TIME_UNITS[-1]
+
+
+def spread(values: Sequence[float], gap: float) -> list[float]:
+    """Label heights near *values* but at least *gap* apart, in the order of *values*."""
+    order = sorted(range(len(values)), key=lambda i: values[i])
+    placed = [0.0] * len(values)
+    last = -np.inf
+    for i in order:
+        placed[i] = max(values[i], last + gap)
+        last = placed[i]
+    # Shift the whole stack down when it climbed above the highest curve end.
+    if values:
+        excess = (max(placed) - max(values)) / 2
+        placed = [p - excess for p in placed]
+    return placed
+
+
+def _label_ends(axes: Axes, ends: list[tuple[str, float, str]]) -> None:
+    """Write each curve's name just right of the panel at the height where it ends."""
+    if not ends:
+        return
+    low, high = axes.get_ylim()
+    heights = spread([y for _, y, _ in ends], LABEL_GAP * (high - low))
+    for (name, _, colour), height in zip(ends, heights, strict=True):
+        axes.annotate(
+            name, xy=(1.01, height), xycoords=("axes fraction", "data"),
+            color=colour, va="center", fontsize=8, annotation_clip=False,
+        )  # fmt: skip
+
+
+def _transient(figure: Figure, report: RunReport, colours: dict[str, str]) -> None:
+    results = report.results
+    assert results.time is not None
+    factor, unit = time_scale(float(results.time[-1]))
+    t = results.time / factor
+    resistors = [row for row in report.rows if row.drift_series() is not None]
+    panels = 1 + bool(resistors) + bool(report.probes)
+    axes = figure.subplots(panels, 1, sharex=True, squeeze=False)[:, 0]
+    temp = axes[0]
+    ends: list[tuple[str, float, str]] = []
+    for row in report.rows:
+        series = row.result.temperature_series
+        assert series is not None
+        temp.plot(t, series, color=colours[row.path], lw=1.6)
+        ends.append((row.path, float(series[-1]), colours[row.path]))
+    for label, series in results.node_series.items():
+        colour = colours[node_name(label)]
+        temp.plot(t, series, color=colour, lw=1.4, ls="--")
+        ends.append((node_name(label), float(series[-1]), colour))
+    ambient: FloatArray = (
+        report.ambient_series
+        if report.ambient_series is not None
+        else np.full_like(t, results.ambient)
+    )
+    temp.plot(t, ambient, color=AMBIENT_COLOUR, lw=1.0, ls=":")
+    ends.append(("ambient", float(ambient[-1]), AMBIENT_COLOUR))
+    temp.set_ylabel("temperature [degC]")
+    temp.set_title("Temperatures (solid: parts, dashed: thermal nodes)", fontsize=9, loc="left")
+    panel = 1
+    finished = [(temp, ends)]
+    if resistors:
+        drift = axes[panel]
+        panel += 1
+        drift_ends = []
+        for row in resistors:
+            values = row.drift_series()
+            assert values is not None
+            drift.plot(t, values, color=colours[row.path], lw=1.6)
+            drift_ends.append((row.path, float(values[-1]), colours[row.path]))
+        drift.axhline(0.0, color=AMBIENT_COLOUR, lw=0.8)
+        drift.set_ylabel("resistance change [ppm]")
+        drift.set_title("Resistance drift against the deck's value", fontsize=9, loc="left")
+        finished.append((drift, drift_ends))
+    if report.probes:
+        volts = axes[panel]
+        probe_colours = palette([f"V({p})" for p in report.probes], "voltage")
+        volt_ends = []
+        for node in report.probes:
+            values = results.voltage_series[node]
+            name = f"V({node})"
+            volts.plot(t, values, color=probe_colours[name], lw=1.4)
+            volt_ends.append((name, float(values[-1]), probe_colours[name]))
+        volts.set_ylabel("voltage [V]")
+        volts.set_title("Deck node voltages", fontsize=9, loc="left")
+        finished.append((volts, volt_ends))
+    axes[-1].set_xlabel(f"time [{unit}]")
+    axes[-1].set_xlim(float(t[0]), float(t[-1]))
+    for ax, curve_ends in finished:
+        ax.grid(True, lw=0.4, alpha=0.5)
+        _label_ends(ax, curve_ends)
+
+
+def _bars(
+    axes: Axes,
+    names: list[str],
+    values: list[float],
+    colours: dict[str, str],
+    spec: str,
+    base: float = 0.0,
+) -> None:
+    """Bars from *base* (the ambient for temperatures, so a bar's length is the rise)."""
+    positions = np.arange(len(names))
+    heights = [v - base for v in values]
+    bars = axes.bar(positions, heights, bottom=base, color=[colours[n] for n in names], width=0.6)
+    axes.bar_label(bars, labels=[format(v, spec) for v in values], fontsize=8, padding=2)
+    axes.set_xticks(positions, names, fontsize=8)
+    axes.margins(y=0.15)
+    axes.grid(True, axis="y", lw=0.4, alpha=0.5)
+
+
+def _operating_point(figure: Figure, report: RunReport, colours: dict[str, str]) -> None:
+    results = report.results
+    resistors = [row for row in report.rows if row.change_ppm is not None]
+    panels = 1 + bool(resistors) + bool(report.probes)
+    axes = figure.subplots(panels, 1, squeeze=False)[:, 0]
+    names = [row.path for row in report.rows] + [node_name(n) for n in results.nodes]
+    values = [row.result.temperature for row in report.rows] + list(results.nodes.values())
+    _bars(axes[0], names, values, colours, ".2f", base=results.ambient)
+    axes[0].axhline(results.ambient, color=AMBIENT_COLOUR, lw=1.0, ls=":")
+    axes[0].annotate(
+        f"ambient {results.ambient:.1f}", xy=(1.01, results.ambient),
+        xycoords=("axes fraction", "data"), color=AMBIENT_COLOUR, va="center", fontsize=8,
+    )  # fmt: skip
+    axes[0].set_ylabel("temperature [degC]")
+    axes[0].set_title(
+        "Operating point temperatures (bars rise from the ambient)", fontsize=9, loc="left"
+    )
+    panel = 1
+    if resistors:
+        drift = [row.change_ppm or 0.0 for row in resistors]
+        _bars(axes[panel], [row.path for row in resistors], drift, colours, "+.0f")
+        axes[panel].axhline(0.0, color=AMBIENT_COLOUR, lw=0.8)
+        axes[panel].set_ylabel("resistance change [ppm]")
+        axes[panel].set_title("Resistance drift against the deck's value", fontsize=9, loc="left")
+        panel += 1
+    if report.probes:
+        probe_names = [f"V({p})" for p in report.probes]
+        _bars(
+            axes[panel], probe_names, [results.voltages[p] for p in report.probes],
+            palette(probe_names, "voltage"), ".4g",
+        )  # fmt: skip
+        axes[panel].set_ylabel("voltage [V]")
+        axes[panel].set_title("Deck node voltages", fontsize=9, loc="left")
+
+
+def build_figure(report: RunReport) -> Figure:
+    """The report's figure, not yet drawn to any file."""
+    names = [row.path for row in report.rows] + [node_name(n) for n in report.results.nodes]
+    colours = palette(names)
+    panels = 1 + any(r.result.resistance is not None for r in report.rows) + bool(report.probes)
+    figure = Figure(figsize=(8.0, 2.2 + 2.3 * panels), layout="constrained")
+    FigureCanvasAgg(figure)
+    if report.transient:
+        _transient(figure, report, colours)
+    else:
+        _operating_point(figure, report, colours)
+    figure.suptitle(f"{report.deck}: {report.results.analysis}", fontsize=10)
+    return figure
+
+
+def render_png(report: RunReport) -> bytes:
+    """The figure as PNG bytes (written by the caller, atomically)."""
+    buffer = io.BytesIO()
+    build_figure(report).savefig(buffer, format="png", dpi=120)
+    return buffer.getvalue()

@@ -1,0 +1,277 @@
+"""Reports of ``heatweave run`` against answers computed outside heatweave.
+
+The self-heated divider: steady state against scipy.optimize.brentq on the power balance
+T = Ta + Rth * V^2 R(T) / (R(T) + R2)^2, transient against scipy.integrate.solve_ivp on
+C dT/dt = P(T) - (T - Ta) / Rth with T(0) = Ta (a cold start).  Heat-only parts against
+P = V * I worked by hand.  Derating against the IEC 60115-1 curve.  Figures by their
+matplotlib objects.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import itertools
+import json
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+from matplotlib.lines import Line2D
+from matplotlib.patches import Rectangle
+from scipy.integrate import solve_ivp
+from scipy.optimize import brentq
+
+from heatweave.emitter import load_inputs
+from heatweave.ratings import derated_power, margins, worst_instant
+from heatweave.reports import RunReport, build_report, csv_report, json_report, plot
+from heatweave.runner import RunOptions, run
+
+pytestmark = pytest.mark.ngspice
+
+FIXTURES = Path(__file__).parent / "fixtures" / "run"
+
+# ngspice's convergence test (manual, .options): a node voltage is converged when it moves
+# less than RELTOL * |V| + VNTOL, defaults 1e-3 and 1 uV.  A thermal node is 1 V = 1 degC,
+# so a temperature is trusted to RELTOL * |T| + VNTOL, and a quantity derived from it to
+# RELTOL relative.  This is the simulator's own accuracy promise, not a fitted margin.
+RELTOL = 1e-3
+VNTOL = 1e-6
+
+DEFAULT = RunOptions()  # the deck's own analyses, default back end
+
+
+def report_of(deck: str, options: RunOptions = DEFAULT, probes: tuple[str, ...] = ()) -> RunReport:
+    path = str(FIXTURES / deck)
+    annotation = path.replace(".cir", ".thermal.toml")
+    inputs = load_inputs(path, annotation)
+    return build_report(inputs, run(path, annotation, options, inputs=inputs), probes)
+
+
+def json_of(deck: str, options: RunOptions = DEFAULT) -> dict[str, Any]:
+    data: dict[str, Any] = json.loads(json_report.render(report_of(deck, options)))
+    return data
+
+
+def divider_power(temp: float, v: float, r0: float, r2: float, tc1: float, tref: float) -> float:
+    """Dissipation of the upper resistor of a divider at temperature *temp* (linear TCR)."""
+    r = r0 * (1 + tc1 * (temp - tref))
+    return v * v * r / (r + r2) ** 2
+
+
+# Deck values of the fixtures: (deck, ambient override, V, R1, R2, tc1, Rth, rating, tmax, knee)
+DIVIDERS = [
+    ("divider.cir", None, 10.0, 100.0, 100.0, 0.004, 50.0, 0.5, 155.0, 70.0),
+    ("divider.cir", 60.0, 10.0, 100.0, 100.0, 0.004, 50.0, 0.5, 155.0, 70.0),
+    ("divider_hot.cir", None, 24.0, 470.0, 330.0, 3.9e-3, 120.0, 0.25, 125.0, 70.0),
+    # above the knee: the derated rating applies
+    ("divider_hot.cir", 90.0, 24.0, 470.0, 330.0, 3.9e-3, 120.0, 0.25, 125.0, 70.0),
+]
+
+
+@pytest.mark.parametrize(
+    ("deck", "ambient", "v", "r0", "r2", "tc1", "rth", "rating", "tmax", "knee"), DIVIDERS
+)
+def test_divider_steady_state_matches_brentq(
+    deck: str, ambient: float | None, v: float, r0: float, r2: float, tc1: float,
+    rth: float, rating: float, tmax: float, knee: float,
+) -> None:  # fmt: skip
+    ta = 25.0 if ambient is None else ambient
+    expected = brentq(
+        lambda t: t - ta - rth * divider_power(t, v, r0, r2, tc1, 25.0), ta, ta + 500.0,
+        xtol=1e-12,
+    )  # fmt: skip
+    r_expected = r0 * (1 + tc1 * (expected - 25.0))
+    p_expected = divider_power(expected, v, r0, r2, tc1, 25.0)
+    data = json_of(deck, RunOptions(analyses=("op",), ambient=ambient))
+    part = data["parts"]["R1"]
+    t_tol = RELTOL * abs(expected) + VNTOL
+    assert data["analysis"] == "op"
+    assert data["ambient"] == pytest.approx(ta)
+    assert part["temperature"] == pytest.approx(expected, abs=t_tol)
+    assert part["peak_temperature"] is None
+    assert part["resistance"] == pytest.approx(r_expected, rel=RELTOL)
+    assert part["nominal_resistance"] == pytest.approx(r0, rel=1e-12)
+    # ppm of R0: an error dT in temperature is 1e6 * tc1 * dT ppm
+    assert part["resistance_change_ppm"] == pytest.approx(
+        (r_expected / r0 - 1) * 1e6, abs=1e6 * tc1 * t_tol
+    )
+    assert part["power"] == pytest.approx(p_expected, rel=RELTOL)
+    out = next(value for node, value in data["voltages"].items() if node in ("out", "tap"))
+    assert out == pytest.approx(v * r2 / (r_expected + r2), rel=RELTOL)
+    # IEC 60115-1 derating worked by hand from the curve: full to the knee, linear to tmax
+    allowed = rating if ta <= knee else rating * (tmax - ta) / (tmax - knee)
+    assert part["ratings"]["allowed_power"] == pytest.approx(allowed, rel=1e-12)
+    assert part["margins"]["power"] == pytest.approx(allowed - p_expected, abs=RELTOL * p_expected)
+    assert part["margins"]["temperature"] == pytest.approx(tmax - expected, abs=t_tol)
+
+
+# Times (s) to compare at: early (steep rise), around tau = Rth * C = 0.5 s, and late.
+TRANSIENT_TIMES = [0.01, 0.05, 0.1, 0.25, 0.5, 1.0, 1.5, 2.0]
+
+
+def divider_ode(
+    v: float, r0: float, r2: float, tc1: float, rth: float, cth: float, ta: float
+) -> Any:
+    def rhs(_t: float, y: np.ndarray) -> list[float]:
+        return [(divider_power(y[0], v, r0, r2, tc1, 25.0) - (y[0] - ta) / rth) / cth]
+
+    # tight solver tolerances so the reference is far more exact than the check
+    return solve_ivp(rhs, (0.0, 2.0), [ta], method="Radau", rtol=1e-11, atol=1e-12,
+                     dense_output=True)  # fmt: skip
+
+
+def test_divider_transient_matches_solve_ivp() -> None:
+    # divider_tran.cir: .tran 1m 2 0 1m, a 1 ms max step against tau = 0.5 s
+    report = report_of("divider_tran.cir")
+    table = list(csv.reader(io.StringIO(csv_report.render(report))))
+    header, values = table[0], np.array(table[1:], dtype=float)
+    time = values[:, header.index("time [s]")]
+    temp = values[:, header.index("T(R1) [degC]")]
+    solution = divider_ode(10.0, 100.0, 100.0, 0.004, 50.0, 0.01, 25.0)
+    for when in TRANSIENT_TIMES:
+        expected = float(solution.sol(when)[0])
+        # ngspice's truncation-error control works to RELTOL; 1e-3 of the rise so far,
+        # plus VNTOL (linear interpolation between 1 ms points adds ~1e-6 K at most)
+        tol = RELTOL * (expected - 25.0) + VNTOL
+        assert float(np.interp(when, time, temp)) == pytest.approx(expected, abs=tol), when
+    data = json.loads(json_report.render(report))["parts"]["R1"]
+    final = float(solution.sol(2.0)[0])
+    assert data["temperature"] == pytest.approx(final, abs=RELTOL * (final - 25.0))
+    # a cold start rises monotonically, so the peak is the final value
+    assert data["peak_temperature"] == pytest.approx(final, abs=RELTOL * (final - 25.0))
+
+
+# (part, rth K/W) of heat_only.thermal.toml; ambient 30 degC.  D1 carries I1 = 10 mA; X1 is
+# a 100 ohm cell across 5 V, P = V^2 / R = 0.25 W (worked by hand).
+def test_heat_only_parts_match_v_times_i() -> None:
+    data = json_of("heat_only.cir")
+    diode, cell = data["parts"]["D1"], data["parts"]["X1"]
+    p_diode = data["voltages"]["a"] * 10e-3
+    assert diode["model"] is None and diode["resistance"] is None
+    assert diode["power"] == pytest.approx(p_diode, rel=RELTOL)
+    assert diode["temperature"] == pytest.approx(30.0 + 100.0 * p_diode, abs=RELTOL * 31 + VNTOL)
+    assert cell["power"] == pytest.approx(5.0**2 / 100.0, rel=RELTOL)
+    assert cell["temperature"] == pytest.approx(30.0 + 40.0 * 0.25, abs=RELTOL * 40 + VNTOL)
+
+
+# IEC 60115-1 derating curve: rated power to the knee (70 degC), linear to zero at the
+# upper category temperature.  (rating W, ambient degC, knee, tmax, allowed W)
+DERATING = [
+    (0.25, 25.0, 70.0, 155.0, 0.25),
+    (0.25, 70.0, 70.0, 155.0, 0.25),
+    (0.25, 112.5, 70.0, 155.0, 0.125),  # half way down the slope
+    (0.25, 155.0, 70.0, 155.0, 0.0),
+    (0.25, 170.0, 70.0, 155.0, 0.0),
+    (1.0, 85.0, 70.0, 125.0, 40.0 / 55.0),
+    (2.0, 150.0, 70.0, None, 2.0),  # no tmax: no curve to follow
+]
+
+
+@pytest.mark.parametrize(("rating", "ambient", "knee", "tmax", "allowed"), DERATING)
+def test_derated_power_follows_iec_60115_1(
+    rating: float, ambient: float, knee: float, tmax: float | None, allowed: float
+) -> None:
+    assert derated_power(rating, ambient, knee, tmax) == pytest.approx(allowed, rel=1e-12)
+
+
+def test_margins_negative_when_rating_exceeded() -> None:
+    found = margins(hottest=160.0, power=0.3, local_ambient=25.0, rating=0.25, tmax=155.0)
+    assert found.temperature == pytest.approx(-5.0)
+    assert found.power == pytest.approx(-0.05)
+    assert found.load == pytest.approx(1.2)
+    assert (
+        margins(hottest=50.0, power=1.0, local_ambient=25.0, rating=None, tmax=None).power is None
+    )
+
+
+def lines_per_axes(report: RunReport) -> list[int]:
+    figure = plot.build_figure(report)
+    return [sum(isinstance(a, Line2D) for a in ax.get_children()) for ax in figure.axes]
+
+
+def test_transient_figure_has_one_curve_per_quantity() -> None:
+    # board.cir: parts RA, RB (resistors), DK (heat only), node patch, probes mid and k
+    report = report_of("board.cir", probes=("mid", "k"))
+    # temperatures: 3 parts + 1 node + ambient; drift: 2 resistors + zero line; voltages: 2
+    assert lines_per_axes(report) == [5, 3, 2]
+    figure = plot.build_figure(report)
+    assert figure.axes[-1].get_xlabel() == "time [s]"
+    assert [ax.get_ylabel() for ax in figure.axes] == [
+        "temperature [degC]", "resistance change [ppm]", "voltage [V]",
+    ]  # fmt: skip
+    # one colour per part in every panel
+    temp_colour = {t.get_text(): t.get_color() for t in figure.axes[0].texts}
+    drift_colour = {t.get_text(): t.get_color() for t in figure.axes[1].texts}
+    assert temp_colour["RA"] == drift_colour["RA"] and temp_colour["RB"] == drift_colour["RB"]
+    assert len(set(temp_colour.values())) == len(temp_colour)
+
+
+def test_operating_point_figure_is_bars() -> None:
+    report = report_of("board.cir", RunOptions(analyses=("op",)))
+    figure = plot.build_figure(report)
+    bars = [sum(isinstance(p, Rectangle) for p in ax.containers[0]) for ax in figure.axes]
+    assert bars == [4, 2]  # 3 parts + node patch; 2 resistors
+
+
+@pytest.mark.parametrize(
+    ("values", "gap"),
+    [([1.0, 1.0, 1.0], 0.5), ([3.0, 0.0, 2.9, 3.05], 0.2), ([5.0], 1.0), ([0.0, 10.0], 1.0)],
+)
+def test_end_labels_never_overlap(values: list[float], gap: float) -> None:
+    placed = plot.spread(values, gap)
+    ordered = sorted(placed)
+    assert all(b - a >= gap - 1e-12 for a, b in itertools.pairwise(ordered))
+    # labels keep the order of the curve ends they name
+    assert np.argsort(placed, kind="stable").tolist() == np.argsort(values, kind="stable").tolist()
+
+
+def test_csv_operating_point_is_one_row_without_time() -> None:
+    report = report_of("board.cir", RunOptions(analyses=("op",)))
+    rows = list(csv.reader(io.StringIO(csv_report.render(report))))
+    assert len(rows) == 2
+    assert rows[0] == [
+        "T(RA) [degC]", "R(RA) [ohm]", "P(RA) [W]",
+        "T(RB) [degC]", "R(RB) [ohm]", "P(RB) [W]",
+        "T(DK) [degC]", "P(DK) [W]",
+        "T(@patch) [degC]",
+        *[f"V({node}) [V]" for node in report.results.voltages],
+    ]  # fmt: skip
+    assert float(rows[1][0]) == report.results.part("RA").temperature
+
+
+# (power W over time, local ambient degC over time, index that decides the margin), for a
+# 0.25 W part with the IEC 60115-1 curve 70 -> 155 degC; allowed at 120 degC is
+# 0.25 * 35 / 85 = 0.103 W, worked by hand.
+WORST = [
+    ([0.1, 0.2, 0.15], [25.0, 25.0, 120.0], 2),  # the derated instant binds
+    ([0.1, 0.2, 0.05], [25.0, 25.0, 120.0], 1),  # the power peak binds
+    ([0.3], [25.0], 0),  # an operating point
+]
+
+
+@pytest.mark.parametrize(("power", "local", "index"), WORST)
+def test_worst_instant(power: list[float], local: list[float], index: int) -> None:
+    assert worst_instant(0.25, power, local, 70.0, 155.0) == index
+
+
+def test_table_margins_agree_with_check() -> None:
+    from heatweave.checks import ambient_series, part_limits
+
+    path = str(FIXTURES / "board.cir")
+    annotation = path.replace(".cir", ".thermal.toml")
+    inputs = load_inputs(path, annotation)
+    outcome = run(path, annotation, inputs=inputs)
+    report = build_report(inputs, outcome)
+    judged = {
+        (r.subject, r.limit): r for r in part_limits(outcome.results, ambient_series(outcome))
+    }
+    for row in report.rows:
+        if row.power_rating is not None:
+            limit = judged[(row.path, "power_rating")]
+            assert row.margins.allowed == pytest.approx(limit.bound, rel=1e-12)
+            assert row.margins.power == pytest.approx(limit.bound - limit.value, rel=1e-12)
+        if row.tmax is not None:
+            limit = judged[(row.path, "tmax")]
+            assert row.margins.temperature == pytest.approx(limit.bound - limit.value, rel=1e-12)

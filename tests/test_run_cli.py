@@ -1,0 +1,204 @@
+"""``heatweave run`` as a user meets it: options, outputs, exit codes, safety.
+
+The numbers themselves are checked against scipy in test_reports.py; here the command line
+around them: both back ends agree, ``.control`` blocks do not run unless allowed, every
+output lands whole and only where asked, bad options fail with exit status 2.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import itertools
+import json
+import shutil
+from pathlib import Path
+from typing import Any
+
+import pytest
+from click.testing import CliRunner, Result
+
+from heatweave.cli.run_cmd import progress_printer, run
+from heatweave.errors import EXIT_BAD_INPUT, EXIT_OK
+from heatweave.reports import CAUTION_TEXT
+
+pytestmark = pytest.mark.ngspice
+
+FIXTURES = Path(__file__).parent / "fixtures" / "run"
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
+
+
+def invoke(*args: str) -> Result:
+    return CliRunner().invoke(run, list(args), catch_exceptions=False)
+
+
+def numbers(data: Any, prefix: str = "") -> dict[str, float]:
+    """Every number in a JSON document by its key path."""
+    found: dict[str, float] = {}
+    if isinstance(data, dict):
+        for key, value in data.items():
+            found.update(numbers(value, f"{prefix}.{key}"))
+    elif isinstance(data, float | int) and not isinstance(data, bool):
+        found[prefix] = float(data)
+    return found
+
+
+def copy_fixture(tmp_path: Path, deck: str) -> Path:
+    for name in (deck, deck.replace(".cir", ".thermal.toml")):
+        shutil.copy(FIXTURES / name, tmp_path / name)
+    return tmp_path / deck
+
+
+@pytest.mark.parametrize(
+    "args",
+    [("board.cir",), ("board.cir", "--op"), ("divider_tran.cir",), ("heat_only.cir",)],
+)
+def test_both_back_ends_give_the_same_numbers(args: tuple[str, ...]) -> None:
+    deck, *rest = args
+    reports = {}
+    for backend in ("shared", "batch"):
+        result = invoke(str(FIXTURES / deck), *rest, "--backend", backend, "-q", "--json", "-")
+        assert result.exit_code == EXIT_OK, result.stderr
+        data = json.loads(result.stdout)
+        assert data["backend"] == backend
+        reports[backend] = numbers(data)
+    assert reports["shared"].keys() == reports["batch"].keys()
+    for key, value in reports["shared"].items():
+        # one ngspice, one deck, one command script: only float formatting may differ
+        assert reports["batch"][key] == pytest.approx(value, rel=1e-9, abs=1e-12), key
+
+
+def control_deck(tmp_path: Path) -> tuple[Path, Path]:
+    marker = tmp_path / "left-behind.txt"
+    text = (FIXTURES / "control.cir.in").read_text().replace("@MARKER@", str(marker))
+    deck = tmp_path / "control.cir"
+    deck.write_text(text)
+    shutil.copy(FIXTURES / "control.thermal.toml", tmp_path / "control.thermal.toml")
+    return deck, marker
+
+
+@pytest.mark.parametrize("backend", ["shared", "batch"])
+def test_control_block_does_not_run_unless_allowed(tmp_path: Path, backend: str) -> None:
+    deck, marker = control_deck(tmp_path)
+    before = deck.read_bytes()
+    result = invoke(str(deck), "--backend", backend, "-q")
+    assert result.exit_code == EXIT_OK, result.stderr
+    assert not marker.exists()
+    assert "warning: dropped 1 .control block(s)" in result.stderr
+    assert "--allow-control" in result.stderr
+    assert deck.read_bytes() == before
+    # the same deck with the block allowed does create the file: the check above can fail
+    allowed = invoke(str(deck), "--backend", backend, "-q", "--allow-control")
+    assert allowed.exit_code == EXIT_OK, allowed.stderr
+    assert marker.exists()
+
+
+def test_outputs_are_whole_and_only_where_asked(tmp_path: Path) -> None:
+    deck = copy_fixture(tmp_path, "board.cir")
+    before = deck.read_bytes()
+    out = tmp_path / "out"
+    out.mkdir()
+    result = invoke(
+        str(deck), "-q", "--json", str(out / "r.json"), "--csv", str(out / "w.csv"),
+        "--plot", str(out / "f.png"), "--probe", "mid",
+    )  # fmt: skip
+    assert result.exit_code == EXIT_OK, result.stderr
+    assert result.stdout == ""
+    assert sorted(p.name for p in out.iterdir()) == ["f.png", "r.json", "w.csv"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == [
+        "board.cir", "board.thermal.toml", "out",
+    ]  # fmt: skip
+    assert deck.read_bytes() == before
+    assert (out / "f.png").read_bytes().startswith(PNG_SIGNATURE)
+    data = json.loads((out / "r.json").read_text())
+    assert list(data) == [
+        "heatweave_version", "deck", "annotations", "analysis", "analysis_commands",
+        "backend", "ambient", "parts", "nodes", "voltages", "warnings", "cautions",
+    ]  # fmt: skip
+    assert list(data["parts"]) == ["RA", "RB", "DK"]
+    assert data["cautions"] == CAUTION_TEXT
+    rows = list(csv.reader(io.StringIO((out / "w.csv").read_text())))
+    header = rows[0]
+    assert header[0] == "time [s]"
+    assert "T(@patch) [degC]" in header and "V(mid) [V]" in header
+    times = [float(r[0]) for r in rows[1:]]
+    assert times[0] == 0.0 and times[-1] == pytest.approx(4.0)  # board.cir: .tran 2m 4
+    assert all(b > a for a, b in itertools.pairwise(times))
+    assert all(len(r) == len(header) for r in rows)
+    # the CSV's last row is the JSON's final state
+    assert float(rows[-1][header.index("T(RA) [degC]")]) == data["parts"]["RA"]["temperature"]
+
+
+def test_json_on_stdout_moves_the_table_to_stderr() -> None:
+    result = invoke(str(FIXTURES / "divider.cir"), "--json", "-")
+    assert result.exit_code == EXIT_OK
+    assert json.loads(result.stdout)["parts"]["R1"]["model"] == "linear"
+    assert "T final" in result.stderr and "caution:" in result.stderr
+
+
+def test_table_names_parts_units_and_nodes() -> None:
+    result = invoke(str(FIXTURES / "board.cir"), "--op")
+    assert result.exit_code == EXIT_OK
+    lines = result.stdout.splitlines()
+    assert any(line.split()[:2] == ["RB", "quadratic"] for line in lines if line)
+    assert any(line.split()[:3] == ["DK", "heat", "only"] for line in lines if line)
+    units = next(line for line in lines if "degC" in line and "ppm" in line)
+    assert units.split() == ["degC", "%", "ppm", "W", "W", "W", "K"]
+    assert any(line.startswith("patch ") for line in lines)
+    # RB dissipates above its 0.5 W rating (see test_reports for the numbers)
+    assert any(line.startswith("over rating: RB") for line in lines)
+    assert "\x1b[" not in result.stdout  # no colour codes off a terminal
+    assert "simulated" not in result.stderr  # no progress off a terminal
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (("--op", "--tran", "1m", "1"), "--op and --tran"),
+        (("--tran", "1", "1m"), "is not below the stop time"),
+        (("--tran", "fast", "1"), "is not a number"),
+        (("--json", "-", "--csv", "-"), "both write to stdout"),
+        (("--probe", "nowhere"), "the deck has no node 'nowhere'"),
+        (("--backend", "remote"), "Invalid value for '--backend'"),
+    ],
+)
+def test_bad_options_exit_2(args: tuple[str, ...], message: str) -> None:
+    result = invoke(str(FIXTURES / "divider.cir"), *args)
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert message in result.stderr
+    assert "Traceback" not in result.stderr
+
+
+def test_missing_annotation_file_is_bad_input(tmp_path: Path) -> None:
+    deck = tmp_path / "alone.cir"
+    shutil.copy(FIXTURES / "divider.cir", deck)
+    result = invoke(str(deck))
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert "alone.thermal.toml" in result.stderr
+
+
+def test_output_may_not_be_the_deck(tmp_path: Path) -> None:
+    deck = copy_fixture(tmp_path, "divider.cir")
+    before = deck.read_bytes()
+    result = invoke(str(deck), "--csv", str(deck))
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert deck.read_bytes() == before
+
+
+def test_tran_option_replaces_the_decks_analysis() -> None:
+    result = invoke(str(FIXTURES / "divider.cir"), "--tran", "10m", "0.5", "-q", "--json", "-")
+    data = json.loads(result.stdout)
+    assert data["analysis"] == "tran"
+    assert data["analysis_commands"] == ["tran 0.01 0.5"]
+    assert data["parts"]["R1"]["peak_temperature"] is not None
+
+
+def test_progress_shows_percent(capsys: pytest.CaptureFixture[str]) -> None:
+    show = progress_printer(True)
+    assert show is not None
+    for fraction in (0.0, 0.5, 0.5, 1.0):
+        show(fraction)
+    err = capsys.readouterr().err
+    assert err.count("simulated  50%") == 1
+    assert "simulated 100%" in err
+    assert progress_printer(False) is None
