@@ -186,7 +186,7 @@ def _power_limit(part: PartResult, results: RunResults, ambient: FloatArray) -> 
             [derated_power(rating, float(t), plan.derating_knee, tmax) for t in local]
         )
     worst = int(np.argmin(allowed - power))
-    detail = f"rating {_num(rating)} W derated at {_num(float(local[worst]))} degC ({where})"
+    detail = f"rating {_num(rating)} W derated for {_num(float(local[worst]))} degC at {where}"
     if results.time is not None:
         detail += f" at t = {format_number(float(results.time[worst]))} s"
     return LimitResult(

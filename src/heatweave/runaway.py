@@ -60,6 +60,9 @@ FINE_STEPS = 100
 JUMP_RATIO = 4.0
 JUMP_FLOOR = 0.25  # K: smaller steps are never taken for a jump
 FD_STEP = 0.1  # K
+# Near a fold the power balance is flat, so ngspice's default tolerances (reltol 1e-3)
+# accept points slightly past it; the diagnosis decks solve tighter.
+TIGHT = ".options reltol=1e-6 vntol=1e-9 abstol=1e-15"
 _POWER_LINE = re.compile(r"^(Bhw_p_\S+\s+0\s+\S+\s+I\s*=\s*)(.+)$", re.IGNORECASE | re.MULTILINE)
 _END_LINE = re.compile(r"^\.end\s*$", re.IGNORECASE | re.MULTILINE)
 LINEAR_LETTERS = frozenset("RCLKVI")
@@ -111,7 +114,7 @@ class RunawayError(ThermalRunawayError):
 def driven_text(text: str) -> str:
     """The emitted deck with every injected dissipation scaled by ``V(hw_drive)``."""
     scaled = _POWER_LINE.sub(lambda m: f"{m[1]}V(hw_drive)*({m[2].rstrip()})", text)
-    return add_cards(scaled, ["Vhw_drive hw_drive 0 DC 0", ".global hw_drive"])
+    return add_cards(scaled, ["Vhw_drive hw_drive 0 DC 0", ".global hw_drive", TIGHT])
 
 
 def add_cards(text: str, cards: list[str]) -> str:

@@ -1,0 +1,208 @@
+"""``heatweave check``: limits against independent solutions of the power balance.
+
+The divider fixture (tests/fixtures/check/divider.cir) has a linear-TCR upper leg, so its
+electrothermal steady state is the root of one scalar equation, solved here with
+scipy.optimize.brentq (a general-purpose reference solver), independently of ngspice.
+"""
+
+from __future__ import annotations
+
+import re
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+from scipy.optimize import brentq
+
+from heatweave.cli import main
+from heatweave.ratings import derated_power
+
+FIXTURES = Path(__file__).parent / "fixtures" / "check"
+DECK = FIXTURES / "divider.cir"
+
+# The fixture's values (divider.cir / divider.thermal.toml / board.thermal.toml).
+SUPPLY, R_TOP, R_BOT, TC1, RTH, AMBIENT = 12.0, 120.0, 100.0, 0.003, 60.0, 25.0
+RATING, KNEE, TMAX, RTH_BOARD = 0.5, 70.0, 155.0, 250.0
+
+
+def r_top(t_c: float) -> float:
+    """Linear TCR: R = R0 (1 + tc1 (T - 25)) (the usual first-order TCR definition)."""
+    return R_TOP * (1.0 + TC1 * (t_c - AMBIENT))
+
+
+def power(t_c: float) -> float:
+    """Dissipation of the upper leg at temperature *t_c* (Ohm's law, series divider)."""
+    current = SUPPLY / (r_top(t_c) + R_BOT)
+    return current * current * r_top(t_c)
+
+
+def steady(rth_total: float) -> float:
+    """The upper leg's temperature: T = Ta + Rth P(T), by brentq."""
+    return float(brentq(lambda t: t - AMBIENT - rth_total * power(t), AMBIENT, 400.0))
+
+
+def v_out(t_c: float) -> float:
+    return SUPPLY * R_BOT / (r_top(t_c) + R_BOT)
+
+
+@pytest.mark.parametrize(
+    ("t_local", "expected"),
+    [
+        # IEC 60115-1 derating: full rated power up to the knee (rated ambient temperature),
+        # then linear to zero at the upper category temperature.  70/155 degC: common practice.
+        (25.0, 0.5),
+        (70.0, 0.5),
+        (112.5, 0.25),  # half way down the slope: half the rating
+        (155.0, 0.0),
+        (170.0, 0.0),
+    ],
+)
+def test_derating_curve(t_local: float, expected: float) -> None:
+    assert derated_power(RATING, t_local, KNEE, TMAX) == pytest.approx(expected, abs=1e-12)
+
+
+def run_check(tmp_path: Path, annotation: str, *args: str) -> tuple[int, str]:
+    path = tmp_path / "divider.thermal.toml"
+    path.write_text(annotation)
+    result = CliRunner().invoke(main, ["check", str(DECK), "-a", str(path), *args])
+    assert "Traceback" not in result.output
+    return result.exit_code, result.output
+
+
+def base_annotation(name: str = "divider.thermal.toml") -> str:
+    return (FIXTURES / name).read_text()
+
+
+def value_of(output: str, subject: str, limit: str) -> float:
+    """The value printed on the line of one limit."""
+    match = re.search(rf"{re.escape(subject)} {limit}: ([-+0-9.e]+)", output)
+    assert match, output
+    return float(match[1])
+
+
+# brentq steady state of the part on ambient (Rth 60 K/W).
+T_HOT = steady(RTH)
+V_HOT = v_out(T_HOT)
+DRIFT_PPM = abs(V_HOT / v_out(AMBIENT) - 1.0) * 1e6
+
+
+@pytest.mark.parametrize(
+    ("table", "subject", "limit", "expected", "passes"),
+    [
+        (f"tmax = {T_HOT + 1:.6f}", "RTOP", "tmax", T_HOT, True),
+        (f"tmax = {T_HOT - 1:.6f}", "RTOP", "tmax", T_HOT, False),
+        (
+            f'[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * 1.01:.6f}',
+            "V(out)", "max_drift_ppm", DRIFT_PPM, True,
+        ),
+        (
+            f'[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * 0.99:.6f}',
+            "V(out)", "max_drift_ppm", DRIFT_PPM, False,
+        ),
+        (f'[limit."V(out)"]\nmin = {V_HOT - 0.01:.6f}', "V(out)", "min", V_HOT, True),
+        (f'[limit."V(out)"]\nmax = {V_HOT - 0.01:.6f}', "V(out)", "max", V_HOT, False),
+        (
+            f'[limit."V(in,out)"]\nmax = {SUPPLY - v_out(T_HOT) + 0.01:.6f}',
+            "V(in,out)", "max", SUPPLY - v_out(T_HOT), True,
+        ),
+    ],
+)  # fmt: skip
+def test_limits_against_brentq(
+    tmp_path: Path, table: str, subject: str, limit: str, expected: float, passes: bool
+) -> None:
+    text = base_annotation()
+    if table.startswith("tmax"):
+        text = text.replace("tmax = 155.0", table).replace("power_rating = 0.5\n", "")
+    else:
+        text += "\n" + table + "\n"
+    code, output = run_check(tmp_path, text, "--op")
+    assert value_of(output, subject, limit) == pytest.approx(expected, rel=2e-4)
+    assert code == (0 if passes else 1), output
+    line = next(x for x in output.splitlines() if f"{subject} {limit}:" in x)
+    assert line.startswith("ok" if passes else "FAIL")
+    assert ("margin" if passes else "over by") in line
+
+
+def test_rating_derated_at_the_shared_node(tmp_path: Path) -> None:
+    """On a warm board the rating is derated at the board's temperature, not ambient."""
+    t_hot = steady(RTH + RTH_BOARD)
+    p_hot = power(t_hot)
+    t_board = AMBIENT + RTH_BOARD * p_hot
+    allowed = derated_power(RATING, t_board, KNEE, TMAX)
+    assert p_hot > allowed  # the fixture is meant to fail this limit
+    code, output = run_check(tmp_path, base_annotation("board.thermal.toml"), "--op")
+    assert code == 1
+    line = next(x for x in output.splitlines() if "RTOP power_rating:" in x)
+    assert value_of(output, "RTOP", "power_rating") == pytest.approx(p_hot, rel=2e-4)
+    printed = re.search(r"at most ([0-9.e+-]+) W", line)
+    assert printed and float(printed[1]) == pytest.approx(allowed, rel=2e-4)
+    assert 'node "board"' in line
+    assert value_of(output, "RTOP", "tmax") == pytest.approx(t_hot, rel=2e-4)
+    assert "2 limits checked, 1 violated" in output  # tmax holds: T_hot < 155 degC
+
+
+def test_transient_drift_is_worst_over_time(tmp_path: Path) -> None:
+    """Heating from cold only raises the upper leg's resistance, so the worst drift is at
+    the end; after 10 thermal time constants (tau = Rth Cth = 1.2 s) it is the steady one."""
+    text = base_annotation() + f'\n[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * 1.01:.6f}\n'
+    code, output = run_check(tmp_path, text, "--tran", "10m", "12")
+    assert code == 0, output
+    assert value_of(output, "V(out)", "max_drift_ppm") == pytest.approx(DRIFT_PPM, rel=1e-3)
+    assert "at t = " in output
+
+
+@pytest.mark.parametrize(
+    ("fixture", "words"),
+    [
+        ("misspelt.thermal.toml", ['names node "otu"', 'did you mean "V(out)"']),
+        ("current.thermal.toml", ['"I(V1)" is not a node voltage']),
+        ("broken.thermal.toml", ["rth must be a positive number"]),
+    ],
+)
+def test_unusable_limits_exit_2(fixture: str, words: list[str]) -> None:
+    path = FIXTURES / fixture
+    result = CliRunner().invoke(main, ["check", str(DECK), "-a", str(path)])
+    assert result.exit_code == 2
+    assert "Traceback" not in result.output
+    assert re.search(rf"{re.escape(str(path))}:\d+:\d+: error:", result.output)
+    for word in words:
+        assert word in result.output
+
+
+def test_limit_location_is_the_table() -> None:
+    path = FIXTURES / "misspelt.thermal.toml"
+    result = CliRunner().invoke(main, ["check", str(DECK), "-a", str(path)])
+    line = next(n for n, x in enumerate(path.read_text().splitlines(), 1) if "V(otu)" in x)
+    assert f"{path}:{line}:" in result.output
+
+
+def test_junit_report(tmp_path: Path) -> None:
+    """Element and attribute names as the JUnit XML report format defines them (the Apache
+    Ant JUnit schema that CI servers read: testsuites > testsuite > testcase > failure;
+    from memory, no schema validator is installed here)."""
+    text = base_annotation() + f'\n[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * 0.5:.6f}\n'
+    report = tmp_path / "report.xml"
+    code, _output = run_check(tmp_path, text, "--op", "--junit", str(report))
+    assert code == 1
+    root = ET.parse(report).getroot()
+    assert root.tag == "testsuites"
+    suites = root.findall("testsuite")
+    assert len(suites) == 1
+    suite = suites[0]
+    for attribute in ("name", "tests", "failures", "errors", "skipped", "time", "timestamp",
+                      "hostname", "id", "package"):  # fmt: skip
+        assert attribute in suite.attrib
+    cases = suite.findall("testcase")
+    assert [c.get("name") for c in cases] == [
+        "RTOP tmax", "RTOP power_rating", "V(out) max_drift_ppm"
+    ]  # fmt: skip
+    for case in cases:
+        assert case.get("classname") and float(case.get("time", "x")) >= 0
+    failed = [c for c in cases if c.find("failure") is not None]
+    assert [c.get("name") for c in failed] == ["V(out) max_drift_ppm"]
+    failure = failed[0].find("failure")
+    assert failure is not None and "max_drift_ppm" in failure.get("message", "")
+    assert suite.get("tests") == root.get("tests") == "3"
+    assert suite.get("failures") == root.get("failures") == "1"
+    assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d", suite.get("timestamp", ""))

@@ -1,0 +1,80 @@
+"""Every way a run can fail, through ``heatweave check`` and through ``runner.run``: a clear
+message, its own exit status (errors.py), and never a traceback."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from heatweave import runner
+from heatweave.cli import main
+from heatweave.errors import (
+    EXIT_BAD_INPUT,
+    EXIT_LIBNGSPICE_MISSING,
+    EXIT_NGSPICE_MISSING,
+    EXIT_SIMULATION_FAILED,
+    EXIT_THERMAL_RUNAWAY,
+    EXIT_TIMESTEP_TOO_SMALL,
+    HeatweaveError,
+)
+
+FIXTURES = Path(__file__).parent / "fixtures" / "check"
+
+# (deck, annotation, backend, environment, exit status, words the message must hold)
+CASES = [
+    pytest.param("divider.cir", "divider.thermal.toml", "batch", {"PATH": "EMPTY"},
+                 EXIT_NGSPICE_MISSING, ["ngspice program", "not found"], id="ngspice-missing"),
+    pytest.param("divider.cir", "divider.thermal.toml", "shared",
+                 {"HEATWEAVE_LIBNGSPICE": "/nonexistent/libngspice.so"},
+                 EXIT_LIBNGSPICE_MISSING, ["libngspice", "/nonexistent"], id="library-missing"),
+    # ngspice 39: a node whose load jumps past its feed current has no DC solution.
+    pytest.param("noconv.cir", "noconv.thermal.toml", "auto", {}, EXIT_SIMULATION_FAILED,
+                 ["did not converge", "doAnalyses: OP"], id="no-convergence"),
+    # ngspice 39: a capacitor shorted by a switch it controls stalls the transient.
+    pytest.param("timestep.cir", "timestep.thermal.toml", "auto", {}, EXIT_TIMESTEP_TOO_SMALL,
+                 ["timestep too small", "t = 1.23"], id="timestep-too-small"),
+    pytest.param("divider.cir", "broken.thermal.toml", "auto", {}, EXIT_BAD_INPUT,
+                 ["broken.thermal.toml:5:7: error:", "rth must be a positive number"],
+                 id="bad-input"),
+    # 10.13 V: the fold of the Beta equation, closed form 10.1298 V (see test_runaway.py).
+    pytest.param("ntc_supply.cir", "ntc_supply.thermal.toml", "auto", {}, EXIT_THERMAL_RUNAWAY,
+                 ["RT runs away thermally", "loop gain", "V1 = 10.13 V"], id="runaway"),
+]  # fmt: skip
+
+
+def environment(monkeypatch: pytest.MonkeyPatch, tmp_path: Path, env: dict[str, str]) -> None:
+    for key, value in env.items():
+        monkeypatch.setenv(key, str(tmp_path) if value == "EMPTY" else value)
+
+
+@pytest.mark.parametrize(("deck", "note", "backend", "env", "status", "words"), CASES)
+def test_check_command(
+    monkeypatch: pytest.MonkeyPatch, tmp_path: Path, deck: str, note: str, backend: str,
+    env: dict[str, str], status: int, words: list[str],
+) -> None:  # fmt: skip
+    environment(monkeypatch, tmp_path, env)
+    result = CliRunner().invoke(
+        main, ["check", str(FIXTURES / deck), "-a", str(FIXTURES / note), "--backend", backend]
+    )
+    assert isinstance(result.exception, SystemExit)
+    assert result.exit_code == status, result.output
+    assert "Traceback" not in result.output
+    for word in words:
+        assert word in result.output
+    assert "hint:" in result.output
+
+
+@pytest.mark.parametrize(("deck", "note", "backend", "env", "status", "words"), CASES)
+def test_run_machinery(
+    monkeypatch: pytest.MonkeyPatch, tmp_path: Path, deck: str, note: str, backend: str,
+    env: dict[str, str], status: int, words: list[str],
+) -> None:  # fmt: skip
+    environment(monkeypatch, tmp_path, env)
+    with pytest.raises(HeatweaveError) as caught:
+        runner.run(str(FIXTURES / deck), str(FIXTURES / note), runner.RunOptions(backend=backend))
+    assert caught.value.exit_code == status
+    rendered = caught.value.render()
+    for word in words:
+        assert word in rendered
