@@ -19,6 +19,7 @@ COMMANDS: dict[str, str] = {
     "emit": "heatweave.cli.emit_cmd:emit",
     "lint": "heatweave.cli.lint_cmd:lint",
     "network": "heatweave.cli.network_cmd:network",
+    "run": "heatweave.cli.run_cmd:run",
     "schema": "heatweave.cli.schema_cmd:schema",
     "settle": "heatweave.cli.settle_cmd:settle",
 }
