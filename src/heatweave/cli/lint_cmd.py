@@ -1,0 +1,40 @@
+"""``heatweave lint``: parse every card and check structure and annotations."""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from heatweave.cli.common import guarded, style_severity
+from heatweave.errors import EXIT_CHECK_FAILED
+
+
+@click.command()
+@click.argument("decks", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option(
+    "-a",
+    "--annotations",
+    type=click.Path(dir_okay=False, exists=True),
+    help="Annotation file to validate against the deck (default: DECK.thermal.toml if present).",
+)
+@click.option("--no-warnings", is_flag=True, help="Print errors only.")
+@guarded
+def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool) -> None:
+    """Check DECKS: every card against the grammar, structure, and the annotation file.
+
+    Prints one finding a line as FILE:LINE:COL: error|warning: message, and exits with
+    status 1 when there is any error.
+    """
+    from heatweave.lint import lint_file
+
+    errors = 0
+    for deck in decks:
+        for finding in lint_file(deck, annotations if len(decks) == 1 else None):
+            if finding.severity == "error":
+                errors += 1
+            elif no_warnings:
+                continue
+            click.echo(style_severity(finding.render(), finding.severity))
+    if errors:
+        sys.exit(EXIT_CHECK_FAILED)

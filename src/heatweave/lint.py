@@ -1,0 +1,178 @@
+"""``lint``: the full grammar on every card, structural checks, and the annotation file.
+
+Findings are :class:`~heatweave.errors.Finding` objects, one a line when printed
+(``FILE:LINE:COL: error|warning: message``).  Errors are what ngspice would reject or what
+would make heatweave's output wrong; warnings are what is legal but likely a slip.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+
+from heatweave.deck import Block, Card, ControlBlock, Deck, Node
+from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location
+from heatweave.grammar import CardSyntaxError, parse_card
+from heatweave.hierarchy import DeckIndex, Project, Scope, load_project, subckt_ports, x_card_parts
+from heatweave.syntax import CardSyntax, ElementSyntax
+
+
+def syntax_of(card: Card) -> CardSyntax:
+    """The card's typed syntax; a :class:`DeckSyntaxError` at the right place if it has none."""
+    logical = card.logical().text
+    try:
+        return parse_card(logical)
+    except CardSyntaxError as err:
+        raise DeckSyntaxError(err.message, card.location(err.offset), err.hint) from None
+
+
+def _where(node: Card | ControlBlock) -> Location | None:
+    if isinstance(node, Card):
+        return node.location()
+    return node.source.location(node.offset) if node.source else None
+
+
+def _structure(body: Iterable[Node], top: bool) -> Iterator[Finding]:
+    """Unclosed blocks, stray closers, orphan continuation lines."""
+    for node in body:
+        if isinstance(node, ControlBlock) and not node.closed:
+            yield Finding(
+                "error", ".control without .endc", _where(node), "close the block with .endc"
+            )
+        elif isinstance(node, Block):
+            if node.end is None:
+                yield Finding(
+                    "error",
+                    f".{node.kind} {node.label} is never closed",
+                    node.header.location(),
+                    "add .ends" if node.kind == "subckt" else "add .endl",
+                )
+            yield from _structure(node.body, top=False)
+        elif isinstance(node, Card):
+            name = node.name
+            if name in (".ends", ".endl"):
+                opener = ".subckt" if name == ".ends" else ".lib"
+                yield Finding(
+                    "error", f"{name} without {opener}", node.location(),
+                    f"remove it, or add the {opener} line it should close",
+                )  # fmt: skip
+            elif node.head.startswith("+"):
+                yield Finding(
+                    "error",
+                    "continuation line with no card to continue",
+                    node.location(),
+                    "a '+' line continues the card above it; the title line cannot continue",
+                )
+
+
+def _parse_all(decks: Iterable[Deck]) -> Iterator[Finding]:
+    for deck in decks:
+        for card in deck.cards():
+            if card.head.startswith("+"):
+                continue  # reported by the structure check
+            try:
+                syntax_of(card)
+            except DeckSyntaxError as err:
+                yield Finding("error", err.message, err.location, err.hint)
+
+
+def _scopes(scope: Scope) -> Iterator[tuple[Scope, Block | None]]:
+    yield scope, None
+    for key, inner in scope.scopes.items():
+        for found, block in _scopes(inner):
+            yield found, block if block is not None else scope.subckts[key]
+
+
+def _connections(index: DeckIndex, scope: Scope, block: Block | None) -> Iterator[Finding]:
+    """Duplicate names, unknown subcircuits, nodes with a single connection."""
+    from heatweave.elements import card_nodes
+
+    seen: dict[str, Card] = {}
+    counts: Counter[str] = Counter()
+    first: dict[str, Card] = {}
+    for card in scope.cards:
+        key = card.name
+        if key in seen:
+            yield Finding(
+                "error",
+                f"duplicate element name {card.head} (first at line {_line(seen[key])})",
+                card.location(),
+                "element names must be unique within a (sub)circuit; SPICE ignores case",
+            )
+        else:
+            seen[key] = card
+        if card.letter == "X":
+            _nodes, sub, _params = x_card_parts(card)
+            if index.lookup_subckt(sub, scope) is None:
+                yield Finding(
+                    "error",
+                    f"{card.head} uses unknown subcircuit {sub!r}",
+                    card.location(),
+                    "define it with .subckt, or include the file that does",
+                )
+        try:
+            nodes = card_nodes(card, index)
+        except HeatweaveError:
+            continue
+        if card.letter == "K":
+            continue
+        for node in nodes:
+            low = node.lower()
+            counts[low] += 1
+            first.setdefault(low, card)
+    ports = {p.lower() for p in subckt_ports(block)} if block is not None else set()
+    for node, count in counts.items():
+        if count == 1 and node not in ("0", "gnd") and node not in ports:
+            card = first[node]
+            yield Finding(
+                "warning",
+                f"node {node} has a single connection ({card.head})",
+                card.location(),
+                "connect it, or check the spelling of the node name",
+            )
+
+
+def _line(card: Card) -> int:
+    location = card.location()
+    return location.line if location else 0
+
+
+def lint_project(project: Project, annotation: str | None = None) -> list[Finding]:
+    """Every finding for a deck, its includes and (optionally) its annotation file."""
+    decks = [project.deck, *(inc.deck for inc in project.includes)]
+    findings = list(_parse_all(decks))
+    for deck in decks:
+        findings.extend(_structure(deck.body, top=True))
+    index = DeckIndex(project)
+    for scope, block in _scopes(index.top):
+        findings.extend(_connections(index, scope, block))
+    if annotation is not None:
+        from heatweave.annotations import bind, load
+
+        try:
+            loaded = load(annotation, deck_name=project.deck.path)
+            findings.extend(loaded.warnings)
+            bind(loaded, index)
+        except HeatweaveError as err:
+            findings.append(Finding("error", err.message, err.location, err.hint))
+    return sorted(findings, key=_order)
+
+
+def _order(finding: Finding) -> tuple[str, int, int]:
+    loc = finding.location
+    return (loc.file, loc.line, loc.column) if loc else ("", 0, 0)
+
+
+def lint_file(path: str, annotation: str | None = None) -> list[Finding]:
+    """Lint a deck on disk; an unreadable deck or include is itself a finding."""
+    try:
+        project = load_project(path)
+    except HeatweaveError as err:
+        return [Finding("error", err.message, err.location, err.hint)]
+    if annotation is None:
+        from heatweave.annotations import default_path
+
+        candidate = default_path(path)
+        annotation = str(candidate) if Path(candidate).is_file() else None
+    return lint_project(project, annotation)

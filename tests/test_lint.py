@@ -1,0 +1,92 @@
+"""``heatweave lint`` on purpose-built decks, and the exact place and words of each error."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from heatweave.cli.lint_cmd import lint
+from heatweave.lint import lint_file
+
+FIXTURES = Path(__file__).parent / "fixtures" / "lint"
+
+
+def rendered(path: Path) -> list[str]:
+    return [f.render().split(" (hint:")[0] for f in lint_file(str(path))]
+
+
+def test_clean_deck_has_no_findings() -> None:
+    assert rendered(FIXTURES / "clean.cir") == []
+
+
+def test_structural_findings() -> None:
+    deck = FIXTURES / "structure.cir"
+    prefix = f"{deck}:"
+    assert rendered(deck) == [
+        prefix + "4:1: error: duplicate element name R1 (first at line 3)",
+        prefix + "5:6: error: expected a node name",
+        prefix + "6:1: error: X1 uses unknown subcircuit 'nosuch'",
+        prefix + "6:1: warning: node a has a single connection (X1)",
+        prefix + "6:1: warning: node b has a single connection (X1)",
+        prefix + "7:1: error: .ends without .subckt",
+        prefix + "8:1: warning: node lonely has a single connection (Rfloat)",
+    ]
+
+
+def test_unclosed_blocks() -> None:
+    deck = FIXTURES / "unclosed.cir"
+    found = rendered(deck)
+    assert f"{deck}:4:1: error: .subckt never is never closed" in found
+    assert f"{deck}:6:1: error: .control without .endc" in found
+
+
+# Bad snippets: (deck body after the title, line, column, message).
+BAD = [
+    ("R1 a\n", 2, 5, "expected a node name"),
+    ("R1 a b {2*x\n", 2, 8, "unbalanced '{'"),
+    ("V1 a 0 1\n.model\n", 3, 7, "expected a model name"),
+    ("V1 a 0 1\nR1 a 0\n+ {1k\n", 4, 3, "unbalanced '{'"),
+    ("+ stray\n", 2, 1, "continuation line with no card to continue"),
+]
+
+
+@pytest.mark.parametrize(("body", "line", "column", "message"), BAD)
+def test_bad_snippets(tmp_path: Path, body: str, line: int, column: int, message: str) -> None:
+    deck = tmp_path / "bad.cir"
+    deck.write_text("title\n" + body)
+    errors = [f for f in lint_file(str(deck)) if f.severity == "error"]
+    assert errors, "no error found"
+    first = errors[0]
+    assert first.location is not None
+    assert (first.location.line, first.location.column, first.message) == (line, column, message)
+
+
+def test_cli_exit_status_and_format(tmp_path: Path) -> None:
+    runner = CliRunner()
+    ok = runner.invoke(lint, [str(FIXTURES / "clean.cir")])
+    assert ok.exit_code == 0 and ok.output == ""
+    bad = runner.invoke(lint, [str(FIXTURES / "structure.cir")])
+    assert bad.exit_code == 1
+    assert "structure.cir:4:1: error: duplicate element name R1" in bad.output
+    assert "Traceback" not in bad.output
+
+
+def test_lint_validates_the_annotation_file(tmp_path: Path) -> None:
+    deck = tmp_path / "amp.cir"
+    deck.write_text("amp\nV1 in 0 1\nRSENSE in 0 1\n.op\n.end\n")
+    (tmp_path / "amp.thermal.toml").write_text(
+        'schema = 1\n[part.RSENS]\nmodel = "linear"\ntc1 = 0\nrth = 1.0\n'
+    )
+    findings = lint_file(str(deck))
+    assert any('"RSENS" is not in' in f.message for f in findings)
+    assert any(f.location and f.location.line == 2 for f in findings)
+
+
+def test_missing_include_is_a_finding(tmp_path: Path) -> None:
+    deck = tmp_path / "inc.cir"
+    deck.write_text("inc\n.include nothere.inc\n.end\n")
+    (finding,) = lint_file(str(deck))
+    assert finding.severity == "error" and "not found" in finding.message
+    assert finding.location is not None and finding.location.line == 2
