@@ -15,7 +15,7 @@ from heatweave.deck import Block, Card, ControlBlock, Deck, Node
 from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location
 from heatweave.grammar import CardSyntaxError, parse_card
 from heatweave.hierarchy import DeckIndex, Project, Scope, load_project, subckt_ports, x_card_parts
-from heatweave.syntax import CardSyntax, ElementSyntax
+from heatweave.syntax import CardSyntax
 
 
 def syntax_of(card: Card) -> CardSyntax:
