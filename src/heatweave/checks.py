@@ -31,8 +31,7 @@ from heatweave.annotations import Annotation, LimitSpec
 from heatweave.elements import card_nodes
 from heatweave.errors import AnnotationError
 from heatweave.hierarchy import DeckIndex, global_names, top_level_node
-from heatweave.quantities import format_number
-from heatweave.ratings import derated_power
+from heatweave.ratings import derated_power, worst_instant
 from heatweave.results import PartResult, RunResults, main_plot
 from heatweave.runner import RunOutcome
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX
@@ -178,20 +177,13 @@ def _power_limit(part: PartResult, results: RunResults, ambient: FloatArray) -> 
     else:
         local, where = np.array([results.nodes[plan.to_label]]), f'node "{plan.to_label}"'
     power = part.power_series if part.power_series is not None else np.array([part.power])
-    if plan.tmax is None:
-        allowed = np.full_like(power, rating)
-    else:
-        tmax = plan.tmax
-        allowed = np.array(
-            [derated_power(rating, float(t), plan.derating_knee, tmax) for t in local]
-        )
-    worst = int(np.argmin(allowed - power))
+    powers, temps = [float(p) for p in power], [float(t) for t in local]
+    worst = worst_instant(rating, powers, temps, plan.derating_knee, plan.tmax)
+    allowed = derated_power(rating, temps[worst], plan.derating_knee, plan.tmax)
     detail = f"rating {_num(rating)} W derated for {_num(float(local[worst]))} degC at {where}"
     if results.time is not None:
-        detail += f" at t = {format_number(float(results.time[worst]))} s"
-    return LimitResult(
-        part.path, "power_rating", float(power[worst]), float(allowed[worst]), "W", True, detail
-    )
+        detail += " " + _when(results, worst)
+    return LimitResult(part.path, "power_rating", powers[worst], allowed, "W", True, detail)
 
 
 def signal_limits(
@@ -224,7 +216,7 @@ def signal_limits(
 def _when(results: RunResults, at: int) -> str:
     if results.time is None:
         return ""
-    return f"at t = {format_number(float(results.time[at]))} s"
+    return f"at t = {float(results.time[at]):.4g} s"
 
 
 def _drift(
@@ -249,7 +241,7 @@ def _drift(
     worst = int(np.argmax(drift))
     detail = f"{_num(float(hot[worst]))} V heated vs {_num(float(base[worst]))} V unheated"
     if results.time is not None and baseline.time is not None:
-        detail += f" at t = {format_number(float(results.time[worst]))} s"
+        detail += " " + _when(results, worst)
     return LimitResult(
         spec.signal, "max_drift_ppm", float(drift[worst]), spec.max_drift_ppm, "ppm", True, detail
     )

@@ -42,7 +42,7 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.errors import SimulatorError, ThermalRunawayError
-from heatweave.quantities import format_number, parse_number
+from heatweave.quantities import parse_number
 from heatweave.thermal_circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
 
 if TYPE_CHECKING:
@@ -366,11 +366,11 @@ def growth(results: RunResults) -> str | None:
         if bad.size == 0:
             continue
         at = float(results.time[bad[0]])
-        text = f"{part.path} passed {IMPLAUSIBLE_TEMPERATURE:g} degC at t = {format_number(at)} s"
+        text = f"{part.path} passed {IMPLAUSIBLE_TEMPERATURE:g} degC at t = {at:.4g} s"
         tmax = part.plan.tmax if part.plan is not None else None
         over = np.flatnonzero(series > tmax) if tmax is not None else np.array([], dtype=int)
         if over.size:
-            passed = format_number(float(results.time[over[0]]))
+            passed = f"{float(results.time[over[0]]):.4g}"
             text += f" (its tmax {tmax:g} degC at t = {passed} s)"
         if first is None or at < first[0]:
             first = (at, text)
