@@ -202,3 +202,40 @@ def test_driving_point_resistances(tmp_path: Path) -> None:
     assert z[r2, r2] == pytest.approx(50.0)
     assert z[r1, r2] == pytest.approx(20.0)  # heat of R2 raises R1 through the board only
     assert z[board, board] == pytest.approx(20.0)
+
+
+def test_coupled_thermistors_in_subcircuits(tmp_path: Path) -> None:
+    """Two Beta NTCs (in two instances of one subcircuit) across one 12 V rail, on one board
+    node.  Steady state: T_i = Ta + sum_j Z_ij P_j with Z = [[120, 20], [20, 80]] K/W (own
+    path plus board, by hand); the fold is where also det(I - Z diag(dP_i/dT_i)) = 0.
+    Solved for (T1, T2, V) with fsolve; heatweave's drive must be (V*/12)^2."""
+    r25, beta, ta, volts = 1000.0, 3500.0, 25.0, 12.0
+    z = np.array([[120.0, 20.0], [20.0, 80.0]])
+
+    def equations(x: list[float]) -> list[float]:
+        t1, t2, v = x
+        p = np.array([v * v / beta_r(t, r25, beta) for t in (t1, t2)])
+        dp = np.diag([p[k] * beta / (t + KELVIN) ** 2 for k, t in enumerate((t1, t2))])
+        rise = np.array([t1, t2]) - ta - z @ p
+        return [float(rise[0]), float(rise[1]), float(np.linalg.det(np.eye(2) - z @ dp))]
+
+    t1, _t2, v_crit = fsolve(equations, [50.0, 40.0, 8.0], xtol=1e-12)
+    deck = tmp_path / "sub.cir"
+    deck.write_text(
+        "modules\nV1 rail 0 DC 12\nX1 rail 0 mod\nX2 rail 0 mod\n"
+        ".subckt mod a b\nRT a b 1k\n.ends\n.op\n.end\n"
+    )
+    note = tmp_path / "sub.thermal.toml"
+    note.write_text(
+        'schema = 1\n[node.board]\nrth = 20.0\n[part."X1.RT"]\nmodel = "ntc-beta"\n'
+        'beta = 3500\nrth = 100.0\nto = "board"\n[part."X2.RT"]\nmodel = "ntc-beta"\n'
+        'beta = 3500\nrth = 60.0\nto = "board"\n'
+    )
+    with pytest.raises(RunawayError) as caught:
+        runner.run(str(deck), str(note), runner.RunOptions())
+    found = caught.value.diagnosis
+    assert found is not None and found.part == "X1.RT"
+    assert found.drive == pytest.approx((float(v_crit) / volts) ** 2, rel=4e-4)
+    assert found.temperature == pytest.approx(float(t1), abs=1.5)
+    assert 0.9 < found.circuit_gain <= 1.0 + 1e-3
+    assert found.source is None  # subcircuit instances: no single-source equivalent claimed
