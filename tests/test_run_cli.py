@@ -185,11 +185,16 @@ def test_output_may_not_be_the_deck(tmp_path: Path) -> None:
     assert deck.read_bytes() == before
 
 
-def test_tran_option_replaces_the_decks_analysis() -> None:
-    result = invoke(str(FIXTURES / "divider.cir"), "--tran", "10m", "0.5", "-q", "--json", "-")
+# (--tran values as typed, the analysis command ngspice gets)
+TRAN_OPTIONS = [("10m", "0.5", "tran 0.01 0.5"), ("100u", "0.2", "tran 0.0001 0.2")]
+
+
+@pytest.mark.parametrize(("step", "stop", "command"), TRAN_OPTIONS)
+def test_tran_option_replaces_the_decks_analysis(step: str, stop: str, command: str) -> None:
+    result = invoke(str(FIXTURES / "divider.cir"), "--tran", step, stop, "-q", "--json", "-")
     data = json.loads(result.stdout)
     assert data["analysis"] == "tran"
-    assert data["analysis_commands"] == ["tran 0.01 0.5"]
+    assert data["analysis_commands"] == [command]
     assert data["parts"]["R1"]["peak_temperature"] is not None
 
 

@@ -32,7 +32,8 @@ def analyses_of(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
                 f"{format_number(stop)} s",
                 hint="write --tran TSTEP TSTOP, e.g. --tran 1m 10",
             )
-        return (f"tran {format_number(step)} {format_number(stop)}",)
+        # 12 digits: 100u stays 0.0001, not the float 9.999999999999999e-05
+        return (f"tran {step:.12g} {stop:.12g}",)
     return ()
 
 

@@ -26,6 +26,7 @@ from heatweave.results import FloatArray
 AMBIENT_COLOUR = "0.45"
 #: Smallest vertical distance between two end labels, as a share of the panel's height.
 LABEL_GAP = 0.075
+MIN_BARS = 3
 TIME_UNITS = ((1.0, "s"), (1e-3, "ms"), (1e-6, "us"), (1e-9, "ns"))
 
 
@@ -109,7 +110,8 @@ def _transient(figure: Figure, report: RunReport, colours: dict[str, str]) -> No
     temp.plot(t, ambient, color=AMBIENT_COLOUR, lw=1.0, ls=":")
     ends.append(("ambient", float(ambient[-1]), AMBIENT_COLOUR))
     temp.set_ylabel("temperature [degC]")
-    temp.set_title("Temperatures (solid: parts, dashed: thermal nodes)", fontsize=9, loc="left")
+    key = "solid: parts, dashed: thermal nodes" if results.node_series else "parts"
+    temp.set_title(f"Temperatures ({key})", fontsize=9, loc="left")
     panel = 1
     finished = [(temp, ends)]
     if resistors:
@@ -158,6 +160,9 @@ def _bars(
     bars = axes.bar(positions, heights, bottom=base, color=[colours[n] for n in names], width=0.6)
     axes.bar_label(bars, labels=[format(v, spec) for v in values], fontsize=8, padding=2)
     axes.set_xticks(positions, names, fontsize=8)
+    # room for at least MIN_BARS bars, so a lone bar does not fill the panel
+    centre, half = (len(names) - 1) / 2, max(len(names), MIN_BARS) / 2
+    axes.set_xlim(centre - half, centre + half)
     axes.margins(y=0.15)
     axes.grid(True, axis="y", lw=0.4, alpha=0.5)
 
