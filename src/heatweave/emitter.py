@@ -202,9 +202,6 @@ class _Rewriter:
         return Card(text, lead)
 
     def replace_part(self, card: Card, part: PartPlan) -> list[Node]:
-        from heatweave.lint import syntax_of
-
-        syntax_of(card)  # a malformed card is reported where it stands, not emitted
         name = safe(part.path)
         lines = [f"{MARK}{part.path}: " + describe(part)]
         if part.is_resistor:

@@ -132,6 +132,7 @@ def build_circuit(
     """The thermal circuit of a bound annotation, with each resistor's model built from
     the deck's nominal value; also the warnings about card parameters set aside."""
     from heatweave.elements import resistor_value, top_params
+    from heatweave.lint import syntax_of
 
     findings: list[Finding] = list(annotation.warnings)
     params = top_params(index)
@@ -147,10 +148,11 @@ def build_circuit(
         except NetworkError as err:
             raise err.at(spec.location) from None
         model = None
+        found = index.resolve(item.element)
+        if found is None:
+            raise AnnotationError(f"{item.element} is not in the deck", spec.location)
+        syntax_of(found.card)  # a malformed card is reported where it stands
         if spec.model is not None:
-            found = index.resolve(item.element)
-            if found is None:
-                raise AnnotationError(f"{item.element} is not in the deck", spec.location)
             value = resistor_value(found.card, params)
             findings.extend(
                 Finding("warning", f"{item.element}: {note}", found.card.location())

@@ -1,0 +1,103 @@
+"""``heatweave emit`` as a user meets it: stdin/stdout, refusing to overwrite, --check,
+bad input with FILE:LINE:COL and exit status 2, never a traceback."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from heatweave.cli import main
+
+FIXTURES = Path(__file__).parent / "fixtures" / "emit"
+CORPUS = sorted((Path(__file__).parent / "decks").glob("*.cir"))
+
+
+def invoke(*args: str, stdin: bytes | None = None) -> tuple[int, bytes, str]:
+    runner = CliRunner()
+    result = runner.invoke(main, list(args), input=stdin)
+    return result.exit_code, result.stdout_bytes, result.stderr
+
+
+@pytest.mark.parametrize("deck", CORPUS, ids=lambda p: p.name)
+def test_no_annotation_writes_the_input_unchanged(deck: Path) -> None:
+    code, out, _err = invoke("emit", str(deck))
+    assert code == 0 and out == deck.read_bytes()
+
+
+def test_stdin_to_stdout() -> None:
+    data = b"t\r\nR1 a 0 1k ; \xe9\r\n.end"
+    code, out, _err = invoke("emit", "-", stdin=data)
+    assert code == 0 and out == data
+
+
+def test_refuses_to_overwrite_its_input(tmp_path: Path) -> None:
+    for name in ("divider.cir", "divider.thermal.toml"):
+        shutil.copy(FIXTURES / name, tmp_path / name)
+    deck = tmp_path / "divider.cir"
+    before = deck.read_bytes()
+    code, _out, err = invoke("emit", str(deck), "-o", str(deck))
+    assert code == 2 and "refusing to overwrite" in err and deck.read_bytes() == before
+    code, _out, _err = invoke("emit", str(deck), "-o", str(deck), "--in-place")
+    assert code == 0 and b"Bhw_r1" in deck.read_bytes()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["divider.cir", "divider.thermal.toml"]
+
+
+def test_check_reports_stale_and_which_input(tmp_path: Path) -> None:
+    for name in ("divider.cir", "divider.thermal.toml"):
+        shutil.copy(FIXTURES / name, tmp_path / name)
+    deck, emitted = tmp_path / "divider.cir", tmp_path / "divider.hw.cir"
+    assert invoke("emit", str(deck), "-o", str(emitted))[0] == 0
+    code, _out, err = invoke("emit", str(deck), "--check", str(emitted))
+    assert code == 0 and "up to date" in err
+    notes = tmp_path / "divider.thermal.toml"
+    notes.write_text(notes.read_text().replace("rth = 50.0", "rth = 55.0"))
+    code, _out, err = invoke("emit", str(deck), "--check", str(emitted))
+    assert code == 1 and "annotation file changed" in err
+    deck.write_text(deck.read_text().replace("DC 10", "DC 12"))
+    code, _out, err = invoke("emit", str(deck), "--check", str(emitted))
+    assert code == 1 and "the deck changed" in err
+
+
+BAD_INPUT = [
+    # (deck body, annotation, location, words of the message)
+    (
+        "V1 in 0 1\nR1 in 0 {2*\n.op\n",
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\nrth = 1.0\n',
+        "bad.cir:3:9",
+        "unbalanced '{'",
+    ),
+    (
+        "V1 in 0 1\nRSENSE in 0 1\n.op\n",
+        'schema = 1\n[part.RSENS]\nmodel = "linear"\ntc1 = 0\nrth = 1.0\n',
+        "bad.thermal.toml:2:",
+        'did you mean "RSENSE"',
+    ),
+    (
+        "V1 in 0 1\nR1 in 0 1\n.op\n",
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\nrth = "abc"\n',
+        "bad.thermal.toml:5:7",
+        "rth must be a positive number",
+    ),
+    (
+        "V1 in 0 1\nR1 in hw_t_r1 1\nR2 hw_t_r1 0 1\n.op\n",
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\nrth = 1.0\n',
+        "bad.cir:3:",
+        "reserves",
+    ),
+]
+
+
+@pytest.mark.parametrize(("body", "notes", "where", "words"), BAD_INPUT)
+def test_bad_input_is_located_and_exits_2(
+    tmp_path: Path, body: str, notes: str, where: str, words: str
+) -> None:
+    (tmp_path / "bad.cir").write_text("bad\n" + body + ".end\n")
+    (tmp_path / "bad.thermal.toml").write_text(notes)
+    code, _out, err = invoke("emit", str(tmp_path / "bad.cir"))
+    assert code == 2, err
+    assert "Traceback" not in err
+    assert f"{tmp_path}/{where}" in err and words in err
+    assert "hint:" in err
