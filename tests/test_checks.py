@@ -206,3 +206,34 @@ def test_junit_report(tmp_path: Path) -> None:
     assert suite.get("tests") == root.get("tests") == "3"
     assert suite.get("failures") == root.get("failures") == "1"
     assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d", suite.get("timestamp", ""))
+
+
+def test_rating_follows_an_ambient_profile(tmp_path: Path) -> None:
+    """Ambient ramps 25 -> 120 degC over 100 s; with tau = Rth Cth = 6 ms the part follows
+    quasi-statically, so the worst instant is the end, where the steady state at 120 degC
+    (brentq) meets the IEC 60115-1 allowance at 120 degC."""
+    ramp_end = 120.0
+    text = (
+        base_annotation()
+        .replace(
+            "[ambient]\ntemperature = 25.0", "[ambient]\nprofile = [[0.0, 25.0], [100.0, 120.0]]"
+        )
+        .replace("cth = 0.02", "cth = 0.0001")
+    )
+    t_end = float(brentq(lambda t: t - ramp_end - RTH * power(t), ramp_end, 400.0))
+    allowed = derated_power(RATING, ramp_end, KNEE, TMAX)
+    code, output = run_check(tmp_path, text, "--tran", "0.5", "100")
+    assert code == 1  # 0.34 W against 0.206 W allowed at 120 degC
+    line = next(x for x in output.splitlines() if "RTOP power_rating:" in x)
+    assert value_of(output, "RTOP", "power_rating") == pytest.approx(power(t_end), rel=1e-3)
+    printed = re.search(r"at most ([0-9.e+-]+) W", line)
+    assert printed and float(printed[1]) == pytest.approx(allowed, rel=1e-3)
+    assert "at t = 100 s" in line
+
+
+def test_no_annotation_file_is_bad_input(tmp_path: Path) -> None:
+    deck = tmp_path / "lonely.cir"
+    deck.write_text(DECK.read_text())
+    result = CliRunner().invoke(main, ["check", str(deck)])
+    assert result.exit_code == 2
+    assert "no annotation file" in result.output and "hint:" in result.output
