@@ -1,0 +1,252 @@
+"""The fast electrothermal run path: a windowed co-simulation of circuit and heat.
+
+Thermal time constants (ms to minutes) are usually far longer than electrical ones (ns to
+ms).  Then ngspice can run the plain circuit, with every annotated resistor an ordinary
+resistor, while heatweave advances the linear thermal network exactly between windows and
+updates each resistance from its temperature (:mod:`heatweave.cosim.engine`, window rule
+in :mod:`heatweave.cosim.windows`).  This avoids evaluating two behavioural expressions
+per resistor at every time step and Newton iteration, which is where the full deck spends
+most of its time.
+
+:func:`run` takes the same inputs as :func:`heatweave.runner.run` and returns a
+:class:`FastOutcome` holding the same :class:`~heatweave.results.RunResults`, on the
+co-simulation's window grid.  :func:`run_auto` picks the method (:func:`choose_method`)
+and falls back to the full deck where the co-simulation would not be accurate.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from heatweave.annotations import Annotation
+from heatweave.deck import Card, Node
+from heatweave.elements import card_nodes
+from heatweave.emitter import Inputs, emit_inputs, load_inputs
+from heatweave.errors import Finding, LibngspiceMissingError, UsageError
+from heatweave.hierarchy import DeckIndex, global_names, top_level_node
+from heatweave.reader import read
+from heatweave.results import PartResult, RunResults, device_name
+from heatweave.runner import ANALYSIS_CARDS, RunOptions, RunOutcome, deck_analyses_of, strip_control
+from heatweave.thermal_circuit import AMBIENT_NODE, ThermalCircuit
+from heatweave.thermal_solver import ThermalSystem, assemble
+
+from .engine import Probe, Trace, cosimulate
+from .method import SEPARATION, Transient, choose_method, source_time_scale
+
+__all__ = [
+    "DEFAULT_TOLERANCE",
+    "METHODS",
+    "SEPARATION",
+    "FastOutcome",
+    "Transient",
+    "choose_method",
+    "electrical_time_scale",
+    "run",
+    "run_auto",
+]
+
+#: Temperature error (K) the window rule aims at; the acceptance target is 0.05 K.
+DEFAULT_TOLERANCE = 0.02
+METHODS = ("auto", "cosim", "full")
+DEFAULT_OPTIONS = RunOptions()
+
+
+@dataclass(frozen=True, slots=True)
+class FastOutcome:
+    """A run by either method: its results, which method ran, and why.
+
+    ``full`` is the :class:`~heatweave.runner.RunOutcome` when the full deck ran;
+    ``trace`` the co-simulation's raw record (windows, profile) when it did not.
+    """
+
+    results: RunResults
+    method: str
+    reason: str
+    findings: tuple[Finding, ...] = ()
+    full: RunOutcome | None = field(default=None, repr=False)
+    trace: Trace | None = field(default=None, repr=False)
+
+
+def electrical_time_scale(index: DeckIndex) -> float | None:
+    """The slowest time scale of the deck's independent sources (s), or ``None``."""
+    texts = [card.logical().text for card in index.project.deck.cards() if card.is_element]
+    for include in index.project.includes:
+        texts += [card.logical().text for card in include.deck.cards() if card.is_element]
+    return source_time_scale(texts)
+
+
+def _analyses(inputs: Inputs, options: RunOptions) -> tuple[str, ...]:
+    if options.analyses:
+        return tuple(options.analyses)
+    return tuple(a.lstrip(".") for a in deck_analyses_of(inputs.project.deck.write()))
+
+
+def _circuit(
+    inputs: Inputs, options: RunOptions, annotation: Annotation | None
+) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
+    emitted = emit_inputs(inputs, annotation=annotation, ambient=options.ambient)
+    assert emitted.circuit is not None
+    return emitted.circuit, emitted.findings
+
+
+def run_auto(
+    deck_path: str,
+    annotation_path: str,
+    options: RunOptions = DEFAULT_OPTIONS,
+    *,
+    method: str = "auto",
+    inputs: Inputs | None = None,
+    annotation: Annotation | None = None,
+) -> FastOutcome:
+    """Run by *method* (``auto``, ``cosim`` or ``full``); ``auto`` asks :func:`choose_method`.
+
+    ``cosim`` forced where it does not apply raises :class:`UsageError` with the reason.
+    """
+    from heatweave import runner
+
+    if method not in METHODS:
+        raise UsageError(f"unknown method {method!r}", hint="choose auto, cosim or full")
+    inputs = inputs or load_inputs(deck_path, annotation_path)
+    chosen, reason = "full", "asked for the full electrothermal deck"
+    if method != "full":
+        circuit, _findings = _circuit(inputs, options, annotation)
+        scale = electrical_time_scale(inputs.index)
+        chosen, reason = choose_method(circuit, _analyses(inputs, options), scale)
+        if chosen == "cosim" and options.allow_control:
+            chosen, reason = "full", ".control blocks are kept, so the deck runs as written"
+        if chosen == "cosim" and options.backend == "batch":
+            chosen, reason = "full", "the co-simulation needs the ngspice shared library"
+        if method == "cosim" and chosen != "cosim":
+            raise UsageError(
+                f"the co-simulation does not apply: {reason}", hint="use --method full"
+            )
+    if chosen == "cosim":
+        try:
+            return run(deck_path, annotation_path, options, inputs=inputs, annotation=annotation)
+        except LibngspiceMissingError:
+            if method == "cosim":
+                raise
+            reason = "the ngspice shared library is missing, so the full deck ran"
+    outcome = runner.run(deck_path, annotation_path, options, inputs=inputs, annotation=annotation)
+    findings = outcome.prepared.findings
+    return FastOutcome(outcome.results, "full", reason, findings, full=outcome)
+
+
+def run(
+    deck_path: str,
+    annotation_path: str,
+    options: RunOptions = DEFAULT_OPTIONS,
+    *,
+    inputs: Inputs | None = None,
+    annotation: Annotation | None = None,
+    tolerance: float = DEFAULT_TOLERANCE,
+) -> FastOutcome:
+    """Co-simulate one run (same inputs as :func:`heatweave.runner.run`).
+
+    Raises :class:`UsageError` when the run is not one the co-simulation can do (see
+    :func:`choose_method`; the time-scale check is left to the caller).
+    """
+    inputs = inputs or load_inputs(deck_path, annotation_path)
+    circuit, findings = _circuit(inputs, options, annotation)
+    analyses = _analyses(inputs, options)
+    tran = Transient.parse(analyses[0]) if len(analyses) == 1 else None
+    if tran is None or tran.tstart != 0 or not isinstance(circuit.ambient, float | int):
+        raise UsageError(
+            "the co-simulation runs one transient from 0 with a fixed ambient",
+            hint="use the full method for this run",
+        )
+    if any(not p.is_resistor for p in circuit.parts) or circuit.start != "cold":
+        raise UsageError(
+            "the co-simulation needs resistor parts only and a cold start",
+            hint="use the full method for this run",
+        )
+    system = assemble(circuit)
+    text, dropped = strip_control(inputs.project.deck.write(), inputs.deck_path, False)
+    from pathlib import Path
+
+    trace = cosimulate(
+        plain_deck(text),
+        Path(inputs.deck_path).resolve().parent,
+        circuit.parts,
+        probes(circuit, inputs.index),
+        system,
+        float(circuit.ambient),
+        tran,
+        tolerance,
+        options.timeout,
+    )
+    results = to_results(trace, circuit, system)
+    reason = f"co-simulation in {trace.windows} windows"
+    return FastOutcome(results, "cosim", reason, findings + dropped, trace=trace)
+
+
+def plain_deck(text: str) -> str:
+    """The deck without its analysis cards (the co-simulation issues its own transient)."""
+    deck = read(text)
+    kept: list[Node] = [
+        n for n in deck.body if not (isinstance(n, Card) and n.name in ANALYSIS_CARDS)
+    ]
+    return deck.with_body(tuple(kept)).write()
+
+
+def probes(circuit: ThermalCircuit, index: DeckIndex) -> list[Probe]:
+    """ngspice's names for each resistor part and its two terminals."""
+    globals_ = global_names(index) | {AMBIENT_NODE}
+    out = []
+    for part in circuit.parts:
+        resolved = index.resolve(part.path)
+        assert resolved is not None
+        nodes = [top_level_node(resolved, n, globals_) for n in card_nodes(resolved.card, index)]
+        a, b = (None if n in ("0", "gnd") else n for n in nodes[:2])
+        out.append(Probe(device_name(resolved, resolved.card.head), a, b))
+    return out
+
+
+def to_results(trace: Trace, circuit: ThermalCircuit, system: ThermalSystem) -> RunResults:
+    """The co-simulation's record as :class:`RunResults` on its window grid.
+
+    A part's ``power`` is its mean dissipation over the last window (the full deck reports
+    the value at the last time point); its series are per window (see :class:`Trace`).
+    """
+    n_parts = len(circuit.parts)
+    parts = []
+    for j, part in enumerate(circuit.parts):
+        temp, power, ohms = trace.temperatures[j], trace.power[j], trace.resistance[j]
+        assert part.model is not None
+        nominal = float(part.model.resistance(getattr(part.model, "tref", 25.0)))
+        parts.append(
+            PartResult(
+                path=part.path,
+                model=part.model_name,
+                temperature=float(temp[-1]),
+                power=float(power[-1]),
+                resistance=float(ohms[-1]),
+                nominal_resistance=nominal,
+                peak_temperature=float(temp.max()),
+                peak_power=float(power.max()),
+                temperature_series=temp,
+                power_series=power,
+                resistance_series=ohms,
+                plan=part,
+            )
+        )
+    nodes = {
+        label: float(trace.temperatures[n_parts + k][-1])
+        for k, label in enumerate(system.outputs[n_parts:])
+    }
+    series = {
+        label: trace.temperatures[n_parts + k] for k, label in enumerate(system.outputs[n_parts:])
+    }
+    voltages = {name: float(values[-1]) for name, values in trace.voltages.items()}
+    return RunResults(
+        analysis="tran",
+        ambient=float(circuit.ambient_at_start),
+        parts=tuple(parts),
+        nodes=nodes,
+        voltages=voltages,
+        time=np.asarray(trace.time),
+        node_series=series,
+        voltage_series=dict(trace.voltages),
+    )

@@ -1,0 +1,288 @@
+"""The windowed loop: ngspice runs the plain circuit, the thermal network advances between.
+
+One transient runs in libngspice, paused at every window boundary (``stop when time >``
+the boundary; ngspice pauses at its first accepted time point past it, which becomes the
+boundary).  While it is paused, the loop reads the new samples of the resistor terminals,
+takes each resistor's mean dissipation over the window, advances the thermal network
+exactly, sets every resistance to its value at the predicted mid-window temperature of the
+next window (``alter``), and lets ngspice ``resume``.  A resumed transient continues from
+its own state, so the electrical solution is never restarted or approximated.
+"""
+
+from __future__ import annotations
+
+import re
+import time as clock
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+
+from heatweave.simulators import diagnose
+from heatweave.simulators.base import timed_out
+from heatweave.simulators.naming import VOLTAGE, vector_name
+from heatweave.simulators.shared import (
+    _LOCK,
+    SharedSimulator,
+    _inside,
+    _load_deck,
+    _quiet_pyspice,
+    _raise_failure,
+    _stray_stderr,
+    _strings,
+)
+from heatweave.thermal_circuit import PartPlan
+from heatweave.thermal_solver import Propagator, ThermalSystem
+
+from .bank import ModelBank
+from .method import Transient
+from .windows import WindowRule, window_power
+
+FloatArray = npt.NDArray[np.float64]
+
+#: An alter is skipped when the resistance moved by less than this fraction since the last.
+ALTER_THRESHOLD = 1e-9
+
+
+@dataclass(frozen=True, slots=True)
+class Probe:
+    """Where one resistor sits in ngspice: its device name and terminal vectors."""
+
+    device: str
+    node_a: str | None  # ngspice vector name; None for ground
+    node_b: str | None
+
+
+@dataclass(frozen=True, slots=True)
+class Trace:
+    """What the loop produced, on the window grid ``time`` (s, from 0).
+
+    ``temperatures`` has one row per output of the thermal system (parts, then shared
+    nodes), ``power`` and ``resistance`` one row per part: the mean dissipation over the
+    window ending at each time (column 0 repeats the first window) and the resistance at
+    each time's temperature.  ``voltages`` are every node voltage at the window ends.
+    ``profile`` says where the wall-clock time went (s), ``stats`` is ngspice's ``rusage``.
+    """
+
+    time: FloatArray
+    temperatures: FloatArray
+    power: FloatArray
+    resistance: FloatArray
+    voltages: dict[str, FloatArray]
+    log: str
+    profile: dict[str, float] = field(default_factory=dict)
+    stats: str = ""
+
+    @property
+    def windows(self) -> int:
+        """Number of windows run."""
+        return int(self.time.shape[0] - 1)
+
+
+class _Clock:
+    def __init__(self) -> None:
+        self.spent: dict[str, float] = {}
+        self.mark = clock.perf_counter()
+
+    def lap(self, what: str) -> None:
+        now = clock.perf_counter()
+        self.spent[what] = self.spent.get(what, 0.0) + now - self.mark
+        self.mark = now
+
+
+def cosimulate(
+    deck: str,
+    cwd: str | Path,
+    parts: Sequence[PartPlan],
+    probes: Sequence[Probe],
+    system: ThermalSystem,
+    ambient: float,
+    tran: Transient,
+    tolerance: float,
+    timeout: float | None = None,
+) -> Trace:
+    """Run the windowed co-simulation of *deck* (the plain circuit, no analysis cards)."""
+    engine = SharedSimulator().load()
+    with _LOCK, _quiet_pyspice():
+        lib = engine._ngspice_shared
+        try:
+            _command(lib, "destroy all")
+            engine.heatweave_log.clear()
+            stray: list[str] = []
+            with _inside(Path(cwd)), _stray_stderr(stray):
+                _load_deck(engine, deck)
+                _raise_failure(engine.heatweave_log)
+                loop = _Loop(engine, parts, probes, system, ambient, tran, tolerance)
+                trace = loop.run(timeout)
+            _check(stray)
+            return trace
+        finally:
+            _command(lib, "destroy all")
+            _command(lib, "remcirc")
+            engine.heatweave_log.clear()
+
+
+#: What ngspice says when a ``stop when`` pauses the transient: not a failure.
+_PAUSED = re.compile(r"simulation interrupted|condition met: stop|pause requested", re.I)
+
+
+def _check(log: Sequence[str]) -> None:
+    """Raise the failure the log shows, ignoring the messages of a paused transient."""
+    _raise_failure([line for line in log if not _PAUSED.search(line)])
+
+
+def _command(lib: Any, command: str) -> int:
+    return int(lib.ngSpice_Command(command.encode("utf-8")))
+
+
+class _Loop:
+    """One co-simulation's state between windows."""
+
+    def __init__(
+        self,
+        engine: Any,
+        parts: Sequence[PartPlan],
+        probes: Sequence[Probe],
+        system: ThermalSystem,
+        ambient: float,
+        tran: Transient,
+        tolerance: float,
+    ) -> None:
+        self.engine = engine
+        self.lib = engine._ngspice_shared
+        self.ffi = engine.heatweave_ffi
+        self.bank = ModelBank([p.model for p in parts if p.model is not None])
+        self.probes = probes
+        self.system = system
+        self.ambient = ambient
+        self.tran = tran
+        self.propagator = Propagator(system)
+        tau_min = float(system.time_constants[0])
+        self.rule = WindowRule(tolerance, tau_min, min_window=tran.tstep)
+        self.nodes = sorted({n for p in probes for n in (p.node_a, p.node_b) if n is not None})
+        row = {name: k for k, name in enumerate(self.nodes)}
+        ground = len(self.nodes)
+        self.index_a = np.array([row.get(p.node_a, ground) if p.node_a else ground for p in probes])
+        self.index_b = np.array([row.get(p.node_b, ground) if p.node_b else ground for p in probes])
+        self.held = np.zeros(self.bank.size)
+        self.clock = _Clock()
+
+    def hold(self, values: FloatArray, threshold: float = ALTER_THRESHOLD) -> None:
+        """``alter`` every resistor whose held value moved by more than *threshold*."""
+        changed = np.abs(values - self.held) > threshold * np.abs(self.held)
+        for j in np.flatnonzero(changed).tolist():
+            _command(self.lib, f"alter {self.probes[j].device} = {float(values[j])!r}")
+        self.held = np.where(changed, values, self.held)
+        self.clock.lap("alter")
+
+    def tail(self, name: str, start: int, length: int | None = None) -> FloatArray:
+        """Samples *start* onwards of vector *name* (a view: copy before ngspice resumes)."""
+        info = self.lib.ngGet_Vec_Info(name.encode("utf-8"))
+        if info == self.ffi.NULL:
+            from heatweave.errors import SimulatorError
+
+            raise SimulatorError(f"ngspice has no vector {name!r} during the co-simulation")
+        total = int(info.v_length)
+        buffer = self.ffi.buffer(info.v_realdata, total * 8)
+        end = total if length is None else start + length
+        return np.frombuffer(buffer, dtype=np.float64)[start:end]
+
+    def run(self, timeout: float | None) -> Trace:
+        system, n_parts, bank = self.system, self.bank.size, self.bank
+        deadline = None if timeout is None else clock.monotonic() + timeout
+        z = system.rest_state(self.ambient)
+        power = np.zeros(n_parts)
+        temps = system.temperatures(z, system.inputs(power, self.ambient))
+        self.hold(bank.resistance(temps[:n_parts]))
+        times, rows, powers, ohms = [0.0], [temps], [power], [bank.resistance(temps[:n_parts])]
+        ends = [0]
+        h, start, now, first = self.rule.first(), 0, 0.0, True
+        gain = system.dc_gain[:n_parts]
+        while now < self.tran.tstop * (1 - 1e-12):
+            target = now + h
+            _command(self.lib, "delete all")
+            if target < self.tran.tstop * (1 - 1e-9):
+                _command(self.lib, f"stop when time > {target!r}")
+            _command(self.lib, self.tran.command() if first else "resume")
+            first = False
+            self.clock.lap("ngspice")
+            _check(self.engine.heatweave_log)
+            self.engine.heatweave_log.clear()
+            t = self.tail("time", start).copy()
+            if t.shape[0] < 2:
+                break
+            drops = self._drops(start, t.shape[0])
+            self.clock.lap("read")
+            power, moment = window_power(t, drops, self.held)
+            step = float(t[-1] - t[0])
+            moments = np.zeros(n_parts + 1)
+            moments[:n_parts] = moment
+            u = system.inputs(power, self.ambient)
+            z = self.propagator.advance(z, u, step, moments)
+            temps = system.temperatures(z, u)
+            now, start = float(t[-1]), start + t.shape[0] - 1
+            times.append(now)
+            ends.append(start)
+            rows.append(temps)
+            powers.append(power)
+            part_temps = temps[:n_parts]
+            ohms.append(bank.resistance(part_temps))
+            rate = system.c[:n_parts] @ system.derivative(z, u)
+            log_rate = float(np.max(np.abs(bank.slope(part_temps) / ohms[-1] * rate)))
+            scale = float(np.max(gain @ power))
+            h = self.rule.next(step, scale, log_rate)
+            mid = part_temps + rate * min(h, self.tran.tstop - now) / 2
+            self.clock.lap("thermal")
+            self.hold(bank.resistance(mid), self.rule.alter_threshold(scale))
+            if deadline is not None and clock.monotonic() > deadline:
+                raise timed_out(timeout)
+        powers[0] = powers[1] if len(powers) > 1 else powers[0]
+        voltages = self._voltages(np.array(ends))
+        self.clock.lap("read")
+        stats = self._stats()
+        return Trace(
+            np.array(times),
+            np.array(rows).T,
+            np.array(powers).T,
+            np.array(ohms).T,
+            voltages,
+            "\n".join(self.engine.heatweave_log),
+            dict(self.clock.spent),
+            stats,
+        )
+
+    def _drops(self, start: int, length: int) -> FloatArray:
+        """The voltage across every resistor at the window's *length* samples."""
+        matrix = np.zeros((len(self.nodes) + 1, length))  # last row: ground
+        for k, name in enumerate(self.nodes):
+            matrix[k] = self.tail(name, start, length)
+        return np.asarray(matrix[self.index_a] - matrix[self.index_b])
+
+    def _voltages(self, ends: npt.NDArray[np.intp]) -> dict[str, FloatArray]:
+        """Every node voltage of the transient at the window ends."""
+        plot = self.ffi.string(self.lib.ngSpice_CurPlot()).decode()
+        out: dict[str, FloatArray] = {}
+        for raw in _strings(self.ffi, self.lib.ngSpice_AllVecs(plot.encode())):
+            info = self.lib.ngGet_Vec_Info(f"{plot}.{raw}".encode())
+            if int(info.v_type) != 3 or info.v_realdata == self.ffi.NULL:
+                continue
+            length = int(info.v_length)
+            values = np.frombuffer(self.ffi.buffer(info.v_realdata, length * 8), np.float64)
+            name = vector_name(raw, VOLTAGE)
+            if name.startswith("v(") and name.endswith(")"):
+                out[name[2:-1]] = values[np.minimum(ends, length - 1)].copy()
+        return out
+
+    def _stats(self) -> str:
+        before = len(self.engine.heatweave_log)
+        _command(self.lib, "rusage time totiter traniter tranpoints trantime")
+        lines = self.engine.heatweave_log[before:]
+        return "\n".join(line.strip() for line in lines if line.strip())
+
+
+def log_text(trace: Trace) -> str:
+    """The simulator log of a co-simulation (for ``-v`` displays)."""
+    return "\n".join(diagnose.log_lines(trace.log))
