@@ -193,7 +193,7 @@ class _Loop:
         part = int(np.argmax(np.abs(vectors[:, k])))
         plan = self.electrical.circuit.parts[self.index[part]]
         return ThermalRunawayError(
-            f"thermal runaway: {plan.path} has loop gain {values[k].real:.3g} "
+            f"thermal runaway: {plan.path} has loop gain {values[k].real:.3f} "
             f"(at {temps[part]:.1f} degC): {why}",
             plan.location,
             "lower the drive, voltage or duty, improve its thermal path (smaller rth), or "
@@ -223,12 +223,15 @@ class _Loop:
             if gain is not None and n and float(np.max(np.linalg.eigvals(gain).real)) >= 1.0:
                 raise self.runaway(
                     gain, temps, "each kelvin it warms raises its dissipation enough to warm "
-                    "it by more than a kelvin, so there is no stable operating point",
+                    "it by a kelvin or more, so there is no stable operating point",
                 )  # fmt: skip
             if change < self.options.tol:
                 return cycle, steps
             last = (temps, residual)
-            temps = temps - np.linalg.solve(jac, residual)
+            proposed = temps - np.linalg.solve(jac, residual)
+            # Heating alone keeps every part above absolute zero: a step below it is a
+            # secant gone astray, so take the plain relaxation step instead.
+            temps = proposed if float(np.min(proposed)) > -273.15 else out[self.index]
             if not np.all(np.isfinite(temps)) or float(np.max(temps)) > IMPLAUSIBLE_TEMPERATURE:
                 estimate = gain if gain is not None else np.zeros((n, n))
                 raise self.runaway(

@@ -4,7 +4,7 @@ The deck is the emitter's no-heating form (:func:`heatweave.runner.prepare` with
 ``heating=False``: ``.control`` blocks dropped as ``run`` drops them, heat-only parts with
 their sense sources) in which every annotated resistor's behavioural source
 ``Bhw_<name> a b I = V(a,b)/(R(V(hw_t_<name>)))`` is replaced by a plain resistor card
-``Rhw_<name> a b <R(T_k)>``.  A plain R card is the cheaper of the two ways to hold a
+``Rhw_fix_<name> a b <R(T_k)>``.  A plain R card is the cheaper of the two ways to hold a
 temperature for ngspice: it is a constant linear conductance stamped once per time step,
 where a behavioural source (even with the temperature written in as a number) is an
 expression that ngspice parses into a tree, evaluates and differentiates at every Newton
@@ -35,9 +35,12 @@ def fixed_resistor_deck(text: str, parts: Sequence[PartPlan], temps: Sequence[fl
     for part, temp in zip(parts, temps, strict=True):
         assert part.model is not None
         name = f"{PREFIX}{safe(part.path)}"
+        held = f"R{PREFIX}fix_{safe(part.path)}"
         pattern = re.compile(rf"^B{re.escape(name)}[ \t]+(\S+)[ \t]+(\S+)[ \t]+I[ \t]*=.*$", re.M)
         value = format_number(float(part.model.resistance(float(temp))))
-        text, count = pattern.subn(rf"R{name} \g<1> \g<2> {value}", text, count=1)
+        if re.search(rf"\b{held}\b", text, re.I):
+            raise EmitError(f"the deck already uses the name {held!r}, which settle reserves")
+        text, count = pattern.subn(rf"{held} \g<1> \g<2> {value}", text, count=1)
         if count != 1:
             raise EmitError(f"cannot find the behavioural source of {part.path} to hold it fixed")
     return text
