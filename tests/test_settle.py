@@ -180,6 +180,7 @@ ACCURACY = [
     pytest.param("pwm_heater", 1e-3, 0.2, id="single-stage-tau-20ms"),
     pytest.param("pwm_foster", 1e-3, 0.2, id="foster-2ms-20ms"),
     pytest.param("pwm_board", 1e-3, 0.4, id="subcircuit-diode-board-node"),
+    pytest.param("pwm_filtered", 1e-3, 0.2, id="rc-smoothed-load"),
 ]
 
 
@@ -204,6 +205,18 @@ def test_settle_matches_brute_force_transient(name: str, period: float, stop: fl
     hottest = settled.parts[0]
     assert hottest.peak_temperature - hottest.valley_temperature > 0.5  # a real ripple
     assert settled.final_change < 0.01
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_waveform_repeat_check_simulates_more_periods() -> None:
+    """An RC-smoothed load (electrical tau 0.8 periods) starts from its operating point
+    and needs roughly ln(1e4) * 0.8 = 7 periods before successive periods agree to 1e-4;
+    the default 4 periods must be doubled until they do."""
+    deck, annotation = fixture("pwm_filtered")
+    settled = settle(deck, annotation, SettleOptions(period=1e-3, periods=4))
+    assert settled.periods >= 8
+    assert not settled.findings
 
 
 @needs_ngspice

@@ -2,12 +2,13 @@
 simulating every switching period until the temperatures stop moving.
 
 Method: relaxation between the two time scales, the averaged-power (quasi-static)
-coupling used in electrothermal co-simulation of power electronics.  The electrical
-waveform settles within a few switching periods while the temperatures take many thermal
-time constants, so the two are solved in turn (from memory, no single paper is claimed:
-this is the standard decomposition of relaxation-based electrothermal simulation, where an
-electrical simulator and a thermal network solver exchange dissipated powers and
-temperatures until they agree):
+coupling of electrothermal co-simulation by simulator coupling: an electrical simulator and
+a thermal network solver exchange dissipated powers and temperatures until they agree.
+Reference, from memory (check before quoting): S. Wünsche, C. Clauß, P. Schwarz and
+F. Winkler, "Electro-thermal circuit simulation using simulator coupling", IEEE
+Transactions on VLSI Systems, 1997.  The electrical waveform settles within a few
+switching periods while the temperatures take many thermal time constants, so the two are
+solved in turn:
 
 1. hold every part at a temperature ``T_k`` (each annotated resistor becomes a plain
    resistor at ``R(T_k)``) and simulate periods until two successive periods agree;
@@ -16,15 +17,17 @@ temperatures until they agree):
 4. repeat from 1 with the new temperatures until the largest change is below ``tol``.
 
 The fixed point ``T = G(T)`` (``G``: temperatures -> averaged powers -> steady
-temperatures) is solved with Broyden's method, which begins as the plain relaxation step
-and turns into a secant/quasi-Newton step, so loop gains close to 1 (where plain relaxation
-crawls) take a handful of iterations.  A loop gain ``dG/dT`` of 1 or more means each kelvin
-of warming raises the dissipation enough to warm the part by more than a kelvin: there is
-no stable operating point, and ``settle`` reports thermal runaway.
+temperatures) is solved with Broyden's method (C. G. Broyden, "A class of methods for
+solving nonlinear simultaneous equations", Mathematics of Computation, 1965; from
+memory).  It begins as the plain relaxation step and turns into a secant (quasi-Newton)
+step, so loop gains close to 1, where plain relaxation crawls, take a handful of
+iterations.  A loop gain ``dG/dT`` of 1 or more means each kelvin of warming raises the
+dissipation enough to warm the part by a kelvin or more: there is no stable operating
+point, and ``settle`` reports thermal runaway.
 
 The ripple within a period is the periodic steady state of the thermal network driven by
 the instantaneous power of the last settled period (exact, see
-:meth:`~heatweave.settle_thermal.ThermalSystem.periodic`).  The method assumes that
+:func:`heatweave.settle_thermal.periodic`).  The method assumes that
 ripple is small enough that resistances do not change noticeably within a period.
 """
 

@@ -18,7 +18,6 @@ from typing import Any
 
 from heatweave import __version__
 from heatweave.emitter import Inputs
-from heatweave.quantities import format_number
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.settle import Settled, Step
 
@@ -121,11 +120,19 @@ def progress_line(step: Step) -> str:
     )
 
 
+def seconds(value: float) -> str:
+    """A time for people: ``1 ms``, ``10 us``, ``2.5 s``."""
+    for unit, scale in (("s", 1.0), ("ms", 1e-3), ("us", 1e-6), ("ns", 1e-9)):
+        if abs(value) >= scale:
+            return f"{value / scale:.4g} {unit}"
+    return f"{value:.4g} s"
+
+
 def render_table(settled: Settled) -> str:
     """The terminal summary: a heading, one row per part and shared node, the caution."""
     gain = "" if settled.gain is None else f", loop gain {settled.gain:+.3f}"
     lines = [
-        f"periodic steady state, period {format_number(settled.period)} s, ambient "
+        f"periodic steady state, period {seconds(settled.period)}, ambient "
         f"{settled.ambient:g} degC: settled in {settled.iterations} iteration(s) of "
         f"{settled.periods} periods, last change {settled.final_change:.2g} K{gain}",
         "",
