@@ -1,0 +1,185 @@
+"""``heatweave sweep``: one deck at many ambients, parameter values and Monte Carlo draws."""
+
+from __future__ import annotations
+
+import sys
+from collections.abc import Callable
+
+import click
+
+from heatweave.cli.common import guarded, is_terminal, style_severity
+from heatweave.cli.run_cmd import BACKENDS, analyses_of, check_outputs
+from heatweave.errors import UsageError
+from heatweave.quantities import SpiceQuantity
+
+#: Width of the progress bar in characters.
+BAR = 30
+
+
+def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
+    """A callback drawing ``corners 12/20 [######....] 1 failed`` on stderr, or ``None``."""
+    if not enabled:
+        return None
+
+    def show(done: int, total: int, failed: int) -> None:
+        filled = BAR * done // total
+        bar = "#" * filled + "." * (BAR - filled)
+        tail = f" {failed} failed" if failed else ""
+        click.echo(f"\rcorners {done}/{total} [{bar}]{tail}", err=True, nl=False)
+        if done == total:
+            click.echo("\r" + " " * (BAR + 40) + "\r", err=True, nl=False)
+
+    return show
+
+
+@click.command()
+@click.argument("deck", type=click.Path(dir_okay=False, exists=True))
+@click.option(
+    "-a",
+    "--annotations",
+    type=click.Path(dir_okay=False, exists=True),
+    help="Annotation file (default: DECK.thermal.toml beside the deck).",
+)
+@click.option(
+    "--ambient",
+    "ambient_range",
+    metavar="START:STOP:STEP",
+    help="Ambient temperatures (degC), e.g. -40:125:5 or one value; default the annotation's.",
+)
+@click.option(
+    "--param",
+    "param_ranges",
+    multiple=True,
+    metavar="NAME=START:STOP:STEP",
+    help="Values of a top-level .param of the deck (repeatable: the full grid).",
+)
+@click.option(
+    "--monte-carlo",
+    "draws",
+    type=click.IntRange(min=1),
+    metavar="N",
+    help="N Monte Carlo draws of the annotation's tolerances, each at every corner.",
+)
+@click.option("--seed", type=click.IntRange(min=0), help="Seed of the Monte Carlo draws.")
+@click.option("--op", is_flag=True, help="Run an operating point instead of the deck's analyses.")
+@click.option(
+    "--tran",
+    type=(SpiceQuantity("s", positive=True), SpiceQuantity("s", positive=True)),
+    metavar="TSTEP TSTOP",
+    help="Run a transient instead of the deck's analyses, e.g. 1m 10.",
+)
+@click.option(
+    "--backend",
+    type=click.Choice(BACKENDS),
+    default="auto",
+    show_default=True,
+    help="How each worker drives ngspice: shared library, batch program, or whichever works.",
+)
+@click.option(
+    "--allow-control", is_flag=True, help="Keep the deck's .control blocks (they can run any command)."
+)
+@click.option("-j", "--jobs", type=int, help="Worker processes (default: all cores).")
+@click.option(
+    "--executor",
+    type=click.Choice(("local", "dask")),
+    default="local",
+    show_default=True,
+    help="Local worker processes, or a Dask distributed cluster.",
+)
+@click.option(
+    "--scheduler",
+    metavar="ADDRESS",
+    help="Dask scheduler (tcp://HOST:PORT); without it --executor dask starts a local cluster.",
+)
+@click.option(
+    "--timeout",
+    type=SpiceQuantity("s", positive=True),
+    metavar="SECONDS",
+    help="Stop ngspice after this long (each corner).",
+)
+@click.option("--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout).")
+@click.option("--csv", "csv_file", metavar="FILE", help="Write one CSV row per corner and part.")
+@click.option("--plot", "plot_file", metavar="FILE.png", help="Write a PNG figure.")
+@click.option("-q", "--quiet", is_flag=True, help="No table and no progress; warnings only.")
+@guarded
+def sweep(
+    deck: str,
+    annotations: str | None,
+    ambient_range: str | None,
+    param_ranges: tuple[str, ...],
+    draws: int | None,
+    seed: int | None,
+    op: bool,
+    tran: tuple[float, float] | None,
+    backend: str,
+    allow_control: bool,
+    jobs: int | None,
+    executor: str,
+    scheduler: str | None,
+    timeout: float | None,
+    json_file: str | None,
+    csv_file: str | None,
+    plot_file: str | None,
+    quiet: bool,
+) -> None:
+    """Run DECK at every corner of a sweep, in parallel, and report each part per corner.
+
+    Corners are the full grid of --param values x Monte Carlo draws x --ambient values.
+    Exit status: 0 when every corner ran, 1 when some failed (each is named), and when all
+    failed the status of the first corner's error (3, 4, 7, ...).
+    """  # fmt: skip
+    from heatweave.annotations import default_path
+    from heatweave.emitter import load_inputs
+    from heatweave.executors import make_executor
+    from heatweave.files import write_atomic
+    from heatweave.runner import RunOptions
+    from heatweave.sweep import SweepPlan, exit_status, run_sweep
+    from heatweave.sweep_grid import parse_assignment, parse_range
+
+    if seed is not None and draws is None:
+        raise UsageError("--seed is for --monte-carlo", hint="add --monte-carlo N")
+    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file}
+    check_outputs(outputs, deck)
+    ambients: tuple[float | None, ...] = (None,)
+    if ambient_range is not None:
+        ambients = parse_range(ambient_range, "--ambient")
+    params = tuple(parse_assignment(text) for text in param_ranges)
+    names = [name.lower() for name, _ in params]
+    if len(set(names)) != len(names):
+        raise UsageError("--param names one parameter twice", hint="give each name once")
+    plan = SweepPlan(ambients, params, draws or 0, seed)
+    options = RunOptions(
+        analyses=analyses_of(op, tran),
+        backend=backend,
+        allow_control=allow_control,
+        timeout=timeout,
+    )
+    annotation_path = annotations or str(default_path(deck))
+    inputs = load_inputs(deck, annotation_path)
+    pool = make_executor(executor, jobs, scheduler)
+    try:
+        progress = progress_bar(not quiet and is_terminal())
+        result = run_sweep(inputs, plan, options, pool, progress)
+    finally:
+        pool.close()
+    # Warnings every corner repeats (a dropped .control block) are printed once.
+    for text in dict.fromkeys(w for o in result.outcomes for w in o.warnings):
+        click.echo(style_severity(text, "warning"), err=True)
+    from heatweave import sweep_report
+
+    if json_file is not None:
+        write_atomic(json_file, sweep_report.render_json(result))
+    if csv_file is not None:
+        write_atomic(csv_file, sweep_report.render_csv(result))
+    if plot_file is not None:
+        from heatweave.reports import sweep_plot
+
+        write_atomic(plot_file, sweep_plot.render_png(result))
+    if not quiet:
+        stream = sys.stderr if "-" in outputs.values() else sys.stdout
+        text = sweep_report.render_table(result, colour=is_terminal(stream))
+        click.echo(text, file=stream, nl=False)
+    elif result.failed:
+        for outcome in result.failed:
+            click.echo(f"corner {outcome.corner.index} failed: {outcome.error}", err=True)
+    sys.exit(exit_status(result))

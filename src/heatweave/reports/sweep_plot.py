@@ -1,0 +1,159 @@
+"""The figure of ``heatweave sweep --plot FILE.png``.
+
+Corners: two panels over the ambient axis, part temperature (degC) and resistance drift
+(ppm), one curve per part and parameter corner, named in a legend beside the panels.
+Monte Carlo at one corner: for each part a histogram of its temperature and one of its
+drift over the draws, with the 1st, 50th and 99th percentiles as dashed, solid and dashed
+lines.  Monte Carlo at several ambients: the 1st..99th percentile band and the median
+against ambient, one band per parameter corner, so the spread a tolerance causes reads
+directly at every ambient.
+
+Built on matplotlib's object interface with the Agg canvas (no window, no pyplot state).
+"""
+
+from __future__ import annotations
+
+import io
+from typing import Any
+
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from heatweave.reports.plot import palette
+from heatweave.sweep import PERCENTILES, SweepResult, summary
+from heatweave.sweep_report import corner_ambient
+
+QUANTITIES = (
+    ("temperature", "part temperature (degC)"),
+    ("resistance_change_ppm", "resistance drift vs deck value (ppm)"),
+)
+LINES = ("--", "-", "--")  # p1, p50, p99
+BAR_COLOUR = "tab:blue"
+LINE_COLOUR = "0.15"
+
+
+def _params_label(params: dict[str, float]) -> str:
+    return ", ".join(f"{name}={value:g}" for name, value in params.items())
+
+
+def _corner_curves(result: SweepResult) -> dict[str, list[tuple[float, dict[str, Any]]]]:
+    """(ambient, part values) per curve name ``PART`` or ``PART, name=value``."""
+    curves: dict[str, list[tuple[float, dict[str, Any]]]] = {}
+    for outcome in result.outcomes:
+        if outcome.data is None:
+            continue
+        suffix = _params_label(outcome.corner.params)
+        for part, values in outcome.data["parts"].items():
+            name = f"{part}, {suffix}" if suffix else part
+            curves.setdefault(name, []).append((corner_ambient(result, outcome), values))
+    return curves
+
+
+def _corners(figure: Figure, result: SweepResult) -> None:
+    curves = _corner_curves(result)
+    colours = palette(list(curves))
+    axes: list[Axes] = [figure.add_subplot(2, 1, k + 1) for k in range(2)]
+    for ax, (key, label) in zip(axes, QUANTITIES, strict=True):
+        for name, points in curves.items():
+            pairs = sorted((a, v[key]) for a, v in points if v.get(key) is not None)
+            if not pairs:
+                continue
+            xs, ys = zip(*pairs, strict=True)
+            ax.plot(xs, ys, marker="o", markersize=3, color=colours[name], label=name)
+        ax.set_ylabel(label)
+        ax.grid(True, alpha=0.3)
+    axes[-1].set_xlabel("ambient temperature (degC)")
+    axes[0].set_title(f"{result.inputs.deck_path}: {len(result.outcomes)} corners")
+    if curves:
+        axes[0].legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="small")
+
+
+def _group_label(group: dict[str, Any]) -> str:
+    ambient = group["ambient"]
+    label = "ambient ?" if ambient is None else f"ambient {ambient:g} degC"
+    extra = _params_label(group["params"])
+    return f"{label}, {extra}" if extra else label
+
+
+def _histograms(ax: Axes, result: SweepResult, group: dict[str, Any], part: str, key: str) -> None:
+    values = [
+        o.data["parts"][part][key]
+        for o in result.outcomes
+        if o.data is not None and o.data["parts"][part].get(key) is not None
+    ]
+    ax.hist(values, bins="auto", color=BAR_COLOUR, alpha=0.7)
+    figures = group["parts"][part].get(key)
+    if figures is None:
+        return
+    for p, style in zip(PERCENTILES, LINES, strict=True):
+        value = figures[f"p{p:g}"]
+        ax.axvline(value, color=LINE_COLOUR, linestyle=style, linewidth=1.2)
+        ax.annotate(
+            f"p{p:g}", (value, 1.0), xycoords=("data", "axes fraction"),
+            xytext=(2, -12), textcoords="offset points", fontsize="small", color=LINE_COLOUR,
+        )  # fmt: skip
+    ax.set_ylabel("draws")
+
+
+def _bands(ax: Axes, groups: list[dict[str, Any]], part: str, key: str) -> None:
+    """p1..p99 band and p50 line against ambient, one per parameter corner."""
+    by_params: dict[str, list[dict[str, Any]]] = {}
+    for group in groups:
+        by_params.setdefault(_params_label(group["params"]), []).append(group)
+    colours = palette(list(by_params))
+    for name, members in by_params.items():
+        rows = sorted(
+            (g["ambient"], g["parts"][part][key]) for g in members if key in g["parts"][part]
+        )
+        if not rows:
+            continue
+        xs = [a for a, _ in rows]
+        label = name or part
+        ax.fill_between(
+            xs, [f["p1"] for _, f in rows], [f["p99"] for _, f in rows],
+            color=colours[name], alpha=0.25, label=f"{label}: p1 to p99",
+        )  # fmt: skip
+        ax.plot(xs, [f["p50"] for _, f in rows], color=colours[name], marker="o",
+                markersize=3, label=f"{label}: p50")  # fmt: skip
+    ax.set_xlabel("ambient temperature (degC)")
+    ax.legend(fontsize="small")
+
+
+def _monte_carlo(figure: Figure, result: SweepResult) -> None:
+    """Histograms when the draws ran at one corner; percentile bands over ambient else."""
+    groups = summary(result)["groups"]
+    parts = result.part_names
+    for row, part in enumerate(parts):
+        for col, (key, label) in enumerate(QUANTITIES):
+            ax = figure.add_subplot(len(parts), 2, 2 * row + col + 1)
+            if len(groups) == 1:
+                _histograms(ax, result, groups[0], part, key)
+                ax.set_xlabel(f"{part}: {label}")
+            else:
+                _bands(ax, groups, part, key)
+                ax.set_ylabel(f"{part}: {label}")
+            ax.grid(True, alpha=0.3)
+    where = ""
+    if len(groups) == 1:
+        where = f" at {_group_label(groups[0])}"
+    figure.suptitle(
+        f"{result.inputs.deck_path}: Monte Carlo, {result.plan.draws} draws{where}, "
+        f"seed {result.plan.seed}"
+    )
+
+
+def render_png(result: SweepResult) -> bytes:
+    """The figure as PNG bytes."""
+    parts = max(len(result.part_names), 1)
+    monte_carlo = bool(result.plan.draws)
+    height = 3.2 * parts + 1.0 if monte_carlo else 7.0
+    figure = Figure(figsize=(12.0, height), layout="constrained")
+    FigureCanvasAgg(figure)
+    if monte_carlo:
+        _monte_carlo(figure, result)
+    else:
+        _corners(figure, result)
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=100)
+    return buffer.getvalue()
