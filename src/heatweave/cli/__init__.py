@@ -22,6 +22,7 @@ COMMANDS: dict[str, str] = {
     "run": "heatweave.cli.run_cmd:run",
     "schema": "heatweave.cli.schema_cmd:schema",
     "settle": "heatweave.cli.settle_cmd:settle",
+    "sweep": "heatweave.cli.sweep_cmd:sweep",
 }
 
 
