@@ -13,6 +13,8 @@ import sys
 import tempfile
 from pathlib import Path
 
+from heatweave.errors import UsageError
+
 ENCODING = "utf-8"
 ERRORS = "surrogateescape"
 
@@ -46,7 +48,20 @@ def write_atomic(path: str | os.PathLike[str], data: bytes | str) -> None:
         return
     target = Path(path)
     folder = target.parent if str(target.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    if target.is_dir():
+        raise UsageError(f"cannot write {target}: it is a folder", hint="name a file")
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    except FileNotFoundError:
+        raise UsageError(
+            f"cannot write {target}: the folder {folder} does not exist",
+            hint=f"create it first (mkdir -p {folder}) or choose another path",
+        ) from None
+    except PermissionError:
+        raise UsageError(
+            f"cannot write {target}: no permission to write in {folder}",
+            hint="choose a folder you can write to",
+        ) from None
     try:
         with os.fdopen(fd, "wb") as handle:
             handle.write(payload)
