@@ -68,6 +68,8 @@ class HeatweaveError(Exception):
         self.message = message
         self.location = location
         self.hint = hint
+        # Warnings gathered before the error, printed ahead of it.
+        self.findings: tuple[Finding, ...] = ()
 
     def render(self) -> str:
         """The full message: ``FILE:LINE:COL: error: ...``, the source excerpt, the hint."""

@@ -66,6 +66,7 @@ class RunResults:
     time: FloatArray | None = field(default=None, repr=False)
     node_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
     voltage_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
+    ambient_series: FloatArray | None = field(default=None, repr=False)
 
     def part(self, path: str) -> PartResult:
         """A part's results by instance path (case-insensitive)."""
@@ -183,4 +184,5 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
         time=time,
         node_series=node_series,
         voltage_series=voltage_series,
+        ambient_series=ambient_values if transient else None,
     )

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from heatweave.annotations import Annotation
-from heatweave.deck import Block, Card, ControlBlock, Node
+from heatweave.deck import Card, ControlBlock, Node
 from heatweave.emitter import Emitted, Inputs, emit_inputs, load_inputs
 from heatweave.errors import (
     ConvergenceError,
@@ -153,16 +153,21 @@ def run(
     prepared = prepare(inputs, options, annotation)
     assert prepared.emitted.circuit is not None
     try:
-        sim = simulate(prepared, options)
-    except (ConvergenceError, TimestepTooSmallError) as failure:
-        # No electrothermal solution: find out whether self-heating ran away.
-        explained = explain_runaway(inputs, options, prepared, failure, None)
-        raise (explained or failure) from None
-    results = extract(sim, prepared.emitted.circuit, inputs.index)
-    if implausible(results):
-        explained = explain_runaway(inputs, options, prepared, None, results)
-        if explained is not None:
-            raise explained
+        try:
+            sim = simulate(prepared, options)
+        except (ConvergenceError, TimestepTooSmallError) as failure:
+            # No electrothermal solution: find out whether self-heating ran away.
+            explained = explain_runaway(inputs, options, prepared, failure, None)
+            raise (explained or failure) from None
+        results = extract(sim, prepared.emitted.circuit, inputs.index)
+        if implausible(results):
+            explained = explain_runaway(inputs, options, prepared, None, results)
+            if explained is not None:
+                raise explained
+    except SimulatorError as err:
+        # The warnings from emitting still matter (a dropped .control block, say).
+        err.findings = (*prepared.findings, *err.findings)
+        raise
     return RunOutcome(prepared, sim, results)
 
 
@@ -211,6 +216,3 @@ def run_baseline(
     return RunOutcome(prepared, sim, extract(sim, prepared.emitted.circuit, inputs.index))
 
 
-def top_level_cards(body: tuple[Node, ...]) -> list[Card]:
-    """Cards of a body that are not inside blocks."""
-    return [n for n in body if isinstance(n, Card) and not isinstance(n, Block)]

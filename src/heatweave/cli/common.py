@@ -26,6 +26,7 @@ def guarded(func: Callable[P, R]) -> Callable[P, R]:
         try:
             return func(*args, **kwargs)
         except HeatweaveError as err:
+            report_findings(list(err.findings))
             click.echo(style_severity(err.render(), err.severity), err=True)
             sys.exit(err.exit_code)
         except KeyboardInterrupt:
