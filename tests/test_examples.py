@@ -18,6 +18,7 @@ an edited example is checked as written); the temperature laws are written out h
 
 from __future__ import annotations
 
+import itertools
 import json
 import math
 import re
@@ -78,6 +79,23 @@ def value(inputs: Inputs, element: str, field: int = 3) -> float:
     number = parse_number(resolved.card.fields()[field])
     assert number is not None, (element, field)
     return number
+
+
+def model_value(inputs: Inputs, model: str, key: str) -> float:
+    """A ``key=value`` number of a ``.model`` card of the deck."""
+    fields = inputs.index.models[model.lower()].fields()
+    number = parse_number(fields[fields.index(key) + 2])
+    assert number is not None, (model, key)
+    return number
+
+
+def numbers(inputs: Inputs, element: str, start: int) -> list[float]:
+    """The number fields of an element card from field *start* on (PULSE, PWL lists)."""
+    resolved = inputs.index.resolve(element)
+    assert resolved is not None, element
+    found = [parse_number(f) for f in resolved.card.fields()[start:]]
+    assert None not in found, element
+    return [f for f in found if f is not None]
 
 
 def spec_of(inputs: Inputs, element: str) -> dict[str, float]:
@@ -234,8 +252,8 @@ def test_monitor_steady_state_matches_heat_balance() -> None:
 @needs_ngspice
 def test_monitor_warm_up_follows_the_thermal_ode() -> None:
     """The warm-up against scipy's solve_ivp of C dT/dt = P(T) - G T + g_amb Ta, the powers
-    from the nodal solve at each step; ngspice's own step control (reltol 1e-3 of the node
-    value, ngspice manual 15.1.4) sets the tolerance."""
+    from the nodal solve at each step; ngspice's own error control (RELTOL default 1e-3 of the
+    node value, ngspice manual 15.1.2) sets the tolerance."""
     inputs = inputs_of(*MONITOR)
     ambient = inputs.annotation.ambient.temperature
     names, g_matrix, c_diag, to_ambient = thermal_matrices(inputs)
@@ -314,7 +332,7 @@ def test_monitor_reading_drifts_by_the_shunt_less_the_gain() -> None:
 # -- RTD ------------------------------------------------------------------------------------
 
 RTD = ("rtd-excitation", "rtd")
-# IEC 60751 Callendar-Van Dusen coefficients (IEC 60751:2008, clause 4.2).
+# IEC 60751 Callendar-Van Dusen coefficients for platinum (from memory of the standard).
 IEC_A, IEC_B, IEC_C = 3.9083e-3, -5.775e-7, -4.183e-12
 
 
@@ -385,8 +403,25 @@ def test_rtd_self_heating_matches_the_fixed_point(
 # -- inrush limiter -------------------------------------------------------------------------
 
 INRUSH = ("inrush-limiter", "inrush")
-SWITCH_RON = 10e-3  # ron of the deck's .model busswitch
-SWITCH_TIMES = (0.010, 150.0, 152.0)  # close, open, close again (VCTL)
+
+
+def switch_times(inputs: Inputs) -> list[float]:
+    """When VCTL's PWL crosses the threshold of ``.model busswitch``, up or down: the bus
+    switch closes, opens, closes again (the edges are 1 us, the crossing is taken at the
+    edge's start, well inside the windows the tests use)."""
+    pwl = numbers(inputs, "VCTL", 4)
+    points = list(zip(pwl[::2], pwl[1::2], strict=True))
+    threshold = model_value(inputs, "busswitch", "vt")
+    return [
+        t0
+        for (t0, v0), (_t1, v1) in itertools.pairwise(points)
+        if (v0 - threshold) * (v1 - threshold) < 0
+    ]
+
+
+def series_resistance(inputs: Inputs) -> float:
+    """Wiring and bank resistance plus the closed switch."""
+    return value(inputs, "RWIRE") + model_value(inputs, "busswitch", "ron")
 
 
 def ntc_r(inputs: Inputs, t_c: float) -> float:
@@ -401,8 +436,8 @@ def window(time: FloatArray, start: float, stop: float) -> npt.NDArray[np.bool_]
 
 
 @needs_ngspice
-@pytest.mark.parametrize(("event", "t_close"), [("cold start", 0), ("hot restart", 2)])
-def test_inrush_peak_follows_ohms_law_at_closing(event: str, t_close: int) -> None:
+@pytest.mark.parametrize(("event", "which"), [("cold start", 0), ("hot restart", 2)])
+def test_inrush_peak_follows_ohms_law_at_closing(event: str, which: int) -> None:
     """Peak current = V_bus / (R_ntc(T at closing) + R_wire + R_on), the bank at 0 V;
     tolerance 1 %: during the first microseconds the bank charges by dt / tau and the NTC
     warms a little, both well below that."""
@@ -413,27 +448,28 @@ def test_inrush_peak_follows_ohms_law_at_closing(event: str, t_close: int) -> No
     current = np.real(np.asarray(plot["i(vamm)"]))
     ntc = done.results.part("RNTC")
     assert ntc.temperature_series is not None
-    closing = SWITCH_TIMES[t_close]
+    closing = switch_times(inputs)[which]
     before = window(time, closing - 0.5, closing)
     t_ntc = float(ntc.temperature_series[before][-1])
     # The switch is open and the bank empty before it closes: the formula's premises.
     assert float(np.abs(current[before]).max()) < 1e-3
     v_bus = value(inputs, "VBUS", 4)
     assert abs(done.results.voltage_series["bank"][before][-1]) < 1e-4 * v_bus
-    series = value(inputs, "RWIRE") + SWITCH_RON
-    expected = v_bus / (ntc_r(inputs, t_ntc) + series)
+    expected = v_bus / (ntc_r(inputs, t_ntc) + series_resistance(inputs))
     peak = float(np.abs(current[window(time, closing, closing + 1.0)]).max())
     assert peak == pytest.approx(expected, rel=0.01), event
 
 
 @needs_ngspice
 def test_inrush_hot_restart_peak_is_many_times_the_cold_one() -> None:
+    closing = switch_times(inputs_of(*INRUSH))
+    assert closing == pytest.approx([0.010, 150.0, 152.0])
     done = outcome_of(*INRUSH)
     plot = main_plot(done.sim)
     time = np.real(np.asarray(plot["time"]))
     current = np.abs(np.real(np.asarray(plot["i(vamm)"])))
     cold = float(current[window(time, 0.0, 1.0)].max())
-    hot = float(current[window(time, SWITCH_TIMES[2], SWITCH_TIMES[2] + 1.0)].max())
+    hot = float(current[window(time, closing[2], closing[2] + 1.0)].max())
     # The note's numbers: 9.39 A cold, about 95 A on the hot restart.
     assert cold == pytest.approx(9.39, abs=0.01)
     assert hot == pytest.approx(95.1, abs=0.5)
@@ -447,7 +483,7 @@ def test_inrush_running_state_matches_the_fixed_point() -> None:
     ambient = inputs.annotation.ambient.temperature
     rth = spec_of(inputs, "RNTC")["rth"]
     v_bus, r_load = value(inputs, "VBUS", 4), value(inputs, "RLOAD")
-    series = value(inputs, "RWIRE") + SWITCH_RON
+    series = series_resistance(inputs)
 
     def balance(t_c: float) -> float:
         r_ntc = ntc_r(inputs, t_c)
@@ -458,7 +494,8 @@ def test_inrush_running_state_matches_the_fixed_point() -> None:
     done = outcome_of(*INRUSH)
     ntc = done.results.part("RNTC")
     assert done.results.time is not None and ntc.temperature_series is not None
-    running = window(done.results.time, SWITCH_TIMES[1] - 1.0, SWITCH_TIMES[1])
+    opening = switch_times(inputs)[1]
+    running = window(done.results.time, opening - 1.0, opening)
     assert float(ntc.temperature_series[running][-1]) == pytest.approx(expected, abs=0.05)
     # The note's numbers: about 110 degC and 0.37 ohm while running, 24 ohm load at 48 V.
     assert expected == pytest.approx(110.1, abs=0.2)
@@ -468,8 +505,20 @@ def test_inrush_running_state_matches_the_fixed_point() -> None:
 # -- PWM heater -----------------------------------------------------------------------------
 
 HEATER = ("pwm-heater", "heater")
-HEATER_DUTY = 0.4  # VGATE: 200 us of 500 us above the switch's thresholds
-HEATER_RON = 20e-3  # ron of the deck's .model lowside
+
+
+def heater_duty(inputs: Inputs) -> float:
+    """The share of each period the low-side switch is on: VGATE's PULSE rises over tr and
+    falls over tf; the switch closes above vt + vh and opens below vt - vh (ngspice's switch
+    with hysteresis, from memory: the manual lists vt and vh without the rule; with tr = tf
+    the on-time comes out the same for a single threshold vt), so it is on from
+    ``tr (vt + vh) / V2`` to ``tr + pw + tf (1 - (vt - vh) / V2)``."""
+    v1, v2, _delay, rise, fall, width, period = numbers(inputs, "VGATE", 4)
+    assert v1 == 0.0
+    vt, vh = model_value(inputs, "lowside", "vt"), model_value(inputs, "lowside", "vh")
+    on = rise * (vt + vh) / v2
+    off = rise + width + fall * (1.0 - (vt - vh) / v2)
+    return (off - on) / period
 
 
 @needs_ngspice
@@ -481,10 +530,12 @@ def test_pwm_heater_mean_rise_is_mean_power_times_rth() -> None:
     rth_part = spec_of(inputs, "RHEAT")["rth"]
     rth_plate = inputs.annotation.node("plate").rth
     v_sup = value(inputs, "VSUP", 4)
+    duty, r_on = heater_duty(inputs), model_value(inputs, "lowside", "ron")
+    assert duty == pytest.approx(0.4)
 
     def mean_power(t_c: float) -> float:
         r = linear_r(inputs, "RHEAT", t_c)
-        return HEATER_DUTY * v_sup * v_sup * r / (r + HEATER_RON) ** 2
+        return duty * v_sup * v_sup * r / (r + r_on) ** 2
 
     def balance(t_c: float) -> float:
         return ambient + mean_power(t_c) * (rth_part + rth_plate) - t_c
