@@ -72,13 +72,18 @@ def outcome_of(folder: str, name: str) -> RunOutcome:
     return run(*paths(folder, name), inputs=inputs_of(folder, name))
 
 
-def value(inputs: Inputs, element: str, field: int = 3) -> float:
-    """A number field of an element card of the deck (field 3: a two-terminal value)."""
+def numbers(inputs: Inputs, element: str, start: int) -> list[float]:
+    """The number fields of an element card from field *start* on (PULSE, PWL lists)."""
     resolved = inputs.index.resolve(element)
     assert resolved is not None, element
-    number = parse_number(resolved.card.fields()[field])
-    assert number is not None, (element, field)
-    return number
+    found = [parse_number(f) for f in resolved.card.fields()[start:]]
+    assert None not in found, (element, found)
+    return [f for f in found if f is not None]
+
+
+def value(inputs: Inputs, element: str, field: int = 3) -> float:
+    """A number field of an element card of the deck (field 3: a two-terminal value)."""
+    return numbers(inputs, element, field)[0]
 
 
 def model_value(inputs: Inputs, model: str, key: str) -> float:
@@ -87,15 +92,6 @@ def model_value(inputs: Inputs, model: str, key: str) -> float:
     number = parse_number(fields[fields.index(key) + 2])
     assert number is not None, (model, key)
     return number
-
-
-def numbers(inputs: Inputs, element: str, start: int) -> list[float]:
-    """The number fields of an element card from field *start* on (PULSE, PWL lists)."""
-    resolved = inputs.index.resolve(element)
-    assert resolved is not None, element
-    found = [parse_number(f) for f in resolved.card.fields()[start:]]
-    assert None not in found, element
-    return [f for f in found if f is not None]
 
 
 def spec_of(inputs: Inputs, element: str) -> dict[str, float]:
