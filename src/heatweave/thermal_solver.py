@@ -244,17 +244,18 @@ class Propagator:
     The optional ``moment`` adds the first-order effect of the input varying inside the
     step around its mean: for ``u(s) = u + du(s)`` with ``du`` of zero mean,
     ``int_0^h e^{A(h-s)} B du(s) ds = A B m1 + O(h^2 A^2 |B m1| / 2)`` with
-    ``m1 = int_0^h (h - s) du(s) ds`` (``moment``); the rest is second order in
-    ``h / tau_min``.
+    ``m1 = int_0^h (h - s) du(s) ds`` (``moment``); the rest is second order, about
+    ``h / (2 tau_min)`` of the first-order term.  ``use_modal=False`` always takes the matrix exponential.
     """
 
     system: ThermalSystem
+    use_modal: bool = True
     _modal: tuple[FloatArray, FloatArray, FloatArray] | None = field(default=None, init=False)
     _cache: dict[float, tuple[FloatArray, FloatArray]] = field(default_factory=dict, init=False)
 
     def __post_init__(self) -> None:
         a = self.system.a
-        if a.size == 0:
+        if a.size == 0 or not self.use_modal:
             return
         values, vectors = np.linalg.eig(a)
         if np.any(np.abs(np.imag(values)) > 1e-9 * np.abs(values).max()):

@@ -32,8 +32,9 @@ from heatweave.runner import ANALYSIS_CARDS, RunOptions, RunOutcome, deck_analys
 from heatweave.thermal_circuit import AMBIENT_NODE, ThermalCircuit
 from heatweave.thermal_solver import ThermalSystem, assemble
 
-from .engine import Probe, Trace, cosimulate
+from .engine import Probe, StrongFeedback, Trace, cosimulate
 from .method import SEPARATION, Transient, choose_method, source_time_scale
+from .windows import MAX_LOOP_GAIN
 
 __all__ = [
     "DEFAULT_TOLERANCE",
@@ -129,6 +130,13 @@ def run_auto(
             if method == "cosim":
                 raise
             reason = "the ngspice shared library is missing, so the full deck ran"
+        except StrongFeedback as strong:
+            if method == "cosim":
+                raise UsageError(
+                    f"the co-simulation stopped: {strong} (above {MAX_LOOP_GAIN:g})",
+                    hint="use --method full: near thermal runaway only the full deck is exact",
+                ) from None
+            reason = f"{strong} is too strong for the co-simulation, so the full deck ran"
     outcome = runner.run(deck_path, annotation_path, options, inputs=inputs, annotation=annotation)
     findings = outcome.prepared.findings
     return FastOutcome(outcome.results, "full", reason, findings, full=outcome)

@@ -39,12 +39,21 @@ from heatweave.thermal_solver import Propagator, ThermalSystem
 
 from .bank import ModelBank
 from .method import Transient
-from .windows import WindowRule, window_power
+from .windows import MAX_LOOP_GAIN, WindowRule, error_rate, loop_gain, window_power
 
 FloatArray = npt.NDArray[np.float64]
 
 #: An alter is skipped when the resistance moved by less than this fraction since the last.
 ALTER_THRESHOLD = 1e-9
+
+
+class StrongFeedback(Exception):
+    """The electrothermal loop gain got too high for the co-simulation to be accurate."""
+
+    def __init__(self, gain: float, time: float) -> None:
+        super().__init__(f"electrothermal loop gain {gain:.2f} at {time:.4g} s")
+        self.gain = gain
+        self.time = time
 
 
 @dataclass(frozen=True, slots=True)
@@ -170,7 +179,7 @@ class _Loop:
         self.held = np.zeros(self.bank.size)
         self.clock = _Clock()
 
-    def hold(self, values: FloatArray, threshold: float = ALTER_THRESHOLD) -> None:
+    def hold(self, values: FloatArray, threshold: FloatArray | float = ALTER_THRESHOLD) -> None:
         """``alter`` every resistor whose held value moved by more than *threshold*."""
         changed = np.abs(values - self.held) > threshold * np.abs(self.held)
         for j in np.flatnonzero(changed).tolist():
@@ -200,7 +209,7 @@ class _Loop:
         times, rows, powers, ohms = [0.0], [temps], [power], [bank.resistance(temps[:n_parts])]
         ends = [0]
         h, start, now, first = self.rule.first(), 0, 0.0, True
-        gain = system.dc_gain[:n_parts]
+        gain = system.dc_gain[:n_parts, :n_parts]
         while now < self.tran.tstop * (1 - 1e-12):
             target = now + h
             _command(self.lib, "delete all")
@@ -231,12 +240,14 @@ class _Loop:
             part_temps = temps[:n_parts]
             ohms.append(bank.resistance(part_temps))
             rate = system.c[:n_parts] @ system.derivative(z, u)
-            log_rate = float(np.max(np.abs(bank.slope(part_temps) / ohms[-1] * rate)))
-            scale = float(np.max(gain @ power))
-            h = self.rule.next(step, scale, log_rate)
+            log_slope = bank.slope(part_temps) / ohms[-1]
+            loop = loop_gain(gain, power, log_slope)
+            if loop > MAX_LOOP_GAIN:
+                raise StrongFeedback(loop, now)
+            h = self.rule.next(step, error_rate(gain, power, log_slope, rate))
             mid = part_temps + rate * min(h, self.tran.tstop - now) / 2
             self.clock.lap("thermal")
-            self.hold(bank.resistance(mid), self.rule.alter_threshold(scale))
+            self.hold(bank.resistance(mid), self.rule.alter_threshold(gain, power))
             if deadline is not None and clock.monotonic() > deadline:
                 raise timed_out(timeout)
         powers[0] = powers[1] if len(powers) > 1 else powers[0]
