@@ -137,10 +137,6 @@ def test_ngspice_accepts_the_plain_deck(folder: str, name: str, tmp_path: Path) 
     assert not re.search(r"\berror\b", log, re.IGNORECASE), log
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="annotation loader: `temperature = 0.0` in [ambient] is read as 25 (falsy 0.0)",
-)
 def test_rtd_annotation_ambient_is_the_bath_at_zero() -> None:
     _, annotation_path = paths("rtd-excitation", "rtd")
     assert load(annotation_path).ambient.temperature == 0.0

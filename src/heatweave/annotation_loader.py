@@ -143,7 +143,8 @@ def _ambient(table: object, reader: TableReader) -> Ambient:
                 "write [time s, degC] pairs in time order, e.g. [[0, 25], [600, 40]]",
             )
         return Ambient(temperature=profile[0][1], profile=profile)
-    return Ambient(temperature=got.number("temperature") or 25.0)
+    temperature = got.number("temperature")
+    return Ambient(temperature=25.0 if temperature is None else temperature)
 
 
 def _node(name: str, table: dict[str, object], reader: TableReader) -> NodeSpec:

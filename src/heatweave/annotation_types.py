@@ -100,10 +100,9 @@ class PartSpec:
         """Allowed power (W) at *t_c*: full to the knee, linear to zero at tmax (IEC 60115-1)."""
         if self.power_rating is None:
             return None
-        if self.tmax is None or t_c <= self.derating_knee:
-            return self.power_rating
-        share = (self.tmax - t_c) / (self.tmax - self.derating_knee)
-        return self.power_rating * min(max(share, 0.0), 1.0)
+        from heatweave.ratings import derated_power
+
+        return derated_power(self.power_rating, t_c, self.derating_knee, self.tmax)
 
 
 @dataclass(frozen=True, slots=True)

@@ -131,7 +131,7 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
             drop = voltage(nodes[0]) - voltage(nodes[1])
             power = drop * drop / r_series
             resistance = float(r_series[-1])
-            nominal = float(part.model.resistance(getattr(part.model, "tref", 25.0)))
+            nominal = part.nominal_resistance
         else:
             resistance_series = None
             power = np.zeros_like(temp)

@@ -16,7 +16,6 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-from heatweave import tempmodels
 from heatweave.annotations import AMBIENT, Annotation, BoundPart, NetworkSpec
 from heatweave.errors import AnnotationError, Finding, Location
 from heatweave.hierarchy import DeckIndex
@@ -58,6 +57,7 @@ class PartPlan:
     tmax: float | None
     derating_knee: float
     location: Location | None
+    nominal_resistance: float | None = None  # the deck's value (ohm), holding at tref
 
     @property
     def node(self) -> str:
@@ -148,6 +148,7 @@ def build_circuit(
         except NetworkError as err:
             raise err.at(spec.location) from None
         model = None
+        nominal = None
         found = index.resolve(item.element)
         if found is None:
             raise AnnotationError(f"{item.element} is not in the deck", spec.location)
@@ -158,11 +159,12 @@ def build_circuit(
                 Finding("warning", f"{item.element}: {note}", found.card.location())
                 for note in value.notes
             )
-            model = tempmodels.get(spec.model).from_params(dict(spec.params), value.ohms, spec.tref)
+            nominal = value.ohms
+            model = spec.temp_model(value.ohms)
         parts.append(
             PartPlan(
                 item.element, spec.model, model, network, node_of(spec.to), spec.to,
-                spec.power_rating, spec.tmax, spec.derating_knee, spec.location,
+                spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
             )
         )  # fmt: skip
     nodes = tuple(
