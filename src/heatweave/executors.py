@@ -16,6 +16,7 @@ corners always run in separate processes (each worker process loads its own libr
 
 from __future__ import annotations
 
+import importlib
 import os
 from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
@@ -66,6 +67,12 @@ class SerialExecutor:
         return None
 
 
+def _one_thread_each() -> None:
+    """ngspice is built with OpenMP: parallel workers each get one thread, so that N
+    workers use N cores rather than fighting over them (Dask's nanny does the same)."""
+    os.environ.setdefault("OMP_NUM_THREADS", "1")
+
+
 class ProcessExecutor:
     """Jobs in *workers* local processes (a fork server gives each a clean start)."""
 
@@ -76,7 +83,9 @@ class ProcessExecutor:
 
         self.workers = workers
         context = multiprocessing.get_context("forkserver")
-        self._pool = ProcessPoolExecutor(max_workers=workers, mp_context=context)
+        self._pool = ProcessPoolExecutor(
+            max_workers=workers, mp_context=context, initializer=_one_thread_each
+        )
 
     def run(self, func: Callable[[J], R], jobs: Sequence[J]) -> Iterator[tuple[int, R]]:
         pending: dict[Future[R], int] = {
@@ -104,7 +113,7 @@ class DaskExecutor:
 
     def __init__(self, scheduler: str | None, workers: int) -> None:
         try:
-            from distributed import Client, LocalCluster
+            distributed: Any = importlib.import_module("distributed")
         except ImportError:
             raise UsageError(
                 "--executor dask needs the dask extra, which is not installed",
@@ -113,12 +122,12 @@ class DaskExecutor:
         self._cluster: Any = None
         try:
             if scheduler is None:
-                self._cluster = LocalCluster(
+                self._cluster = distributed.LocalCluster(
                     n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None
                 )
-                self._client: Any = Client(self._cluster)
+                self._client: Any = distributed.Client(self._cluster)
             else:
-                self._client = Client(scheduler, timeout="10s")
+                self._client = distributed.Client(scheduler, timeout="10s")
         except (OSError, TimeoutError) as err:
             self.close()
             raise UsageError(
@@ -129,8 +138,7 @@ class DaskExecutor:
         self.workers = sum(threads.values()) or workers
 
     def run(self, func: Callable[[J], R], jobs: Sequence[J]) -> Iterator[tuple[int, R]]:
-        from distributed import as_completed
-
+        as_completed: Any = importlib.import_module("distributed").as_completed
         # pure=False: two equal jobs are still two runs, never one cached result
         futures = [self._client.submit(func, job, pure=False) for job in jobs]
         positions = {future.key: position for position, future in enumerate(futures)}

@@ -46,9 +46,7 @@ def parse_range(text: str, what: str) -> tuple[float, ...]:
         )
     count = math.floor((stop - start) / step + 1e-6) + 1
     if count > MAX_POINTS:
-        raise UsageError(
-            f"{what} {text!r} has {count} points", hint="choose a larger step"
-        )
+        raise UsageError(f"{what} {text!r} has {count} points", hint="choose a larger step")
     # 12 significant digits: 0.1 steps give 0.3, not 0.30000000000000004
     return tuple(float(f"{start + k * step:.12g}") for k in range(count))
 

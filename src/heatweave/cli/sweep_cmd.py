@@ -76,7 +76,9 @@ def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
     help="How each worker drives ngspice: shared library, batch program, or whichever works.",
 )
 @click.option(
-    "--allow-control", is_flag=True, help="Keep the deck's .control blocks (they can run any command)."
+    "--allow-control",
+    is_flag=True,
+    help="Keep the deck's .control blocks (they can run any command).",
 )
 @click.option("-j", "--jobs", type=int, help="Worker processes (default: all cores).")
 @click.option(
@@ -133,7 +135,7 @@ def sweep(
     from heatweave.executors import make_executor
     from heatweave.files import write_atomic
     from heatweave.runner import RunOptions
-    from heatweave.sweep import SweepPlan, exit_status, run_sweep
+    from heatweave.sweep import SweepPlan, describe, exit_status, run_sweep
     from heatweave.sweep_grid import parse_assignment, parse_range
 
     if seed is not None and draws is None:
@@ -181,5 +183,6 @@ def sweep(
         click.echo(text, file=stream, nl=False)
     elif result.failed:
         for outcome in result.failed:
-            click.echo(f"corner {outcome.corner.index} failed: {outcome.error}", err=True)
+            where = describe(outcome.corner, sweep_report.corner_ambient(result, outcome))
+            click.echo(f"{where} failed: {outcome.error}", err=True)
     sys.exit(exit_status(result))

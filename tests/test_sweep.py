@@ -1,0 +1,405 @@
+"""``heatweave sweep``: corners against independent answers, Monte Carlo statistics,
+independence of -j and of the executor, failures per corner.
+
+Independent answers: scipy.optimize.brentq on the steady-state power balance
+``T = Ta + Rth * P(T)`` of each corner; the quadratic formula for a heater straight across
+the supply; scipy.stats for the drawn tolerances.  Simulations really run ngspice.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import shutil
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+from click.testing import CliRunner, Result
+from scipy import stats
+from scipy.optimize import brentq
+
+from heatweave.annotations import load
+from heatweave.cli.sweep_cmd import sweep
+from heatweave.errors import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK, EXIT_THERMAL_RUNAWAY
+from heatweave.sweep import draws
+from heatweave.sweep_grid import parse_range
+
+pytestmark = pytest.mark.ngspice
+
+FIXTURES = Path(__file__).parent / "fixtures" / "sweep"
+DIVIDER = str(FIXTURES / "divider.cir")
+MC_ANNOTATION = str(FIXTURES / "divider.mc.thermal.toml")
+HEATER = str(FIXTURES / "heater.cir")
+RUNAWAY = str(FIXTURES / "runaway.cir")
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
+
+# ngspice's default convergence tolerances (manual 11.1.2, .options reltol and vntol):
+# node voltages, and so temperatures (1 V = 1 degC), are good to reltol * |V| + vntol.
+RELTOL = 1e-3
+VNTOL = 1e-6
+
+
+def invoke(*args: str) -> Result:
+    return CliRunner().invoke(sweep, list(args), catch_exceptions=False)
+
+
+def sweep_json(*args: str) -> dict[str, Any]:
+    result = invoke(*args, "-q", "--json", "-")
+    assert result.exit_code == EXIT_OK, result.output
+    data: dict[str, Any] = json.loads(result.stdout)
+    return data
+
+
+def t_tol(expected: float) -> float:
+    return RELTOL * abs(expected) + VNTOL
+
+
+# ------------------------------------------------------------------------------ grids
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        ("-40:125:55", (-40.0, 15.0, 70.0, 125.0)),  # STOP on the grid: included
+        ("0:10:4", (0.0, 4.0, 8.0)),  # STOP off the grid: the grid stops before it
+        ("0:1:0.1", tuple(k / 10 for k in range(11))),  # no float creep past STOP
+        ("125:-40:-82.5", (125.0, 42.5, -40.0)),  # downwards with a negative step
+        ("85", (85.0,)),  # a single value
+        ("10m:30m:10m", (0.01, 0.02, 0.03)),  # SPICE scale factors
+        ("5:5:1", (5.0,)),
+    ],
+)
+def test_range_grid(text: str, expected: tuple[float, ...]) -> None:
+    # The grid rule of this tool: START + k * STEP, STOP included when on the grid.
+    assert parse_range(text, "--ambient") == pytest.approx(expected, abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (("--ambient", "0:10:-1"), "never gets from"),
+        (("--ambient", "0:10"), "is not a value or a range"),
+        (("--ambient", "hot"), "is not a value or a range"),
+        (("--param", "vbridge"), "is not NAME=START:STOP:STEP"),
+        (("--seed", "3"), "--seed is for --monte-carlo"),
+        (("--scheduler", "tcp://127.0.0.1:1"), "--scheduler is for --executor dask"),
+        (("-j", "0"), "need at least one worker"),
+    ],
+)
+def test_bad_options_exit_2(args: tuple[str, ...], message: str) -> None:
+    result = invoke(DIVIDER, *args, "-q")
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert message in result.stderr
+    assert "Traceback" not in result.output
+
+
+def test_unknown_param_is_located_with_a_hint() -> None:
+    result = invoke(DIVIDER, "--param", "vsupply=1:2:1", "-q")
+    assert result.exit_code == EXIT_BAD_INPUT
+    # FILE:LINE:COL of the deck's .param card, the card itself, and the names it does have
+    assert f"{DIVIDER}:3:1: error: --param vsupply" in result.stderr
+    assert ".param vbridge=12" in result.stderr
+    assert "hint:" in result.stderr and "vbridge" in result.stderr
+
+
+# ------------------------------------------------------------ corners against brentq
+
+# divider.cir / divider.thermal.toml: RUP 220 ohm, tc1 3500 ppm/K (tref 25 degC),
+# Rth 120 K/W, in series with RLO 330 ohm across VB = {vbridge} = 12 V.
+R_UP, R_LO, TC1, RTH, TREF = 220.0, 330.0, 3500e-6, 120.0, 25.0
+
+
+def divider_temperature(ta: float, v: float, tc1: float = TC1, rth: float = RTH) -> float:
+    """Steady state of the self-heated leg: T = Ta + Rth V^2 R(T) / (R(T) + RLO)^2."""
+
+    def balance(t: float) -> float:
+        r = R_UP * (1 + tc1 * (t - TREF))
+        return t - ta - rth * v * v * r / (r + R_LO) ** 2
+
+    return float(brentq(balance, ta, ta + 500.0, xtol=1e-12))
+
+
+def test_ambient_corners_match_brentq() -> None:
+    data = sweep_json(DIVIDER, "--ambient", "-40:110:75")
+    corners = data["corners"]
+    assert [c["ambient"] for c in corners] == [-40.0, 35.0, 110.0]
+    for corner in corners:
+        ta = corner["ambient"]
+        expected = divider_temperature(ta, 12.0)
+        part = corner["parts"]["RUP"]
+        assert corner["status"] == "ok"
+        assert part["temperature"] == pytest.approx(expected, abs=t_tol(expected))
+        r = R_UP * (1 + TC1 * (expected - TREF))
+        assert part["resistance_change_ppm"] == pytest.approx(
+            (r / R_UP - 1) * 1e6, abs=1e6 * TC1 * t_tol(expected)
+        )
+        assert corner["voltages"]["mid"] == pytest.approx(12.0 * R_LO / (r + R_LO), rel=RELTOL)
+    summary = data["summary"]
+    assert summary["kind"] == "corners"
+    hottest = summary["parts"]["RUP"]["temperature"]
+    assert hottest["max_corner"] == 2
+    assert hottest["max"] == corners[2]["parts"]["RUP"]["temperature"]
+
+
+# ------------------------------------------------- .param corners against closed form
+
+# heater.cir / heater.thermal.toml: RH 47 ohm, tc1 0.0039/K (tref 25), Rth 60 K/W, straight
+# across VH = {vheat}.  With dT = T - Ta and b = 1 + tc1 (Ta - 25):
+#   dT = Rth V^2 / (R0 b (1 + (tc1/b) dT))  =>  (tc1/b) dT^2 + dT - Rth V^2 / (R0 b) = 0,
+# whose positive root is the quadratic formula.
+R_HEAT, TC1_HEAT, RTH_HEAT = 47.0, 0.0039, 60.0
+
+
+def heater_temperature(ta: float, v: float) -> float:
+    b = 1 + TC1_HEAT * (ta - TREF)
+    a, k = TC1_HEAT / b, RTH_HEAT * v * v / (R_HEAT * b)
+    return ta + (-1 + math.sqrt(1 + 4 * a * k)) / (2 * a)
+
+
+def test_param_corners_match_the_closed_form() -> None:
+    data = sweep_json(HEATER, "--param", "vheat=3:9:3", "--ambient", "0:50:50", "-j", "2")
+    corners = data["corners"]
+    # parameters outer, ambient inner
+    assert [(c["params"]["vheat"], c["ambient"]) for c in corners] == [
+        (3.0, 0.0), (3.0, 50.0), (6.0, 0.0), (6.0, 50.0), (9.0, 0.0), (9.0, 50.0),
+    ]  # fmt: skip
+    for corner in corners:
+        v, ta = corner["params"]["vheat"], corner["ambient"]
+        expected = heater_temperature(ta, v)
+        part = corner["parts"]["RH"]
+        assert part["temperature"] == pytest.approx(expected, abs=t_tol(expected))
+        r = R_HEAT * (1 + TC1_HEAT * (expected - TREF))
+        assert part["power"] == pytest.approx(v * v / r, rel=RELTOL)
+        assert corner["voltages"]["feed"] == pytest.approx(v, rel=1e-9)
+
+
+def test_param_rewrite_keeps_the_rest_of_the_deck(tmp_path: Path) -> None:
+    from heatweave.emitter import load_inputs
+    from heatweave.sweep_grid import with_params
+
+    inputs = load_inputs(HEATER, str(FIXTURES / "heater.thermal.toml"))
+    changed = with_params(inputs, {"vheat": 7.5})
+    before = inputs.project.deck.write().splitlines()
+    after = changed.project.deck.write().splitlines()
+    assert [i for i, (x, y) in enumerate(zip(before, after, strict=True)) if x != y] == [1]
+    assert after[1] == ".param vheat=7.5"
+
+
+# --------------------------------------------------------------------- Monte Carlo
+
+# divider.mc.thermal.toml: tc1_ppm normal (3500, sigma 300); rth uniform on [105, 135].
+TC1_MEAN, TC1_SIGMA = 3500.0, 300.0
+RTH_LOW, RTH_HIGH = 105.0, 135.0
+
+
+def drawn_parameters(count: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+    annotation = load(MC_ANNOTATION)
+    tc1, rth = [], []
+    for drawn in draws(annotation, count, seed):
+        part = drawn.parts[0]
+        tc1.append(part.param_map["tc1_ppm"])
+        rth.append(part.network.stages[0][0])
+    return np.asarray(tc1, dtype=float), np.asarray(rth, dtype=float)
+
+
+def test_drawn_tolerances_follow_the_requested_distributions() -> None:
+    n = 4000
+    tc1, rth = drawn_parameters(n, seed=20261201)
+    # Mean within 4 standard errors (two-sided probability of a false alarm 6e-5, normal
+    # distribution tables); sample variance inside the central 99.99 % of the chi-square
+    # distribution with n - 1 degrees of freedom (the textbook variance test).
+    assert abs(tc1.mean() - TC1_MEAN) < 4 * TC1_SIGMA / math.sqrt(n)
+    chi2 = (n - 1) * tc1.var(ddof=1) / TC1_SIGMA**2
+    low, high = stats.chi2.ppf([5e-5, 1 - 5e-5], n - 1)
+    assert low < chi2 < high
+    # Whole-distribution checks: Kolmogorov-Smirnov against scipy.stats' normal and uniform.
+    assert stats.kstest(tc1, stats.norm(TC1_MEAN, TC1_SIGMA).cdf).pvalue > 1e-4
+    assert stats.kstest(rth, stats.uniform(RTH_LOW, RTH_HIGH - RTH_LOW).cdf).pvalue > 1e-4
+    assert rth.min() >= RTH_LOW and rth.max() <= RTH_HIGH
+
+
+def test_draws_do_not_depend_on_how_many_are_asked_for() -> None:
+    # SeedSequence.spawn: child k is the same whatever the number of children.
+    few = drawn_parameters(5, seed=7)
+    many = drawn_parameters(50, seed=7)
+    assert np.array_equal(few[0], many[0][:5]) and np.array_equal(few[1], many[1][:5])
+
+
+@pytest.fixture(scope="module")
+def monte_carlo() -> dict[str, Any]:
+    return sweep_json(
+        DIVIDER, "-a", MC_ANNOTATION, "--monte-carlo", "40", "--seed", "11",
+        "--ambient", "25:85:60", "-j", "2",
+    )  # fmt: skip
+
+
+def test_monte_carlo_corners_match_brentq_with_their_drawn_values(
+    monte_carlo: dict[str, Any],
+) -> None:
+    corners = monte_carlo["corners"]
+    assert len(corners) == 80
+    # each draw (one manufactured unit) at each ambient, ambient innermost
+    assert [(c["draw"], c["ambient"]) for c in corners[:4]] == [
+        (0, 25.0), (0, 85.0), (1, 25.0), (1, 85.0),
+    ]  # fmt: skip
+    assert corners[0]["drawn"] == corners[1]["drawn"]
+    for corner in corners[::7]:
+        drawn = corner["drawn"]["RUP"]
+        expected = divider_temperature(
+            corner["ambient"], 12.0, tc1=drawn["tc1_ppm"] * 1e-6, rth=drawn["rth"]
+        )
+        got = corner["parts"]["RUP"]["temperature"]
+        assert got == pytest.approx(expected, abs=t_tol(expected))
+
+
+def test_monte_carlo_summary_is_numpy_statistics_of_the_corners(
+    monte_carlo: dict[str, Any],
+) -> None:
+    groups = monte_carlo["summary"]["groups"]
+    assert [g["ambient"] for g in groups] == [25.0, 85.0]
+    for group in groups:
+        temps = [
+            c["parts"]["RUP"]["temperature"]
+            for c in monte_carlo["corners"]
+            if c["ambient"] == group["ambient"]
+        ]
+        figures = group["parts"]["RUP"]["temperature"]
+        assert group["draws"] == len(temps) == 40
+        assert figures["mean"] == pytest.approx(float(np.mean(temps)), rel=1e-12)
+        assert figures["std"] == pytest.approx(float(np.std(temps, ddof=1)), rel=1e-12)
+        for p in (1, 50, 99):
+            assert figures[f"p{p}"] == pytest.approx(float(np.percentile(temps, p)), rel=1e-12)
+
+
+def test_same_seed_same_numbers_other_seed_other_draws(monte_carlo: dict[str, Any]) -> None:
+    args = (DIVIDER, "-a", MC_ANNOTATION, "--monte-carlo", "40", "--ambient", "25:85:60")
+    again = sweep_json(*args, "--seed", "11", "-j", "1")
+    assert again["summary"] == monte_carlo["summary"]
+    assert again["corners"] == monte_carlo["corners"]
+    other = sweep_json(*args, "--seed", "12", "-j", "2")
+    ours = [c["drawn"]["RUP"]["tc1_ppm"] for c in monte_carlo["corners"]]
+    theirs = [c["drawn"]["RUP"]["tc1_ppm"] for c in other["corners"]]
+    assert not set(ours) & set(theirs)
+    assert other["summary"]["groups"][0]["parts"] != monte_carlo["summary"]["groups"][0]["parts"]
+
+
+def test_monte_carlo_without_seed_reports_the_seed_that_reproduces_it() -> None:
+    args = (DIVIDER, "-a", MC_ANNOTATION, "--monte-carlo", "3", "-j", "1")
+    first = sweep_json(*args)
+    seed = first["sweep"]["monte_carlo"]["seed"]
+    assert isinstance(seed, int)
+    assert sweep_json(*args, "--seed", str(seed))["corners"] == first["corners"]
+
+
+# -------------------------------------------------------- independence of -j / executor
+
+
+def corner_numbers(data: dict[str, Any]) -> list[Any]:
+    return [
+        {k: c[k] for k in ("index", "ambient", "params", "draw", "drawn", "parts", "voltages")}
+        for c in data["corners"]
+    ]
+
+
+@pytest.fixture(scope="module")
+def dask_scheduler() -> Iterator[str]:
+    distributed = pytest.importorskip("distributed")
+    cluster = distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+        dashboard_address=None,
+    )  # fmt: skip
+    try:
+        yield str(cluster.scheduler_address)
+    finally:
+        cluster.close()
+
+
+SWEEP_ARGS = (
+    DIVIDER, "-a", MC_ANNOTATION, "--ambient", "-40:85:125", "--param", "vbridge=10:14:4",
+    "--monte-carlo", "3", "--seed", "5",
+)  # fmt: skip
+
+
+def test_results_do_not_depend_on_jobs_or_executor(dask_scheduler: str) -> None:
+    serial = sweep_json(*SWEEP_ARGS, "-j", "1")
+    parallel = sweep_json(*SWEEP_ARGS, "-j", "2")
+    on_dask = sweep_json(*SWEEP_ARGS, "--executor", "dask", "--scheduler", dask_scheduler)
+    assert len(serial["corners"]) == 2 * 3 * 2
+    assert corner_numbers(parallel) == corner_numbers(serial)
+    assert corner_numbers(on_dask) == corner_numbers(serial)
+    assert on_dask["executor"] == "dask" and serial["executor"] == "local"
+
+
+def test_unreachable_scheduler_is_bad_input() -> None:
+    result = invoke(DIVIDER, "--executor", "dask", "--scheduler", "tcp://127.0.0.1:9", "-q")
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert "cannot reach the Dask scheduler" in result.stderr
+
+
+# ------------------------------------------------------------------------- failures
+
+
+def test_a_failing_corner_is_named_and_the_others_run() -> None:
+    # runaway.thermal.toml, hand-worked from the linear model at Ta = tref: a current I
+    # gives dT = Rth I^2 R0 (1 + tc1 dT), so dT = Rth I^2 R0 / (1 - g) with loop gain
+    # g = I^2 R0 tc1 Rth = 20 I^2; above I = 0.2236 A (g = 1) no steady state exists.
+    result = invoke(RUNAWAY, "--param", "idrive=0.1:0.3:0.2", "--json", "-")
+    assert result.exit_code == EXIT_CHECK_FAILED
+    data = json.loads(result.stdout)
+    ok, failed = data["corners"]
+    assert ok["status"] == "ok" and failed["status"] == "failed"
+    i, r0, tc1, rth = 0.1, 100.0, 0.004, 50.0
+    expected = 25.0 + i * i * r0 * rth / (1 - i * i * r0 * tc1 * rth)
+    got = ok["parts"]["RS"]["temperature"]
+    assert got == pytest.approx(expected, abs=t_tol(expected))
+    assert data["failed"] == [1]
+    assert "runs away" in failed["error"]
+    assert "corner 1 (ambient 25 degC, idrive=0.3) failed" in result.stderr
+
+
+def test_all_corners_failing_gives_the_simulator_status() -> None:
+    result = invoke(RUNAWAY, "--param", "idrive=0.3:0.4:0.1", "-q")
+    assert result.exit_code == EXIT_THERMAL_RUNAWAY
+    assert "corner 0 (ambient 25 degC, idrive=0.3) failed" in result.stderr
+    assert "corner 1 (ambient 25 degC, idrive=0.4) failed" in result.stderr
+
+
+# -------------------------------------------------------------------------- outputs
+
+
+def test_table_csv_and_plot(tmp_path: Path) -> None:
+    deck = tmp_path / "divider.cir"
+    shutil.copy(DIVIDER, deck)
+    shutil.copy(FIXTURES / "divider.thermal.toml", tmp_path / "divider.thermal.toml")
+    csv_file, png = tmp_path / "c.csv", tmp_path / "c.png"
+    result = invoke(
+        str(deck), "--ambient", "0:50:25", "--param", "vbridge=6:12:6",
+        "--csv", str(csv_file), "--plot", str(png),
+    )  # fmt: skip
+    assert result.exit_code == EXIT_OK, result.output
+    lines = result.stdout.splitlines()
+    assert lines[0].endswith("6 corners (local executor)")
+    assert lines[-1].startswith("licensed practice") or "caution:" in result.stdout
+    rows = list(csv.DictReader(io.StringIO(csv_file.read_text())))
+    assert len(rows) == 6  # one row per corner and part
+    assert [float(r["ambient [degC]"]) for r in rows[:3]] == [0.0, 25.0, 50.0]
+    expected = divider_temperature(50.0, 12.0)
+    assert float(rows[-1]["T [degC]"]) == pytest.approx(expected, abs=t_tol(expected))
+    assert png.read_bytes().startswith(PNG_SIGNATURE)
+
+
+def test_monte_carlo_table_and_plot(tmp_path: Path) -> None:
+    png = tmp_path / "mc.png"
+    result = invoke(
+        DIVIDER, "-a", MC_ANNOTATION, "--monte-carlo", "20", "--seed", "1", "--plot", str(png)
+    )
+    assert result.exit_code == EXIT_OK, result.output
+    assert "Monte Carlo 20 draws, seed 1" in result.stdout
+    header = result.stdout.splitlines()[2].split()
+    assert header[-5:] == ["mean", "std", "p1", "p50", "p99"]
+    assert png.read_bytes().startswith(PNG_SIGNATURE)
