@@ -403,3 +403,21 @@ def test_monte_carlo_table_and_plot(tmp_path: Path) -> None:
     header = result.stdout.splitlines()[2].split()
     assert header[-5:] == ["mean", "std", "p1", "p50", "p99"]
     assert png.read_bytes().startswith(PNG_SIGNATURE)
+
+
+def test_dask_without_scheduler_starts_and_stops_its_own_cluster() -> None:
+    pytest.importorskip("distributed")
+    data = sweep_json(HEATER, "--param", "vheat=4:8:4", "--executor", "dask", "-j", "1")
+    assert data["executor"] == "dask"
+    for corner in data["corners"]:
+        expected = heater_temperature(25.0, corner["params"]["vheat"])
+        got = corner["parts"]["RH"]["temperature"]
+        assert got == pytest.approx(expected, abs=t_tol(expected))
+
+
+def test_control_block_dropped_with_one_warning_for_all_corners() -> None:
+    deck = str(FIXTURES / "heater_control.cir")
+    result = invoke(deck, "--ambient", "0:40:20", "-q")
+    assert result.exit_code == EXIT_OK, result.output
+    assert result.stderr.count("dropped 1 .control block(s)") == 1
+    assert "this block must not run" not in result.output

@@ -1,7 +1,8 @@
 """The figure of ``heatweave sweep --plot FILE.png``.
 
-Corners: two panels over the ambient axis, part temperature (degC) and resistance drift
-(ppm), one curve per part and parameter corner, named in a legend beside the panels.
+Corners: two panels over the ambient axis (or, when the ambient is held, over the first
+``--param``), part temperature (degC) and resistance drift (ppm), one curve per part and
+parameter corner, named in a legend beside the panels.
 Monte Carlo at one corner: for each part a histogram of its temperature and one of its
 drift over the draws, with the 1st, 50th and 99th percentiles as dashed, solid and dashed
 lines.  Monte Carlo at several ambients: the 1st..99th percentile band and the median
@@ -14,6 +15,7 @@ Built on matplotlib's object interface with the Agg canvas (no window, no pyplot
 from __future__ import annotations
 
 import io
+from pathlib import Path
 from typing import Any
 
 from matplotlib.axes import Axes
@@ -37,21 +39,35 @@ def _params_label(params: dict[str, float]) -> str:
     return ", ".join(f"{name}={value:g}" for name, value in params.items())
 
 
-def _corner_curves(result: SweepResult) -> dict[str, list[tuple[float, dict[str, Any]]]]:
-    """(ambient, part values) per curve name ``PART`` or ``PART, name=value``."""
+def _x_axis(result: SweepResult) -> str | None:
+    """The swept parameter on the x axis (``None``: ambient): the first ``--param`` when
+    the sweep holds the ambient at one value."""
+    plan = result.plan
+    if len(plan.ambients) == 1 and plan.params:
+        return plan.params[0][0]
+    return None
+
+
+def _corner_curves(
+    result: SweepResult, x_param: str | None
+) -> dict[str, list[tuple[float, dict[str, Any]]]]:
+    """(x, part values) per curve name ``PART`` or ``PART, name=value`` (the other params)."""
     curves: dict[str, list[tuple[float, dict[str, Any]]]] = {}
     for outcome in result.outcomes:
         if outcome.data is None:
             continue
-        suffix = _params_label(outcome.corner.params)
+        params = dict(outcome.corner.params)
+        x = corner_ambient(result, outcome) if x_param is None else params.pop(x_param)
+        suffix = _params_label(params)
         for part, values in outcome.data["parts"].items():
             name = f"{part}, {suffix}" if suffix else part
-            curves.setdefault(name, []).append((corner_ambient(result, outcome), values))
+            curves.setdefault(name, []).append((x, values))
     return curves
 
 
 def _corners(figure: Figure, result: SweepResult) -> None:
-    curves = _corner_curves(result)
+    x_param = _x_axis(result)
+    curves = _corner_curves(result, x_param)
     colours = palette(list(curves))
     axes: list[Axes] = [figure.add_subplot(2, 1, k + 1) for k in range(2)]
     for ax, (key, label) in zip(axes, QUANTITIES, strict=True):
@@ -63,8 +79,15 @@ def _corners(figure: Figure, result: SweepResult) -> None:
             ax.plot(xs, ys, marker="o", markersize=3, color=colours[name], label=name)
         ax.set_ylabel(label)
         ax.grid(True, alpha=0.3)
-    axes[-1].set_xlabel("ambient temperature (degC)")
-    axes[0].set_title(f"{result.inputs.deck_path}: {len(result.outcomes)} corners")
+    title = f"{Path(result.inputs.deck_path).name}: {len(result.outcomes)} corners"
+    if x_param is None:
+        axes[-1].set_xlabel("ambient temperature (degC)")
+    else:
+        ambient = result.outcomes[0].data and result.outcomes[0].data["ambient"]
+        axes[-1].set_xlabel(f"deck parameter {x_param} (.param value)")
+        if isinstance(ambient, float):
+            title += f" at ambient {ambient:g} degC"
+    axes[0].set_title(title)
     if curves:
         axes[0].legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="small")
 
@@ -138,7 +161,7 @@ def _monte_carlo(figure: Figure, result: SweepResult) -> None:
     if len(groups) == 1:
         where = f" at {_group_label(groups[0])}"
     figure.suptitle(
-        f"{result.inputs.deck_path}: Monte Carlo, {result.plan.draws} draws{where}, "
+        f"{Path(result.inputs.deck_path).name}: Monte Carlo, {result.plan.draws} draws{where}, "
         f"seed {result.plan.seed}"
     )
 
