@@ -82,7 +82,7 @@ class ThermalSystem:
         u = self.inputs(power, ambient)
         if self.size == 0:
             return np.zeros(0)
-        return np.asarray(-np.linalg.solve(self.a, self.b @ u))
+        return np.asarray(-solve(self.a, self.b @ u))
 
     def rest_state(self, ambient: float) -> FloatArray:
         """Every node at *ambient* with no power: the cold start."""
@@ -95,14 +95,16 @@ class ThermalSystem:
         dp = self.d[:, : len(self.parts)]
         if self.size == 0:
             return np.asarray(dp)
-        return np.asarray(dp - self.c @ np.linalg.solve(self.a, bp))
+        return np.asarray(dp - self.c @ solve(self.a, bp))
 
     @property
     def time_constants(self) -> FloatArray:
         """Time constants of the network's modes (s), shortest first."""
         if self.size == 0:
             return np.zeros(0)
-        rates = -np.real(np.linalg.eigvals(self.a))
+        rates = np.concatenate(
+            [-np.real(np.linalg.eigvals(self.a[np.ix_(k, k)])) for k in components(self.a)]
+        )
         return np.asarray(np.sort(1.0 / rates))
 
     @property
@@ -192,19 +194,23 @@ def assemble(circuit: ThermalCircuit) -> ThermalSystem:
     a_mat, b_mat, c_mat, d_mat = f[np.ix_(dyn, dyn)], g[dyn], h[:, dyn], k.copy()
     if alg.size:
         f_aa = f[np.ix_(alg, alg)]
-        if np.linalg.cond(f_aa) > 1e12:
-            raise _floating(circuit, alg - n_x)
         # y_alg = -F_aa^-1 (F_ad y_dyn + G_a u)
-        solve_d = np.linalg.solve(f_aa, f[np.ix_(alg, dyn)])
-        solve_u = np.linalg.solve(f_aa, g[alg])
+        try:
+            solve_d = solve(f_aa, f[np.ix_(alg, dyn)])
+            solve_u = solve(f_aa, g[alg])
+        except np.linalg.LinAlgError:
+            raise _floating(circuit, alg - n_x) from None
         a_mat = a_mat - f[np.ix_(dyn, alg)] @ solve_d
         b_mat = b_mat - f[np.ix_(dyn, alg)] @ solve_u
         c_mat = c_mat - h[:, alg] @ solve_d
         d_mat = d_mat - h[:, alg] @ solve_u
     scale = e[dyn][:, None]
     a_mat, b_mat = a_mat / scale, b_mat / scale
-    if a_mat.size and np.linalg.cond(a_mat) > 1e14:
-        raise _floating(circuit, np.arange(n_nodes))
+    if a_mat.size:
+        try:
+            solve(a_mat, np.ones(a_mat.shape[0]))
+        except np.linalg.LinAlgError:
+            raise _floating(circuit, np.arange(n_nodes)) from None
     names = [f"{part.path}:{s}" for part, port in zip(circuit.parts, ports, strict=True)
              for s in port.states]  # fmt: skip
     names += [f"node {label}" for label in labels]
@@ -227,6 +233,33 @@ def _floating(circuit: ThermalCircuit, which: npt.NDArray[np.intp]) -> ThermalAs
     )
 
 
+def components(a: FloatArray) -> list[npt.NDArray[np.intp]]:
+    """The states of each independent block of *a* (parts that share no heat path)."""
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    if a.size == 0:
+        return []
+    count, labels = connected_components(csr_matrix(a != 0), directed=False)
+    return [np.flatnonzero(labels == k) for k in range(count)]
+
+
+def solve(a: FloatArray, rhs: FloatArray) -> FloatArray:
+    """``a^-1 rhs`` by sparse LU (thermal networks are sparse); raises ``LinAlgError``
+    when *a* is singular."""
+    from scipy.sparse import csc_matrix
+    from scipy.sparse.linalg import splu
+
+    try:
+        lu = splu(csc_matrix(a))
+    except RuntimeError as exc:  # "Factor is exactly singular"
+        raise np.linalg.LinAlgError(str(exc)) from exc
+    out = lu.solve(np.asarray(rhs, dtype=float))
+    if not np.all(np.isfinite(out)):
+        raise np.linalg.LinAlgError("singular matrix")
+    return np.asarray(out)
+
+
 def phi1(x: FloatArray) -> FloatArray:
     """``(e^x - 1) / x``, accurate near 0 (1 at 0)."""
     out = np.ones_like(x)
@@ -243,9 +276,9 @@ class Propagator:
     ``advance(z, u, h)`` returns ``z(t + h)`` for ``dz/dt = A z + B u`` with ``u`` held.
     The optional ``moment`` adds the first-order effect of the input varying inside the
     step around its mean: for ``u(s) = u + du(s)`` with ``du`` of zero mean,
-    ``int_0^h e^{A(h-s)} B du(s) ds = A B m1 + O(h^2 A^2 |B m1| / 2)`` with
-    ``m1 = int_0^h (h - s) du(s) ds`` (``moment``); the rest is second order, about
-    ``h / (2 tau_min)`` of the first-order term.  ``use_modal=False`` always takes the matrix exponential.
+    ``int_0^h e^{A(h-s)} B du(s) ds = A B m1 + ...`` with ``m1 = int_0^h (h - s) du(s) ds``
+    (``moment``); the rest is second order, about ``h / (2 tau_min)`` of the first-order
+    term.  ``use_modal=False`` always takes the matrix exponential.
     """
 
     system: ThermalSystem
@@ -257,13 +290,19 @@ class Propagator:
         a = self.system.a
         if a.size == 0 or not self.use_modal:
             return
-        values, vectors = np.linalg.eig(a)
-        if np.any(np.abs(np.imag(values)) > 1e-9 * np.abs(values).max()):
-            return
-        vectors = np.real(vectors)
-        if np.linalg.cond(vectors) > MAX_MODAL_CONDITION:
-            return
-        self._modal = (np.real(values), vectors, np.linalg.inv(vectors))
+        n = a.shape[0]
+        rates, vectors, inverse = np.zeros(n), np.zeros((n, n)), np.zeros((n, n))
+        for block in components(a):
+            values, vecs = np.linalg.eig(a[np.ix_(block, block)])
+            if np.any(np.abs(np.imag(values)) > 1e-9 * np.abs(values).max()):
+                return
+            vecs = np.real(vecs)
+            if np.linalg.cond(vecs) > MAX_MODAL_CONDITION:
+                return
+            rates[block] = np.real(values)
+            vectors[np.ix_(block, block)] = vecs
+            inverse[np.ix_(block, block)] = np.linalg.inv(vecs)
+        self._modal = (rates, vectors, inverse)
 
     @property
     def modal(self) -> bool:

@@ -111,8 +111,10 @@ def run_auto(
         raise UsageError(f"unknown method {method!r}", hint="choose auto, cosim or full")
     inputs = inputs or load_inputs(deck_path, annotation_path)
     chosen, reason = "full", "asked for the full electrothermal deck"
+    prepared = None
     if method != "full":
-        circuit, _findings = _circuit(inputs, options, annotation)
+        prepared = _circuit(inputs, options, annotation)
+        circuit = prepared[0]
         scale = electrical_time_scale(inputs.index)
         chosen, reason = choose_method(circuit, _analyses(inputs, options), scale)
         if chosen == "cosim" and options.allow_control:
@@ -125,7 +127,10 @@ def run_auto(
             )
     if chosen == "cosim":
         try:
-            return run(deck_path, annotation_path, options, inputs=inputs, annotation=annotation)
+            return run(
+                deck_path, annotation_path, options, inputs=inputs, annotation=annotation,
+                prepared=prepared,
+            )  # fmt: skip
         except LibngspiceMissingError:
             if method == "cosim":
                 raise
@@ -150,14 +155,16 @@ def run(
     inputs: Inputs | None = None,
     annotation: Annotation | None = None,
     tolerance: float = DEFAULT_TOLERANCE,
+    prepared: tuple[ThermalCircuit, tuple[Finding, ...]] | None = None,
 ) -> FastOutcome:
     """Co-simulate one run (same inputs as :func:`heatweave.runner.run`).
 
     Raises :class:`UsageError` when the run is not one the co-simulation can do (see
-    :func:`choose_method`; the time-scale check is left to the caller).
+    :func:`choose_method`; the time-scale check is left to the caller).  *prepared* is the
+    thermal circuit and its findings when the caller has built them already.
     """
     inputs = inputs or load_inputs(deck_path, annotation_path)
-    circuit, findings = _circuit(inputs, options, annotation)
+    circuit, findings = prepared or _circuit(inputs, options, annotation)
     analyses = _analyses(inputs, options)
     tran = Transient.parse(analyses[0]) if len(analyses) == 1 else None
     if tran is None or tran.tstart != 0 or not isinstance(circuit.ambient, float | int):
