@@ -32,7 +32,7 @@ from heatweave.runner import ANALYSIS_CARDS, RunOptions, RunOutcome, deck_analys
 from heatweave.thermal_circuit import AMBIENT_NODE, ThermalCircuit
 from heatweave.thermal_solver import ThermalSystem, assemble
 
-from .engine import Probe, StrongFeedback, Trace, cosimulate
+from .engine import Plan, Probe, StrongFeedback, Trace, cosimulate
 from .method import SEPARATION, Transient, choose_method, source_time_scale
 from .windows import MAX_LOOP_GAIN
 
@@ -181,17 +181,16 @@ def run(
     text, dropped = strip_control(inputs.project.deck.write(), inputs.deck_path, False)
     from pathlib import Path
 
-    trace = cosimulate(
-        plain_deck(text),
-        Path(inputs.deck_path).resolve().parent,
+    plan = Plan(
         circuit.parts,
         probes(circuit, inputs.index),
         system,
         float(circuit.ambient),
         tran,
         tolerance,
-        options.timeout,
     )
+    folder = Path(inputs.deck_path).resolve().parent
+    trace = cosimulate(plain_deck(text), folder, plan, options.timeout)
     results = to_results(trace, circuit, system)
     reason = f"co-simulation in {trace.windows} windows"
     return FastOutcome(results, "cosim", reason, findings + dropped, trace=trace)

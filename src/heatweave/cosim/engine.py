@@ -102,17 +102,21 @@ class _Clock:
         self.mark = now
 
 
-def cosimulate(
-    deck: str,
-    cwd: str | Path,
-    parts: Sequence[PartPlan],
-    probes: Sequence[Probe],
-    system: ThermalSystem,
-    ambient: float,
-    tran: Transient,
-    tolerance: float,
-    timeout: float | None = None,
-) -> Trace:
+@dataclass(frozen=True, slots=True)
+class Plan:
+    """What one co-simulation needs besides the deck: the resistor parts and where they
+    sit in ngspice, the assembled thermal system, the ambient, the transient and the
+    temperature tolerance (K) of the window rule."""
+
+    parts: Sequence[PartPlan]
+    probes: Sequence[Probe]
+    system: ThermalSystem
+    ambient: float
+    tran: Transient
+    tolerance: float
+
+
+def cosimulate(deck: str, cwd: str | Path, plan: Plan, timeout: float | None = None) -> Trace:
     """Run the windowed co-simulation of *deck* (the plain circuit, no analysis cards)."""
     engine = SharedSimulator().load()
     with _LOCK, _quiet_pyspice():
@@ -124,7 +128,7 @@ def cosimulate(
             with _inside(Path(cwd)), _stray_stderr(stray):
                 _load_deck(engine, deck)
                 _raise_failure(engine.heatweave_log)
-                loop = _Loop(engine, parts, probes, system, ambient, tran, tolerance)
+                loop = _Loop(engine, plan)
                 trace = loop.run(timeout)
             _check(stray)
             return trace
@@ -150,27 +154,19 @@ def _command(lib: Any, command: str) -> int:
 class _Loop:
     """One co-simulation's state between windows."""
 
-    def __init__(
-        self,
-        engine: Any,
-        parts: Sequence[PartPlan],
-        probes: Sequence[Probe],
-        system: ThermalSystem,
-        ambient: float,
-        tran: Transient,
-        tolerance: float,
-    ) -> None:
+    def __init__(self, engine: Any, plan: Plan) -> None:
+        parts, probes, system, tran = plan.parts, plan.probes, plan.system, plan.tran
         self.engine = engine
         self.lib = engine._ngspice_shared
         self.ffi = engine.heatweave_ffi
         self.bank = ModelBank([p.model for p in parts if p.model is not None])
         self.probes = probes
         self.system = system
-        self.ambient = ambient
+        self.ambient = plan.ambient
         self.tran = tran
         self.propagator = Propagator(system)
         tau_min = float(system.time_constants[0])
-        self.rule = WindowRule(tolerance, tau_min, min_window=tran.tstep)
+        self.rule = WindowRule(plan.tolerance, tau_min, min_window=tran.tstep)
         self.nodes = sorted({n for p in probes for n in (p.node_a, p.node_b) if n is not None})
         row = {name: k for k, name in enumerate(self.nodes)}
         ground = len(self.nodes)
