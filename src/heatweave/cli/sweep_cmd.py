@@ -12,6 +12,8 @@ from heatweave.cli.run_cmd import BACKENDS, analyses_of, check_outputs
 from heatweave.errors import UsageError
 from heatweave.quantities import SpiceQuantity
 
+#: What every worker imports: loaded once by the fork server, then shared by the workers.
+WORKER_MODULES = ("heatweave.sweep", "heatweave.reports", "heatweave.runaway")
 #: Width of the progress bar in characters.
 BAR = 30
 
@@ -60,7 +62,9 @@ def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
     metavar="N",
     help="N Monte Carlo draws of the annotation's tolerances, each at every corner.",
 )
-@click.option("--seed", type=click.IntRange(min=0), help="Seed of the Monte Carlo draws.")
+@click.option(
+    "--seed", type=click.IntRange(min=0), metavar="S", help="Seed of the Monte Carlo draws."
+)
 @click.option("--op", is_flag=True, help="Run an operating point instead of the deck's analyses.")
 @click.option(
     "--tran",
@@ -73,7 +77,8 @@ def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
     type=click.Choice(BACKENDS),
     default="auto",
     show_default=True,
-    help="How each worker drives ngspice: shared library, batch program, or whichever works.",
+    help="How each worker drives ngspice; auto: the batch program if installed (faster per "
+    "corner), else the shared library.",
 )
 @click.option(
     "--allow-control",
@@ -158,7 +163,7 @@ def sweep(
     )
     annotation_path = annotations or str(default_path(deck))
     inputs = load_inputs(deck, annotation_path)
-    pool = make_executor(executor, jobs, scheduler)
+    pool = make_executor(executor, jobs, scheduler, preload=WORKER_MODULES)
     try:
         progress = progress_bar(not quiet and is_terminal())
         result = run_sweep(inputs, plan, options, pool, progress)
