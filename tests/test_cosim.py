@@ -159,6 +159,17 @@ def test_model_bank_matches_one_by_one() -> None:
     np.testing.assert_allclose(bank.slope(temps), want_s, rtol=1e-13)
 
 
+@pytest.mark.parametrize(
+    ("text", "kept"),
+    [
+        ("t\nV1 a 0 1\nR1 a 0 1\n.save v(a)\n.tran 1u 1m\n.end\n", "t\nV1 a 0 1\nR1 a 0 1\n.end\n"),
+        ("t\nR1 a 0 1\n.op\n.ic v(a)=1\n.end\n", "t\nR1 a 0 1\n.ic v(a)=1\n.end\n"),
+    ],
+)
+def test_plain_deck_drops_analyses_and_saves(text: str, kept: str) -> None:
+    assert cosim.plain_deck(text) == kept
+
+
 def _worst_difference(fast: cosim.FastOutcome, full) -> float:
     worst = 0.0
     for part in fast.results.parts:
@@ -170,7 +181,7 @@ def _worst_difference(fast: cosim.FastOutcome, full) -> float:
 
 @pytest.mark.ngspice
 @pytest.mark.slow
-@pytest.mark.parametrize("name", ["divider", "coupled"])
+@pytest.mark.parametrize("name", ["divider", "coupled", "nested"])
 def test_cosim_agrees_with_full_deck(name: str) -> None:
     deck, annotation = fixture(name)
     fast = cosim.run_auto(deck, annotation)

@@ -196,11 +196,15 @@ def run(
     return FastOutcome(results, "cosim", reason, findings + dropped, trace=trace)
 
 
+#: Cards the co-simulation leaves out: it issues its own transient and needs every node.
+DROPPED_CARDS = ANALYSIS_CARDS | {".save"}
+
+
 def plain_deck(text: str) -> str:
-    """The deck without its analysis cards (the co-simulation issues its own transient)."""
+    """The deck without its analysis and ``.save`` cards (see :data:`DROPPED_CARDS`)."""
     deck = read(text)
     kept: list[Node] = [
-        n for n in deck.body if not (isinstance(n, Card) and n.name in ANALYSIS_CARDS)
+        n for n in deck.body if not (isinstance(n, Card) and n.name in DROPPED_CARDS)
     ]
     return deck.with_body(tuple(kept)).write()
 
