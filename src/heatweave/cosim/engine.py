@@ -21,7 +21,6 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.simulators import diagnose
 from heatweave.simulators.base import timed_out
 from heatweave.simulators.naming import VOLTAGE, vector_name
 from heatweave.simulators.shared import (
@@ -288,8 +287,3 @@ class _Loop:
         _command(self.lib, "rusage time totiter traniter tranpoints trantime")
         lines = self.engine.heatweave_log[before:]
         return "\n".join(line.strip() for line in lines if line.strip())
-
-
-def log_text(trace: Trace) -> str:
-    """The simulator log of a co-simulation (for ``-v`` displays)."""
-    return "\n".join(diagnose.log_lines(trace.log))
