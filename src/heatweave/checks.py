@@ -73,7 +73,7 @@ class LimitResult:
     def message(self) -> str:
         """One line naming the subject, the limit, the value and the margin."""
         verdict = "ok  " if self.passed else "FAIL"
-        room = "margin" if self.passed else "over by"
+        room = "margin" if self.passed else ("over by" if self.upper else "under by")
         side = "at most" if self.upper else "at least"
         text = (
             f"{verdict} {self.subject} {self.limit}: {_num(self.value)} {self.unit}, "

@@ -41,7 +41,12 @@ def _analyses(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
     type=click.Path(dir_okay=False, exists=True),
     help="Annotation file (default: DECK.thermal.toml beside the deck).",
 )
-@click.option("--junit", "junit_file", help="Also write a JUnit XML report here (- is stdout).")
+@click.option(
+    "--junit",
+    "junit_file",
+    metavar="FILE",
+    help="Also write a JUnit XML report here (- is stdout).",
+)
 @click.option("--op", is_flag=True, help="Check the steady state instead of the deck's analyses.")
 @click.option(
     "--tran",
