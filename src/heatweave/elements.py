@@ -21,6 +21,15 @@ from heatweave.errors import EmitError
 from heatweave.hierarchy import DeckIndex, x_card_parts
 from heatweave.quantities import parse_number
 
+_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[A-Za-z]*"
+_NODE = r"[^\s,=()'{}\"\[\]<>~%]+"
+#: A resistor card in its plainest form: name, two nodes, a number, numeric key=value pairs.
+#: Such a card is valid for the grammar too, so the rewrite path may skip the full parse.
+SIMPLE_RESISTOR = re.compile(
+    rf"[ \t]*[Rr]{_NODE}[ \t]+{_NODE}[ \t]+{_NODE}[ \t]+{_NUM}"
+    rf"(?:[ \t]+[A-Za-z_]\w*[ \t]*=[ \t]*{_NUM})*[ \t]*$"
+)
+
 #: Fixed node counts by element letter (manual table 2.1).
 NODE_COUNT = {
     "R": 2, "C": 2, "L": 2, "V": 2, "I": 2, "B": 2, "D": 2, "F": 2, "H": 2, "W": 2,

@@ -131,7 +131,7 @@ def build_circuit(
 ) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
     """The thermal circuit of a bound annotation, with each resistor's model built from
     the deck's nominal value; also the warnings about card parameters set aside."""
-    from heatweave.elements import resistor_value, top_params
+    from heatweave.elements import SIMPLE_RESISTOR, resistor_value, top_params
     from heatweave.lint import syntax_of
 
     findings: list[Finding] = list(annotation.warnings)
@@ -141,18 +141,23 @@ def build_circuit(
         return AMBIENT_NODE if label == AMBIENT else shared_node(label)
 
     parts: list[PartPlan] = []
+    networks: dict[int, NetworkForm] = {}
     for item in bound:
         spec = item.spec
-        try:
-            network = from_annotation(spec.network.kind, _network_data(spec.network))
-        except NetworkError as err:
-            raise err.at(spec.location) from None
+        network = networks.get(id(spec))
+        if network is None:
+            try:
+                network = from_annotation(spec.network.kind, _network_data(spec.network))
+            except NetworkError as err:
+                raise err.at(spec.location) from None
+            networks[id(spec)] = network  # a glob's parts share one (immutable) network
         model = None
         nominal = None
         found = index.resolve(item.element)
         if found is None:
             raise AnnotationError(f"{item.element} is not in the deck", spec.location)
-        syntax_of(found.card)  # a malformed card is reported where it stands
+        if not SIMPLE_RESISTOR.match(found.card.logical().text):
+            syntax_of(found.card)  # a malformed card is reported where it stands
         if spec.model is not None:
             value = resistor_value(found.card, params)
             findings.extend(
