@@ -61,14 +61,11 @@ def write_ntc(tmp_path: Path, volts: float, r25: float, beta: float, rth: float,
 
 
 # (R25 ohm, Beta K, Rth K/W, ambient degC): thermistor values of common practice.
-ZERO_AMBIENT = pytest.mark.xfail(
-    strict=True, reason="annotation_loader.py reads [ambient] temperature = 0.0 as 25 degC"
-)
 NTC_CASES = [
     (1000.0, 3500.0, 100.0, 25.0),
     (10e3, 3950.0, 150.0, 40.0),
     (220.0, 3000.0, 60.0, -10.0),
-    pytest.param(220.0, 3000.0, 60.0, 0.0, marks=ZERO_AMBIENT),
+    (220.0, 3000.0, 60.0, 0.0),
 ]
 
 
