@@ -13,55 +13,29 @@ from pathlib import Path
 
 import click
 
-from heatweave.cli.common import guarded, is_terminal, report_findings
-from heatweave.errors import EXIT_CHECK_FAILED, UsageError
-from heatweave.quantities import SpiceQuantity
-from heatweave.simulators import BACKENDS
-
-
-def _analyses(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
-    if op and tran:
-        raise UsageError("--op and --tran exclude each other", hint="choose one analysis")
-    if tran:
-        step, stop = tran
-        if not 0 < step < stop:
-            raise UsageError(
-                f"--tran needs 0 < TSTEP < TSTOP, not {step:g} {stop:g}",
-                hint="e.g. --tran 1m 10",
-            )
-        return (f"tran {step:.12g} {stop:.12g}",)
-    return ("op",) if op else ()
+from heatweave.cli.common import (
+    analyses_of,
+    analysis_options,
+    annotation_for,
+    deck_options,
+    guarded,
+    is_terminal,
+    report_findings,
+    simulation_options,
+)
+from heatweave.errors import EXIT_CHECK_FAILED
 
 
 @click.command()
-@click.argument("deck", type=click.Path(dir_okay=False, exists=True))
-@click.option(
-    "-a",
-    "--annotations",
-    type=click.Path(dir_okay=False, exists=True),
-    help="Annotation file (default: DECK.thermal.toml beside the deck).",
-)
+@deck_options
 @click.option(
     "--junit",
     "junit_file",
     metavar="FILE",
     help="Also write a JUnit XML report here (- is stdout).",
 )
-@click.option("--op", is_flag=True, help="Check the steady state instead of the deck's analyses.")
-@click.option(
-    "--tran",
-    type=(SpiceQuantity(), SpiceQuantity()),
-    metavar="TSTEP TSTOP",
-    help="Check a transient instead of the deck's analyses.",
-)
-@click.option("--ambient", type=float, metavar="DEGC", help="Override the ambient temperature.")
-@click.option(
-    "--backend", type=click.Choice(BACKENDS), default="auto", show_default=True,
-    help="How to run ngspice.",
-)  # fmt: skip
-@click.option(
-    "--allow-control", is_flag=True, help="Keep the deck's .control blocks (trusted decks only)."
-)
+@analysis_options
+@simulation_options
 @guarded
 def check(
     deck: str,
@@ -80,23 +54,17 @@ def check(
     table (min, max, and max_drift_ppm against the same deck without self-heating).
     """
     from heatweave import checks, junit, runner
-    from heatweave.cli.emit_cmd import default_annotation
     from heatweave.emitter import load_inputs
 
-    chosen = Path(annotations) if annotations else default_annotation(deck)
-    if chosen is None:
-        raise UsageError(
-            f"no annotation file for {deck}",
-            hint=f"write {Path(deck).with_suffix('.thermal.toml')} or pass -a FILE",
-        )
+    chosen = annotation_for(deck, annotations)
     started = time.monotonic()
-    inputs = load_inputs(deck, str(chosen))
+    inputs = load_inputs(deck, chosen)
     signals = checks.resolve_limits(inputs.annotation, inputs.index)
     options = runner.RunOptions(
-        analyses=_analyses(op, tran), ambient=ambient, backend=backend,
+        analyses=analyses_of(op, tran), ambient=ambient, backend=backend,
         allow_control=allow_control,
     )  # fmt: skip
-    outcome = runner.run(deck, str(chosen), options, inputs=inputs)
+    outcome = runner.run(deck, chosen, options, inputs=inputs)
     report_findings(list(outcome.prepared.findings))
     baseline = runner.run_baseline(inputs, options) if checks.needs_baseline(signals) else None
     found = checks.evaluate(outcome, signals, baseline)

@@ -58,3 +58,103 @@ def report_findings(findings: list[Finding]) -> None:
     """Print findings (warnings, lint results) on stderr, one a line."""
     for finding in findings:
         click.echo(style_severity(finding.render(), finding.severity), err=True)
+
+
+# --- options shared by the commands that run a deck -------------------------------------
+
+F = TypeVar("F", bound=Callable[..., object])
+
+BACKENDS = ("auto", "shared", "batch")
+
+
+def deck_options(func: F) -> F:
+    """``DECK`` and ``-a/--annotations``, as every command that reads a deck takes them."""
+    func = click.option(
+        "-a",
+        "--annotations",
+        type=click.Path(dir_okay=False, exists=True),
+        help="Annotation file (default: DECK.thermal.toml beside the deck).",
+    )(func)
+    return click.argument("deck", type=click.Path(dir_okay=False, exists=True))(func)
+
+
+def simulation_options(func: F) -> F:
+    """``--ambient``, ``--backend`` and ``--allow-control``."""
+    from heatweave.quantities import SpiceQuantity
+
+    func = click.option(
+        "--allow-control",
+        is_flag=True,
+        help="Keep the deck's .control blocks (they can run any command: trusted decks only).",
+    )(func)
+    func = click.option(
+        "--backend",
+        type=click.Choice(BACKENDS),
+        default="auto",
+        show_default=True,
+        help="How to drive ngspice: shared library, batch program, or whichever works.",
+    )(func)
+    return click.option(
+        "--ambient",
+        type=SpiceQuantity("degC"),
+        metavar="DEGC",
+        help="Ambient temperature instead of the annotation file's.",
+    )(func)
+
+
+def analysis_options(func: F) -> F:
+    """``--op`` and ``--tran TSTEP TSTOP`` (SPICE quantities); see :func:`analyses_of`."""
+    from heatweave.quantities import SpiceQuantity
+
+    func = click.option(
+        "--tran",
+        type=(SpiceQuantity("s", positive=True), SpiceQuantity("s", positive=True)),
+        metavar="TSTEP TSTOP",
+        help="Run a transient instead of the deck's analyses, e.g. 1m 10.",
+    )(func)
+    return click.option(
+        "--op", is_flag=True, help="Run an operating point instead of the deck's analyses."
+    )(func)
+
+
+def analyses_of(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
+    """The analyses asked for on the command line (none: the deck's own cards)."""
+    from heatweave.errors import UsageError
+    from heatweave.quantities import format_number
+
+    if op and tran is not None:
+        raise UsageError(
+            "--op and --tran ask for two different analyses",
+            hint="give one of them; the report is read from a single analysis",
+        )
+    if op:
+        return ("op",)
+    if tran is not None:
+        step, stop = tran
+        if step >= stop:
+            raise UsageError(
+                f"--tran step {format_number(step)} s is not below the stop time "
+                f"{format_number(stop)} s",
+                hint="write --tran TSTEP TSTOP, e.g. --tran 1m 10",
+            )
+        # 12 digits: 100u stays 0.0001, not the float 9.999999999999999e-05
+        return (f"tran {step:.12g} {stop:.12g}",)
+    return ()
+
+
+def annotation_for(deck: str, annotations: str | None) -> str:
+    """The annotation file to use: the one given, else ``DECK.thermal.toml`` beside the deck."""
+    from pathlib import Path
+
+    from heatweave.annotations import default_path
+    from heatweave.errors import UsageError
+
+    if annotations:
+        return annotations
+    candidate = default_path(deck)
+    if deck != "-" and Path(candidate).is_file():
+        return str(candidate)
+    raise UsageError(
+        f"no annotation file for {deck}",
+        hint=f"write {candidate} beside the deck, or name one with -a FILE",
+    )

@@ -8,33 +8,21 @@ from pathlib import Path
 
 import click
 
-from heatweave.cli.common import guarded, is_terminal, report_findings
+from heatweave.cli.common import (
+    BACKENDS,
+    analyses_of,
+    analysis_options,
+    annotation_for,
+    deck_options,
+    guarded,
+    is_terminal,
+    report_findings,
+    simulation_options,
+)
 from heatweave.errors import UsageError
-from heatweave.quantities import SpiceQuantity, format_number
 
-BACKENDS = ("auto", "shared", "batch")
-
-
-def analyses_of(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
-    """The analyses asked for on the command line (none: the deck's own cards)."""
-    if op and tran is not None:
-        raise UsageError(
-            "--op and --tran ask for two different analyses",
-            hint="give one of them; the report is read from a single analysis",
-        )
-    if op:
-        return ("op",)
-    if tran is not None:
-        step, stop = tran
-        if step >= stop:
-            raise UsageError(
-                f"--tran step {format_number(step)} s is not below the stop time "
-                f"{format_number(stop)} s",
-                hint="write --tran TSTEP TSTOP, e.g. --tran 1m 10",
-            )
-        # 12 digits: 100u stays 0.0001, not the float 9.999999999999999e-05
-        return (f"tran {step:.12g} {stop:.12g}",)
-    return ()
+__all__ = ["BACKENDS", "analyses_of", "check_outputs", "probe_nodes", "progress_printer", "run"]
+from heatweave.quantities import SpiceQuantity
 
 
 def check_outputs(outputs: dict[str, str | None], deck: str) -> None:
@@ -92,38 +80,9 @@ def probe_nodes(probes: tuple[str, ...], voltages: dict[str, float]) -> tuple[st
 
 
 @click.command()
-@click.argument("deck", type=click.Path(dir_okay=False, exists=True))
-@click.option(
-    "-a",
-    "--annotations",
-    type=click.Path(dir_okay=False, exists=True),
-    help="Annotation file (default: DECK.thermal.toml beside the deck).",
-)
-@click.option("--op", is_flag=True, help="Run an operating point instead of the deck's analyses.")
-@click.option(
-    "--tran",
-    type=(SpiceQuantity("s", positive=True), SpiceQuantity("s", positive=True)),
-    metavar="TSTEP TSTOP",
-    help="Run a transient instead of the deck's analyses, e.g. 1m 10.",
-)
-@click.option(
-    "--ambient",
-    type=SpiceQuantity("degC"),
-    metavar="DEGC",
-    help="Ambient temperature instead of the annotation file's.",
-)
-@click.option(
-    "--backend",
-    type=click.Choice(BACKENDS),
-    default="auto",
-    show_default=True,
-    help="How to drive ngspice: shared library, batch program, or whichever works.",
-)
-@click.option(
-    "--allow-control",
-    is_flag=True,
-    help="Keep the deck's .control blocks (they can run any command).",
-)
+@deck_options
+@analysis_options
+@simulation_options
 @click.option("--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout).")
 @click.option("--csv", "csv_file", metavar="FILE", help="Write the waveforms as CSV (- is stdout).")
 @click.option("--plot", "plot_file", metavar="FILE.png", help="Write a PNG figure.")
@@ -160,7 +119,6 @@ def run(
 
     The summary table goes to stdout (to stderr when a report is written to stdout).
     """  # fmt: skip
-    from heatweave.annotations import default_path
     from heatweave.emitter import load_inputs
     from heatweave.files import write_atomic
     from heatweave.reports import build_report
@@ -170,7 +128,7 @@ def run(
     analyses = analyses_of(op, tran)
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file}
     check_outputs(outputs, deck)
-    annotation_path = annotations or str(default_path(deck))
+    annotation_path = annotation_for(deck, annotations)
     inputs = load_inputs(deck, annotation_path)
     options = RunOptions(
         analyses=analyses,
