@@ -13,15 +13,12 @@ from heatweave.files import encode, read_text, same_file, write_atomic
 
 
 def default_annotation(deck: str) -> Path | None:
-    """``DECK.thermal.toml`` beside the deck: ``amp.thermal.toml`` for ``amp.cir``
-    (also ``amp.cir.thermal.toml``), or ``None`` when neither exists."""
-    if deck == "-":
-        return None
-    path = Path(deck)
-    for candidate in (path.with_suffix(".thermal.toml"), Path(f"{path}.thermal.toml")):
-        if candidate.is_file():
-            return candidate
-    return None
+    """``DECK.thermal.toml`` beside the deck (``amp.thermal.toml`` for ``amp.cir``), or
+    ``None`` when there is none."""
+    from heatweave.annotations import default_path
+
+    candidate = default_path(deck)
+    return candidate if deck != "-" and candidate.is_file() else None
 
 
 def build_emitted(deck: str, annotation: str | None, *, reference: bool = False) -> str:

@@ -6,21 +6,20 @@ import sys
 
 import click
 
-from heatweave.cli.common import guarded, is_terminal, report_findings
+from heatweave.cli.common import (
+    annotation_for,
+    deck_options,
+    guarded,
+    is_terminal,
+    report_findings,
+    simulation_options,
+)
 from heatweave.errors import UsageError
 from heatweave.quantities import SpiceQuantity
 
-BACKENDS = ("auto", "shared", "batch")
-
 
 @click.command()
-@click.argument("deck", type=click.Path(dir_okay=False, exists=True))
-@click.option(
-    "-a",
-    "--annotations",
-    type=click.Path(dir_okay=False, exists=True),
-    help="Annotation file (default: DECK.thermal.toml beside the deck).",
-)
+@deck_options
 @click.option(
     "--period",
     required=True,
@@ -68,24 +67,7 @@ BACKENDS = ("auto", "shared", "batch")
     metavar="TSTOP",
     help="Also compute the warm-up from cold up to TSTOP (JSON and CSV).",
 )
-@click.option(
-    "--ambient",
-    type=SpiceQuantity("degC"),
-    metavar="DEGC",
-    help="Ambient temperature instead of the annotation file's.",
-)
-@click.option(
-    "--backend",
-    type=click.Choice(BACKENDS),
-    default="auto",
-    show_default=True,
-    help="How to drive ngspice: shared library, batch program, or whichever works.",
-)
-@click.option(
-    "--allow-control",
-    is_flag=True,
-    help="Keep the deck's .control blocks (they can run any command).",
-)
+@simulation_options
 @click.option("--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout).")
 @click.option(
     "--csv",
@@ -114,7 +96,6 @@ def settle(
     the temperatures stop changing; then reports each part's cycle-mean, peak and valley
     temperature within the settled period.  Exit status 7 reports thermal runaway.
     """
-    from heatweave.cli.emit_cmd import default_annotation
     from heatweave.emitter import load_inputs
     from heatweave.files import write_atomic
     from heatweave.settle import SettleOptions, Step
@@ -126,13 +107,7 @@ def settle(
     outputs = {"--json": json_file, "--csv": csv_file}
     if json_file == csv_file == "-":
         raise UsageError("--json and --csv both write to stdout", hint="give one a file name")
-    chosen = annotations or default_annotation(deck)
-    if chosen is None:
-        raise UsageError(
-            f"no annotation file for {deck}",
-            hint="pass -a FILE, or put DECK.thermal.toml beside the deck",
-        )
-    annotation_path = str(chosen)
+    annotation_path = annotation_for(deck, annotations)
     inputs = load_inputs(deck, annotation_path)
 
     def show(step: Step) -> None:
