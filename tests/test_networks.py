@@ -335,7 +335,7 @@ def test_elements_in_ngspice_follow_zth(net: NetworkForm, tmp_path: Path) -> Non
 def test_steady_start_in_ngspice_stays_put(net: NetworkForm, tmp_path: Path) -> None:
     # Reference: ngspice 39; started in the steady state of 2 W, nothing may move
     # (derived here: the steady rises make every capacitor current zero).
-    t, v = _simulate(net, "steady", 2.0, 25.0, tmp_path)
+    _, v = _simulate(net, "steady", 2.0, 25.0, tmp_path)
     assert np.max(np.abs(v - 25.0 - 2.0 * net.total_rth)) < 1e-6 * net.total_rth
 
 
