@@ -178,7 +178,9 @@ class NetworkForm(ABC):
 
         ``start="cold"``: every node at the cold node's temperature (all 0).
         ``start="steady"``: the steady state under constant *power* (W).  Add the cold
-        node's temperature to get the values for ``.ic``.
+        node's temperature to get the values for ``.ic``.  Under ``.tran ... uic`` give
+        the cold node a value in ``.ic`` as well: ngspice starts every node not listed at
+        0 V, which would charge a Foster capacitor to the cold node's temperature.
         """
         names = (hot, *self.elements(prefix, hot, "cold", "0").nodes)
         rths = self.stage_rth()
