@@ -188,8 +188,22 @@ class DeckIndex:
     def __init__(self, project: Project) -> None:
         self.project = project
         self.deck_file = project.deck.path
-        self.models: dict[str, Card] = {}
-        self.top = self._scope("", None, self._expand(project.deck.body))
+        self._models: dict[str, Card] = {}
+        self._top: Scope | None = None
+
+    @property
+    def top(self) -> Scope:
+        """The top-level scope, built on first use (a deck with nothing to rewrite never
+        pays for indexing its cards)."""
+        if self._top is None:
+            self._top = self._scope("", None, self._expand(self.project.deck.body))
+        return self._top
+
+    @property
+    def models(self) -> dict[str, Card]:
+        """``.model`` cards by lower-case name, first definition winning."""
+        self.top  # noqa: B018 - building the scopes fills the table
+        return self._models
 
     def _expand(self, body: tuple[Node, ...]) -> list[Node]:
         """Nodes of a body with included bodies put in place of their include cards."""
@@ -217,7 +231,7 @@ class DeckIndex:
                 elif head.lower() == ".model":
                     fields = node.fields()
                     if len(fields) > 1:
-                        self.models.setdefault(fields[1].lower(), node)
+                        self._models.setdefault(fields[1].lower(), node)
             elif isinstance(node, Block) and node.kind == "subckt":
                 blocks.append(node)
         scope = Scope(name, parent, tuple(cards), tuple(heads))
