@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import difflib
 import fnmatch
+import re
 from collections.abc import Sequence
 from dataclasses import replace
 from typing import Protocol
@@ -59,13 +60,17 @@ def bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
 
     Exact keys beat globs; an element matched by two globs (and no exact key) is an error.
     """
+    if not annotation.parts:
+        return ()
     elements = list(catalog.element_paths())
-    by_upper: dict[str, str] = {e.upper(): e for e in elements}
+    uppers = [e.upper() for e in elements]
+    by_upper: dict[str, str] = dict(zip(uppers, elements, strict=True))
     exact: dict[str, PartSpec] = {}
     globbed: dict[str, list[PartSpec]] = {}
     for spec in annotation.parts:
         if spec.is_glob:
-            hits = [e for e in elements if fnmatch.fnmatchcase(e.upper(), spec.pattern.upper())]
+            matches = re.compile(fnmatch.translate(spec.pattern.upper())).match
+            hits = [by_upper[u] for u in filter(matches, uppers)]
             if not hits:
                 raise AnnotationError(
                     f'pattern "{spec.pattern}" matches no element of {catalog.deck_file}',
@@ -93,7 +98,7 @@ def bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
             )
         exact[element] = spec
     bound: list[BoundPart] = []
-    for element in elements:
+    for element in elements if globbed else [e for e in elements if e in exact]:
         chosen = exact.get(element)
         if chosen is None:
             candidates = globbed.get(element, [])
