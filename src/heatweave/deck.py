@@ -160,6 +160,13 @@ class Card:
 
     def logical(self) -> Logical:
         """Join continuation lines and cut inline comments, as ngspice reads the card."""
+        text = self.text
+        newline = text.find("\n")
+        if newline < 0 or newline == len(text) - 1:  # one physical line: the common case
+            line = text[:newline] if newline >= 0 else text
+            body = line.rstrip("\r").lstrip(" \t")
+            content = strip_inline_comment(body).rstrip(" \t")
+            return Logical(content, ((0, 0, len(line) - len(line.lstrip(" \t"))),))
         pieces: list[tuple[int, int, int]] = []
         chunks: list[str] = []
         length = 0

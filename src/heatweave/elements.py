@@ -26,9 +26,10 @@ _NODE = r"[^\s,=()'{}\"\[\]<>~%]+"
 #: A resistor card in its plainest form: name, two nodes, a number, numeric key=value pairs.
 #: Such a card is valid for the grammar too, so the rewrite path may skip the full parse.
 SIMPLE_RESISTOR = re.compile(
-    rf"[ \t]*[Rr]{_NODE}[ \t]+{_NODE}[ \t]+{_NODE}[ \t]+{_NUM}"
-    rf"(?:[ \t]+[A-Za-z_]\w*[ \t]*=[ \t]*{_NUM})*[ \t]*$"
+    rf"[ \t]*[Rr]{_NODE}[ \t]+({_NODE})[ \t]+({_NODE})[ \t]+({_NUM})"
+    rf"((?:[ \t]+[A-Za-z_]\w*[ \t]*=[ \t]*{_NUM})*)[ \t]*$"
 )
+_PAIR = re.compile(rf"([A-Za-z_]\w*)[ \t]*=[ \t]*({_NUM})")
 
 #: Fixed node counts by element letter (manual table 2.1).
 NODE_COUNT = {
@@ -81,6 +82,10 @@ def _node_spans(card: Card, index: DeckIndex | None) -> list[tuple[str, int, int
 
 def card_nodes(card: Card, index: DeckIndex | None = None) -> list[str]:
     """The node names of an element card, as written."""
+    if card.letter == "R":
+        simple = SIMPLE_RESISTOR.match(card.logical().text)
+        if simple is not None:
+            return [simple.group(1), simple.group(2)]
     return [text for text, _s, _e in _node_spans(card, index)]
 
 
@@ -108,17 +113,22 @@ _TEMPERATURE_PARAMS = ("tc1", "tc2", "tc", "tce", "temp", "dtemp")
 
 def resistor_value(card: Card, params: Mapping[str, float]) -> ResistorValue:
     """The nominal resistance of an ``R`` card, evaluating ``{expr}`` with *params*."""
-    fields = card.fields()
     pairs: dict[str, str] = {}
     positional: list[str] = []
-    i = 3
-    while i < len(fields):
-        if i + 1 < len(fields) and fields[i + 1] == "=":
-            pairs[fields[i].lower()] = fields[i + 2] if i + 2 < len(fields) else ""
-            i += 3
-        else:
-            positional.append(fields[i])
-            i += 1
+    simple = SIMPLE_RESISTOR.match(card.logical().text)
+    if simple is not None:
+        positional.append(simple.group(3))
+        pairs.update((k.lower(), v) for k, v in _PAIR.findall(simple.group(4)))
+    else:
+        fields = card.fields()
+        i = 3
+        while i < len(fields):
+            if i + 1 < len(fields) and fields[i + 1] == "=":
+                pairs[fields[i].lower()] = fields[i + 2] if i + 2 < len(fields) else ""
+                i += 3
+            else:
+                positional.append(fields[i])
+                i += 1
     raw = pairs.get("r") or pairs.get("resistance") or (positional[0] if positional else None)
     if raw is None:
         raise EmitError(

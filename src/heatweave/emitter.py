@@ -32,7 +32,7 @@ from dataclasses import dataclass, field, replace
 from heatweave import __version__
 from heatweave.annotations import Annotation, BoundPart
 from heatweave.deck import Block, Card, Deck, Node
-from heatweave.elements import card_nodes, rewrite_nodes
+from heatweave.elements import rewrite_nodes
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, Resolved, x_card_parts
 from heatweave.quantities import format_number
@@ -220,7 +220,7 @@ class _Rewriter:
 
     def resistor_cards(self, card: Card, part: PartPlan, name: str) -> list[str]:
         assert part.model is not None
-        nodes = card_nodes(card, self.index)
+        nodes = part.terminals
         if len(nodes) != 2:
             raise EmitError(f"{card.head} needs two nodes", card.location())
         a, b = nodes
@@ -232,7 +232,7 @@ class _Rewriter:
         return cards
 
     def heat_only_cards(self, card: Card, part: PartPlan, name: str) -> list[str]:
-        nodes = card_nodes(card, self.index)
+        nodes = part.terminals
         if len(nodes) < 2:
             raise EmitError(
                 f"cannot find the terminals of {card.head}",
@@ -240,7 +240,7 @@ class _Rewriter:
                 hint="heat-only parts need at least two terminals",
             )
         sensed = [f"{PREFIX}s_{name}_{k + 1}" for k in range(len(nodes) - 1)]
-        rewritten = rewrite_nodes(card, dict(enumerate(sensed)))
+        rewritten = rewrite_nodes(card, dict(enumerate(sensed)), self.index)
         lines = [rewritten.rstrip("\n")]
         terms = []
         for k, node in enumerate(nodes[:-1]):

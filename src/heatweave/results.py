@@ -16,7 +16,6 @@ from dataclasses import dataclass, field
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.elements import card_nodes
 from heatweave.hierarchy import DeckIndex, Resolved, global_names, top_level_node
 from heatweave.simulators import Plot, SimResult
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
@@ -123,7 +122,7 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
         resolved = index.resolve(part.path)
         assert resolved is not None
         temp = _vector(plot, f"v({part.node})")
-        nodes = [top_level_node(resolved, n, globals_) for n in card_nodes(resolved.card, index)]
+        nodes = [top_level_node(resolved, n, globals_) for n in part.terminals]
         resistance = nominal = None
         if part.model is not None:
             r_series = part.model.resistance(temp)

@@ -14,7 +14,7 @@ node ``board``), ``hw_amb`` (ambient), elements ``Bhw_rsense``, ``Rhw_n_board``.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from heatweave.annotations import AMBIENT, Annotation, BoundPart, NetworkSpec
 from heatweave.errors import AnnotationError, Finding, Location
@@ -58,11 +58,11 @@ class PartPlan:
     derating_knee: float
     location: Location | None
     nominal_resistance: float | None = None  # the deck's value (ohm), holding at tref
+    terminals: tuple[str, ...] = ()  # the element's nodes as written on its card
+    node: str = field(init=False, compare=False)  # the part's hot-spot node
 
-    @property
-    def node(self) -> str:
-        """The part's hot-spot node."""
-        return hot_node(self.path)
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "node", hot_node(self.path))
 
     @property
     def is_resistor(self) -> bool:
@@ -131,7 +131,7 @@ def build_circuit(
 ) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
     """The thermal circuit of a bound annotation, with each resistor's model built from
     the deck's nominal value; also the warnings about card parameters set aside."""
-    from heatweave.elements import SIMPLE_RESISTOR, resistor_value, top_params
+    from heatweave.elements import SIMPLE_RESISTOR, card_nodes, resistor_value, top_params
     from heatweave.lint import syntax_of
 
     findings: list[Finding] = list(annotation.warnings)
@@ -170,6 +170,7 @@ def build_circuit(
             PartPlan(
                 item.element, spec.model, model, network, node_of(spec.to), spec.to,
                 spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
+                tuple(card_nodes(found.card, index)),
             )
         )  # fmt: skip
     nodes = tuple(
