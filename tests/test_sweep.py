@@ -311,7 +311,7 @@ def dask_scheduler() -> Iterator[str]:
     distributed = pytest.importorskip("distributed")
     cluster = distributed.LocalCluster(
         n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-        dashboard_address=None,
+        dashboard_address=":0",
     )  # fmt: skip
     try:
         yield str(cluster.scheduler_address)

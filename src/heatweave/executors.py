@@ -125,7 +125,7 @@ class DaskExecutor:
         try:
             if scheduler is None:
                 self._cluster = distributed.LocalCluster(
-                    n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None
+                    n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=":0"
                 )
                 self._client: Any = distributed.Client(self._cluster)
             else:
