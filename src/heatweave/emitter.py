@@ -34,7 +34,7 @@ from heatweave.annotations import Annotation, BoundPart
 from heatweave.deck import Block, Card, Deck, Node
 from heatweave.elements import rewrite_nodes
 from heatweave.errors import EmitError, Finding
-from heatweave.hierarchy import DeckIndex, Project, Resolved, x_card_parts
+from heatweave.hierarchy import DeckIndex, Project, x_card_parts
 from heatweave.quantities import format_number
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
 
@@ -105,13 +105,15 @@ class _Rewriter:
         self.findings: list[Finding] = []
         self.added: list[str] = []  # every node name added, for the collision check
         self.thermal: list[str] = []  # hot spots and network nodes, for .ic and .global
-        self.parts: dict[str, PartPlan] = {p.path.lower(): p for p in circuit.parts}
-        self.resolved: dict[str, Resolved] = {}
+        # What to rewrite, by (instance path prefix in lower case, id of the card): the same
+        # card object stands in every instance of its definition.
+        self.part_at: dict[tuple[str, int], PartPlan] = {}
+        self.instance_at: dict[tuple[str, int], str] = {}
         # instance path prefix (lower) -> definition it needs a specialised copy of
         self.copies: dict[str, Block] = {}
         root = index.project.deck.source
         for part in circuit.parts:
-            found = index.resolve(part.path)
+            found = part.resolved or index.resolve(part.path)
             if found is None:
                 raise EmitError(f"part {part.path!r} is not in the deck", part.location)
             if not found.instances and found.card.source is not root:
@@ -122,30 +124,30 @@ class _Rewriter:
                     hint="heatweave leaves included files untouched: move the card into the "
                     "deck, or into a subcircuit definition (those are specialised in the deck)",
                 )
-            self.resolved[part.path.lower()] = found
             prefix = ""
             for instance, definition in zip(found.instances, found.definitions, strict=True):
-                prefix = f"{prefix}.{instance.head}" if prefix else instance.head
+                self.instance_at[(prefix.lower(), id(instance))] = (
+                    f"{prefix}.{instance.head}" if prefix else instance.head
+                )
+                prefix = self.instance_at[(prefix.lower(), id(instance))]
                 self.copies[prefix.lower()] = definition
+            self.part_at[(prefix.lower(), id(found.card))] = part
         self.placed: set[str] = set()
 
     # -- bodies -------------------------------------------------------------------------
 
     def body(self, nodes: Iterable[Node], prefix: str, top: bool) -> list[Node]:
         out: list[Node] = []
-        parts, copies = self.parts, self.copies
+        context = prefix.lower()
+        part_at, instance_at = self.part_at, self.instance_at
         for node in nodes:
             if type(node) is Card:
-                head = node.head
-                if not head[:1].isalpha():
-                    out.append(node)
-                    continue
-                path = f"{prefix}.{head}" if prefix else head
-                key = path.lower()
-                part = parts.get(key)
+                part = part_at.get((context, id(node)))
                 if part is not None:
                     out.extend(self.replace_part(node, part))
-                elif key in copies and head[:1] in "xX":
+                    continue
+                path = instance_at.get((context, id(node)))
+                if path is not None:
                     _nodes, sub, _params = x_card_parts(node)
                     out.append(self.retarget(node, sub, copy_name(sub, path)))
                 else:
@@ -182,9 +184,10 @@ class _Rewriter:
         return out
 
     def _spelled(self, lower_path: str) -> str:
-        for part in self.circuit.parts:
-            if part.path.lower().startswith(lower_path):
-                return part.path[: len(lower_path)]
+        """An instance path as the deck spells it."""
+        for spelled in self.instance_at.values():
+            if spelled.lower() == lower_path:
+                return spelled
         return lower_path
 
     # -- cards ---------------------------------------------------------------------------

@@ -119,7 +119,7 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
 
     parts = []
     for part in circuit.parts:
-        resolved = index.resolve(part.path)
+        resolved = part.resolved or index.resolve(part.path)
         assert resolved is not None
         temp = _vector(plot, f"v({part.node})")
         nodes = [top_level_node(resolved, n, globals_) for n in part.terminals]

@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 
 from heatweave.annotations import AMBIENT, Annotation, BoundPart, NetworkSpec
 from heatweave.errors import AnnotationError, Finding, Location
-from heatweave.hierarchy import DeckIndex
+from heatweave.hierarchy import DeckIndex, Resolved
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
 from heatweave.tempmodels.base import TempModel
 
@@ -59,6 +59,7 @@ class PartPlan:
     location: Location | None
     nominal_resistance: float | None = None  # the deck's value (ohm), holding at tref
     terminals: tuple[str, ...] = ()  # the element's nodes as written on its card
+    resolved: Resolved | None = field(default=None, compare=False, repr=False)
     node: str = field(init=False, compare=False)  # the part's hot-spot node
 
     def __post_init__(self) -> None:
@@ -170,7 +171,7 @@ def build_circuit(
             PartPlan(
                 item.element, spec.model, model, network, node_of(spec.to), spec.to,
                 spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
-                tuple(card_nodes(found.card, index)),
+                tuple(card_nodes(found.card, index)), found,
             )
         )  # fmt: skip
     nodes = tuple(
