@@ -230,3 +230,16 @@ def test_auto_falls_back_to_full_for_an_operating_point() -> None:
     assert outcome.method == "full"
     assert outcome.full is not None
     assert "not a transient" in outcome.reason
+
+
+@pytest.mark.ngspice
+def test_strong_feedback_falls_back_to_the_full_deck() -> None:
+    # A 1 k NTC (beta 3435) dissipating ~0.1 W into 150 K/W plus the board: the loop gain
+    # bound sum_j Z_ij P_j |d ln R_j/dT| passes 0.8 in the first windows (windows.py).
+    deck, annotation = fixture("feedback")
+    outcome = cosim.run_auto(deck, annotation)
+    assert outcome.method == "full"
+    assert "loop gain" in outcome.reason
+    assert outcome.full is not None
+    with pytest.raises(UsageError, match="loop gain"):
+        cosim.run_auto(deck, annotation, method="cosim")
