@@ -234,7 +234,7 @@ def test_auto_falls_back_to_full_for_an_operating_point() -> None:
 
 @pytest.mark.ngspice
 def test_strong_feedback_falls_back_to_the_full_deck() -> None:
-    # A 1 k NTC (beta 3435) dissipating ~0.1 W into 150 K/W plus the board: the loop gain
+    # A 1 k NTC (beta 3435) dissipating ~0.08 W into 150 K/W plus the board: the loop gain
     # bound sum_j Z_ij P_j |d ln R_j/dT| passes 0.8 in the first windows (windows.py).
     deck, annotation = fixture("feedback")
     outcome = cosim.run_auto(deck, annotation)
