@@ -7,8 +7,17 @@ from collections.abc import Callable
 
 import click
 
-from heatweave.cli.common import guarded, is_terminal, style_severity
-from heatweave.cli.run_cmd import BACKENDS, analyses_of, check_outputs
+from heatweave.cli.common import (
+    BACKENDS,
+    analyses_of,
+    analysis_options,
+    annotation_for,
+    deck_options,
+    guarded,
+    is_terminal,
+    style_severity,
+)
+from heatweave.cli.run_cmd import check_outputs
 from heatweave.errors import UsageError
 from heatweave.quantities import SpiceQuantity
 
@@ -35,13 +44,7 @@ def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
 
 
 @click.command()
-@click.argument("deck", type=click.Path(dir_okay=False, exists=True))
-@click.option(
-    "-a",
-    "--annotations",
-    type=click.Path(dir_okay=False, exists=True),
-    help="Annotation file (default: DECK.thermal.toml beside the deck).",
-)
+@deck_options
 @click.option(
     "--ambient",
     "ambient_range",
@@ -65,13 +68,7 @@ def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
 @click.option(
     "--seed", type=click.IntRange(min=0), metavar="S", help="Seed of the Monte Carlo draws."
 )
-@click.option("--op", is_flag=True, help="Run an operating point instead of the deck's analyses.")
-@click.option(
-    "--tran",
-    type=(SpiceQuantity("s", positive=True), SpiceQuantity("s", positive=True)),
-    metavar="TSTEP TSTOP",
-    help="Run a transient instead of the deck's analyses, e.g. 1m 10.",
-)
+@analysis_options
 @click.option(
     "--backend",
     type=click.Choice(BACKENDS),
@@ -135,7 +132,6 @@ def sweep(
     Exit status: 0 when every corner ran, 1 when some failed (each is named), and when all
     failed the status of the first corner's error (3, 4, 7, ...).
     """  # fmt: skip
-    from heatweave.annotations import default_path
     from heatweave.emitter import load_inputs
     from heatweave.executors import make_executor
     from heatweave.files import write_atomic
@@ -161,7 +157,7 @@ def sweep(
         allow_control=allow_control,
         timeout=timeout,
     )
-    annotation_path = annotations or str(default_path(deck))
+    annotation_path = annotation_for(deck, annotations)
     inputs = load_inputs(deck, annotation_path)
     pool = make_executor(executor, jobs, scheduler, preload=WORKER_MODULES)
     try:
