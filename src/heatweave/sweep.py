@@ -172,10 +172,12 @@ def drawn_values(nominal: Annotation, drawn: Annotation) -> Drawn:
         if not part.tolerances:
             continue
         params = got.param_map
-        rth, cth = got.network.stages[0]
+        stage: dict[str, float] = {}
+        if got.network.kind == "single":  # sample() draws rth/cth of single stages only
+            stage = dict(zip(("rth", "cth"), got.network.stages[0], strict=True))
         values: dict[str, float] = {}
         for key, _ in part.tolerances:
-            value = params.get(key, {"rth": rth, "cth": cth}.get(key))
+            value = params.get(key, stage.get(key))
             if isinstance(value, int | float):
                 values[key] = float(value)
         out[part.pattern] = values
