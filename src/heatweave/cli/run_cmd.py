@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import sys
 from collections.abc import Callable
+from dataclasses import replace
 from pathlib import Path
 
 import click
@@ -98,6 +99,15 @@ def probe_nodes(probes: tuple[str, ...], voltages: dict[str, float]) -> tuple[st
     metavar="SECONDS",
     help="Stop ngspice after this long.",
 )
+@click.option(
+    "--method",
+    type=click.Choice(("auto", "cosim", "full")),
+    default="auto",
+    show_default=True,
+    help="cosim: plain resistors in windows with the thermal network advanced exactly "
+    "between them (fast, where time scales separate); full: the electrothermal deck; "
+    "auto: cosim where it is accurate, else full.",
+)
 @click.option("-q", "--quiet", is_flag=True, help="No table and no progress; warnings only.")
 @guarded
 def run(
@@ -113,6 +123,7 @@ def run(
     plot_file: str | None,
     probe: tuple[str, ...],
     timeout: float | None,
+    method: str,
     quiet: bool,
 ) -> None:
     """Simulate DECK with self-heating and report part temperatures, drift and margins.
@@ -138,9 +149,29 @@ def run(
         timeout=timeout,
         progress=progress_printer(not quiet and is_terminal()),
     )
-    outcome = run_deck(deck, annotation_path, options, inputs=inputs)
-    report_findings(list(outcome.prepared.findings))
-    report = build_report(inputs, outcome, probe_nodes(probe, outcome.results.voltages))
+    if method == "full":
+        outcome = run_deck(deck, annotation_path, options, inputs=inputs)
+        report_findings(list(outcome.prepared.findings))
+        report = build_report(inputs, outcome, probe_nodes(probe, outcome.results.voltages))
+        report = replace(report, method_reason="asked for the full electrothermal deck")
+    else:
+        from heatweave.cosim import run_auto
+        from heatweave.reports.model import report_of
+        from heatweave.runner import deck_analyses_of
+
+        fast = run_auto(deck, annotation_path, options, method=method, inputs=inputs)
+        report_findings(list(fast.findings))
+        if fast.full is not None:
+            report = build_report(inputs, fast.full, probe_nodes(probe, fast.results.voltages))
+            report = replace(report, method_reason=fast.reason)
+        else:
+            own = tuple(deck_analyses_of(inputs.project.deck.write()))
+            report = report_of(
+                inputs, fast.results, analyses or own, "shared", fast.findings,
+                probe_nodes(probe, fast.results.voltages), (fast.method, fast.reason),
+            )  # fmt: skip
+        if not quiet:
+            click.echo(f"method: {fast.method} ({fast.reason})", err=True)
     if json_file is not None:
         from heatweave.reports import json_report
 

@@ -17,6 +17,10 @@ differences in K, resistances in ohm, dissipation in W, voltages in V.
     The analyses that ran, as ngspice commands (``["tran 1m 2"]``) or the deck's cards.
 ``backend``
     The simulator back end that ran ngspice (``shared`` or ``batch``).
+``method``
+    ``{"name": ..., "reason": ...}``: ``full`` (the electrothermal deck simulated as
+    emitted) or ``cosim`` (the fast path: plain resistors in windows, the thermal network
+    advanced exactly between them), and why it was chosen.
 ``ambient``
     The ambient temperature at the end of the run (degC).
 ``parts``
@@ -100,6 +104,7 @@ def as_dict(report: RunReport) -> dict[str, Any]:
         "analysis": results.analysis,
         "analysis_commands": list(report.analyses),
         "backend": report.backend,
+        "method": {"name": report.method, "reason": report.method_reason},
         "ambient": _number(results.ambient),
         "parts": {row.path: _part(row) for row in report.rows},
         "nodes": {label: _number(value) for label, value in results.nodes.items()},

@@ -16,6 +16,7 @@ import numpy as np
 
 from heatweave.annotations import AMBIENT
 from heatweave.emitter import Inputs
+from heatweave.errors import Finding
 from heatweave.ratings import Margins, margins, worst_instant
 from heatweave.results import FloatArray, PartResult, RunResults
 from heatweave.runner import RunOutcome, deck_analyses_of
@@ -73,6 +74,8 @@ class RunReport:
     warnings: tuple[str, ...] = ()
     probes: tuple[str, ...] = ()
     ambient_series: FloatArray | None = field(default=None, repr=False)
+    method: str = "full"  # "full" (the electrothermal deck) or "cosim" (the fast path)
+    method_reason: str = ""
 
     @property
     def transient(self) -> bool:
@@ -116,20 +119,42 @@ def part_row(part: PartResult, results: RunResults, ambient: FloatArray) -> Part
 
 def build_report(inputs: Inputs, outcome: RunOutcome, probes: tuple[str, ...] = ()) -> RunReport:
     """The report of one finished run of *inputs*; *probes* are deck nodes to plot."""
-    from heatweave.checks import ambient_series
-
-    results = outcome.results
     prepared = outcome.prepared
-    ambient = ambient_series(outcome)
+    return report_of(
+        inputs,
+        outcome.results,
+        prepared.analyses or tuple(deck_analyses_of(prepared.text)),
+        outcome.sim.backend,
+        prepared.findings,
+        probes,
+    )
+
+
+def report_of(
+    inputs: Inputs,
+    results: RunResults,
+    analyses: tuple[str, ...],
+    backend: str,
+    findings: tuple[Finding, ...],
+    probes: tuple[str, ...] = (),
+    method: tuple[str, str] = ("full", ""),
+) -> RunReport:
+    """The report of *results*, however they were computed (full deck or co-simulation)."""
+    if results.ambient_series is not None:
+        ambient = results.ambient_series
+    else:
+        ambient = np.full(len(results.time) if results.time is not None else 1, results.ambient)
     return RunReport(
         deck=inputs.deck_path,
         annotations=inputs.annotation_path,
         annotations_sha256=inputs.annotation.sha256,
-        analyses=prepared.analyses or tuple(deck_analyses_of(prepared.text)),
-        backend=outcome.sim.backend,
+        analyses=analyses,
+        backend=backend,
         results=results,
         rows=tuple(part_row(part, results, ambient) for part in results.parts),
-        warnings=tuple(f.render() for f in prepared.findings),
+        warnings=tuple(f.render() for f in findings),
         probes=probes,
         ambient_series=ambient if is_transient(results) else None,
+        method=method[0],
+        method_reason=method[1],
     )
