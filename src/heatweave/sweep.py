@@ -140,9 +140,10 @@ class SweepResult:
 
 def worker_backend(name: str) -> str:
     """The back end workers use for ``--backend NAME``: ``auto`` means the batch program
-    when it is installed.  Measured with ``benchmarks/bench_sweep.py`` (a 30 ms transient
-    of 30000 steps): 0.75 s a corner in batch against 1.7 s through the shared library,
-    whose per-step callbacks run in Python; for an operating point both take about 50 ms."""
+    when it is installed.  Measured with ``benchmarks/bench_sweep.py`` (a 90 ms transient
+    of about 90000 steps): 0.51 s a corner in batch against 1.42 s through the shared
+    library, whose per-step callbacks run in Python; an operating point takes about 50 ms
+    either way."""
     if name == "auto" and shutil.which("ngspice"):
         return "batch"
     return name
