@@ -53,25 +53,27 @@ def read(text: str, path: str = "<deck>", *, title: bool = True) -> Deck:
     body = stack[0][1]
     control: list[str] | None = None  # pieces of an open .control block
     control_start = (0, "")
+    append = body.append
     for match in _CARD.finditer(text, pos):
-        lead, card_text = match.groups()
-        card_offset = match.end(1)
-        if match.start() != pos:  # not expected with the patterns above; never lose text
-            lead = text[pos : match.start()] + lead
-        pos = match.end()
+        card_offset, end = match.span(2)
+        # Everything since the last card is this card's lead: its trivia lines (and, were
+        # the patterns ever to skip a character, that too: text is never lost).
+        lead = text[pos:card_offset]
+        card_text = text[card_offset:end]
+        pos = end
         if control is not None:
             control.append(lead)
             control.append(card_text)
             if _word_is(card_text.lstrip(_BLANKS), ".endc"):
                 offset, block_lead = control_start
-                body.append(ControlBlock("".join(control), block_lead, source, offset))
+                append(ControlBlock("".join(control), block_lead, source, offset))
                 control = None
             continue
         first = card_text[:1]
         if first in _BLANKS:
             first = card_text.lstrip(_BLANKS)[:1]
         if first != ".":
-            body.append(Card(card_text, lead, source, card_offset))
+            append(Card(card_text, lead, source, card_offset))
             continue
         stripped = card_text.lstrip(_BLANKS)
         if _word_is(stripped, ".control"):
@@ -79,6 +81,7 @@ def read(text: str, path: str = "<deck>", *, title: bool = True) -> Deck:
             control_start = (card_offset, lead)
             continue
         body = _structure(Card(card_text, lead, source, card_offset), stack, body)
+        append = body.append
 
     if control is not None:
         offset, block_lead = control_start
