@@ -77,8 +77,18 @@ def pick(
             default = spec.default
         value = params.get(spec.key)
         if isinstance(value, int | float):
-            return float(value) * spec.scale
+            return in_group_unit(float(value), spec.scale)
     return default
+
+
+def in_group_unit(value: float, scale: float) -> float:
+    """*value* times *scale*, dividing by the reciprocal for sub-unit scales so that
+    ``tc1_ppm = 20`` becomes exactly the float nearest 2e-05 (not 1.9999999999999998e-05)."""
+    if 0 < scale < 1:
+        reciprocal = round(1.0 / scale)
+        if abs(reciprocal * scale - 1.0) < 1e-12:
+            return value / reciprocal
+    return value * scale
 
 
 def written(params: Mapping[str, ParamValue], key: str) -> float | None:
