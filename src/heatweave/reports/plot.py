@@ -138,6 +138,8 @@ def _transient(figure: Figure, report: RunReport, colours: dict[str, str]) -> No
             volt_ends.append((name, float(values[-1]), probe_colours[name]))
         volts.set_ylabel("voltage [V]")
         volts.set_title("Deck node voltages", fontsize=9, loc="left")
+        # Full values on the axis: an offset ("+2.495") is easy to miss.
+        volts.ticklabel_format(axis="y", useOffset=False)
         finished.append((volts, volt_ends))
     axes[-1].set_xlabel(f"time [{unit}]")
     axes[-1].set_xlim(float(t[0]), float(t[-1]))
