@@ -158,3 +158,60 @@ def annotation_for(deck: str, annotations: str | None) -> str:
         f"no annotation file for {deck}",
         hint=f"write {candidate} beside the deck, or name one with -a FILE",
     )
+
+
+def report_options(csv_help: str, *, plot: bool = True) -> Callable[[F], F]:
+    """``--json FILE``, ``--csv FILE`` (with *csv_help*) and, with *plot*, ``--plot FILE.png``;
+    ``-`` writes a report to stdout."""
+
+    def decorate(func: F) -> F:
+        if plot:
+            func = click.option(
+                "--plot", "plot_file", metavar="FILE.png", help="Write a PNG figure."
+            )(func)
+        func = click.option("--csv", "csv_file", metavar="FILE", help=csv_help)(func)
+        return click.option(
+            "--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout)."
+        )(func)
+
+    return decorate
+
+
+def run_control_options(timeout_help: str) -> Callable[[F], F]:
+    """``--timeout SECONDS`` (with *timeout_help*) and ``-q/--quiet``."""
+
+    def decorate(func: F) -> F:
+        from heatweave.quantities import SpiceQuantity
+
+        func = click.option(
+            "-q", "--quiet", is_flag=True, help="No table and no progress; warnings only."
+        )(func)
+        return click.option(
+            "--timeout",
+            type=SpiceQuantity("s", positive=True),
+            metavar="SECONDS",
+            help=timeout_help,
+        )(func)
+
+    return decorate
+
+
+def check_outputs(outputs: dict[str, str | None], deck: str) -> None:
+    """At most one output on stdout, and none of them the input deck."""
+    from pathlib import Path
+
+    from heatweave.errors import UsageError
+    from heatweave.files import same_file
+
+    on_stdout = [name for name, path in outputs.items() if path == "-"]
+    if len(on_stdout) > 1:
+        raise UsageError(
+            f"{' and '.join(on_stdout)} both write to stdout",
+            hint="send at most one of them to -; give the others file names",
+        )
+    for name, path in outputs.items():
+        if path is not None and path != "-" and Path(path).exists() and same_file(path, deck):
+            raise UsageError(
+                f"{name} {path} is the input deck, which heatweave never overwrites",
+                hint=f"choose another file name for {name}",
+            )

@@ -5,43 +5,23 @@ from __future__ import annotations
 import sys
 from collections.abc import Callable
 from dataclasses import replace
-from pathlib import Path
 
 import click
 
 from heatweave.cli.common import (
-    BACKENDS,
     analyses_of,
     analysis_options,
     annotation_for,
+    check_outputs,
     deck_options,
     guarded,
     is_terminal,
     report_findings,
+    report_options,
+    run_control_options,
     simulation_options,
 )
 from heatweave.errors import UsageError
-
-__all__ = ["BACKENDS", "analyses_of", "check_outputs", "probe_nodes", "progress_printer", "run"]
-from heatweave.quantities import SpiceQuantity
-
-
-def check_outputs(outputs: dict[str, str | None], deck: str) -> None:
-    """At most one output on stdout, and none of them the input deck."""
-    from heatweave.files import same_file
-
-    on_stdout = [name for name, path in outputs.items() if path == "-"]
-    if len(on_stdout) > 1:
-        raise UsageError(
-            f"{' and '.join(on_stdout)} both write to stdout",
-            hint="send at most one of them to -; give the others file names",
-        )
-    for name, path in outputs.items():
-        if path is not None and path != "-" and Path(path).exists() and same_file(path, deck):
-            raise UsageError(
-                f"{name} {path} is the input deck, which run never overwrites",
-                hint=f"choose another file name for {name}",
-            )
 
 
 def progress_printer(enabled: bool) -> Callable[[float], None] | None:
@@ -84,20 +64,12 @@ def probe_nodes(probes: tuple[str, ...], voltages: dict[str, float]) -> tuple[st
 @deck_options
 @analysis_options
 @simulation_options
-@click.option("--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout).")
-@click.option("--csv", "csv_file", metavar="FILE", help="Write the waveforms as CSV (- is stdout).")
-@click.option("--plot", "plot_file", metavar="FILE.png", help="Write a PNG figure.")
+@report_options("Write the waveforms as CSV (- is stdout).")
 @click.option(
     "--probe",
     multiple=True,
     metavar="NODE",
     help="Deck node whose voltage the plot shows (repeatable).",
-)
-@click.option(
-    "--timeout",
-    type=SpiceQuantity("s", positive=True),
-    metavar="SECONDS",
-    help="Stop ngspice after this long.",
 )
 @click.option(
     "--method",
@@ -108,7 +80,7 @@ def probe_nodes(probes: tuple[str, ...], voltages: dict[str, float]) -> tuple[st
     "between them (fast, where time scales separate); full: the electrothermal deck; "
     "auto: cosim where it is accurate, else full.",
 )
-@click.option("-q", "--quiet", is_flag=True, help="No table and no progress; warnings only.")
+@run_control_options("Stop ngspice after this long.")
 @guarded
 def run(
     deck: str,

@@ -12,6 +12,8 @@ from heatweave.cli.common import (
     guarded,
     is_terminal,
     report_findings,
+    report_options,
+    run_control_options,
     simulation_options,
 )
 from heatweave.errors import UsageError
@@ -68,20 +70,8 @@ from heatweave.quantities import SpiceQuantity
     help="Also compute the warm-up from cold up to TSTOP (JSON and CSV).",
 )
 @simulation_options
-@click.option("--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout).")
-@click.option(
-    "--csv",
-    "csv_file",
-    metavar="FILE",
-    help="Write the --envelope warm-up curve as CSV (- is stdout).",
-)
-@click.option(
-    "--timeout",
-    type=SpiceQuantity("s", positive=True),
-    metavar="SECONDS",
-    help="Stop each ngspice run after this long.",
-)
-@click.option("-q", "--quiet", is_flag=True, help="No table and no progress; warnings only.")
+@report_options("Write the --envelope warm-up curve as CSV (- is stdout).", plot=False)
+@run_control_options("Stop each ngspice run after this long.")
 @guarded
 def settle(
     deck: str, annotations: str | None, period: float, periods: int, tstep: float | None,

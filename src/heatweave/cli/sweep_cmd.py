@@ -12,14 +12,15 @@ from heatweave.cli.common import (
     analyses_of,
     analysis_options,
     annotation_for,
+    check_outputs,
     deck_options,
     guarded,
     is_terminal,
+    report_options,
+    run_control_options,
     style_severity,
 )
-from heatweave.cli.run_cmd import check_outputs
 from heatweave.errors import UsageError
-from heatweave.quantities import SpiceQuantity
 
 #: What every worker imports: loaded once by the fork server, then shared by the workers.
 WORKER_MODULES = ("heatweave.sweep", "heatweave.reports", "heatweave.runaway")
@@ -95,16 +96,8 @@ def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
     metavar="ADDRESS",
     help="Dask scheduler (tcp://HOST:PORT); without it --executor dask starts a local cluster.",
 )
-@click.option(
-    "--timeout",
-    type=SpiceQuantity("s", positive=True),
-    metavar="SECONDS",
-    help="Stop ngspice after this long (each corner).",
-)
-@click.option("--json", "json_file", metavar="FILE", help="Write the JSON report (- is stdout).")
-@click.option("--csv", "csv_file", metavar="FILE", help="Write one CSV row per corner and part.")
-@click.option("--plot", "plot_file", metavar="FILE.png", help="Write a PNG figure.")
-@click.option("-q", "--quiet", is_flag=True, help="No table and no progress; warnings only.")
+@report_options("Write one CSV row per corner and part.")
+@run_control_options("Stop ngspice after this long (each corner).")
 @guarded
 def sweep(
     deck: str,
