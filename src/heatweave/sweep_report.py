@@ -35,7 +35,7 @@ from typing import Any
 
 from heatweave import __version__
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
-from heatweave.reports.table import WIDTH, _grid, _styles
+from heatweave.reports.table import WIDTH, cell_styles, grid
 from heatweave.runner import deck_analyses_of
 from heatweave.sweep import PERCENTILES, CornerOutcome, SweepResult, describe, summary
 
@@ -207,7 +207,7 @@ def _monte_carlo_table(
 
 def render_table(result: SweepResult, colour: bool = False) -> str:
     """Settings line, one row per corner (or the Monte Carlo statistics), failures, caution."""
-    styles = _styles(colour)
+    styles = cell_styles(colour)
     stats = summary(result)
     if result.plan.draws:
         header, body, left = _monte_carlo_table(result, stats)
@@ -216,7 +216,7 @@ def render_table(result: SweepResult, colour: bool = False) -> str:
     lines = [_settings(result), ""]
     if body:
         levels = [[""] * len(left) for _ in body]
-        lines += _grid(header, body, left, levels, styles)
+        lines += grid(header, body, left, levels, styles)
     else:
         lines.append("no corner ran")
     for outcome in result.failed:

@@ -85,7 +85,7 @@ COLUMNS: tuple[Column, ...] = (
 )
 
 
-def _styles(colour: bool) -> dict[str, Style]:
+def cell_styles(colour: bool) -> dict[str, Style]:
     if not colour:
         return {"": str, "near": str, "over": str, "head": str}
     return {
@@ -96,7 +96,7 @@ def _styles(colour: bool) -> dict[str, Style]:
     }
 
 
-def _grid(
+def grid(
     header: Sequence[Sequence[str]],
     body: Sequence[Sequence[str]],
     left: Sequence[bool],
@@ -148,7 +148,7 @@ def _exceeded(report: RunReport) -> list[str]:
 
 def render(report: RunReport, colour: bool = False) -> str:
     """The whole summary: settings line, part table, thermal nodes, caution line."""
-    styles = _styles(colour)
+    styles = cell_styles(colour)
     transient = report.transient
     columns = [c for c in COLUMNS if transient or c.title != "T peak"]
     left = [c.left for c in columns]
@@ -157,14 +157,14 @@ def render(report: RunReport, colour: bool = False) -> str:
     levels = [[c.level(row) for c in columns] for row in report.rows]
     lines = [_settings(report), ""]
     if report.rows:
-        lines += _grid(header, body, left, levels, styles)
+        lines += grid(header, body, left, levels, styles)
     else:
         lines.append("no annotated parts")
     nodes = [(label, value) for label, value in report.results.nodes.items()]
     nodes.append(("ambient", report.results.ambient))
     node_lines = [[label, format(value, ".2f")] for label, value in nodes]
     lines += [""]
-    lines += _grid(
+    lines += grid(
         [["thermal node", "T final"], ["", "degC"]],
         node_lines,
         [True, False],
