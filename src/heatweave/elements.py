@@ -216,11 +216,14 @@ def _eval(node: ast.expr, params: Mapping[str, float]) -> float:
     raise ValueError("unsupported expression")
 
 
+_PARAM_CARD = re.compile(r"^[ \t]*\.param", re.IGNORECASE | re.MULTILINE)
+
+
 def top_params(index: DeckIndex) -> dict[str, float]:
     """Numeric values of the top-level ``.param`` cards, in order, later ones winning."""
     values: dict[str, float] = {}
     source = index.project.deck.source
-    if source is not None and ".param" not in source.text.lower():
+    if source is not None and _PARAM_CARD.search(source.text) is None:
         return values
     for card in index.project.deck.body:
         if not isinstance(card, Card) or card.name != ".param":

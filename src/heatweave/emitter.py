@@ -454,6 +454,9 @@ def emit_inputs(
     circuit, findings = build_circuit(chosen, bound, inputs.index)
     if ambient is not None:
         circuit = replace(circuit, ambient=float(ambient))
+    if not circuit.parts:
+        # Nothing heats: the deck is written back unchanged, byte for byte.
+        return Emitted(inputs.project.deck.write(), (), findings, circuit)
     deck_text = inputs.project.deck.write()
     head = header(
         _basename(inputs.deck_path), deck_text, _basename(inputs.annotation_path), chosen.text
