@@ -72,6 +72,8 @@ def t_tol(expected: float) -> float:
         ("85", (85.0,)),  # a single value
         ("10m:30m:10m", (0.01, 0.02, 0.03)),  # SPICE scale factors
         ("5:5:1", (5.0,)),
+        ("0.2m,1m,5m", (0.0002, 0.001, 0.005)),  # a list, in the order given
+        ("-40,0:50:25,125", (-40.0, 0.0, 25.0, 50.0, 125.0)),  # lists of ranges too
     ],
 )
 def test_range_grid(text: str, expected: tuple[float, ...]) -> None:

@@ -23,19 +23,27 @@ from heatweave.quantities import format_number, parse_number
 #: A sweep larger than this is almost certainly a typo in STEP.
 MAX_POINTS = 100_000
 
-_RANGE_HINT = "write START:STOP:STEP, e.g. -40:125:5, or a single value such as 85"
+_RANGE_HINT = (
+    "write START:STOP:STEP, e.g. -40:125:5, a single value such as 85, or a list: 1m,2m,5m"
+)
 
 
 def parse_range(text: str, what: str) -> tuple[float, ...]:
-    """The grid of a ``START:STOP:STEP`` range or a single value, as floats."""
+    """The grid of a ``START:STOP:STEP`` range, a single value, or a comma list of values
+    and ranges (``0.2m,1m,2m``), as floats in the order given."""
+    if "," in text:
+        values: list[float] = []
+        for piece in text.split(","):
+            values.extend(parse_range(piece.strip(), what))
+        return tuple(values)
     pieces = text.split(":")
     numbers = [parse_number(p) for p in pieces]
     if len(pieces) not in (1, 3) or any(n is None for n in numbers):
         raise UsageError(f"{what} {text!r} is not a value or a range", hint=_RANGE_HINT)
-    values = [float(n) for n in numbers if n is not None]
-    if len(values) == 1:
-        return (values[0],)
-    start, stop, step = values
+    found = [float(n) for n in numbers if n is not None]
+    if len(found) == 1:
+        return (found[0],)
+    start, stop, step = found
     if start == stop:
         return (start,)
     if step == 0 or (stop - start) / step < 0:
