@@ -1,0 +1,250 @@
+"""Card forms for an annotated resistor in a standalone electrothermal deck.
+
+An annotated resistor ``R a b R0`` becomes cards that carry the current a -> b through
+R(T), with T the voltage of its hot-spot node, and (when heating) inject its dissipation
+V(a,b)^2 / R(T) as a current from node 0 into that node.  The forms differ only in how
+ngspice evaluates those same equations:
+
+* ``reference``: two behavioural sources per part, ``I = V(a,b)/(R(T))`` and
+  ``I = V(a,b)*V(a,b)/(R(T))``; general, and the yardstick for the others;
+* ``switch``: the current through an XSPICE ``aswitch`` with ``log=FALSE``, whose
+  resistance is linear in its control input and not limited outside the control range
+  (ngspice manual 12.2.11), and the dissipation V * I from an XSPICE ``mult`` whose inputs
+  are V(a,b) and the element current (a ``%id`` current input, a 0 V sense).  A linear
+  model drives the switch from the hot node directly: r = R0 + R0 tc1 (T - tref) is the
+  switch's own line through two points.  Any other model drives a unit switch (r = control)
+  from a behavioural voltage source ``V = R(T)`` written with the model's own expression.
+  Without a temperature coefficient the current flows in a plain resistor and the
+  dissipation is ``mult`` of V(a,b) with itself times 1/R0;
+* ``divider``: the three-code-model form (``divide`` for the current, ``mult`` for V^2,
+  ``divide`` again for the dissipation), for linear models only; other models get the
+  reference cards.
+
+Names: elements ``Ahw_r_<name>``, ``Ahw_p_<name>``, ``Bhw_v_<name>``, ``Rhw_<name>``;
+nodes ``hw_x_<name>`` (between the switch and its current sense), ``hw_r_<name>`` (the
+resistance as a voltage), ``hw_q_<name>`` (V^2 in the divider form); ``.model`` names
+``hw_<kind>_<digest>``, a digest of the parameters, so parts with equal parameters share
+one card.  Every deck with an XSPICE device runs its transient with ``trtol = 1`` (ngspice
+sets that itself whatever the deck says, manual 15.1.4).
+"""
+
+from __future__ import annotations
+
+import hashlib
+from abc import ABC, abstractmethod
+from collections.abc import Iterable
+from typing import ClassVar
+
+from heatweave.tempmodels.base import TempModel
+from heatweave.tempmodels.linear import Polynomial
+from heatweave.thermal_circuit import PREFIX
+
+# Product of the two inputs, the dissipation V * I (or V^2 in the divider form).
+PRODUCT_MODEL = f"{PREFIX}vi"
+# Resistance equal to the control voltage: r = 0 + (1 - 0) (c - 0) / (1 - 0).
+UNIT_SWITCH_MODEL = f"{PREFIX}unit"
+
+
+def _num(value: float) -> str:
+    """A number with full double precision: ``.model`` values are parsed as written."""
+    return repr(float(value))
+
+
+def _digest(*values: float) -> str:
+    return hashlib.sha256(" ".join(_num(v) for v in values).encode()).hexdigest()[:10]
+
+
+def _linear(model: TempModel) -> tuple[float, float, float] | None:
+    """(R0, tref, tc1) when R(T) is a polynomial of degree at most one in T."""
+    if isinstance(model, Polynomial) and model.tc2 == 0.0:
+        return model.r0, model.tref, model.tc1
+    return None
+
+
+class CardForm(ABC):
+    """One way of writing an annotated resistor's cards."""
+
+    name: ClassVar[str]
+    summary: ClassVar[str]
+
+    @abstractmethod
+    def cards(
+        self, name: str, a: str, b: str, hot: str, model: TempModel, heating: bool
+    ) -> list[str]:
+        """The element lines replacing ``R a b R0``; *name* is the part's safe name."""
+
+    def models(self, model: TempModel) -> list[str]:
+        """The ``.model`` cards the part's elements refer to."""
+        return []
+
+    def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
+        """The node names the cards add (the hot node is the caller's)."""
+        return ()
+
+    def handles(self, model: TempModel) -> bool:
+        """False when this form writes the reference cards for *model*."""
+        return True
+
+
+class Reference(CardForm):
+    """Two behavioural sources per part, as the emitter writes them."""
+
+    name: ClassVar[str] = "reference"
+    summary: ClassVar[str] = "two behavioural sources per part: I = V/R(T) and I = V^2/R(T)"
+
+    def cards(
+        self, name: str, a: str, b: str, hot: str, model: TempModel, heating: bool
+    ) -> list[str]:
+        r_expr = model.expression(f"V({hot})")
+        v = f"V({a},{b})"
+        lines = [f"B{PREFIX}{name} {a} {b} I = {v}/({r_expr})"]
+        if heating:
+            lines.append(f"B{PREFIX}p_{name} 0 {hot} I = {v}*{v}/({r_expr})")
+        return lines
+
+
+class Switch(CardForm):
+    """XSPICE ``aswitch`` for the current, ``mult`` for the dissipation V * I."""
+
+    name: ClassVar[str] = "switch"
+    summary: ClassVar[str] = (
+        "XSPICE aswitch (R linear in its control) carries I, XSPICE mult injects V*I"
+    )
+
+    def cards(
+        self, name: str, a: str, b: str, hot: str, model: TempModel, heating: bool
+    ) -> list[str]:
+        line = _linear(model)
+        if line is not None and line[2] == 0.0:
+            lines = [f"R{PREFIX}{name} {a} {b} {_num(line[0])}"]
+            if heating:
+                square = f"{PREFIX}sq_{_digest(line[0])}"
+                lines.append(f"A{PREFIX}p_{name} [%vd({a} {b}) %vd({a} {b})] %id(0 {hot}) {square}")
+            return lines
+        if line is not None:
+            control, switch = f"%v({hot})", self._switch_name(line)
+            lines = []
+        else:
+            node = f"{PREFIX}r_{name}"
+            control, switch = f"%v({node})", UNIT_SWITCH_MODEL
+            lines = [f"B{PREFIX}v_{name} {node} 0 V = {model.expression(f'V({hot})')}"]
+        if not heating:
+            return [*lines, f"A{PREFIX}r_{name} {control} %gd({a} {b}) {switch}"]
+        sense = f"{PREFIX}x_{name}"
+        return [
+            *lines,
+            f"A{PREFIX}r_{name} {control} %gd({sense} {b}) {switch}",
+            f"A{PREFIX}p_{name} [%vd({a} {b}) %id({a} {sense})] %id(0 {hot}) {PRODUCT_MODEL}",
+        ]
+
+    def models(self, model: TempModel) -> list[str]:
+        line = _linear(model)
+        if line is not None and line[2] == 0.0:
+            square = f"{PREFIX}sq_{_digest(line[0])}"
+            return [f".model {square} mult(in_gain=[1 1] out_gain={_num(1.0 / line[0])})"]
+        product = f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"
+        if line is None:
+            unit = (
+                f".model {UNIT_SWITCH_MODEL} aswitch(cntl_off=0 cntl_on=1 r_off=0 r_on=1 log=FALSE)"
+            )
+            return [unit, product]
+        r0, tref, tc1 = line
+        # Second point where R is 1.5 R0 (or 0.5 R0): far enough for a well-rounded slope.
+        span = 0.5 / abs(tc1)
+        card = (
+            f".model {self._switch_name(line)} aswitch(cntl_off={_num(tref)} "
+            f"cntl_on={_num(tref + span)} r_off={_num(r0)} r_on={_num(r0 * (1.0 + tc1 * span))} "
+            "log=FALSE)"
+        )
+        return [card, product]
+
+    def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
+        line = _linear(model)
+        if line is not None and line[2] == 0.0:
+            return ()
+        added = () if line is not None else (f"{PREFIX}r_{name}",)
+        return (*added, f"{PREFIX}x_{name}") if heating else added
+
+    @staticmethod
+    def _switch_name(line: tuple[float, float, float]) -> str:
+        return f"{PREFIX}sw_{_digest(*line)}"
+
+
+class Divider(CardForm):
+    """XSPICE ``divide`` for I = V/R(T); ``mult`` and ``divide`` for V^2/R(T)."""
+
+    name: ClassVar[str] = "divider"
+    summary: ClassVar[str] = "XSPICE divide for I, mult + divide for V^2/R(T); linear models only"
+
+    def handles(self, model: TempModel) -> bool:
+        line = _linear(model)
+        return line is not None and line[2] != 0.0
+
+    def cards(
+        self, name: str, a: str, b: str, hot: str, model: TempModel, heating: bool
+    ) -> list[str]:
+        line = _linear(model)
+        if line is None or line[2] == 0.0:
+            return Reference().cards(name, a, b, hot, model, heating)
+        divide = f"{PREFIX}div_{_digest(*line)}"
+        lines = [f"A{PREFIX}r_{name} %vd({a} {b}) %v({hot}) %id({a} {b}) {divide}"]
+        if heating:
+            square = f"{PREFIX}q_{name}"
+            lines.append(
+                f"A{PREFIX}q_{name} [%vd({a} {b}) %vd({a} {b})] %v({square}) {PRODUCT_MODEL}"
+            )
+            lines.append(f"A{PREFIX}p_{name} %v({square}) %v({hot}) %id(0 {hot}) {divide}")
+        return lines
+
+    def models(self, model: TempModel) -> list[str]:
+        line = _linear(model)
+        if line is None or line[2] == 0.0:
+            return []
+        r0, tref, tc1 = line
+        # The divider forms (den + den_offset) * den_gain: R0 tc1 (T + (1 - tref tc1)/tc1).
+        card = (
+            f".model {PREFIX}div_{_digest(*line)} divide(num_gain=1 den_gain={_num(r0 * tc1)} "
+            f"den_offset={_num((1.0 - tref * tc1) / tc1)} den_lower_limit=1e-12 "
+            "den_domain=1e-15 fraction=false out_gain=1)"
+        )
+        return [card, f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"]
+
+    def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
+        return (f"{PREFIX}q_{name}",) if heating and self.handles(model) else ()
+
+
+_REGISTRY: dict[str, CardForm] = {form.name: form for form in (Reference(), Switch(), Divider())}
+
+#: The available forms, each with a one-line description.
+FORMS: dict[str, str] = {name: form.summary for name, form in _REGISTRY.items()}
+
+
+def get_form(form: str) -> CardForm:
+    """The form registered as *form*; ValueError naming the known forms otherwise."""
+    try:
+        return _REGISTRY[form]
+    except KeyError:
+        raise ValueError(f"unknown card form {form!r}; known: {', '.join(FORMS)}") from None
+
+
+def resistor_cards(
+    form: str, name: str, a: str, b: str, hot: str, model: TempModel, heating: bool
+) -> list[str]:
+    """The netlist lines that replace the annotated resistor ``R a b R0`` in *form*."""
+    return get_form(form).cards(name, a, b, hot, model, heating)
+
+
+def preamble(form: str, models: Iterable[TempModel]) -> list[str]:
+    """The shared ``.model`` cards the parts with *models* need, each once, sorted."""
+    chosen = get_form(form)
+    return sorted({card for model in models for card in chosen.models(model)})
+
+
+def added_nodes(form: str, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
+    """The nodes :func:`resistor_cards` adds for one part (for the name-collision check)."""
+    return get_form(form).nodes(name, model, heating)
+
+
+def falls_back(form: str, model: TempModel) -> bool:
+    """True when *form* writes the reference cards for *model* (it cannot express it)."""
+    return not get_form(form).handles(model)

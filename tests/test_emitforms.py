@@ -1,0 +1,221 @@
+"""Card forms against the outside: every form simulated by ngspice 39 beside the reference
+form (the same equations evaluated by behavioural sources), and against scipy's brentq on
+the power balance; plus the forms' naming contract."""
+
+from __future__ import annotations
+
+import re
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+from scipy.optimize import brentq
+
+from heatweave.emitforms import FORMS, added_nodes, falls_back, preamble, resistor_cards
+from heatweave.simulators import get_simulator
+from heatweave.tempmodels import REGISTRY, TempModel, get
+
+FIXTURES = Path(__file__).parent / "fixtures" / "emitforms"
+HOT = "hw_t_rx"
+# Tight Newton tolerances so that two decks of the same equations can only differ by what
+# these leave open (reltol 1e-9 of each value, 1e-12 V, 1e-15 A).  trtol = 1 is what ngspice
+# uses anyway once a deck holds an XSPICE device (manual 15.1.4); writing it in every deck
+# gives the behavioural-source deck the same step control.
+OPTIONS = ".options reltol=1e-9 vntol=1e-12 abstol=1e-15 trtol=1"
+
+
+@dataclass(frozen=True, slots=True)
+class Case:
+    id: str
+    model: TempModel
+    volts: float
+    series: float
+    rth: float
+    cth: float
+    ambient: float
+    tstop: float
+
+
+def _points(value: Any) -> Any:
+    if isinstance(value, list):
+        return tuple(tuple(float(x) for x in pair) for pair in value)
+    return value
+
+
+def load_cases() -> list[Case]:
+    data = tomllib.loads((FIXTURES / "cases.toml").read_text())
+    cases = []
+    for row in data["case"]:
+        params = {key: _points(value) for key, value in row["params"].items()}
+        model = get(row["model"]).from_params(params, row["ohms"])
+        cases.append(
+            Case(row["id"], model, row["volts"], row["series"], row["rth"], row["cth"],
+                 row["ambient"], row["tstop"])
+        )  # fmt: skip
+    return cases
+
+
+CASES = load_cases()
+CHEAP = [form for form in FORMS if form != "reference"]
+
+
+def deck(case: Case, form: str, analysis: str, heating: bool = True) -> str:
+    """The case's circuit with its resistor in *form*."""
+    lines = [
+        f"self-heated resistor, {form} form",
+        f"V1 in 0 DC {case.volts!r}",
+        f"Rs in a {case.series!r}",
+        *resistor_cards(form, "rx", "a", "0", HOT, case.model, heating),
+        *preamble(form, [case.model]),
+        f"Rhw_rx_1 {HOT} hw_amb {case.rth!r}",
+        f"Chw_rx_1 {HOT} 0 {case.cth!r}",
+        f"Vhw_amb hw_amb 0 DC {case.ambient!r}",
+        f".ic V({HOT})={case.ambient!r}",
+        OPTIONS,
+        analysis,
+        ".end",
+    ]
+    return "\n".join(lines) + "\n"
+
+
+def simulate(text: str) -> dict[str, np.ndarray]:
+    sim = get_simulator("batch").run(text)
+    return {name: np.real(np.asarray(v)) for name, v in sim.plots[-1].vectors.items()}
+
+
+def steady_temperature(case: Case) -> float:
+    """The root of T = Ta + Rth * P(T), P the resistor's dissipation, by scipy's brentq."""
+
+    def balance(t: float) -> float:
+        r = case.model.resistance(t)
+        power = (case.volts / (case.series + r)) ** 2 * r
+        return t - case.ambient - case.rth * power
+
+    rise = case.rth * case.volts**2 / case.series  # the most any R can dissipate, times Rth
+    return float(brentq(balance, case.ambient, case.ambient + rise, xtol=1e-12, rtol=1e-14))
+
+
+def test_every_registered_model_has_a_case() -> None:
+    assert {type(case.model).name for case in CASES} == set(REGISTRY)
+
+
+# --- ngspice: the cheap forms against the reference form, and against brentq ----------------
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("form", CHEAP)
+@pytest.mark.parametrize("heating", [True, False])
+@pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
+def test_operating_point_matches_reference_form(case: Case, form: str, heating: bool) -> None:
+    ours = simulate(deck(case, form, ".op", heating))
+    ref = simulate(deck(case, "reference", ".op", heating))
+    rise = ref[f"v({HOT})"][0] - case.ambient
+    if heating:
+        assert rise > 0.5  # the case must heat enough for R(T) to matter
+    else:
+        assert abs(rise) < 1e-9
+    # Same equations: only the Newton stop (reltol 1e-9 of each value) separates the two.
+    assert ours[f"v({HOT})"][0] - case.ambient == pytest.approx(rise, rel=1e-9, abs=1e-9)
+    assert ours["i(v1)"][0] == pytest.approx(ref["i(v1)"][0], rel=1e-9)
+    assert ours["v(a)"][0] == pytest.approx(ref["v(a)"][0], rel=1e-9)
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("form", CHEAP)
+@pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
+def test_cold_start_transient_matches_reference_form(case: Case, form: str) -> None:
+    step = case.tstop / 200
+    analysis = f".tran {step!r} {case.tstop!r} 0 {step!r}"
+    ours = simulate(deck(case, form, analysis))
+    ref = simulate(deck(case, "reference", analysis))
+    t_ref, t_ours = ref["time"], ours["time"]
+    assert t_ours[-1] == pytest.approx(case.tstop)
+    rise = ref[f"v({HOT})"] - case.ambient
+    assert rise[0] == pytest.approx(0.0, abs=1e-9)  # .ic: a cold start
+    assert rise[-1] > 0.5
+    # Same equations and the same step control (trtol 1, reltol 1e-9): each step's Newton
+    # stop (1e-9 relative) is integrated over a few hundred steps, and a steep R(T) (the
+    # PTC near its switch point) amplifies it; 1e-6 of the final rise bounds that.
+    ours_on_ref = np.interp(t_ref, t_ours, ours[f"v({HOT})"] - case.ambient)
+    assert np.max(np.abs(ours_on_ref - rise)) < 1e-6 * rise[-1]
+    current = np.interp(t_ref, t_ours, ours["i(v1)"])
+    assert np.max(np.abs(current - ref["i(v1)"])) < 1e-6 * np.max(np.abs(ref["i(v1)"]))
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("form", list(FORMS))
+@pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
+def test_steady_state_matches_brentq_power_balance(case: Case, form: str) -> None:
+    expected = steady_temperature(case)
+    out = simulate(deck(case, form, ".op"))
+    # The B-source expressions hold constants to 11 digits (tempmodels/base.py); with
+    # reltol 1e-9 on temperatures below 150 degC the Newton stop bounds the error by 1.5e-7 K.
+    assert out[f"v({HOT})"][0] == pytest.approx(expected, abs=1.5e-7)
+    r = case.model.resistance(expected)
+    assert -out["i(v1)"][0] == pytest.approx(case.volts / (case.series + r), rel=1e-8)
+
+
+# --- the naming contract and the choices of cards ---------------------------------------------
+
+
+NAME = re.compile(r"^[A-Za-z]hw_")
+
+
+@pytest.mark.parametrize("form", list(FORMS))
+@pytest.mark.parametrize("heating", [True, False])
+@pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
+def test_added_names_are_reserved(case: Case, form: str, heating: bool) -> None:
+    cards = resistor_cards(form, "rx", "a", "b", HOT, case.model, heating)
+    for card in cards:
+        assert NAME.match(card), card
+    for card in preamble(form, [case.model]):
+        assert card.startswith(".model hw_"), card
+    for node in added_nodes(form, "rx", case.model, heating):
+        assert node.startswith("hw_")
+        assert any(node in card for card in cards)
+    text = " ".join(cards)
+    assert (HOT in text) == (heating or not falls_back_to_constant(case, form))
+
+
+def falls_back_to_constant(case: Case, form: str) -> bool:
+    """True when *form* writes a resistor whose cards never read the hot node."""
+    return form == "switch" and case.id == "linear-zero-tc1"
+
+
+@pytest.mark.parametrize("heating", [True, False])
+def test_zero_tc1_is_a_plain_resistor(heating: bool) -> None:
+    model = get("linear").from_params({"tc1": 0.0}, 330.0)
+    cards = resistor_cards("switch", "r7", "n1", "n2", "hw_t_r7", model, heating)
+    assert cards[0] == "Rhw_r7 n1 n2 330.0"
+    assert len(cards) == (2 if heating else 1)
+
+
+@pytest.mark.parametrize(("model_name", "params", "expected"), [
+    ("linear", {"tc1": 0.004}, False),
+    ("quadratic", {"tc2": 1e-6}, True),
+    ("ntc-beta", {"beta": 3435.0}, True),
+    ("linear", {"tc1": 0.0}, True),
+])  # fmt: skip
+def test_divider_form_falls_back_outside_linear_models(
+    model_name: str, params: dict[str, float], expected: bool
+) -> None:
+    model = get(model_name).from_params(params, 100.0)
+    assert falls_back("divider", model) is expected
+    assert falls_back("switch", model) is False
+    assert falls_back("reference", model) is False
+
+
+def test_parts_with_equal_parameters_share_one_model_card() -> None:
+    same = [get("linear").from_params({"tc1": 0.004}, 10.0) for _ in range(3)]
+    other = get("linear").from_params({"tc1": 0.004}, 12.0)
+    assert len(preamble("switch", same)) == 2  # the switch and the product
+    assert len(preamble("switch", [*same, other])) == 3
+
+
+def test_unknown_form_names_the_known_ones() -> None:
+    model = get("linear").from_params({"tc1": 0.004}, 10.0)
+    with pytest.raises(ValueError, match="switch"):
+        resistor_cards("fastest", "r1", "a", "b", HOT, model, True)
