@@ -13,11 +13,16 @@ the hot-spot temperatures to a raw file; the largest difference to the reference
 all parts and time points is printed.  Also printed: what ngspice says dominated (load,
 factor, solve, truncation; iterations and time points).
 
+With ``--tight`` the comparison is repeated with reltol 1e-9 (vntol 1e-12, abstol 1e-15):
+the forms solve the same equations, so their differences at default tolerances must
+shrink with the tolerance.  (The time points then differ: a deck with an XSPICE device
+runs with trtol 1, ngspice manual 15.1.4; temperatures are compared on the reference's.)
+
 Exits 0 only when the ``switch`` form's CPU time is at most ``--target`` (10) times the
 plain deck's.
 
     .venv/bin/python benchmarks/bench_standalone.py [--count 300] [--amplitude 600]
-        [--repeat 3] [--target 10] [--keep DIR]
+        [--repeat 3] [--target 10] [--tight] [--keep DIR]
 """
 
 from __future__ import annotations
@@ -40,6 +45,7 @@ from heatweave.simulators.rawfile import read_raw
 from heatweave.tempmodels import get
 
 OHMS, TC1, RTH, CTH, AMBIENT = 10.0, 0.004, 100.0, 1e-3, 25.0
+TIGHT = "reltol=1e-9 vntol=1e-12 abstol=1e-15"
 STATS = (
     "Transient iterations",
     "Transient timepoints",
@@ -51,7 +57,9 @@ STATS = (
 )
 
 
-def chain(form: str | None, count: int, amplitude: float, control: list[str]) -> str:
+def chain(
+    form: str | None, count: int, amplitude: float, control: list[str], options: str = ""
+) -> str:
     """The chain deck: plain (*form* None) or with every resistor in *form*."""
     model = get("linear").from_params({"tc1": TC1}, OHMS)
     lines = [f"chain of {count} self-heated resistors", f"V1 n0 0 SIN(0 {amplitude:g} 1k)"]
@@ -67,6 +75,8 @@ def chain(form: str | None, count: int, amplitude: float, control: list[str]) ->
         lines += preamble(form, [model])
         lines.append(f"Vhw_amb hw_amb 0 DC {AMBIENT:g}")
         lines.append(".ic " + " ".join(f"V({n})={AMBIENT:g}" for n in hot))
+    if options:
+        lines.append(f".options {options}")
     lines += [".tran 10u 100m", ".control", *control, "quit", ".endc", ".end"]
     return "\n".join(lines) + "\n"
 
@@ -98,12 +108,16 @@ def ngspice(deck: Path) -> Run:
     return Run(cpu, wall, stats)
 
 
-def temperatures(folder: Path, form: str, count: int, amplitude: float) -> np.ndarray:
+def temperatures(
+    folder: Path, form: str, count: int, amplitude: float, options: str = ""
+) -> np.ndarray:
     """Hot-spot temperatures at every time point (time first), from a raw file."""
-    raw = folder / f"{form}.raw"
+    tag = "-tight" if options else ""
+    raw = folder / f"{form}{tag}.raw"
     nodes = " ".join(f"v(hw_t_r{k})" for k in range(1, count + 1))
-    deck = folder / f"{form}-temps.cir"
-    deck.write_text(chain(form, count, amplitude, ["run", f"write {raw} time {nodes}"]))
+    deck = folder / f"{form}{tag}-temps.cir"
+    control = ["run", "rusage all", f"write {raw} time {nodes}"]
+    deck.write_text(chain(form, count, amplitude, control, options))
     ngspice(deck)
     plot = read_raw(raw)[-1]
     columns = [plot["time"], *(plot[f"v(hw_t_r{k})"] for k in range(1, count + 1))]
@@ -117,6 +131,9 @@ def main() -> int:
     parser.add_argument("--repeat", type=int, default=3)
     parser.add_argument("--target", type=float, default=10.0)
     parser.add_argument("--keep", type=Path, default=None)
+    parser.add_argument(
+        "--tight", action="store_true", help="also compare temperatures at tight tolerances"
+    )
     args = parser.parse_args()
     forms = list(FORMS)
     with tempfile.TemporaryDirectory() as scratch:
@@ -151,16 +168,22 @@ def main() -> int:
                 f" {s.get(STATS[3], 0):6.3f}  solve {s.get(STATS[4], 0):6.3f}  trunc"
                 f" {s.get(STATS[5], 0):6.3f}  analysis {s.get(STATS[6], 0):6.3f}"
             )
-        reference = temperatures(folder, "reference", args.count, args.amplitude)
-        print(f"hottest part at the end (reference): {reference[1:, -1].max():.5f} degC")
-        for form in forms[1:]:
-            other = temperatures(folder, form, args.count, args.amplitude)
-            at = np.array([np.interp(reference[0], other[0], row) for row in other[1:]])
-            worst = float(np.abs(at - reference[1:]).max())
-            end = float(np.abs(other[1:, -1] - reference[1:, -1]).max())
-            print(
-                f"  max |T_{form} - T_reference|: {worst:.3g} K over time, {end:.3g} K at the end"
-            )
+        tolerances = [("default tolerances", "")]
+        if args.tight:
+            tolerances.append(("reltol 1e-9, vntol 1e-12, abstol 1e-15", TIGHT))
+        for what, options in tolerances:
+            reference = temperatures(folder, "reference", args.count, args.amplitude, options)
+            hottest = reference[1:, -1].max()
+            print(f"{what}: hottest part at the end (reference form) {hottest:.6f} degC")
+            for form in forms[1:]:
+                other = temperatures(folder, form, args.count, args.amplitude, options)
+                at = np.array([np.interp(reference[0], other[0], row) for row in other[1:]])
+                worst = float(np.abs(at - reference[1:]).max())
+                end = float(np.abs(other[1:, -1] - reference[1:, -1]).max())
+                print(
+                    f"  max |T_{form} - T_reference|: {worst:.3g} K over time,"
+                    f" {end:.3g} K at the end"
+                )
     ok = ratios["switch"] <= args.target
     verdict = "within" if ok else "NOT within"
     print(f"switch form: {ratios['switch']:.2f} x the plain deck, {verdict} {args.target:g} x")

@@ -189,7 +189,7 @@ def falls_back_to_constant(case: Case, form: str) -> bool:
 def test_zero_tc1_is_a_plain_resistor(heating: bool) -> None:
     model = get("linear").from_params({"tc1": 0.0}, 330.0)
     cards = resistor_cards("switch", "r7", "n1", "n2", "hw_t_r7", model, heating)
-    assert cards[0] == "Rhw_r7 n1 n2 330.0"
+    assert cards[0] == "Rhw_c_r7 n1 n2 330.0"
     assert len(cards) == (2 if heating else 1)
 
 

@@ -20,7 +20,8 @@ ngspice evaluates those same equations:
   ``divide`` again for the dissipation), for linear models only; other models get the
   reference cards.
 
-Names: elements ``Ahw_r_<name>``, ``Ahw_p_<name>``, ``Bhw_v_<name>``, ``Rhw_<name>``;
+Names: elements ``Ahw_r_<name>``, ``Ahw_p_<name>``, ``Ahw_q_<name>``, ``Bhw_v_<name>``,
+``Rhw_c_<name>`` (never ``Rhw_<name>``, which a network's ``Rhw_<part>_1`` could equal);
 nodes ``hw_x_<name>`` (between the switch and its current sense), ``hw_r_<name>`` (the
 resistance as a voltage), ``hw_q_<name>`` (V^2 in the divider form); ``.model`` names
 ``hw_<kind>_<digest>``, a digest of the parameters, so parts with equal parameters share
@@ -116,7 +117,7 @@ class Switch(CardForm):
     ) -> list[str]:
         line = _linear(model)
         if line is not None and line[2] == 0.0:
-            lines = [f"R{PREFIX}{name} {a} {b} {_num(line[0])}"]
+            lines = [f"R{PREFIX}c_{name} {a} {b} {_num(line[0])}"]
             if heating:
                 square = f"{PREFIX}sq_{_digest(line[0])}"
                 lines.append(f"A{PREFIX}p_{name} [%vd({a} {b}) %vd({a} {b})] %id(0 {hot}) {square}")
