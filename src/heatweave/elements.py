@@ -111,11 +111,15 @@ class ResistorValue:
 _TEMPERATURE_PARAMS = ("tc1", "tc2", "tc", "tce", "temp", "dtemp")
 
 
-def resistor_value(card: Card, params: Mapping[str, float]) -> ResistorValue:
-    """The nominal resistance of an ``R`` card, evaluating ``{expr}`` with *params*."""
+def resistor_value(
+    card: Card, params: Mapping[str, float], simple: re.Match[str] | None = None
+) -> ResistorValue:
+    """The nominal resistance of an ``R`` card, evaluating ``{expr}`` with *params*;
+    *simple* is the card's :data:`SIMPLE_RESISTOR` match when the caller has it."""
     pairs: dict[str, str] = {}
     positional: list[str] = []
-    simple = SIMPLE_RESISTOR.match(card.logical().text)
+    if simple is None:
+        simple = SIMPLE_RESISTOR.match(card.logical().text)
     if simple is not None:
         positional.append(simple.group(3))
         pairs.update((k.lower(), v) for k, v in _PAIR.findall(simple.group(4)))

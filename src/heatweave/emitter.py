@@ -457,7 +457,7 @@ def emit_inputs(
     if not circuit.parts:
         # Nothing heats: the deck is written back unchanged, byte for byte.
         return Emitted(inputs.project.deck.write(), (), findings, circuit)
-    deck_text = inputs.project.deck.write()
+    deck_text = inputs.project.deck.write()  # not the file's text: a sweep rewrites .param cards
     head = header(
         _basename(inputs.deck_path), deck_text, _basename(inputs.annotation_path), chosen.text
     )

@@ -157,10 +157,15 @@ def build_circuit(
         found = index.resolve(item.element)
         if found is None:
             raise AnnotationError(f"{item.element} is not in the deck", spec.location)
-        if not SIMPLE_RESISTOR.match(found.card.logical().text):
-            syntax_of(found.card)  # a malformed card is reported where it stands
+        card = found.card
+        simple = SIMPLE_RESISTOR.match(card.logical().text) if item.kind == "R" else None
+        if simple is None:
+            syntax_of(card)  # a malformed card is reported where it stands
+            terminals = tuple(card_nodes(card, index))
+        else:
+            terminals = (simple.group(1), simple.group(2))
         if spec.model is not None:
-            value = resistor_value(found.card, params)
+            value = resistor_value(card, params, simple)
             findings.extend(
                 Finding("warning", f"{item.element}: {note}", found.card.location())
                 for note in value.notes
@@ -171,7 +176,7 @@ def build_circuit(
             PartPlan(
                 item.element, spec.model, model, network, node_of(spec.to), spec.to,
                 spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
-                tuple(card_nodes(found.card, index)), found,
+                terminals, found,
             )
         )  # fmt: skip
     nodes = tuple(
