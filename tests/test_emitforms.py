@@ -171,11 +171,12 @@ def test_added_names_are_reserved(case: Case, form: str, heating: bool) -> None:
     cards = resistor_cards(form, "rx", "a", "b", HOT, case.model, heating)
     for card in cards:
         assert NAME.match(card), card
-    for card in preamble(form, [case.model]):
-        assert card.startswith(".model hw_"), card
+    shared = preamble(form, [case.model])
+    for card in shared:
+        assert card.startswith(".model hw_") or NAME.match(card), card
     for node in added_nodes(form, "rx", case.model, heating):
         assert node.startswith("hw_")
-        assert any(node in card for card in cards)
+        assert any(node in card for card in [*cards, *shared])
     text = " ".join(cards)
     assert (HOT in text) == (heating or not falls_back_to_constant(case, form))
 

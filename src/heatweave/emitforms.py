@@ -12,8 +12,10 @@ ngspice evaluates those same equations:
   (ngspice manual 12.2.11), and the dissipation V * I from an XSPICE ``mult`` whose inputs
   are V(a,b) and the element current (a ``%id`` current input, a 0 V sense).  A linear
   model drives the switch from the hot node directly: r = R0 + R0 tc1 (T - tref) is the
-  switch's own line through two points.  Any other model drives a unit switch (r = control)
-  from a behavioural voltage source ``V = R(T)`` written with the model's own expression.
+  switch's own line through two points.  A quadratic model drives a unit switch
+  (r = control) from a ``POLY(1)`` source of T - tref (compiled, an XSPICE model in ngspice)
+  into a 1 ohm resistor; any other model drives it from a behavioural voltage source
+  ``V = R(T)`` written with the model's own expression.
   Without a temperature coefficient the current flows in a plain resistor and the
   dissipation is ``mult`` of V(a,b) with itself times 1/R0;
 * ``divider``: the three-code-model form (``divide`` for the current, ``mult`` for V^2,
@@ -22,8 +24,9 @@ ngspice evaluates those same equations:
 
 Names: elements ``Ahw_r_<name>``, ``Ahw_p_<name>``, ``Ahw_q_<name>``, ``Bhw_v_<name>``,
 ``Rhw_c_<name>`` (never ``Rhw_<name>``, which a network's ``Rhw_<part>_1`` could equal);
-nodes ``hw_x_<name>`` (between the switch and its current sense), ``hw_r_<name>`` (the
-resistance as a voltage), ``hw_q_<name>`` (V^2 in the divider form); ``.model`` names
+``Ghw_v_<name>``, ``Rhw_g_<name>``, the shared ``Vhw_tref_<digest>``; nodes ``hw_x_<name>``
+(between the switch and its current sense), ``hw_r_<name>`` (the resistance as a voltage),
+``hw_q_<name>`` (V^2 in the divider form), ``hw_tref_<digest>``; ``.model`` names
 ``hw_<kind>_<digest>``, a digest of the parameters, so parts with equal parameters share
 one card.  Every deck with an XSPICE device runs its transient with ``trtol = 1`` (ngspice
 sets that itself whatever the deck says, manual 15.1.4).
@@ -60,6 +63,11 @@ def _linear(model: TempModel) -> tuple[float, float, float] | None:
     if isinstance(model, Polynomial) and model.tc2 == 0.0:
         return model.r0, model.tref, model.tc1
     return None
+
+
+def _tref_node(tref: float) -> str:
+    """The node a shared source holds at *tref*: a polynomial's argument is T - tref."""
+    return f"{PREFIX}tref_{_digest(tref)}"
 
 
 class CardForm(ABC):
@@ -125,6 +133,14 @@ class Switch(CardForm):
         if line is not None:
             control, switch = f"%v({hot})", self._switch_name(line)
             lines = []
+        elif isinstance(model, Polynomial):
+            node = f"{PREFIX}r_{name}"
+            control, switch = f"%v({node})", UNIT_SWITCH_MODEL
+            coefficients = " ".join(_num(model.r0 * c) for c in (1.0, model.tc1, model.tc2))
+            lines = [
+                f"G{PREFIX}v_{name} 0 {node} POLY(1) {hot} {_tref_node(model.tref)} {coefficients}",
+                f"R{PREFIX}g_{name} {node} 0 1",
+            ]
         else:
             node = f"{PREFIX}r_{name}"
             control, switch = f"%v({node})", UNIT_SWITCH_MODEL
@@ -145,10 +161,14 @@ class Switch(CardForm):
             return [f".model {square} mult(in_gain=[1 1] out_gain={_num(1.0 / line[0])})"]
         product = f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"
         if line is None:
+            extra = []
+            if isinstance(model, Polynomial):
+                held = _tref_node(model.tref)
+                extra = [f"V{held} {held} 0 DC {_num(model.tref)}"]
             unit = (
                 f".model {UNIT_SWITCH_MODEL} aswitch(cntl_off=0 cntl_on=1 r_off=0 r_on=1 log=FALSE)"
             )
-            return [unit, product]
+            return [*extra, unit, product]
         r0, tref, tc1 = line
         # Second point where R is 1.5 R0 (or 0.5 R0): far enough for a well-rounded slope.
         span = 0.5 / abs(tc1)
@@ -163,7 +183,9 @@ class Switch(CardForm):
         line = _linear(model)
         if line is not None and line[2] == 0.0:
             return ()
-        added = () if line is not None else (f"{PREFIX}r_{name}",)
+        added: tuple[str, ...] = () if line is not None else (f"{PREFIX}r_{name}",)
+        if line is None and isinstance(model, Polynomial):
+            added = (*added, _tref_node(model.tref))
         return (*added, f"{PREFIX}x_{name}") if heating else added
 
     @staticmethod
