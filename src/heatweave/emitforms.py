@@ -12,7 +12,9 @@ ngspice evaluates those same equations:
   (ngspice manual 12.2.11), and the dissipation V * I from an XSPICE ``mult`` whose inputs
   are V(a,b) and the element current (a ``%id`` current input, a 0 V sense).  A linear
   model drives the switch from the hot node directly: r = R0 + R0 tc1 (T - tref) is the
-  switch's own line through two points.  A quadratic model drives a unit switch
+  switch's own line through two points; an exponential one (R0 exp(k dT), ngspice's
+  ``tce``) drives a ``log=TRUE`` switch, whose logarithm is linear in its control.
+  A quadratic model drives a unit switch
   (r = control) from a ``POLY(1)`` source of T - tref (compiled, an XSPICE model in ngspice)
   into a 1 ohm resistor; any other model drives it from a behavioural voltage source
   ``V = R(T)`` written with the model's own expression.
@@ -35,11 +37,13 @@ sets that itself whatever the deck says, manual 15.1.4).
 from __future__ import annotations
 
 import hashlib
+import math
 from abc import ABC, abstractmethod
 from collections.abc import Iterable
 from typing import ClassVar
 
 from heatweave.tempmodels.base import TempModel
+from heatweave.tempmodels.exponential import Exponential
 from heatweave.tempmodels.linear import Polynomial
 from heatweave.thermal_circuit import PREFIX
 
@@ -63,6 +67,44 @@ def _linear(model: TempModel) -> tuple[float, float, float] | None:
     if isinstance(model, Polynomial) and model.tc2 == 0.0:
         return model.r0, model.tref, model.tc1
     return None
+
+
+def _constant(model: TempModel) -> float | None:
+    """R when it does not depend on T (no temperature coefficient), else None."""
+    if isinstance(model, Polynomial) and model.tc1 == 0.0 and model.tc2 == 0.0:
+        return model.r0
+    if isinstance(model, Exponential) and model.tce == 0.0:
+        return model.r0
+    return None
+
+
+def _direct(model: TempModel) -> tuple[float, float, float, bool] | None:
+    """(R0, tref, rate, log) when an ``aswitch`` driven by T itself gives R(T) exactly:
+    linear (r = R0 + rate dT, rate = R0 tc1) or exponential (r = R0 exp(rate dT))."""
+    line = _linear(model)
+    if line is not None:
+        return line[0], line[1], line[0] * line[2], False
+    if isinstance(model, Exponential):
+        return model.r0, model.tref, model.tce * math.log(1.01), True
+    return None
+
+
+def _switch_card(name: str, r0: float, tref: float, rate: float, log: bool) -> str:
+    """An ``aswitch`` model through (tref, R0) and a second point (ngspice manual 12.2.11:
+    with log=FALSE r is linear in the control, with log=TRUE its logarithm is; neither is
+    limited outside the two points)."""
+    if log:
+        # Where R doubles (or halves): ln(r_on/r_off) is then ln 2 up to rounding.
+        span = math.log(2.0) / abs(rate)
+        r_on = r0 * (2.0 if rate > 0 else 0.5)
+    else:
+        # Where R is 1.5 R0 (or 0.5 R0): far enough for a well-rounded slope.
+        span = 0.5 * r0 / abs(rate)
+        r_on = r0 + rate * span
+    return (
+        f".model {name} aswitch(cntl_off={_num(tref)} cntl_on={_num(tref + span)} "
+        f"r_off={_num(r0)} r_on={_num(r_on)} log={'TRUE' if log else 'FALSE'})"
+    )
 
 
 def _tref_node(tref: float) -> str:
@@ -123,15 +165,16 @@ class Switch(CardForm):
     def cards(
         self, name: str, a: str, b: str, hot: str, model: TempModel, heating: bool
     ) -> list[str]:
-        line = _linear(model)
-        if line is not None and line[2] == 0.0:
-            lines = [f"R{PREFIX}c_{name} {a} {b} {_num(line[0])}"]
+        constant = _constant(model)
+        if constant is not None:
+            lines = [f"R{PREFIX}c_{name} {a} {b} {_num(constant)}"]
             if heating:
-                square = f"{PREFIX}sq_{_digest(line[0])}"
+                square = f"{PREFIX}sq_{_digest(constant)}"
                 lines.append(f"A{PREFIX}p_{name} [%vd({a} {b}) %vd({a} {b})] %id(0 {hot}) {square}")
             return lines
-        if line is not None:
-            control, switch = f"%v({hot})", self._switch_name(line)
+        direct = _direct(model)
+        if direct is not None:
+            control, switch = f"%v({hot})", self._switch_name(direct)
             lines = []
         elif isinstance(model, Polynomial):
             node = f"{PREFIX}r_{name}"
@@ -155,42 +198,35 @@ class Switch(CardForm):
         ]
 
     def models(self, model: TempModel) -> list[str]:
-        line = _linear(model)
-        if line is not None and line[2] == 0.0:
-            square = f"{PREFIX}sq_{_digest(line[0])}"
-            return [f".model {square} mult(in_gain=[1 1] out_gain={_num(1.0 / line[0])})"]
+        constant = _constant(model)
+        if constant is not None:
+            square = f"{PREFIX}sq_{_digest(constant)}"
+            return [f".model {square} mult(in_gain=[1 1] out_gain={_num(1.0 / constant)})"]
         product = f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"
-        if line is None:
-            extra = []
-            if isinstance(model, Polynomial):
-                held = _tref_node(model.tref)
-                extra = [f"V{held} {held} 0 DC {_num(model.tref)}"]
-            unit = (
-                f".model {UNIT_SWITCH_MODEL} aswitch(cntl_off=0 cntl_on=1 r_off=0 r_on=1 log=FALSE)"
-            )
-            return [*extra, unit, product]
-        r0, tref, tc1 = line
-        # Second point where R is 1.5 R0 (or 0.5 R0): far enough for a well-rounded slope.
-        span = 0.5 / abs(tc1)
-        card = (
-            f".model {self._switch_name(line)} aswitch(cntl_off={_num(tref)} "
-            f"cntl_on={_num(tref + span)} r_off={_num(r0)} r_on={_num(r0 * (1.0 + tc1 * span))} "
-            "log=FALSE)"
-        )
-        return [card, product]
+        direct = _direct(model)
+        if direct is not None:
+            return [_switch_card(self._switch_name(direct), *direct), product]
+        extra = []
+        if isinstance(model, Polynomial):
+            held = _tref_node(model.tref)
+            extra = [f"V{held} {held} 0 DC {_num(model.tref)}"]
+        unit = f".model {UNIT_SWITCH_MODEL} aswitch(cntl_off=0 cntl_on=1 r_off=0 r_on=1 log=FALSE)"
+        return [*extra, unit, product]
 
     def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
-        line = _linear(model)
-        if line is not None and line[2] == 0.0:
+        if _constant(model) is not None:
             return ()
-        added: tuple[str, ...] = () if line is not None else (f"{PREFIX}r_{name}",)
-        if line is None and isinstance(model, Polynomial):
-            added = (*added, _tref_node(model.tref))
+        added: tuple[str, ...] = ()
+        if _direct(model) is None:
+            added = (f"{PREFIX}r_{name}",)
+            if isinstance(model, Polynomial):
+                added = (*added, _tref_node(model.tref))
         return (*added, f"{PREFIX}x_{name}") if heating else added
 
     @staticmethod
-    def _switch_name(line: tuple[float, float, float]) -> str:
-        return f"{PREFIX}sw_{_digest(*line)}"
+    def _switch_name(direct: tuple[float, float, float, bool]) -> str:
+        r0, tref, rate, log = direct
+        return f"{PREFIX}sw_{_digest(r0, tref, rate, float(log))}"
 
 
 class Divider(CardForm):
