@@ -14,7 +14,14 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from heatweave.emitforms import FORMS, added_nodes, falls_back, preamble, resistor_cards
+from heatweave.emitforms import (
+    FORMS,
+    added_nodes,
+    falls_back,
+    preamble,
+    resistor_cards,
+    shared_nodes,
+)
 from heatweave.simulators import get_simulator
 from heatweave.tempmodels import REGISTRY, TempModel, get
 
@@ -220,3 +227,20 @@ def test_unknown_form_names_the_known_ones() -> None:
     model = get("linear").from_params({"tc1": 0.004}, 10.0)
     with pytest.raises(ValueError, match="switch"):
         resistor_cards("fastest", "r1", "a", "b", HOT, model, True)
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
+def test_part_inside_a_subcircuit_matches_top_level(case: Case) -> None:
+    # The emitter puts a part in a subcircuit copy and makes its thermal nodes .global;
+    # the shared nodes of the preamble must be made .global the same way.
+    top = simulate(deck(case, "switch", ".op"))
+    inner = resistor_cards("switch", "x1_rx", "a", "n", HOT, case.model, True)
+    shared = shared_nodes("switch", [case.model])
+    text = deck(case, "switch", ".op").replace(
+        "\n".join(resistor_cards("switch", "rx", "a", "0", HOT, case.model, True)),
+        "\n".join(["X1 a 0 cell", ".subckt cell a n", *inner, ".ends"]),
+    )
+    text = text.replace(".op", ".global " + " ".join([HOT, *shared]) + "\n.op")
+    out = simulate(text)
+    assert out[f"v({HOT})"][0] == pytest.approx(top[f"v({HOT})"][0], rel=1e-9)

@@ -307,3 +307,11 @@ def added_nodes(form: str, name: str, model: TempModel, heating: bool) -> tuple[
 def falls_back(form: str, model: TempModel) -> bool:
     """True when *form* writes the reference cards for *model* (it cannot express it)."""
     return not get_form(form).handles(model)
+
+
+def shared_nodes(form: str, models: Iterable[TempModel]) -> tuple[str, ...]:
+    """The top-level nodes :func:`preamble`'s cards drive (``hw_tref_*``), sorted; parts
+    inside subcircuit copies reach them only when they are ``.global``."""
+    found = {node for card in preamble(form, models) if not card.startswith(".") for node in
+             card.split()[1:2]}  # fmt: skip
+    return tuple(sorted(found))
