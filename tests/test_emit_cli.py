@@ -41,7 +41,7 @@ def test_refuses_to_overwrite_its_input(tmp_path: Path) -> None:
     code, _out, err = invoke("emit", str(deck), "-o", str(deck))
     assert code == 2 and "refusing to overwrite" in err and deck.read_bytes() == before
     code, _out, _err = invoke("emit", str(deck), "-o", str(deck), "--in-place")
-    assert code == 0 and b"Bhw_r1" in deck.read_bytes()
+    assert code == 0 and b"*hw* R1: model linear" in deck.read_bytes()
     assert sorted(p.name for p in tmp_path.iterdir()) == ["divider.cir", "divider.thermal.toml"]
 
 
@@ -101,3 +101,23 @@ def test_bad_input_is_located_and_exits_2(
     assert "Traceback" not in err
     assert f"{tmp_path}/{where}" in err and words in err
     assert "hint:" in err
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("form", ["switch", "reference", "divider"])
+def test_each_form_gives_the_divider_steady_state(tmp_path: Path, form: str) -> None:
+    # The fixed point T = Ta + Rth P(T) of the divider (tests/test_emitter.py), found by
+    # scipy's brentq; the emitted deck of every form, run by ngspice, must land on it.
+    from scipy.optimize import brentq
+
+    from heatweave.simulators import get_simulator
+
+    def power(t: float) -> float:
+        r = 100.0 * (1 + 0.004 * (t - 25.0))
+        return 100.0 * r / (r + 100.0) ** 2
+
+    expected = brentq(lambda t: t - 25.0 - 50.0 * power(t), 25.0, 500.0)
+    code, out, err = invoke("emit", str(FIXTURES / "divider.cir"), "--form", form)
+    assert code == 0, err
+    plot = get_simulator("batch").run(out.decode()).plots[-1]
+    assert float(plot["v(hw_t_r1)"][-1]) == pytest.approx(expected, abs=1e-3)

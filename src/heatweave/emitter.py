@@ -33,6 +33,7 @@ from heatweave import __version__
 from heatweave.annotations import Annotation, BoundPart
 from heatweave.deck import Block, Card, Deck, Node
 from heatweave.elements import rewrite_nodes
+from heatweave.emitforms import added_nodes, preamble, resistor_cards, shared_nodes
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, x_card_parts
 from heatweave.quantities import format_number
@@ -96,11 +97,11 @@ class _Rewriter:
     """Rewrites bodies for one thermal circuit; keeps the bookkeeping of names and copies."""
 
     def __init__(
-        self, index: DeckIndex, circuit: ThermalCircuit, reference: bool, heating: bool
+        self, index: DeckIndex, circuit: ThermalCircuit, form: str, heating: bool
     ) -> None:
         self.index = index
         self.circuit = circuit
-        self.reference = reference
+        self.form = form
         self.heating = heating
         self.findings: list[Finding] = []
         self.added: list[str] = []  # every node name added, for the collision check
@@ -227,6 +228,9 @@ class _Rewriter:
         if len(nodes) != 2:
             raise EmitError(f"{card.head} needs two nodes", card.location())
         a, b = nodes
+        if self.form != "reference":
+            self.added.extend(added_nodes(self.form, name, part.model, self.heating))
+            return resistor_cards(self.form, name, a, b, part.node, part.model, self.heating)
         r_expr = part.model.expression(f"V({part.node})")
         v = f"V({a},{b})"
         cards = [f"B{PREFIX}{name} {a} {b} I = {v}/({r_expr})"]
@@ -295,10 +299,15 @@ def describe(part: PartPlan) -> str:
     return f"{what}, {net.kind} network {format_number(net.total_rth)} K/W to {part.to_label}"
 
 
-def thermal_section(circuit: ThermalCircuit, thermal: list[str], shared: bool) -> str:
-    """Ambient source, shared nodes, couplings, and for the thermal nodes: ``.global``
-    when subcircuit copies reach them (*shared*), ``.ic`` at ambient for a cold start."""
+def thermal_section(
+    circuit: ThermalCircuit, thermal: list[str], shared: bool, form: str = "reference"
+) -> str:
+    """Ambient source, shared nodes, couplings, the card form's shared models, and for the
+    thermal nodes: ``.global`` when subcircuit copies reach them (*shared*), ``.ic`` at
+    ambient for a cold start."""
     lines = [f"{MARK}thermal network"]
+    models = [p.model for p in circuit.parts if p.model is not None]
+    lines.extend(preamble(form, models))
     if isinstance(circuit.ambient, tuple):
         points = " ".join(f"{format_number(t)} {format_number(v)}" for t, v in circuit.ambient)
         lines.append(f"V{AMBIENT_NODE} {AMBIENT_NODE} 0 PWL({points})")
@@ -314,7 +323,7 @@ def thermal_section(circuit: ThermalCircuit, thermal: list[str], shared: bool) -
             f" ; {coupling.labels[0]} - {coupling.labels[1]}"
         )
     if shared:
-        lines.extend(_wrap(".global", thermal))
+        lines.extend(_wrap(".global", [*thermal, *shared_nodes(form, models)]))
     if circuit.start == "cold":
         t0 = format_number(circuit.ambient_at_start)
         lines.extend(_wrap(".ic", [f"V({n})={t0}" for n in thermal if n != AMBIENT_NODE]))
@@ -340,10 +349,14 @@ def emit_deck(
     circuit: ThermalCircuit,
     head: str,
     *,
-    reference: bool = False,
+    form: str = "reference",
     heating: bool = True,
 ) -> Emitted:
     """Rewrite *project*'s top deck for *circuit*; *head* is the header comment block.
+
+    *form* is how annotated resistors are written (:data:`heatweave.emitforms.FORMS`):
+    ``reference``, two behavioural sources a part, is what ``run`` simulates; ``switch``
+    gives the same equations through XSPICE code models at a fraction of the cost.
 
     With ``heating=False`` no part injects its dissipation: every part stays at ambient,
     which is the baseline that drift limits are measured against.
@@ -352,11 +365,11 @@ def emit_deck(
     if not circuit.parts:
         # Nothing heats: the deck is written back unchanged, byte for byte.
         return Emitted(deck.write(), (), (), circuit)
-    rewriter = _Rewriter(index, circuit, reference, heating)
+    rewriter = _Rewriter(index, circuit, form, heating)
     body = rewriter.body(deck.body, "", top=True)
     body.extend(rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
-    section = Card(thermal_section(circuit, thermal, bool(rewriter.copies)))
+    section = Card(thermal_section(circuit, thermal, bool(rewriter.copies), form))
     body = _insert_before_end(body, section)
     title = deck.title or "heatweave electrothermal deck\n"
     if not title.endswith("\n"):
@@ -437,7 +450,7 @@ def emit_inputs(
     *,
     annotation: Annotation | None = None,
     ambient: float | None = None,
-    reference: bool = False,
+    form: str = "reference",
     heating: bool = True,
 ) -> Emitted:
     """The emitted deck for *inputs*; *annotation* replaces the file's (a Monte Carlo draw,
@@ -462,14 +475,14 @@ def emit_inputs(
         _basename(inputs.deck_path), deck_text, _basename(inputs.annotation_path), chosen.text
     )
     emitted = emit_deck(
-        inputs.project, inputs.index, circuit, head, reference=reference, heating=heating
+        inputs.project, inputs.index, circuit, head, form=form, heating=heating
     )
     return replace(emitted, findings=findings + emitted.findings)
 
 
-def emit_files(deck_path: str, annotation_path: str, *, reference: bool = False) -> Emitted:
+def emit_files(deck_path: str, annotation_path: str, *, form: str = "reference") -> Emitted:
     """Read a deck, its includes and its annotation file; return the emitted deck."""
-    return emit_inputs(load_inputs(deck_path, annotation_path), reference=reference)
+    return emit_inputs(load_inputs(deck_path, annotation_path), form=form)
 
 
 def _basename(path: str) -> str:

@@ -41,7 +41,6 @@ class RunOptions:
     backend: str = "auto"
     allow_control: bool = False
     timeout: float | None = None
-    reference: bool = False
     progress: Progress | None = field(default=None, compare=False)
 
 
@@ -107,7 +106,6 @@ def prepare(
         inputs,
         annotation=annotation,
         ambient=options.ambient,
-        reference=options.reference,
         heating=heating,
     )
     text, dropped = strip_control(emitted.text, inputs.deck_path, options.allow_control)

@@ -8,6 +8,7 @@ from pathlib import Path
 import click
 
 from heatweave.cli.common import guarded, report_findings
+from heatweave.emitforms import FORMS
 from heatweave.errors import EXIT_CHECK_FAILED, UsageError
 from heatweave.files import encode, read_text, same_file, write_atomic
 
@@ -21,14 +22,14 @@ def default_annotation(deck: str) -> Path | None:
     return candidate if deck != "-" and candidate.is_file() else None
 
 
-def build_emitted(deck: str, annotation: str | None, *, reference: bool = False) -> str:
+def build_emitted(deck: str, annotation: str | None, *, form: str = "switch") -> str:
     """The emitted deck's text: the input unchanged when there is no annotation file."""
     chosen = Path(annotation) if annotation else default_annotation(deck)
     if chosen is None:
         return read_text(deck)
     from heatweave.emitter import emit_files
 
-    result = emit_files(deck, str(chosen), reference=reference)
+    result = emit_files(deck, str(chosen), form=form)
     report_findings(list(result.findings))
     return result.text
 
@@ -50,9 +51,13 @@ def build_emitted(deck: str, annotation: str | None, *, reference: bool = False)
     help="Compare with a committed emitted deck instead of writing; exit 1 when it is stale.",
 )
 @click.option(
-    "--reference-form",
-    is_flag=True,
-    help="Write the straightforward behavioural-source form (slower, for cross-checks).",
+    "--form",
+    type=click.Choice(tuple(FORMS)),
+    default="switch",
+    show_default=True,
+    help="How annotated resistors are written: switch (XSPICE code models, about four times "
+    "cheaper to simulate), reference (two behavioural sources each, what run simulates), "
+    "divider (code models, linear models only).",
 )
 @guarded
 def emit(
@@ -61,13 +66,13 @@ def emit(
     output: str,
     in_place: bool,
     check_file: str | None,
-    reference_form: bool,
+    form: str,
 ) -> None:
     """Write DECK with self-heating added, as a deck stock ngspice runs as is.
 
     Without an annotation file the deck is written unchanged, byte for byte.
     """
-    text = build_emitted(deck, annotations, reference=reference_form)
+    text = build_emitted(deck, annotations, form=form)
     if check_file is not None:
         from heatweave.emitter import stale_reason
 
