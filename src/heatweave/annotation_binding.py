@@ -98,7 +98,8 @@ def bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
             )
         exact[element] = spec
     bound: list[BoundPart] = []
-    for element in elements if globbed else [e for e in elements if e in exact]:
+    named = exact.keys() | globbed.keys()
+    for element in [e for e in elements if e in named]:  # deck order
         chosen = exact.get(element)
         if chosen is None:
             candidates = globbed.get(element, [])

@@ -36,6 +36,7 @@ sets that itself whatever the deck says, manual 15.1.4).
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import math
 from abc import ABC, abstractmethod
@@ -58,6 +59,7 @@ def _num(value: float) -> str:
     return repr(float(value))
 
 
+@functools.cache  # the part's cards and the shared .model cards ask for the same digests
 def _digest(*values: float) -> str:
     return hashlib.sha256(" ".join(_num(v) for v in values).encode()).hexdigest()[:10]
 
