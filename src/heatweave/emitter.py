@@ -31,6 +31,7 @@ from dataclasses import dataclass, field, replace
 
 from heatweave import __version__
 from heatweave.annotations import Annotation, BoundPart
+from heatweave.bulk import paused_gc
 from heatweave.deck import Block, Card, Deck, Node
 from heatweave.elements import rewrite_nodes
 from heatweave.emitforms import added_nodes, preamble, resistor_cards, shared_nodes
@@ -366,7 +367,8 @@ def emit_deck(
         # Nothing heats: the deck is written back unchanged, byte for byte.
         return Emitted(deck.write(), (), (), circuit)
     rewriter = _Rewriter(index, circuit, form, heating)
-    body = rewriter.body(deck.body, "", top=True)
+    with paused_gc():
+        body = rewriter.body(deck.body, "", top=True)
     body.extend(rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
     section = Card(thermal_section(circuit, thermal, bool(rewriter.copies), form))

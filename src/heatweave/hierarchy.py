@@ -15,6 +15,7 @@ from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from heatweave.bulk import paused_gc
 from heatweave.deck import Block, Card, Deck, Node
 from heatweave.errors import DeckStructureError, Location
 from heatweave.reader import read_file
@@ -198,7 +199,8 @@ class DeckIndex:
         """The top-level scope, built on first use (a deck with nothing to rewrite never
         pays for indexing its cards)."""
         if self._top is None:
-            self._top = self._scope("", None, self._expand(self.project.deck.body))
+            with paused_gc():
+                self._top = self._scope("", None, self._expand(self.project.deck.body))
         return self._top
 
     @property

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import re
 
+from heatweave.bulk import paused_gc
 from heatweave.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 from heatweave.errors import DeckStructureError
 
@@ -40,6 +41,11 @@ def read(text: str, path: str = "<deck>", *, title: bool = True) -> Deck:
     Never fails on ngspice-acceptable input; structural problems that ngspice would also
     reject (``.ends`` without ``.subckt``) are kept as plain cards and reported by ``lint``.
     """
+    with paused_gc():
+        return _read(text, path, title)
+
+
+def _read(text: str, path: str, title: bool) -> Deck:
     source = SourceFile(path, text)
     pos = 0
     title_text: str | None = None

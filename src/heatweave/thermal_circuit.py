@@ -17,6 +17,7 @@ import re
 from dataclasses import dataclass, field
 
 from heatweave.annotations import AMBIENT, Annotation, BoundPart, NetworkSpec
+from heatweave.bulk import paused_gc
 from heatweave.errors import AnnotationError, Finding, Location
 from heatweave.hierarchy import DeckIndex, Resolved
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
@@ -143,42 +144,43 @@ def build_circuit(
 
     parts: list[PartPlan] = []
     networks: dict[int, NetworkForm] = {}
-    for item in bound:
-        spec = item.spec
-        network = networks.get(id(spec))
-        if network is None:
-            try:
-                network = from_annotation(spec.network.kind, _network_data(spec.network))
-            except NetworkError as err:
-                raise err.at(spec.location) from None
-            networks[id(spec)] = network  # a glob's parts share one (immutable) network
-        model = None
-        nominal = None
-        found = index.resolve(item.element)
-        if found is None:
-            raise AnnotationError(f"{item.element} is not in the deck", spec.location)
-        card = found.card
-        simple = SIMPLE_RESISTOR.match(card.logical().text) if item.kind == "R" else None
-        if simple is None:
-            syntax_of(card)  # a malformed card is reported where it stands
-            terminals = tuple(card_nodes(card, index))
-        else:
-            terminals = (simple.group(1), simple.group(2))
-        if spec.model is not None:
-            value = resistor_value(card, params, simple)
-            findings.extend(
-                Finding("warning", f"{item.element}: {note}", found.card.location())
-                for note in value.notes
-            )
-            nominal = value.ohms
-            model = spec.temp_model(value.ohms)
-        parts.append(
-            PartPlan(
-                item.element, spec.model, model, network, node_of(spec.to), spec.to,
-                spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
-                terminals, found,
-            )
-        )  # fmt: skip
+    with paused_gc():  # a glob may annotate a hundred thousand parts
+        for item in bound:
+            spec = item.spec
+            network = networks.get(id(spec))
+            if network is None:
+                try:
+                    network = from_annotation(spec.network.kind, _network_data(spec.network))
+                except NetworkError as err:
+                    raise err.at(spec.location) from None
+                networks[id(spec)] = network  # a glob's parts share one (immutable) network
+            model = None
+            nominal = None
+            found = index.resolve(item.element)
+            if found is None:
+                raise AnnotationError(f"{item.element} is not in the deck", spec.location)
+            card = found.card
+            simple = SIMPLE_RESISTOR.match(card.logical().text) if item.kind == "R" else None
+            if simple is None:
+                syntax_of(card)  # a malformed card is reported where it stands
+                terminals = tuple(card_nodes(card, index))
+            else:
+                terminals = (simple.group(1), simple.group(2))
+            if spec.model is not None:
+                value = resistor_value(card, params, simple)
+                findings.extend(
+                    Finding("warning", f"{item.element}: {note}", found.card.location())
+                    for note in value.notes
+                )
+                nominal = value.ohms
+                model = spec.temp_model(value.ohms)
+            parts.append(
+                PartPlan(
+                    item.element, spec.model, model, network, node_of(spec.to), spec.to,
+                    spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
+                    terminals, found,
+                )
+            )  # fmt: skip
     nodes = tuple(
         SharedNode(n.name, n.rth, n.cth, node_of(n.to), n.to) for n in annotation.nodes
     )
