@@ -27,6 +27,7 @@ from heatweave.annotation_types import (
     PartSpec,
     Tolerances,
 )
+from heatweave.bulk import paused_gc
 from heatweave.errors import AnnotationError
 from heatweave.tempmodels import REGISTRY
 
@@ -60,6 +61,11 @@ def bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
 
     Exact keys beat globs; an element matched by two globs (and no exact key) is an error.
     """
+    with paused_gc():  # a deck may have a million elements, a glob may match most
+        return _bind(annotation, catalog)
+
+
+def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
     if not annotation.parts:
         return ()
     elements = list(catalog.element_paths())
