@@ -287,3 +287,19 @@ def test_emitted_deck_round_trips_and_heating_off_baseline() -> None:
     values = simulate(text)
     assert values["v(out)"][-1] == pytest.approx(5.0, rel=1e-9)
     assert values["v(hw_t_r1)"][-1] == pytest.approx(25.0, abs=1e-9)
+
+
+@pytest.mark.parametrize(
+    "deck",
+    [
+        "no end card\nV1 in 0 DC 10\nR1 in out 100\nR2 out 0 100\n.op",  # no final newline
+        "no end card\nV1 in 0 DC 10\n.op\nR2 out 0 100\nR1 in out 100",  # part is last
+        "end card\nV1 in 0 DC 10\nR1 in out 100\nR2 out 0 100\n.op\n.end",
+    ],
+)
+def test_decks_without_final_newline_or_end(tmp_path: Path, deck: str) -> None:
+    # Same divider as above: the steady state must not depend on how the file ends.
+    path = write_case(tmp_path, deck, (FIXTURES / "divider.thermal.toml").read_text())
+    expected = brentq(lambda t: t - TA - RTH * power_at(t), TA, TA + 500)
+    out = run(str(path), str(path.with_suffix(".thermal.toml")))
+    assert out.results.part("R1").temperature == pytest.approx(expected, abs=1e-4)

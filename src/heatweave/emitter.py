@@ -388,9 +388,9 @@ def _insert_before_end(body: list[Node], section: Card) -> list[Node]:
         node = body[i]
         if isinstance(node, Card) and node.name == ".end":
             return [*body[:i], section, *body[i:]]
-    last = body[-1] if body else None
-    if isinstance(last, Card | Block) and not last.write().endswith("\n"):
-        pass
+    if body and not body[-1].write().endswith("\n"):
+        # The file ended without a newline: start the section on a line of its own.
+        section = Card("\n" + section.text)
     return [*body, section]
 
 
