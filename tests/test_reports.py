@@ -275,3 +275,15 @@ def test_table_margins_agree_with_check() -> None:
         if row.tmax is not None:
             limit = judged[(row.path, "tmax")]
             assert row.margins.temperature == pytest.approx(limit.bound - limit.value, rel=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("largest_ppm", "unit"),
+    [(0.0, "ppm"), (499.6, "ppm"), (5e4, "ppm"), (926_101.7, "%")],  # shunt vs NTC drifts
+)
+def test_drift_axis_unit(largest_ppm: float, unit: str) -> None:
+    from heatweave.reports.plot import drift_unit
+
+    per_unit, label = drift_unit(largest_ppm)
+    assert label == unit
+    assert per_unit == (1e4 if unit == "%" else 1.0)  # 1 % = 10,000 ppm

@@ -118,13 +118,16 @@ def _transient(figure: Figure, report: RunReport, colours: dict[str, str]) -> No
         drift = axes[panel]
         panel += 1
         drift_ends = []
-        for row in resistors:
-            values = row.drift_series()
+        drifts = [row.drift_series() for row in resistors]
+        per_unit, drift_label = drift_unit(
+            max(float(np.max(np.abs(v))) for v in drifts if v is not None)
+        )
+        for row, values in zip(resistors, drifts, strict=True):
             assert values is not None
-            drift.plot(t, values, color=colours[row.path], lw=1.6)
-            drift_ends.append((row.path, float(values[-1]), colours[row.path]))
+            drift.plot(t, values / per_unit, color=colours[row.path], lw=1.6)
+            drift_ends.append((row.path, float(values[-1]) / per_unit, colours[row.path]))
         drift.axhline(0.0, color=AMBIENT_COLOUR, lw=0.8)
-        drift.set_ylabel("resistance change [ppm]")
+        drift.set_ylabel(f"resistance change [{drift_label}]")
         drift.set_title("Resistance drift against the deck's value", fontsize=9, loc="left")
         finished.append((drift, drift_ends))
     if report.probes:
@@ -189,9 +192,13 @@ def _operating_point(figure: Figure, report: RunReport, colours: dict[str, str])
     panel = 1
     if resistors:
         drift = [row.change_ppm or 0.0 for row in resistors]
-        _bars(axes[panel], [row.path for row in resistors], drift, colours, "+.0f")
+        per_unit, drift_label = drift_unit(max(abs(d) for d in drift))
+        _bars(
+            axes[panel], [row.path for row in resistors], [d / per_unit for d in drift],
+            colours, "+.0f" if per_unit == 1.0 else "+.2f",
+        )  # fmt: skip
         axes[panel].axhline(0.0, color=AMBIENT_COLOUR, lw=0.8)
-        axes[panel].set_ylabel("resistance change [ppm]")
+        axes[panel].set_ylabel(f"resistance change [{drift_label}]")
         axes[panel].set_title("Resistance drift against the deck's value", fontsize=9, loc="left")
         panel += 1
     if report.probes:
@@ -224,3 +231,9 @@ def render_png(report: RunReport) -> bytes:
     buffer = io.BytesIO()
     build_figure(report).savefig(buffer, format="png", dpi=120)
     return buffer.getvalue()
+
+
+def drift_unit(largest_ppm: float) -> tuple[float, str]:
+    """ppm for the small drifts of precision parts; % once they pass 5 % (thermistors), where
+    six-digit ppm figures only get in the way.  Returns (ppm per unit, unit)."""
+    return (1e4, "%") if largest_ppm > 5e4 else (1.0, "ppm")
