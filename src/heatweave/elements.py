@@ -40,7 +40,7 @@ NODE_COUNT = {
 MODEL_ENDS_NODES = {"Q": 3, "M": 4, "N": 2}
 
 
-def _positional(card: Card) -> list[tuple[str, int, int]]:
+def positional_spans(card: Card) -> list[tuple[str, int, int]]:
     """(field, start, end) of the fields before the first ``key=value``, name excluded."""
     logical = card.logical().text
     spans = [(m.group(0), m.start(), m.end()) for m in _FIELD.finditer(logical)]
@@ -54,7 +54,7 @@ def _positional(card: Card) -> list[tuple[str, int, int]]:
 
 def _node_spans(card: Card, index: DeckIndex | None) -> list[tuple[str, int, int]]:
     letter = card.letter
-    fields = _positional(card)
+    fields = positional_spans(card)
     if letter == "X":
         nodes, _sub, _params = x_card_parts(card)
         return fields[: len(nodes)]

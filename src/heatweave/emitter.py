@@ -33,7 +33,7 @@ from heatweave import __version__
 from heatweave.annotations import Annotation, BoundPart
 from heatweave.bulk import paused_gc
 from heatweave.deck import Block, Card, Deck, Node
-from heatweave.elements import rewrite_nodes
+from heatweave.elements import positional_spans, rewrite_nodes
 from heatweave.emitforms import added_nodes, preamble, resistor_cards, shared_nodes
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, x_card_parts
@@ -195,14 +195,15 @@ class _Rewriter:
     # -- cards ---------------------------------------------------------------------------
 
     def retarget(self, card: Card, old: str, new: str, comment: bool = True) -> Card:
-        """The same card with the subcircuit name *old* replaced by *new*."""
-        logical = card.logical().text
-        fields = card.fields()
-        # The name is the field after the nodes: replace its last occurrence before params.
-        position = logical.lower().rfind(old.lower(), 0, _params_start(logical, fields))
-        if position < 0:
+        """The same card with the subcircuit name *old* replaced by *new*: the first field
+        of a ``.subckt`` header, the last positional field of an ``X`` card."""
+        spans = [span for span in positional_spans(card) if span[0].lower() != "params:"]
+        found = (spans[0] if card.is_dot else spans[-1]) if spans else None
+        if found is None or found[0].lower() != old.lower():
             raise EmitError(f"cannot find subcircuit name {old!r} on {card.head}", card.location())
-        text = logical[:position] + new + logical[position + len(old) :] + "\n"
+        _text, start, end = found
+        logical = card.logical().text
+        text = logical[:start] + new + logical[end:] + "\n"
         lead = card.lead + (card.commented(MARK) if comment else "")
         return Card(text, lead)
 
@@ -259,25 +260,6 @@ class _Rewriter:
         if self.heating:
             lines.append(f"B{PREFIX}p_{name} 0 {part.node} I = " + " + ".join(terms))
         return lines
-
-
-def _params_start(logical: str, fields: list[str]) -> int:
-    """Offset in *logical* where ``key=value`` parameters (or ``params:``) begin."""
-    lower = logical.lower()
-    cut = len(logical)
-    at = lower.find("params:")
-    if at >= 0:
-        cut = at
-    for i, f in enumerate(fields):
-        if i + 1 < len(fields) and fields[i + 1] == "=":
-            at = lower.find(f.lower(), 0, cut)
-            # The key's last occurrence before its '=' is the key itself.
-            eq = lower.find("=", 0, cut)
-            if eq >= 0:
-                key_start = lower.rfind(f.lower(), 0, eq)
-                cut = min(cut, key_start if key_start >= 0 else at)
-            break
-    return cut
 
 
 def _ends(card: Card, name: str) -> Card:
