@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import difflib
-import fnmatch
-import re
 from collections.abc import Sequence
 from dataclasses import replace
 from typing import Protocol
@@ -29,6 +27,7 @@ from heatweave.annotation_types import (
 )
 from heatweave.bulk import paused_gc
 from heatweave.errors import AnnotationError
+from heatweave.globmatch import matching
 from heatweave.tempmodels import REGISTRY
 
 RESISTOR = "R"
@@ -69,14 +68,16 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
     if not annotation.parts:
         return ()
     elements = list(catalog.element_paths())
-    uppers = [e.upper() for e in elements]
-    by_upper: dict[str, str] = dict(zip(uppers, elements, strict=True))
-    exact: dict[str, PartSpec] = {}
-    globbed: dict[str, list[PartSpec]] = {}
+    # SPICE names ignore case: everything is compared in upper case, the names joined one
+    # to a line and folded in one call (a glob scans that text once).
+    joined = "\n".join(elements).upper()
+    # The first position of every name: the first card of a name is the one ngspice keeps.
+    first: dict[str, int] | None = None
+    chosen: dict[int, PartSpec] = {}
+    globbed: dict[int, list[PartSpec]] = {}
     for spec in annotation.parts:
         if spec.is_glob:
-            matches = re.compile(fnmatch.translate(spec.pattern.upper())).match
-            hits = [by_upper[u] for u in filter(matches, uppers)]
+            hits = matching(spec.pattern.upper(), joined)
             if not hits:
                 raise AnnotationError(
                     f'pattern "{spec.pattern}" matches no element of {catalog.deck_file}',
@@ -84,43 +85,48 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
                     "check the spelling; a pattern covers the whole instance path, "
                     "so reach elements inside subcircuit instance X1 with X1.*",
                 )
-            for element in hits:
-                globbed.setdefault(element, []).append(spec)
+            for at in hits:
+                globbed.setdefault(at, []).append(spec)
             continue
-        found = by_upper.get(spec.pattern.upper())
-        if found is None:
+        if first is None:
+            uppers = joined.split("\n")
+            first = dict(zip(reversed(uppers), range(len(uppers) - 1, -1, -1), strict=True))
+        at = first.get(spec.pattern.upper(), -1)
+        if at < 0:
             raise AnnotationError(
                 f'part "{spec.pattern}" is not in {catalog.deck_file}',
                 spec.location,
                 _suggest(spec.pattern, elements),
             )
-        element = found
-        if element in exact:
+        if at in chosen:
             raise AnnotationError(
-                f'parts "{exact[element].pattern}" and "{spec.pattern}" name the same element '
+                f'parts "{chosen[at].pattern}" and "{spec.pattern}" name the same element '
                 "(SPICE names ignore case)",
                 spec.location,
                 "merge the two tables",
             )
-        exact[element] = spec
+        chosen[at] = spec
+    for at, candidates in globbed.items():
+        if at in chosen:
+            continue  # an exact key beats every pattern
+        if len(candidates) > 1:
+            element = elements[at]
+            raise AnnotationError(
+                f'element "{element}" matches both "{candidates[0].pattern}" '
+                f'and "{candidates[1].pattern}"',
+                candidates[1].location,
+                f'make the patterns disjoint, or add [part."{element}"], '
+                "which takes precedence over patterns",
+            )
+        chosen[at] = candidates[0]
     bound: list[BoundPart] = []
-    named = exact.keys() | globbed.keys()
-    for element in [e for e in elements if e in named]:  # deck order
-        chosen = exact.get(element)
-        if chosen is None:
-            candidates = globbed.get(element, [])
-            if len(candidates) > 1:
-                raise AnnotationError(
-                    f'element "{element}" matches both "{candidates[0].pattern}" '
-                    f'and "{candidates[1].pattern}"',
-                    candidates[1].location,
-                    f'make the patterns disjoint, or add [part."{element}"], '
-                    "which takes precedence over patterns",
-                )
-            if not candidates:
-                continue
-            chosen = candidates[0]
-        spec = chosen
+    seen: set[str] = set()
+    for at in sorted(chosen):  # deck order
+        upper = elements[at].upper()
+        if upper in seen:
+            continue  # a second card of the same name: ngspice's first one counts
+        seen.add(upper)
+        element, spec = elements[at], chosen[at]
         kind = catalog.element_kind(element).upper()
         _check_kind(element, kind, spec)
         bound.append(BoundPart(element, kind, spec))
@@ -139,6 +145,8 @@ def _suggest(name: str, elements: Sequence[str]) -> str:
 
 
 def _check_kind(element: str, kind: str, spec: PartSpec) -> None:
+    if (kind == RESISTOR) == (spec.model is not None):
+        return
     via = f' (matched by "{spec.pattern}")' if spec.is_glob else ""
     if kind == RESISTOR and spec.model is None:
         raise AnnotationError(

@@ -209,6 +209,9 @@ class Card:
 
     def commented(self, marker: str = "*") -> str:
         """The card's lines turned into comment lines, for showing what was replaced."""
+        text = self.text
+        if text.find("\n") == len(text) - 1:  # one line with its line ending
+            return marker + text
         out = []
         for line in self.text.splitlines(keepends=True):
             out.append(marker + line)

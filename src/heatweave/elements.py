@@ -30,6 +30,22 @@ SIMPLE_RESISTOR = re.compile(
     rf"((?:[ \t]+[A-Za-z_]\w*[ \t]*=[ \t]*{_NUM})*)[ \t]*$"
 )
 _PAIR = re.compile(rf"([A-Za-z_]\w*)[ \t]*=[ \t]*({_NUM})")
+# The same on a card's raw text, for a one-line card without comment characters (``;``,
+# ``$``, ``/``), whose logical text is then the line itself: no Logical is built.
+_RAW_NODE = r"[^\s,=()'{}\"\[\]<>~%;$/]+"
+_SIMPLE_RAW = re.compile(
+    rf"[ \t]*[Rr]{_RAW_NODE}[ \t]+({_RAW_NODE})[ \t]+({_RAW_NODE})[ \t]+({_NUM})"
+    rf"((?:[ \t]+[A-Za-z_]\w*[ \t]*=[ \t]*{_NUM})*)[ \t]*\n?\Z"
+)
+
+
+def simple_resistor(card: Card) -> re.Match[str] | None:
+    """The card's :data:`SIMPLE_RESISTOR` match (groups: node, node, value, pairs)."""
+    found = _SIMPLE_RAW.match(card.text)
+    if found is not None:
+        return found
+    return SIMPLE_RESISTOR.match(card.logical().text)
+
 
 #: Fixed node counts by element letter (manual table 2.1).
 NODE_COUNT = {
@@ -83,7 +99,7 @@ def _node_spans(card: Card, index: DeckIndex | None) -> list[tuple[str, int, int
 def card_nodes(card: Card, index: DeckIndex | None = None) -> list[str]:
     """The node names of an element card, as written."""
     if card.letter == "R":
-        simple = SIMPLE_RESISTOR.match(card.logical().text)
+        simple = simple_resistor(card)
         if simple is not None:
             return [simple.group(1), simple.group(2)]
     return [text for text, _s, _e in _node_spans(card, index)]
@@ -119,8 +135,12 @@ def resistor_value(
     pairs: dict[str, str] = {}
     positional: list[str] = []
     if simple is None:
-        simple = SIMPLE_RESISTOR.match(card.logical().text)
+        simple = simple_resistor(card)
     if simple is not None:
+        if not simple.group(4):  # the common card: a bare number, nothing set aside
+            ohms = parse_number(simple.group(3))
+            if ohms is not None and ohms != 0 and math.isfinite(ohms):
+                return ResistorValue(ohms, ())
         positional.append(simple.group(3))
         pairs.update((k.lower(), v) for k, v in _PAIR.findall(simple.group(4)))
     else:

@@ -24,6 +24,7 @@ comment; the output is deterministic, so diffs of emitted decks stay small.
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import re
 from collections.abc import Iterable
@@ -38,6 +39,7 @@ from heatweave.emitforms import added_nodes, preamble, resistor_cards, shared_no
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, x_card_parts
 from heatweave.quantities import format_number
+from heatweave.stencil import Made, Stencils
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
 
 MARK = "*hw* "  # marks lines heatweave writes around replaced cards
@@ -97,9 +99,7 @@ def stale_reason(committed: str, fresh: str) -> str:
 class _Rewriter:
     """Rewrites bodies for one thermal circuit; keeps the bookkeeping of names and copies."""
 
-    def __init__(
-        self, index: DeckIndex, circuit: ThermalCircuit, form: str, heating: bool
-    ) -> None:
+    def __init__(self, index: DeckIndex, circuit: ThermalCircuit, form: str, heating: bool) -> None:
         self.index = index
         self.circuit = circuit
         self.form = form
@@ -107,12 +107,13 @@ class _Rewriter:
         self.findings: list[Finding] = []
         self.added: list[str] = []  # every node name added, for the collision check
         self.thermal: list[str] = []  # hot spots and network nodes, for .ic and .global
-        # What to rewrite, by (instance path prefix in lower case, id of the card): the same
-        # card object stands in every instance of its definition.
-        self.part_at: dict[tuple[str, int], PartPlan] = {}
-        self.instance_at: dict[tuple[str, int], str] = {}
+        # What to rewrite: by instance path prefix in lower case, then by id of the card (the
+        # same card object stands in every instance of its definition).
+        self.part_at: dict[str, dict[int, PartPlan]] = {}
+        self.instance_at: dict[str, dict[int, str]] = {}
         # instance path prefix (lower) -> definition it needs a specialised copy of
         self.copies: dict[str, Block] = {}
+        self.stencils = Stencils()
         root = index.project.deck.source
         for part in circuit.parts:
             found = part.resolved or index.resolve(part.path)
@@ -128,12 +129,11 @@ class _Rewriter:
                 )
             prefix = ""
             for instance, definition in zip(found.instances, found.definitions, strict=True):
-                self.instance_at[(prefix.lower(), id(instance))] = (
-                    f"{prefix}.{instance.head}" if prefix else instance.head
-                )
-                prefix = self.instance_at[(prefix.lower(), id(instance))]
+                spelled = f"{prefix}.{instance.head}" if prefix else instance.head
+                self.instance_at.setdefault(prefix.lower(), {})[id(instance)] = spelled
+                prefix = spelled
                 self.copies[prefix.lower()] = definition
-            self.part_at[(prefix.lower(), id(found.card))] = part
+            self.part_at.setdefault(prefix.lower(), {})[id(found.card)] = part
         self.placed: set[str] = set()
 
     # -- bodies -------------------------------------------------------------------------
@@ -141,14 +141,15 @@ class _Rewriter:
     def body(self, nodes: Iterable[Node], prefix: str, top: bool) -> list[Node]:
         out: list[Node] = []
         context = prefix.lower()
-        part_at, instance_at = self.part_at, self.instance_at
+        part_at = self.part_at.get(context, {})
+        instance_at = self.instance_at.get(context, {})
         for node in nodes:
             if type(node) is Card:
-                part = part_at.get((context, id(node)))
+                part = part_at.get(id(node))
                 if part is not None:
-                    out.extend(self.replace_part(node, part))
+                    out.append(self.replace_part(node, part))
                     continue
-                path = instance_at.get((context, id(node)))
+                path = instance_at.get(id(node))
                 if path is not None:
                     _nodes, sub, _params = x_card_parts(node)
                     out.append(self.retarget(node, sub, copy_name(sub, path)))
@@ -187,9 +188,10 @@ class _Rewriter:
 
     def _spelled(self, lower_path: str) -> str:
         """An instance path as the deck spells it."""
-        for spelled in self.instance_at.values():
-            if spelled.lower() == lower_path:
-                return spelled
+        for spelled_at in self.instance_at.values():
+            for spelled in spelled_at.values():
+                if spelled.lower() == lower_path:
+                    return spelled
         return lower_path
 
     # -- cards ---------------------------------------------------------------------------
@@ -207,38 +209,59 @@ class _Rewriter:
         lead = card.lead + (card.commented(MARK) if comment else "")
         return Card(text, lead)
 
-    def replace_part(self, card: Card, part: PartPlan) -> list[Node]:
+    def replace_part(self, card: Card, part: PartPlan) -> Card:
         name = safe(part.path)
-        lines = [f"{MARK}{part.path}: " + describe(part)]
         if part.is_resistor:
-            lines.extend(self.resistor_cards(card, part, name))
+            nodes = part.terminals
+            if len(nodes) != 2:
+                raise EmitError(f"{card.head} needs two nodes", card.location())
+            # Parts of one table with equal values share model and network objects: their
+            # cards differ only in names and nodes (see heatweave.stencil).
+            key = (id(part.model), id(part.network), part.to, part.to_label, part.model_name)
+            text, added, thermal = self.stencils.get(
+                key,
+                functools.partial(self._resistor_part, part),
+                (part.path, name, nodes[0], nodes[1], part.node),
+            )
         else:
-            lines.extend(self.heat_only_cards(card, part, name))
-        net = part.network.elements(f"{PREFIX}{name}_", part.node, part.to, "0")
+            lines = self.heat_only_cards(card, part, name)
+            text, added, thermal = self._with_network(lines, part, part.path, name, part.node)
+        self.added.extend(added)
+        self.thermal.extend(thermal)
+        return Card(text, card.lead + card.commented(MARK))
+
+    def _resistor_part(
+        self, part: PartPlan, path: str, name: str, a: str, b: str, hot: str
+    ) -> Made:
+        """An annotated resistor's text and added names, from *part*'s model and network
+        and the names given (which may be a stencil's placeholders)."""
+        assert part.model is not None
+        if self.form != "reference":
+            lines = resistor_cards(self.form, name, a, b, hot, part.model, self.heating)
+            extra = added_nodes(self.form, name, part.model, self.heating)
+        else:
+            r_expr = part.model.expression(f"V({hot})")
+            v = f"V({a},{b})"
+            lines = [f"B{PREFIX}{name} {a} {b} I = {v}/({r_expr})"]
+            if self.heating:
+                lines.append(f"B{PREFIX}p_{name} 0 {hot} I = {v}*{v}/({r_expr})")
+            extra = ()
+        text, added, thermal = self._with_network(lines, part, path, name, hot)
+        return text, (*extra, *added), thermal
+
+    def _with_network(
+        self, lines: list[str], part: PartPlan, path: str, name: str, hot: str
+    ) -> Made:
+        """The part's comment line, *lines*, and its network's elements, as one text; the
+        hot spot and network nodes it adds (twice: all added nodes, thermal nodes)."""
+        net = part.network.elements(f"{PREFIX}{name}_", hot, part.to, "0")
+        out = [f"{MARK}{path}: {describe(part)}", *lines]
         for element in net.elements:
-            lines.append(
+            out.append(
                 f"{element.name} {element.node1} {element.node2} {format_number(element.value)}"
             )
-        self.added.extend([part.node, *net.nodes])
-        self.thermal.extend([part.node, *net.nodes])
-        text = "".join(line + "\n" for line in lines)
-        return [Card(text, card.lead + card.commented(MARK))]
-
-    def resistor_cards(self, card: Card, part: PartPlan, name: str) -> list[str]:
-        assert part.model is not None
-        nodes = part.terminals
-        if len(nodes) != 2:
-            raise EmitError(f"{card.head} needs two nodes", card.location())
-        a, b = nodes
-        if self.form != "reference":
-            self.added.extend(added_nodes(self.form, name, part.model, self.heating))
-            return resistor_cards(self.form, name, a, b, part.node, part.model, self.heating)
-        r_expr = part.model.expression(f"V({part.node})")
-        v = f"V({a},{b})"
-        cards = [f"B{PREFIX}{name} {a} {b} I = {v}/({r_expr})"]
-        if self.heating:
-            cards.append(f"B{PREFIX}p_{name} 0 {part.node} I = {v}*{v}/({r_expr})")
-        return cards
+        thermal = (hot, *net.nodes)
+        return "".join(line + "\n" for line in out), thermal, thermal
 
     def heat_only_cards(self, card: Card, part: PartPlan, name: str) -> list[str]:
         nodes = part.terminals
@@ -289,7 +312,8 @@ def thermal_section(
     thermal nodes: ``.global`` when subcircuit copies reach them (*shared*), ``.ic`` at
     ambient for a cold start."""
     lines = [f"{MARK}thermal network"]
-    models = [p.model for p in circuit.parts if p.model is not None]
+    # Each model object once (parts of one table with equal values share one).
+    models = list({id(p.model): p.model for p in circuit.parts if p.model is not None}.values())
     lines.extend(preamble(form, models))
     if isinstance(circuit.ambient, tuple):
         points = " ".join(f"{format_number(t)} {format_number(v)}" for t, v in circuit.ambient)
@@ -458,9 +482,7 @@ def emit_inputs(
     head = header(
         _basename(inputs.deck_path), deck_text, _basename(inputs.annotation_path), chosen.text
     )
-    emitted = emit_deck(
-        inputs.project, inputs.index, circuit, head, form=form, heating=heating
-    )
+    emitted = emit_deck(inputs.project, inputs.index, circuit, head, form=form, heating=heating)
     return replace(emitted, findings=findings + emitted.findings)
 
 

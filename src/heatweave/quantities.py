@@ -9,6 +9,7 @@ scale factors ``T G Meg K mil m u n p f`` are case-insensitive, ``M`` is milli (
 
 from __future__ import annotations
 
+import functools
 import re
 
 import click
@@ -41,6 +42,7 @@ def scale_of(suffix: str) -> float:
     return 1.0
 
 
+@functools.lru_cache(maxsize=4096)  # a large deck repeats its values many times over
 def parse_number(text: str) -> float | None:
     """Read a SPICE number such as ``4.7k``, ``10kOhm``, ``1e-3`` or ``2MEG``.
 

@@ -133,7 +133,7 @@ def build_circuit(
 ) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
     """The thermal circuit of a bound annotation, with each resistor's model built from
     the deck's nominal value; also the warnings about card parameters set aside."""
-    from heatweave.elements import SIMPLE_RESISTOR, card_nodes, resistor_value, top_params
+    from heatweave.elements import card_nodes, resistor_value, simple_resistor, top_params
     from heatweave.lint import syntax_of
 
     findings: list[Finding] = list(annotation.warnings)
@@ -144,6 +144,7 @@ def build_circuit(
 
     parts: list[PartPlan] = []
     networks: dict[int, NetworkForm] = {}
+    models: dict[tuple[int, float], TempModel | None] = {}
     with paused_gc():  # a glob may annotate a hundred thousand parts
         for item in bound:
             spec = item.spec
@@ -160,7 +161,7 @@ def build_circuit(
             if found is None:
                 raise AnnotationError(f"{item.element} is not in the deck", spec.location)
             card = found.card
-            simple = SIMPLE_RESISTOR.match(card.logical().text) if item.kind == "R" else None
+            simple = simple_resistor(card) if item.kind == "R" else None
             if simple is None:
                 syntax_of(card)  # a malformed card is reported where it stands
                 terminals = tuple(card_nodes(card, index))
@@ -168,12 +169,16 @@ def build_circuit(
                 terminals = (simple.group(1), simple.group(2))
             if spec.model is not None:
                 value = resistor_value(card, params, simple)
-                findings.extend(
-                    Finding("warning", f"{item.element}: {note}", found.card.location())
-                    for note in value.notes
-                )
+                if value.notes:
+                    findings.extend(
+                        Finding("warning", f"{item.element}: {note}", found.card.location())
+                        for note in value.notes
+                    )
                 nominal = value.ohms
-                model = spec.temp_model(value.ohms)
+                key = (id(spec), nominal)
+                model = models.get(key)
+                if model is None:  # parts of one table with equal values share their model
+                    model = models[key] = spec.temp_model(nominal)
             parts.append(
                 PartPlan(
                     item.element, spec.model, model, network, node_of(spec.to), spec.to,
@@ -181,9 +186,7 @@ def build_circuit(
                     terminals, found,
                 )
             )  # fmt: skip
-    nodes = tuple(
-        SharedNode(n.name, n.rth, n.cth, node_of(n.to), n.to) for n in annotation.nodes
-    )
+    nodes = tuple(SharedNode(n.name, n.rth, n.cth, node_of(n.to), n.to) for n in annotation.nodes)
     couplings = tuple(
         Coupling(node_of(p.between[0]), node_of(p.between[1]), p.rth, p.between)
         for p in annotation.paths

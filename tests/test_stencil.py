@@ -1,0 +1,116 @@
+"""Stencils: filling in a part's cards gives byte for byte what making them gives.
+
+The emitter makes one part's text once per (model, network, cold node) and fills in the
+names for every other part of that kind (:mod:`heatweave.stencil`).  The reference here is
+the emitter itself with the stencils switched off: every form, every temperature model and
+network form, ground and mixed-case nodes, instance paths, and parts that share a model
+(equal values) or do not.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from heatweave import stencil
+from heatweave.emitforms import FORMS
+from heatweave.emitter import emit_files
+
+DECK = """\
+stencil test deck
+V1 in 0 DC 5
+RA1 in mid 100
+RA2 mid 0 100
+rA3 0 Mid 220
+RA4 Mid out 100 tc1=1e-3
+RB1 out 0 1k
+RB2 out n2 1k
+RB3 n2 0 4.7k
+RC1 in c1 10
+RC2 c1 0 10
+RD1 in d1 50
+RD2 d1 0 50
+X1 in 0 cell
+X2 in out cell
+.subckt cell p q
+RIN p m 330
+ROUT m q 330
+.ends cell
+.op
+.end
+"""
+
+ANNOTATION = """\
+schema = 1
+
+[node.board]
+rth = 20.0
+cth = 5.0
+
+[part."RA*"]
+model = "linear"
+tc1_ppm = 3900
+rth = 80.0
+cth = 0.02
+to = "board"
+
+[part."RB*"]
+model = "exponential"
+tce = 0.4
+foster = [[10.0, 0.001], [30.0, 0.5]]
+
+[part."RC*"]
+model = "ntc-beta"
+beta = 3950
+cauer = [[5.0, 0.02], [15.0, 0.3]]
+
+[part."RD*"]
+model = "quadratic"
+tc1_ppm = 20
+tc2 = -4e-8
+rth = 45.0
+
+[part."X*.R*"]
+model = "rtd"
+rth = 400.0
+cth = 0.002
+"""
+
+
+def _made_directly(self: stencil.Stencils, key: object, make: stencil.Maker,
+                   values: tuple[str, ...]) -> stencil.Made:  # fmt: skip
+    return make(*values)
+
+
+@pytest.mark.parametrize("form", list(FORMS))
+def test_filled_in_equals_made(tmp_path: Path, form: str, monkeypatch: pytest.MonkeyPatch) -> None:
+    deck = tmp_path / "cells.cir"
+    deck.write_text(DECK)
+    annotation = tmp_path / "cells.thermal.toml"
+    annotation.write_text(ANNOTATION)
+    filled = emit_files(str(deck), str(annotation), form=form).text
+    monkeypatch.setattr(stencil.Stencils, "get", _made_directly)
+    made = emit_files(str(deck), str(annotation), form=form).text
+    assert filled == made
+    assert filled.count(": model linear,") == 4 and "*hw* X2.RIN: model rtd," in filled
+
+
+def _concatenating(name: str, node: str) -> stencil.Made:
+    return f"R{name} {node} 0 1\n", (f"n_{name}",), ()
+
+
+def _folding(name: str, node: str) -> stencil.Made:
+    return f"R{name.lower()} {node} 0 1\n", (), ()  # not a plain concatenation
+
+
+def test_fill_in_and_fall_back() -> None:
+    stencils = stencil.Stencils()
+    assert stencils.get("k", _concatenating, ("A", "x")) == ("RA x 0 1\n", ("n_A",), ())
+    assert stencils.get("k", _concatenating, ("B", "0")) == ("RB 0 0 1\n", ("n_B",), ())
+    # A maker that does more than put the names in place fails the check on first use and
+    # is called directly from then on.
+    assert stencils.get("f", _folding, ("AB", "x")) == ("Rab x 0 1\n", (), ())
+    assert stencils.get("f", _folding, ("CD", "y")) == ("Rcd y 0 1\n", (), ())
+    # Names that are not printable text (a placeholder could hide in them) are made directly.
+    assert stencils.get("k", _concatenating, ("\x02", "x")) == ("R\x02 x 0 1\n", ("n_\x02",), ())
