@@ -78,9 +78,9 @@ cth = 0.002
 """
 
 
-def _made_directly(self: stencil.Stencils, key: object, make: stencil.Maker,
+def _made_directly(self: stencil.Stencils, key: object, make: stencil.Maker, payload: object,
                    values: tuple[str, ...]) -> stencil.Made:  # fmt: skip
-    return make(*values)
+    return make(payload, *values)
 
 
 @pytest.mark.parametrize("form", list(FORMS))
@@ -96,21 +96,22 @@ def test_filled_in_equals_made(tmp_path: Path, form: str, monkeypatch: pytest.Mo
     assert filled.count(": model linear,") == 4 and "*hw* X2.RIN: model rtd," in filled
 
 
-def _concatenating(name: str, node: str) -> stencil.Made:
-    return f"R{name} {node} 0 1\n", (f"n_{name}",), ()
+def _concatenating(value: str, name: str, node: str) -> stencil.Made:
+    return f"R{name} {node} 0 {value}\n", (f"n_{name}",), ()
 
 
-def _folding(name: str, node: str) -> stencil.Made:
-    return f"R{name.lower()} {node} 0 1\n", (), ()  # not a plain concatenation
+def _folding(value: str, name: str, node: str) -> stencil.Made:
+    return f"R{name.lower()} {node} 0 {value}\n", (), ()  # not a plain concatenation
 
 
 def test_fill_in_and_fall_back() -> None:
     stencils = stencil.Stencils()
-    assert stencils.get("k", _concatenating, ("A", "x")) == ("RA x 0 1\n", ("n_A",), ())
-    assert stencils.get("k", _concatenating, ("B", "0")) == ("RB 0 0 1\n", ("n_B",), ())
+    assert stencils.get("k", _concatenating, "1", ("A", "x")) == ("RA x 0 1\n", ("n_A",), ())
+    assert stencils.get("k", _concatenating, "1", ("B", "0")) == ("RB 0 0 1\n", ("n_B",), ())
     # A maker that does more than put the names in place fails the check on first use and
     # is called directly from then on.
-    assert stencils.get("f", _folding, ("AB", "x")) == ("Rab x 0 1\n", (), ())
-    assert stencils.get("f", _folding, ("CD", "y")) == ("Rcd y 0 1\n", (), ())
+    assert stencils.get("f", _folding, "1", ("AB", "x")) == ("Rab x 0 1\n", (), ())
+    assert stencils.get("f", _folding, "1", ("CD", "y")) == ("Rcd y 0 1\n", (), ())
     # Names that are not printable text (a placeholder could hide in them) are made directly.
-    assert stencils.get("k", _concatenating, ("\x02", "x")) == ("R\x02 x 0 1\n", ("n_\x02",), ())
+    made = stencils.get("k", _concatenating, "1", ("\x02", "x"))
+    assert made == ("R\x02 x 0 1\n", ("n_\x02",), ())

@@ -73,11 +73,12 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
     joined = "\n".join(elements).upper()
     # The first position of every name: the first card of a name is the one ngspice keeps.
     first: dict[str, int] | None = None
-    chosen: dict[int, PartSpec] = {}
-    globbed: dict[int, list[PartSpec]] = {}
+    exact: dict[int, PartSpec] = {}
+    globbed: dict[int, PartSpec] = {}  # position -> the first pattern that matched it
+    overlaps: set[int] = set()  # positions two patterns matched
     for spec in annotation.parts:
         if spec.is_glob:
-            hits = matching(spec.pattern.upper(), joined)
+            hits = dict.fromkeys(matching(spec.pattern.upper(), joined), spec)
             if not hits:
                 raise AnnotationError(
                     f'pattern "{spec.pattern}" matches no element of {catalog.deck_file}',
@@ -85,8 +86,8 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
                     "check the spelling; a pattern covers the whole instance path, "
                     "so reach elements inside subcircuit instance X1 with X1.*",
                 )
-            for at in hits:
-                globbed.setdefault(at, []).append(spec)
+            overlaps |= globbed.keys() & hits.keys()
+            globbed = hits | globbed  # the earlier pattern stays first
             continue
         if first is None:
             uppers = joined.split("\n")
@@ -98,39 +99,46 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
                 spec.location,
                 _suggest(spec.pattern, elements),
             )
-        if at in chosen:
+        if at in exact:
             raise AnnotationError(
-                f'parts "{chosen[at].pattern}" and "{spec.pattern}" name the same element '
+                f'parts "{exact[at].pattern}" and "{spec.pattern}" name the same element '
                 "(SPICE names ignore case)",
                 spec.location,
                 "merge the two tables",
             )
-        chosen[at] = spec
-    for at, candidates in globbed.items():
-        if at in chosen:
-            continue  # an exact key beats every pattern
-        if len(candidates) > 1:
-            element = elements[at]
-            raise AnnotationError(
-                f'element "{element}" matches both "{candidates[0].pattern}" '
-                f'and "{candidates[1].pattern}"',
-                candidates[1].location,
-                f'make the patterns disjoint, or add [part."{element}"], '
-                "which takes precedence over patterns",
-            )
-        chosen[at] = candidates[0]
+        exact[at] = spec
+    clashes = overlaps - exact.keys()  # an exact key beats every pattern
+    if clashes:
+        at = min(clashes)  # the first in deck order
+        element = elements[at]
+        patterns = [p for p in annotation.parts if p.is_glob and _matches(p, element)]
+        raise AnnotationError(
+            f'element "{element}" matches both "{patterns[0].pattern}" '
+            f'and "{patterns[1].pattern}"',
+            patterns[1].location,
+            f'make the patterns disjoint, or add [part."{element}"], '
+            "which takes precedence over patterns",
+        )
+    chosen = globbed | exact
     bound: list[BoundPart] = []
     seen: set[str] = set()
+    kind_of = catalog.element_kind
     for at in sorted(chosen):  # deck order
-        upper = elements[at].upper()
+        element = elements[at]
+        upper = element.upper()
         if upper in seen:
             continue  # a second card of the same name: ngspice's first one counts
         seen.add(upper)
-        element, spec = elements[at], chosen[at]
-        kind = catalog.element_kind(element).upper()
-        _check_kind(element, kind, spec)
-        bound.append(BoundPart(element, kind, spec))
+        spec = chosen[at]
+        kind = kind_of(element).upper()
+        if (kind == RESISTOR) != (spec.model is not None):
+            _refuse_kind(element, kind, spec)
+        bound.append(BoundPart(element, kind, spec, at))
     return tuple(bound)
+
+
+def _matches(spec: PartSpec, element: str) -> bool:
+    return bool(matching(spec.pattern.upper(), element.upper()))
 
 
 def _suggest(name: str, elements: Sequence[str]) -> str:
@@ -144,9 +152,7 @@ def _suggest(name: str, elements: Sequence[str]) -> str:
     return "name an element as the deck does: R1, or X2.R4 for R4 inside subcircuit instance X2"
 
 
-def _check_kind(element: str, kind: str, spec: PartSpec) -> None:
-    if (kind == RESISTOR) == (spec.model is not None):
-        return
+def _refuse_kind(element: str, kind: str, spec: PartSpec) -> None:
     via = f' (matched by "{spec.pattern}")' if spec.is_glob else ""
     if kind == RESISTOR and spec.model is None:
         raise AnnotationError(

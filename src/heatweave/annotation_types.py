@@ -164,3 +164,4 @@ class BoundPart:
     element: str  # instance path in the deck's spelling, e.g. "X2.R4"
     kind: str  # first letter, upper case
     spec: PartSpec
+    position: int = -1  # its place in the catalog's element_paths(), -1 when not known

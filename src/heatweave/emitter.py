@@ -24,16 +24,15 @@ comment; the output is deterministic, so diffs of emitted decks stay small.
 
 from __future__ import annotations
 
-import functools
 import hashlib
-import re
+import itertools
 from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
 from heatweave import __version__
 from heatweave.annotations import Annotation, BoundPart
 from heatweave.bulk import paused_gc
-from heatweave.deck import Block, Card, Deck, Node
+from heatweave.deck import Block, Card, Deck, Node, SourceFile
 from heatweave.elements import positional_spans, rewrite_nodes
 from heatweave.emitforms import added_nodes, preamble, resistor_cards, shared_nodes
 from heatweave.errors import EmitError, Finding
@@ -114,7 +113,10 @@ class _Rewriter:
         # instance path prefix (lower) -> definition it needs a specialised copy of
         self.copies: dict[str, Block] = {}
         self.stencils = Stencils()
+        self.top_cards: list[tuple[Card, PartPlan]] = []  # parts that are top-level cards
         root = index.project.deck.source
+        top: dict[int, PartPlan] = {}
+        self.part_at[""] = top
         for part in circuit.parts:
             found = part.resolved or index.resolve(part.path)
             if found is None:
@@ -127,6 +129,10 @@ class _Rewriter:
                     hint="heatweave leaves included files untouched: move the card into the "
                     "deck, or into a subcircuit definition (those are specialised in the deck)",
                 )
+            if not found.instances:  # a top-level card: the common case
+                self.top_cards.append((found.card, part))
+                top[id(found.card)] = part
+                continue
             prefix = ""
             for instance, definition in zip(found.instances, found.definitions, strict=True):
                 spelled = f"{prefix}.{instance.head}" if prefix else instance.head
@@ -138,23 +144,40 @@ class _Rewriter:
 
     # -- bodies -------------------------------------------------------------------------
 
+    def edits(self, source: SourceFile) -> list[tuple[int, int, str]] | None:
+        """The parts' new cards as (start, end, text) spans of *source*, the deck's text as
+        read, in file order; ``None`` unless every part is a top-level card of that text
+        and no subcircuit needs a copy.  Splicing those into the text rewrites a deck
+        without visiting the cards it leaves alone."""
+        if self.copies or self.instance_at:
+            return None
+        if any(card.source is not source or card.offset < 0 for card, _p in self.top_cards):
+            return None
+        out = []
+        for card, part in sorted(self.top_cards, key=lambda item: item[0].offset):
+            lead, offset, text = card.lead, card.offset, card.text
+            new = lead + card.commented(MARK) + self.part_text(card, part)
+            out.append((offset - len(lead), offset + len(text), new))
+        return out
+
     def body(self, nodes: Iterable[Node], prefix: str, top: bool) -> list[Node]:
         out: list[Node] = []
         context = prefix.lower()
         part_at = self.part_at.get(context, {})
         instance_at = self.instance_at.get(context, {})
+        append = out.append
         for node in nodes:
             if type(node) is Card:
-                part = part_at.get(id(node))
+                key = id(node)
+                part = part_at.get(key)
                 if part is not None:
-                    out.append(self.replace_part(node, part))
-                    continue
-                path = instance_at.get(id(node))
-                if path is not None:
+                    append(self.replace_part(node, part))
+                elif instance_at and key in instance_at:
+                    path = instance_at[key]
                     _nodes, sub, _params = x_card_parts(node)
-                    out.append(self.retarget(node, sub, copy_name(sub, path)))
+                    append(self.retarget(node, sub, copy_name(sub, path)))
                 else:
-                    out.append(node)
+                    append(node)
             elif isinstance(node, Block) and node.kind == "subckt":
                 out.append(node)
                 out.extend(self.copies_of(node, prefix, top))
@@ -210,6 +233,11 @@ class _Rewriter:
         return Card(text, lead)
 
     def replace_part(self, card: Card, part: PartPlan) -> Card:
+        """The card that replaces *card*: the part's cards, the original commented above."""
+        return Card(self.part_text(card, part), card.lead + card.commented(MARK))
+
+    def part_text(self, card: Card, part: PartPlan) -> str:
+        """The lines that replace *part*'s *card*; records the names they add."""
         name = safe(part.path)
         if part.is_resistor:
             nodes = part.terminals
@@ -219,16 +247,14 @@ class _Rewriter:
             # cards differ only in names and nodes (see heatweave.stencil).
             key = (id(part.model), id(part.network), part.to, part.to_label, part.model_name)
             text, added, thermal = self.stencils.get(
-                key,
-                functools.partial(self._resistor_part, part),
-                (part.path, name, nodes[0], nodes[1], part.node),
+                key, self._resistor_part, part, (part.path, name, nodes[0], nodes[1], part.node)
             )
         else:
             lines = self.heat_only_cards(card, part, name)
             text, added, thermal = self._with_network(lines, part, part.path, name, part.node)
         self.added.extend(added)
         self.thermal.extend(thermal)
-        return Card(text, card.lead + card.commented(MARK))
+        return text
 
     def _resistor_part(
         self, part: PartPlan, path: str, name: str, a: str, b: str, hot: str
@@ -358,6 +384,7 @@ def emit_deck(
     *,
     form: str = "reference",
     heating: bool = True,
+    written: str | None = None,
 ) -> Emitted:
     """Rewrite *project*'s top deck for *circuit*; *head* is the header comment block.
 
@@ -366,26 +393,83 @@ def emit_deck(
     gives the same equations through XSPICE code models at a fraction of the cost.
 
     With ``heating=False`` no part injects its dissipation: every part stays at ambient,
-    which is the baseline that drift limits are measured against.
+    which is the baseline that drift limits are measured against.  *written* is
+    ``project.deck.write()`` when the caller has it.
     """
     deck: Deck = project.deck
     if not circuit.parts:
         # Nothing heats: the deck is written back unchanged, byte for byte.
-        return Emitted(deck.write(), (), (), circuit)
+        return Emitted(deck.write() if written is None else written, (), (), circuit)
     rewriter = _Rewriter(index, circuit, form, heating)
-    with paused_gc():
-        body = rewriter.body(deck.body, "", top=True)
-    body.extend(rewriter.unplaced())
-    thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
-    section = Card(thermal_section(circuit, thermal, bool(rewriter.copies), form))
-    body = _insert_before_end(body, section)
     title = deck.title or "heatweave electrothermal deck\n"
     if not title.endswith("\n"):
         title += "\n"
-    out = replace(deck, title=title + head, body=tuple(body))
-    text = out.write()
+    edits = None
+    end_at = _end_at(deck)
+    if deck.source is not None and end_at is not None:
+        if written is None:
+            written = deck.write()
+        if written == deck.source.text:  # the deck as read (a sweep may have edited it)
+            with paused_gc():
+                edits = rewriter.edits(deck.source)
+    body: list[Node] = []
+    if edits is None:
+        with paused_gc():
+            body = rewriter.body(deck.body, "", top=True)
+        body.extend(rewriter.unplaced())
+    thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
+    section = Card(thermal_section(circuit, thermal, bool(rewriter.copies), form))
+    if edits is not None:
+        assert written is not None and end_at is not None
+        text = title + head + _spliced(deck, written, edits, section, end_at)
+    else:
+        body = _insert_before_end(body, section)
+        text = replace(deck, title=title + head, body=tuple(body)).write()
     check_names(index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)])
     return Emitted(text, tuple(rewriter.added), tuple(rewriter.findings), circuit)
+
+
+def _end_at(deck: Deck) -> int | None:
+    """Where the thermal section goes in the deck's text as read: before the last
+    top-level ``.end`` card's trivia, else at the end of the body; ``None`` when that card
+    does not come from the file as read."""
+    for node in reversed(deck.body):
+        if isinstance(node, Card) and node.name == ".end":
+            if node.source is not deck.source or node.offset < 0:
+                return None
+            return node.offset - len(node.lead)
+    return -1
+
+
+def _spliced(
+    deck: Deck, text: str, edits: list[tuple[int, int, str]], section: Card, end_at: int
+) -> str:
+    """The deck's body and trailer, *text* being the deck as read: the edits spliced in,
+    and the thermal section at *end_at* (``-1``: after the body), placed as
+    :func:`_insert_before_end` places it in a tree."""
+    start = len(deck.title or "")
+    end = len(text) - len(deck.trailer)
+    at = end_at
+    section_text = section.text
+    if at < 0:
+        at = end
+        last = edits[-1][1] if edits else -1
+        if start < end and last != end and text[end - 1 : end] != "\n":
+            section_text = "\n" + section_text  # the file ended without a newline
+    pieces = []
+    pos = start
+    placed = False
+    for begin, finish, new in edits:
+        if not placed and at <= begin:
+            pieces += [text[pos:at], section_text]
+            pos, placed = at, True
+        pieces += [text[pos:begin], new]
+        pos = finish
+    if not placed:
+        pieces += [text[pos:at], section_text]
+        pos = at
+    pieces.append(text[pos:])
+    return "".join(pieces)
 
 
 def _insert_before_end(body: list[Node], section: Card) -> list[Node]:
@@ -406,10 +490,12 @@ def check_names(index: DeckIndex, added: list[str]) -> None:
     Only cards whose text holds the reserved prefix can collide, so the files are searched
     for it first; the field-level check runs on those cards alone.
     """
-    wanted = {name.lower() for name in added}
+    wanted: set[str] | None = None
     for card in _all_cards(index):
         if PREFIX not in card.text.lower():
             continue
+        if wanted is None:
+            wanted = {name.lower() for name in added}
         for field_text in card.fields():
             low = field_text.lower()
             if PREFIX in low and (low in wanted or low[1:] in wanted):
@@ -423,11 +509,15 @@ def check_names(index: DeckIndex, added: list[str]) -> None:
 def _all_cards(index: DeckIndex) -> Iterable[Card]:
     decks = [index.project.deck, *(inc.deck for inc in index.project.includes)]
     for deck in decks:
-        if deck.source is None or _PREFIX_RE.search(deck.source.text):
+        if deck.source is None or any(v in deck.source.text for v in _PREFIX_SPELLINGS):
             yield from deck.cards()
 
 
-_PREFIX_RE = re.compile(re.escape(PREFIX), re.IGNORECASE)
+# The prefix in every mix of case: a few plain substring searches of a large file are an
+# order of magnitude faster than one case-folding regex.
+_PREFIX_SPELLINGS = tuple(
+    "".join(chars) for chars in itertools.product(*({c.lower(), c.upper()} for c in PREFIX))
+)
 
 
 @dataclass(frozen=True, slots=True)
@@ -482,7 +572,9 @@ def emit_inputs(
     head = header(
         _basename(inputs.deck_path), deck_text, _basename(inputs.annotation_path), chosen.text
     )
-    emitted = emit_deck(inputs.project, inputs.index, circuit, head, form=form, heating=heating)
+    emitted = emit_deck(
+        inputs.project, inputs.index, circuit, head, form=form, heating=heating, written=deck_text
+    )
     return replace(emitted, findings=findings + emitted.findings)
 
 

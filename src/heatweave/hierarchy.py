@@ -9,15 +9,18 @@ subcircuit definitions (with their nesting scopes) and instances, so that a path
 
 from __future__ import annotations
 
+import operator
 import os
 import re
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TypeVar
 
 from heatweave.bulk import paused_gc
 from heatweave.deck import _HEAD, Block, Card, Deck, Node, strip_inline_comment
 from heatweave.errors import DeckStructureError, Location
+from heatweave.globmatch import line_numbers
 from heatweave.reader import read_file
 
 
@@ -169,6 +172,38 @@ def x_card_parts(card: Card) -> tuple[list[str], str, list[str]]:
     return positional[:-1], positional[-1], fields[stop:]
 
 
+_T = TypeVar("_T")
+_TEXT = operator.attrgetter("text")
+# Card.head's pattern after a NUL: all cards' texts joined by NULs, one scan finds them all.
+_HEADS = re.compile(r"\x00[ \t]*([^ \t\r\n,=()\x00]*)")
+
+
+def _first_fields(cards: list[Card]) -> list[str]:
+    """Each card's first field as :attr:`Card.head` reads it (inline comments aside)."""
+    texts = list(map(_TEXT, cards))
+    heads: list[str] = _HEADS.findall("\x00" + "\x00".join(texts))
+    if len(heads) != len(cards):  # a NUL inside a card: one more match; read one by one
+        heads = [_HEAD.match(text).group(1) for text in texts]  # type: ignore[union-attr]
+    return heads
+
+
+def _without(items: list[_T], positions: list[int]) -> list[_T]:
+    """*items* less those at *positions* (ascending, few), by slices."""
+    if not positions:
+        return items
+    out: list[_T] = []
+    start = 0
+    for k in positions:
+        out.extend(items[start:k])
+        start = k + 1
+    out.extend(items[start:])
+    return out
+
+# Names that may not start with a letter (checked one by one with str.isalpha), and X cards.
+_NOT_LETTER = re.compile(r"\n(?:[^A-Za-z\n]|(?=\n)|\Z)")
+_X_CARD = re.compile(r"^[xX]", re.MULTILINE)
+
+
 @dataclass(frozen=True, slots=True)
 class Scope:
     """The cards visible in one body: the top level or one subcircuit definition."""
@@ -179,8 +214,16 @@ class Scope:
     heads: tuple[str, ...]  # each card's name as written
     subckts: dict[str, Block] = field(default_factory=dict)
     scopes: dict[str, Scope] = field(default_factory=dict)
-    by_name: dict[str, Card] = field(default_factory=dict)
     instances: bool = False  # True when the body holds an ``X`` card
+    _by_name: dict[str, Card] = field(default_factory=dict, repr=False)
+
+    def card(self, name: str) -> Card | None:
+        """The card named *name* (lower case); the first one of that name wins.  The table
+        is built on first use: binding a glob needs the names, not the table."""
+        if not self._by_name and self.cards:
+            lows = "\n".join(reversed(self.heads)).lower().split("\n")
+            self._by_name.update(zip(lows, reversed(self.cards), strict=True))
+        return self._by_name.get(name)
 
 
 @dataclass(frozen=True, slots=True)
@@ -231,35 +274,26 @@ class DeckIndex:
         return out
 
     def _scope(self, name: str, parent: Scope | None, nodes: list[Node]) -> Scope:
-        # The hot loop of indexing a million-card deck: Card.head inlined (one regex match
-        # a card), element names lower-cased in one pass, the table built in one call.
-        match = _HEAD.match
-        cards: list[Card] = []
-        heads: list[str] = []
-        blocks: list[Block] = []
-        instances = False
-        for node in nodes:
-            if type(node) is Card:
-                head = match(node.text).group(1)  # type: ignore[union-attr]  # always matches
-                if ";" in head or "//" in head:
-                    head = strip_inline_comment(head)
-                first = head[:1]
-                if first.isalpha():
-                    cards.append(node)
-                    heads.append(head)
-                    if first in "xX":
-                        instances = True
-                elif head.lower() == ".model":
-                    fields = node.fields()
-                    if len(fields) > 1:
-                        self._models.setdefault(fields[1].lower(), node)
-            elif isinstance(node, Block) and node.kind == "subckt":
-                blocks.append(node)
-        # Reversed, so that the first definition of a name wins.
-        by_name = dict(zip([h.lower() for h in reversed(heads)], reversed(cards), strict=True))
-        scope = Scope(
-            name, parent, tuple(cards), tuple(heads), by_name=by_name, instances=instances
-        )
+        # The hot path of indexing a million-card deck, in C-level passes: every card's
+        # first field at once, then a regex over those names joined one to a line for the
+        # few that are not element names (dot cards) and for X cards.
+        every = [node for node in nodes if type(node) is Card]
+        blocks = [node for node in nodes if type(node) is Block and node.kind == "subckt"]
+        heads = _first_fields(every)
+        joined = "\n".join(heads)
+        if ";" in joined or "//" in joined:
+            heads = [strip_inline_comment(h) if ";" in h or "//" in h else h for h in heads]
+            joined = "\n".join(heads)
+        odd = line_numbers(_NOT_LETTER, "\n" + joined) if heads else []
+        others = [k for k in odd if not heads[k][:1].isalpha()]
+        for k in others:
+            if heads[k].lower() == ".model":
+                fields = every[k].fields()
+                if len(fields) > 1:
+                    self._models.setdefault(fields[1].lower(), every[k])
+        cards, names = _without(every, others), _without(heads, others)
+        instances = _X_CARD.search(joined) is not None  # dot cards never start with x
+        scope = Scope(name, parent, tuple(cards), tuple(names), instances=instances)
         for block in blocks:
             key = block.label.lower()
             scope.subckts.setdefault(key, block)
@@ -297,10 +331,18 @@ class DeckIndex:
         """The type letter of the element at *path* (upper case)."""
         return path.rsplit(".", 1)[-1][:1].upper()
 
+    def element_at(self, position: int, path: str) -> Resolved | None:
+        """The element at *path*, which stands at *position* in :meth:`element_paths` (a
+        bound part knows its position: in a flat deck that is its card, no lookup)."""
+        top = self.top
+        if not top.instances and 0 <= position < len(top.heads) and top.heads[position] == path:
+            return Resolved(path, top.cards[position], (), ())
+        return self.resolve(path)
+
     def resolve(self, path: str) -> Resolved | None:
         """The element at an instance path such as ``X1.X3.R2`` (case-insensitive)."""
         if "." not in path:  # a top-level element: the common case, and the fast one
-            top_card = self.top.by_name.get(path.lower())
+            top_card = self.top.card(path.lower())
             return None if top_card is None else Resolved(path, top_card, (), ())
         parts = path.split(".")
         scope = self.top
@@ -308,7 +350,7 @@ class DeckIndex:
         definitions: list[Block] = []
         for depth, part in enumerate(parts):
             key = part.lower()
-            card = scope.by_name.get(key)
+            card = scope.card(key)
             if card is None:
                 return None
             if depth == len(parts) - 1:

@@ -22,19 +22,21 @@ _SEP = "\x0b"  # between the text and the names inside one stencil string
 _UNCHECKED = object()
 
 
-def _pack(made: Made) -> tuple[str, int] | None:
+def _pack(made: Made, count: int) -> tuple[str, int] | None:
+    """The made text and names as one format string, the placeholders as its fields."""
     text, first, second = made
     pieces = [text, *first, *second]
     if any(_SEP in piece for piece in pieces):
         return None
-    return _SEP.join(pieces), len(first)
+    packed = _SEP.join(pieces).replace("{", "{{").replace("}", "}}")
+    for k, slot in enumerate(_SLOTS[:count]):
+        packed = packed.replace(slot, "{%d}" % k)  # noqa: UP031 - a format field being made
+    return packed, len(first)
 
 
 def _fill(stencil: tuple[str, int], values: tuple[str, ...]) -> Made:
     packed, count = stencil
-    for slot, value in zip(_SLOTS, values, strict=False):
-        packed = packed.replace(slot, value)
-    pieces = packed.split(_SEP)
+    pieces = packed.format(*values).split(_SEP)
     return pieces[0], tuple(pieces[1 : 1 + count]), tuple(pieces[1 + count :])
 
 
@@ -44,17 +46,18 @@ class Stencils:
     def __init__(self) -> None:
         self._made: dict[Hashable, tuple[str, int] | object | None] = {}
 
-    def get(self, key: Hashable, make: Maker, values: tuple[str, ...]) -> Made:
-        """What *make(*values)* returns, for *values* the part's names and nodes (at most
-        eight): filled in from the stencil of *key* where its check passed."""
+    def get(self, key: Hashable, make: Maker, payload: object, values: tuple[str, ...]) -> Made:
+        """What ``make(payload, *values)`` returns, for *values* the part's names and nodes
+        (at most eight): filled in from the stencil of *key* where its check passed.  The
+        key must stand for everything of *payload* that *make* reads."""
         if len(values) > len(_SLOTS) or not "".join(values).isprintable():
-            return make(*values)
+            return make(payload, *values)
         stencil = self._made.get(key, _UNCHECKED)
         if stencil is None:
-            return make(*values)
+            return make(payload, *values)
         if stencil is _UNCHECKED:
-            direct = make(*values)
-            packed = _pack(make(*_SLOTS[: len(values)]))
+            direct = make(payload, *values)
+            packed = _pack(make(payload, *_SLOTS[: len(values)]), len(values))
             ok = packed is not None and _fill(packed, values) == direct
             self._made[key] = packed if ok else None
             return direct

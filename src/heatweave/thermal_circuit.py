@@ -31,7 +31,10 @@ _UNSAFE = re.compile(r"[^a-z0-9_]")
 
 def safe(text: str) -> str:
     """A path or node name as a lower-case fragment usable inside SPICE names."""
-    return _UNSAFE.sub("_", text.lower().replace(".", "_"))
+    low = text.lower().replace(".", "_")
+    if low.isascii() and low.isidentifier():  # letters, digits, "_": nothing to replace
+        return low
+    return _UNSAFE.sub("_", low)
 
 
 def hot_node(path: str) -> str:
@@ -134,7 +137,6 @@ def build_circuit(
     """The thermal circuit of a bound annotation, with each resistor's model built from
     the deck's nominal value; also the warnings about card parameters set aside."""
     from heatweave.elements import card_nodes, resistor_value, simple_resistor, top_params
-    from heatweave.lint import syntax_of
 
     findings: list[Finding] = list(annotation.warnings)
     params = top_params(index)
@@ -143,26 +145,30 @@ def build_circuit(
         return AMBIENT_NODE if label == AMBIENT else shared_node(label)
 
     parts: list[PartPlan] = []
-    networks: dict[int, NetworkForm] = {}
+    # What all parts of one table share: its (immutable) network and the cold end's node.
+    shared: dict[int, tuple[NetworkForm, str]] = {}
     models: dict[tuple[int, float], TempModel | None] = {}
     with paused_gc():  # a glob may annotate a hundred thousand parts
         for item in bound:
             spec = item.spec
-            network = networks.get(id(spec))
-            if network is None:
+            common = shared.get(id(spec))
+            if common is None:
                 try:
                     network = from_annotation(spec.network.kind, _network_data(spec.network))
                 except NetworkError as err:
                     raise err.at(spec.location) from None
-                networks[id(spec)] = network  # a glob's parts share one (immutable) network
+                common = shared[id(spec)] = (network, node_of(spec.to))
+            network, to_node = common
             model = None
             nominal = None
-            found = index.resolve(item.element)
+            found = index.element_at(item.position, item.element)
             if found is None:
                 raise AnnotationError(f"{item.element} is not in the deck", spec.location)
             card = found.card
             simple = simple_resistor(card) if item.kind == "R" else None
             if simple is None:
+                from heatweave.lint import syntax_of  # the grammar: only for other cards
+
                 syntax_of(card)  # a malformed card is reported where it stands
                 terminals = tuple(card_nodes(card, index))
             else:
@@ -181,7 +187,7 @@ def build_circuit(
                     model = models[key] = spec.temp_model(nominal)
             parts.append(
                 PartPlan(
-                    item.element, spec.model, model, network, node_of(spec.to), spec.to,
+                    item.element, spec.model, model, network, to_node, spec.to,
                     spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
                     terminals, found,
                 )
