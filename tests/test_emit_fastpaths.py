@@ -1,21 +1,27 @@
-"""Stencils: filling in a part's cards gives byte for byte what making them gives.
+"""The emitter's paths for large decks give byte for byte what its plain paths give.
 
-The emitter makes one part's text once per (model, network, cold node) and fills in the
-names for every other part of that kind (:mod:`heatweave.stencil`).  The reference here is
-the emitter itself with the stencils switched off: every form, every temperature model and
-network form, ground and mixed-case nodes, instance paths, and parts that share a model
-(equal values) or do not.
+* Stencils: one part's text is made once per (model, network, cold node) and filled in
+  for every other part of that kind (:mod:`heatweave.stencil`).
+* Splicing: when every part is a top-level card of the deck as read, the new cards are
+  spliced into the file's text at their offsets instead of rewriting the tree.
+
+The reference for each is the emitter with that path switched off: every form, every
+temperature model and network form, ground and mixed-case nodes, instance paths, parts
+that share a model or do not, and the reader's corpus of awkward decks (no final newline,
+cards after ``.end``, CRLF, comments between continuation lines, includes).
 """
 
 from __future__ import annotations
 
+import shutil
 from pathlib import Path
 
 import pytest
 
 from heatweave import stencil
 from heatweave.emitforms import FORMS
-from heatweave.emitter import emit_files
+from heatweave.emitter import _Rewriter, emit_files
+from heatweave.errors import HeatweaveError
 
 DECK = """\
 stencil test deck
@@ -115,3 +121,55 @@ def test_fill_in_and_fall_back() -> None:
     # Names that are not printable text (a placeholder could hide in them) are made directly.
     made = stencils.get("k", _concatenating, "1", ("\x02", "x"))
     assert made == ("R\x02 x 0 1\n", ("n_\x02",), ())
+
+
+CORPUS = Path(__file__).parent / "decks"
+EVERY_RESISTOR = (
+    'schema = 1\n[part."R*"]\nmodel = "linear"\ntc1_ppm = 100\nrth = 50.0\ncth = 0.01\n'
+)
+
+
+def _emit_or_error(deck: Path, annotation: Path) -> str:
+    try:
+        return emit_files(str(deck), str(annotation), form="reference").text
+    except HeatweaveError as err:
+        return f"error: {err}"
+
+
+@pytest.mark.parametrize(
+    "name", sorted(p.name for p in CORPUS.iterdir() if p.suffix in (".cir", ".sp"))
+)
+def test_spliced_equals_rewritten(
+    tmp_path: Path, name: str, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    shutil.copytree(CORPUS, tmp_path / "decks")
+    deck = tmp_path / "decks" / name
+    annotation = tmp_path / "every.thermal.toml"
+    annotation.write_text(EVERY_RESISTOR)
+    spliced = _emit_or_error(deck, annotation)
+    monkeypatch.setattr(_Rewriter, "edits", lambda self, source: None)
+    assert spliced == _emit_or_error(deck, annotation)
+
+
+@pytest.mark.parametrize(
+    "text",
+    [
+        "t\nRA1 a 0 1k\nRA2 a b 2k",  # the last card is a part, no final newline
+        "t\nV1 a 0 1\nRA1 a 0 1k\n* last words",  # trailing comment, no .end
+        "t\nRA1 a 0 1k\nC1 a 0 1n",  # no final newline after an untouched card
+        "t\r\nRA1 a 0 1k\r\n.end\r\nRA2 a 0 1k\r\n",  # CRLF, a part after .end
+        "t\nRA1 a 0 1k\n.END\n* after\n.end\n",  # two .end cards: the last one counts
+        "t\n* lead\n\nRA1 a\n* between\n+ 0 1k\n.op\n.end\n",  # continued card
+    ],
+)
+def test_spliced_equals_rewritten_at_the_edges(
+    tmp_path: Path, text: str, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    deck = tmp_path / "edge.cir"
+    deck.write_bytes(text.encode())
+    annotation = tmp_path / "edge.thermal.toml"
+    annotation.write_text(EVERY_RESISTOR)
+    spliced = _emit_or_error(deck, annotation)
+    monkeypatch.setattr(_Rewriter, "edits", lambda self, source: None)
+    assert spliced == _emit_or_error(deck, annotation)
+    assert not spliced.startswith("error")
