@@ -238,7 +238,7 @@ class _Rewriter:
 
     def part_text(self, card: Card, part: PartPlan) -> str:
         """The lines that replace *part*'s *card*; records the names they add."""
-        name = safe(part.path)
+        name = part.name
         if part.is_resistor:
             nodes = part.terminals
             if len(nodes) != 2:

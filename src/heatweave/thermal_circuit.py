@@ -64,10 +64,13 @@ class PartPlan:
     nominal_resistance: float | None = None  # the deck's value (ohm), holding at tref
     terminals: tuple[str, ...] = ()  # the element's nodes as written on its card
     resolved: Resolved | None = field(default=None, compare=False, repr=False)
+    name: str = field(init=False, compare=False)  # the path as a fragment of SPICE names
     node: str = field(init=False, compare=False)  # the part's hot-spot node
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "node", hot_node(self.path))
+        name = safe(self.path)
+        object.__setattr__(self, "name", name)
+        object.__setattr__(self, "node", f"{PREFIX}t_{name}")  # hot_node(path)
 
     @property
     def is_resistor(self) -> bool:
