@@ -69,6 +69,24 @@ CASES = load_cases()
 CHEAP = [form for form in FORMS if form != "reference"]
 
 
+def _linear(case_id: str, tc1: float, ohms: float, volts: float, series: float, rth: float,
+            ambient: float) -> Case:  # fmt: skip
+    model = get("linear").from_params({"tc1": tc1}, ohms)
+    return Case(case_id, model, volts, series, rth, 0.01, ambient, 2.0)
+
+
+# Linear models whose R(T) moves far from R0, for the switch form's split of R(T) into a
+# fixed Rc (R0/8 or -R0) and a switch of R(T) - Rc (invented circuits; coefficients named).
+STEEP = [
+    # nickel's TCR, about 0.006 /K (from memory): R(T) grows by more than half
+    _linear("linear-steep-positive", 0.006, 50.0, 20.0, 20.0, 60.0, 25.0),
+    # a strongly negative linear TCR, -3000 ppm/K (invented): R(T) falls to 6 % of R0
+    _linear("linear-steep-negative", -0.003, 50.0, 30.0, 20.0, 60.0, 25.0),
+    # copper-like 0.0039 /K (common practice) at a -55 degC ambient, 80 K below tref
+    _linear("linear-cold-ambient", 0.0039, 10.0, 2.0, 10.0, 20.0, -55.0),
+]
+
+
 def deck(case: Case, form: str, analysis: str, heating: bool = True) -> str:
     """The case's circuit with its resistor in *form*."""
     lines = [
@@ -115,7 +133,7 @@ def test_every_registered_model_has_a_case() -> None:
 @pytest.mark.ngspice
 @pytest.mark.parametrize("form", CHEAP)
 @pytest.mark.parametrize("heating", [True, False])
-@pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
+@pytest.mark.parametrize("case", CASES + STEEP, ids=lambda c: c.id)
 def test_operating_point_matches_reference_form(case: Case, form: str, heating: bool) -> None:
     ours = simulate(deck(case, form, ".op", heating))
     ref = simulate(deck(case, "reference", ".op", heating))
@@ -132,7 +150,7 @@ def test_operating_point_matches_reference_form(case: Case, form: str, heating: 
 
 @pytest.mark.ngspice
 @pytest.mark.parametrize("form", CHEAP)
-@pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
+@pytest.mark.parametrize("case", CASES + STEEP, ids=lambda c: c.id)
 def test_cold_start_transient_matches_reference_form(case: Case, form: str) -> None:
     step = case.tstop / 200
     analysis = f".tran {step!r} {case.tstop!r} 0 {step!r}"
@@ -154,7 +172,7 @@ def test_cold_start_transient_matches_reference_form(case: Case, form: str) -> N
 
 @pytest.mark.ngspice
 @pytest.mark.parametrize("form", list(FORMS))
-@pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
+@pytest.mark.parametrize("case", CASES + STEEP, ids=lambda c: c.id)
 def test_steady_state_matches_brentq_power_balance(case: Case, form: str) -> None:
     expected = steady_temperature(case)
     out = simulate(deck(case, form, ".op"))
@@ -219,8 +237,38 @@ def test_divider_form_falls_back_outside_linear_models(
 def test_parts_with_equal_parameters_share_one_model_card() -> None:
     same = [get("linear").from_params({"tc1": 0.004}, 10.0) for _ in range(3)]
     other = get("linear").from_params({"tc1": 0.004}, 12.0)
-    assert len(preamble("switch", same)) == 2  # the switch and the product
-    assert len(preamble("switch", [*same, other])) == 3
+    # The switch of R(T) (no heating), the switch of R(T) - R0/8 and the product V*V'/(R0/8).
+    assert len(preamble("switch", same)) == 3
+    assert len(preamble("switch", [*same, other])) == 6
+    exponential = [get("exponential").from_params({"tce": 0.3}, 10.0) for _ in range(2)]
+    assert len(preamble("switch", exponential)) == 2  # the log switch and the product V*I
+
+
+@pytest.mark.parametrize(("model_name", "params", "heating", "sense"), [
+    ("linear", {"tc1": 0.004}, True, "10.0"),  # R0/8: the switch's zero on the cold side
+    ("linear", {"tc1": -0.0005}, True, "-80.0"),  # -R0: the cold side when R falls with T
+    ("linear", {"tc1": 0.004}, False, None),
+    ("exponential", {"tce": 0.3}, True, "branch"),
+    ("exponential", {"tce": 0.3}, False, None),
+    ("quadratic", {"tc1": 3.9083e-3, "tc2": -5.775e-7}, True, "branch"),
+    ("ntc-beta", {"beta": 3435.0}, True, "branch"),
+])  # fmt: skip
+def test_switch_form_reads_the_current_where_the_docstring_says(
+    model_name: str, params: dict[str, float], heating: bool, sense: str | None
+) -> None:
+    model = get(model_name).from_params(params, 80.0)
+    cards = resistor_cards("switch", "r7", "n1", "n2", "hw_t_r7", model, heating)
+    product = [card for card in cards if card.startswith("Ahw_p_r7 ")]
+    if sense is None:
+        assert not product and "hw_x_r7" not in " ".join(cards)
+    elif sense != "branch":
+        # The fixed resistor from n1 to hw_x_r7, the switch on to n2.
+        assert f"Rhw_c_r7 n1 hw_x_r7 {sense}" in cards
+        assert product == ["Ahw_p_r7 [%vd(n1 n2) %vd(n1 hw_x_r7)] %id(0 hw_t_r7) hw_sq_" +
+                           product[0].rsplit("hw_sq_", 1)[1]]  # fmt: skip
+        assert not any(card.startswith("Rhw_c_") for card in preamble("switch", [model]))
+    else:
+        assert product[0].startswith("Ahw_p_r7 [%vd(n1 n2) %id(n1 hw_x_r7)] ")
 
 
 def test_unknown_form_names_the_known_ones() -> None:

@@ -10,10 +10,21 @@ ngspice evaluates those same equations:
 * ``switch``: the current through an XSPICE ``aswitch`` with ``log=FALSE``, whose
   resistance is linear in its control input and not limited outside the control range
   (ngspice manual 12.2.11), and the dissipation V * I from an XSPICE ``mult`` whose inputs
-  are V(a,b) and the element current (a ``%id`` current input, a 0 V sense).  A linear
-  model drives the switch from the hot node directly: r = R0 + R0 tc1 (T - tref) is the
-  switch's own line through two points; an exponential one (R0 exp(k dT), ngspice's
-  ``tce``) drives a ``log=TRUE`` switch, whose logarithm is linear in its control.
+  are V(a,b) and the element current.  A linear model drives the switch from the hot node
+  directly: r = R0 + R0 tc1 (T - tref) is the switch's own line through two points.  When
+  heating, a plain resistor Rc in series with a switch of R(T) - Rc (still a line in T)
+  carries the current, read as V(a,x)/Rc across the resistor: one node more per part
+  instead of a node and the branch of a 0 V sense, which ngspice's matrix factors and
+  solves measurably faster (benchmarks/bench_standalone.py).  The switch's resistance is
+  zero where R(T) = Rc, so Rc sits on the cold side, away from where self-heating goes:
+  R0/8 for tc1 > 0 (exact above tref - 7/(8 tc1), -199 degC for copper's 0.0039 /K), -R0
+  for tc1 < 0 (R(T) = -R0 lies beyond the model's own zero R(T) = 0, where the reference
+  cards fail as well).  Rc = R0/8 rather than -R0 where it can: the switch then sees less
+  than V(a,b), and XSPICE limits each code-model input's change per Newton iteration to
+  the larger of 0.1 and a quarter of its value (ngspice's convabsstep and convstep), so
+  larger inputs cost iterations near the zero crossings of an AC voltage.  An exponential
+  model (R0 exp(k dT), ngspice's ``tce``) drives a ``log=TRUE`` switch, whose logarithm is
+  linear in its control, and reads the current with a ``%id`` current input (a 0 V sense).
   A quadratic model drives a unit switch
   (r = control) from a ``POLY(1)`` source of T - tref (compiled, an XSPICE model in ngspice)
   into a 1 ohm resistor; any other model drives it from a behavioural voltage source
@@ -25,13 +36,14 @@ ngspice evaluates those same equations:
   reference cards.
 
 Names: elements ``Ahw_r_<name>``, ``Ahw_p_<name>``, ``Ahw_q_<name>``, ``Bhw_v_<name>``,
-``Rhw_c_<name>`` (never ``Rhw_<name>``, which a network's ``Rhw_<part>_1`` could equal);
+``Rhw_c_<name>`` (the constant resistance, or the fixed Rc; never ``Rhw_<name>``,
+which a network's ``Rhw_<part>_1`` could equal);
 ``Ghw_v_<name>``, ``Rhw_g_<name>``, the shared ``Vhw_tref_<digest>``; nodes ``hw_x_<name>``
-(between the switch and its current sense), ``hw_r_<name>`` (the resistance as a voltage),
-``hw_q_<name>`` (V^2 in the divider form), ``hw_tref_<digest>``; ``.model`` names
-``hw_<kind>_<digest>``, a digest of the parameters, so parts with equal parameters share
-one card.  Every deck with an XSPICE device runs its transient with ``trtol = 1`` (ngspice
-sets that itself whatever the deck says, manual 15.1.4).
+(between the switch and its current sense or the fixed Rc), ``hw_r_<name>`` (the
+resistance as a voltage), ``hw_q_<name>`` (V^2 in the divider form), ``hw_tref_<digest>``;
+``.model`` names ``hw_<kind>_<digest>``, a digest of the parameters, so parts with equal
+parameters share one card.  Every deck with an XSPICE device runs its transient with
+``trtol = 1`` (ngspice sets that itself whatever the deck says, manual 15.1.4).
 """
 
 from __future__ import annotations
@@ -89,6 +101,30 @@ def _direct(model: TempModel) -> tuple[float, float, float, bool] | None:
     if isinstance(model, Exponential):
         return model.r0, model.tref, model.tce * math.log(1.01), True
     return None
+
+
+# The fixed resistor in series with a linear model's switch, in units of R0 (heating only),
+# for tc1 > 0 and tc1 < 0: powers of two, so that R0 * share and R0 * (1 - share) are exact.
+SHARE_RISING, SHARE_FALLING = 0.125, -1.0
+
+
+def _product_name(resistance: float) -> str:
+    """The ``mult`` model V * V' / *resistance* (two inputs, unit gains)."""
+    return f"{PREFIX}sq_{_digest(resistance)}"
+
+
+def _product_card(resistance: float) -> str:
+    gain = _num(1.0 / resistance)
+    return f".model {_product_name(resistance)} mult(in_gain=[1 1] out_gain={gain})"
+
+
+def _shared(model: TempModel) -> float | None:
+    """The fixed resistance R0 * SHARE when the switch form splits *model*'s R(T) into it
+    and a switch (linear, tc1 != 0), else None."""
+    line = _linear(model)
+    if line is None or line[2] == 0.0:
+        return None
+    return line[0] * (SHARE_RISING if line[2] > 0.0 else SHARE_FALLING)
 
 
 def _switch_card(name: str, r0: float, tref: float, rate: float, log: bool) -> str:
@@ -171,9 +207,19 @@ class Switch(CardForm):
         if constant is not None:
             lines = [f"R{PREFIX}c_{name} {a} {b} {_num(constant)}"]
             if heating:
-                square = f"{PREFIX}sq_{_digest(constant)}"
+                square = _product_name(constant)
                 lines.append(f"A{PREFIX}p_{name} [%vd({a} {b}) %vd({a} {b})] %id(0 {hot}) {square}")
             return lines
+        share = _shared(model) if heating else None
+        if share is not None:
+            # I = V(a,x)/Rc through Rc + (R(T) - Rc); the dissipation V(a,b) * I.
+            x, switch = f"{PREFIX}x_{name}", self._switch_name(self._rest(model))
+            product = _product_name(share)
+            return [
+                f"R{PREFIX}c_{name} {a} {x} {_num(share)}",
+                f"A{PREFIX}r_{name} %v({hot}) %gd({x} {b}) {switch}",
+                f"A{PREFIX}p_{name} [%vd({a} {b}) %vd({a} {x})] %id(0 {hot}) {product}",
+            ]
         direct = _direct(model)
         if direct is not None:
             control, switch = f"%v({hot})", self._switch_name(direct)
@@ -202,8 +248,17 @@ class Switch(CardForm):
     def models(self, model: TempModel) -> list[str]:
         constant = _constant(model)
         if constant is not None:
-            square = f"{PREFIX}sq_{_digest(constant)}"
-            return [f".model {square} mult(in_gain=[1 1] out_gain={_num(1.0 / constant)})"]
+            return [_product_card(constant)]
+        share = _shared(model)
+        if share is not None:
+            # Heating or not is the deck's choice, made after the models are listed: both.
+            rest, whole = self._rest(model), _direct(model)
+            assert whole is not None
+            return sorted({
+                _switch_card(self._switch_name(rest), *rest),
+                _switch_card(self._switch_name(whole), *whole),
+                _product_card(share),
+            })  # fmt: skip
         product = f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"
         direct = _direct(model)
         if direct is not None:
@@ -218,12 +273,22 @@ class Switch(CardForm):
     def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
         if _constant(model) is not None:
             return ()
+        if _shared(model) is not None:
+            return (f"{PREFIX}x_{name}",) if heating else ()
         added: tuple[str, ...] = ()
         if _direct(model) is None:
             added = (f"{PREFIX}r_{name}",)
             if isinstance(model, Polynomial):
                 added = (*added, _tref_node(model.tref))
         return (*added, f"{PREFIX}x_{name}") if heating else added
+
+    @staticmethod
+    def _rest(model: TempModel) -> tuple[float, float, float, bool]:
+        """The switch beside the fixed resistor: R(T) - Rc, the same slope."""
+        line, share = _linear(model), _shared(model)
+        assert line is not None and share is not None
+        r0, tref, tc1 = line
+        return r0 - share, tref, r0 * tc1, False
 
     @staticmethod
     def _switch_name(direct: tuple[float, float, float, bool]) -> str:
