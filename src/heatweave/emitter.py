@@ -25,7 +25,6 @@ comment; the output is deterministic, so diffs of emitted decks stay small.
 from __future__ import annotations
 
 import hashlib
-import itertools
 from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
@@ -509,15 +508,10 @@ def check_names(index: DeckIndex, added: list[str]) -> None:
 def _all_cards(index: DeckIndex) -> Iterable[Card]:
     decks = [index.project.deck, *(inc.deck for inc in index.project.includes)]
     for deck in decks:
-        if deck.source is None or any(v in deck.source.text for v in _PREFIX_SPELLINGS):
+        # Folding the file's case and one substring search is far quicker on a large file
+        # than a case-insensitive regex.
+        if deck.source is None or PREFIX in deck.source.text.lower():
             yield from deck.cards()
-
-
-# The prefix in every mix of case: a few plain substring searches of a large file are an
-# order of magnitude faster than one case-folding regex.
-_PREFIX_SPELLINGS = tuple(
-    "".join(chars) for chars in itertools.product(*({c.lower(), c.upper()} for c in PREFIX))
-)
 
 
 @dataclass(frozen=True, slots=True)
