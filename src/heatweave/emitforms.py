@@ -119,8 +119,8 @@ def _product_card(resistance: float) -> str:
 
 
 def _shared(model: TempModel) -> float | None:
-    """The fixed resistance R0 * SHARE when the switch form splits *model*'s R(T) into it
-    and a switch (linear, tc1 != 0), else None."""
+    """The fixed resistance Rc (R0 times SHARE_RISING or SHARE_FALLING, by the sign of tc1)
+    when the switch form splits *model*'s R(T) into it and a switch (linear, tc1 != 0)."""
     line = _linear(model)
     if line is None or line[2] == 0.0:
         return None
