@@ -199,9 +199,8 @@ def _without(items: list[_T], positions: list[int]) -> list[_T]:
     out.extend(items[start:])
     return out
 
-# Names that may not start with a letter (checked one by one with str.isalpha), and X cards.
+# Names that may not start with a letter (checked one by one with str.isalpha).
 _NOT_LETTER = re.compile(r"\n(?:[^A-Za-z\n]|(?=\n)|\Z)")
-_X_CARD = re.compile(r"^[xX]", re.MULTILINE)
 
 
 @dataclass(frozen=True, slots=True)
@@ -278,7 +277,9 @@ class DeckIndex:
         # first field at once, then a regex over those names joined one to a line for the
         # few that are not element names (dot cards) and for X cards.
         every = [node for node in nodes if type(node) is Card]
-        blocks = [node for node in nodes if type(node) is Block and node.kind == "subckt"]
+        blocks: list[Block] = []
+        if len(every) < len(nodes):  # blocks only where something is not a card
+            blocks = [node for node in nodes if type(node) is Block and node.kind == "subckt"]
         heads = _first_fields(every)
         joined = "\n".join(heads)
         if ";" in joined or "//" in joined:
@@ -292,7 +293,8 @@ class DeckIndex:
                 if len(fields) > 1:
                     self._models.setdefault(fields[1].lower(), every[k])
         cards, names = _without(every, others), _without(heads, others)
-        instances = _X_CARD.search(joined) is not None  # dot cards never start with x
+        # X cards (dot cards never start with x): a name at the start or after a line end.
+        instances = joined[:1] in ("x", "X") or "\nx" in joined or "\nX" in joined
         scope = Scope(name, parent, tuple(cards), tuple(names), instances=instances)
         for block in blocks:
             key = block.label.lower()
