@@ -116,6 +116,8 @@ class _Rewriter:
         root = index.project.deck.source
         top: dict[int, PartPlan] = {}
         self.part_at[""] = top
+        self.top_in_order = True  # top-level parts come in file order (bind gives deck order)
+        last = -1
         for part in circuit.parts:
             found = part.resolved or index.resolve(part.path)
             if found is None:
@@ -129,8 +131,12 @@ class _Rewriter:
                     "deck, or into a subcircuit definition (those are specialised in the deck)",
                 )
             if not found.instances:  # a top-level card: the common case
-                self.top_cards.append((found.card, part))
-                top[id(found.card)] = part
+                card = found.card
+                self.top_cards.append((card, part))
+                top[id(card)] = part
+                if card.offset < last:
+                    self.top_in_order = False
+                last = card.offset
                 continue
             prefix = ""
             for instance, definition in zip(found.instances, found.definitions, strict=True):
@@ -152,11 +158,18 @@ class _Rewriter:
             return None
         if any(card.source is not source or card.offset < 0 for card, _p in self.top_cards):
             return None
-        out = []
-        for card, part in sorted(self.top_cards, key=lambda item: item[0].offset):
+        chosen = self.top_cards
+        if not self.top_in_order:
+            chosen = sorted(chosen, key=lambda item: item[0].offset)
+        out: list[tuple[int, int, str]] = []
+        append, part_text = out.append, self.part_text
+        for card, part in chosen:
             lead, offset, text = card.lead, card.offset, card.text
-            new = lead + card.commented(MARK) + self.part_text(card, part)
-            out.append((offset - len(lead), offset + len(text), new))
+            if text.find("\n") == len(text) - 1:  # one line: its comment is the mark before it
+                new = lead + MARK + text + part_text(card, part)
+            else:
+                new = lead + card.commented(MARK) + part_text(card, part)
+            append((offset - len(lead), offset + len(text), new))
         return out
 
     def body(self, nodes: Iterable[Node], prefix: str, top: bool) -> list[Node]:

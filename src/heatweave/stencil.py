@@ -11,54 +11,78 @@ always made directly, so the output never depends on the shortcut.
 
 from __future__ import annotations
 
+import operator
+import re
 from collections.abc import Callable, Hashable
+from dataclasses import dataclass
 
 #: What a maker returns: the text, and groups of names it adds (nodes, thermal nodes).
 Made = tuple[str, tuple[str, ...], tuple[str, ...]]
 Maker = Callable[..., Made]
 
 _SLOTS = tuple(chr(c) for c in range(1, 9))
-_SEP = "\x0b"  # between the text and the names inside one stencil string
 _UNCHECKED = object()
+_FIELD = re.compile("[\x01-\x08]")
 
 
-def _pack(made: Made, count: int) -> tuple[str, int] | None:
-    """The made text and names as one format string, the placeholders as its fields."""
+@dataclass(frozen=True, slots=True)
+class _Piece:
+    """One text with placeholders as a printf-style template, and the getter that picks
+    the values in the order the placeholders occur (one C-level call each to fill in)."""
+
+    template: str
+    pick: Callable[[tuple[str, ...]], object] | None
+
+    @classmethod
+    def of(cls, text: str) -> _Piece:
+        order = [ord(m.group(0)) - 1 for m in _FIELD.finditer(text)]
+        template = _FIELD.sub("%s", text.replace("%", "%%"))
+        return cls(template, operator.itemgetter(*order) if order else None)
+
+    def fill(self, values: tuple[str, ...]) -> str:
+        if self.pick is None:
+            return self.template % ()
+        return self.template % self.pick(values)
+
+
+@dataclass(frozen=True, slots=True)
+class _Stencil:
+    text: _Piece
+    first: tuple[_Piece, ...]
+    second: tuple[_Piece, ...]
+
+    def fill(self, values: tuple[str, ...]) -> Made:
+        return (
+            self.text.fill(values),
+            tuple([p.fill(values) for p in self.first]),
+            tuple([p.fill(values) for p in self.second]),
+        )
+
+
+def _stencil(made: Made) -> _Stencil:
     text, first, second = made
-    pieces = [text, *first, *second]
-    if any(_SEP in piece for piece in pieces):
-        return None
-    packed = _SEP.join(pieces).replace("{", "{{").replace("}", "}}")
-    for k, slot in enumerate(_SLOTS[:count]):
-        packed = packed.replace(slot, "{%d}" % k)  # noqa: UP031 - a format field being made
-    return packed, len(first)
-
-
-def _fill(stencil: tuple[str, int], values: tuple[str, ...]) -> Made:
-    packed, count = stencil
-    pieces = packed.format(*values).split(_SEP)
-    return pieces[0], tuple(pieces[1 : 1 + count]), tuple(pieces[1 + count :])
+    return _Stencil(
+        _Piece.of(text), tuple(map(_Piece.of, first)), tuple(map(_Piece.of, second))
+    )
 
 
 class Stencils:
     """Stencils by key, each checked on its first use."""
 
     def __init__(self) -> None:
-        self._made: dict[Hashable, tuple[str, int] | object | None] = {}
+        self._made: dict[Hashable, _Stencil | object | None] = {}
 
     def get(self, key: Hashable, make: Maker, payload: object, values: tuple[str, ...]) -> Made:
         """What ``make(payload, *values)`` returns, for *values* the part's names and nodes
         (at most eight): filled in from the stencil of *key* where its check passed.  The
         key must stand for everything of *payload* that *make* reads."""
-        if len(values) > len(_SLOTS) or not "".join(values).isprintable():
-            return make(payload, *values)
         stencil = self._made.get(key, _UNCHECKED)
-        if stencil is None:
+        if type(stencil) is _Stencil and "".join(values).isprintable():
+            return stencil.fill(values)
+        if stencil is not _UNCHECKED or len(values) > len(_SLOTS):
             return make(payload, *values)
-        if stencil is _UNCHECKED:
-            direct = make(payload, *values)
-            packed = _pack(make(payload, *_SLOTS[: len(values)]), len(values))
-            ok = packed is not None and _fill(packed, values) == direct
-            self._made[key] = packed if ok else None
-            return direct
-        return _fill(stencil, values)  # type: ignore[arg-type]  # a stencil, checked above
+        direct = make(payload, *values)
+        if "".join(values).isprintable():
+            made = _stencil(make(payload, *_SLOTS[: len(values)]))
+            self._made[key] = made if made.fill(values) == direct else None
+        return direct
