@@ -4,6 +4,8 @@
   for every other part of that kind (:mod:`heatweave.stencil`).
 * Splicing: when every part is a top-level card of the deck as read, the new cards are
   spliced into the file's text at their offsets instead of rewriting the tree.
+* ``bulk.fast_init``: the quicker ``__init__`` of the records made once per part sets what
+  the dataclass's own ``__init__`` sets.
 
 The reference for each is the emitter with that path switched off: every form, every
 temperature model and network form, ground and mixed-case nodes, instance paths, parts
@@ -13,12 +15,14 @@ cards after ``.end``, CRLF, comments between continuation lines, includes).
 
 from __future__ import annotations
 
+import dataclasses
 import shutil
 from pathlib import Path
 
 import pytest
 
 from heatweave import stencil
+from heatweave.bulk import fast_init
 from heatweave.emitforms import FORMS
 from heatweave.emitter import _Rewriter, emit_files
 from heatweave.errors import HeatweaveError
@@ -173,3 +177,51 @@ def test_spliced_equals_rewritten_at_the_edges(
     monkeypatch.setattr(_Rewriter, "edits", lambda self, source: None)
     assert spliced == _emit_or_error(deck, annotation)
     assert not spliced.startswith("error")
+
+
+# --------------------------------------------------------------------------- fast_init
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class _Plain:
+    a: str
+    b: int = 2
+    c: tuple[int, ...] = ()
+    d: str = dataclasses.field(init=False, compare=False)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "d", self.a * self.b)
+
+
+_Fast = fast_init(
+    dataclasses.dataclass(frozen=True, slots=True)(
+        type("_Fast", (), {"__annotations__": _Plain.__annotations__, "b": 2, "c": (),
+                           "d": dataclasses.field(init=False, compare=False),
+                           "__post_init__": _Plain.__post_init__})
+    )
+)  # fmt: skip
+
+
+@pytest.mark.parametrize(
+    ("args", "kwargs"),
+    [(("x",), {}), (("x", 3), {}), (("x",), {"c": (1,)}), ((), {"a": "y", "b": 0, "c": ()})],
+)
+def test_fast_init_sets_what_dataclass_init_sets(
+    args: tuple[object, ...], kwargs: dict[str, object]
+) -> None:
+    plain, fast = _Plain(*args, **kwargs), _Fast(*args, **kwargs)  # type: ignore[arg-type]
+    for name in ("a", "b", "c", "d"):
+        assert getattr(fast, name) == getattr(plain, name)
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        fast.a = "z"  # type: ignore[misc]
+    with pytest.raises(TypeError):
+        _Fast()  # a required field missing, as with dataclass's own __init__
+
+
+def test_fast_init_refuses_default_factory() -> None:
+    @dataclasses.dataclass(frozen=True, slots=True)
+    class WithFactory:
+        items: list[int] = dataclasses.field(default_factory=list)
+
+    with pytest.raises(TypeError, match="default_factory"):
+        fast_init(WithFactory)

@@ -9,6 +9,7 @@ from typing import Literal
 import numpy as np
 
 from heatweave.annotation_fields import Distribution
+from heatweave.bulk import fast_init
 from heatweave.errors import AnnotationError, Finding, Location
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
 
@@ -157,6 +158,7 @@ class Annotation:
         return sample(self, rng)
 
 
+@fast_init
 @dataclass(frozen=True, slots=True)
 class BoundPart:
     """A deck element with the part table that applies to it."""

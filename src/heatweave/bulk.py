@@ -8,9 +8,11 @@ other, never a cycle.  Pausing it for the duration of such a build is the usual 
 
 from __future__ import annotations
 
+import dataclasses
 import gc
 from collections.abc import Iterator
 from contextlib import contextmanager
+from typing import TypeVar
 
 #: Objects made during a pause above which they are frozen when it ends (see paused_gc).
 FREEZE_ABOVE = 100_000
@@ -36,3 +38,45 @@ def paused_gc() -> Iterator[None]:
             gc.freeze()
         if was_enabled:
             gc.enable()
+
+
+_T = TypeVar("_T")
+
+
+def fast_init(cls: type[_T]) -> type[_T]:
+    """Give a frozen dataclass an ``__init__`` that sets its fields about twice as fast.
+
+    A frozen dataclass's own ``__init__`` looks ``object.__setattr__`` up afresh for every
+    field; for the records made once per part (a hundred thousand of them from one glob)
+    that is a measurable share of the run.  The replacement takes the same arguments, with
+    the same defaults, sets the same fields and then calls ``__post_init__`` if there is
+    one; it refuses fields with a ``default_factory``.  Apply it above ``@dataclass``.
+    """
+    params: list[str] = []
+    lines: list[str] = []
+    closure: dict[str, object] = {"_set": object.__setattr__}
+    for f in dataclasses.fields(cls):  # type: ignore[arg-type]
+        if not f.init:
+            continue
+        if f.default_factory is not dataclasses.MISSING:
+            raise TypeError(f"{cls.__name__}.{f.name}: fast_init takes no default_factory")
+        if f.default is not dataclasses.MISSING:
+            closure[f"_default_{f.name}"] = f.default
+            params.append(f"{f.name}=_default_{f.name}")
+        else:
+            params.append(f.name)
+        lines.append(f"        _set(self, {f.name!r}, {f.name})")
+    if hasattr(cls, "__post_init__"):
+        lines.append("        self.__post_init__()")
+    source = (
+        f"def _make({', '.join(closure)}):\n"
+        f"    def __init__(self, {', '.join(params)}):\n"
+        + "\n".join(lines or ["        pass"])
+        + "\n    return __init__\n"
+    )
+    namespace: dict[str, object] = {}
+    exec(source, namespace)  # the source is made above from the class's own field names
+    init = namespace["_make"](**closure)  # type: ignore[operator]
+    init.__qualname__ = f"{cls.__qualname__}.__init__"
+    cls.__init__ = init  # type: ignore[method-assign]
+    return cls

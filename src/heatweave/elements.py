@@ -16,6 +16,7 @@ import re
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
+from heatweave.bulk import fast_init
 from heatweave.deck import _FIELD, Card
 from heatweave.errors import EmitError
 from heatweave.hierarchy import DeckIndex, x_card_parts
@@ -115,6 +116,7 @@ def rewrite_nodes(card: Card, new: Mapping[int, str], index: DeckIndex | None = 
     return logical + "\n"
 
 
+@fast_init
 @dataclass(frozen=True, slots=True)
 class ResistorValue:
     """A resistor card's nominal resistance (value * scale / m) and what it set aside."""

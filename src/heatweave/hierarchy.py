@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TypeVar
 
-from heatweave.bulk import paused_gc
+from heatweave.bulk import fast_init, paused_gc
 from heatweave.deck import _HEAD, Block, Card, Deck, Node, strip_inline_comment
 from heatweave.errors import DeckStructureError, Location
 from heatweave.globmatch import line_numbers
@@ -225,6 +225,7 @@ class Scope:
         return self._by_name.get(name)
 
 
+@fast_init
 @dataclass(frozen=True, slots=True)
 class Resolved:
     """An element found by instance path: its card and the ``X`` cards leading to it."""

@@ -28,18 +28,24 @@ _FIELD = re.compile("[\x01-\x08]")
 @dataclass(frozen=True, slots=True)
 class _Piece:
     """One text with placeholders as a printf-style template, and the getter that picks
-    the values in the order the placeholders occur (one C-level call each to fill in)."""
+    the values in the order the placeholders occur (one C-level call each to fill in);
+    a text that is one placeholder alone is that value (*whole*, its index)."""
 
     template: str
     pick: Callable[[tuple[str, ...]], object] | None
+    whole: int = -1
 
     @classmethod
     def of(cls, text: str) -> _Piece:
         order = [ord(m.group(0)) - 1 for m in _FIELD.finditer(text)]
+        if len(text) == 1 and order:
+            return cls(text, None, order[0])
         template = _FIELD.sub("%s", text.replace("%", "%%"))
         return cls(template, operator.itemgetter(*order) if order else None)
 
     def fill(self, values: tuple[str, ...]) -> str:
+        if self.whole >= 0:
+            return values[self.whole]
         if self.pick is None:
             return self.template % ()
         return self.template % self.pick(values)

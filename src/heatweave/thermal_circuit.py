@@ -17,7 +17,7 @@ import re
 from dataclasses import dataclass, field
 
 from heatweave.annotations import AMBIENT, Annotation, BoundPart, NetworkSpec
-from heatweave.bulk import paused_gc
+from heatweave.bulk import fast_init, paused_gc
 from heatweave.errors import AnnotationError, Finding, Location
 from heatweave.hierarchy import DeckIndex, Resolved
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
@@ -47,6 +47,7 @@ def shared_node(name: str) -> str:
     return f"{PREFIX}n_{safe(name)}"
 
 
+@fast_init
 @dataclass(frozen=True, slots=True)
 class PartPlan:
     """One heated part: a resistor with a temperature model, or a heat-only element."""
