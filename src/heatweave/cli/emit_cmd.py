@@ -55,7 +55,7 @@ def build_emitted(deck: str, annotation: str | None, *, form: str = "switch") ->
     type=click.Choice(tuple(FORMS)),
     default="switch",
     show_default=True,
-    help="How annotated resistors are written: switch (XSPICE code models, about four times "
+    help="How annotated resistors are written: switch (XSPICE code models, about five times "
     "cheaper to simulate), reference (two behavioural sources each, what run simulates), "
     "divider (code models, linear models only).",
 )
