@@ -303,3 +303,46 @@ def test_decks_without_final_newline_or_end(tmp_path: Path, deck: str) -> None:
     expected = brentq(lambda t: t - TA - RTH * power_at(t), TA, TA + 500)
     out = run(str(path), str(path.with_suffix(".thermal.toml")))
     assert out.results.part("R1").temperature == pytest.approx(expected, abs=1e-4)
+
+
+# --- resistor values from subcircuit parameters ----------------------------------------
+
+PARAM_DECK = """\
+parameterised cells (invented for this test)
+.param rbase=20
+V1 a 0 DC 1
+V2 b 0 DC 1
+V3 c 0 DC 1
+V4 d 0 DC 1
+X1 a 0 cell r=100
+X2 b 0 cell
+XP c 0 pair rr=30
+X4 d 0 cell r={3*rbase}
+.subckt cell p q params: r=50
+.param half={r/2}
+RA p m {half}
+RB m q {r-half}
+.ends cell
+.subckt pair p q rr=10
+X3 p q cell r={2*rr}
+.ends pair
+.op
+.end
+"""
+
+
+def test_values_from_subcircuit_parameters_match_ngspice(tmp_path: Path) -> None:
+    # The reference is ngspice itself: the current each plain cell draws from its 1 V
+    # source is 1 / (RA + RB) as ngspice evaluates the parameters.
+    every = 'schema = 1\n[part."*.R?"]\nmodel = "linear"\ntc1_ppm = 100\nrth = 10.0\n'
+    deck = write_case(tmp_path, PARAM_DECK, every)
+    circuit = emit_inputs(load_inputs(str(deck), str(tmp_path / "case.thermal.toml"))).circuit
+    assert circuit is not None
+    nominal = {p.path: p.nominal_resistance for p in circuit.parts}
+    plain = simulate(PARAM_DECK)
+    for source, instance in (("v1", "X1"), ("v2", "X2"), ("v3", "XP.X3"), ("v4", "X4")):
+        total = nominal[f"{instance}.RA"] + nominal[f"{instance}.RB"]
+        assert total == pytest.approx(1.0 / -plain[f"i({source})"][0], rel=1e-9)
+    assert (nominal["X1.RA"], nominal["X2.RB"], nominal["XP.X3.RA"], nominal["X4.RB"]) == (
+        50.0, 25.0, 30.0, 30.0,
+    )  # fmt: skip

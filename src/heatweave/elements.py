@@ -17,9 +17,9 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
 from heatweave.bulk import fast_init
-from heatweave.deck import _FIELD, Card
+from heatweave.deck import _FIELD, Card, Node
 from heatweave.errors import EmitError
-from heatweave.hierarchy import DeckIndex, x_card_parts
+from heatweave.hierarchy import DeckIndex, Resolved, x_card_parts
 from heatweave.quantities import parse_number
 
 _NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[A-Za-z]*"
@@ -251,16 +251,49 @@ def top_params(index: DeckIndex) -> dict[str, float]:
     source = index.project.deck.source
     if source is not None and _PARAM_CARD.search(source.text) is None:
         return values
-    for card in index.project.deck.body:
-        if not isinstance(card, Card) or card.name != ".param":
-            continue
-        fields = card.fields()[1:]
-        i = 0
-        while i + 2 < len(fields):
-            if fields[i + 1] != "=":
-                i += 1
-                continue
-            with contextlib.suppress(EmitError):
-                values[fields[i].lower()] = evaluate(fields[i + 2], values)
-            i += 3
+    _param_cards(index.project.deck.body, values)
     return values
+
+
+def scope_params(top: Mapping[str, float], found: Resolved) -> dict[str, float]:
+    """The numeric parameters an element inside subcircuit instances sees: the top-level
+    ones, then at each level down the definition's ``params:`` defaults, the instance's
+    own ``key=value`` arguments (evaluated where the instance stands) and the definition's
+    ``.param`` cards, inner names hiding outer ones (manual 2.9.3)."""
+    values = dict(top)
+    for instance, definition in zip(found.instances, found.definitions, strict=True):
+        caller = values
+        values = dict(caller)
+        _assign(_pairs(definition.header.fields()[2:]), values, values)
+        _assign(_pairs(x_card_parts(instance)[2]), caller, values)
+        _param_cards(definition.body, values)
+    return values
+
+
+def _param_cards(body: tuple[Node, ...], values: dict[str, float]) -> None:
+    """Evaluate the ``.param`` cards of *body* into *values*, in order."""
+    for card in body:
+        if isinstance(card, Card) and card.name == ".param":
+            _assign(_pairs(card.fields()[1:]), values, values)
+
+
+def _pairs(fields: list[str]) -> list[tuple[str, str]]:
+    """The ``key = value`` triples among *fields* (``params:`` and ports skipped)."""
+    out = []
+    i = 0
+    while i + 2 < len(fields):
+        if fields[i + 1] != "=":
+            i += 1
+            continue
+        out.append((fields[i], fields[i + 2]))
+        i += 3
+    return out
+
+
+def _assign(
+    pairs: list[tuple[str, str]], scope: Mapping[str, float], into: dict[str, float]
+) -> None:
+    """Each pair's value evaluated in *scope* (numeric ones only) into *into*."""
+    for key, text in pairs:
+        with contextlib.suppress(EmitError):
+            into[key.lower()] = evaluate(text, scope)

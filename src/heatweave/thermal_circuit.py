@@ -140,7 +140,13 @@ def build_circuit(
 ) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
     """The thermal circuit of a bound annotation, with each resistor's model built from
     the deck's nominal value; also the warnings about card parameters set aside."""
-    from heatweave.elements import card_nodes, resistor_value, simple_resistor, top_params
+    from heatweave.elements import (
+        card_nodes,
+        resistor_value,
+        scope_params,
+        simple_resistor,
+        top_params,
+    )
 
     findings: list[Finding] = list(annotation.warnings)
     params = top_params(index)
@@ -152,6 +158,7 @@ def build_circuit(
     # What all parts of one table share: its (immutable) network and the cold end's node.
     shared: dict[int, tuple[NetworkForm, str]] = {}
     models: dict[tuple[int, float], TempModel | None] = {}
+    scoped: dict[tuple[int, ...], dict[str, float]] = {}  # parameters by instance chain
     with paused_gc():  # a glob may annotate a hundred thousand parts
         for item in bound:
             spec = item.spec
@@ -178,7 +185,13 @@ def build_circuit(
             else:
                 terminals = (simple.group(1), simple.group(2))
             if spec.model is not None:
-                value = resistor_value(card, params, simple)
+                seen = params
+                if found.instances:  # inside subcircuits: their parameters count too
+                    chain = tuple(map(id, found.instances))
+                    seen = scoped.get(chain)
+                    if seen is None:
+                        seen = scoped[chain] = scope_params(params, found)
+                value = resistor_value(card, seen, simple)
                 if value.notes:
                     findings.extend(
                         Finding("warning", f"{item.element}: {note}", found.card.location())
