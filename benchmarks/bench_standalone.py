@@ -40,7 +40,7 @@ from pathlib import Path
 
 import numpy as np
 
-from heatweave.emitforms import FORMS, preamble, resistor_cards
+from heatweave.emitforms import FORMS, preamble, resistor_cards, step_limit_options
 from heatweave.simulators.rawfile import read_raw
 from heatweave.tempmodels import get
 
@@ -73,6 +73,8 @@ def chain(
         lines += [f"Rhw_r{k}_1 {hot[k - 1]} hw_amb {RTH:g}", f"Chw_r{k}_1 {hot[k - 1]} 0 {CTH:g}"]
     if form is not None:
         lines += preamble(form, [model])
+        # As emit writes it: judged on the plain deck, which has no code models.
+        lines += step_limit_options(form, [(chain(None, count, amplitude, control), True)])
         lines.append(f"Vhw_amb hw_amb 0 DC {AMBIENT:g}")
         lines.append(".ic " + " ".join(f"V({n})={AMBIENT:g}" for n in hot))
     if options:

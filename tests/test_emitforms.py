@@ -16,11 +16,13 @@ from scipy.optimize import brentq
 
 from heatweave.emitforms import (
     FORMS,
+    STEP_LIMIT_OPTION,
     added_nodes,
     falls_back,
     preamble,
     resistor_cards,
     shared_nodes,
+    step_limit_options,
 )
 from heatweave.simulators import get_simulator
 from heatweave.tempmodels import REGISTRY, TempModel, get
@@ -87,14 +89,18 @@ STEEP = [
 ]
 
 
-def deck(case: Case, form: str, analysis: str, heating: bool = True) -> str:
-    """The case's circuit with its resistor in *form*."""
+def deck(
+    case: Case, form: str, analysis: str, heating: bool = True, lifted: bool = True
+) -> str:
+    """The case's circuit with its resistor in *form*; *lifted*: with the step-limit option
+    emit writes where the deck has no code models of its own (else ngspice's default)."""
     lines = [
         f"self-heated resistor, {form} form",
         f"V1 in 0 DC {case.volts!r}",
         f"Rs in a {case.series!r}",
         *resistor_cards(form, "rx", "a", "0", HOT, case.model, heating),
         *preamble(form, [case.model]),
+        *(step_limit_options(form, [("t\nV1 in 0 DC 1\n", True)]) if lifted else []),
         f"Rhw_rx_1 {HOT} hw_amb {case.rth!r}",
         f"Chw_rx_1 {HOT} 0 {case.cth!r}",
         f"Vhw_amb hw_amb 0 DC {case.ambient!r}",
@@ -131,11 +137,14 @@ def test_every_registered_model_has_a_case() -> None:
 
 
 @pytest.mark.ngspice
+@pytest.mark.parametrize("lifted", [True, False], ids=["step-limit-lifted", "step-limit-kept"])
 @pytest.mark.parametrize("form", CHEAP)
 @pytest.mark.parametrize("heating", [True, False])
 @pytest.mark.parametrize("case", CASES + STEEP, ids=lambda c: c.id)
-def test_operating_point_matches_reference_form(case: Case, form: str, heating: bool) -> None:
-    ours = simulate(deck(case, form, ".op", heating))
+def test_operating_point_matches_reference_form(
+    case: Case, form: str, heating: bool, lifted: bool
+) -> None:
+    ours = simulate(deck(case, form, ".op", heating, lifted))
     ref = simulate(deck(case, "reference", ".op", heating))
     rise = ref[f"v({HOT})"][0] - case.ambient
     if heating:
@@ -149,12 +158,13 @@ def test_operating_point_matches_reference_form(case: Case, form: str, heating: 
 
 
 @pytest.mark.ngspice
+@pytest.mark.parametrize("lifted", [True, False], ids=["step-limit-lifted", "step-limit-kept"])
 @pytest.mark.parametrize("form", CHEAP)
 @pytest.mark.parametrize("case", CASES + STEEP, ids=lambda c: c.id)
-def test_cold_start_transient_matches_reference_form(case: Case, form: str) -> None:
+def test_cold_start_transient_matches_reference_form(case: Case, form: str, lifted: bool) -> None:
     step = case.tstop / 200
     analysis = f".tran {step!r} {case.tstop!r} 0 {step!r}"
-    ours = simulate(deck(case, form, analysis))
+    ours = simulate(deck(case, form, analysis, lifted=lifted))
     ref = simulate(deck(case, "reference", analysis))
     t_ref, t_ours = ref["time"], ours["time"]
     assert t_ours[-1] == pytest.approx(case.tstop)
@@ -292,3 +302,37 @@ def test_part_inside_a_subcircuit_matches_top_level(case: Case) -> None:
     text = text.replace(".op", ".global " + " ".join([HOT, *shared]) + "\n.op")
     out = simulate(text)
     assert out[f"v({HOT})"][0] == pytest.approx(top[f"v({HOT})"][0], rel=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("form", "files", "lifted"),
+    [
+        ("switch", [("t\nV1 a 0 1\nR1 a 0 1k\n.end\n", True)], True),
+        ("divider", [("t\nR1 a 0 1k\n", True)], True),
+        ("reference", [("t\nR1 a 0 1k\n", True)], False),  # no code models written
+        ("switch", [("amplifier bench (a title)\nR1 a 0 1k\n", True)], True),
+        ("switch", [("t\nR1 a 0 1k\n  A1 in out gain1\n", True)], False),  # the user's own
+        ("switch", [("t\nR1 a 0 1k\n", True), ("a2 x y amp\n", False)], False),  # included
+        ("switch", [("t\n.options CONVSTEP=0.1\n", True)], False),  # the user's own setting
+        ("switch", [("t\n* convabsstep left at its default\n", True)], False),  # even so
+    ],
+)
+def test_step_limit_lifted_only_where_nothing_else_uses_it(
+    form: str, files: list[tuple[str, bool]], lifted: bool
+) -> None:
+    assert (STEP_LIMIT_OPTION in step_limit_options(form, files)) is lifted
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("case", CASES + STEEP, ids=lambda c: c.id)
+def test_step_limit_lifted_keeps_the_solution_under_an_ac_drive(case: Case) -> None:
+    # Where the limit costs iterations (a sine crossing zero, benchmarks/bench_standalone.py)
+    # lifting it must leave the solution as it was, up to the Newton stop.
+    drive = f"V1 in 0 SIN(0 {case.volts!r} {50 / case.tstop!r})"
+    analysis = f".tran {case.tstop / 400!r} {case.tstop!r}"
+    temps = []
+    for lifted in (True, False):
+        text = deck(case, "switch", analysis, lifted=lifted)
+        text = text.replace(f"V1 in 0 DC {case.volts!r}", drive)
+        temps.append(simulate(text)[f"v({HOT})"][-1])
+    assert temps[0] == pytest.approx(temps[1], rel=1e-7)

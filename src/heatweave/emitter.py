@@ -33,7 +33,13 @@ from heatweave.annotations import Annotation, BoundPart
 from heatweave.bulk import paused_gc
 from heatweave.deck import Block, Card, Deck, Node, SourceFile
 from heatweave.elements import positional_spans, rewrite_nodes
-from heatweave.emitforms import added_nodes, preamble, resistor_cards, shared_nodes
+from heatweave.emitforms import (
+    added_nodes,
+    preamble,
+    resistor_cards,
+    shared_nodes,
+    step_limit_options,
+)
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, x_card_parts
 from heatweave.quantities import format_number
@@ -344,15 +350,20 @@ def describe(part: PartPlan) -> str:
 
 
 def thermal_section(
-    circuit: ThermalCircuit, thermal: list[str], shared: bool, form: str = "reference"
+    circuit: ThermalCircuit,
+    thermal: list[str],
+    shared: bool,
+    form: str = "reference",
+    options: list[str] | None = None,
 ) -> str:
-    """Ambient source, shared nodes, couplings, the card form's shared models, and for the
-    thermal nodes: ``.global`` when subcircuit copies reach them (*shared*), ``.ic`` at
-    ambient for a cold start."""
+    """Ambient source, shared nodes, couplings, the card form's shared models and
+    *options* lines, and for the thermal nodes: ``.global`` when subcircuit copies reach
+    them (*shared*), ``.ic`` at ambient for a cold start."""
     lines = [f"{MARK}thermal network"]
     # Each model object once (parts of one table with equal values share one).
     models = list({id(p.model): p.model for p in circuit.parts if p.model is not None}.values())
     lines.extend(preamble(form, models))
+    lines.extend(options or ())
     if isinstance(circuit.ambient, tuple):
         points = " ".join(f"{format_number(t)} {format_number(v)}" for t, v in circuit.ambient)
         lines.append(f"V{AMBIENT_NODE} {AMBIENT_NODE} 0 PWL({points})")
@@ -430,7 +441,8 @@ def emit_deck(
             body = rewriter.body(deck.body, "", top=True)
         body.extend(rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
-    section = Card(thermal_section(circuit, thermal, bool(rewriter.copies), form))
+    options = step_limit_options(form, _files(project))
+    section = Card(thermal_section(circuit, thermal, bool(rewriter.copies), form, options))
     if edits is not None:
         assert written is not None and end_at is not None
         text = title + head + _spliced(deck, written, edits, section, end_at)
@@ -439,6 +451,13 @@ def emit_deck(
         text = replace(deck, title=title + head, body=tuple(body)).write()
     check_names(index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)])
     return Emitted(text, tuple(rewriter.added), tuple(rewriter.findings), circuit)
+
+
+def _files(project: Project) -> Iterable[tuple[str, bool]]:
+    """The text of the deck (titled) and of each file it includes."""
+    decks = [(project.deck, True), *((inc.deck, False) for inc in project.includes)]
+    for deck, titled in decks:
+        yield (deck.write() if deck.source is None else deck.source.text), titled
 
 
 def _end_at(deck: Deck) -> int | None:

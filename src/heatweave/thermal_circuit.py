@@ -188,9 +188,9 @@ def build_circuit(
                 seen = params
                 if found.instances:  # inside subcircuits: their parameters count too
                     chain = tuple(map(id, found.instances))
-                    seen = scoped.get(chain)
-                    if seen is None:
-                        seen = scoped[chain] = scope_params(params, found)
+                    if chain not in scoped:
+                        scoped[chain] = scope_params(params, found)
+                    seen = scoped[chain]
                 value = resistor_value(card, seen, simple)
                 if value.notes:
                     findings.extend(
