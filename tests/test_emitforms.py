@@ -99,7 +99,7 @@ def deck(
         f"V1 in 0 DC {case.volts!r}",
         f"Rs in a {case.series!r}",
         *resistor_cards(form, "rx", "a", "0", HOT, case.model, heating),
-        *preamble(form, [case.model]),
+        *preamble(form, [case.model], heating),
         *(step_limit_options(form, [("t\nV1 in 0 DC 1\n", True)]) if lifted else []),
         f"Rhw_rx_1 {HOT} hw_amb {case.rth!r}",
         f"Chw_rx_1 {HOT} 0 {case.cth!r}",
@@ -206,7 +206,7 @@ def test_added_names_are_reserved(case: Case, form: str, heating: bool) -> None:
     cards = resistor_cards(form, "rx", "a", "b", HOT, case.model, heating)
     for card in cards:
         assert NAME.match(card), card
-    shared = preamble(form, [case.model])
+    shared = preamble(form, [case.model], heating)
     for card in shared:
         assert card.startswith(".model hw_") or NAME.match(card), card
     for node in added_nodes(form, "rx", case.model, heating):
@@ -247,9 +247,11 @@ def test_divider_form_falls_back_outside_linear_models(
 def test_parts_with_equal_parameters_share_one_model_card() -> None:
     same = [get("linear").from_params({"tc1": 0.004}, 10.0) for _ in range(3)]
     other = get("linear").from_params({"tc1": 0.004}, 12.0)
-    # The switch of R(T) (no heating), the switch of R(T) - R0/8 and the product V*V'/(R0/8).
-    assert len(preamble("switch", same)) == 3
-    assert len(preamble("switch", [*same, other])) == 6
+    # Heated: the switch of R(T) - R0/8 and the product V*V'/(R0/8); unheated: the switch
+    # of R(T) alone.
+    assert len(preamble("switch", same)) == 2
+    assert len(preamble("switch", [*same, other])) == 4
+    assert len(preamble("switch", same, heating=False)) == 1
     exponential = [get("exponential").from_params({"tce": 0.3}, 10.0) for _ in range(2)]
     assert len(preamble("switch", exponential)) == 2  # the log switch and the product V*I
 
@@ -336,3 +338,16 @@ def test_step_limit_lifted_keeps_the_solution_under_an_ac_drive(case: Case) -> N
         text = text.replace(f"V1 in 0 DC {case.volts!r}", drive)
         temps.append(simulate(text)[f"v({HOT})"][-1])
     assert temps[0] == pytest.approx(temps[1], rel=1e-7)
+
+
+@pytest.mark.parametrize("form", list(FORMS))
+@pytest.mark.parametrize("heating", [True, False])
+@pytest.mark.parametrize("case", CASES + STEEP, ids=lambda c: c.id)
+def test_every_model_card_is_used_and_every_used_one_defined(
+    case: Case, form: str, heating: bool
+) -> None:
+    cards = resistor_cards(form, "rx", "a", "b", HOT, case.model, heating)
+    shared = preamble(form, [case.model], heating)
+    defined = {c.split()[1] for c in shared if c.startswith(".model")}
+    used = {c.split()[-1] for c in cards if c.startswith("A")}
+    assert used == defined

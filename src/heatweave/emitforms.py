@@ -163,8 +163,8 @@ class CardForm(ABC):
     ) -> list[str]:
         """The element lines replacing ``R a b R0``; *name* is the part's safe name."""
 
-    def models(self, model: TempModel) -> list[str]:
-        """The ``.model`` cards the part's elements refer to."""
+    def models(self, model: TempModel, heating: bool = True) -> list[str]:
+        """The ``.model`` cards the part's elements refer to (with or without heating)."""
         return []
 
     def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
@@ -246,30 +246,24 @@ class Switch(CardForm):
             f"A{PREFIX}p_{name} [%vd({a} {b}) %id({a} {sense})] %id(0 {hot}) {PRODUCT_MODEL}",
         ]
 
-    def models(self, model: TempModel) -> list[str]:
+    def models(self, model: TempModel, heating: bool = True) -> list[str]:
         constant = _constant(model)
         if constant is not None:
-            return [_product_card(constant)]
-        share = _shared(model)
+            return [_product_card(constant)] if heating else []
+        share = _shared(model) if heating else None
         if share is not None:
-            # Heating or not is the deck's choice, made after the models are listed: both.
-            rest, whole = self._rest(model), _direct(model)
-            assert whole is not None
-            return sorted({
-                _switch_card(self._switch_name(rest), *rest),
-                _switch_card(self._switch_name(whole), *whole),
-                _product_card(share),
-            })  # fmt: skip
-        product = f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"
+            rest = self._rest(model)
+            return sorted({_switch_card(self._switch_name(rest), *rest), _product_card(share)})
+        product = [f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"] if heating else []
         direct = _direct(model)
         if direct is not None:
-            return [_switch_card(self._switch_name(direct), *direct), product]
+            return [_switch_card(self._switch_name(direct), *direct), *product]
         extra = []
         if isinstance(model, Polynomial):
             held = _tref_node(model.tref)
             extra = [f"V{held} {held} 0 DC {_num(model.tref)}"]
         unit = f".model {UNIT_SWITCH_MODEL} aswitch(cntl_off=0 cntl_on=1 r_off=0 r_on=1 log=FALSE)"
-        return [*extra, unit, product]
+        return [*extra, unit, *product]
 
     def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
         if _constant(model) is not None:
@@ -323,7 +317,7 @@ class Divider(CardForm):
             lines.append(f"A{PREFIX}p_{name} %v({square}) %v({hot}) %id(0 {hot}) {divide}")
         return lines
 
-    def models(self, model: TempModel) -> list[str]:
+    def models(self, model: TempModel, heating: bool = True) -> list[str]:
         line = _linear(model)
         if line is None or line[2] == 0.0:
             return []
@@ -334,7 +328,8 @@ class Divider(CardForm):
             f"den_offset={_num((1.0 - tref * tc1) / tc1)} den_lower_limit=1e-12 "
             "den_domain=1e-15 fraction=false out_gain=1)"
         )
-        return [card, f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"]
+        product = f".model {PRODUCT_MODEL} mult(in_gain=[1 1] out_gain=1)"
+        return [card, product] if heating else [card]
 
     def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
         return (f"{PREFIX}q_{name}",) if heating and self.handles(model) else ()
@@ -361,10 +356,10 @@ def resistor_cards(
     return get_form(form).cards(name, a, b, hot, model, heating)
 
 
-def preamble(form: str, models: Iterable[TempModel]) -> list[str]:
+def preamble(form: str, models: Iterable[TempModel], heating: bool = True) -> list[str]:
     """The shared ``.model`` cards the parts with *models* need, each once, sorted."""
     chosen = get_form(form)
-    return sorted({card for model in models for card in chosen.models(model)})
+    return sorted({card for model in models for card in chosen.models(model, heating)})
 
 
 # Any line that starts an XSPICE instance (after blanks, in lower case), and the options
@@ -411,9 +406,11 @@ def falls_back(form: str, model: TempModel) -> bool:
     return not get_form(form).handles(model)
 
 
-def shared_nodes(form: str, models: Iterable[TempModel]) -> tuple[str, ...]:
+def shared_nodes(
+    form: str, models: Iterable[TempModel], heating: bool = True
+) -> tuple[str, ...]:
     """The top-level nodes :func:`preamble`'s cards drive (``hw_tref_*``), sorted; parts
     inside subcircuit copies reach them only when they are ``.global``."""
-    found = {node for card in preamble(form, models) if not card.startswith(".") for node in
-             card.split()[1:2]}  # fmt: skip
+    found = {node for card in preamble(form, models, heating) if not card.startswith(".")
+             for node in card.split()[1:2]}  # fmt: skip
     return tuple(sorted(found))

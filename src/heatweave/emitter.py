@@ -355,6 +355,7 @@ def thermal_section(
     shared: bool,
     form: str = "reference",
     options: list[str] | None = None,
+    heating: bool = True,
 ) -> str:
     """Ambient source, shared nodes, couplings, the card form's shared models and
     *options* lines, and for the thermal nodes: ``.global`` when subcircuit copies reach
@@ -362,7 +363,7 @@ def thermal_section(
     lines = [f"{MARK}thermal network"]
     # Each model object once (parts of one table with equal values share one).
     models = list({id(p.model): p.model for p in circuit.parts if p.model is not None}.values())
-    lines.extend(preamble(form, models))
+    lines.extend(preamble(form, models, heating))
     lines.extend(options or ())
     if isinstance(circuit.ambient, tuple):
         points = " ".join(f"{format_number(t)} {format_number(v)}" for t, v in circuit.ambient)
@@ -379,7 +380,7 @@ def thermal_section(
             f" ; {coupling.labels[0]} - {coupling.labels[1]}"
         )
     if shared:
-        lines.extend(_wrap(".global", [*thermal, *shared_nodes(form, models)]))
+        lines.extend(_wrap(".global", [*thermal, *shared_nodes(form, models, heating)]))
     if circuit.start == "cold":
         t0 = format_number(circuit.ambient_at_start)
         lines.extend(_wrap(".ic", [f"V({n})={t0}" for n in thermal if n != AMBIENT_NODE]))
@@ -442,7 +443,9 @@ def emit_deck(
         body.extend(rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
     options = step_limit_options(form, _files(project))
-    section = Card(thermal_section(circuit, thermal, bool(rewriter.copies), form, options))
+    section = Card(
+        thermal_section(circuit, thermal, bool(rewriter.copies), form, options, heating)
+    )
     if edits is not None:
         assert written is not None and end_at is not None
         text = title + head + _spliced(deck, written, edits, section, end_at)
