@@ -373,7 +373,9 @@ STEP_LIMIT_NOTE = (
 )
 
 
-def step_limit_options(form: str, files: Iterable[tuple[str, bool]]) -> list[str]:
+def step_limit_options(
+    form: str, files: Iterable[tuple[str, bool]], *, folded: bool = False
+) -> list[str]:
     """The lines that lift XSPICE's limit on how far a code-model input may move in one
     Newton iteration, when *form* writes code models and the deck's *files* (text, and
     whether its first line is a title) hold none of their own and set neither option.
@@ -384,11 +386,12 @@ def step_limit_options(form: str, files: Iterable[tuple[str, bool]]) -> list[str
     linear or bilinear in their inputs, so Newton needs no such limit (the reference form's
     behavioural sources have none); it only costs iterations when an AC drive crosses zero
     (8 % more on the benchmark chain).  Where the deck has code models or step options of
-    its own, the option would change them too, so it is left out."""
+    its own, the option would change them too, so it is left out.  *folded*: the texts
+    are in lower case already."""
     if form == "reference":
         return []
     for text, titled in files:
-        low = text.lower()
+        low = text if folded else text.lower()
         if any(option in low for option in _STEP_OPTIONS) or _CODE_MODEL_LINE.search(low):
             return []
         if not titled and low.lstrip(" \t").startswith("a"):

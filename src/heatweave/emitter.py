@@ -442,7 +442,9 @@ def emit_deck(
             body = rewriter.body(deck.body, "", top=True)
         body.extend(rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
-    options = step_limit_options(form, _files(project))
+    # Each file's text in lower case, once: the option check and the name check search it.
+    folded = [(deck, _text_of(deck).lower(), titled) for deck, titled in _decks(project)]
+    options = step_limit_options(form, [(low, t) for _d, low, t in folded], folded=True)
     section = Card(
         thermal_section(circuit, thermal, bool(rewriter.copies), form, options, heating)
     )
@@ -452,15 +454,19 @@ def emit_deck(
     else:
         body = _insert_before_end(body, section)
         text = replace(deck, title=title + head, body=tuple(body)).write()
-    check_names(index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)])
+    check_names(
+        index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)], folded
+    )
     return Emitted(text, tuple(rewriter.added), tuple(rewriter.findings), circuit)
 
 
-def _files(project: Project) -> Iterable[tuple[str, bool]]:
-    """The text of the deck (titled) and of each file it includes."""
-    decks = [(project.deck, True), *((inc.deck, False) for inc in project.includes)]
-    for deck, titled in decks:
-        yield (deck.write() if deck.source is None else deck.source.text), titled
+def _decks(project: Project) -> list[tuple[Deck, bool]]:
+    """The deck (titled) and each file it includes."""
+    return [(project.deck, True), *((inc.deck, False) for inc in project.includes)]
+
+
+def _text_of(deck: Deck) -> str:
+    return deck.write() if deck.source is None else deck.source.text
 
 
 def _end_at(deck: Deck) -> int | None:
@@ -518,14 +524,21 @@ def _insert_before_end(body: list[Node], section: Card) -> list[Node]:
     return [*body, section]
 
 
-def check_names(index: DeckIndex, added: list[str]) -> None:
+def check_names(
+    index: DeckIndex,
+    added: list[str],
+    folded: list[tuple[Deck, str, bool]] | None = None,
+) -> None:
     """Every added name must be new: a collision is an error, never a silent rename.
 
     Only cards whose text holds the reserved prefix can collide, so the files are searched
-    for it first; the field-level check runs on those cards alone.
+    for it first (in *folded*, each deck's text in lower case, when the caller has it);
+    the field-level check runs on those cards alone.
     """
+    if folded is None:
+        folded = [(d, _text_of(d).lower(), t) for d, t in _decks(index.project)]
     wanted: set[str] | None = None
-    for card in _all_cards(index):
+    for card in (c for deck, low, _t in folded if PREFIX in low for c in deck.cards()):
         if PREFIX not in card.text.lower():
             continue
         if wanted is None:
@@ -538,15 +551,6 @@ def check_names(index: DeckIndex, added: list[str]) -> None:
                     card.location(),
                     hint=f"rename it: names containing {PREFIX!r} are heatweave's",
                 )
-
-
-def _all_cards(index: DeckIndex) -> Iterable[Card]:
-    decks = [index.project.deck, *(inc.deck for inc in index.project.includes)]
-    for deck in decks:
-        # Folding the file's case and one substring search is far quicker on a large file
-        # than a case-insensitive regex.
-        if deck.source is None or PREFIX in deck.source.text.lower():
-            yield from deck.cards()
 
 
 @dataclass(frozen=True, slots=True)
