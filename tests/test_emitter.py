@@ -13,7 +13,8 @@ import pytest
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
-from heatweave.emitter import emit_files, emit_inputs, load_inputs, stale_reason
+from heatweave.emitsections import stale_reason
+from heatweave.emitter import emit_files, emit_inputs, load_inputs
 from heatweave.errors import EmitError
 from heatweave.reader import read
 from heatweave.runner import RunOptions, run

@@ -24,29 +24,25 @@ comment; the output is deterministic, so diffs of emitted decks stay small.
 
 from __future__ import annotations
 
-import hashlib
 from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
-from heatweave import __version__
 from heatweave.annotations import Annotation, BoundPart
 from heatweave.bulk import paused_gc
 from heatweave.deck import Block, Card, Deck, Node, SourceFile
 from heatweave.elements import positional_spans, rewrite_nodes
 from heatweave.emitforms import (
     added_nodes,
-    preamble,
     resistor_cards,
-    shared_nodes,
     step_limit_options,
 )
+from heatweave.emitsections import MARK, check_names, deck_files, header, text_of, thermal_section
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, x_card_parts
 from heatweave.quantities import format_number
+from heatweave.splice import end_position, insert_before_end, spliced
 from heatweave.stencil import Made, Stencils
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
-
-MARK = "*hw* "  # marks lines heatweave writes around replaced cards
 
 
 @dataclass(frozen=True, slots=True)
@@ -58,46 +54,6 @@ class Emitted:
     findings: tuple[Finding, ...] = ()
     circuit: ThermalCircuit | None = None
     probes: dict[str, str] = field(default_factory=dict)
-
-
-def sha256(text: str) -> str:
-    """Hex SHA-256 of a text as heatweave reads files (lossless UTF-8)."""
-    from heatweave.files import encode
-
-    return hashlib.sha256(encode(text)).hexdigest()
-
-
-def header(deck_name: str, deck_text: str, annotation_name: str, annotation_text: str) -> str:
-    """The comment block after the title: sources, their hashes, the unit convention."""
-    lines = [
-        f"* electrothermal deck written by heatweave {__version__}; edit the sources, not this",
-        f"* source deck: {deck_name} sha256 {sha256(deck_text)}",
-        f"* annotations: {annotation_name} sha256 {sha256(annotation_text)}",
-        "* units: thermal node voltages are temperatures, 1 V = 1 degC (1 K of rise);",
-        "*        currents into thermal nodes are heat flows, 1 A = 1 W;",
-        "*        thermal resistors 1 ohm = 1 K/W; thermal capacitors 1 F = 1 J/K",
-    ]
-    return "".join(line + "\n" for line in lines)
-
-
-def stale_reason(committed: str, fresh: str) -> str:
-    """Which input changed between a committed emitted deck and a fresh one."""
-
-    def tagged(text: str, tag: str) -> str | None:
-        for line in text.splitlines()[:12]:
-            if line.startswith(tag):
-                return line
-        return None
-
-    reasons = []
-    for tag, what in (
-        ("* source deck:", "the deck changed"),
-        ("* annotations:", "the annotation file changed"),
-        ("* electrothermal deck written by", "heatweave's version changed"),
-    ):
-        if tagged(committed, tag) != tagged(fresh, tag):
-            reasons.append(what)
-    return "; ".join(reasons) or "its text differs from what emit writes now"
 
 
 class _Rewriter:
@@ -214,9 +170,9 @@ class _Rewriter:
                 continue
             self.placed.add(path)
             name = copy_name(block.label, self._spelled(path))
-            header = self.retarget(block.header, block.label, name, comment=False)
+            opening = self.retarget(block.header, block.label, name, comment=False)
             body = tuple(self.body(block.body, self._spelled(path), top=False))
-            out.append(Block(header, body, block.end and _ends(block.end, name)))
+            out.append(Block(opening, body, block.end and _ends(block.end, name)))
         return out
 
     def unplaced(self) -> list[Node]:
@@ -349,57 +305,6 @@ def describe(part: PartPlan) -> str:
     return f"{what}, {net.kind} network {format_number(net.total_rth)} K/W to {part.to_label}"
 
 
-def thermal_section(
-    circuit: ThermalCircuit,
-    thermal: list[str],
-    shared: bool,
-    form: str = "reference",
-    options: list[str] | None = None,
-    heating: bool = True,
-) -> str:
-    """Ambient source, shared nodes, couplings, the card form's shared models and
-    *options* lines, and for the thermal nodes: ``.global`` when subcircuit copies reach
-    them (*shared*), ``.ic`` at ambient for a cold start."""
-    lines = [f"{MARK}thermal network"]
-    # Each model object once (parts of one table with equal values share one).
-    models = list({id(p.model): p.model for p in circuit.parts if p.model is not None}.values())
-    lines.extend(preamble(form, models, heating))
-    lines.extend(options or ())
-    if isinstance(circuit.ambient, tuple):
-        points = " ".join(f"{format_number(t)} {format_number(v)}" for t, v in circuit.ambient)
-        lines.append(f"V{AMBIENT_NODE} {AMBIENT_NODE} 0 PWL({points})")
-    else:
-        lines.append(f"V{AMBIENT_NODE} {AMBIENT_NODE} 0 DC {format_number(circuit.ambient)}")
-    for node in circuit.nodes:
-        lines.append(f"R{node.node} {node.node} {node.to} {format_number(node.rth)}")
-        if node.cth > 0:
-            lines.append(f"C{node.node} {node.node} 0 {format_number(node.cth)}")
-    for k, coupling in enumerate(circuit.couplings, start=1):
-        lines.append(
-            f"R{PREFIX}path{k} {coupling.a} {coupling.b} {format_number(coupling.rth)}"
-            f" ; {coupling.labels[0]} - {coupling.labels[1]}"
-        )
-    if shared:
-        lines.extend(_wrap(".global", [*thermal, *shared_nodes(form, models, heating)]))
-    if circuit.start == "cold":
-        t0 = format_number(circuit.ambient_at_start)
-        lines.extend(_wrap(".ic", [f"V({n})={t0}" for n in thermal if n != AMBIENT_NODE]))
-    return "".join(line + "\n" for line in lines)
-
-
-def _wrap(card: str, items: list[str], width: int = 90) -> list[str]:
-    """A card with many items, continued with ``+`` lines to stay readable."""
-    lines: list[str] = []
-    current = card
-    for item in items:
-        if len(current) + 1 + len(item) > width and current not in (card, "+"):
-            lines.append(current)
-            current = "+"
-        current += " " + item
-    lines.append(current)
-    return lines
-
-
 def emit_deck(
     project: Project,
     index: DeckIndex,
@@ -429,7 +334,7 @@ def emit_deck(
     if not title.endswith("\n"):
         title += "\n"
     edits = None
-    end_at = _end_at(deck)
+    end_at = end_position(deck)
     if deck.source is not None and end_at is not None:
         if written is None:
             written = deck.write()
@@ -443,114 +348,21 @@ def emit_deck(
         body.extend(rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
     # Each file's text in lower case, once: the option check and the name check search it.
-    folded = [(deck, _text_of(deck).lower(), titled) for deck, titled in _decks(project)]
+    folded = [(deck, text_of(deck).lower(), titled) for deck, titled in deck_files(project)]
     options = step_limit_options(form, [(low, t) for _d, low, t in folded], folded=True)
     section = Card(
         thermal_section(circuit, thermal, bool(rewriter.copies), form, options, heating)
     )
     if edits is not None:
         assert written is not None and end_at is not None
-        text = title + head + _spliced(deck, written, edits, section, end_at)
+        text = title + head + spliced(deck, written, edits, section, end_at)
     else:
-        body = _insert_before_end(body, section)
+        body = insert_before_end(body, section)
         text = replace(deck, title=title + head, body=tuple(body)).write()
     check_names(
         index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)], folded
     )
     return Emitted(text, tuple(rewriter.added), tuple(rewriter.findings), circuit)
-
-
-def _decks(project: Project) -> list[tuple[Deck, bool]]:
-    """The deck (titled) and each file it includes."""
-    return [(project.deck, True), *((inc.deck, False) for inc in project.includes)]
-
-
-def _text_of(deck: Deck) -> str:
-    return deck.write() if deck.source is None else deck.source.text
-
-
-def _end_at(deck: Deck) -> int | None:
-    """Where the thermal section goes in the deck's text as read: before the last
-    top-level ``.end`` card's trivia, else at the end of the body; ``None`` when that card
-    does not come from the file as read."""
-    for node in reversed(deck.body):
-        if isinstance(node, Card) and node.name == ".end":
-            if node.source is not deck.source or node.offset < 0:
-                return None
-            return node.offset - len(node.lead)
-    return -1
-
-
-def _spliced(
-    deck: Deck, text: str, edits: list[tuple[int, int, str]], section: Card, end_at: int
-) -> str:
-    """The deck's body and trailer, *text* being the deck as read: the edits spliced in,
-    and the thermal section at *end_at* (``-1``: after the body), placed as
-    :func:`_insert_before_end` places it in a tree."""
-    start = len(deck.title or "")
-    end = len(text) - len(deck.trailer)
-    at = end_at
-    section_text = section.text
-    if at < 0:
-        at = end
-        last = edits[-1][1] if edits else -1
-        if start < end and last != end and text[end - 1 : end] != "\n":
-            section_text = "\n" + section_text  # the file ended without a newline
-    pieces = []
-    pos = start
-    placed = False
-    for begin, finish, new in edits:
-        if not placed and at <= begin:
-            pieces += [text[pos:at], section_text]
-            pos, placed = at, True
-        pieces += [text[pos:begin], new]
-        pos = finish
-    if not placed:
-        pieces += [text[pos:at], section_text]
-        pos = at
-    pieces.append(text[pos:])
-    return "".join(pieces)
-
-
-def _insert_before_end(body: list[Node], section: Card) -> list[Node]:
-    """Put the thermal section before the top-level ``.end`` (or last, without one)."""
-    for i in range(len(body) - 1, -1, -1):
-        node = body[i]
-        if isinstance(node, Card) and node.name == ".end":
-            return [*body[:i], section, *body[i:]]
-    if body and not body[-1].write().endswith("\n"):
-        # The file ended without a newline: start the section on a line of its own.
-        section = Card("\n" + section.text)
-    return [*body, section]
-
-
-def check_names(
-    index: DeckIndex,
-    added: list[str],
-    folded: list[tuple[Deck, str, bool]] | None = None,
-) -> None:
-    """Every added name must be new: a collision is an error, never a silent rename.
-
-    Only cards whose text holds the reserved prefix can collide, so the files are searched
-    for it first (in *folded*, each deck's text in lower case, when the caller has it);
-    the field-level check runs on those cards alone.
-    """
-    if folded is None:
-        folded = [(d, _text_of(d).lower(), t) for d, t in _decks(index.project)]
-    wanted: set[str] | None = None
-    for card in (c for deck, low, _t in folded if PREFIX in low for c in deck.cards()):
-        if PREFIX not in card.text.lower():
-            continue
-        if wanted is None:
-            wanted = {name.lower() for name in added}
-        for field_text in card.fields():
-            low = field_text.lower()
-            if PREFIX in low and (low in wanted or low[1:] in wanted):
-                raise EmitError(
-                    f"the deck already uses the name {field_text!r}, which heatweave reserves",
-                    card.location(),
-                    hint=f"rename it: names containing {PREFIX!r} are heatweave's",
-                )
 
 
 @dataclass(frozen=True, slots=True)

@@ -74,7 +74,7 @@ def emit(
     """
     text = build_emitted(deck, annotations, form=form)
     if check_file is not None:
-        from heatweave.emitter import stale_reason
+        from heatweave.emitsections import stale_reason
 
         try:
             committed = read_text(check_file)
