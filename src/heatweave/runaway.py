@@ -240,8 +240,21 @@ def follow(cont: Continuation) -> BranchEnd | None:
     if j is None and reached:
         return BranchEnd(1.0, temps[:, -1], False, temps[:, -1])
     end = (j if j is not None else ftemps.shape[1]) - 1
-    end = max(end, 0)
+    end = last_on_branch(ftemps, max(end, 0))
     return BranchEnd(float(fdrive[end]), ftemps[:, end], True, None)
+
+
+def last_on_branch(temps: FloatArray, end: int) -> int:
+    """The last sweep point up to *end* that is still on the branch.
+
+    Approaching a fold the temperature steps grow without bound (T - T_fold goes as the
+    square root of the drive left); where they shrink again the solver has stalled just
+    past the fold, accepting points on the flat residual there.  The branch ends after its
+    largest step."""
+    if end < 2:
+        return end
+    steps = np.max(np.abs(np.diff(temps[:, : end + 1], axis=1)), axis=0)
+    return int(np.argmax(steps)) + 1
 
 
 def driving_point(circuit: ThermalCircuit) -> tuple[list[str], FloatArray]:
