@@ -6,6 +6,7 @@ Every test here that simulates really runs ngspice 39 (program or shared library
 from __future__ import annotations
 
 import shutil
+import threading
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -302,3 +303,25 @@ def test_deck_without_analysis_warns(simulator: Simulator) -> None:
     result = simulator.run(deck("divider.cir").replace(".op\n", ""))
     assert result.plots == ()
     assert any(warning.startswith("no analysis ran") for warning in result.warnings)
+
+
+def test_shared_library_waits_without_spinning(monkeypatch: pytest.MonkeyPatch) -> None:
+    # ngspice's background-thread callback passes false while the thread runs and true
+    # once it has ended (manual 19.3.3.6).  Read the other way round, the wait for the
+    # analysis returned at once and looped tens of thousands of times a second, burning a
+    # core beside the simulation; waited properly it wakes about once per poll interval.
+    from heatweave.simulators import shared
+
+    simulator = make("shared")
+    waits = []
+    real_wait = threading.Event.wait
+
+    def counted(self: threading.Event, timeout: float | None = None) -> bool:
+        waits.append(timeout)
+        return real_wait(self, timeout)
+
+    monkeypatch.setattr(threading.Event, "wait", counted)
+    result = simulator.run(deck("lowpass.cir"), analyses=("tran 100n 20m",))
+    assert result.plots[-1]["time"][-1] == pytest.approx(20e-3)
+    polls = [w for w in waits if w == shared._POLL]
+    assert 1 <= len(polls) < 2000

@@ -193,10 +193,12 @@ def _engine(path: str) -> Any:
             return 0
 
         @staticmethod
-        def _background_thread_running(is_running: bool, ngspice_id: int, user_data: Any) -> int:
-            # PySpice's own version returns None, which cffi reports on stderr.
+        def _background_thread_running(no_thread: bool, ngspice_id: int, user_data: Any) -> int:
+            # PySpice's own version returns None, which cffi reports on stderr.  The flag is
+            # false while the background thread runs, true once it has ended (manual
+            # 19.3.3.6, and what ngspice 39 does; 19.3.2.1 words it the other way round).
             self = ffi.from_handle(user_data)
-            if not is_running:
+            if no_thread:
                 self.heatweave_done.set()
             return 0
 
@@ -296,7 +298,15 @@ def _run_command(engine: Any, command: str, deadline: float | None, timeout: flo
     _command(engine, "bg_" + command)
     idle_since = None
     lib = engine._ngspice_shared
-    while not engine.heatweave_done.wait(_POLL) or lib.ngSpice_running():
+    while True:
+        finished = engine.heatweave_done.wait(_POLL)
+        if not lib.ngSpice_running():
+            if finished:
+                return
+        elif finished:
+            # The thread has said it ended (or an earlier one's word came late) while ngspice
+            # still runs: wait without the event, which would return at once and spin.
+            time.sleep(_POLL)
         now = time.monotonic()
         if deadline is not None and now > deadline:
             _command(engine, "bg_halt")
