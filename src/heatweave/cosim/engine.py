@@ -24,14 +24,14 @@ import numpy.typing as npt
 from heatweave.simulators.base import timed_out
 from heatweave.simulators.naming import VOLTAGE, vector_name
 from heatweave.simulators.shared import (
-    _LOCK,
+    ENGINE_LOCK,
     SharedSimulator,
-    _inside,
-    _load_deck,
-    _quiet_pyspice,
-    _raise_failure,
-    _stray_stderr,
-    _strings,
+    c_strings,
+    inside,
+    load_deck,
+    quiet_pyspice,
+    raise_failure,
+    stray_stderr,
 )
 from heatweave.thermal_circuit import PartPlan
 from heatweave.thermal_solver import Propagator, ThermalSystem
@@ -118,15 +118,15 @@ class Plan:
 def cosimulate(deck: str, cwd: str | Path, plan: Plan, timeout: float | None = None) -> Trace:
     """Run the windowed co-simulation of *deck* (the plain circuit, no analysis cards)."""
     engine = SharedSimulator().load()
-    with _LOCK, _quiet_pyspice():
+    with ENGINE_LOCK, quiet_pyspice():
         lib = engine._ngspice_shared
         try:
             _command(lib, "destroy all")
             engine.heatweave_log.clear()
             stray: list[str] = []
-            with _inside(Path(cwd)), _stray_stderr(stray):
-                _load_deck(engine, deck)
-                _raise_failure(engine.heatweave_log)
+            with inside(Path(cwd)), stray_stderr(stray):
+                load_deck(engine, deck)
+                raise_failure(engine.heatweave_log)
                 loop = _Loop(engine, plan)
                 trace = loop.run(timeout)
             _check(stray)
@@ -143,7 +143,7 @@ _PAUSED = re.compile(r"simulation interrupted|condition met: stop|pause requeste
 
 def _check(log: Sequence[str]) -> None:
     """Raise the failure the log shows, ignoring the messages of a paused transient."""
-    _raise_failure([line for line in log if not _PAUSED.search(line)])
+    raise_failure([line for line in log if not _PAUSED.search(line)])
 
 
 def _command(lib: Any, command: str) -> int:
@@ -271,7 +271,7 @@ class _Loop:
         """Every node voltage of the transient at the window ends."""
         plot = self.ffi.string(self.lib.ngSpice_CurPlot()).decode()
         out: dict[str, FloatArray] = {}
-        for raw in _strings(self.ffi, self.lib.ngSpice_AllVecs(plot.encode())):
+        for raw in c_strings(self.ffi, self.lib.ngSpice_AllVecs(plot.encode())):
             info = self.lib.ngGet_Vec_Info(f"{plot}.{raw}".encode())
             if int(info.v_type) != 3 or info.v_realdata == self.ffi.NULL:
                 continue

@@ -67,7 +67,7 @@ _PERCENT = re.compile(r"(\d+(?:\.\d+)?)\s*%")
 _IDLE_GRACE = 1.0
 _POLL = 0.02
 
-_LOCK = threading.RLock()
+ENGINE_LOCK = threading.RLock()
 _LOADED: dict[str, Any] = {}
 
 
@@ -93,7 +93,7 @@ def resolve_library(explicit: str | os.PathLike[str] | None = None) -> str:
 
 
 @contextmanager
-def _quiet_pyspice() -> Iterator[None]:
+def quiet_pyspice() -> Iterator[None]:
     """PySpice's loggers off, so its warnings and ngspice echoes stay out of user output."""
     loggers = [logging.getLogger("PySpice")] + [
         logging.getLogger(name)
@@ -111,7 +111,7 @@ def _quiet_pyspice() -> Iterator[None]:
 
 
 @contextmanager
-def _stray_stderr(sink: list[str]) -> Iterator[None]:
+def stray_stderr(sink: list[str]) -> Iterator[None]:
     """Catch what libngspice writes straight to file descriptor 2 into *sink*.
 
     A few ngspice messages (parts of failed ``.meas`` reports) bypass the callbacks.  Python's
@@ -139,7 +139,9 @@ def _stray_stderr(sink: list[str]) -> Iterator[None]:
 
 
 @contextmanager
-def _inside(folder: Path) -> Iterator[None]:
+def inside(folder: Path) -> Iterator[None]:
+    """Run the body with *folder* as the working directory (ngspice resolves includes
+    against it), restoring the old one afterwards."""
     before = os.getcwd()
     os.chdir(folder)
     try:
@@ -203,7 +205,7 @@ def _engine(path: str) -> Any:
             return 0
 
     Engine.LIBRARY_PATH = path.replace("{", "{{").replace("}", "}}")
-    with _quiet_pyspice():
+    with quiet_pyspice():
         try:
             engine = Engine(ngspice_id=0, send_data=False)
         except (OSError, NameError) as exc:
@@ -225,7 +227,7 @@ class SharedSimulator(Simulator):
 
     def load(self) -> Any:
         """Load the library now (it is loaded once per process); raises when it cannot."""
-        with _LOCK:
+        with ENGINE_LOCK:
             return _engine(resolve_library(self.library))
 
     def run(
@@ -242,22 +244,22 @@ class SharedSimulator(Simulator):
     ) -> SimResult:
         """See :meth:`Simulator.run`; progress comes from ngspice's status callback."""
         script = command_script(analyses, deck_analyses, save)
-        with _LOCK, working_folder(workdir) as folder, _quiet_pyspice():
+        with ENGINE_LOCK, working_folder(workdir) as folder, quiet_pyspice():
             engine = self.load()
             deadline = None if timeout is None else time.monotonic() + timeout
             try:
                 _command(engine, "destroy all")
                 engine.heatweave_log.clear()
                 engine.heatweave_progress = progress
-                with _inside(Path(cwd) if cwd is not None else folder):
-                    with _stray_stderr(engine.heatweave_log):
-                        _load_deck(engine, deck)
-                    _raise_failure(engine.heatweave_log)
-                    with _stray_stderr(engine.heatweave_log):
+                with inside(Path(cwd) if cwd is not None else folder):
+                    with stray_stderr(engine.heatweave_log):
+                        load_deck(engine, deck)
+                    raise_failure(engine.heatweave_log)
+                    with stray_stderr(engine.heatweave_log):
                         for command in script:
                             _run_command(engine, command, deadline, timeout)
                 log = "\n".join(engine.heatweave_log)
-                _raise_failure(engine.heatweave_log)
+                raise_failure(engine.heatweave_log)
                 plots = _read_plots(engine)
             finally:
                 engine.heatweave_progress = None
@@ -269,7 +271,7 @@ class SharedSimulator(Simulator):
         return diagnose.result(plots, log, self.name)
 
 
-def _raise_failure(log: list[str]) -> None:
+def raise_failure(log: list[str]) -> None:
     """Raise the error the log shows, if any."""
     error = diagnose.failure(diagnose.log_lines("\n".join(log)))
     if error is not None:
@@ -280,7 +282,8 @@ def _command(engine: Any, command: str) -> int:
     return int(engine._ngspice_shared.ngSpice_Command(command.encode("utf-8")))
 
 
-def _load_deck(engine: Any, deck: str) -> None:
+def load_deck(engine: Any, deck: str) -> None:
+    """Hand *deck* to the shared library line by line (``ngSpice_Circ``)."""
     ffi = engine.heatweave_ffi
     keep = [ffi.new("char[]", files.encode(line)) for line in deck.splitlines()]
     # ngSpice_Circ takes the deck as complete only at an ``.end`` line (a file does not need
@@ -320,7 +323,8 @@ def _run_command(engine: Any, command: str, deadline: float | None, timeout: flo
             return
 
 
-def _strings(ffi: Any, array: Any) -> list[str]:
+def c_strings(ffi: Any, array: Any) -> list[str]:
+    """The strings of a NULL-terminated C array of ``char *`` (vector and plot names)."""
     names = []
     index = 0
     while array[index] != ffi.NULL:
@@ -333,14 +337,14 @@ def _read_plots(engine: Any) -> tuple[Plot, ...]:
     """Every plot in memory except ``const``, oldest first, every vector copied out."""
     ffi = engine.heatweave_ffi
     lib = engine._ngspice_shared
-    plot_names = [name for name in _strings(ffi, lib.ngSpice_AllPlots()) if name != "const"]
+    plot_names = [name for name in c_strings(ffi, lib.ngSpice_AllPlots()) if name != "const"]
     plot_names.reverse()
     kinds = [kind_from_plot_name(name) for name in plot_names]
     plots = []
     for plot_name, kind, name in zip(plot_names, kinds, number_plots(kinds), strict=True):
         vectors: dict[str, Array] = {}
         scale = None
-        for raw in reversed(_strings(ffi, lib.ngSpice_AllVecs(plot_name.encode("utf-8")))):
+        for raw in reversed(c_strings(ffi, lib.ngSpice_AllVecs(plot_name.encode("utf-8")))):
             info = lib.ngGet_Vec_Info(f"{plot_name}.{raw}".encode())
             vtype = _VECTOR_TYPES.get(int(info.v_type))
             values = _values(ffi, info)
