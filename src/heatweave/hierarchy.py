@@ -199,6 +199,7 @@ def _without(items: list[_T], positions: list[int]) -> list[_T]:
     out.extend(items[start:])
     return out
 
+
 # Names that may not start with a letter (checked one by one with str.isalpha).
 _NOT_LETTER = re.compile(r"\n(?:[^A-Za-z\n]|(?=\n)|\Z)")
 
