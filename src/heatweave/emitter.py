@@ -355,7 +355,7 @@ def emit_deck(
     )
     if edits is not None:
         assert written is not None and end_at is not None
-        text = title + head + spliced(deck, written, edits, section, end_at)
+        text = spliced(deck, written, edits, section, end_at, title + head)
     else:
         body = insert_before_end(body, section)
         text = replace(deck, title=title + head, body=tuple(body)).write()

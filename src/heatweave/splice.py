@@ -24,11 +24,16 @@ def end_position(deck: Deck) -> int | None:
 
 
 def spliced(
-    deck: Deck, text: str, edits: list[tuple[int, int, str]], section: Card, end_at: int
+    deck: Deck,
+    text: str,
+    edits: list[tuple[int, int, str]],
+    section: Card,
+    end_at: int,
+    opening: str = "",
 ) -> str:
-    """The deck's body and trailer, *text* being the deck as read: the edits spliced in,
-    and the thermal section at *end_at* (``-1``: after the body), placed as
-    :func:`insert_before_end` places it in a tree."""
+    """*opening* (the new title and header), then the deck's body and trailer, *text* being
+    the deck as read: the edits spliced in, and the thermal section at *end_at* (``-1``:
+    after the body), placed as :func:`insert_before_end` places it in a tree."""
     start = len(deck.title or "")
     end = len(text) - len(deck.trailer)
     at = end_at
@@ -38,7 +43,7 @@ def spliced(
         last = edits[-1][1] if edits else -1
         if start < end and last != end and text[end - 1 : end] != "\n":
             section_text = "\n" + section_text  # the file ended without a newline
-    pieces = []
+    pieces = [opening]
     pos = start
     placed = False
     for begin, finish, new in edits:
