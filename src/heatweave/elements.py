@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import ast
 import contextlib
+import functools
 import math
 import operator
 import re
@@ -125,6 +126,15 @@ class ResistorValue:
     notes: tuple[str, ...]
 
 
+@functools.lru_cache(maxsize=4096)  # a large deck repeats its values many times over
+def _plain_value(text: str) -> ResistorValue | None:
+    """The value of a card that writes a bare number and nothing else (None: not one)."""
+    ohms = parse_number(text)
+    if ohms is not None and ohms != 0 and math.isfinite(ohms):
+        return ResistorValue(ohms, ())
+    return None
+
+
 #: Resistor instance parameters whose temperature effect the annotation model replaces.
 _TEMPERATURE_PARAMS = ("tc1", "tc2", "tc", "tce", "temp", "dtemp")
 
@@ -140,9 +150,9 @@ def resistor_value(
         simple = simple_resistor(card)
     if simple is not None:
         if not simple.group(4):  # the common card: a bare number, nothing set aside
-            ohms = parse_number(simple.group(3))
-            if ohms is not None and ohms != 0 and math.isfinite(ohms):
-                return ResistorValue(ohms, ())
+            plain = _plain_value(simple.group(3))
+            if plain is not None:
+                return plain
         positional.append(simple.group(3))
         pairs.update((k.lower(), v) for k, v in _PAIR.findall(simple.group(4)))
     else:
