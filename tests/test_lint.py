@@ -90,3 +90,33 @@ def test_missing_include_is_a_finding(tmp_path: Path) -> None:
     (finding,) = lint_file(str(deck))
     assert finding.severity == "error" and "not found" in finding.message
     assert finding.location is not None and finding.location.line == 2
+
+
+XSPICE_DECK = Path(__file__).parent / "decks" / "xspice_ports.cir"
+
+
+def test_xspice_ports_count_as_connections() -> None:
+    # Nodes reached through %v(), %vd(), %id(), [ ] vectors and ~ inversion are connected;
+    # the flip-flop's qb output really is connected nowhere else.
+    assert rendered(XSPICE_DECK) == [
+        f"{XSPICE_DECK}:14:1: warning: node qb has a single connection (Aflop)"
+    ]
+
+
+def test_vnam_names_a_source_not_a_node(tmp_path: Path) -> None:
+    deck = tmp_path / "vnam.cir"
+    deck.write_text(
+        "current into a multiplier\nV1 a 0 1\nVs a b 0\nR1 b 0 1k\n"
+        "Am [%v(a) %vnam(Vs)] %v(p) prod\n.model prod mult\nRp p 0 1\n.end\n"
+    )
+    assert rendered(deck) == []
+
+
+def test_emitted_switch_deck_lints_clean(tmp_path: Path) -> None:
+    from heatweave.emitter import emit_files
+
+    root = Path(__file__).parents[1] / "decks" / "current-monitor"
+    emitted = tmp_path / "monitor-emitted.cir"
+    note = root / "monitor.thermal.toml"
+    emitted.write_text(emit_files(str(root / "monitor.cir"), str(note), form="switch").text)
+    assert [m for m in rendered(emitted) if "single connection" in m] == []

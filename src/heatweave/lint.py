@@ -7,6 +7,7 @@ would make heatweave's output wrong; warnings are what is legal but likely a sli
 
 from __future__ import annotations
 
+import re
 from collections import Counter
 from collections.abc import Iterable, Iterator
 from pathlib import Path
@@ -15,7 +16,7 @@ from heatweave.deck import Block, Card, ControlBlock, Deck, Node
 from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location
 from heatweave.grammar import CardSyntaxError, parse_card
 from heatweave.hierarchy import DeckIndex, Project, Scope, load_project, subckt_ports, x_card_parts
-from heatweave.syntax import CardSyntax
+from heatweave.syntax import CardSyntax, ElementSyntax
 
 
 def syntax_of(card: Card) -> CardSyntax:
@@ -84,6 +85,19 @@ def _scopes(scope: Scope) -> Iterator[tuple[Scope, Block | None]]:
             yield found, block if block is not None else scope.subckts[key]
 
 
+# ``%vnam(V1)`` reads the current of source V1: a name, not a node (manual 12.1.1).
+_VNAM = re.compile(r"%vnam\s*\(\s*([^\s()]+)\s*\)", re.IGNORECASE)
+
+
+def _xspice_nodes(card: Card) -> list[str]:
+    """The nodes an XSPICE ``A`` card connects (``null`` ports and ``%vnam`` names aside)."""
+    syntax = syntax_of(card)
+    if not isinstance(syntax, ElementSyntax):
+        return []
+    names = {m.lower() for m in _VNAM.findall(card.logical().text)}
+    return [n.text for n in syntax.nodes if n.key not in names]
+
+
 def _connections(index: DeckIndex, scope: Scope, block: Block | None) -> Iterator[Finding]:
     """Duplicate names, unknown subcircuits, nodes with a single connection."""
     from heatweave.elements import card_nodes
@@ -112,7 +126,7 @@ def _connections(index: DeckIndex, scope: Scope, block: Block | None) -> Iterato
                     "define it with .subckt, or include the file that does",
                 )
         try:
-            nodes = card_nodes(card, index)
+            nodes = _xspice_nodes(card) if card.letter == "A" else card_nodes(card, index)
         except HeatweaveError:
             continue
         if card.letter == "K":
