@@ -437,3 +437,22 @@ def test_progress_bar_only_when_asked(capsys: pytest.CaptureFixture[str]) -> Non
     assert "corners 1/3 [" + "#" * 10 + "." * 20 + "]" in err
     assert "corners 2/3" in err and "1 failed" in err
     assert capsys.readouterr().out == ""
+
+
+def test_param_of_an_included_file_is_swept(tmp_path: Path) -> None:
+    # The supply voltage is set in an included file, which sweep leaves untouched: each
+    # corner's own .param before .end overrides it (ngspice keeps the last assignment).
+    (tmp_path / "supply.inc").write_text("* supply settings\n.param vheat=5\n")
+    deck = tmp_path / "heater.cir"
+    deck.write_text(
+        "heater across a supply set in an include\n.include supply.inc\n"
+        "VH feed 0 DC {vheat}\nRH feed 0 47\n.op\n.end\n"
+    )
+    shutil.copy(FIXTURES / "heater.thermal.toml", tmp_path / "heater.thermal.toml")
+    data = sweep_json(str(deck), "--param", "vheat=3:9:3")
+    for corner in data["corners"]:
+        v = corner["params"]["vheat"]
+        expected = heater_temperature(25.0, v)
+        assert corner["parts"]["RH"]["temperature"] == pytest.approx(expected, abs=t_tol(expected))
+        assert corner["voltages"]["feed"] == pytest.approx(v, rel=1e-9)
+    assert (tmp_path / "supply.inc").read_text() == "* supply settings\n.param vheat=5\n"

@@ -67,5 +67,5 @@ def insert_before_end(body: list[Node], section: Card) -> list[Node]:
             return [*body[:i], section, *body[i:]]
     if body and not body[-1].write().endswith("\n"):
         # The file ended without a newline: start the section on a line of its own.
-        section = Card("\n" + section.text)
+        section = Card(section.text, "\n" + section.lead)
     return [*body, section]

@@ -15,6 +15,7 @@ import re
 from dataclasses import replace
 
 from heatweave.deck import Block, Card, Node
+from heatweave.emitsections import MARK
 from heatweave.emitter import Inputs
 from heatweave.errors import Location, UsageError
 from heatweave.hierarchy import DeckIndex, Project
@@ -95,9 +96,23 @@ def top_level_params(inputs: Inputs) -> dict[str, Card]:
     return found
 
 
+def included_params(inputs: Inputs) -> dict[str, Card]:
+    """Every parameter a ``.param`` card at the top of an included file assigns (lower-case
+    name), with the last card that assigns it."""
+    found: dict[str, Card] = {}
+    for include in inputs.project.includes:
+        for card in _param_cards(include.body):
+            fields = card.fields()
+            for i in range(1, len(fields) - 1):
+                if fields[i + 1] == "=" and fields[i] != "=":
+                    found[fields[i].lower()] = card
+    return found
+
+
 def check_params(inputs: Inputs, names: list[str]) -> None:
-    """A located error for a ``--param`` the deck does not assign at its top level."""
-    known = top_level_params(inputs)
+    """A located error for a ``--param`` that neither the deck's top level nor the top of
+    an included file assigns."""
+    known = top_level_params(inputs) | included_params(inputs)
     for name in names:
         if name.lower() in known:
             continue
@@ -149,12 +164,19 @@ def rewrite_card(card: Card, name: str, value: float) -> Card:
 
 
 def with_params(inputs: Inputs, values: dict[str, float]) -> Inputs:
-    """*inputs* with the top-level ``.param`` values replaced, deck re-read and re-bound."""
+    """*inputs* with the ``.param`` values replaced, deck re-read and re-bound.
+
+    A parameter of the deck's top level is rewritten where it stands; one that only an
+    included file assigns gets a ``.param`` card of its own before the deck's ``.end``
+    (included files are never changed): ngspice keeps the last assignment of a parameter
+    in deck order, wherever it is used (checked against ngspice 39)."""
     if not values:
         return inputs
     from heatweave.annotations import bind
+    from heatweave.splice import insert_before_end
 
     deck = inputs.project.deck
+    top = top_level_params(inputs)
     body: list[Node] = []
     for node in deck.body:
         if type(node) is Card and node.name == ".param":
@@ -162,6 +184,10 @@ def with_params(inputs: Inputs, values: dict[str, float]) -> Inputs:
                 if _value_pattern(name).search(node.logical().text):
                     node = rewrite_card(node, name, value)
         body.append(node)
+    for name, value in values.items():
+        if name.lower() not in top:
+            override = Card(f".param {name}={format_number(value)}\n", f"{MARK}sweep\n")
+            body = insert_before_end(body, override)
     # Unchanged cards stay the same objects: the include bookkeeping finds them by identity.
     project = Project(deck.with_body(tuple(body)), inputs.project.includes)
     index = DeckIndex(project)

@@ -57,7 +57,8 @@ def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
     "param_ranges",
     multiple=True,
     metavar="NAME=START:STOP:STEP",
-    help="Values of a top-level .param of the deck (repeatable: the full grid).",
+    help="Values of a .param of the deck or of a file it includes (repeatable: the full "
+    "grid).",
 )
 @click.option(
     "--monte-carlo",
