@@ -87,8 +87,13 @@ def _param_cards(body: tuple[Node, ...]) -> list[Card]:
 def top_level_params(inputs: Inputs) -> dict[str, Card]:
     """Every parameter a top-level ``.param`` card of the deck assigns (lower-case name),
     with the last card that assigns it (the one ngspice keeps)."""
+    return _assigned(_param_cards(inputs.project.deck.body))
+
+
+def _assigned(cards: list[Card]) -> dict[str, Card]:
+    """Each parameter the ``.param`` *cards* assign, with the last card that does."""
     found: dict[str, Card] = {}
-    for card in _param_cards(inputs.project.deck.body):
+    for card in cards:
         fields = card.fields()
         for i in range(1, len(fields) - 1):
             if fields[i + 1] == "=" and fields[i] != "=":
@@ -99,14 +104,7 @@ def top_level_params(inputs: Inputs) -> dict[str, Card]:
 def included_params(inputs: Inputs) -> dict[str, Card]:
     """Every parameter a ``.param`` card at the top of an included file assigns (lower-case
     name), with the last card that assigns it."""
-    found: dict[str, Card] = {}
-    for include in inputs.project.includes:
-        for card in _param_cards(include.body):
-            fields = card.fields()
-            for i in range(1, len(fields) - 1):
-                if fields[i + 1] == "=" and fields[i] != "=":
-                    found[fields[i].lower()] = card
-    return found
+    return _assigned([c for inc in inputs.project.includes for c in _param_cards(inc.body)])
 
 
 def check_params(inputs: Inputs, names: list[str]) -> None:
