@@ -108,13 +108,17 @@ def _wrap(card: str, items: list[str], width: int = 90) -> list[str]:
     return lines
 
 
-def deck_files(project: Project) -> list[tuple[Deck, bool]]:
-    """The deck (titled) and each file it includes."""
-    return [(project.deck, True), *((inc.deck, False) for inc in project.includes)]
-
-
-def text_of(deck: Deck) -> str:
-    return deck.write() if deck.source is None else deck.source.text
+def folded_files(project: Project, written: str | None = None) -> list[tuple[Deck, str, bool]]:
+    """Each file's deck, its text in lower case and whether it has a title line: the deck
+    as it stands now (*written*, ``project.deck.write()``, when the caller has it; a sweep
+    edits it), then each included file as read (heatweave never edits those)."""
+    top = project.deck.write() if written is None else written
+    out = [(project.deck, top.lower(), True)]
+    for include in project.includes:
+        deck = include.deck
+        text = deck.write() if deck.source is None else deck.source.text
+        out.append((deck, text.lower(), False))
+    return out
 
 
 def check_names(
@@ -129,7 +133,7 @@ def check_names(
     the field-level check runs on those cards alone.
     """
     if folded is None:
-        folded = [(d, text_of(d).lower(), t) for d, t in deck_files(index.project)]
+        folded = folded_files(index.project)
     wanted: set[str] | None = None
     for card in (c for deck, low, _t in folded if PREFIX in low for c in deck.cards()):
         if PREFIX not in card.text.lower():

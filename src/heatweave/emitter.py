@@ -36,7 +36,7 @@ from heatweave.emitforms import (
     resistor_cards,
     step_limit_options,
 )
-from heatweave.emitsections import MARK, check_names, deck_files, header, text_of, thermal_section
+from heatweave.emitsections import MARK, check_names, folded_files, header, thermal_section
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, x_card_parts
 from heatweave.quantities import format_number
@@ -329,18 +329,18 @@ def emit_deck(
     if not circuit.parts:
         # Nothing heats: the deck is written back unchanged, byte for byte.
         return Emitted(deck.write() if written is None else written, (), (), circuit)
+    if written is None:
+        written = deck.write()
     rewriter = _Rewriter(index, circuit, form, heating)
     title = deck.title or "heatweave electrothermal deck\n"
     if not title.endswith("\n"):
         title += "\n"
     edits = None
     end_at = end_position(deck)
-    if deck.source is not None and end_at is not None:
-        if written is None:
-            written = deck.write()
-        if written == deck.source.text:  # the deck as read (a sweep may have edited it)
-            with paused_gc():
-                edits = rewriter.edits(deck.source)
+    # Splicing needs the deck as read (a sweep may have edited it).
+    if deck.source is not None and end_at is not None and written == deck.source.text:
+        with paused_gc():
+            edits = rewriter.edits(deck.source)
     body: list[Node] = []
     if edits is None:
         with paused_gc():
@@ -348,13 +348,13 @@ def emit_deck(
         body.extend(rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
     # Each file's text in lower case, once: the option check and the name check search it.
-    folded = [(deck, text_of(deck).lower(), titled) for deck, titled in deck_files(project)]
+    folded = folded_files(project, written)
     options = step_limit_options(form, [(low, t) for _d, low, t in folded], folded=True)
     section = Card(
         thermal_section(circuit, thermal, bool(rewriter.copies), form, options, heating)
     )
     if edits is not None:
-        assert written is not None and end_at is not None
+        assert end_at is not None
         text = spliced(deck, written, edits, section, end_at, title + head)
     else:
         body = insert_before_end(body, section)
