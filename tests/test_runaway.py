@@ -249,8 +249,9 @@ def test_coupled_thermistors_in_subcircuits(tmp_path: Path) -> None:
 
 @pytest.mark.parametrize(("stalled", "expected_end"), [(0, 29), (3, 29), (1, 29)])
 def test_points_past_the_fold_are_cut(stalled: int, expected_end: int) -> None:
-    # A saddle-node fold: T - T_fold = -sqrt(d_fold - d) (its normal form), sampled up to
-    # the fold, then points where a stalled solver sat near the fold temperature.
+    # A saddle-node fold: T - T_fold = -sqrt(d_fold - d), the branch of its normal form
+    # (S. H. Strogatz, Nonlinear Dynamics and Chaos, section 3.1; from memory), sampled up
+    # to the fold, then points where a stalled solver sat near the fold temperature.
     d = np.linspace(0.0, 0.29, 30)
     temps = 50.0 - np.sqrt(0.29 - d + 1e-12)
     stall = temps[-1] + np.array([0.002, 0.001, 0.003])[:stalled]
