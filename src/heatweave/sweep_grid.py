@@ -129,9 +129,13 @@ def check_params(inputs: Inputs, names: list[str]) -> None:
             listed = ", ".join(sorted(known)) or "none"
             hint = (
                 f"add '.param {name}=...' to the deck and use {{{name}}} where it applies "
-                f"(top-level .param names here: {listed})"
+                f"(.param names of the deck and its includes: {listed})"
             )
-        raise UsageError(f"--param {name}: the deck has no top-level .param {name}", where, hint)
+        raise UsageError(
+            f"--param {name}: neither the deck nor a file it includes sets .param {name}",
+            where,
+            hint,
+        )
 
 
 def _subckt_param(body: tuple[Node, ...], name: str) -> Card | None:
