@@ -593,6 +593,14 @@ def test_exact_name_beats_glob_and_case_is_ignored() -> None:
     assert got == [("RLOAD", "rload", "rtd"), ("R7", "r*", "linear"), ("X1.R2", "X1.*", "linear")]
 
 
+def test_a_name_twice_binds_its_first_card() -> None:
+    # ngspice 39 on a second card of a name: "device already exists, existing one being
+    # used" (seen here with ngspice -b; lint reports the duplicate as an error).
+    ann = loads(HEAD + '[part."R*"]\nmodel = "linear"\ntc1 = 1e-4\nrth = 5\n')
+    bound = bind(ann, Catalog(("R1", "R2", "V1", "r1", "R3", "R2")))
+    assert [(b.element, b.position) for b in bound] == [("R1", 0), ("R2", 1), ("R3", 4)]
+
+
 # --------------------------------------------------------------------------- JSON Schema
 
 

@@ -120,21 +120,20 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
             "which takes precedence over patterns",
         )
     chosen = globbed | exact
-    bound: list[BoundPart] = []
-    seen: set[str] = set()
-    kind_of = catalog.element_kind
-    for at in sorted(chosen):  # deck order
-        element = elements[at]
-        upper = element.upper()
-        if upper in seen:
-            continue  # a second card of the same name: ngspice's first one counts
-        seen.add(upper)
-        spec = chosen[at]
-        kind = kind_of(element).upper()
+    # In C-level passes over the chosen positions (a glob may choose a hundred thousand).
+    order = sorted(chosen)  # deck order
+    names = [elements[at] for at in order]
+    uppers = list(map(str.upper, names))
+    if len(set(uppers)) < len(uppers):  # a name twice: ngspice's first card of it counts
+        firsts = dict(zip(reversed(uppers), range(len(uppers) - 1, -1, -1), strict=True))
+        keep = sorted(firsts.values())
+        order, names = [order[k] for k in keep], [names[k] for k in keep]
+    specs = [chosen[at] for at in order]
+    kinds = [kind.upper() for kind in map(catalog.element_kind, names)]
+    for element, kind, spec in zip(names, kinds, specs, strict=True):
         if (kind == RESISTOR) != (spec.model is not None):
             _refuse_kind(element, kind, spec)
-        bound.append(BoundPart(element, kind, spec, at))
-    return tuple(bound)
+    return tuple(map(BoundPart, names, kinds, specs, order))
 
 
 def _matches(spec: PartSpec, element: str) -> bool:
