@@ -225,3 +225,17 @@ def test_fast_init_refuses_default_factory() -> None:
 
     with pytest.raises(TypeError, match="default_factory"):
         fast_init(WithFactory)
+
+
+def test_fast_init_without_slots_sets_through_setattr() -> None:
+    @fast_init
+    @dataclasses.dataclass(frozen=True)
+    class Unslotted:
+        a: str
+        b: int = 2
+
+    made = Unslotted("x")
+    assert (made.a, made.b) == ("x", 2)
+    assert made == Unslotted("x", 2)
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        made.a = "z"  # type: ignore[misc]
