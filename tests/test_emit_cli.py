@@ -103,6 +103,17 @@ def test_bad_input_is_located_and_exits_2(
     assert "hint:" in err
 
 
+@pytest.mark.parametrize("with_notes", [False, True], ids=["no annotation", "annotation"])
+def test_missing_deck_exits_2_without_a_traceback(tmp_path: Path, with_notes: bool) -> None:
+    notes = tmp_path / "notes.thermal.toml"
+    notes.write_text('schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\nrth = 1.0\n')
+    extra = ["-a", str(notes)] if with_notes else []
+    code, _out, err = invoke("emit", str(tmp_path / "nosuch.cir"), *extra)
+    assert code == 2, err
+    assert "Traceback" not in err
+    assert "nosuch.cir: no such file" in err and "hint:" in err
+
+
 @pytest.mark.ngspice
 @pytest.mark.parametrize("form", ["switch", "reference", "divider"])
 def test_each_form_gives_the_divider_steady_state(tmp_path: Path, form: str) -> None:

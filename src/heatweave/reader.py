@@ -133,10 +133,16 @@ def _lib_section_start(card: Card) -> bool:
 
 def read_file(path: str, *, title: bool = True) -> Deck:
     """Read a deck from disk (``-`` for standard input) with lossless decoding."""
+    return read(read_deck_text(path), path, title=title)
+
+
+def read_deck_text(path: str) -> str:
+    """A deck's text as :func:`heatweave.files.read_text` gives it, with an unreadable
+    file reported as a :class:`DeckStructureError` rather than an OS error."""
     from heatweave.files import read_text
 
     try:
-        text = read_text(path)
+        return read_text(path)
     except FileNotFoundError as err:
         raise DeckStructureError(
             f"cannot read {path}: no such file", hint="check the path and the current folder"
@@ -149,4 +155,3 @@ def read_file(path: str, *, title: bool = True) -> Deck:
         raise DeckStructureError(
             f"cannot read {path}: permission denied", hint="check the file's permissions"
         ) from err
-    return read(text, path, title=title)

@@ -26,7 +26,9 @@ def build_emitted(deck: str, annotation: str | None, *, form: str = "switch") ->
     """The emitted deck's text: the input unchanged when there is no annotation file."""
     chosen = Path(annotation) if annotation else default_annotation(deck)
     if chosen is None:
-        return read_text(deck)
+        from heatweave.reader import read_deck_text
+
+        return read_deck_text(deck)
     from heatweave.emitter import emit_files
 
     result = emit_files(deck, str(chosen), form=form)
