@@ -12,7 +12,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from heatweave.annotations import Annotation
-from heatweave.deck import Card, ControlBlock, Node
+from heatweave.deck import Card, ControlBlock, Deck, Node
 from heatweave.emitter import Emitted, Inputs, emit_inputs, load_inputs
 from heatweave.errors import (
     ConvergenceError,
@@ -65,14 +65,21 @@ class RunOutcome:
     results: RunResults
 
 
-def strip_control(text: str, path: str, allow: bool) -> tuple[str, tuple[Finding, ...]]:
-    """The deck without its ``.control`` blocks (unless *allow*), and a warning if any."""
+def strip_control(
+    text: str, path: str, allow: bool, origin: Deck | None = None
+) -> tuple[str, tuple[Finding, ...]]:
+    """The deck without its ``.control`` blocks (unless *allow*), and a warning if any.
+
+    *origin* is the deck as the user wrote it when *text* is the emitted deck: the warning
+    points at the block there, since the emitted deck's line numbers are not the user's.
+    """
     deck = read(text, path)
     blocks = [n for n in deck.body if isinstance(n, ControlBlock)]
     if allow or not blocks:
         return text, ()
     kept: list[Node] = [n for n in deck.body if not isinstance(n, ControlBlock)]
-    first = blocks[0]
+    own = [n for n in origin.body if isinstance(n, ControlBlock)] if origin else []
+    first = (own or blocks)[0]
     where = first.source.location(first.offset) if first.source else None
     warning = Finding(
         "warning",
@@ -108,7 +115,9 @@ def prepare(
         ambient=options.ambient,
         heating=heating,
     )
-    text, dropped = strip_control(emitted.text, inputs.deck_path, options.allow_control)
+    text, dropped = strip_control(
+        emitted.text, inputs.deck_path, options.allow_control, inputs.project.deck
+    )
     own = deck_analyses_of(text)
     if not options.analyses and not own and not options.allow_control:
         raise UsageError(
