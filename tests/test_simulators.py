@@ -153,6 +153,26 @@ def test_workdir_is_kept_when_given(simulator: Simulator, tmp_path: Path) -> Non
         ),
         ("unknown_model.cir", SimulatorError, EXIT_SIMULATION_FAILED, "valid modelname"),
         ("unknown_subckt.cir", SimulatorError, EXIT_SIMULATION_FAILED, "unknown subckt"),
+        # ngspice 39 names the rejected card and the reason on the two lines after
+        # "Error on line N or its substitute:"; both must reach the user (observed output)
+        (
+            "bad_tran_card.cir",
+            SimulatorError,
+            EXIT_SIMULATION_FAILED,
+            "'.tran 1m': TSTOP is invalid",
+        ),
+        (
+            "unknown_parameter.cir",
+            SimulatorError,
+            EXIT_SIMULATION_FAILED,
+            "'r1 a 0 1k junk=3': unknown parameter (junk)",
+        ),
+        (
+            "unknown_model.cir",
+            SimulatorError,
+            EXIT_SIMULATION_FAILED,
+            "'dclamp a 0 missingmodel': could not find a valid modelname",
+        ),
     ],
 )
 @pytest.mark.parametrize("backend", BACKENDS)

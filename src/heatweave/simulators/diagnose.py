@@ -34,6 +34,8 @@ _FATAL = re.compile(
     r"|simulation interrupted|there aren't any circuits loaded",
     re.IGNORECASE,
 )
+# ngspice 39 follows this line with the card it rejects and then the reason, each on a line.
+_REJECTED = re.compile(r"^error on line \d+ or its substitute:$", re.IGNORECASE)
 # Lines with "error" that do not stop the run: failed or noisy .meas statements.
 _HARMLESS = re.compile(r"^\s*error: measure|\.meas(ure)?\b.*failed!|^\s*\.meas", re.IGNORECASE)
 _WARNING = re.compile(r"\bwarning\b[:,]?\s*(?P<text>.*)", re.IGNORECASE)
@@ -70,7 +72,7 @@ def failure(lines: Sequence[str]) -> SimulatorError | None:
                 f"{line.strip()}",
                 hint=TIMESTEP_HINT,
             )
-    fatal = [line.strip() for line in relevant if _FATAL.search(line)]
+    fatal = _fatal_lines(relevant)
     if not fatal:
         return None
     converge = [line.strip() for line in relevant if _CONVERGENCE.search(line)]
@@ -79,8 +81,37 @@ def failure(lines: Sequence[str]) -> SimulatorError | None:
         return ConvergenceError(f"ngspice did not converge: {quoted}", hint=CONVERGENCE_HINT)
     return SimulatorError(
         "ngspice could not simulate the deck: " + " | ".join(fatal[:_MAX_QUOTED]),
-        hint="fix the deck lines ngspice names; its log shows them in context",
+        hint="fix the card ngspice quotes (it writes it in lower case); "
+        "'heatweave lint DECK' checks the syntax of every card",
     )
+
+
+def _fatal_lines(lines: Sequence[str]) -> list[str]:
+    """The lines that stopped ngspice; a rejected card becomes one ``rejected 'CARD': WHY``.
+
+    ngspice's own line number is left out: it counts the lines of the deck it was given
+    (the electrothermal one), not those of the user's deck.
+    """
+    found: list[str] = []
+    index = 0
+    while index < len(lines):
+        line = lines[index].strip()
+        index += 1
+        if _REJECTED.match(line):
+            follow: list[str] = []
+            while index < len(lines) and len(follow) < 2:
+                text = lines[index].strip()
+                if _REJECTED.match(text) or text.lower().startswith("simulation interrupted"):
+                    break
+                index += 1
+                if text:
+                    follow.append(text)
+            if follow:
+                found.append(f"rejected '{follow[0]}'" + "".join(f": {t}" for t in follow[1:]))
+                continue
+        if _FATAL.search(line):
+            found.append(line)
+    return found
 
 
 def _best(lines: Sequence[str]) -> str:
