@@ -84,6 +84,39 @@ def test_lint_validates_the_annotation_file(tmp_path: Path) -> None:
     assert any(f.location and f.location.line == 2 for f in findings)
 
 
+NOTES = 'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\nrth = 1.0\n'
+# What emit and check reject must fail lint too: (deck body, annotation, file, line, words).
+REJECTED_LATER = [
+    # check: a limit on a node the deck does not have
+    (
+        "V1 in 0 1\nR1 in out 1\nR2 out 0 1\n.op\n",
+        NOTES + '[limit."V(outt)"]\nmax = 1.0\n',
+        "amp.thermal.toml", 6, 'names node "outt"',
+    ),
+    # emit: the deck already uses a name heatweave adds for R1's hot spot
+    (
+        "V1 in 0 1\nR1 in hw_t_r1 1\nR2 hw_t_r1 0 1\n.op\n",
+        NOTES, "amp.cir", 3, "which heatweave reserves",
+    ),
+]
+
+
+@pytest.mark.parametrize(
+    ("body", "notes", "file", "line", "words"), REJECTED_LATER, ids=["limit", "reserved"]
+)
+def test_lint_finds_what_emit_and_check_reject(
+    tmp_path: Path, body: str, notes: str, file: str, line: int, words: str
+) -> None:
+    deck = tmp_path / "amp.cir"
+    deck.write_text("amp\n" + body + ".end\n")
+    (tmp_path / "amp.thermal.toml").write_text(notes)
+    errors = [f for f in lint_file(str(deck)) if f.severity == "error"]
+    assert [words in f.message for f in errors] == [True], errors
+    assert errors[0].location is not None
+    assert (errors[0].location.file, errors[0].location.line) == (str(tmp_path / file), line)
+    assert CliRunner().invoke(lint, [str(deck)]).exit_code == 1
+
+
 def test_missing_include_is_a_finding(tmp_path: Path) -> None:
     deck = tmp_path / "inc.cir"
     deck.write_text("inc\n.include nothere.inc\n.end\n")

@@ -162,15 +162,34 @@ def lint_project(project: Project, annotation: str | None = None) -> list[Findin
     for scope, block in _scopes(index.top):
         findings.extend(_connections(index, scope, block))
     if annotation is not None:
-        from heatweave.annotations import bind, load
-
-        try:
-            loaded = load(annotation, deck_name=project.deck.path)
-            findings.extend(loaded.warnings)
-            bind(loaded, index)
-        except HeatweaveError as err:
-            findings.append(Finding("error", err.message, err.location, err.hint))
+        findings.extend(_annotation_findings(project, index, annotation, findings))
     return sorted(findings, key=_order)
+
+
+def _annotation_findings(
+    project: Project, index: DeckIndex, annotation: str, known: list[Finding]
+) -> list[Finding]:
+    """The annotation file read, bound, its limits resolved and the deck emitted, as
+    ``check`` and ``emit`` do it: whatever they would reject is an error here too (once:
+    a card the grammar already rejected is not reported again)."""
+    from heatweave.annotations import bind, load
+    from heatweave.checks import resolve_limits
+    from heatweave.emitter import Inputs, emit_inputs
+
+    found: list[Finding] = []
+    try:
+        loaded = load(annotation, deck_name=project.deck.path)
+        found.extend(loaded.warnings)
+        bound = bind(loaded, index)
+        resolve_limits(loaded, index)
+        inputs = Inputs(str(project.deck.path), annotation, project, index, loaded, bound)
+        found.extend(emit_inputs(inputs).findings)
+    except HeatweaveError as err:
+        error = Finding("error", err.message, err.location, err.hint)
+        seen = {(f.location, f.message) for f in known}
+        if (error.location, error.message) not in seen:
+            found.append(error)
+    return found
 
 
 def _order(finding: Finding) -> tuple[str, int, int]:
