@@ -105,6 +105,32 @@ def test_convert_picks_a_part() -> None:
     assert code == 2 and "no [part.R9] table" in err
 
 
+# A part's rth/cth (how annotation files spell one stage) is a network --part can pick; one
+# RC stage is its own Foster and Cauer form: tau = rth * cth (definition of the stage).
+ANNOTATION_PARTS = [
+    ("RSH", "cauer", [[30.0, 0.05]]),
+    ("RSH", "foster", [[30.0, 1.5]]),
+    ("RLOAD", "foster", [[50.0, 0.2], [150.0, 20.0]]),
+]
+
+
+@pytest.mark.parametrize(("part", "target", "stages"), ANNOTATION_PARTS)
+def test_convert_reads_an_annotation_files_parts(
+    part: str, target: str, stages: list[list[float]]
+) -> None:
+    notes = str(FIXTURES / "annotation_single.toml")
+    code, out, err = _run("convert", notes, "--to", target, "--part", part)
+    assert code == 0, err
+    assert np.allclose(np.array(tomllib.loads(out)[target]), np.array(stages), rtol=1e-12)
+
+
+def test_convert_says_when_no_part_has_a_network(tmp_path: Path) -> None:
+    notes = tmp_path / "bare.toml"
+    notes.write_text('schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\n')
+    code, _, err = _run("convert", str(notes), "--to", "cauer")
+    assert code == 2 and "no part has a thermal network" in err and "--part" not in err
+
+
 @pytest.mark.parametrize(
     ("name", "where", "words"),
     [

@@ -123,6 +123,7 @@ def read_network_toml(text: str, filename: str, part: str | None = None) -> Netw
             "see https://toml.io for the syntax; a network is e.g. foster = [[0.5, 1e-3]]",
         ) from None
     table, header_line = _select(document, text, filename, part)
+    table = _with_single(table)
     keys = [key for key in FORMS if key in table]
     if len(keys) != 1:
         found_keys = ", ".join(keys) if keys else "none"
@@ -142,6 +143,13 @@ def read_network_toml(text: str, filename: str, part: str | None = None) -> Netw
         raise err.at(_where(text, filename, key_line)) from None
 
 
+def _with_single(table: dict[str, object]) -> dict[str, object]:
+    """An annotation part's ``rth`` (with ``cth``, default 0) as the ``single`` key it means."""
+    if "rth" not in table or any(key in table for key in FORMS):
+        return table
+    return {**table, "single": [table["rth"], table.get("cth", 0.0)]}
+
+
 def _select(
     document: dict[str, object], text: str, filename: str, part: str | None
 ) -> tuple[dict[str, object], int | None]:
@@ -153,9 +161,17 @@ def _select(
             "no thermal network found", _where(text, filename, 1),
             "write foster = [[rth, tau], ...] or cauer = [[rth, cth], ...] at the top level",
         )
-    with_network = sorted(name for name, body in parts.items()
-                          if isinstance(body, dict) and any(key in body for key in FORMS))
+    with_network = sorted(
+        name for name, body in parts.items()
+        if isinstance(body, dict) and any(key in _with_single(body) for key in FORMS)
+    )  # fmt: skip
     if part is None:
+        if not with_network:
+            raise DataFileError(
+                "no part has a thermal network", _where(text, filename, 1),
+                "give a part foster = [[rth, tau], ...], cauer = [[rth, cth], ...] or rth "
+                "with cth",
+            )
         if len(with_network) != 1:
             raise DataFileError(
                 f"{len(with_network)} parts hold a network: {', '.join(with_network) or 'none'}",
