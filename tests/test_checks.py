@@ -208,6 +208,17 @@ def test_junit_report(tmp_path: Path) -> None:
     assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d", suite.get("timestamp", ""))
 
 
+def test_junit_on_stdout_is_the_xml_alone(tmp_path: Path) -> None:
+    """``--junit -``: stdout must parse as XML, so the check lines go to stderr."""
+    path = tmp_path / "divider.thermal.toml"
+    path.write_text(base_annotation())
+    result = CliRunner().invoke(main, ["check", str(DECK), "-a", str(path), "--op", "--junit", "-"])
+    assert result.exit_code in (0, 1), result.stderr
+    root = ET.fromstring(result.stdout)
+    assert root.tag == "testsuites"
+    assert "limits checked" in result.stderr
+
+
 def test_rating_follows_an_ambient_profile(tmp_path: Path) -> None:
     """Ambient ramps 25 -> 120 degC over 100 s; with tau = Rth Cth = 6 ms the part follows
     quasi-statically, so the worst instant is the end, where the steady state at 120 degC

@@ -69,12 +69,14 @@ def check(
     baseline = runner.run_baseline(inputs, options) if checks.needs_baseline(signals) else None
     found = checks.evaluate(outcome, signals, baseline)
     elapsed = time.monotonic() - started
+    # With the JUnit report on stdout, the lines go to stderr so that stdout stays XML.
+    stream = sys.stderr if junit_file == "-" else sys.stdout
     for item in found:
         line = item.message()
-        if is_terminal(sys.stdout):
+        if is_terminal(stream):
             line = click.style(line[:4], fg="green" if item.passed else "red") + line[4:]
-        click.echo(line)
-    click.echo(f"{deck}: {checks.summary(found)}")
+        click.echo(line, file=stream)
+    click.echo(f"{deck}: {checks.summary(found)}", file=stream)
     if junit_file is not None:
         from heatweave.files import write_atomic
 
