@@ -17,6 +17,7 @@ from scipy.optimize import brentq
 from heatweave.emitforms import (
     FORMS,
     STEP_LIMIT_OPTION,
+    TRTOL_NOTE,
     added_nodes,
     falls_back,
     preamble,
@@ -24,6 +25,7 @@ from heatweave.emitforms import (
     shared_nodes,
     step_limit_options,
 )
+from heatweave.emitter import emit_files
 from heatweave.simulators import get_simulator
 from heatweave.tempmodels import REGISTRY, TempModel, get
 
@@ -351,3 +353,33 @@ def test_every_model_card_is_used_and_every_used_one_defined(
     defined = {c.split()[1] for c in shared if c.startswith(".model")}
     used = {c.split()[-1] for c in cards if c.startswith("A")}
     assert used == defined
+
+
+@pytest.mark.parametrize("form", list(FORMS))
+def test_code_model_decks_say_that_ngspice_fixes_trtol(form: str) -> None:
+    monitor = Path(__file__).parents[1] / "decks" / "current-monitor"
+    text = emit_files(str(monitor / "monitor.cir"), str(monitor / "monitor.thermal.toml"),
+                      form=form).text  # fmt: skip
+    assert (TRTOL_NOTE in text) is (form != "reference")
+
+
+@pytest.mark.ngspice
+def test_ngspice_runs_code_model_decks_at_trtol_one() -> None:
+    # What TRTOL_NOTE says, seen on ngspice 39 (manual 15.1.4: "If XSPICE is configured and
+    # 'A' devices are included, the value is internally set to 1"): an RC-L deck whose step
+    # the truncation error sets takes more time points once it holds one idle code model,
+    # and .options trtol=7 does not bring them back.
+    base = (
+        "trtol\nV1 in 0 PULSE(0 1 0 1u 1u 50u 100u)\nR1 in a 1k\nC1 a 0 10n\nL1 a b 1m\n"
+        "R2 b 0 50\n"
+    )
+    idle = (
+        "Ax a %gd(a 0) hw_idle\n"
+        ".model hw_idle aswitch(cntl_off=0 cntl_on=1 r_off=1e12 r_on=1e12 log=FALSE)\n"
+    )
+    counts = []
+    for extra in ("", idle, idle + ".options trtol=7\n"):
+        text = base + extra + ".tran 1u 10m\n.end\n"
+        counts.append(len(simulate(text)["v(a)"]))
+    plain, coded, asked = counts
+    assert coded > 1.1 * plain and asked == coded

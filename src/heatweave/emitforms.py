@@ -371,6 +371,11 @@ STEP_LIMIT_OPTION = ".options convabsstep=1e30"
 STEP_LIMIT_NOTE = (
     "* code models of heatweave only (aswitch, mult): no Newton-step limit on their inputs"
 )
+#: Written above the shared ``.model`` cards of a form that writes code models.
+TRTOL_NOTE = (
+    "* with code models ngspice runs transients at trtol=1 whatever .options say (manual\n"
+    "* 15.1.4): where truncation error sets the step, more time points than the plain deck"
+)
 
 
 def step_limit_options(

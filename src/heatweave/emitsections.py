@@ -8,7 +8,7 @@ import hashlib
 
 from heatweave import __version__
 from heatweave.deck import Deck
-from heatweave.emitforms import preamble, shared_nodes
+from heatweave.emitforms import TRTOL_NOTE, preamble, shared_nodes
 from heatweave.errors import EmitError
 from heatweave.hierarchy import DeckIndex, Project
 from heatweave.quantities import format_number
@@ -71,7 +71,10 @@ def thermal_section(
     lines = [f"{MARK}thermal network"]
     # Each model object once (parts of one table with equal values share one).
     models = list({id(p.model): p.model for p in circuit.parts if p.model is not None}.values())
-    lines.extend(preamble(form, models, heating))
+    shared_models = preamble(form, models, heating)
+    if any(card.startswith(".model") for card in shared_models):  # code models: XSPICE's trtol
+        lines.append(TRTOL_NOTE)
+    lines.extend(shared_models)
     lines.extend(options or ())
     if isinstance(circuit.ambient, tuple):
         points = " ".join(f"{format_number(t)} {format_number(v)}" for t, v in circuit.ambient)
