@@ -9,7 +9,13 @@ from __future__ import annotations
 import difflib
 from typing import TypeVar
 
-from heatweave.tempmodels.base import ParamSpec, ParamValue, ParamWarning, TempModel
+from heatweave.tempmodels.base import (
+    ParamSpec,
+    ParamValue,
+    ParamWarning,
+    TempModel,
+    ValidRange,
+)
 
 REGISTRY: dict[str, type[TempModel]] = {}
 
@@ -20,6 +26,8 @@ def register(cls: _M) -> _M:
     """Class decorator adding a model to :data:`REGISTRY` under its ``name``."""
     if cls.name in REGISTRY:
         raise ValueError(f"temperature model {cls.name!r} registered twice")
+    if not any("valid_range" in vars(k) for k in cls.__mro__ if k is not TempModel):
+        raise ValueError(f"temperature model {cls.name!r} declares no valid_range")
     REGISTRY[cls.name] = cls
     return cls
 
@@ -67,6 +75,7 @@ __all__ = [
     "ParamWarning",
     "TempModel",
     "UnknownModelError",
+    "ValidRange",
     "exponential",
     "get",
     "linear",

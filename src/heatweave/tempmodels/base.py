@@ -57,6 +57,26 @@ class ParamSpec:
 
 
 @dataclass(frozen=True, slots=True)
+class ValidRange:
+    """The temperatures (degC) over which a model's formula is defined, and who says so.
+
+    Outside it the formula is an extrapolation: a polynomial such as Callendar-Van Dusen
+    bends back, so a solution found there is not a physical answer.
+    """
+
+    low: float
+    high: float
+    source: str  # the standard or data sheet that defines the range
+
+    def __contains__(self, t_c: object) -> bool:
+        return isinstance(t_c, int | float) and self.low <= t_c <= self.high
+
+    def describe(self) -> str:
+        """``-200 to 850 degC (IEC 60751)``."""
+        return f"{self.low:g} to {self.high:g} degC ({self.source})"
+
+
+@dataclass(frozen=True, slots=True)
 class ParamWarning:
     """A likely unit slip or implausible value: which key, what looks wrong, what to try."""
 
@@ -107,6 +127,9 @@ class TempModel(ABC):
     params: ClassVar[tuple[ParamSpec, ...]]
     # The temperature at which the deck's value holds when the annotation gives no ``tref``.
     default_tref: ClassVar[float] = 25.0
+    # Where the formula is defined, ``None`` when no published range applies to the model
+    # as such.  Every registered model declares it in its own class body (see ``register``).
+    valid_range: ClassVar[ValidRange | None] = None
 
     @classmethod
     @abstractmethod

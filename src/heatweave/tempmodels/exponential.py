@@ -22,6 +22,7 @@ from heatweave.tempmodels.base import (
     ParamValue,
     ParamWarning,
     TempModel,
+    ValidRange,
     paren,
     written,
 )
@@ -36,6 +37,7 @@ class Exponential(TempModel):
 
     name: ClassVar[str] = "exponential"
     summary: ClassVar[str] = "ngspice's tce model: R0 1.01^(tce dT)"
+    valid_range: ClassVar[ValidRange | None] = None  # a coefficient fit: no published range
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
             "tce",

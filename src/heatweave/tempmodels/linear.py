@@ -18,6 +18,7 @@ from heatweave.tempmodels.base import (
     ParamValue,
     ParamWarning,
     TempModel,
+    ValidRange,
     paren,
     pick,
     written,
@@ -137,4 +138,5 @@ class Linear(Polynomial):
 
     name: ClassVar[str] = "linear"
     summary: ClassVar[str] = "first-order TCR: R0 (1 + tc1 dT)"
+    valid_range: ClassVar[ValidRange | None] = None  # a coefficient fit: no published range
     params: ClassVar[tuple[ParamSpec, ...]] = tuple(replace(s, required=True) for s in TC1)

@@ -22,6 +22,7 @@ from heatweave.tempmodels.base import (
     ParamValue,
     ParamWarning,
     TempModel,
+    ValidRange,
     paren,
     written,
 )
@@ -34,6 +35,7 @@ class NtcBeta(TempModel):
 
     name: ClassVar[str] = "ntc-beta"
     summary: ClassVar[str] = "NTC thermistor, Beta equation"
+    valid_range: ClassVar[ValidRange | None] = None  # each data sheet its own; none universal
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
             "r25",

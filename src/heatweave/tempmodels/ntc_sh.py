@@ -27,6 +27,7 @@ from heatweave.tempmodels.base import (
     ParamValue,
     ParamWarning,
     TempModel,
+    ValidRange,
     paren,
     written,
 )
@@ -39,6 +40,7 @@ class NtcSteinhartHart(TempModel):
 
     name: ClassVar[str] = "ntc-sh"
     summary: ClassVar[str] = "NTC thermistor, Steinhart-Hart equation"
+    valid_range: ClassVar[ValidRange | None] = None  # each fit its own; none universal
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec("a", "1/K", "Steinhart-Hart A", required=True, example="1.129148e-3"),
         ParamSpec(

@@ -30,6 +30,7 @@ from heatweave.tempmodels.base import (
     ParamValue,
     ParamWarning,
     TempModel,
+    ValidRange,
     paren,
     written,
 )
@@ -45,6 +46,7 @@ class Ptc(TempModel):
 
     name: ClassVar[str] = "ptc"
     summary: ClassVar[str] = "switching PTC thermistor, smooth exponential rise to r_max"
+    valid_range: ClassVar[ValidRange | None] = None  # saturates at r_max: defined everywhere
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
             "r25",

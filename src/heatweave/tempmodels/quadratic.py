@@ -10,7 +10,7 @@ from dataclasses import dataclass, replace
 from typing import ClassVar
 
 from heatweave.tempmodels import register
-from heatweave.tempmodels.base import ParamSpec
+from heatweave.tempmodels.base import ParamSpec, ValidRange
 from heatweave.tempmodels.linear import TC1, TC2, Polynomial
 
 
@@ -21,4 +21,5 @@ class Quadratic(Polynomial):
 
     name: ClassVar[str] = "quadratic"
     summary: ClassVar[str] = "second-order TCR: R0 (1 + tc1 dT + tc2 dT^2)"
+    valid_range: ClassVar[ValidRange | None] = None  # a coefficient fit: no published range
     params: ClassVar[tuple[ParamSpec, ...]] = TC1 + tuple(replace(s, required=True) for s in TC2)

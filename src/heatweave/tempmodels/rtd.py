@@ -2,6 +2,8 @@
 
 IEC 60751: R(t) = R0 (1 + A t + B t^2 + C (t - 100) t^3), t in degC, the C term only below
 0 degC; A = 3.9083e-3, B = -5.775e-7, C = -4.183e-12.  R0 is the resistance at 0 degC.
+The standard defines the equation from -200 to 850 degC only; beyond 850 degC the negative
+B term bends R(t) back down (a maximum near 3400 degC), so solutions there are artefacts.
 
 The deck's value is R0 by default: for this model ``tref`` defaults to 0 degC, so a Pt100
 written as ``100`` is 100 ohm at 0 degC.  With ``r0`` given the deck's value is ignored; with
@@ -25,6 +27,7 @@ from heatweave.tempmodels.base import (
     ParamValue,
     ParamWarning,
     TempModel,
+    ValidRange,
     paren,
     pick,
     written,
@@ -43,6 +46,7 @@ class Rtd(TempModel):
     name: ClassVar[str] = "rtd"
     summary: ClassVar[str] = "platinum RTD, Callendar-Van Dusen (IEC 60751)"
     default_tref: ClassVar[float] = 0.0
+    valid_range: ClassVar[ValidRange | None] = ValidRange(-200.0, 850.0, "IEC 60751")
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
             "r0",

@@ -24,6 +24,7 @@ from heatweave.tempmodels.base import (
     ParamSpec,
     ParamValue,
     TempModel,
+    ValidRange,
     paren,
 )
 
@@ -35,6 +36,7 @@ class Table(TempModel):
 
     name: ClassVar[str] = "table"
     summary: ClassVar[str] = "piecewise-linear R(T) from points"
+    valid_range: ClassVar[ValidRange | None] = None  # flat outside its points by definition
     params: ClassVar[tuple[ParamSpec, ...]] = (
         ParamSpec(
             "points",
