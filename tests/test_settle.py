@@ -330,7 +330,10 @@ def test_cli_json_csv_and_table(tmp_path: Path) -> None:
     assert part["resistance"] == pytest.approx(50 * (1 + 0.004 * (part["temperature"] - 25)))
     assert data["iterations"] == len(data["history"]) and data["final_change"] < 0.01
     rows = csv.read_text().splitlines()
-    assert rows[0] == "time_s,T(R1)_degC" and len(rows) == len(data["envelope"]["time"]) + 1
+    # run's CSV names (reports/csv_report.py) and its full-precision numbers.
+    assert rows[0] == "time [s],T(R1) [degC]" and len(rows) == len(data["envelope"]["time"]) + 1
+    last = [float(cell) for cell in rows[-1].split(",")]
+    assert last == [data["envelope"]["time"][-1], data["envelope"]["parts"]["R1"][-1]]
     assert "R1" in result.output and "caution:" in result.output
 
 

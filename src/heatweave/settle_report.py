@@ -1,5 +1,8 @@
 """What ``heatweave settle`` writes: the JSON report, the warm-up CSV, the terminal table.
 
+The CSV and the table's caution follow ``run``'s (:mod:`heatweave.reports.csv_report`,
+:mod:`heatweave.reports.table`).
+
 JSON keys follow ``run``'s report where the meaning is the same (``parts.NAME.temperature``,
 ``.peak_temperature``, ``.power``, ``.resistance``, ``nodes.NAME``), read over the settled
 period: ``temperature`` is the cycle mean, ``peak_temperature`` and ``valley_temperature``
@@ -14,11 +17,14 @@ from __future__ import annotations
 
 import json
 import math
+import textwrap
 from typing import Any
 
 from heatweave import __version__
 from heatweave.emitter import Inputs
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
+from heatweave.reports.csv_report import TIME_HEADER, render_columns, temperature_header
+from heatweave.reports.table import WIDTH
 from heatweave.settle import Settled, Step
 
 
@@ -99,16 +105,15 @@ def render_json(settled: Settled, inputs: Inputs) -> str:
 
 
 def render_csv(settled: Settled) -> str:
-    """The warm-up curve as CSV: ``time_s`` then one column per part and shared node."""
+    """The warm-up curve as CSV, in ``run``'s form (:mod:`heatweave.reports.csv_report`):
+    ``time [s]``, then the temperature of each part and of each shared node (``@label``)."""
     env = settled.envelope
     if env is None:
         return ""
-    names = [*env.parts, *env.nodes]
-    columns = [*env.parts.values(), *env.nodes.values()]
-    lines = [",".join(["time_s", *(f"T({name})_degC" for name in names)])]
-    for k, t in enumerate(env.time):
-        lines.append(",".join([repr(float(t)), *(f"{float(c[k]):.6f}" for c in columns)]))
-    return "\n".join(lines) + "\n"
+    cols = [(TIME_HEADER, env.time)]
+    cols += [(temperature_header(name), values) for name, values in env.parts.items()]
+    cols += [(temperature_header(name, node=True), values) for name, values in env.nodes.items()]
+    return render_columns(cols)
 
 
 def progress_line(step: Step) -> str:
@@ -163,5 +168,5 @@ def render_table(settled: Settled) -> str:
         cells = [row[0].ljust(widths[0])]
         cells += [cell.rjust(widths[k]) for k, cell in enumerate(row) if k]
         lines.append("  ".join(cells).rstrip())
-    lines.extend(["", CAUTION_LINE])
+    lines += ["", *textwrap.wrap(CAUTION_LINE, WIDTH)]
     return "\n".join(lines) + "\n"

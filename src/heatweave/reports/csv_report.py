@@ -20,6 +20,14 @@ import numpy as np
 from heatweave.reports.model import RunReport
 from heatweave.results import FloatArray
 
+#: The time column's header.
+TIME_HEADER = "time [s]"
+
+
+def temperature_header(name: str, *, node: bool = False) -> str:
+    """The header of a part's (or, with *node*, a shared thermal node's) temperature."""
+    return f"T({'@' if node else ''}{name}) [degC]"
+
 
 def columns(report: RunReport) -> list[tuple[str, FloatArray]]:
     """(header, values) for every column, in file order."""
@@ -31,15 +39,17 @@ def columns(report: RunReport) -> list[tuple[str, FloatArray]]:
     out: list[tuple[str, FloatArray]] = []
     if report.transient:
         assert results.time is not None
-        out.append(("time [s]", results.time))
+        out.append((TIME_HEADER, results.time))
     for row in report.rows:
         part = row.result
-        out.append((f"T({part.path}) [degC]", series(part.temperature, part.temperature_series)))
+        temperature = series(part.temperature, part.temperature_series)
+        out.append((temperature_header(part.path), temperature))
         if part.resistance is not None:
             out.append((f"R({part.path}) [ohm]", series(part.resistance, part.resistance_series)))
         out.append((f"P({part.path}) [W]", series(part.power, part.power_series)))
     for label, final in results.nodes.items():
-        out.append((f"T(@{label}) [degC]", series(final, results.node_series.get(label))))
+        node_series = series(final, results.node_series.get(label))
+        out.append((temperature_header(label, node=True), node_series))
     for node, final in results.voltages.items():
         out.append((f"V({node}) [V]", series(final, results.voltage_series.get(node))))
     return out
@@ -47,7 +57,11 @@ def columns(report: RunReport) -> list[tuple[str, FloatArray]]:
 
 def render(report: RunReport) -> str:
     """The CSV text; numbers written with full precision (``repr``)."""
-    cols = columns(report)
+    return render_columns(columns(report))
+
+
+def render_columns(cols: list[tuple[str, FloatArray]]) -> str:
+    """CSV text of (header, values) columns of equal length, numbers at full precision."""
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow([name for name, _ in cols])
