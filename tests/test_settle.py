@@ -337,6 +337,20 @@ def test_cli_json_csv_and_table(tmp_path: Path) -> None:
     assert "R1" in result.output and "caution:" in result.output
 
 
+@needs_ngspice
+@pytest.mark.ngspice
+@pytest.mark.parametrize("envelope", [None, 0.06], ids=["steady", "with-envelope"])
+def test_wrong_period_warns_once(envelope: float | None) -> None:
+    """A 1 kHz drive examined in 0.7 ms windows never repeats: every electrical simulation
+    sees it, but the report says so once, with the largest difference seen."""
+    deck, annotation = fixture("pwm_heater")
+    options = SettleOptions(period=7e-4, max_periods=8, envelope=envelope, envelope_points=3)
+    settled = settle(deck, annotation, options)
+    waveform = [f for f in settled.findings if "waveform" in f.message]
+    assert len(waveform) == 1, [f.message for f in waveform]
+    assert "--period" in (waveform[0].hint or "")
+
+
 @pytest.mark.parametrize(
     ("args", "needle"),
     [

@@ -115,7 +115,31 @@ class Electrical:
         assert circuit is not None
         self.circuit: ThermalCircuit = circuit
         self.resistors = tuple(p for p in circuit.parts if p.is_resistor)
-        self.findings: list[Finding] = list(self.base.findings)
+        self.cycles = 0  # calls of cycle() so far
+        self.unsettled: list[tuple[float, int]] = []  # (repeat error, periods) above wave_tol
+
+    @property
+    def findings(self) -> list[Finding]:
+        """The preparation's findings, then one warning if any cycle never repeated.
+
+        Every cycle of a run sees the same unsuitable drive (a wrong ``--period``), so the
+        warning is given once, for the largest difference seen, not once per cycle.
+        """
+        findings = list(self.base.findings)
+        if self.unsettled:
+            error, periods = max(self.unsettled)
+            findings.append(
+                Finding(
+                    "warning",
+                    f"the electrical waveform still changes by {error:.2g} (relative) from "
+                    f"one period to the next after {periods} periods (in "
+                    f"{len(self.unsettled)} of {self.cycles} cycles simulated)",
+                    None,
+                    "pass a larger --periods, or check that the drive really is periodic "
+                    "with --period",
+                )
+            )
+        return findings
 
     def _analysis(self, periods: int) -> str:
         stop = periods * self.period
@@ -145,17 +169,9 @@ class Electrical:
             if error <= self.wave_tol or periods >= max_periods:
                 break
             periods = min(2 * periods, max_periods)
+        self.cycles += 1
         if error > self.wave_tol:
-            self.findings.append(
-                Finding(
-                    "warning",
-                    f"the electrical waveform still changes by {error:.2g} (relative) from one "
-                    f"period to the next after {periods} periods",
-                    None,
-                    "pass a larger --periods, or check that the drive really is periodic "
-                    "with --period",
-                )
-            )
+            self.unsettled.append((error, periods))
         end = float(results.time[-1])
         times, last = window(results.time, signals, end - self.period, end)
         n = power.shape[1]
