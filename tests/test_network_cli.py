@@ -135,7 +135,10 @@ def test_convert_says_when_no_part_has_a_network(tmp_path: Path) -> None:
     ("name", "where", "words"),
     [
         ("bad_value.toml", "bad_value.toml:1:1:", "cth of cauer stage 2"),
-        ("bad_syntax.toml", "bad_syntax.toml:1:", ""),
+        # Unclosed values: tomllib says "at end of document"; the position is the value's
+        # opening bracket, as the annotation loader reports it (test_annotations.py).
+        ("bad_syntax.toml", "bad_syntax.toml:1:10:", "unclosed array"),
+        ("bad_unclosed.toml", "bad_unclosed.toml:6:10:", "unclosed array"),
     ],
 )
 def test_convert_bad_files_are_located(name: str, where: str, words: str) -> None:

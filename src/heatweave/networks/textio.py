@@ -11,6 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from heatweave.annotation_locator import syntax_error
 from heatweave.errors import InputError, Location
 from heatweave.networks.base import FORMS, FloatArray, NetworkError, NetworkForm
 from heatweave.networks.cauer import Cauer
@@ -86,9 +87,6 @@ def read_zth_csv(text: str, filename: str) -> ZthData:
     return ZthData(np.array(times), np.array(values), tuple(lines))
 
 
-_TOML_POSITION = re.compile(r"\(at line (\d+), column (\d+)\)")
-
-
 def _line_of(text: str, pattern: str, after: int = 0) -> int | None:
     lines = text.splitlines()
     for index in range(after, len(lines)):
@@ -113,13 +111,11 @@ def read_network_toml(text: str, filename: str, part: str | None = None) -> Netw
     try:
         document = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
-        found = _TOML_POSITION.search(str(err))
-        line, column = (int(found[1]), int(found[2])) if found else (1, 1)
-        lines = text.splitlines()
-        source = lines[line - 1] if 0 < line <= len(lines) else None
+        # Located as the annotation loader locates it (an unclosed value at its key).
+        located = syntax_error(err, filename, text)
         raise DataFileError(
-            _TOML_POSITION.sub("", str(err)).strip(),
-            Location(filename, line, column, source),
+            located.message,
+            located.location,
             "see https://toml.io for the syntax; a network is e.g. foster = [[0.5, 1e-3]]",
         ) from None
     table, header_line = _select(document, text, filename, part)
