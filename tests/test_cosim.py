@@ -243,3 +243,25 @@ def test_strong_feedback_falls_back_to_the_full_deck() -> None:
     assert outcome.full is not None
     with pytest.raises(UsageError, match="loop gain"):
         cosim.run_auto(deck, annotation, method="cosim")
+
+
+@pytest.mark.ngspice
+def test_allow_control_runs_the_full_deck_with_the_block() -> None:
+    # Thermal tau 0.1 s against a 1 ms drive: auto would co-simulate, which cannot keep
+    # the deck's .control block, so --allow-control sends the run to the full deck.
+    deck, annotation = fixture("control")
+    kept = cosim.run_auto(deck, annotation, RunOptions(allow_control=True))
+    assert kept.method == "full" and ".control" in kept.reason
+    assert kept.full is not None and "hw-control-block-ran" in kept.full.sim.log
+    assert not any("dropped" in finding.message for finding in kept.findings)
+    dropped = cosim.run_auto(deck, annotation)
+    assert dropped.method == "cosim", dropped.reason
+    assert any("dropped 1 .control block" in finding.message for finding in dropped.findings)
+
+
+def test_cosim_refuses_to_keep_control_blocks() -> None:
+    deck, annotation = fixture("control")
+    with pytest.raises(UsageError, match=r"\.control"):
+        cosim.run(deck, annotation, RunOptions(allow_control=True))
+    with pytest.raises(UsageError, match=r"does not apply: \.control"):
+        cosim.run_auto(deck, annotation, RunOptions(allow_control=True), method="cosim")

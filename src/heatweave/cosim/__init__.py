@@ -160,7 +160,9 @@ def run(
     """Co-simulate one run (same inputs as :func:`heatweave.runner.run`).
 
     Raises :class:`UsageError` when the run is not one the co-simulation can do (see
-    :func:`choose_method`; the time-scale check is left to the caller).  *prepared* is the
+    :func:`choose_method`; the time-scale check is left to the caller), and when
+    ``options.allow_control`` asks to keep the deck's ``.control`` blocks, which only the
+    full deck can (:func:`run_auto` sends such runs there).  *prepared* is the
     thermal circuit and its findings when the caller has built them already.
     """
     inputs = inputs or load_inputs(deck_path, annotation_path)
@@ -177,8 +179,14 @@ def run(
             "the co-simulation needs resistor parts only and a cold start",
             hint="use the full method for this run",
         )
+    if options.allow_control:
+        raise UsageError(
+            "the co-simulation cannot keep .control blocks: it drives the transient itself",
+            hint="use the full method to run the deck as written",
+        )
     system = assemble(circuit)
-    text, dropped = strip_control(inputs.project.deck.write(), inputs.deck_path, False)
+    # Always dropped (with the warning): the co-simulation issues its own commands.
+    text, dropped = strip_control(inputs.project.deck.write(), inputs.deck_path, allow=False)
     from pathlib import Path
 
     plan = Plan(
