@@ -10,6 +10,11 @@ wording (checked by running decks under ``tests/fixtures/sim/``):
   ``no convergence``, ``DC solution failed``, gmin/source stepping failed, when the run
   stopped -> :class:`ConvergenceError` (steps that failed before a later one succeeded only
   give warnings);
+* ``Error: -1.13e+200, 2 out of range for ^`` followed by ``in line bhw_p_rpt``: a
+  behavioural source overflowed during one Newton iteration.  ngspice rejects that
+  iteration and goes on (gmin, then source stepping), so the line alone stops nothing; a
+  failure that follows is reported as usual.  It is a warning, and :func:`overflowed`
+  names the sources, because a finished run after one may sit on a far, spurious root;
 * any other ``Error`` line, ``unknown subckt``, ``could not find a valid modelname``,
   ``run simulation(s) aborted`` -> :class:`SimulatorError` quoting ngspice's lines.
 """
@@ -38,6 +43,8 @@ _FATAL = re.compile(
 _REJECTED = re.compile(r"^error on line \d+ or its substitute:$", re.IGNORECASE)
 # Lines with "error" that do not stop the run: failed or noisy .meas statements.
 _HARMLESS = re.compile(r"^\s*error: measure|\.meas(ure)?\b.*failed!|^\s*\.meas", re.IGNORECASE)
+_OVERFLOW = re.compile(r"^\s*error:\s*(?P<args>.+?)\s+out of range for\s+(?P<op>\S+)", re.I)
+_OVERFLOW_AT = re.compile(r"^\s*in line\s+(?P<device>\S+)", re.IGNORECASE)
 _WARNING = re.compile(r"\bwarning\b[:,]?\s*(?P<text>.*)", re.IGNORECASE)
 _MEAS_HEADER = re.compile(r"^\s*Measurements for ", re.IGNORECASE)
 _MEAS_VALUE = re.compile(
@@ -63,7 +70,7 @@ def log_lines(text: str) -> list[str]:
 
 def failure(lines: Sequence[str]) -> SimulatorError | None:
     """The error the log shows, or ``None`` when ngspice finished its analyses."""
-    relevant = [line for line in lines if not _HARMLESS.search(line)]
+    relevant = [line for line in lines if not _HARMLESS.search(line) and not _OVERFLOW.search(line)]
     for line in relevant:
         match = _TIMESTEP.search(line)
         if match and "tran" in line.lower() and "initial timepoint" not in line.lower():
@@ -122,9 +129,33 @@ def _best(lines: Sequence[str]) -> str:
     return lines[-1]
 
 
-def warnings(lines: Iterable[str]) -> tuple[str, ...]:
-    """Every distinct warning text, in order of first appearance, plus failed measurements."""
-    seen: dict[str, None] = {}
+def overflows(lines: Sequence[str]) -> list[tuple[str, str]]:
+    """``(device, what)`` for every arithmetic overflow in the log, in order: the
+    behavioural source ngspice names on the next line (lower case, ``?`` when it names
+    none) and the operation with its operands."""
+    found = []
+    for k, line in enumerate(lines):
+        match = _OVERFLOW.search(line)
+        if match:
+            at = _OVERFLOW_AT.match(lines[k + 1]) if k + 1 < len(lines) else None
+            what = f"{match['args']} out of range for {match['op']}"
+            found.append((at["device"].lower() if at else "?", what))
+    return found
+
+
+def overflowed(log: str) -> tuple[str, ...]:
+    """The behavioural sources whose expressions overflowed at some Newton iteration of a
+    run (lower case, each once)."""
+    return tuple(dict.fromkeys(device for device, _ in overflows(log_lines(log))))
+
+
+def warnings(lines: Sequence[str]) -> tuple[str, ...]:
+    """Every distinct warning text, in order of first appearance, plus failed measurements
+    and one line per source that overflowed."""
+    first: dict[str, str] = {}
+    for device, what in overflows(lines):
+        first.setdefault(device, what)
+    seen = {f"{d}: arithmetic overflow in a Newton iteration ({w})": None for d, w in first.items()}
     for line in lines:
         match = _WARNING.search(line)
         if match and match["text"]:
