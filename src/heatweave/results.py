@@ -6,7 +6,10 @@ using the same temperature models the emitted deck evaluates (so R(T) here is R(
 * a part's temperature is its hot-spot node voltage (1 V = 1 degC);
 * a resistor's resistance is its model at that temperature, its dissipation V^2/R;
 * a heat-only part's dissipation is ``sum (V(k) - V(last)) * I(k)`` over its sensed terminals;
-* the change of resistance is against the deck's value (the nominal at ``tref``).
+* the change of resistance is against the deck's value (the nominal at ``tref``);
+* a temperature outside the range where the part's model is defined
+  (:attr:`~heatweave.tempmodels.TempModel.valid_range`) is an extrapolation, and
+  :func:`range_findings` says so.
 """
 
 from __future__ import annotations
@@ -16,6 +19,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import numpy.typing as npt
 
+from heatweave.errors import Finding
 from heatweave.hierarchy import DeckIndex, Resolved, global_names, top_level_node
 from heatweave.simulators import Plot, SimResult
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
@@ -184,4 +188,47 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
         node_series=node_series,
         voltage_series=voltage_series,
         ambient_series=ambient_values if transient else None,
+    )
+
+
+def outside_range(part: PartResult) -> tuple[float, float] | None:
+    """``(temperature, bound)`` of the reading furthest past the part's model range, or
+    ``None`` when every reading lies inside it (or the model declares no range)."""
+    found = part.plan.model.valid_range if part.plan and part.plan.model else None
+    if found is None:
+        return None
+    series = part.temperature_series
+    values = series if series is not None else np.array([part.temperature])
+    low, high = float(np.min(values)), float(np.max(values))
+    if not (np.isfinite(low) and np.isfinite(high)):
+        return None  # non-finite results are a failure of their own, not a range question
+    if high > found.high:
+        return high, found.high
+    if low < found.low:
+        return low, found.low
+    return None
+
+
+def range_findings(results: RunResults) -> tuple[Finding, ...]:
+    """A warning for every part whose temperature left the range its model is defined in:
+    the resistance, dissipation and temperature reported there are extrapolations."""
+    findings = []
+    for part in results.parts:
+        past = outside_range(part)
+        if past is not None and part.plan is not None:
+            findings.append(range_warning(part.plan, *past))
+    return tuple(findings)
+
+
+def range_warning(plan: PartPlan, temperature: float, bound: float) -> Finding:
+    """The warning that *plan*'s part reached *temperature*, past *bound* of its model."""
+    assert plan.model is not None and plan.model.valid_range is not None
+    return Finding(
+        "warning",
+        f"{plan.path} reaches {temperature:.4g} degC, beyond {bound:g} degC where its "
+        f"{plan.model_name} model ends ({plan.model.valid_range.describe()}): its resistance, "
+        "dissipation and temperature there are extrapolations of the formula, not physics",
+        plan.location,
+        "lower the drive or the thermal resistance, or describe the part over that span "
+        "with a table model of measured points",
     )

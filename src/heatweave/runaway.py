@@ -26,6 +26,15 @@ Method (continuation in a drive parameter):
    of the whole circuit.
 5. For a deck of linear elements with one independent source, dissipation scales with the
    square of the source, so the critical source value is ``sqrt(lambda*)`` times the deck's.
+6. A model defined over a limited range (the RTD's Callendar-Van Dusen polynomial, IEC
+   60751: -200 to 850 degC) also ends the branch where a part leaves that range: beyond it
+   the formula is an extrapolation, and the polynomial even bends back, giving ngspice a
+   spurious far root to land on.  The drive at which the part reaches the range's end is
+   interpolated between the sweep points on either side; the loop gain reported is the
+   one at full dissipation with the part at that end, the last temperature where the
+   model means something.  At or above 1 the heating still outruns the thermal path where
+   the model stops: a runaway out of the model's range.  Below 1 the part just runs hot;
+   the run stands, with the warning of :func:`heatweave.results.range_findings`.
 
 A transient whose temperatures pass :data:`heatweave.runner.IMPLAUSIBLE_TEMPERATURE` or
 turn non-finite is reported with the part and the time it passed that (and its ``tmax``).
@@ -41,7 +50,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.errors import SimulatorError, ThermalRunawayError
+from heatweave.deck import Card
+from heatweave.errors import Location, SimulatorError, ThermalRunawayError
 from heatweave.quantities import parse_number
 from heatweave.thermal_circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
 
@@ -66,6 +76,8 @@ TIGHT = ".options reltol=1e-6 vntol=1e-9 abstol=1e-15"
 _POWER_LINE = re.compile(r"^(Bhw_p_\S+\s+0\s+\S+\s+I\s*=\s*)(.+)$", re.IGNORECASE | re.MULTILINE)
 _END_LINE = re.compile(r"^\.end\s*$", re.IGNORECASE | re.MULTILINE)
 LINEAR_LETTERS = frozenset("RCLKVI")
+# Controlled sources with a plain gain: E/G name n+ n- nc+ nc- gain, F/H name n+ n- vname gain.
+CONTROLLED_FIELDS = {"E": 6, "G": 6, "F": 5, "H": 5}
 
 HINT = (
     "lower the drive, give the part a lower thermal resistance (more copper, a heat sink), "
@@ -83,9 +95,13 @@ class Diagnosis:
     drive: float  # last drive (share of full dissipation) with a steady state
     temperature: float  # the named part's temperature there, degC
     source: tuple[str, float, float] | None = None  # (name, critical value, deck value)
+    # When the branch ended at the named part's model range: that range in words.
+    model_range: str | None = None
 
     def sentence(self) -> str:
         """The diagnosis in words."""
+        if self.model_range is not None:
+            return self._range_sentence(self.model_range)
         text = (
             f"loop gain Rth*dP/dT reached {self.loop_gain:.3g} at {100 * self.drive:.3g} % of "
             f"the full dissipation ({self.part} at {self.temperature:.4g} degC) and the "
@@ -93,21 +109,39 @@ class Diagnosis:
         )
         if abs(self.circuit_gain - self.loop_gain) > 0.02:
             text += f" (loop gain of the whole circuit {self.circuit_gain:.3g})"
-        if self.source is not None:
-            name, critical, value = self.source
-            unit = "A" if name[:1].upper() == "I" else "V"
-            text += (
-                f"; with {name} as the only source this is {name} = {critical:.4g} {unit}"
-                f" (the deck has {value:.4g} {unit})"
-            )
-        return text
+        return text + self._source_clause()
+
+    def _range_sentence(self, model_range: str) -> str:
+        return (
+            f"no steady state inside its {model_range}; at full dissipation "
+            f"its loop gain Rth*dP/dT is {self.loop_gain:.3g} at {self.temperature:.4g} degC, "
+            "where that range ends, so each kelvin of warming still brings more than a "
+            f"kelvin more; its steady state reaches {self.temperature:.4g} degC at "
+            f"{100 * self.drive:.3g} % of the full dissipation"
+        ) + self._source_clause()
+
+    def _source_clause(self) -> str:
+        if self.source is None:
+            return ""
+        name, critical, value = self.source
+        unit = "A" if name[:1].upper() == "I" else "V"
+        return (
+            f"; with {name} as the only source this is {name} = {critical:.4g} {unit}"
+            f" (the deck has {value:.4g} {unit})"
+        )
 
 
 class RunawayError(ThermalRunawayError):
     """A thermal runaway, with the numbers behind the message."""
 
-    def __init__(self, message: str, hint: str, diagnosis: Diagnosis | None) -> None:
-        super().__init__(message, hint=hint)
+    def __init__(
+        self,
+        message: str,
+        hint: str,
+        diagnosis: Diagnosis | None,
+        location: Location | None = None,
+    ) -> None:
+        super().__init__(message, location, hint)
         self.diagnosis = diagnosis
 
 
@@ -205,6 +239,44 @@ class BranchEnd:
     temps: FloatArray  # thermal node temperatures there
     lost: bool
     full: FloatArray | None  # temperatures at full drive when the branch reached it
+    edge: int | None = None  # the part (index) whose model range ended the branch
+
+
+def first_outside(circuit: ThermalCircuit, temps: FloatArray) -> tuple[int, int] | None:
+    """``(sweep point, part)`` of the first point where a part's temperature lies outside
+    its model's range; ``None`` when none does, or when the sweep starts outside (the
+    ambient itself is then out of range: nothing to follow)."""
+    for k in range(temps.shape[1]):
+        for i, part in enumerate(circuit.parts):
+            found = part.model.valid_range if part.model is not None else None
+            if found is not None and float(temps[i, k]) not in found:
+                return None if k == 0 else (k, i)
+    return None
+
+
+def range_end(cont: Continuation, drive: FloatArray, temps: FloatArray, k: int,
+              part: int) -> BranchEnd:  # fmt: skip
+    """The branch end where *part* leaves its model's range between sweep points ``k - 1``
+    and ``k``: swept again finely, then interpolated linearly to the range's end."""
+    plan = cont.circuit.parts[part]
+    assert plan.model is not None and plan.model.valid_range is not None
+    found = plan.model.valid_range
+    lo = float(drive[k - 1])
+    fine = float(drive[k] - drive[k - 1]) / FINE_STEPS
+    refined = cont.converged(lo, fine, FINE_STEPS, temps[:, k - 1])
+    if refined is not None:
+        ftemps = cont.temperatures(refined)
+        fdrive = np.real(np.asarray(refined.scale_values)).astype(float)
+        hit = first_outside(cont.circuit, ftemps)
+        if hit is not None and hit[1] == part and first_jump(ftemps[:, : hit[0] + 1]) is None:
+            drive, temps, k = fdrive, ftemps, hit[0]
+    a, b = temps[:, k - 1], temps[:, k]
+    bound = found.high if b[part] > found.high else found.low
+    share = (bound - a[part]) / (b[part] - a[part])
+    at = a + share * (b - a)
+    at[part] = bound
+    lam = float(drive[k - 1] + share * (drive[k] - drive[k - 1]))
+    return BranchEnd(lam, at, True, None, part)
 
 
 def follow(cont: Continuation) -> BranchEnd | None:
@@ -217,6 +289,9 @@ def follow(cont: Continuation) -> BranchEnd | None:
     temps = cont.temperatures(plot)
     drive = np.real(np.asarray(plot.scale_values)).astype(float)
     k = first_jump(temps)
+    outside = first_outside(cont.circuit, temps[:, : (temps.shape[1] if k is None else k)])
+    if outside is not None:
+        return range_end(cont, drive, temps, *outside)
     reached = k is None and drive[-1] >= 1.0 - 1e-9
     if reached:
         from heatweave.runner import IMPLAUSIBLE_TEMPERATURE
@@ -332,9 +407,17 @@ def diagnose(cont: Continuation, index: DeckIndex, end: BranchEnd) -> Diagnosis 
     jac = power_jacobian(cont, index, end.temps)
     names, z = driving_point(cont.circuit)
     rows = [names.index(p.node) for p in parts]
-    loop = end.drive * z[np.ix_(rows, rows)] @ jac
+    # At a model's range end the question is the full dissipation's gain there (item 6).
+    share = 1.0 if end.edge is not None else end.drive
+    loop = share * z[np.ix_(rows, rows)] @ jac
     own = np.diag(loop)
     top = int(np.argmax(own))
+    model_range = None
+    if end.edge is not None:
+        edge = cont.circuit.parts[end.edge]
+        top = parts.index(edge)
+        assert edge.model is not None and edge.model.valid_range is not None
+        model_range = f"{edge.model_name} model's range, {edge.model.valid_range.describe()}"
     circuit_gain = float(np.max(np.real(np.linalg.eigvals(loop))))
     temperature = float(end.temps[names.index(parts[top].node)])
     source = single_source(index)
@@ -342,16 +425,20 @@ def diagnose(cont: Continuation, index: DeckIndex, end: BranchEnd) -> Diagnosis 
     if source is not None:
         scaled = (source[0], source[1] * math.sqrt(end.drive), source[1])
     return Diagnosis(parts[top].path, float(own[top]), circuit_gain, end.drive, temperature,
-                     scaled)  # fmt: skip
+                     scaled, model_range)  # fmt: skip
 
 
 def single_source(index: DeckIndex) -> tuple[str, float] | None:
     """The deck's only independent source and its DC value, when every element is linear
-    (R, C, L, K, V, I): then dissipation scales with the square of that source."""
+    (R, C, L, K, V, I, and E, F, G, H with a plain gain): then dissipation scales with the
+    square of that source."""
     sources = []
     for path in index.element_paths():
         resolved = index.resolve(path)
-        if resolved is None or resolved.card.head[:1].upper() not in LINEAR_LETTERS:
+        if resolved is None:
+            return None
+        letter = resolved.card.head[:1].upper()
+        if letter not in LINEAR_LETTERS and not linear_controlled(resolved.card):
             return None
         if resolved.card.head[:1].upper() in "VI":
             sources.append(resolved.card)
@@ -360,8 +447,32 @@ def single_source(index: DeckIndex) -> tuple[str, float] | None:
     fields = sources[0].fields()[3:]
     if fields and fields[0].lower() == "dc":
         fields = fields[1:]
-    value = parse_number(fields[0]) if fields else None
+    value = source_value(index, fields[0]) if fields else None
     return None if value is None else (sources[0].head, value)
+
+
+def source_value(index: DeckIndex, text: str) -> float | None:
+    """A source's written value: a number, or ``{name}`` of a top-level ``.param`` that
+    assigns a plain number (the last such card wins, as in ngspice)."""
+    value = parse_number(text)
+    if value is not None or not (text.startswith("{") and text.endswith("}")):
+        return value
+    name = text[1:-1].strip().lower()
+    for node in index.project.deck.body:
+        if isinstance(node, Card) and node.name == ".param":
+            fields = node.fields()
+            for i in range(1, len(fields) - 2):
+                if fields[i].lower() == name and fields[i + 1] == "=":
+                    value = parse_number(fields[i + 2])
+    return value
+
+
+def linear_controlled(card: Card) -> bool:
+    """True for a controlled source written with a plain numeric gain (no POLY, VALUE,
+    TABLE or parameter expression)."""
+    fields = card.fields()
+    count = CONTROLLED_FIELDS.get(card.head[:1].upper())
+    return count is not None and len(fields) == count and parse_number(fields[-1]) is not None
 
 
 def growth(results: RunResults) -> str | None:
@@ -409,6 +520,20 @@ def explain(
         diagnosis = diagnose(cont, inputs.index, end) if end is not None and end.lost else None
     except SimulatorError:
         end, diagnosis = None, None
+    if diagnosis is not None and diagnosis.model_range is not None:
+        if max(diagnosis.loop_gain, diagnosis.circuit_gain) < 1.0:
+            return None  # hot beyond the model's range, but no runaway: the run stands
+        plan = prepared.emitted.circuit.parts[end.edge] if end and end.edge is not None else None
+        text = f"{diagnosis.part} runs away thermally: " + diagnosis.sentence()
+        if grew:
+            text = f"thermal runaway in the transient: {grew}; {text}"
+        elif results is not None and plan is not None:
+            found = results.part(plan.path).temperature
+            text += (
+                f". The solution ngspice found instead, {found:.4g} degC, lies where the "
+                "formula does not hold"
+            )
+        return RunawayError(text, HINT, diagnosis, plan.location if plan else None)
     if diagnosis is not None:
         head = f"{diagnosis.part} runs away thermally: no steady state exists; "
         if grew:

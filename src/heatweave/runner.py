@@ -23,7 +23,7 @@ from heatweave.errors import (
     UsageError,
 )
 from heatweave.reader import read
-from heatweave.results import RunResults, extract
+from heatweave.results import RunResults, extract, outside_range, range_findings
 from heatweave.simulators import Progress, SimResult, get_simulator
 
 #: Dot cards that ask ngspice for an analysis (manual 15.3).
@@ -42,6 +42,14 @@ class RunOptions:
     allow_control: bool = False
     timeout: float | None = None
     progress: Progress | None = field(default=None, compare=False)
+    #: Folder ngspice runs in, where it finds relative includes (default: deck_folder).
+    cwd: str | None = None
+
+
+def deck_folder(inputs: Inputs) -> str:
+    """The absolute folder the deck's relative ``.include`` paths start from: the deck's
+    own, or the current one for a deck read from standard input (``-``)."""
+    return str(Path(inputs.deck_path).resolve().parent)
 
 
 @dataclass(frozen=True, slots=True)
@@ -130,7 +138,7 @@ def prepare(
         tuple(options.analyses),
         deck_analyses=not options.analyses,
         findings=emitted.findings + dropped,
-        cwd=str(Path(inputs.deck_path).resolve().parent),
+        cwd=options.cwd or deck_folder(inputs),
     )
 
 
@@ -167,7 +175,7 @@ def run(
             explained = explain_runaway(inputs, options, prepared, failure, None)
             raise (explained or failure) from None
         results = extract(sim, prepared.emitted.circuit, inputs.index)
-        if implausible(results):
+        if suspect(results, sim):
             explained = explain_runaway(inputs, options, prepared, None, results)
             if explained is not None:
                 raise explained
@@ -175,11 +183,26 @@ def run(
         # The warnings from emitting still matter (a dropped .control block, say).
         err.findings = (*prepared.findings, *err.findings)
         raise
+    beyond = range_findings(results)
+    if beyond:
+        prepared = replace(prepared, findings=prepared.findings + beyond)
     return RunOutcome(prepared, sim, results)
 
 
 #: Above this (degC) a part temperature is no longer a physical answer but a runaway.
 IMPLAUSIBLE_TEMPERATURE = 1000.0
+
+
+def suspect(results: RunResults, sim: SimResult) -> bool:
+    """True when a run may have landed off the physical branch: an implausible result, a
+    part outside its model's range, or a heatweave source that overflowed on the way
+    (ngspice then gave up its first attempts and may have found a far, spurious root)."""
+    from heatweave.simulators.diagnose import overflowed
+    from heatweave.thermal_circuit import PREFIX
+
+    if implausible(results) or any(outside_range(part) for part in results.parts):
+        return True
+    return any(PREFIX in device for device in overflowed(sim.log))
 
 
 def implausible(results: RunResults) -> bool:

@@ -33,6 +33,7 @@ ripple is small enough that resistances do not change noticeably within a period
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
@@ -41,6 +42,7 @@ import numpy.typing as npt
 
 from heatweave.emitter import Inputs, load_inputs
 from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, UsageError
+from heatweave.results import range_warning
 from heatweave.runner import IMPLAUSIBLE_TEMPERATURE, RunOptions
 from heatweave.settle_electrical import Cycle, Electrical
 from heatweave.settle_thermal import periodic
@@ -48,6 +50,9 @@ from heatweave.thermal_circuit import PartPlan
 from heatweave.thermal_solver import Propagator, ThermalSystem, assemble
 
 FloatArray = npt.NDArray[np.float64]
+
+#: Temperature step (K) of the finite differences that measure a reported loop gain.
+GAIN_STEP = 0.1
 
 
 @dataclass(frozen=True, slots=True)
@@ -203,10 +208,40 @@ class _Loop:
             "choose a part whose resistance changes less with temperature",
         )
 
+    def bounds(self) -> tuple[FloatArray, FloatArray]:
+        """Per resistor part, the temperatures the iteration may try: its model's range
+        (where the formula holds), else up to :data:`IMPLAUSIBLE_TEMPERATURE`."""
+        lo, hi = [], []
+        for k in self.index:
+            model = self.electrical.circuit.parts[k].model
+            found = model.valid_range if model is not None else None
+            lo.append(found.low if found else -273.15)
+            hi.append(min(found.high if found else math.inf, IMPLAUSIBLE_TEMPERATURE))
+        return np.array(lo), np.array(hi)
+
+    def measured_gain(self, temps: FloatArray, out: FloatArray) -> FloatArray:
+        """``dG/dT`` at *temps* (where ``G`` gave *out*) by backward differences of
+        :data:`GAIN_STEP`, one evaluation per part: the loop gain where it is reported,
+        not the secant estimate of the iteration so far."""
+        n = len(self.index)
+        gain = np.zeros((n, n))
+        for j in range(n):
+            shifted = temps.copy()
+            shifted[j] -= GAIN_STEP
+            _, lower = self.evaluate(shifted)
+            gain[:, j] = (out[self.index] - lower[self.index]) / GAIN_STEP
+        return gain
+
     def run(self) -> tuple[Cycle, list[Step]]:
-        """Iterate from ambient until settled: the last period and every step taken."""
+        """Iterate from ambient until settled: the last period and every step taken.
+
+        Steps are kept inside :meth:`bounds`.  A part held at its bound whose heating
+        pushes it past the bound is examined there: with a loop gain of 1 or more it runs
+        away out of the range; below 1 (a hot part, not a runaway) a model range is left
+        open and the iteration goes on beyond it, reported by :func:`range_warnings`."""
         n = len(self.index)
         temps = np.full(n, self.ambient)
+        low, high = self.bounds()
         steps: list[Step] = []
         jac = -np.eye(n)  # Broyden's estimate of d(G(T) - T)/dT; -I = plain relaxation
         last: tuple[FloatArray, FloatArray] | None = None
@@ -223,7 +258,11 @@ class _Loop:
             steps.append(self._step(iteration, change, out, gain))
             if self.options.progress is not None:
                 self.options.progress(steps[-1])
-            if gain is not None and n and float(np.max(np.linalg.eigvals(gain).real)) >= 1.0:
+            pushed = (temps >= high) & (residual > 0) | (temps <= low) & (residual < 0)
+            if np.any(pushed):
+                # Held at a bound and pushed past it: judged by the gain measured there.
+                low, high = self.past_bound(temps, out, pushed, low, high)
+            elif gain is not None and n and float(np.max(np.linalg.eigvals(gain).real)) >= 1.0:
                 raise self.runaway(
                     gain, temps, "each kelvin it warms raises its dissipation enough to warm "
                     "it by a kelvin or more, so there is no stable operating point",
@@ -234,18 +273,43 @@ class _Loop:
             proposed = temps - np.linalg.solve(jac, residual)
             # Heating alone keeps every part above absolute zero: a step below it is a
             # secant gone astray, so take the plain relaxation step instead.
-            temps = proposed if float(np.min(proposed)) > -273.15 else out[self.index]
-            if not np.all(np.isfinite(temps)) or float(np.max(temps)) > IMPLAUSIBLE_TEMPERATURE:
-                estimate = gain if gain is not None else np.zeros((n, n))
+            proposed = proposed if float(np.min(proposed)) > -273.15 else out[self.index]
+            if not np.all(np.isfinite(proposed)):
                 raise self.runaway(
-                    estimate, out[self.index],
-                    f"its temperature heads beyond {IMPLAUSIBLE_TEMPERATURE:g} degC",
+                    self.measured_gain(temps, out), temps, "its temperature heads to "
+                    "values that are not numbers",
                 )  # fmt: skip
+            temps = np.clip(proposed, low, high)
         raise ConvergenceError(
             f"the temperatures did not settle within {self.options.max_iter} iterations "
             f"(last change {steps[-1].change:.3g} K, tolerance {self.options.tol:g} K)",
             hint="raise --max-iter, loosen --tol, or check the waveform repeats (--periods)",
         )
+
+    def past_bound(self, temps: FloatArray, out: FloatArray, pushed: npt.NDArray[np.bool_],
+                   low: FloatArray, high: FloatArray) -> tuple[FloatArray, FloatArray]:  # fmt: skip
+        """Parts at their bound (*temps*) pushed past it: a runaway error when the loop
+        gain there is 1 or more, or at :data:`IMPLAUSIBLE_TEMPERATURE`; otherwise the
+        bounds with those parts' model ranges opened."""
+        gain = self.measured_gain(temps, out)
+        parts = self.electrical.circuit.parts
+        j = int(np.flatnonzero(pushed)[0])
+        model = parts[self.index[j]].model
+        found = model.valid_range if model is not None else None
+        at_range = found is not None and temps[j] in (found.low, found.high)
+        if float(np.max(np.linalg.eigvals(gain).real)) >= 1.0 and at_range:
+            assert found is not None
+            raise self.runaway(
+                gain, temps, f"there its {parts[self.index[j]].model_name} model's range ends "
+                f"({found.describe()}) and it still heats faster than its path cools it, so "
+                "no steady state exists inside that range",
+            )  # fmt: skip
+        if not at_range:
+            raise self.runaway(
+                gain, temps, f"its temperature heads beyond {IMPLAUSIBLE_TEMPERATURE:g} degC"
+            )
+        opened = pushed & ((temps == low) | (temps == high))
+        return np.where(opened, -273.15, low), np.where(opened, IMPLAUSIBLE_TEMPERATURE, high)
 
     def _step(self, iteration: int, change: float, out: FloatArray,
               gain: FloatArray | None) -> Step:  # fmt: skip
@@ -319,9 +383,24 @@ def settle(
         periods=cycle.periods,
         gain=rho,
         history=tuple(steps),
-        findings=tuple(electrical.findings),
+        findings=(*electrical.findings, *range_warnings(parts)),
         envelope=envelope,
     )
+
+
+def range_warnings(parts: list[PartSettled]) -> list[Finding]:
+    """A warning for each part whose settled period leaves its model's range."""
+    found = []
+    for part in parts:
+        model = part.plan.model if part.plan is not None else None
+        span = model.valid_range if model is not None else None
+        if part.plan is None or span is None:
+            continue
+        if part.peak_temperature > span.high:
+            found.append(range_warning(part.plan, part.peak_temperature, span.high))
+        elif part.valley_temperature < span.low:
+            found.append(range_warning(part.plan, part.valley_temperature, span.low))
+    return found
 
 
 def steady(system: ThermalSystem, power: FloatArray, ambient: float) -> FloatArray:
