@@ -62,10 +62,14 @@ def test_derating_curve(t_local: float, expected: float) -> None:
     assert derated_power(RATING, t_local, KNEE, TMAX) == pytest.approx(expected, abs=1e-12)
 
 
-def run_check(tmp_path: Path, annotation: str, *args: str) -> tuple[int, str]:
+def run_check(
+    tmp_path: Path, annotation: str, *args: str, deck: str = str(DECK)
+) -> tuple[int, str]:
+    """``check DECK -a ANNOTATION ARGS``; DECK ``-`` pipes the fixture deck's text in."""
     path = tmp_path / "divider.thermal.toml"
     path.write_text(annotation)
-    result = CliRunner().invoke(main, ["check", str(DECK), "-a", str(path), *args])
+    stdin = DECK.read_text() if deck == "-" else None
+    result = CliRunner().invoke(main, ["check", deck, "-a", str(path), *args], input=stdin)
     assert "Traceback" not in result.output
     return result.exit_code, result.output
 
@@ -124,14 +128,15 @@ def test_limits_against_brentq(
     assert ("margin" if passes else "over by" if limit != "min" else "under by") in line
 
 
-def test_rating_derated_at_the_shared_node(tmp_path: Path) -> None:
+@pytest.mark.parametrize("deck", [str(DECK), "-"], ids=["file", "stdin"])
+def test_rating_derated_at_the_shared_node(tmp_path: Path, deck: str) -> None:
     """On a warm board the rating is derated at the board's temperature, not ambient."""
     t_hot = steady(RTH + RTH_BOARD)
     p_hot = power(t_hot)
     t_board = AMBIENT + RTH_BOARD * p_hot
     allowed = derated_power(RATING, t_board, KNEE, TMAX)
     assert p_hot > allowed  # the fixture is meant to fail this limit
-    code, output = run_check(tmp_path, base_annotation("board.thermal.toml"), "--op")
+    code, output = run_check(tmp_path, base_annotation("board.thermal.toml"), "--op", deck=deck)
     assert code == 1
     line = next(x for x in output.splitlines() if "RTOP power_rating:" in x)
     assert value_of(output, "RTOP", "power_rating") == pytest.approx(p_hot, rel=2e-4)
@@ -139,7 +144,7 @@ def test_rating_derated_at_the_shared_node(tmp_path: Path) -> None:
     assert printed and float(printed[1]) == pytest.approx(allowed, rel=2e-4)
     assert 'node "board"' in line
     assert value_of(output, "RTOP", "tmax") == pytest.approx(t_hot, rel=2e-4)
-    assert "2 limits checked, 1 violated" in output  # tmax holds: T_hot < 155 degC
+    assert f"{deck}: 2 limits checked, 1 violated" in output  # tmax holds: T_hot < 155 degC
 
 
 def test_transient_drift_is_worst_over_time(tmp_path: Path) -> None:

@@ -17,7 +17,9 @@ from typing import Any
 
 import pytest
 from click.testing import CliRunner, Result
+from scipy.optimize import brentq
 
+from heatweave.cli import main
 from heatweave.cli.run_cmd import progress_printer, run
 from heatweave.errors import EXIT_BAD_INPUT, EXIT_OK
 from heatweave.reports import CAUTION_TEXT
@@ -28,8 +30,8 @@ FIXTURES = Path(__file__).parent / "fixtures" / "run"
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
 
 
-def invoke(*args: str) -> Result:
-    return CliRunner().invoke(run, list(args), catch_exceptions=False)
+def invoke(*args: str, stdin: str | None = None) -> Result:
+    return CliRunner().invoke(run, list(args), input=stdin, catch_exceptions=False)
 
 
 def numbers(data: Any, prefix: str = "") -> dict[str, float]:
@@ -212,3 +214,91 @@ def test_progress_shows_percent(capsys: pytest.CaptureFixture[str]) -> None:
     assert err.count("simulated  50%") == 1
     assert "simulated 100%" in err
     assert progress_printer(False) is None
+
+
+# ------------------------------------------------------------ a deck on standard input
+
+# divider.cir / divider.thermal.toml: 10 V across R1 = 100 ohm (tc1 0.004/K, Rth 50 K/W)
+# in series with R2 = 100 ohm.
+# ngspice's default convergence tolerances (manual 11.1.2, .options reltol and vntol):
+# node voltages, and so temperatures (1 V = 1 degC), are good to reltol * |V| + vntol.
+RELTOL, VNTOL = 1e-3, 1e-6
+
+
+def divider_temperature() -> float:
+    """R1's steady state T = 25 + Rth P(T), P = I^2 R1(T), by scipy's brentq."""
+
+    def balance(t: float) -> float:
+        r1 = 100.0 * (1 + 0.004 * (t - 25.0))
+        return t - 25.0 - 50.0 * (10.0 / (r1 + 100.0)) ** 2 * r1
+
+    return float(brentq(balance, 25.0, 500.0, xtol=1e-12))
+
+
+@pytest.mark.parametrize(
+    "args",
+    [
+        ("divider.cir", "--op", "--method", "full"),
+        ("divider_tran.cir",),  # --method auto, the deck's own transient
+        ("board.cir", "--op"),  # a heat-only part and a shared node
+    ],
+)
+def test_deck_on_stdin_gives_the_numbers_of_the_file(args: tuple[str, ...]) -> None:
+    deck, *rest = args
+    annotation = str(FIXTURES / deck.replace(".cir", ".thermal.toml"))
+    on_file = invoke(str(FIXTURES / deck), *rest, "-q", "--json", "-")
+    piped = invoke(
+        "-", "-a", annotation, *rest, "-q", "--json", "-", stdin=(FIXTURES / deck).read_text()
+    )
+    assert on_file.exit_code == EXIT_OK, on_file.stderr
+    assert piped.exit_code == EXIT_OK, piped.stderr
+    from_file, from_stdin = json.loads(on_file.stdout), json.loads(piped.stdout)
+    assert from_stdin["deck"] == "-"  # as emit and lint name a deck read from stdin
+    # one deck text, one simulator: the very same numbers
+    assert numbers(from_stdin) == numbers(from_file)
+
+
+@pytest.mark.parametrize(
+    ("folder", "status"),
+    [(".", EXIT_OK), ("elsewhere", EXIT_BAD_INPUT)],
+    ids=["cwd-holds-include", "cwd-without-include"],
+)
+def test_stdin_include_is_relative_to_the_current_folder(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, folder: str, status: int
+) -> None:
+    text = (FIXTURES / "divider.cir").read_text()
+    assert "R2 out 0 100\n" in text
+    (tmp_path / "leg.inc").write_text("R2 out 0 100\n")
+    (tmp_path / "elsewhere").mkdir()
+    monkeypatch.chdir(tmp_path / folder)
+    annotation = str(FIXTURES / "divider.thermal.toml")
+    result = invoke(
+        "-", "-a", annotation, "-q", "--json", "-",
+        stdin=text.replace("R2 out 0 100\n", ".include leg.inc\n"),
+    )  # fmt: skip
+    assert result.exit_code == status, result.stderr
+    if status == EXIT_OK:
+        expected = divider_temperature()
+        found = json.loads(result.stdout)["parts"]["R1"]["temperature"]
+        assert found == pytest.approx(expected, abs=RELTOL * expected + VNTOL)
+    else:
+        assert "included file 'leg.inc' not found" in result.stderr
+        assert "Traceback" not in result.stderr
+
+
+# Every command that runs a deck, with what it needs besides DECK.
+DECK_COMMANDS = [("run",), ("check",), ("settle", "--period", "1m"), ("sweep",)]
+
+
+@pytest.mark.parametrize("command", DECK_COMMANDS, ids=[c[0] for c in DECK_COMMANDS])
+def test_stdin_deck_needs_an_annotation_file(command: tuple[str, ...]) -> None:
+    name, *rest = command
+    text = (FIXTURES / "divider.cir").read_text()
+    result = CliRunner().invoke(main, [name, "-", *rest], input=text)
+    assert result.exit_code == EXIT_BAD_INPUT
+    # no FILE:LINE:COL: there is no file; the hint says what to add
+    assert result.stderr.startswith(
+        "error: a deck read from standard input (-) has no annotation file beside it\n"
+    )
+    assert "hint: name the annotation file with -a FILE" in result.stderr
+    assert "Traceback" not in result.output

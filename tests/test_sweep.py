@@ -456,3 +456,48 @@ def test_param_of_an_included_file_is_swept(tmp_path: Path) -> None:
         assert corner["parts"]["RH"]["temperature"] == pytest.approx(expected, abs=t_tol(expected))
         assert corner["voltages"]["feed"] == pytest.approx(v, rel=1e-9)
     assert (tmp_path / "supply.inc").read_text() == "* supply settings\n.param vheat=5\n"
+
+
+# ------------------------------------------------------------ a deck on standard input
+
+
+def divider_with_include(folder: Path) -> str:
+    """divider.cir's text with its lower leg moved into ``leg.inc`` in *folder*, which the
+    text includes by a relative path."""
+    (folder / "leg.inc").write_text("RLO mid 0 330\n")
+    text = Path(DIVIDER).read_text()
+    assert "RLO mid 0 330\n" in text
+    return text.replace("RLO mid 0 330\n", ".include leg.inc\n")
+
+
+@pytest.mark.parametrize(
+    "where",
+    [
+        ("-j", "1"),  # this process
+        ("-j", "2"),  # local worker processes: they get the deck's text, not the path -
+        ("--executor", "dask"),  # a cluster started elsewhere: another current folder
+    ],
+    ids=["serial", "processes", "dask"],
+)
+def test_deck_on_stdin_matches_brentq(
+    tmp_path: Path,
+    monkeypatch: pytest.MonkeyPatch,
+    request: pytest.FixtureRequest,
+    where: tuple[str, ...],
+) -> None:
+    """``sweep -``: the deck is read from stdin once and its include found from the
+    current folder, wherever the corners run."""
+    if "dask" in where:
+        where = (*where, "--scheduler", request.getfixturevalue("dask_scheduler"))
+    text = divider_with_include(tmp_path)
+    annotation = str(FIXTURES / "divider.thermal.toml")
+    monkeypatch.chdir(tmp_path)
+    args = ["-", "-a", annotation, "--ambient", "-40:110:75", *where, "-q", "--json", "-"]
+    result = CliRunner().invoke(sweep, args, input=text, catch_exceptions=False)
+    assert result.exit_code == EXIT_OK, result.output
+    data = json.loads(result.stdout)
+    assert data["deck"] == "-"
+    assert [c["ambient"] for c in data["corners"]] == [-40.0, 35.0, 110.0]
+    for corner in data["corners"]:
+        expected = divider_temperature(corner["ambient"], 12.0)
+        assert corner["parts"]["RUP"]["temperature"] == pytest.approx(expected, abs=t_tol(expected))

@@ -32,7 +32,7 @@ from heatweave.annotations import Annotation, sample
 from heatweave.emitter import Inputs
 from heatweave.errors import EXIT_CHECK_FAILED, EXIT_OK, HeatweaveError
 from heatweave.executors import Executor
-from heatweave.runner import RunOptions
+from heatweave.runner import RunOptions, deck_folder
 from heatweave.sweep_grid import check_params, with_params
 
 #: Percentiles the Monte Carlo summary reports.
@@ -202,7 +202,13 @@ def jobs_for(inputs: Inputs, plan: SweepPlan, options: RunOptions) -> list[Corne
         drawn = draws(inputs.annotation, plan.draws, plan.seed)
         annotations = list(enumerate(drawn))
     names = [name for name, _ in plan.params]
-    quiet = replace(options, progress=None, backend=worker_backend(options.backend))
+    # The folder is fixed here: a worker's own current folder may be another one.
+    quiet = replace(
+        options,
+        progress=None,
+        backend=worker_backend(options.backend),
+        cwd=options.cwd or deck_folder(inputs),
+    )
     jobs: list[CornerJob] = []
     for combo in itertools.product(*(values for _, values in plan.params)):
         values = dict(zip(names, combo, strict=True))

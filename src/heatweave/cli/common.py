@@ -68,14 +68,22 @@ BACKENDS = ("auto", "shared", "batch")
 
 
 def deck_options(func: F) -> F:
-    """``DECK`` and ``-a/--annotations``, as every command that reads a deck takes them."""
+    """``DECK`` and ``-a/--annotations``, as every command that reads a deck takes them.
+
+    ``-`` as DECK reads the deck from standard input (once: what is read travels on, to
+    sweep workers too); its ``.include``/``.lib`` paths are then relative to the current
+    folder, and ``-a`` is required since no file stands beside it.
+    """
     func = click.option(
         "-a",
         "--annotations",
         type=click.Path(dir_okay=False, exists=True),
-        help="Annotation file (default: DECK.thermal.toml beside the deck).",
+        help="Annotation file (default: DECK.thermal.toml beside the deck).  DECK - reads "
+        "the deck from standard input: -a is then required, and its .include/.lib paths "
+        "are relative to the current folder.",
     )(func)
-    return click.argument("deck", type=click.Path(dir_okay=False, exists=True))(func)
+    deck = click.Path(dir_okay=False, exists=True, allow_dash=True)
+    return click.argument("deck", type=deck)(func)
 
 
 def simulation_options(func: F) -> F:
@@ -151,8 +159,13 @@ def annotation_for(deck: str, annotations: str | None) -> str:
 
     if annotations:
         return annotations
+    if deck == "-":
+        raise UsageError(
+            "a deck read from standard input (-) has no annotation file beside it",
+            hint="name the annotation file with -a FILE, e.g. - -a amp.thermal.toml",
+        )
     candidate = default_path(deck)
-    if deck != "-" and Path(candidate).is_file():
+    if Path(candidate).is_file():
         return str(candidate)
     raise UsageError(
         f"no annotation file for {deck}",
