@@ -21,7 +21,7 @@ from scipy.optimize import brentq
 
 from heatweave.cli import main
 from heatweave.cli.run_cmd import progress_printer, run
-from heatweave.errors import EXIT_BAD_INPUT, EXIT_OK
+from heatweave.errors import EXIT_BAD_INPUT, EXIT_OK, EXIT_THERMAL_RUNAWAY
 from heatweave.reports import CAUTION_TEXT
 
 pytestmark = pytest.mark.ngspice
@@ -302,3 +302,44 @@ def test_stdin_deck_needs_an_annotation_file(command: tuple[str, ...]) -> None:
     )
     assert "hint: name the annotation file with -a FILE" in result.stderr
     assert "Traceback" not in result.output
+
+
+# ------------------------------------------------------------------ --probe up front
+
+CHECK_FIXTURES = FIXTURES.parent / "check"
+
+
+@pytest.mark.parametrize(
+    ("deck", "probe", "hint", "unprobed"),
+    [
+        # runs away when simulated (exit 7): exit 2 shows the probe was checked first
+        (CHECK_FIXTURES / "ntc_supply.cir", "rial", "did you mean rail?", EXIT_THERMAL_RUNAWAY),
+        (FIXTURES / "nested.cir", "x1.mdi", "did you mean x1.mid?", EXIT_OK),
+        (FIXTURES / "nested.cir", "V(X1.MD)", "did you mean x1.mid?", EXIT_OK),
+        (FIXTURES / "divider.cir", "zzz", "nodes of this deck: in, out", EXIT_OK),
+        # ground is no vector ngspice writes
+        (FIXTURES / "divider.cir", "0", "nodes of this deck: in, out", EXIT_OK),
+    ],
+)  # fmt: skip
+def test_unknown_probe_is_refused_before_simulating(
+    deck: Path, probe: str, hint: str, unprobed: int
+) -> None:
+    annotation = str(deck.with_suffix(".thermal.toml"))
+    assert invoke(str(deck), "-a", annotation, "-q").exit_code == unprobed
+    result = invoke(str(deck), "-a", annotation, "--probe", probe, "-q")
+    assert result.exit_code == EXIT_BAD_INPUT
+    name = probe.lower().removeprefix("v(").removesuffix(")")
+    message = f"error: --probe {probe}: the deck has no node {name!r}"
+    assert result.stderr == f"{message}\n  hint: {hint}\n"
+
+
+def test_probe_inside_a_subcircuit() -> None:
+    """ngspice names a node inside an instance by its path (x1.mid); the divider's output,
+    10 V * R2 / (R1(T) + R2), at R1's brentq steady state."""
+    result = invoke(str(FIXTURES / "nested.cir"), "--probe", "X1.MID", "-q", "--csv", "-")
+    assert result.exit_code == EXIT_OK, result.stderr
+    rows = list(csv.reader(io.StringIO(result.stdout)))
+    assert rows[0][-1] == "V(x1.mid) [V]"
+    t = divider_temperature()
+    expected = 10.0 * 100.0 / (100.0 * (1 + 0.004 * (t - 25.0)) + 100.0)
+    assert float(rows[-1][-1]) == pytest.approx(expected, abs=RELTOL * expected + VNTOL)

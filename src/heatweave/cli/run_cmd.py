@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import sys
-from collections.abc import Callable
+from collections.abc import Callable, Collection
 from dataclasses import replace
+from typing import TYPE_CHECKING
 
 import click
 
@@ -22,6 +23,9 @@ from heatweave.cli.common import (
     simulation_options,
 )
 from heatweave.errors import UsageError
+
+if TYPE_CHECKING:
+    from heatweave.hierarchy import DeckIndex
 
 
 def progress_printer(enabled: bool) -> Callable[[float], None] | None:
@@ -43,21 +47,70 @@ def progress_printer(enabled: bool) -> Callable[[float], None] | None:
     return show
 
 
-def probe_nodes(probes: tuple[str, ...], voltages: dict[str, float]) -> tuple[str, ...]:
-    """``--probe`` names (``out`` or ``V(out)``) as the result's node names, checked."""
+def probe_nodes(probes: tuple[str, ...], known: Collection[str]) -> tuple[str, ...]:
+    """``--probe`` names (``out`` or ``V(out)``) as node names, each checked against the
+    *known* node names (lower case, as ngspice names them)."""
     found = []
     for probe in probes:
         name = probe.strip().lower()
         if name.startswith("v(") and name.endswith(")"):
             name = name[2:-1]
-        if name not in voltages:
-            known = ", ".join(sorted(voltages)) or "none"
+        if name not in known:
             raise UsageError(
-                f"--probe {probe}: the deck has no node {name!r}",
-                hint=f"nodes of this deck: {known}",
+                f"--probe {probe}: the deck has no node {name!r}", hint=nodes_hint(name, known)
             )
         found.append(name)
     return tuple(found)
+
+
+#: How many node names a hint lists at most.
+LISTED = 12
+
+
+def nodes_hint(name: str, known: Collection[str]) -> str:
+    """The nodes whose names are close to *name*, else the deck's nodes (the first few)."""
+    import difflib
+
+    close = difflib.get_close_matches(name, sorted(known), n=4, cutoff=0.6)
+    if close:
+        return f"did you mean {' or '.join(close)}?"
+    every = sorted(known)
+    shown = ", ".join(every[:LISTED]) or "none"
+    more = f", ... ({len(every)} in all)" if len(every) > LISTED else ""
+    return f"nodes of this deck: {shown}{more}"
+
+
+def deck_nodes(index: DeckIndex) -> frozenset[str] | None:
+    """Every node of the circuit as ngspice names it (``out``, ``x1.mid``), ground aside;
+    ``None`` when some element's terminals cannot be told from its card (an XSPICE ``A``
+    card, say), so that only the simulation's own vectors can say which nodes exist."""
+    from heatweave.elements import card_nodes
+    from heatweave.errors import HeatweaveError
+    from heatweave.hierarchy import global_names, top_level_node
+
+    globals_ = global_names(index)
+    found: set[str] = set()
+    for path in index.element_paths():
+        resolved = index.resolve(path)
+        if resolved is None or resolved.card.letter == "K":  # K couples inductors: no nodes
+            continue
+        try:
+            nodes = card_nodes(resolved.card, index)
+        except HeatweaveError:
+            return None
+        found.update(top_level_node(resolved, node, globals_) for node in nodes)
+    return frozenset(found - {"0", "gnd"})
+
+
+def check_probes_early(probes: tuple[str, ...], index: DeckIndex) -> None:
+    """Reject a ``--probe`` the deck certainly lacks before anything is simulated.
+
+    Device-internal nodes (``q1#collector``) exist only in the simulation; they are left
+    to the check against its vectors."""
+    wanted = tuple(p for p in probes if "#" not in p)
+    known = deck_nodes(index) if wanted else None
+    if known is not None:
+        probe_nodes(wanted, known)
 
 
 @click.command()
@@ -113,6 +166,7 @@ def run(
     check_outputs(outputs, deck)
     annotation_path = annotation_for(deck, annotations)
     inputs = load_inputs(deck, annotation_path)
+    check_probes_early(probe, inputs.index)
     options = RunOptions(
         analyses=analyses,
         ambient=ambient,
