@@ -26,6 +26,7 @@ from heatweave.annotations import (
 )
 from heatweave.cli.schema_cmd import schema as schema_command
 from heatweave.errors import AnnotationError
+from heatweave.globmatch import matching_paths
 from heatweave.tempmodels import REGISTRY
 
 FIXTURES = Path(__file__).parent / "fixtures" / "annotations"
@@ -48,6 +49,9 @@ class Catalog:
 
     def element_kind(self, path: str) -> str:
         return path.rsplit(".", 1)[-1][0].upper()
+
+    def matching(self, pattern: str) -> Sequence[tuple[int, str]]:
+        return matching_paths(pattern, self.elements)
 
 
 CONTRACT_DECK = Catalog(("V1", "RSENSE", "X2.R4", "RDIV1", "RDIV2", "X2.RDIV3", "Q1", "C1"))

@@ -4,6 +4,8 @@
   for every other part of that kind (:mod:`heatweave.stencil`).
 * Splicing: when every part is a top-level card of the deck as read, the new cards are
   spliced into the file's text at their offsets instead of rewriting the tree.
+* ``DeckIndex.matching``: a flat deck's globs run over its cards' texts, not over names cut
+  out of them first.
 * ``bulk.fast_init``: the quicker ``__init__`` of the records made once per part sets what
   the dataclass's own ``__init__`` sets.
 
@@ -26,6 +28,8 @@ from heatweave.bulk import fast_init
 from heatweave.emitforms import FORMS
 from heatweave.emitter import _Rewriter, emit_files
 from heatweave.errors import HeatweaveError
+from heatweave.globmatch import matching_paths
+from heatweave.hierarchy import DeckIndex, load_project
 
 DECK = """\
 stencil test deck
@@ -177,6 +181,43 @@ def test_spliced_equals_rewritten_at_the_edges(
     monkeypatch.setattr(_Rewriter, "edits", lambda self, source: None)
     assert spliced == _emit_or_error(deck, annotation)
     assert not spliced.startswith("error")
+
+
+# --------------------------------------------------------------------------- names in place
+
+PATTERNS = ["R*", "r?", "*", "X*", "*1", "C[0-9]*", "R[!0-9]*", ".*", "V1", "Q*.*"]
+
+
+@pytest.mark.parametrize(
+    "name", sorted(p.name for p in CORPUS.iterdir() if p.suffix in (".cir", ".sp"))
+)
+def test_globs_on_card_texts_equal_globs_on_names(name: str) -> None:
+    # A flat deck's globs run over the cards' texts (DeckIndex.matching); the reference
+    # is the same glob over the element paths, one to a line (globmatch.matching_paths).
+    index = DeckIndex(load_project(str(CORPUS / name)))
+    paths = index.element_paths()
+    for pattern in PATTERNS:
+        assert index.matching(pattern) == matching_paths(pattern, paths), pattern
+
+
+@pytest.mark.parametrize(
+    "text",
+    [
+        "t\nRA1 a 0 1k\n  rb2 a 0 1k\n.tran 1u 1m\nRA3 a 0 1k\n",  # texts path, a dot card cut
+        "t\nRA1 a 0 1k ; note\nRA2 a 0 1k\n",  # an inline comment: names cut out first
+        "t\nRA1;x a 0 1k\nRA2 a 0 1k\n",  # one inside a first field
+        "t\nX1 a b cell\n.subckt cell p q\nRA1 p q 1k\n.ends\nRA2 a 0 1\n",  # instances
+    ],
+)
+def test_globs_on_card_texts_at_the_edges(tmp_path: Path, text: str) -> None:
+    deck = tmp_path / "edge.cir"
+    deck.write_text(text)
+    index = DeckIndex(load_project(str(deck)))
+    paths = index.element_paths()
+    for pattern in [*PATTERNS, "RA*", "RA1"]:
+        assert index.matching(pattern) == matching_paths(pattern, paths), pattern
+    assert [card.head for card in index.top.cards] == list(index.top.heads)
+    assert (index.top.texts is None) == (";" in text)  # which of the two ways ran
 
 
 # --------------------------------------------------------------------------- fast_init

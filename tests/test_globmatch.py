@@ -14,7 +14,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from heatweave.globmatch import glob_regex, matching
+from heatweave.deck import Card
+from heatweave.globmatch import glob_regex, matching, matching_heads
 
 
 def _reference(pattern: str, names: list[str]) -> list[int]:
@@ -59,3 +60,43 @@ _ALPHABET = "ab-]![^\\*?&~|z."
 )  # fmt: skip
 def test_property_same_as_fnmatch(pattern: str, names: list[str]) -> None:
     assert matching(pattern, "\n".join(names)) == _reference(pattern, names)
+
+
+# --------------------------------------------------------------------------- over cards
+
+CARDS = ["RS1 a b 1k\n", "  RS10\ta b 2k\n", "R1,a,b\n", "RSENSE=1\n", "RS(1) a\n",
+         "R[1] x y 3\n", "R 1\n", "RS1\n", ".tran 1u 1m\n", "RS2 a b 1k\n+ tc1=1e-3\n",
+         "RS3\r\n", "RS", "rs4 a b 1\n"]  # fmt: skip
+
+
+def _reference_heads(pattern: str, cards: list[str]) -> list[int]:
+    return _reference(pattern, [Card(text).head for text in cards])
+
+
+@pytest.mark.parametrize(
+    "pattern",
+    ["RS*", "RS?", "*", "RS1", "R[[]1]", "R*1", "R", "", "R[ ,]1", "R[!S]*", "?S*", ".*",
+     "RS[0-9]", "RS[!0-9]*", "*1*"],
+)  # fmt: skip
+def test_first_fields_match_as_fnmatch_on_card_heads(pattern: str) -> None:
+    # fnmatchcase on each card's first field (Card.head) is the reference.
+    joined = "".join("\x00" + text for text in CARDS)
+    assert matching_heads(pattern, joined) == _reference_heads(pattern, CARDS)
+
+
+def test_a_field_match_never_runs_past_its_field() -> None:
+    assert matching_heads("RS*b*", "\x00RS1 a b 1k\n") == []
+    assert matching_heads("R*1", "\x00RA\x00B1\n") == []
+
+
+_CARD_ALPHABET = "ab-]![^\\?&~|z. ,=()\t\n"
+
+
+@settings(max_examples=400, deadline=None)
+@given(
+    st.text(alphabet=_ALPHABET + " ,(", max_size=8),
+    st.lists(st.text(alphabet=_CARD_ALPHABET, min_size=1, max_size=8), max_size=8),
+)  # fmt: skip
+def test_property_fields_same_as_fnmatch(pattern: str, cards: list[str]) -> None:
+    joined = "".join("\x00" + text for text in cards)
+    assert matching_heads(pattern, joined) == _reference_heads(pattern, cards)

@@ -50,6 +50,11 @@ class DeckCatalog(Protocol):
         """The element's first letter, upper case ("R", "Q", ...)."""
         ...
 
+    def matching(self, pattern: str) -> Sequence[tuple[int, str]]:
+        """(position in :meth:`element_paths`, path) of every element the glob *pattern*
+        matches (``fnmatchcase`` rules, case ignored), in deck order."""
+        ...
+
 
 def _leaf(path: str) -> str:
     return path.rsplit(".", 1)[-1]
@@ -67,10 +72,8 @@ def bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
 def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
     if not annotation.parts:
         return ()
-    elements = list(catalog.element_paths())
-    # SPICE names ignore case: everything is compared in upper case, the names joined one
-    # to a line and folded in one call (a glob scans that text once).
-    joined = "\n".join(elements).upper()
+    elements: Sequence[str] = ()  # every path, read only for exact keys
+    name_of: dict[int, str] = {}  # position -> path, of every element chosen
     # The first position of every name: the first card of a name is the one ngspice keeps.
     first: dict[str, int] | None = None
     exact: dict[int, PartSpec] = {}
@@ -78,7 +81,9 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
     overlaps: set[int] = set()  # positions two patterns matched
     for spec in annotation.parts:
         if spec.is_glob:
-            hits = dict.fromkeys(matching(spec.pattern.upper(), joined), spec)
+            found = catalog.matching(spec.pattern)
+            name_of.update(found)
+            hits = dict.fromkeys([at for at, _path in found], spec)
             if not hits:
                 raise AnnotationError(
                     f'pattern "{spec.pattern}" matches no element of {catalog.deck_file}',
@@ -90,7 +95,9 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
             globbed = hits | globbed  # the earlier pattern stays first
             continue
         if first is None:
-            uppers = joined.split("\n")
+            # SPICE names ignore case: compared in upper case, folded in one call.
+            elements = list(catalog.element_paths())
+            uppers = "\n".join(elements).upper().split("\n")
             first = dict(zip(reversed(uppers), range(len(uppers) - 1, -1, -1), strict=True))
         at = first.get(spec.pattern.upper(), -1)
         if at < 0:
@@ -107,10 +114,11 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
                 "merge the two tables",
             )
         exact[at] = spec
+        name_of[at] = elements[at]
     clashes = overlaps - exact.keys()  # an exact key beats every pattern
     if clashes:
         at = min(clashes)  # the first in deck order
-        element = elements[at]
+        element = name_of[at]
         patterns = [p for p in annotation.parts if p.is_glob and _matches(p, element)]
         raise AnnotationError(
             f'element "{element}" matches both "{patterns[0].pattern}" '
@@ -122,7 +130,7 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
     chosen = globbed | exact
     # In C-level passes over the chosen positions (a glob may choose a hundred thousand).
     order = sorted(chosen)  # deck order
-    names = [elements[at] for at in order]
+    names = [name_of[at] for at in order]
     uppers = list(map(str.upper, names))
     if len(set(uppers)) < len(uppers):  # a name twice: ngspice's first card of it counts
         firsts = dict(zip(reversed(uppers), range(len(uppers) - 1, -1, -1), strict=True))

@@ -5,38 +5,47 @@ compiled pattern once per name costs a Python call each; here the names are join
 a line and a single multi-line regex scan finds every match, in order.  The regex follows
 ``fnmatch.fnmatchcase`` exactly (the translation mirrors ``fnmatch.translate`` of Python
 3.11), except that no part of it can match a line end, so a match never spans two names.
+
+:func:`matching_heads` does the same over whole cards joined by NULs, each name being its
+card's first field: a deck's million names need not be cut out of their cards first.
 """
 
 from __future__ import annotations
 
 import re
+from collections.abc import Sequence
 
-_ANY = "[^\n]"
-_STAR = "[^\n]*"
+#: What ends a card's first field (as ``Card.head`` reads it), and the NUL between cards.
+FIELD_END = " \t\r\n,=()\x00"
 
 
-def glob_regex(pattern: str) -> str:
+def glob_regex(pattern: str, stop: str = "\n") -> str:
     """A regex that matches a line end to end (``re.fullmatch``) exactly where
-    ``fnmatchcase(line, pattern)`` does, and never matches a line end."""
+    ``fnmatchcase(line, pattern)`` does, and never matches a character of *stop* (by
+    default a line end)."""
+    forbid = re.escape(stop)
+    star = f"[^{forbid}]*"
     out: list[str] = []
     i, n = 0, len(pattern)
     while i < n:
         ch = pattern[i]
         i += 1
         if ch == "*":
-            if not out or out[-1] != _STAR:  # "**" is "*"
-                out.append(_STAR)
+            if not out or out[-1] != star:  # "**" is "*"
+                out.append(star)
         elif ch == "?":
-            out.append(_ANY)
+            out.append(f"[^{forbid}]")
         elif ch == "[":
-            item, i = _set(pattern, i)
+            item, i = _set(pattern, i, forbid)
             out.append(item)
+        elif ch in stop:  # no name holds it
+            out.append("(?!)")
         else:
             out.append(re.escape(ch))
     return "".join(out)
 
 
-def _set(pattern: str, i: int) -> tuple[str, int]:
+def _set(pattern: str, i: int, forbid: str) -> tuple[str, int]:
     """The regex for a ``[...]`` set starting after the ``[`` at *i*, and where it ends."""
     n = len(pattern)
     j = i
@@ -76,12 +85,12 @@ def _set(pattern: str, i: int) -> tuple[str, int]:
     if not stuff:
         return "(?!)", end  # an empty set matches nothing
     if stuff == "!":
-        return _ANY, end
+        return f"[^{forbid}]", end
     if stuff[0] == "!":
-        return "[^" + stuff[1:] + "\n]", end
+        return f"[^{stuff[1:]}{forbid}]", end
     if stuff[0] in ("^", "["):
         stuff = "\\" + stuff
-    return f"[{stuff}]", end
+    return f"(?![{forbid}])[{stuff}]", end
 
 
 def matching(pattern: str, names: str) -> list[int]:
@@ -95,17 +104,45 @@ def matching(pattern: str, names: str) -> list[int]:
     return line_numbers(regex, "\n" + names)
 
 
-def line_numbers(regex: re.Pattern[str], text: str) -> list[int]:
+def matching_paths(
+    pattern: str, paths: Sequence[str], upper: str | None = None
+) -> list[tuple[int, str]]:
+    """(position, path) of every one of *paths* that *pattern* matches, case ignored (both
+    are compared in upper case, as SPICE names are); *upper* is ``"\\n".join(paths).upper()``
+    when the caller keeps it for several patterns."""
+    if upper is None:
+        upper = "\n".join(paths).upper()
+    return [(k, paths[k]) for k in matching(pattern.upper(), upper)]
+
+
+def matching_heads(pattern: str, cards: str) -> list[int]:
+    """Numbers (from 0) of the cards of *cards* whose first field matches *pattern* whole
+    (``fnmatchcase`` rules): *cards* holds each card's text after a NUL, none holding a NUL,
+    and no first field holding an inline comment (``;``, ``//``)."""
+    if not cards:
+        return []
+    field = glob_regex(pattern, FIELD_END)
+    regex = re.compile(rf"\x00[ \t]*+(?:{field})(?=[{re.escape(FIELD_END)}]|\Z)")
+    return line_numbers(regex, cards, "\x00")
+
+
+def line_numbers(regex: re.Pattern[str], text: str, end: str = "\n") -> list[int]:
     """Numbers (from 0) of the lines of *text* where *regex* matches, *text* starting with
     a line end and every match starting at one: the line end that opens line k is the
-    k-th of the text, counted from 0."""
-    hits: list[int] = []
+    k-th of the text, counted from 0.  *end* is the line end (a newline, or the NUL between
+    cards)."""
+    return [number for number, _start in line_starts(regex, text, end)]
+
+
+def line_starts(regex: re.Pattern[str], text: str, end: str = "\n") -> list[tuple[int, int]]:
+    """As :func:`line_numbers`, each number with the offset of the line end opening it."""
+    hits: list[tuple[int, int]] = []
     index = 0
     last = 0
     count = text.count
     for found in regex.finditer(text):
         start = found.start()
-        index += count("\n", last, start)
+        index += count(end, last, start)
         last = start
-        hits.append(index)
+        hits.append((index, start))
     return hits

@@ -20,7 +20,7 @@ from typing import TypeVar
 from heatweave.bulk import fast_init, paused_gc
 from heatweave.deck import _HEAD, Block, Card, Deck, Node, strip_inline_comment
 from heatweave.errors import DeckStructureError, Location
-from heatweave.globmatch import line_numbers
+from heatweave.globmatch import line_numbers, line_starts, matching_heads, matching_paths
 from heatweave.reader import read_file
 
 
@@ -178,13 +178,34 @@ _TEXT = operator.attrgetter("text")
 _HEADS = re.compile(r"\x00[ \t]*([^ \t\r\n,=()\x00]*)")
 
 
-def _first_fields(cards: list[Card]) -> list[str]:
+def _first_fields(cards: Sequence[Card]) -> list[str]:
     """Each card's first field as :attr:`Card.head` reads it (inline comments aside)."""
     texts = list(map(_TEXT, cards))
     heads: list[str] = _HEADS.findall("\x00" + "\x00".join(texts))
     if len(heads) != len(cards):  # a NUL inside a card: one more match; read one by one
         heads = [_HEAD.match(text).group(1) for text in texts]  # type: ignore[union-attr]
     return heads
+
+
+def _joined_texts(cards: list[Card]) -> str | None:
+    """Every card's text after a NUL, when no first field can hold an inline comment and no
+    text a NUL (then the first fields can be read off this text directly); else None."""
+    joined = "\x00" + "\x00".join(map(_TEXT, cards)) if cards else ""
+    if ";" in joined or "//" in joined or joined.count("\x00") != len(cards):
+        return None
+    return joined
+
+
+def _without_texts(joined: str, starts: list[int]) -> str:
+    """*joined* (see :func:`_joined_texts`) less the cards whose NULs stand at *starts*."""
+    pieces: list[str] = []
+    begin = 0
+    for start in starts:
+        pieces.append(joined[begin:start])
+        end = joined.find("\x00", start + 1)
+        begin = len(joined) if end < 0 else end
+    pieces.append(joined[begin:])
+    return "".join(pieces)
 
 
 def _without(items: list[_T], positions: list[int]) -> list[_T]:
@@ -200,22 +221,37 @@ def _without(items: list[_T], positions: list[int]) -> list[_T]:
     return out
 
 
-# Names that may not start with a letter (checked one by one with str.isalpha).
+# Names that may not start with a letter (checked one by one with str.isalpha): among
+# names one to a line, and among cards' texts each after a NUL.
 _NOT_LETTER = re.compile(r"\n(?:[^A-Za-z\n]|(?=\n)|\Z)")
+_NOT_LETTER_CARD = re.compile(r"\x00[ \t]*+(?![A-Za-z])")
+_X_CARD = re.compile(r"\x00[ \t]*+[xX]")
 
 
 @dataclass(frozen=True, slots=True)
 class Scope:
-    """The cards visible in one body: the top level or one subcircuit definition."""
+    """The cards visible in one body: the top level or one subcircuit definition.
+
+    Each card's name is read when first asked for (:attr:`heads`): a glob over a flat deck
+    is matched on the cards' texts (:attr:`texts`) without cutting a million names out.
+    """
 
     name: str  # "" for the top level
     parent: Scope | None
     cards: tuple[Card, ...]
-    heads: tuple[str, ...]  # each card's name as written
     subckts: dict[str, Block] = field(default_factory=dict)
     scopes: dict[str, Scope] = field(default_factory=dict)
     instances: bool = False  # True when the body holds an ``X`` card
+    texts: str | None = field(default=None, repr=False)  # see _joined_texts
+    _heads: list[tuple[str, ...]] = field(default_factory=list, repr=False)
     _by_name: dict[str, Card] = field(default_factory=dict, repr=False)
+
+    @property
+    def heads(self) -> tuple[str, ...]:
+        """Each card's name as written."""
+        if not self._heads:
+            self._heads.append(tuple(_first_fields(self.cards)))
+        return self._heads[0]
 
     def card(self, name: str) -> Card | None:
         """The card named *name* (lower case); the first one of that name wins.  The table
@@ -245,6 +281,7 @@ class DeckIndex:
         self.deck_file = project.deck.path
         self._models: dict[str, Card] = {}
         self._top: Scope | None = None
+        self._scanned: tuple[Sequence[str], str] | None = None  # see matching()
 
     @property
     def top(self) -> Scope:
@@ -275,34 +312,50 @@ class DeckIndex:
         return out
 
     def _scope(self, name: str, parent: Scope | None, nodes: list[Node]) -> Scope:
-        # The hot path of indexing a million-card deck, in C-level passes: every card's
-        # first field at once, then a regex over those names joined one to a line for the
-        # few that are not element names (dot cards) and for X cards.
+        # The hot path of indexing a million-card deck, in C-level passes: the cards' texts
+        # joined, a regex over them for the few that are not elements (dot cards) and for X
+        # cards; the names are cut out later, if at all.  Where a first field may hold an
+        # inline comment, every card's first field at once, then the same over those.
         every = [node for node in nodes if type(node) is Card]
         blocks: list[Block] = []
         if len(every) < len(nodes):  # blocks only where something is not a card
             blocks = [node for node in nodes if type(node) is Block and node.kind == "subckt"]
-        heads = _first_fields(every)
-        joined = "\n".join(heads)
-        if ";" in joined or "//" in joined:
-            heads = [strip_inline_comment(h) if ";" in h or "//" in h else h for h in heads]
+        texts = _joined_texts(every)
+        if texts is not None:  # names read off the texts, where a glob finds them too
+            odd = line_starts(_NOT_LETTER_CARD, texts, "\x00")
+            dropped = [(k, at) for k, at in odd if not every[k].head[:1].isalpha()]
+            others = [k for k, _at in dropped]
+            self._index_models(every, others, [every[k].head for k in others])
+            texts = _without_texts(texts, [at for _k, at in dropped])
+            instances = _X_CARD.search(texts) is not None
+            scope = Scope(name, parent, tuple(_without(every, others)), instances=instances,
+                          texts=texts)  # fmt: skip
+        else:
+            heads = _first_fields(every)
             joined = "\n".join(heads)
-        odd = line_numbers(_NOT_LETTER, "\n" + joined) if heads else []
-        others = [k for k in odd if not heads[k][:1].isalpha()]
-        for k in others:
-            if heads[k].lower() == ".model":
-                fields = every[k].fields()
-                if len(fields) > 1:
-                    self._models.setdefault(fields[1].lower(), every[k])
-        cards, names = _without(every, others), _without(heads, others)
-        # X cards (dot cards never start with x): a name at the start or after a line end.
-        instances = joined[:1] in ("x", "X") or "\nx" in joined or "\nX" in joined
-        scope = Scope(name, parent, tuple(cards), tuple(names), instances=instances)
+            if ";" in joined or "//" in joined:
+                heads = [strip_inline_comment(h) if ";" in h or "//" in h else h for h in heads]
+                joined = "\n".join(heads)
+            candidates = line_numbers(_NOT_LETTER, "\n" + joined) if heads else []
+            others = [k for k in candidates if not heads[k][:1].isalpha()]
+            self._index_models(every, others, [heads[k] for k in others])
+            # X cards (dot cards never start with x): a name at the start or after a line end.
+            instances = joined[:1] in ("x", "X") or "\nx" in joined or "\nX" in joined
+            scope = Scope(name, parent, tuple(_without(every, others)), instances=instances,
+                          _heads=[tuple(_without(heads, others))])  # fmt: skip
         for block in blocks:
             key = block.label.lower()
             scope.subckts.setdefault(key, block)
             scope.scopes.setdefault(key, self._scope(key, scope, list(block.body)))
         return scope
+
+    def _index_models(self, cards: list[Card], others: list[int], heads: list[str]) -> None:
+        """Enter the ``.model`` cards among *cards* at *others* (named *heads*)."""
+        for k, head in zip(others, heads, strict=True):
+            if head.lower() == ".model":
+                fields = cards[k].fields()
+                if len(fields) > 1:
+                    self._models.setdefault(fields[1].lower(), cards[k])
 
     def lookup_subckt(self, name: str, scope: Scope) -> tuple[Block, Scope] | None:
         """A subcircuit definition visible from *scope* (local first, then outward)."""
@@ -331,6 +384,22 @@ class DeckIndex:
                     continue
                 yield from self._walk(found[1], path + ".", (*seen, found[1].name))
 
+    def matching(self, pattern: str) -> list[tuple[int, str]]:
+        """(position in :meth:`element_paths`, path) of every element whose path the glob
+        *pattern* matches, case ignored as SPICE does, in deck order.  In a flat deck the
+        names are matched where they stand, in the cards' texts."""
+        top = self.top
+        flat = not top.instances and top.texts is not None
+        if self._scanned is None:  # what a pattern scans, in upper case, made once
+            paths = () if flat else self.element_paths()
+            upper = top.texts.upper() if flat else "\n".join(paths).upper()  # type: ignore[union-attr]
+            self._scanned = (paths, upper)
+        paths, upper = self._scanned
+        if flat:
+            cards = top.cards
+            return [(k, cards[k].head) for k in matching_heads(pattern.upper(), upper)]
+        return matching_paths(pattern, paths, upper)
+
     def element_kind(self, path: str) -> str:
         """The type letter of the element at *path* (upper case)."""
         return path.rsplit(".", 1)[-1][:1].upper()
@@ -339,8 +408,10 @@ class DeckIndex:
         """The element at *path*, which stands at *position* in :meth:`element_paths` (a
         bound part knows its position: in a flat deck that is its card, no lookup)."""
         top = self.top
-        if not top.instances and 0 <= position < len(top.heads) and top.heads[position] == path:
-            return Resolved(path, top.cards[position], (), ())
+        if not top.instances and 0 <= position < len(top.cards):
+            card = top.cards[position]
+            if card.head == path:
+                return Resolved(path, card, (), ())
         return self.resolve(path)
 
     def resolve(self, path: str) -> Resolved | None:
