@@ -67,15 +67,25 @@ def _structure(body: Iterable[Node], top: bool) -> Iterator[Finding]:
                 )
 
 
-def _parse_all(decks: Iterable[Deck]) -> Iterator[Finding]:
+def _parse_all(decks: Iterable[Deck], index: DeckIndex) -> Iterator[Finding]:
+    """The grammar on every card, then the card rules of :mod:`heatweave.lint_cards`."""
+    from heatweave.lint_cards import card_problems
+
+    def model_of(name: str) -> Card | None:
+        return index.models.get(name)
+
     for deck in decks:
         for card in deck.cards():
             if card.head.startswith("+"):
                 continue  # reported by the structure check
             try:
-                syntax_of(card)
+                syntax = syntax_of(card)
             except DeckSyntaxError as err:
                 yield Finding("error", err.message, err.location, err.hint)
+                continue
+            for problem in card_problems(syntax, card.logical().text, model_of):
+                where = card.location(problem.offset)
+                yield Finding(problem.severity, problem.message, where, problem.hint)
 
 
 def _scopes(scope: Scope) -> Iterator[tuple[Scope, Block | None]]:
@@ -155,10 +165,10 @@ def _line(card: Card) -> int:
 def lint_project(project: Project, annotation: str | None = None) -> list[Finding]:
     """Every finding for a deck, its includes and (optionally) its annotation file."""
     decks = [project.deck, *(inc.deck for inc in project.includes)]
-    findings = list(_parse_all(decks))
+    index = DeckIndex(project)
+    findings = list(_parse_all(decks, index))
     for deck in decks:
         findings.extend(_structure(deck.body, top=True))
-    index = DeckIndex(project)
     for scope, block in _scopes(index.top):
         findings.extend(_connections(index, scope, block))
     if annotation is not None:
