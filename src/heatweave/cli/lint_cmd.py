@@ -7,7 +7,7 @@ import sys
 import click
 
 from heatweave.cli.common import guarded, style_severity
-from heatweave.errors import EXIT_CHECK_FAILED
+from heatweave.errors import EXIT_CHECK_FAILED, UsageError
 
 
 @click.command()
@@ -16,21 +16,31 @@ from heatweave.errors import EXIT_CHECK_FAILED
     "-a",
     "--annotations",
     type=click.Path(dir_okay=False, exists=True),
-    help="Annotation file to validate against the deck (default: DECK.thermal.toml if present).",
+    help="Annotation file to validate against the deck; only with a single DECK "
+    "(default: each DECK's own DECK.thermal.toml, if present).",
 )
 @click.option("--no-warnings", is_flag=True, help="Print errors only.")
 @guarded
 def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool) -> None:
     """Check DECKS: every card against the grammar, structure, and the annotation file.
 
-    Prints one finding a line as FILE:LINE:COL: error|warning: message, and exits with
-    status 1 when there is any error.
+    Each DECK is checked with its own annotation file, DECK.thermal.toml beside it, when
+    there is one; -a names another one and then takes exactly one DECK.  Prints one finding
+    a line as FILE:LINE:COL: error|warning: message, and exits with status 1 when there is
+    any error (2 for unusable options).
     """
     from heatweave.lint import lint_file
 
+    if annotations is not None and len(decks) > 1:
+        raise UsageError(
+            f"-a/--annotations names the annotation file of one deck, but {len(decks)} "
+            "decks were given",
+            hint=f"lint that deck on its own (heatweave lint DECK -a {annotations}), or drop "
+            "-a so that each deck is checked with its own DECK.thermal.toml",
+        )
     errors = 0
     for deck in decks:
-        for finding in lint_file(deck, annotations if len(decks) == 1 else None):
+        for finding in lint_file(deck, annotations):
             if finding.severity == "error":
                 errors += 1
             elif no_warnings:
