@@ -135,3 +135,23 @@ def test_normal_excitation_gives_no_range_warning(tmp_path: Path) -> None:
     result = CliRunner().invoke(main, ["run", deck, "-a", annotation])
     assert result.exit_code == EXIT_OK, result.output
     assert "model ends" not in result.output
+
+
+@needs_ngspice
+def test_cosimulated_run_warns_of_the_range_too(tmp_path: Path) -> None:
+    # The same hot RTD with a thermal capacitance (tau = Rth * Cth = 2.5 s), its supply
+    # ramped up over 16 tau so that the loop gain stays below the co-simulation's limit
+    # (near 0.64 at a steady 850 degC: (T - Ta) d ln R/dT), run by the co-simulation: the
+    # warning comes from that path as well.
+    deck = tmp_path / "hot.cir"
+    deck.write_text("RTD across a ramp\nV1 a 0 PWL(0 0 40 40)\nRPT a 0 100\n.end\n")
+    annotation = tmp_path / "hot.thermal.toml"
+    annotation.write_text(
+        'schema = 1\n[ambient]\ntemperature = 0.0\n[part.RPT]\nmodel = "rtd"\nrth = 250.0\n'
+        "cth = 0.01\n"
+    )
+    args = ["run", str(deck), "-a", str(annotation), "--tran", "10m", "50", "--method", "cosim"]
+    result = CliRunner().invoke(main, args)
+    assert result.exit_code == EXIT_OK, result.output
+    assert "method: cosim" in result.output
+    assert "beyond 850 degC where its rtd model ends" in result.output

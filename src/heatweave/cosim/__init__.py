@@ -27,7 +27,7 @@ from heatweave.emitter import Inputs, emit_inputs, load_inputs
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.hierarchy import DeckIndex, global_names, top_level_node
 from heatweave.reader import read
-from heatweave.results import PartResult, RunResults, device_name
+from heatweave.results import PartResult, RunResults, device_name, range_findings
 from heatweave.runner import ANALYSIS_CARDS, RunOptions, RunOutcome, deck_analyses_of, strip_control
 from heatweave.thermal_circuit import AMBIENT_NODE, ThermalCircuit
 from heatweave.thermal_solver import ThermalSystem, assemble
@@ -201,7 +201,8 @@ def run(
     trace = cosimulate(plain_deck(text), folder, plan, options.timeout)
     results = to_results(trace, circuit, system)
     reason = f"co-simulation in {trace.windows} windows"
-    return FastOutcome(results, "cosim", reason, findings + dropped, trace=trace)
+    past = range_findings(results)  # a part beyond its model's range, as runner.run warns
+    return FastOutcome(results, "cosim", reason, findings + dropped + past, trace=trace)
 
 
 #: Cards the co-simulation leaves out: it issues its own transient and needs every node.
