@@ -283,6 +283,7 @@ def test_stdin_include_is_relative_to_the_current_folder(
         assert found == pytest.approx(expected, abs=RELTOL * expected + VNTOL)
     else:
         assert "included file 'leg.inc' not found" in result.stderr
+        assert "includes relative to the current folder" in result.stderr
         assert "Traceback" not in result.stderr
 
 

@@ -114,7 +114,9 @@ def _follow(
             raise DeckStructureError(
                 f"included file {name!r} not found (looked for {full})",
                 where,
-                hint="paths are relative to the file that holds the include card",
+                hint="paths are relative to the file that holds the include card"
+                if including not in ("-", "<deck>")
+                else "a deck read from standard input includes relative to the current folder",
             )
         key = str(full)
         deck = cache.get(key)
