@@ -28,7 +28,14 @@ from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.hierarchy import DeckIndex, global_names, top_level_node
 from heatweave.reader import read
 from heatweave.results import PartResult, RunResults, device_name, range_findings
-from heatweave.runner import ANALYSIS_CARDS, RunOptions, RunOutcome, deck_analyses_of, strip_control
+from heatweave.runner import (
+    ANALYSIS_CARDS,
+    RunOptions,
+    RunOutcome,
+    deck_analyses_of,
+    deck_folder,
+    strip_control,
+)
 from heatweave.thermal_circuit import AMBIENT_NODE, ThermalCircuit
 from heatweave.thermal_solver import ThermalSystem, assemble
 
@@ -197,7 +204,7 @@ def run(
         tran,
         tolerance,
     )
-    folder = Path(inputs.deck_path).resolve().parent
+    folder = Path(deck_folder(inputs))
     trace = cosimulate(plain_deck(text), folder, plan, options.timeout)
     results = to_results(trace, circuit, system)
     reason = f"co-simulation in {trace.windows} windows"
