@@ -347,3 +347,33 @@ def test_values_from_subcircuit_parameters_match_ngspice(tmp_path: Path) -> None
     assert (nominal["X1.RA"], nominal["X2.RB"], nominal["XP.X3.RA"], nominal["X4.RB"]) == (
         50.0, 25.0, 30.0, 30.0,
     )  # fmt: skip
+
+
+# --- cells defined in included files -----------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("deck", "path"),
+    [
+        ("included_top.cir", "X1.RC"),  # instantiated at the top level
+        ("included_nested.cir", "X1.XI.RC"),  # inside another included definition
+        ("included_local.cir", "X1.XW.RC"),  # inside a definition of the deck itself
+    ],
+)
+def test_cells_from_included_files_are_specialised_before_end(deck: str, path: str) -> None:
+    # Each deck is the same circuit: 10 V across the cell's 50 ohm RC and a fixed 50 ohm.
+    # The included file stays untouched, so the cell's copies must be written in the deck,
+    # before its .end (the shared library reads no further); the steady state is the root
+    # of T = Ta + Rth * P(T), found independently by scipy's brentq.
+    deck_path = str(FIXTURES / deck)
+    notes = str(FIXTURES / "included_cells.thermal.toml")
+    text = emit_files(deck_path, notes).text
+    assert text.lower().rfind(".subckt") < text.lower().rfind("\n.end\n")
+
+    def balance(t: float) -> float:
+        r = 50 * (1 + 0.004 * (t - 25))
+        return t - 25 - 100 * (10 / (r + 50)) ** 2 * r
+
+    out = run(deck_path, notes)
+    assert [p.path for p in out.results.parts] == [path]
+    assert out.results.part(path).temperature == pytest.approx(brentq(balance, 25, 500), abs=1e-4)

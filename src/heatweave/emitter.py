@@ -176,10 +176,13 @@ class _Rewriter:
         return out
 
     def unplaced(self) -> list[Node]:
-        """Copies of definitions that live in included files: written at the top level."""
+        """Copies of definitions that live in included files: written at the top level,
+        whether their instance sits at the top level or inside another definition (a
+        parent path sorts before its children, so a definition nested in an included
+        definition is placed inside its parent's copy first)."""
         out: list[Node] = []
         for path, definition in sorted(self.copies.items()):
-            if path not in self.placed and "." not in path:
+            if path not in self.placed:
                 out.extend(self.copies_of(definition, "", top=True))
         return out
 
@@ -345,7 +348,7 @@ def emit_deck(
     if edits is None:
         with paused_gc():
             body = rewriter.body(deck.body, "", top=True)
-        body.extend(rewriter.unplaced())
+        copies = "".join(node.write() for node in rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
     # Each file's text in lower case, once: the option check and the name check search it.
     folded = folded_files(project, written)
@@ -357,7 +360,8 @@ def emit_deck(
         assert end_at is not None
         text = spliced(deck, written, edits, section, end_at, title + head)
     else:
-        body = insert_before_end(body, section)
+        # The copies go before .end with the section: the shared library reads no further.
+        body = insert_before_end(body, Card(copies + section.text, section.lead))
         text = replace(deck, title=title + head, body=tuple(body)).write()
     check_names(
         index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)], folded
