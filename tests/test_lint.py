@@ -153,3 +153,34 @@ def test_emitted_switch_deck_lints_clean(tmp_path: Path) -> None:
     note = root / "monitor.thermal.toml"
     emitted.write_text(emit_files(str(root / "monitor.cir"), str(note), form="switch").text)
     assert [m for m in rendered(emitted) if "single connection" in m] == []
+
+
+# A .global node is one net everywhere (ngspice manual 2.6, ".GLOBAL"): its cards in the
+# subcircuits and at the top level are all connections of it.  (deck after the title,
+# rendered findings with the deck's path cut off)
+GLOBAL_DECKS = [
+    (  # used once inside a subcircuit, driven at the top level
+        ".global vbus\nV1 VBUS 0 5\nRt vbus 0 1k\nX1 0 cell\n.subckt cell n\nRg vbus n 100\n"
+        ".ends\n.end\n",
+        [],
+    ),
+    (  # used once at the top level, loaded inside a subcircuit
+        ".global vcc\nV1 vcc 0 5\nX1 a cell\nRa a 0 1k\n.subckt cell n\nRg vcc n 100\n"
+        "Rh vcc n 100\n.ends\n.end\n",
+        [],
+    ),
+    (  # a node that is not global is still reported
+        ".global vbus\nV1 vbus 0 5\nX1 0 cell\n.subckt cell n\nRg vbus n 100\nRx lone n 1\n"
+        ".ends\n.end\n",
+        ["7:1: warning: node lone has a single connection (Rx)"],
+    ),
+]
+
+
+@pytest.mark.parametrize(("body", "expected"), GLOBAL_DECKS)
+def test_global_nodes_are_connected_across_subcircuits(
+    tmp_path: Path, body: str, expected: list[str]
+) -> None:
+    deck = tmp_path / "global.cir"
+    deck.write_text("global nodes\n" + body)
+    assert [m.removeprefix(f"{deck}:") for m in rendered(deck)] == expected

@@ -15,7 +15,15 @@ from pathlib import Path
 from heatweave.deck import Block, Card, ControlBlock, Deck, Node
 from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location
 from heatweave.grammar import CardSyntaxError, parse_card
-from heatweave.hierarchy import DeckIndex, Project, Scope, load_project, subckt_ports, x_card_parts
+from heatweave.hierarchy import (
+    DeckIndex,
+    Project,
+    Scope,
+    global_names,
+    load_project,
+    subckt_ports,
+    x_card_parts,
+)
 from heatweave.syntax import CardSyntax, ElementSyntax
 
 
@@ -108,8 +116,11 @@ def _xspice_nodes(card: Card) -> list[str]:
     return [n.text for n in syntax.nodes if n.key not in names]
 
 
-def _connections(index: DeckIndex, scope: Scope, block: Block | None) -> Iterator[Finding]:
-    """Duplicate names, unknown subcircuits, nodes with a single connection."""
+def _connections(
+    index: DeckIndex, scope: Scope, block: Block | None, globals_: set[str]
+) -> Iterator[Finding]:
+    """Duplicate names, unknown subcircuits, nodes with a single connection (ground and
+    ``.global`` nodes aside: one net everywhere, connected in other scopes too)."""
     from heatweave.elements import card_nodes
 
     seen: dict[str, Card] = {}
@@ -147,7 +158,7 @@ def _connections(index: DeckIndex, scope: Scope, block: Block | None) -> Iterato
             first.setdefault(low, card)
     ports = {p.lower() for p in subckt_ports(block)} if block is not None else set()
     for node, count in counts.items():
-        if count == 1 and node not in ("0", "gnd") and node not in ports:
+        if count == 1 and node not in globals_ and node not in ports:
             card = first[node]
             yield Finding(
                 "warning",
@@ -169,8 +180,9 @@ def lint_project(project: Project, annotation: str | None = None) -> list[Findin
     findings = list(_parse_all(decks, index))
     for deck in decks:
         findings.extend(_structure(deck.body, top=True))
+    globals_ = global_names(index)
     for scope, block in _scopes(index.top):
-        findings.extend(_connections(index, scope, block))
+        findings.extend(_connections(index, scope, block, globals_))
     if annotation is not None:
         findings.extend(_annotation_findings(project, index, annotation, findings))
     return sorted(findings, key=_order)
