@@ -377,3 +377,53 @@ def test_cells_from_included_files_are_specialised_before_end(deck: str, path: s
     out = run(deck_path, notes)
     assert [p.path for p in out.results.parts] == [path]
     assert out.results.part(path).temperature == pytest.approx(brentq(balance, 25, 500), abs=1e-4)
+
+
+# --- instance multipliers ------------------------------------------------------------------
+
+CELL = ".subckt cell p n\nRC p n 100\nD1 n 0 dx\n.ends\n.model dx D\n"
+MULTIPLIED = [
+    # (deck after the title, annotated path, line and column of the m= of the error)
+    ("V1 in 0 10\nX1 in 0 cell m=2\n" + CELL, "X1.RC", (3, 14)),
+    ("V1 in 0 10\nX1 in 0 cell m=2\n" + CELL, "X1.D1", (3, 14)),  # heat only
+    (
+        "V1 in 0 10\nXO in 0 outer\n+ M = {2}\n.subckt outer p n\nXI p n cell\n.ends\n" + CELL,
+        "XO.XI.RC",
+        (4, 3),
+    ),
+]
+
+
+@pytest.mark.parametrize(("body", "path", "where"), MULTIPLIED)
+def test_multiplied_instance_is_refused_where_it_stands(
+    tmp_path: Path, body: str, path: str, where: tuple[int, int]
+) -> None:
+    # ngspice pushes an X card's m= into the R, C, D, ... of the definition (manual 3.2.1)
+    # but not into behavioural or code-model sources, so the replaced resistor would lose
+    # it and the thermal network's own R and C would gain it: silently wrong numbers.
+    note = f'schema = 1\n[part."{path}"]\nrth = 10.0\n'
+    if path.endswith("RC"):
+        note += 'model = "linear"\ntc1 = 0.004\n'
+    deck = write_case(tmp_path, "multiplied instances\n" + body, note)
+    with pytest.raises(EmitError, match="m=") as caught:
+        emit_files(str(deck), str(deck.with_suffix(".thermal.toml")))
+    location = caught.value.location
+    assert location is not None and (location.line, location.column) == where
+    assert caught.value.hint
+
+
+def test_multiplier_on_the_resistor_card_is_its_nominal_value(tmp_path: Path) -> None:
+    # R1 m=2 is two 100 ohm resistors in parallel, 50 ohm (manual 3.3.1, eq. 11): one part
+    # of 50 ohm, as the divider of the tests above with R1 = 50 ohm and R2 = 50 ohm.
+    deck = write_case(
+        tmp_path,
+        "multiplied resistor\nV1 in 0 10\nR1 in out 100 m=2\nR2 out 0 50\n.op\n.end\n",
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0.004\nrth = 50.0\n',
+    )
+
+    def balance(t: float) -> float:
+        r = 50 * (1 + 0.004 * (t - 25))
+        return t - 25 - 50 * (10 / (r + 50)) ** 2 * r
+
+    out = run(str(deck), str(deck.with_suffix(".thermal.toml")))
+    assert out.results.part("R1").temperature == pytest.approx(brentq(balance, 25, 500), abs=1e-4)

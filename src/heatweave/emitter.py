@@ -24,6 +24,7 @@ comment; the output is deterministic, so diffs of emitted decks stay small.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
@@ -102,6 +103,7 @@ class _Rewriter:
                 continue
             prefix = ""
             for instance, definition in zip(found.instances, found.definitions, strict=True):
+                _refuse_multiplier(instance, part)
                 spelled = f"{prefix}.{instance.head}" if prefix else instance.head
                 self.instance_at.setdefault(prefix.lower(), {})[id(instance)] = spelled
                 prefix = spelled
@@ -286,6 +288,27 @@ class _Rewriter:
         if self.heating:
             lines.append(f"B{PREFIX}p_{name} 0 {part.node} I = " + " + ".join(terms))
         return lines
+
+
+_MULTIPLIER = re.compile(r"(?i)(?<=[\s,)])m\s*=")
+
+
+def _refuse_multiplier(instance: Card, part: PartPlan) -> None:
+    """An ``X`` card with ``m=`` above a part is an error: ngspice pushes the multiplier
+    into the definition's R, C, D, ... but not into behavioural or code-model sources
+    (manual 3.2.1), so the replaced resistor would lose it and the part's thermal network
+    would gain it."""
+    _nodes, _sub, params = x_card_parts(instance)
+    if not any(f.lower() == "m" and params[i + 1 : i + 2] == ["="] for i, f in enumerate(params)):
+        return
+    found = _MULTIPLIER.search(instance.logical().text)
+    raise EmitError(
+        f"{instance.head} multiplies its subcircuit (m=), which holds the annotated part "
+        f"{part.path}",
+        instance.location(found.start() if found else 0),
+        hint="write the multiplier on the resistor card inside (m= there sets its nominal "
+        "value), or place one instance per physical part",
+    )
 
 
 def _ends(card: Card, name: str) -> Card:
