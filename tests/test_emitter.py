@@ -349,6 +349,29 @@ def test_values_from_subcircuit_parameters_match_ngspice(tmp_path: Path) -> None
     )  # fmt: skip
 
 
+@pytest.mark.parametrize(
+    ("path", "source", "value"),
+    [
+        ("RA", "v1", 100.0),  # .param rtop={2*50} in an .include
+        ("RB", "v2", 94.0),  # .param rlow=47 in the LOW section of a .lib, used as {rlow*2}
+        ("X1.RC", "v3", 330.0),  # a nested .include, passed on as a subcircuit parameter
+    ],
+)
+def test_values_from_parameters_of_included_files_match_ngspice(
+    path: str, source: str, value: float
+) -> None:
+    # The reference is ngspice itself: each resistor draws 1 / R from its 1 V source.
+    deck = FIXTURES / "params_included.cir"
+    inputs = load_inputs(str(deck), str(FIXTURES / "params_included.thermal.toml"))
+    circuit = emit_inputs(inputs).circuit
+    assert circuit is not None
+    nominal = {p.path: p.nominal_resistance for p in circuit.parts}
+    plain = get_simulator("batch").run(deck.read_text(), cwd=str(FIXTURES))
+    current = -np.real(np.asarray(plain.plots[-1].vectors[f"i({source})"]))[0]
+    assert nominal[path] == pytest.approx(1.0 / current, rel=1e-9)
+    assert nominal[path] == value
+
+
 # --- cells defined in included files -----------------------------------------------------
 
 

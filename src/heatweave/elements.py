@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from heatweave.bulk import fast_init
 from heatweave.deck import _FIELD, Card, Node
 from heatweave.errors import EmitError
-from heatweave.hierarchy import DeckIndex, Resolved, x_card_parts
+from heatweave.hierarchy import DeckIndex, Project, Resolved, x_card_parts
 from heatweave.quantities import parse_number
 
 _NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[A-Za-z]*"
@@ -256,12 +256,14 @@ _PARAM_CARD = re.compile(r"\.[pP][aA][rR][aA][mM]")  # a first look; see top_par
 
 
 def top_params(index: DeckIndex) -> dict[str, float]:
-    """Numeric values of the top-level ``.param`` cards, in order, later ones winning."""
+    """Numeric values of the top-level ``.param`` cards, in order, later ones winning;
+    those of an ``.include``d file or a ``.lib`` section count where its card stands."""
     values: dict[str, float] = {}
-    source = index.project.deck.source
-    if source is not None and _PARAM_CARD.search(source.text) is None:
+    project = index.project
+    sources = [project.deck.source, *(inc.deck.source for inc in project.includes)]
+    if all(s is not None and _PARAM_CARD.search(s.text) is None for s in sources):
         return values
-    _param_cards(index.project.deck.body, values)
+    _param_cards(project.deck.body, values, project)
     return values
 
 
@@ -280,11 +282,20 @@ def scope_params(top: Mapping[str, float], found: Resolved) -> dict[str, float]:
     return values
 
 
-def _param_cards(body: tuple[Node, ...], values: dict[str, float]) -> None:
-    """Evaluate the ``.param`` cards of *body* into *values*, in order."""
+def _param_cards(
+    body: tuple[Node, ...], values: dict[str, float], project: Project | None = None
+) -> None:
+    """Evaluate the ``.param`` cards of *body* into *values*, in order; with *project*,
+    those of the files its include cards bring in too, in their place."""
     for card in body:
-        if isinstance(card, Card) and card.name == ".param":
+        if not isinstance(card, Card):
+            continue
+        if card.name == ".param":
             _assign(_pairs(card.fields()[1:]), values, values)
+        elif project is not None and project.includes and card.is_dot:
+            included = project.include_for(card)
+            if included is not None:
+                _param_cards(included.body, values, project)
 
 
 def _pairs(fields: list[str]) -> list[tuple[str, str]]:
