@@ -181,7 +181,7 @@ def _worst_difference(fast: cosim.FastOutcome, full) -> float:
 
 @pytest.mark.ngspice
 @pytest.mark.slow
-@pytest.mark.parametrize("name", ["divider", "coupled", "nested"])
+@pytest.mark.parametrize("name", ["divider", "coupled", "nested", "local"])
 def test_cosim_agrees_with_full_deck(name: str) -> None:
     deck, annotation = fixture(name)
     fast = cosim.run_auto(deck, annotation)

@@ -450,3 +450,20 @@ def test_multiplier_on_the_resistor_card_is_its_nominal_value(tmp_path: Path) ->
 
     out = run(str(deck), str(deck.with_suffix(".thermal.toml")))
     assert out.results.part("R1").temperature == pytest.approx(brentq(balance, 25, 500), abs=1e-4)
+
+
+def test_heat_only_part_in_a_locally_defined_cell(tmp_path: Path) -> None:
+    # A 0.1 A current sink on a 10 V supply absorbs P = V * I = 1 W exactly, so
+    # T = 25 + 10 K/W * 1 W.  Its cell is defined inside another definition, where ngspice 39
+    # names devices i.x1.i.xl.ih (checked with 'show'); its power is read from its sense
+    # sources, named the same way.
+    deck = write_case(
+        tmp_path,
+        "heat only, local cell\nV1 in 0 DC 10\nX1 in 0 outer\n.subckt outer p n\n"
+        ".subckt leg a b\nIH a b DC 0.1\n.ends leg\nXL p n leg\n.ends outer\n.op\n.end\n",
+        'schema = 1\n[part."X1.XL.IH"]\nrth = 10.0\n',
+    )
+    out = run(str(deck), str(deck.with_suffix(".thermal.toml")))
+    part = out.results.part("X1.XL.IH")
+    assert part.power == pytest.approx(1.0, rel=1e-9)
+    assert part.temperature == pytest.approx(35.0, abs=1e-6)
