@@ -15,6 +15,7 @@ import pytest
 from click.testing import CliRunner
 from scipy.optimize import brentq
 
+from heatweave.checks import LimitResult
 from heatweave.cli import main
 from heatweave.ratings import derated_power
 
@@ -253,3 +254,21 @@ def test_no_annotation_file_is_bad_input(tmp_path: Path) -> None:
     result = CliRunner().invoke(main, ["check", str(deck)])
     assert result.exit_code == 2
     assert "no annotation file" in result.output and "hint:" in result.output
+
+
+@pytest.mark.parametrize(
+    ("value", "bound", "upper", "passed"),
+    [
+        (7.5 + 8.881784197001252e-16, 7.5, True, True),  # one double spacing above 7.5
+        (7.5 - 8.881784197001252e-16, 7.5, False, True),  # and one below a floor
+        (7.5 * (1 + 1e-9), 7.5, True, False),  # a billionth over is over
+        (7.5 * (1 - 1e-9), 7.5, False, False),
+        (7.5, 7.5, True, True),
+        (-1e-300, 0.0, False, False),  # no relative room around a bound of 0
+    ],
+)
+def test_a_value_on_its_bound_up_to_round_off_passes(
+    value: float, bound: float, upper: bool, passed: bool
+) -> None:
+    # The spacing of doubles in [4, 8) is 2**-50 = 8.88e-16 (IEEE 754 binary64).
+    assert LimitResult("V(x)", "max" if upper else "min", value, bound, "V", upper).passed is passed

@@ -19,6 +19,7 @@ Three kinds of limit are checked, each giving one :class:`LimitResult`:
 
 from __future__ import annotations
 
+import math
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -40,6 +41,9 @@ FloatArray = npt.NDArray[np.float64]
 
 #: Baseline points below this share of the baseline's peak magnitude are left out of drift.
 DRIFT_FLOOR = 1e-6
+#: A value this close to its bound, relatively, is on it: a few units in the last place of a
+#: double (2.2e-16 relative), far below any simulator's tolerance (reltol 1e-3 by default).
+ROUND_OFF = 1e-12
 
 _SIGNAL = re.compile(r"^\s*v\s*\(\s*([^,()\s]+)\s*(?:,\s*([^,()\s]+)\s*)?\)\s*$", re.IGNORECASE)
 _GROUND = frozenset({"0", "gnd"})
@@ -67,8 +71,9 @@ class LimitResult:
 
     @property
     def passed(self) -> bool:
-        """True when the value is inside the bound."""
-        return self.margin >= 0
+        """True when the value is inside the bound, or on it up to floating-point round-off
+        (a node held at exactly its limit may come back one bit above it)."""
+        return self.margin >= 0 or math.isclose(self.value, self.bound, rel_tol=ROUND_OFF)
 
     def message(self) -> str:
         """One line naming the subject, the limit, the value and the margin."""
