@@ -5,6 +5,7 @@ closed forms and with scipy's solvers on the same equations; and the emitter's c
 from __future__ import annotations
 
 import math
+import re
 import shutil
 from pathlib import Path
 
@@ -13,9 +14,10 @@ import pytest
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
+from heatweave import results
 from heatweave.emitsections import stale_reason
 from heatweave.emitter import emit_files, emit_inputs, load_inputs
-from heatweave.errors import EmitError
+from heatweave.errors import EmitError, SimulatorError
 from heatweave.reader import read
 from heatweave.runner import RunOptions, run
 from heatweave.simulators import get_simulator
@@ -467,3 +469,18 @@ def test_heat_only_part_in_a_locally_defined_cell(tmp_path: Path) -> None:
     part = out.results.part("X1.XL.IH")
     assert part.power == pytest.approx(1.0, rel=1e-9)
     assert part.temperature == pytest.approx(35.0, abs=1e-6)
+
+
+def test_a_vector_ngspice_did_not_write_is_a_simulator_error(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Were a device named unlike ngspice names it (as cells defined inside other cells once
+    # were), reading its sense currents must end in a reported error, not a KeyError.
+    deck = write_case(
+        tmp_path,
+        "heat only\nV1 in 0 DC 10\nIH in 0 DC 0.1\n.op\n.end\n",
+        'schema = 1\n[part.IH]\nrth = 10.0\n',
+    )
+    monkeypatch.setattr(results, "device_name", lambda resolved, name: f"nosuch.{name}")
+    with pytest.raises(SimulatorError, match=re.escape("has no vector 'i(nosuch.vhw_s_ih_1)'")):
+        run(str(deck), str(deck.with_suffix(".thermal.toml")))

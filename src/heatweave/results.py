@@ -20,7 +20,7 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.deck import Block
-from heatweave.errors import Finding
+from heatweave.errors import Finding, SimulatorError
 from heatweave.hierarchy import DeckIndex, Resolved, global_names, top_level_node
 from heatweave.simulators import Plot, SimResult
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
@@ -98,7 +98,14 @@ def main_plot(sim: SimResult) -> Plot:
 
 
 def _vector(plot: Plot, name: str) -> FloatArray:
-    return np.real(np.asarray(plot[name])).astype(np.float64)
+    try:
+        return np.real(np.asarray(plot[name])).astype(np.float64)
+    except KeyError:
+        raise SimulatorError(
+            f"ngspice's {plot.name} plot has no vector {name!r}, which heatweave expected",
+            hint="heatweave named a node or device unlike ngspice: please report it with "
+            "the deck and its annotation file",
+        ) from None
 
 
 def device_name(resolved: Resolved, name: str) -> str:
