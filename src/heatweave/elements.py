@@ -144,8 +144,8 @@ def resistor_value(
 ) -> ResistorValue:
     """The nominal resistance of an ``R`` card, evaluating ``{expr}`` with *params*;
     *simple* is the card's :data:`SIMPLE_RESISTOR` match when the caller has it."""
-    pairs: dict[str, str] = {}
-    positional: list[str] = []
+    pairs: dict[str, tuple[str, int]] = {}  # key -> (value as written, logical offset)
+    positional: list[tuple[str, int]] = []
     if simple is None:
         simple = simple_resistor(card)
     if simple is not None:
@@ -153,46 +153,106 @@ def resistor_value(
             plain = _plain_value(simple.group(3))
             if plain is not None:
                 return plain
-        positional.append(simple.group(3))
-        pairs.update((k.lower(), v) for k, v in _PAIR.findall(simple.group(4)))
+        positional.append((simple.group(3), 0))
+        pairs.update((k.lower(), (v, 0)) for k, v in _PAIR.findall(simple.group(4)))
     else:
-        fields = card.fields()
-        i = 3
-        while i < len(fields):
-            if i + 1 < len(fields) and fields[i + 1] == "=":
-                pairs[fields[i].lower()] = fields[i + 2] if i + 2 < len(fields) else ""
-                i += 3
-            else:
-                positional.append(fields[i])
-                i += 1
-    raw = pairs.get("r") or pairs.get("resistance") or (positional[0] if positional else None)
-    if raw is None:
+        _fields_after_nodes(card, pairs, positional)
+    raw, at = pairs.get("r") or pairs.get("resistance") or ("", 0)
+    model_name = False
+    if not raw and positional:
+        raw, at = positional[0]
+        model_name = _BARE_NAME.fullmatch(raw) is not None and raw.lower() not in params
+    if not raw or model_name:
         raise EmitError(
             f"{card.head} has no resistance value heatweave can read",
-            card.location(),
+            card.location(at),
             hint="write the value on the card (e.g. 10k or {rval}); geometry from a model "
             "(l, w, rsh) is not supported for annotated parts",
         )
-    ohms = evaluate(raw, params, card)
+    ohms = evaluate(raw, params, card, at)
     notes = []
     for key in _TEMPERATURE_PARAMS:
         if key in pairs:
             notes.append(
-                f"the card's {key}={pairs[key]} no longer applies: the annotation's model "
+                f"the card's {key}={pairs[key][0]} no longer applies: the annotation's model "
                 "sets the resistance's temperature dependence"
             )
     if len(positional) > 1:
         notes.append(
-            f"model {positional[1]} on the card: its tc1/tc2/tce no longer apply; "
+            f"model {positional[1][0]} on the card: its tc1/tc2/tce no longer apply; "
             "the annotation's model replaces them"
         )
     for key in ("m", "scale"):
         if key in pairs:
-            factor = evaluate(pairs[key], params, card)
-            ohms = ohms / factor if key == "m" else ohms * factor
+            text, where = pairs[key]
+            factor = evaluate(text, params, card, where)
+            if key == "scale":
+                ohms *= factor
+            else:
+                ohms = ohms / factor if factor else math.inf
     if ohms == 0 or not math.isfinite(ohms):
-        raise EmitError(f"{card.head} has resistance {ohms}", card.location())
+        raise EmitError(
+            f"{card.head} has resistance {ohms:g} ohm (value * scale / m)",
+            card.location(),
+            hint="an annotated resistor needs a finite, nonzero resistance: check its value, "
+            "m= and scale=",
+        )
     return ResistorValue(ohms, tuple(notes))
+
+
+#: Where a ``key=value`` pair starts, which ends the unbraced expression before it.
+_NEXT_PAIR = re.compile(r"[ \t]+[A-Za-z_]\w*[ \t]*=(?!=)")
+#: A bare name in the value's place: ngspice 39 reads it as a model name (given a
+#: parameter's name it warns, then uses the parameter, as heatweave does).
+_BARE_NAME = re.compile(r"[A-Za-z_][\w$!#\[\]]*")
+
+
+def _fields_after_nodes(
+    card: Card, pairs: dict[str, tuple[str, int]], positional: list[tuple[str, int]]
+) -> None:
+    """The card's values after its nodes, each as written with its logical offset: the
+    ``key=value`` pairs into *pairs*, the rest into *positional*.  An unbraced expression
+    that the field splitting cuts at its parentheses (``r = V(a)*10+1k``) is kept whole:
+    after ``key=`` it runs to the next pair; as a positional field, ngspice 39 would read
+    it as a model name, so it is refused here with its whole text."""
+    logical = card.logical().text
+    spans = [(m.group(0), m.start()) for m in _FIELD.finditer(logical)]
+    i = 3
+    while i < len(spans):
+        text, start = spans[i]
+        if i + 1 < len(spans) and spans[i + 1][0] == "=":
+            value, at = spans[i + 2] if i + 2 < len(spans) else ("", spans[i + 1][1])
+            written = _as_written(logical, at, value)
+            pairs[text.lower()] = (written, at)
+            i += 3
+            while i < len(spans) and spans[i][1] < at + len(written):
+                i += 1  # the pieces of an expression kept whole
+            continue
+        written = _as_written(logical, start, text)
+        if written != text and logical[start + len(text) :].lstrip(" \t")[:1] == "(":
+            raise _unbraced(card, written, start)
+        positional.append((text, start))
+        i += 1
+
+
+def _as_written(logical: str, start: int, field: str) -> str:
+    """The value that starts at *start*: a braced or quoted *field* whole, an unbraced one
+    up to the next ``key=`` pair."""
+    if field[:1] in "{'\"" or not field:
+        return field
+    found = _NEXT_PAIR.search(logical, start)
+    return logical[start : found.start() if found else len(logical)].rstrip(" \t")
+
+
+def _unbraced(card: Card, written: str, start: int) -> EmitError:
+    if _RUNTIME.search(written):
+        return _runtime(card, written, start)
+    return EmitError(
+        f"cannot evaluate the value {written!r} of {card.head}: ngspice 39 reads an "
+        "expression outside braces as a model name",
+        card.location(start),
+        hint=f"write it in braces: {{{written}}}",
+    )
 
 
 _BINARY: dict[type[ast.operator], Callable[[float, float], float]] = {
@@ -209,12 +269,33 @@ _FUNCS: dict[str, Callable[..., float]] = {
 _NUMBER_IN_EXPR = re.compile(r"(?<![\w.])(\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[A-Za-z]*")
 
 
-def evaluate(text: str, params: Mapping[str, float], card: Card | None = None) -> float:
+#: A node voltage or branch current in an expression: ``V(a)``, ``v(a,b)``, ``I(V1)``.
+_RUNTIME = re.compile(r"(?<![\w.])[vViI][ \t]*\(")
+_GENERIC_HINT = "annotated resistors need a number or an expression of numeric .param values"
+
+
+class _Unreadable(Exception):
+    """Why an expression has no value: the end of the message, and the hint."""
+
+    def __init__(self, why: str, hint: str = _GENERIC_HINT) -> None:
+        super().__init__(why)
+        self.why = why
+        self.hint = hint
+
+
+def evaluate(
+    text: str, params: Mapping[str, float], card: Card | None = None, at: int = 0
+) -> float:
     """A SPICE value: a number with scale factor, or a ``{...}``/``'...'`` expression over
-    numeric ``.param`` values (arithmetic and the common functions)."""
+    numeric ``.param`` values (arithmetic and the common functions).  *at* is the value's
+    logical offset on *card*, where an error points."""
     number = parse_number(text)
     if number is not None:
         return number
+    head = card.head if card else "a card"
+    where = card.location(at) if card else None
+    if _RUNTIME.search(text):
+        raise _runtime(card, text, at)
     expr = text.strip()
     if expr[:1] in "{'" and expr[-1:] in "}'":
         expr = expr[1:-1]
@@ -227,19 +308,36 @@ def evaluate(text: str, params: Mapping[str, float], card: Card | None = None) -
     try:
         tree = ast.parse(python, mode="eval")
         return _eval(tree.body, {k.lower(): v for k, v in params.items()})
-    except (SyntaxError, KeyError, ValueError, TypeError, ZeroDivisionError) as err:
-        raise EmitError(
-            f"cannot evaluate the value {text!r} of {card.head if card else 'a card'}",
-            card.location() if card else None,
-            hint="annotated resistors need a number or an expression of numeric .param "
-            f"values ({err.__class__.__name__}: {err})",
-        ) from err
+    except _Unreadable as err:
+        why, hint = f": {err.why}", err.hint
+    except ZeroDivisionError:
+        why, hint = ": it divides by zero", "check the .param values it uses"
+    except (SyntaxError, ValueError, TypeError, OverflowError):
+        why, hint = "", _GENERIC_HINT
+    raise EmitError(f"cannot evaluate the value {text!r} of {head}{why}", where, hint=hint)
+
+
+def _runtime(card: Card | None, text: str, at: int) -> EmitError:
+    """The error for a value that follows the circuit (manual 3.3.4): it has no nominal."""
+    return EmitError(
+        f"the value {text!r} of {card.head if card else 'a card'} depends on node voltages "
+        "or currents: such values cannot be annotated",
+        card.location(at) if card else None,
+        hint="give the resistor a fixed value (a number or an expression of .param values), "
+        "or leave it out of the annotation file",
+    )
 
 
 def _eval(node: ast.expr, params: Mapping[str, float]) -> float:
     if isinstance(node, ast.Constant) and isinstance(node.value, int | float):
         return float(node.value)
     if isinstance(node, ast.Name):
+        if node.id.lower() not in params:
+            raise _Unreadable(
+                f"{node.id!r} is not a numeric .param",
+                f"define it with a .param card the resistor sees (.param {node.id} = ...), "
+                "or write a number",
+            )
         return params[node.id.lower()]
     if isinstance(node, ast.UnaryOp) and isinstance(node.op, ast.USub | ast.UAdd):
         value = _eval(node.operand, params)
@@ -247,7 +345,12 @@ def _eval(node: ast.expr, params: Mapping[str, float]) -> float:
     if isinstance(node, ast.BinOp) and type(node.op) in _BINARY:
         return _BINARY[type(node.op)](_eval(node.left, params), _eval(node.right, params))
     if isinstance(node, ast.Call) and isinstance(node.func, ast.Name):
-        func = _FUNCS[node.func.id.lower()]
+        func = _FUNCS.get(node.func.id.lower())
+        if func is None:
+            raise _Unreadable(
+                f"heatweave does not evaluate the function {node.func.id!r}",
+                "annotated values may use + - * / ^ and " + ", ".join(sorted(_FUNCS)),
+            )
         return float(func(*(_eval(a, params) for a in node.args)))
     raise ValueError("unsupported expression")
 
