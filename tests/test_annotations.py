@@ -53,6 +53,17 @@ class Catalog:
     def matching(self, pattern: str) -> Sequence[tuple[int, str]]:
         return matching_paths(pattern, self.elements)
 
+    @property
+    def top(self) -> TopScope:
+        return TopScope(instances=any("." in path for path in self.elements))
+
+
+@dataclass(frozen=True)
+class TopScope:
+    """The stand-in's top-level scope: whether it holds subcircuit instances."""
+
+    instances: bool
+
 
 CONTRACT_DECK = Catalog(("V1", "RSENSE", "X2.R4", "RDIV1", "RDIV2", "X2.RDIV3", "Q1", "C1"))
 
@@ -532,6 +543,23 @@ BIND_BAD = [
         'pattern "RDIV*" matches no element of deck.cir',
         "check the spelling; a pattern covers the whole instance path, so reach elements inside "
         "subcircuit instance X1 with X1.*",
+    ),
+    (
+        "glob-nothing-flat",
+        HEAD + '[part."D*"]\nrth = 5\n',
+        ("R1", "Q2", "r3", "V1"),
+        2,
+        'pattern "D*" matches no element of deck.cir',
+        "check the spelling and the element letter the pattern starts with; the names in "
+        "deck.cir start with Q, R, V",
+    ),
+    (
+        "glob-nothing-no-elements",
+        HEAD + '[part."R*"]\nmodel = "linear"\ntc1 = 1e-4\nrth = 5\n',
+        (),
+        2,
+        'pattern "R*" matches no element of deck.cir',
+        "check the deck: deck.cir has no element cards",
     ),
     (
         "two-globs",

@@ -34,6 +34,15 @@ RESISTOR = "R"
 _MAX_DRAWS = 1000
 
 
+class TopScope(Protocol):
+    """What :func:`bind` needs to know about a deck's top level."""
+
+    @property
+    def instances(self) -> bool:
+        """True when the top level holds a subcircuit instance (an ``X`` card)."""
+        ...
+
+
 class DeckCatalog(Protocol):
     """What :func:`bind` needs to know about a deck."""
 
@@ -53,6 +62,11 @@ class DeckCatalog(Protocol):
     def matching(self, pattern: str) -> Sequence[tuple[int, str]]:
         """(position in :meth:`element_paths`, path) of every element the glob *pattern*
         matches (``fnmatchcase`` rules, case ignored), in deck order."""
+        ...
+
+    @property
+    def top(self) -> TopScope:
+        """The deck's top level (for the hint when a pattern matches nothing)."""
         ...
 
 
@@ -88,8 +102,7 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
                 raise AnnotationError(
                     f'pattern "{spec.pattern}" matches no element of {catalog.deck_file}',
                     spec.location,
-                    "check the spelling; a pattern covers the whole instance path, "
-                    "so reach elements inside subcircuit instance X1 with X1.*",
+                    _unmatched_hint(catalog),
                 )
             overlaps |= globbed.keys() & hits.keys()
             globbed = hits | globbed  # the earlier pattern stays first
@@ -146,6 +159,23 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
 
 def _matches(spec: PartSpec, element: str) -> bool:
     return bool(matching(spec.pattern.upper(), element.upper()))
+
+
+def _unmatched_hint(catalog: DeckCatalog) -> str:
+    """What to check when a pattern matches nothing: in a deck with subcircuit instances,
+    how to reach inside them; in a flat deck, the element letters it has."""
+    if catalog.top.instances:
+        return (
+            "check the spelling; a pattern covers the whole instance path, "
+            "so reach elements inside subcircuit instance X1 with X1.*"
+        )
+    letters = sorted({path[:1].upper() for path in catalog.element_paths() if path[:1].isalpha()})
+    if not letters:
+        return f"check the deck: {catalog.deck_file} has no element cards"
+    return (
+        "check the spelling and the element letter the pattern starts with; the names in "
+        f"{catalog.deck_file} start with {', '.join(letters)}"
+    )
 
 
 def _suggest(name: str, elements: Sequence[str]) -> str:
