@@ -107,8 +107,7 @@ BAD_VALUES = [
         "R1 a 0 1k m=0",
         1,
         "R1 has resistance inf ohm (value * scale / m)",
-        "an annotated resistor needs a finite, nonzero resistance: check its value, m= and "
-        "scale=",
+        "an annotated resistor needs a finite, nonzero resistance: check its value, m= and scale=",
     ),
 ]
 

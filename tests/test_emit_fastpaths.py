@@ -280,3 +280,68 @@ def test_fast_init_without_slots_sets_through_setattr() -> None:
     assert made == Unslotted("x", 2)
     with pytest.raises(dataclasses.FrozenInstanceError):
         made.a = "z"  # type: ignore[misc]
+
+
+# --------------------------------------------------------------------------- line endings
+
+CELLS = 'schema = 1\n[part."X1.*"]\nmodel = "linear"\ntc1_ppm = 100\nrth = 50.0\n'
+CRLF_DECKS = [
+    # (deck, annotation)
+    ("t\r\nV1 a 0 1\r\nRA1 a 0 1k\r\n.op\r\n.end\r\n", EVERY_RESISTOR),  # the plain case
+    ("t\r\nV1 a 0 1\r\nRA1 a\r\n+ 0 1k\r\n.op\r\n.end\r\n", EVERY_RESISTOR),  # continued
+    ("t\r\nV1 a 0 1\r\nRA1 a 0 1k", EVERY_RESISTOR),  # no .end, no final line ending
+    (
+        "t\r\nV1 a 0 1\r\nD1 a 0 dx\r\n.model dx D\r\n.end\r\n",
+        "schema = 1\n[part.D1]\nrth = 80.0\n",
+    ),
+    (
+        "t\r\nV1 a 0 1\r\nX1 a 0 cell\r\n.subckt cell p q\r\nRA1 p q 1k\r\n.ends cell\r\n.end\r\n",
+        CELLS,
+    ),
+]
+
+
+@pytest.mark.parametrize("form", list(FORMS))
+@pytest.mark.parametrize(("text", "parts"), CRLF_DECKS)
+@pytest.mark.parametrize("splice", [True, False])
+def test_added_lines_follow_a_crlf_deck(
+    tmp_path: Path,
+    text: str,
+    parts: str,
+    form: str,
+    splice: bool,
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # The deck's own line ending (that of its first line) for every line emit writes: a
+    # file mixing two conventions is what editors and diff tools complain about.
+    deck = tmp_path / "crlf.cir"
+    deck.write_bytes(text.encode())
+    annotation = tmp_path / "crlf.thermal.toml"
+    annotation.write_text(parts)
+    if not splice:
+        monkeypatch.setattr(_Rewriter, "edits", lambda self, source: None)
+    emitted = emit_files(str(deck), str(annotation), form=form).text
+    assert "*hw*" in emitted
+    body = emitted if emitted.endswith("\r\n") else emitted[: emitted.rfind("\n") + 1]
+    assert body.count("\n") == body.count("\r\n") > text.count("\n")
+    assert _unhashed(emitted.replace("\r\n", "\n")) == _unhashed(
+        _emit_lf(tmp_path, text, parts, form)
+    )
+
+
+def _unhashed(emitted: str) -> str:
+    """An emitted deck without the header line holding the source deck's hash."""
+    return "".join(
+        line for line in emitted.splitlines(keepends=True) if not line.startswith("* source deck:")
+    )
+
+
+def _emit_lf(tmp_path: Path, text: str, parts: str, form: str) -> str:
+    """The same deck with LF line endings, emitted: the reference apart from line endings
+    (the header's hash of the deck aside, which differs with the bytes)."""
+    deck = tmp_path / "lf" / "crlf.cir"
+    deck.parent.mkdir()
+    deck.write_bytes(text.replace("\r\n", "\n").encode())
+    annotation = deck.with_suffix(".thermal.toml")
+    annotation.write_text(parts)
+    return emit_files(str(deck), str(annotation), form=form).text

@@ -52,16 +52,39 @@ def power_at(t: float) -> float:
     return V_SUPPLY**2 * r / (r + R2) ** 2
 
 
-def test_divider_steady_state_matches_root_of_power_balance() -> None:
+def divider_with(tmp_path: Path, eol: str) -> Path:
+    """The divider fixture with line ending *eol*, beside its annotation."""
+    deck = tmp_path / "divider.cir"
+    text = (FIXTURES / "divider.cir").read_text()
+    deck.write_bytes(text.replace("\n", eol).encode())
+    shutil.copy(FIXTURES / "divider.thermal.toml", tmp_path / "divider.thermal.toml")
+    return deck
+
+
+@pytest.mark.parametrize("eol", ["\n", "\r\n"])
+def test_divider_steady_state_matches_root_of_power_balance(tmp_path: Path, eol: str) -> None:
     # The fixed point T = Ta + Rth * P(T), found independently by scipy's brentq.
     expected = brentq(lambda t: t - TA - RTH * power_at(t), TA, TA + 500)
-    out = run(str(FIXTURES / "divider.cir"), str(FIXTURES / "divider.thermal.toml"))
+    deck = divider_with(tmp_path, eol)
+    out = run(str(deck), str(tmp_path / "divider.thermal.toml"))
     part = out.results.part("R1")
     assert part.temperature == pytest.approx(expected, abs=1e-4)
     r = r1_at(expected)
     assert out.results.voltages["out"] == pytest.approx(V_SUPPLY * R2 / (r + R2), rel=1e-6)
     assert part.power == pytest.approx(power_at(expected), rel=1e-5)
     assert part.resistance == pytest.approx(r, rel=1e-6)
+
+
+@pytest.mark.parametrize("form", ["reference", "switch", "divider"])
+def test_crlf_deck_emitted_in_crlf_simulates(tmp_path: Path, form: str) -> None:
+    # Every line of the emitted deck ends as the deck's own lines do (CRLF), and ngspice 39
+    # reads it: V(out) at the fixed point found by scipy's brentq, as for the LF deck.
+    expected = brentq(lambda t: t - TA - RTH * power_at(t), TA, TA + 500)
+    deck = divider_with(tmp_path, "\r\n")
+    text = emit_files(str(deck), str(tmp_path / "divider.thermal.toml"), form=form).text
+    assert text.count("\n") == text.count("\r\n") > deck.read_bytes().count(b"\n")
+    v_out = simulate(text, "op")["v(out)"][0]
+    assert v_out == pytest.approx(V_SUPPLY * R2 / (r1_at(expected) + R2), rel=1e-6)
 
 
 def test_divider_transient_matches_solve_ivp() -> None:

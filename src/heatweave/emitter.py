@@ -41,7 +41,7 @@ from heatweave.emitsections import MARK, check_names, folded_files, header, ther
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, x_card_parts
 from heatweave.quantities import format_number
-from heatweave.splice import end_position, insert_before_end, spliced
+from heatweave.splice import end_position, insert_before_end, line_ending, spliced
 from heatweave.stencil import Made, Stencils
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
 
@@ -60,8 +60,11 @@ class Emitted:
 class _Rewriter:
     """Rewrites bodies for one thermal circuit; keeps the bookkeeping of names and copies."""
 
-    def __init__(self, index: DeckIndex, circuit: ThermalCircuit, form: str, heating: bool) -> None:
+    def __init__(
+        self, index: DeckIndex, circuit: ThermalCircuit, form: str, heating: bool, eol: str = "\n"
+    ) -> None:
         self.index = index
+        self.eol = eol  # the deck's line ending, for every line written
         self.circuit = circuit
         self.form = form
         self.heating = heating
@@ -132,7 +135,7 @@ class _Rewriter:
             if text.find("\n") == len(text) - 1:  # one line: its comment is the mark before it
                 new = lead + MARK + text + part_text(card, part)
             else:
-                new = lead + card.commented(MARK) + part_text(card, part)
+                new = lead + self.commented(card) + part_text(card, part)
             append((offset - len(lead), offset + len(text), new))
         return out
 
@@ -174,7 +177,7 @@ class _Rewriter:
             name = copy_name(block.label, self._spelled(path))
             opening = self.retarget(block.header, block.label, name, comment=False)
             body = tuple(self.body(block.body, self._spelled(path), top=False))
-            out.append(Block(opening, body, block.end and _ends(block.end, name)))
+            out.append(Block(opening, body, block.end and _ends(block.end, name, self.eol)))
         return out
 
     def unplaced(self) -> list[Node]:
@@ -207,13 +210,21 @@ class _Rewriter:
             raise EmitError(f"cannot find subcircuit name {old!r} on {card.head}", card.location())
         _text, start, end = found
         logical = card.logical().text
-        text = logical[:start] + new + logical[end:] + "\n"
-        lead = card.lead + (card.commented(MARK) if comment else "")
+        text = logical[:start] + new + logical[end:] + self.eol
+        lead = card.lead + (self.commented(card) if comment else "")
         return Card(text, lead)
 
     def replace_part(self, card: Card, part: PartPlan) -> Card:
         """The card that replaces *card*: the part's cards, the original commented above."""
-        return Card(self.part_text(card, part), card.lead + card.commented(MARK))
+        return Card(self.part_text(card, part), card.lead + self.commented(card))
+
+    def commented(self, card: Card) -> str:
+        """*card* as comment lines, the last one ending in the deck's line ending when the
+        file ended without one."""
+        text = card.commented(MARK)
+        if self.eol != "\n" and not card.text.endswith("\n"):
+            text = text[:-1] + self.eol
+        return text
 
     def part_text(self, card: Card, part: PartPlan) -> str:
         """The lines that replace *part*'s *card*; records the names they add."""
@@ -233,6 +244,8 @@ class _Rewriter:
             text, added, thermal = self._with_network(lines, part, part.path, name, part.node)
         self.added.extend(added)
         self.thermal.extend(thermal)
+        if self.eol != "\n":
+            text = text.replace("\n", self.eol)
         return text
 
     def _resistor_part(
@@ -311,12 +324,12 @@ def _refuse_multiplier(instance: Card, part: PartPlan) -> None:
     )
 
 
-def _ends(card: Card, name: str) -> Card:
+def _ends(card: Card, name: str, eol: str = "\n") -> Card:
     """A ``.ends`` for a copy: named when the original named its definition."""
     fields = card.fields()
     if len(fields) > 1:
-        return Card(f"{fields[0]} {name}\n")
-    return Card(card.text if card.text.endswith("\n") else card.text + "\n")
+        return Card(f"{fields[0]} {name}{eol}")
+    return Card(card.text if card.text.endswith("\n") else card.text + eol)
 
 
 def copy_name(subckt: str, path: str) -> str:
@@ -357,10 +370,11 @@ def emit_deck(
         return Emitted(deck.write() if written is None else written, (), (), circuit)
     if written is None:
         written = deck.write()
-    rewriter = _Rewriter(index, circuit, form, heating)
-    title = deck.title or "heatweave electrothermal deck\n"
+    eol = line_ending(deck)
+    rewriter = _Rewriter(index, circuit, form, heating, eol)
+    title = deck.title or "heatweave electrothermal deck" + eol
     if not title.endswith("\n"):
-        title += "\n"
+        title += eol
     edits = None
     end_at = end_position(deck)
     # Splicing needs the deck as read (a sweep may have edited it).
@@ -376,15 +390,16 @@ def emit_deck(
     # Each file's text in lower case, once: the option check and the name check search it.
     folded = folded_files(project, written)
     options = step_limit_options(form, [(low, t) for _d, low, t in folded], folded=True)
-    section = Card(
-        thermal_section(circuit, thermal, bool(rewriter.copies), form, options, heating)
-    )
+    section_text = thermal_section(circuit, thermal, bool(rewriter.copies), form, options, heating)
+    if eol != "\n":
+        head, section_text = head.replace("\n", eol), section_text.replace("\n", eol)
+    section = Card(section_text)
     if edits is not None:
         assert end_at is not None
-        text = spliced(deck, written, edits, section, end_at, title + head)
+        text = spliced(deck, written, edits, section, end_at, title + head, eol)
     else:
         # The copies go before .end with the section: the shared library reads no further.
-        body = insert_before_end(body, Card(copies + section.text, section.lead))
+        body = insert_before_end(body, Card(copies + section.text, section.lead), eol)
         text = replace(deck, title=title + head, body=tuple(body)).write()
     check_names(
         index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)], folded
