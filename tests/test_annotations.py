@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+import tomllib
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -693,6 +694,48 @@ def test_schema_command_prints_json(tmp_path: Path) -> None:
     out = tmp_path / "schema.json"
     assert runner.invoke(schema_command, ["-o", str(out)]).exit_code == 0
     assert json.loads(out.read_text()) == schema()
+
+
+_DECKS = Path(__file__).parent.parent / "decks"
+_PART = HEAD + "[part.R1]\n"
+# (text, whether the loader accepts it): the schema must agree with the loader on each.
+# Rules that tie one value to another (profile order, min < max, a node defined elsewhere)
+# are beyond JSON Schema and left out.
+SCHEMA_AGREEMENT = [
+    *(
+        pytest.param(path.read_text(), True, id=path.name)
+        for path in [*sorted(FIXTURES.glob("*.toml")), *sorted(_DECKS.glob("*/*.thermal.toml"))]
+    ),
+    pytest.param(_PART + 'rth = 60\ncolour = "red"\n', False, id="unknown key"),
+    pytest.param(LINEAR.replace("50", '"fifty"') + "rth = 60\n", False, id="wrong type"),
+    pytest.param(_PART + "rth = -60\n", False, id="negative rth"),
+    pytest.param(_PART + 'rth = "-60"\n', False, id="negative rth as a string"),
+    pytest.param(_PART + 'rth = "0k"\n', False, id="zero rth with a scale factor"),
+    pytest.param(_PART + 'rth = 60\ncth = "-5m"\n', False, id="negative cth as a string"),
+    pytest.param(_PART + 'rth = 60\ncth = "-0"\n', True, id="minus zero is zero"),
+    pytest.param(_PART + 'rth = "1k5"\n', True, id="digits after the scale factor"),
+    pytest.param(_PART + "rth = {nominal = -60, sigma = 1}\n", False, id="negative nominal"),
+    pytest.param(_PART + 'rth = {nominal = "60", sigma = "1"}\n', True, id="string tolerance"),
+    pytest.param(_PART + 'rth = {nominal = 60, sigma = "-1"}\n', False, id="negative sigma"),
+    pytest.param(_PART + 'foster = [["12", "10m"]]\n', True, id="string stages"),
+    pytest.param(_PART + 'foster = [["12", "-10m"]]\n', False, id="negative string tau"),
+    pytest.param(HEAD + '[ambient]\nprofile = [[0, "25"], ["10m", 40]]\n', True, id="profile"),
+    pytest.param(HEAD + "[node.ambient]\nrth = 3\n", False, id="node named ambient"),
+]
+
+
+@pytest.mark.parametrize(("text", "accepted"), SCHEMA_AGREEMENT)
+def test_schema_agrees_with_loader(text: str, accepted: bool) -> None:
+    # Checked with a validator of the draft 2020-12 keywords (tests/schema_subset.py).
+    from schema_subset import Validator
+
+    try:
+        loads(text, FILE)
+        loaded = True
+    except AnnotationError:
+        loaded = False
+    assert loaded == accepted
+    assert Validator(json.loads(json.dumps(schema()))).valid(tomllib.loads(text)) == accepted
 
 
 def test_annotation_is_immutable() -> None:

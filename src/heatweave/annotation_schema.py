@@ -15,26 +15,34 @@ from heatweave.annotation_fields import (
     Field,
     model_fields,
 )
-from heatweave.annotation_types import SCHEMA_VERSION
+from heatweave.annotation_types import AMBIENT, SCHEMA_VERSION
 from heatweave.tempmodels import REGISTRY
 
 Schema = dict[str, Any]
 
-# A SPICE number written as a string ("10k"), read like quantities.parse_number.
-_SPICE_STRING = r"^\s*[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?[A-Za-z_]*\s*$"
+# A SPICE number written as a string ("10k", "1k5"), read like quantities.parse_number; the
+# mantissa's sign and digits carry the range, since a scale factor never changes the sign.
+_EXPONENT_AND_SUFFIX = r"([eE][+-]?\d+)?([A-Za-z_]\w*)?\s*$"
+_MANTISSA = {
+    "number": r"[+-]?(\d+\.?\d*|\.\d+)",
+    "nonnegative": r"(\+?(\d+\.?\d*|\.\d+)|-(0+\.?0*|\.0+))",  # minus only on zero
+    "positive": r"\+?(\d*[1-9]\d*\.?\d*|\d*\.\d*[1-9]\d*)",  # a digit other than 0
+}
 
 
 def _numeric(kind: str) -> Schema:
+    """A number of *kind* (number, positive, nonnegative), as TOML number or SPICE string."""
     number: Schema = {"type": "number"}
     if kind == "positive":
         number["exclusiveMinimum"] = 0
     elif kind == "nonnegative":
         number["minimum"] = 0
-    return {"anyOf": [number, {"type": "string", "pattern": _SPICE_STRING}]}
+    pattern = rf"^\s*{_MANTISSA.get(kind, _MANTISSA['number'])}{_EXPONENT_AND_SUFFIX}"
+    return {"anyOf": [number, {"type": "string", "pattern": pattern}]}
 
 
 def _pairs(positive: bool) -> Schema:
-    item: Schema = {"type": "number", "exclusiveMinimum": 0} if positive else {"type": "number"}
+    item = _numeric("positive" if positive else "number")
     return {
         "type": "array",
         "minItems": 1,
@@ -48,7 +56,9 @@ def _field(spec: Field) -> Schema:
     elif spec.kind in ("number", "positive", "nonnegative"):
         out = _numeric(spec.kind)
         if spec.tolerance:
-            out = {"anyOf": [out, {"$ref": "#/$defs/tolerance"}]}
+            # The nominal value keeps the key's range (a tolerance of rth is still positive).
+            within = {"$ref": "#/$defs/tolerance", "properties": {"nominal": _numeric(spec.kind)}}
+            out = {"anyOf": [out, within]}
     elif spec.kind == "choice":
         out = {"enum": list(spec.choices)}
     elif spec.kind == "string":
@@ -108,7 +118,11 @@ def schema() -> Schema:
     top["properties"].update(
         {
             "ambient": ambient,
-            "node": {**named, "additionalProperties": {"$ref": "#/$defs/node"}},
+            "node": {
+                **named,
+                "propertyNames": {"not": {"const": AMBIENT}},  # the surroundings' own name
+                "additionalProperties": {"$ref": "#/$defs/node"},
+            },
             "part": {**named, "additionalProperties": {"$ref": "#/$defs/part"}},
             "path": {"type": "array", "items": _table(PATH_FIELDS)},
             "limit": {
@@ -129,10 +143,10 @@ def schema() -> Schema:
                 "type": "object",
                 "description": "Monte Carlo tolerance: normal (sigma) or uniform (min..max)",
                 "properties": {
-                    "nominal": {"type": "number"},
-                    "sigma": {"type": "number", "minimum": 0},
-                    "min": {"type": "number"},
-                    "max": {"type": "number"},
+                    "nominal": _numeric("number"),
+                    "sigma": _numeric("nonnegative"),
+                    "min": _numeric("number"),
+                    "max": _numeric("number"),
                 },
                 "required": ["nominal"],
                 "additionalProperties": False,
