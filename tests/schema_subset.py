@@ -79,8 +79,8 @@ class Validator:
         if "const" in schema:
             ok &= _equal(x, schema["const"])
         if _number(x):
-            ok &= x > schema.get("exclusiveMinimum", float("-inf"))  # type: ignore[operator]
-            ok &= x >= schema.get("minimum", float("-inf"))  # type: ignore[operator]
+            ok &= x > schema.get("exclusiveMinimum", float("-inf"))
+            ok &= x >= schema.get("minimum", float("-inf"))
         if isinstance(x, str) and "pattern" in schema:
             ok &= re.search(schema["pattern"], x) is not None
         if isinstance(x, list):
@@ -93,7 +93,7 @@ class Validator:
 
     def _array(self, schema: dict[str, Any], x: list[object]) -> bool:
         prefix = schema.get("prefixItems", [])
-        ok = schema.get("minItems", 0) <= len(x) <= schema.get("maxItems", len(x))
+        ok: bool = schema.get("minItems", 0) <= len(x) <= schema.get("maxItems", len(x))
         for index, item in enumerate(x):
             branch = prefix[index] if index < len(prefix) else schema.get("items")
             if branch is not None:
