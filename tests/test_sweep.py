@@ -109,6 +109,26 @@ def test_unknown_param_is_located_with_a_hint() -> None:
     assert "hint:" in result.stderr and "vbridge" in result.stderr
 
 
+@pytest.mark.parametrize(
+    "args",
+    [
+        # ngspice reads "DC 0.3" back as 0.30000000000000004 (its own number parser); the
+        # corner must report the ambient that was asked for, the value the plan lists.
+        ("--ambient", "0:0.3:0.1"),
+        ("--ambient", "-40.7,12.3"),
+        ("--ambient", "0.1:0.2:0.1", "--monte-carlo", "2", "--seed", "5", "-a", MC_ANNOTATION),
+    ],
+)
+def test_corner_ambients_are_the_values_asked_for(args: tuple[str, ...]) -> None:
+    data = sweep_json(DIVIDER, *args)
+    asked = list(parse_range(args[1], "--ambient"))
+    assert data["sweep"]["ambients"] == asked
+    draws = (data["sweep"]["monte_carlo"] or {"draws": 1})["draws"]
+    assert [c["ambient"] for c in data["corners"]] == asked * draws
+    if data["summary"]["kind"] == "monte_carlo":
+        assert [g["ambient"] for g in data["summary"]["groups"]] == asked
+
+
 # ------------------------------------------------------------ corners against brentq
 
 # divider.cir / divider.thermal.toml: RUP 220 ohm, tc1 3500 ppm/K (tref 25 degC),

@@ -339,13 +339,16 @@ def summary(result: SweepResult) -> dict[str, Any]:
         corner = outcome.corner
         groups.setdefault((tuple(corner.params.items()), corner.ambient), []).append(outcome)
     out = []
-    for (params, _), members in groups.items():
+    for (params, asked), members in groups.items():
         good = [m for m in members if m.ok]
         stats: dict[str, Any] = {}
         for part in parts:
             stats[part] = {
                 key: _stats(values) for key in SUMMARISED if (values := _values(good, part, key))
             }
-        ambient = next((m.data["ambient"] for m in good if m.data is not None), None)
+        # The ambient asked for, as the corners report it; else what the runs reported.
+        ambient = asked
+        if ambient is None:
+            ambient = next((m.data["ambient"] for m in good if m.data is not None), None)
         out.append({"ambient": ambient, "params": dict(params), "draws": len(good), "parts": stats})
     return {"kind": "monte_carlo", "seed": result.plan.seed, "groups": out}
