@@ -272,3 +272,45 @@ def test_a_value_on_its_bound_up_to_round_off_passes(
 ) -> None:
     # The spacing of doubles in [4, 8) is 2**-50 = 8.88e-16 (IEEE 754 binary64).
     assert LimitResult("V(x)", "max" if upper else "min", value, bound, "V", upper).passed is passed
+
+
+@pytest.mark.parametrize(
+    ("drop", "ambient", "words"),
+    [
+        # With tmax the IEC 60115-1 curve applies: 0.5 W * (155 - 100) / (155 - 70).
+        ("", "100", ["at most 0.32353 W", "rating 0.5 W derated for 100 degC at ambient"]),
+        # Without tmax there is no curve to follow: the full rating, and the line says so.
+        ("tmax = 155.0\n", "100", ["at most 0.5 W", "rating 0.5 W, not derated: no tmax"]),
+    ],
+)
+def test_power_line_says_whether_the_rating_was_derated(
+    tmp_path: Path, drop: str, ambient: str, words: list[str]
+) -> None:
+    text = base_annotation().replace(drop, "") if drop else base_annotation()
+    _code, output = run_check(tmp_path, text, "--op", "--ambient", ambient)
+    line = next(x for x in output.splitlines() if "RTOP power_rating:" in x)
+    for word in words:
+        assert word in line
+
+
+@pytest.mark.parametrize(
+    ("stem", "status"),
+    [("noconv", 3), ("timestep", 4), ("ntc_supply", 7)],  # exit statuses: errors.py
+)
+def test_junit_report_when_the_simulation_fails(tmp_path: Path, stem: str, status: int) -> None:
+    """A run that gives no answer still writes the report, with one error test case, so a
+    CI dashboard never shows the previous run's (passing) report as the current one."""
+    report = tmp_path / "report.xml"
+    report.write_text('<?xml version="1.0"?><testsuites tests="1" failures="0"/>')
+    deck, annotation = FIXTURES / f"{stem}.cir", FIXTURES / f"{stem}.thermal.toml"
+    args = ["check", str(deck), "-a", str(annotation), "--junit", str(report)]
+    result = CliRunner().invoke(main, args)
+    assert result.exit_code == status, result.output
+    root = ET.parse(report).getroot()
+    assert (root.get("tests"), root.get("failures"), root.get("errors")) == ("1", "0", "1")
+    (suite,) = root.findall("testsuite")
+    assert suite.get("errors") == "1"
+    (case,) = suite.findall("testcase")
+    error = case.find("error")
+    assert error is not None and error.get("message", "").startswith("error: ")
+    assert error.get("message", "") in result.output

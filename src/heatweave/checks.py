@@ -185,7 +185,11 @@ def _power_limit(part: PartResult, results: RunResults, ambient: FloatArray) -> 
     powers, temps = [float(p) for p in power], [float(t) for t in local]
     worst = worst_instant(rating, powers, temps, plan.derating_knee, plan.tmax)
     allowed = derated_power(rating, temps[worst], plan.derating_knee, plan.tmax)
-    detail = f"rating {_num(rating)} W derated for {_num(float(local[worst]))} degC at {where}"
+    at = f"{_num(float(local[worst]))} degC at {where}"
+    if plan.tmax is None:  # no upper category temperature: no curve to derate along
+        detail = f"rating {_num(rating)} W, not derated: no tmax given ({at})"
+    else:
+        detail = f"rating {_num(rating)} W derated for {at}"
     if results.time is not None:
         detail += " " + _when(results, worst)
     return LimitResult(part.path, "power_rating", powers[worst], allowed, "W", True, detail)

@@ -4,7 +4,8 @@ The layout follows the JUnit XML report format as CI servers read it: a ``<tests
 root with ``tests``/``failures``/``errors``/``time`` totals; each ``<testsuite>`` with
 ``name``, ``tests``, ``failures``, ``errors``, ``skipped``, ``time``, ``timestamp``,
 ``hostname``, ``id`` and ``package``; each ``<testcase>`` with ``name``, ``classname`` and
-``time``, and a ``<failure message=... type=...>`` child when the limit is violated.
+``time``, and a ``<failure message=... type=...>`` child when the limit is violated, or an
+``<error message=... type=...>`` child when nothing could be checked (the run gave no answer).
 """
 
 from __future__ import annotations
@@ -17,13 +18,16 @@ from datetime import UTC, datetime
 
 @dataclass(frozen=True, slots=True)
 class Case:
-    """One test case: a limit, with the failure message when it was violated."""
+    """One test case: a limit, with the failure message when it was violated; or the run
+    itself, with the error message when it gave nothing to check."""
 
     name: str
     classname: str
     time: float = 0.0
     failure: str | None = None
     failure_type: str = "LimitViolated"
+    error: str | None = None
+    error_type: str = "RunFailed"
 
 
 @dataclass(frozen=True, slots=True)
@@ -39,6 +43,10 @@ class Suite:
     def failures(self) -> int:
         return sum(case.failure is not None for case in self.cases)
 
+    @property
+    def errors(self) -> int:
+        return sum(case.error is not None for case in self.cases)
+
 
 def _seconds(value: float) -> str:
     return f"{value:.3f}"
@@ -51,7 +59,7 @@ def render(suites: Sequence[Suite], name: str = "heatweave check") -> str:
         name=name,
         tests=str(sum(len(s.cases) for s in suites)),
         failures=str(sum(s.failures for s in suites)),
-        errors="0",
+        errors=str(sum(s.errors for s in suites)),
         time=_seconds(sum(s.time for s in suites)),
     )
     for number, suite in enumerate(suites):
@@ -62,7 +70,7 @@ def render(suites: Sequence[Suite], name: str = "heatweave check") -> str:
             name=suite.name,
             tests=str(len(suite.cases)),
             failures=str(suite.failures),
-            errors="0",
+            errors=str(suite.errors),
             skipped="0",
             time=_seconds(suite.time),
             timestamp=stamp,
@@ -75,11 +83,14 @@ def render(suites: Sequence[Suite], name: str = "heatweave check") -> str:
                 element, "testcase", name=case.name, classname=case.classname,
                 time=_seconds(case.time),
             )  # fmt: skip
-            if case.failure is not None:
-                failure = ET.SubElement(
-                    item, "failure", message=case.failure, type=case.failure_type
-                )
-                failure.text = case.failure
+            for tag, text, kind in (
+                ("failure", case.failure, case.failure_type),
+                ("error", case.error, case.error_type),
+            ):
+                if text is not None:
+                    # the attribute holds the first line, the element the whole message
+                    child = ET.SubElement(item, tag, message=text.splitlines()[0], type=kind)
+                    child.text = text
     ET.indent(root)
     return ET.tostring(root, encoding="unicode", xml_declaration=False).join(
         ('<?xml version="1.0" encoding="UTF-8"?>\n', "\n")

@@ -24,6 +24,7 @@ from heatweave.cli.common import (
     simulation_options,
 )
 from heatweave.errors import EXIT_CHECK_FAILED
+from heatweave.junit import Case, Suite, render
 
 
 @click.command()
@@ -53,21 +54,30 @@ def check(
     IEC 60115-1 at the temperature of the node its path ends on, and each [limit."V(node)"]
     table (min, max, and max_drift_ppm against the same deck without self-heating).
     """
-    from heatweave import checks, junit, runner
+    from heatweave import checks, runner
     from heatweave.emitter import load_inputs
+    from heatweave.errors import HeatweaveError
 
     chosen = annotation_for(deck, annotations)
     started = time.monotonic()
-    inputs = load_inputs(deck, chosen)
-    signals = checks.resolve_limits(inputs.annotation, inputs.index)
-    options = runner.RunOptions(
-        analyses=analyses_of(op, tran), ambient=ambient, backend=backend,
-        allow_control=allow_control,
-    )  # fmt: skip
-    outcome = runner.run(deck, chosen, options, inputs=inputs)
-    report_findings(list(outcome.prepared.findings))
-    baseline = runner.run_baseline(inputs, options) if checks.needs_baseline(signals) else None
-    found = checks.evaluate(outcome, signals, baseline)
+    try:
+        inputs = load_inputs(deck, chosen)
+        signals = checks.resolve_limits(inputs.annotation, inputs.index)
+        options = runner.RunOptions(
+            analyses=analyses_of(op, tran), ambient=ambient, backend=backend,
+            allow_control=allow_control,
+        )  # fmt: skip
+        outcome = runner.run(deck, chosen, options, inputs=inputs)
+        report_findings(list(outcome.prepared.findings))
+        needed = checks.needs_baseline(signals)
+        baseline = runner.run_baseline(inputs, options) if needed else None
+        found = checks.evaluate(outcome, signals, baseline)
+    except HeatweaveError as err:
+        # A report is still written: the previous run's must not stand in for this one.
+        if junit_file is not None:
+            failed = _case(deck, "run", error=err.render())
+            write_junit(junit_file, deck, (failed,), time.monotonic() - started)
+        raise
     elapsed = time.monotonic() - started
     # With the JUnit report on stdout, the lines go to stderr so that stdout stays XML.
     stream = sys.stderr if junit_file == "-" else sys.stdout
@@ -78,20 +88,22 @@ def check(
         click.echo(line, file=stream)
     click.echo(f"{deck}: {checks.summary(found)}", file=stream)
     if junit_file is not None:
-        from heatweave.files import write_atomic
-
-        suite = junit.Suite(
-            name=deck,
-            cases=tuple(
-                junit.Case(
-                    f"{item.subject} {item.limit}",
-                    f"heatweave.{Path(deck).stem}",
-                    failure=None if item.passed else item.message(),
-                )
-                for item in found
-            ),
-            time=elapsed,
+        cases = tuple(
+            _case(deck, f"{item.subject} {item.limit}", None if item.passed else item.message())
+            for item in found
         )
-        write_atomic(junit_file, junit.render([suite]))
+        write_junit(junit_file, deck, cases, elapsed)
     if any(not item.passed for item in found):
         sys.exit(EXIT_CHECK_FAILED)
+
+
+def _case(deck: str, name: str, failure: str | None = None, error: str | None = None) -> Case:
+    """One JUnit test case of *deck*'s suite."""
+    return Case(name, f"heatweave.{Path(deck).stem}", failure=failure, error=error)
+
+
+def write_junit(path: str, deck: str, cases: tuple[Case, ...], elapsed: float) -> None:
+    """The JUnit report of one deck's check (``-``: stdout)."""
+    from heatweave.files import write_atomic
+
+    write_atomic(path, render([Suite(name=deck, cases=cases, time=elapsed)]))
