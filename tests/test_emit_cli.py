@@ -4,6 +4,7 @@ bad input with FILE:LINE:COL and exit status 2, never a traceback."""
 from __future__ import annotations
 
 import shutil
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -59,6 +60,54 @@ def test_check_reports_stale_and_which_input(tmp_path: Path) -> None:
     deck.write_text(deck.read_text().replace("DC 10", "DC 12"))
     code, _out, err = invoke("emit", str(deck), "--check", str(emitted))
     assert code == 1 and "the deck changed" in err
+
+
+LIBRARY_DECK = (
+    "leg from a library\nV1 in 0 DC 10\nX1 in out leg\nR2 out 0 100\n.include parts.lib\n"
+    ".op\n.end\n"
+)
+LIBRARY = ".subckt leg a b\nRL a b 100\n.ends\n"
+LIBRARY_NOTES = 'schema = 1\n[part."X1.RL"]\nmodel = "linear"\ntc1 = 0.004\nrth = 50.0\n'
+
+
+@pytest.mark.parametrize(
+    ("change", "words"),
+    [
+        # the included file holds the annotated part, whose copy the emitted deck carries
+        (
+            lambda d: (d / "parts.lib").write_text(LIBRARY.replace("100", "120")),
+            ["unchanged", "differs from line", "*hw* RL a b 100", "*hw* RL a b 120"],
+        ),
+        # a hand edit of the committed deck
+        (
+            lambda d: (d / "top.hw.cir").write_text(
+                (d / "top.hw.cir").read_text().replace("R2 out 0 100", "R2 out 0 110")
+            ),
+            ["unchanged", "R2 out 0 110", "R2 out 0 100"],
+        ),
+        # the committed deck checked out with CRLF line ends
+        (
+            lambda d: (d / "top.hw.cir").write_bytes(
+                (d / "top.hw.cir").read_bytes().replace(b"\n", b"\r\n")
+            ),
+            ["line ends differ"],
+        ),
+    ],
+    ids=["included file", "hand edit", "line ends"],
+)
+def test_check_names_what_differs_when_the_inputs_did_not(
+    tmp_path: Path, change: Callable[[Path], object], words: list[str]
+) -> None:
+    (tmp_path / "top.cir").write_text(LIBRARY_DECK)
+    (tmp_path / "parts.lib").write_text(LIBRARY)
+    (tmp_path / "top.thermal.toml").write_text(LIBRARY_NOTES)
+    deck, emitted = tmp_path / "top.cir", tmp_path / "top.hw.cir"
+    assert invoke("emit", str(deck), "-o", str(emitted))[0] == 0
+    change(tmp_path)
+    code, _out, err = invoke("emit", str(deck), "--check", str(emitted))
+    assert code == 1, err
+    for word in words:
+        assert word in err
 
 
 BAD_INPUT = [

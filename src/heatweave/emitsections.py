@@ -54,7 +54,28 @@ def stale_reason(committed: str, fresh: str) -> str:
     ):
         if tagged(committed, tag) != tagged(fresh, tag):
             reasons.append(what)
-    return "; ".join(reasons) or "its text differs from what emit writes now"
+    return "; ".join(reasons) or _first_difference(committed, fresh)
+
+
+def _first_difference(committed: str, fresh: str) -> str:
+    """Where a committed emitted deck departs from a fresh one whose inputs match it: an
+    included file changed (its annotated parts are copied in), or a hand edit."""
+    old, new = committed.splitlines(), fresh.splitlines()
+    if old == new:
+        return "only its line ends differ from what emit writes now (CRLF against LF?)"
+    number = next(
+        (n for n, (a, b) in enumerate(zip(old, new, strict=False), 1) if a != b),
+        min(len(old), len(new)) + 1,
+    )
+
+    def shown(lines: list[str]) -> str:
+        return repr(lines[number - 1]) if number <= len(lines) else "(end of file)"
+
+    return (
+        "the deck, the annotation file and heatweave's version are unchanged, but it "
+        f"differs from line {number}: it has {shown(old)}, emit writes now {shown(new)} "
+        "(an included file changed, or the emitted deck was edited by hand)"
+    )
 
 
 def thermal_section(
