@@ -318,6 +318,19 @@ def test_monte_carlo_without_seed_reports_the_seed_that_reproduces_it() -> None:
     assert sweep_json(*args, "--seed", str(seed))["corners"] == first["corners"]
 
 
+@pytest.mark.parametrize(
+    ("annotation", "warned"),
+    [
+        (str(FIXTURES / "divider.thermal.toml"), True),  # no tolerance: every draw nominal
+        (MC_ANNOTATION, False),
+    ],
+)
+def test_monte_carlo_over_no_tolerance_is_warned(annotation: str, warned: bool) -> None:
+    result = invoke(DIVIDER, "-a", annotation, "--monte-carlo", "2", "--seed", "1", "-q")
+    assert result.exit_code == EXIT_OK, result.output
+    assert ("gives no tolerance" in result.stderr) is warned
+
+
 # -------------------------------------------------------- independence of -j / executor
 
 

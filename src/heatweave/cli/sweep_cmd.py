@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import sys
 from collections.abc import Callable
+from typing import TYPE_CHECKING
 
 import click
 
@@ -21,6 +22,9 @@ from heatweave.cli.common import (
     style_severity,
 )
 from heatweave.errors import UsageError
+
+if TYPE_CHECKING:
+    from heatweave.annotations import Annotation
 
 #: What every worker imports: loaded once by the fork server, then shared by the workers.
 WORKER_MODULES = ("heatweave.sweep", "heatweave.reports", "heatweave.runaway")
@@ -42,6 +46,14 @@ def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
             click.echo("\r" + " " * (BAR + 40) + "\r", err=True, nl=False)
 
     return show
+
+
+def _has_tolerances(annotation: Annotation) -> bool:
+    """True when some part, shared node or thermal path has a toleranced key."""
+    return any(
+        table.tolerances for tables in (annotation.parts, annotation.nodes, annotation.paths)
+        for table in tables
+    )  # fmt: skip
 
 
 @click.command()
@@ -153,6 +165,13 @@ def sweep(
     )
     annotation_path = annotation_for(deck, annotations)
     inputs = load_inputs(deck, annotation_path)
+    if draws and not _has_tolerances(inputs.annotation):
+        message = (
+            f"warning: {inputs.annotation_path} gives no tolerance: every Monte Carlo draw is "
+            "the nominal design (hint: write a key as {nominal = ..., sigma = ...} or "
+            "{nominal = ..., min = ..., max = ...})"
+        )
+        click.echo(style_severity(message, "warning"), err=True)
     pool = make_executor(executor, jobs, scheduler, preload=WORKER_MODULES)
     try:
         progress = progress_bar(not quiet and is_terminal())
