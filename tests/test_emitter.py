@@ -281,6 +281,38 @@ def test_op_is_steady_state_and_tran_starts_cold_unless_steady(tmp_path: Path) -
     assert ".ic" not in out.prepared.text
 
 
+UIC_STARTS = [
+    # (annotation start, the deck's .tran card, whether emit refuses it, T(0) of R1 in degC)
+    ("steady", ".tran 1m 10m uic", True, None),
+    ("steady", ".TRAN 1m 10m 0 1m UIC", True, None),
+    ("cold", ".tran 1m 10m uic", False, 25.0),  # .ic holds under uic (manual 15.2.2)
+    ("steady", ".tran 1m 10m", False, 35.0),  # the operating point: 25 + 1 W * 10 K/W
+]
+
+
+@pytest.mark.parametrize(("start", "tran", "refused", "t0"), UIC_STARTS)
+def test_steady_start_needs_the_operating_point_uic_skips(
+    tmp_path: Path, start: str, tran: str, refused: bool, t0: float | None
+) -> None:
+    # With uic ngspice skips the operating point (manual 15.3.10): without .ic every thermal
+    # node would start at 0 V, 0 degC, which is neither a cold nor a steady start.
+    deck = write_case(
+        tmp_path,
+        f"start\nI1 0 a DC 1\nR1 a 0 1\n{tran}\n.end\n",
+        f'schema = 1\nstart = "{start}"\n[part.R1]\nmodel = "linear"\ntc1 = 0\n'
+        "rth = 10.0\ncth = 1.0\n",
+    )
+    notes = str(deck.with_suffix(".thermal.toml"))
+    if refused:
+        with pytest.raises(EmitError, match="uic") as caught:
+            emit_files(str(deck), notes)
+        location = caught.value.location
+        assert location is not None and location.line == 4 and caught.value.hint
+        return
+    series = run(str(deck), notes, RunOptions()).results.part("R1").temperature_series
+    assert series is not None and series[0] == pytest.approx(t0, abs=1e-6)
+
+
 def test_ambient_profile(tmp_path: Path) -> None:
     deck = write_case(
         tmp_path,

@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 
 from heatweave.annotations import AMBIENT, Annotation, BoundPart, NetworkSpec
 from heatweave.bulk import fast_init, paused_gc
-from heatweave.errors import AnnotationError, Finding, Location
+from heatweave.errors import AnnotationError, EmitError, Finding, Location
 from heatweave.hierarchy import DeckIndex, Resolved
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
 from heatweave.tempmodels.base import TempModel
@@ -217,8 +217,29 @@ def build_circuit(
     ambient: float | tuple[tuple[float, float], ...] = annotation.ambient.temperature
     if annotation.ambient.profile is not None:
         ambient = tuple(annotation.ambient.profile)
+    if annotation.start == "steady":
+        _check_steady_start(index)
     circuit = ThermalCircuit(ambient, nodes, tuple(parts), couplings, annotation.start)
     return circuit, tuple(findings)
+
+
+def _check_steady_start(index: DeckIndex) -> None:
+    """A steady start is the operating point ngspice computes before a transient; under
+    ``.tran ... uic`` it skips that (manual 15.3.10) and, with no ``.ic``, every thermal
+    node would start at 0 V, 0 degC."""
+    project = index.project
+    for deck in (project.deck, *(include.deck for include in project.includes)):
+        for card in deck.cards():
+            if card.text.lstrip()[:5].lower() != ".tran":
+                continue
+            words = [word.lower() for word in card.fields()]
+            if words[0] == ".tran" and "uic" in words[1:]:
+                raise EmitError(
+                    'start = "steady" needs the operating point, which .tran ... uic skips',
+                    card.location(),
+                    'remove uic from this .tran card, or write start = "cold" in the '
+                    "annotation file",
+                )
 
 
 def _network_data(spec: NetworkSpec) -> object:
