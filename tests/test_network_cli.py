@@ -64,6 +64,8 @@ def test_fit_time_window_takes_spice_factors() -> None:
         ("bad_columns.csv", "bad_columns.csv:3:1:", "expected 2 columns"),
         ("bad_negative.csv", "bad_negative.csv:3:1:", "not greater than zero"),
         ("bad_zero.csv", "bad_zero.csv:2:5:", "not greater than zero"),
+        ("bad_order.csv", "bad_order.csv:5:1:", "4m is not after 5m (line 4)"),
+        ("bad_repeat.csv", "bad_repeat.csv:3:1:", "2m is not after 2m (line 2)"),
     ],
 )
 def test_fit_bad_rows_are_located(name: str, where: str, words: str) -> None:
@@ -73,9 +75,19 @@ def test_fit_bad_rows_are_located(name: str, where: str, words: str) -> None:
     assert "Traceback" not in err
 
 
-def test_fit_too_few_points() -> None:
-    code, _, err = _run("fit", "-", "-n", "2", stdin="1m, 0.1\n2m, 0.2\n3m, 0.3\n4m, 0.35\n")
-    assert code == 2 and "too few" in err and "hint:" in err
+TOO_FEW = [
+    # (options, words of the message): 2 stages need 5 points
+    ((), "4 data points are too few for 2 Foster stages"),
+    (("--t-min", "2m"), "3 data points are too few for 2 Foster stages (--t-min/--t-max keep 3 of"),
+    (("--t-max", "0.5m"), "0 data points are too few for 2 Foster stages (--t-min/--t-max keep 0"),
+]
+
+
+@pytest.mark.parametrize(("options", "words"), TOO_FEW)
+def test_fit_too_few_points(options: tuple[str, ...], words: str) -> None:
+    stdin = "1m, 0.1\n2m, 0.2\n3m, 0.3\n4m, 0.35\n"
+    code, _, err = _run("fit", "-", "-n", "2", *options, stdin=stdin)
+    assert code == 2 and words in err and "hint:" in err
 
 
 def test_convert_foster_to_cauer_and_back(tmp_path: Path) -> None:

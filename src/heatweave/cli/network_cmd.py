@@ -60,7 +60,9 @@ def fit_command(
     try:
         result = fit_foster(data.t[keep], data.zth[keep], stages)
     except NetworkError as err:
-        raise UsageError(f"{_shown(zth_file)}: {err.message}", hint=err.hint) from None
+        kept = int(np.count_nonzero(keep))
+        window = f" (--t-min/--t-max keep {kept} of {keep.size})" if kept < keep.size else ""
+        raise UsageError(f"{_shown(zth_file)}: {err.message}{window}", hint=err.hint) from None
     comments = (
         f"Foster fit, {stages} stage(s), to {result.points} points of {_shown(zth_file)}",
         f"fit error: RMS {result.rms_abs:.3g} K/W ({100 * result.rms_rel:.3g} %), "

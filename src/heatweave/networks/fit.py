@@ -37,6 +37,10 @@ class FitResult:
     points: int
 
 
+def _count(n: int, noun: str) -> str:
+    return f"{n} {noun}" + ("" if n == 1 else "s")
+
+
 def _basis(t: FloatArray, tau: FloatArray) -> FloatArray:
     return np.asarray(-np.expm1(-t[:, None] / tau[None, :]))
 
@@ -53,7 +57,8 @@ def _check(t: npt.ArrayLike, zth: npt.ArrayLike, stages: int) -> tuple[FloatArra
     needed = 2 * stages + 1
     if times.size < needed:
         raise NetworkError(
-            f"{times.size} data points are too few for {stages} Foster stages",
+            f"{_count(times.size, 'data point')} {'is' if times.size == 1 else 'are'} too few "
+            f"for {_count(stages, 'Foster stage')}",
             hint=f"give at least {needed} points (one more than the {2 * stages} unknowns) "
             "or fit fewer stages",
         )

@@ -46,12 +46,14 @@ def _fields(text: str) -> list[tuple[int, str]]:
 def read_zth_csv(text: str, filename: str) -> ZthData:
     """Two columns, time (s) and Zth (K/W); an optional header row; ``#`` starts a comment.
 
-    Numbers may carry SPICE scale factors (``10u``, ``1m``).
+    Numbers may carry SPICE scale factors (``10u``, ``1m``).  Times must increase from row
+    to row: a row out of order or repeated is a slip in the data, not something to sort.
     """
     times: list[float] = []
     values: list[float] = []
     lines: list[int] = []
     seen_row = False
+    previous = ""
     for number, raw in enumerate(text.splitlines(), start=1):
         content = raw.split("#", 1)[0]
         if not content.strip():
@@ -79,8 +81,17 @@ def read_zth_csv(text: str, filename: str) -> ZthData:
             if value <= 0:
                 raise DataFileError(
                     f"{what} {field} is not greater than zero", spot,
-                    "times and Zth values must be positive; drop the t = 0 point",
+                    "times and Zth values must be positive; drop the t = 0 point"
+                    if what == "time" else
+                    "Zth is the temperature rise per watt after the step; check its sign",
                 )
+        if times and parsed[0] <= times[-1]:  # type: ignore[operator]
+            raise DataFileError(
+                f"time {fields[0][1]} is not after {previous} (line {lines[-1]})",
+                Location(filename, number, fields[0][0], raw),
+                "list the rows in increasing time, each time once",
+            )
+        previous = fields[0][1]
         times.append(float(parsed[0]))  # type: ignore[arg-type]
         values.append(float(parsed[1]))  # type: ignore[arg-type]
         lines.append(number)
