@@ -136,6 +136,34 @@ def test_convert_reads_an_annotation_files_parts(
     assert np.allclose(np.array(tomllib.loads(out)[target]), np.array(stages), rtol=1e-12)
 
 
+# Values spelt as the annotation loader reads them: SPICE strings, a tolerance's nominal.
+# One RC stage is its own Foster and Cauer form: tau = rth * cth (definition of the stage).
+SPELLINGS = [
+    ('rth = "30"\ncth = "50m"\n', "foster", [[30.0, 1.5]]),
+    ("rth = {nominal = 30, sigma = 2}\ncth = 0.05\n", "cauer", [[30.0, 0.05]]),
+    ('cauer = [["30", "50m"]]\n', "foster", [[30.0, 1.5]]),
+    ('foster = [["12", "10m"]]\n', "cauer", [[12.0, 0.01 / 12.0]]),
+]
+
+
+@pytest.mark.parametrize(("body", "target", "stages"), SPELLINGS)
+def test_convert_reads_values_as_the_annotation_loader_does(
+    tmp_path: Path, body: str, target: str, stages: list[list[float]]
+) -> None:
+    notes = tmp_path / "part.thermal.toml"
+    notes.write_text(f'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\n{body}')
+    code, out, err = _run("convert", str(notes), "--to", target)
+    assert code == 0, err
+    assert np.allclose(np.array(tomllib.loads(out)[target]), np.array(stages), rtol=1e-12)
+
+
+def test_convert_of_a_steady_only_stage_names_the_file(tmp_path: Path) -> None:
+    notes = tmp_path / "steady.toml"
+    notes.write_text("single = [30, 0]\n")
+    code, _, err = _run("convert", str(notes), "--to", "foster")
+    assert code == 2 and f"{notes}:1:1:" in err and "cth = 0" in err and "hint:" in err
+
+
 def test_convert_says_when_no_part_has_a_network(tmp_path: Path) -> None:
     notes = tmp_path / "bare.toml"
     notes.write_text('schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\n')

@@ -130,6 +130,7 @@ def read_network_toml(text: str, filename: str, part: str | None = None) -> Netw
             "see https://toml.io for the syntax; a network is e.g. foster = [[0.5, 1e-3]]",
         ) from None
     table, header_line = _select(document, text, filename, part)
+    written_keys = set(table)
     table = _with_single(table)
     keys = [key for key in FORMS if key in table]
     if len(keys) != 1:
@@ -140,14 +141,29 @@ def read_network_toml(text: str, filename: str, part: str | None = None) -> Netw
             "keep one of foster = [...], cauer = [...] or single = [...]",
         )
     key = keys[0]
-    value = table[key]
-    data = tuple(tuple(x) if isinstance(x, list) else x for x in value) if isinstance(
-        value, list) else value
+    written = key if key in written_keys else "rth"  # a part's rth stands for single
+    key_line = _line_of(text, rf"\s*{written}\s*=", max((header_line or 1) - 1, 0))
+    where = _where(text, filename, key_line)
     try:
-        return FORMS[key].from_annotation(data)
+        network = FORMS[key].from_annotation(_plain(table[key]))
+        if isinstance(network, Single):
+            network.to_foster()  # a steady-only stage (cth = 0) has neither form: said here
     except NetworkError as err:
-        key_line = _line_of(text, rf"\s*{key}\s*=", max((header_line or 1) - 1, 0))
-        raise err.at(_where(text, filename, key_line)) from None
+        raise err.at(where) from None
+    return network
+
+
+def _plain(value: object) -> object:
+    """A value as the annotation loader reads it: a SPICE string ("50m") as its number, a
+    tolerance table as its nominal value, lists as tuples; the form rejects anything else."""
+    if isinstance(value, dict) and "nominal" in value:
+        value = value["nominal"]
+    if isinstance(value, str):
+        number = parse_number(value)
+        return value if number is None else number
+    if isinstance(value, list):
+        return tuple(_plain(item) for item in value)
+    return value
 
 
 def _with_single(table: dict[str, object]) -> dict[str, object]:
