@@ -75,16 +75,27 @@ class LimitResult:
         (a node held at exactly its limit may come back one bit above it)."""
         return self.margin >= 0 or math.isclose(self.value, self.bound, rel_tol=ROUND_OFF)
 
-    def message(self) -> str:
-        """One line naming the subject, the limit, the value and the margin."""
+    def message(self, where: str = "") -> str:
+        """One line naming the subject, the limit, the value and the margin; *where* (a
+        sweep corner) follows the limit as ``at WHERE``."""
         verdict = "ok  " if self.passed else "FAIL"
         room = "margin" if self.passed else ("over by" if self.upper else "under by")
         side = "at most" if self.upper else "at least"
+        at = f" at {where}" if where else ""
         text = (
-            f"{verdict} {self.subject} {self.limit}: {_num(self.value)} {self.unit}, "
+            f"{verdict} {self.subject} {self.limit}{at}: {_num(self.value)} {self.unit}, "
             f"{side} {_num(self.bound)} {self.unit}, {room} {_num(abs(self.margin))} {self.unit}"
         )
         return f"{text} ({self.detail})" if self.detail else text
+
+    def as_dict(self) -> dict[str, str | float | bool]:
+        """The result as plain data (JSON reports): ``subject``, ``limit``, ``value``,
+        ``bound``, ``unit``, ``upper`` (a ceiling), ``margin``, ``passed``, ``detail``."""
+        return {
+            "subject": self.subject, "limit": self.limit, "value": self.value,
+            "bound": self.bound, "unit": self.unit, "upper": self.upper,
+            "margin": self.margin, "passed": self.passed, "detail": self.detail,
+        }  # fmt: skip
 
 
 def _num(value: float) -> str:

@@ -16,6 +16,11 @@ Corners are numbered in that order (parameters outer, ambient inner).  Each corn
 plain data the reports need, so only small dictionaries travel back.  A corner that fails
 (no convergence, thermal runaway, ...) is recorded with its error message and the others
 go on; :func:`exit_status` says what the command then returns.
+
+With limits to check (``sweep --check``), each worker also holds its corner to the
+annotation's limits with :func:`heatweave.checks.evaluate`, exactly as ``check`` does for
+one run; a drift limit needs the corner's own run without self-heating, which the same
+worker runs right after the corner (same parameters, draw and ambient).
 """
 
 from __future__ import annotations
@@ -29,6 +34,7 @@ from typing import Any
 import numpy as np
 
 from heatweave.annotations import Annotation, sample
+from heatweave.checks import LimitResult, Signal
 from heatweave.emitter import Inputs
 from heatweave.errors import EXIT_CHECK_FAILED, EXIT_OK, HeatweaveError
 from heatweave.executors import Executor
@@ -91,6 +97,8 @@ class CornerJob:
     inputs: Inputs
     annotation: Annotation | None
     options: RunOptions
+    #: The signal limits to check the corner against (``None``: no checking at all).
+    limits: tuple[Signal, ...] | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -98,7 +106,8 @@ class CornerOutcome:
     """What came back from one corner: the report data of ``run``, or why it failed.
 
     ``data`` holds ``analysis``, ``backend``, ``ambient``, ``parts``, ``nodes`` and
-    ``voltages`` exactly as :func:`heatweave.reports.json_report.as_dict` writes them.
+    ``voltages`` exactly as :func:`heatweave.reports.json_report.as_dict` writes them;
+    ``limits`` every limit checked (``None`` when the sweep checks none or the corner failed).
     """
 
     corner: Corner
@@ -106,10 +115,16 @@ class CornerOutcome:
     error: str | None = None
     exit_code: int = EXIT_OK
     warnings: tuple[str, ...] = ()
+    limits: tuple[LimitResult, ...] | None = None
 
     @property
     def ok(self) -> bool:
         return self.error is None
+
+    @property
+    def violated(self) -> tuple[LimitResult, ...]:
+        """The limits this corner violates."""
+        return tuple(r for r in self.limits or () if not r.passed)
 
 
 @dataclass(frozen=True, slots=True)
@@ -121,6 +136,8 @@ class SweepResult:
     options: RunOptions
     outcomes: tuple[CornerOutcome, ...]
     executor: str
+    #: True when the corners were held to the annotation's limits (``--check``).
+    checked: bool = False
 
     @property
     def failed(self) -> tuple[CornerOutcome, ...]:
@@ -193,8 +210,14 @@ def drawn_values(nominal: Annotation, drawn: Annotation) -> Drawn:
     return out
 
 
-def jobs_for(inputs: Inputs, plan: SweepPlan, options: RunOptions) -> list[CornerJob]:
-    """Every corner of *plan* as a job, numbered in corner order."""
+def jobs_for(
+    inputs: Inputs,
+    plan: SweepPlan,
+    options: RunOptions,
+    limits: tuple[Signal, ...] | None = None,
+) -> list[CornerJob]:
+    """Every corner of *plan* as a job, numbered in corner order; with *limits* (the
+    resolved signal limits, possibly none) every job also checks the annotation's limits."""
     check_params(inputs, [name for name, _ in plan.params])
     annotations: list[tuple[int | None, Annotation | None]] = [(None, None)]
     if plan.draws:
@@ -218,7 +241,8 @@ def jobs_for(inputs: Inputs, plan: SweepPlan, options: RunOptions) -> list[Corne
             for ambient in plan.ambients:
                 corner = Corner(len(jobs), ambient, values, draw, recorded)
                 run_options = replace(quiet, ambient=ambient)
-                jobs.append(CornerJob(corner, corner_inputs, annotation, run_options))
+                job = CornerJob(corner, corner_inputs, annotation, run_options, limits)
+                jobs.append(job)
     return jobs
 
 
@@ -226,10 +250,12 @@ def jobs_for(inputs: Inputs, plan: SweepPlan, options: RunOptions) -> list[Corne
 
 
 def run_corner(job: CornerJob) -> CornerOutcome:
-    """Run one corner (in a worker process) and reduce it to report data."""
+    """Run one corner (in a worker process) and reduce it to report data; check its limits
+    when the job has some to check (with the corner's baseline for a drift limit)."""
+    from heatweave.checks import evaluate, needs_baseline
     from heatweave.reports import build_report
     from heatweave.reports.json_report import as_dict
-    from heatweave.runner import run
+    from heatweave.runner import run, run_baseline
 
     inputs = job.inputs
     try:
@@ -241,11 +267,17 @@ def run_corner(job: CornerJob) -> CornerOutcome:
             annotation=job.annotation,
         )
         report = as_dict(build_report(inputs, outcome))
+        limits = None
+        if job.limits is not None:
+            baseline = None
+            if needs_baseline(job.limits):
+                baseline = run_baseline(inputs, job.options, job.annotation)
+            limits = evaluate(outcome, job.limits, baseline)
     except HeatweaveError as err:
         return CornerOutcome(job.corner, None, err.render(), err.exit_code)
     keys = ("analysis", "backend", "ambient", "parts", "nodes", "voltages")
     data = {key: report[key] for key in keys}
-    return CornerOutcome(job.corner, data, warnings=tuple(report["warnings"]))
+    return CornerOutcome(job.corner, data, warnings=tuple(report["warnings"]), limits=limits)
 
 
 # ----------------------------------------------------------------------------- driver
@@ -258,11 +290,14 @@ def run_sweep(
     executor: Executor,
     progress: Callable[[int, int, int], None] | None = None,
     worker: Callable[[CornerJob], CornerOutcome] = run_corner,
+    limits: tuple[Signal, ...] | None = None,
 ) -> SweepResult:
     """Run every corner of *plan* on *executor*; *progress* hears (done, total, failed)
-    after each corner.  Results come back in corner order whatever order they finish in."""
+    after each corner.  Results come back in corner order whatever order they finish in.
+    With *limits* (:func:`heatweave.checks.resolve_limits`, possibly empty) every corner is
+    also held to the annotation's limits."""
     plan = seed_of(plan)
-    jobs = jobs_for(inputs, plan, options)
+    jobs = jobs_for(inputs, plan, options, limits)
     outcomes: list[CornerOutcome | None] = [None] * len(jobs)
     failed = 0
     for done, (position, outcome) in enumerate(executor.run(worker, jobs), start=1):
@@ -272,14 +307,17 @@ def run_sweep(
             progress(done, len(jobs), failed)
     finished = tuple(o for o in outcomes if o is not None)
     assert len(finished) == len(jobs)
-    return SweepResult(plan, inputs, options, finished, executor.name)
+    return SweepResult(plan, inputs, options, finished, executor.name, limits is not None)
 
 
 def exit_status(result: SweepResult) -> int:
-    """0 when every corner ran; 1 when some failed; when all failed, the exit status of the
-    first corner's error (3 no convergence, 4 timestep too small, 7 thermal runaway, ...)."""
+    """0 when every corner ran (and, when checked, kept every limit); 1 when some failed or
+    violated a limit; when all failed, the exit status of the first corner's error (3 no
+    convergence, 4 timestep too small, 7 thermal runaway, ...)."""
     failed = result.failed
     if not failed:
+        if any(o.violated for o in result.outcomes):
+            return EXIT_CHECK_FAILED
         return EXIT_OK
     if len(failed) == len(result.outcomes):
         return failed[0].exit_code

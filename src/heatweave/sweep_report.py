@@ -14,11 +14,19 @@ JSON (``--json FILE``), keys in this order:
     (name: value), ``draw`` (Monte Carlo draw number or ``null``), ``drawn`` (part pattern,
     ``@node`` or ``A~B`` path: the drawn values of its toleranced keys), ``status`` (``ok``
     or ``failed``), ``error`` (the message of a failed corner), ``analysis``, ``backend``,
-    and ``parts``, ``nodes``, ``voltages`` exactly as ``run --json`` writes them.
+    and ``parts``, ``nodes``, ``voltages`` exactly as ``run --json`` writes them.  With
+    ``--check`` also ``limits``: the corner's limits in ``check``'s order (parts' ``tmax``
+    and ``power_rating``, then signal limits), each as
+    :meth:`heatweave.checks.LimitResult.as_dict` gives it (``subject``, ``limit``,
+    ``value``, ``bound``, ``unit``, ``upper``, ``margin``, ``passed``, ``detail``), or
+    ``null`` for a corner that gave no answer.
 ``summary``
     :func:`heatweave.sweep.summary`.
 ``failed``
     The indices of corners that failed.
+``check``
+    With ``--check`` only: :func:`heatweave.sweep_limits.as_dict` (corners checked, the
+    indices of corners failing a limit, the worst margin of each limit and its corner).
 ``cautions``
     What these numbers are and are not.
 
@@ -53,7 +61,7 @@ def corner_ambient(result: SweepResult, outcome: CornerOutcome) -> float:
 
 def _corner(result: SweepResult, outcome: CornerOutcome) -> dict[str, Any]:
     corner, data = outcome.corner, outcome.data or {}
-    return {
+    out = {
         "index": corner.index,
         "ambient": corner_ambient(result, outcome),
         "params": dict(corner.params),
@@ -67,6 +75,10 @@ def _corner(result: SweepResult, outcome: CornerOutcome) -> dict[str, Any]:
         "nodes": data.get("nodes", {}),
         "voltages": data.get("voltages", {}),
     }
+    if result.checked:
+        limits = outcome.limits
+        out["limits"] = None if limits is None else [item.as_dict() for item in limits]
+    return out
 
 
 def analyses(result: SweepResult) -> list[str]:
@@ -80,7 +92,7 @@ def as_dict(result: SweepResult) -> dict[str, Any]:
     """The sweep as plain data, keys in documented order."""
     plan = result.plan
     inputs = result.inputs
-    return {
+    out = {
         "heatweave_version": __version__,
         "deck": inputs.deck_path,
         "annotations": {"path": inputs.annotation_path, "sha256": inputs.annotation.sha256},
@@ -94,8 +106,13 @@ def as_dict(result: SweepResult) -> dict[str, Any]:
         "corners": [_corner(result, o) for o in result.outcomes],
         "summary": summary(result),
         "failed": [o.corner.index for o in result.failed],
-        "cautions": CAUTION_TEXT,
     }
+    if result.checked:
+        from heatweave import sweep_limits
+
+        out["check"] = sweep_limits.as_dict(result)
+    out["cautions"] = CAUTION_TEXT
+    return out
 
 
 def render_json(result: SweepResult) -> str:
