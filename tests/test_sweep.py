@@ -12,7 +12,9 @@ import csv
 import io
 import json
 import math
+import re
 import shutil
+import xml.etree.ElementTree as ET
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
@@ -534,3 +536,274 @@ def test_deck_on_stdin_matches_brentq(
     for corner in data["corners"]:
         expected = divider_temperature(corner["ambient"], 12.0)
         assert corner["parts"]["RUP"]["temperature"] == pytest.approx(expected, abs=t_tol(expected))
+
+
+# ------------------------------------------------------------------ --check: limits
+
+# divider.limits.thermal.toml: the divider's RUP with power_rating 0.25 W derated from a knee
+# of 70 degC to zero at tmax 110 degC, and [limit."V(mid)"] min = 6.6 V (demo values).
+LIMITS = str(FIXTURES / "divider.limits.thermal.toml")
+DRIFT = str(FIXTURES / "divider.drift.thermal.toml")
+RATING_UP, KNEE_UP, TMAX_UP, V_MID_MIN = 0.25, 70.0, 110.0, 6.6
+DRIFT_MAX_PPM = 10000.0
+CHECK_AMBIENTS = "0:120:30"
+
+
+def r_up(t: float, tc1: float = TC1) -> float:
+    """Linear TCR, R = R0 (1 + tc1 (T - tref)) (the first-order TCR definition)."""
+    return R_UP * (1 + tc1 * (t - TREF))
+
+
+def iec_allowed(ambient: float) -> float:
+    """IEC 60115-1 derating: the full rating up to the knee (rated ambient temperature),
+    then linear to zero at the upper category temperature (tmax)."""
+    if ambient <= KNEE_UP:
+        return RATING_UP
+    return RATING_UP * max(0.0, (TMAX_UP - ambient) / (TMAX_UP - KNEE_UP))
+
+
+def expected_limits(ta: float, v: float = 12.0) -> dict[str, tuple[float, float, bool]]:
+    """(value, bound, passes) of each limit of divider.limits.thermal.toml at ambient *ta*,
+    from the brentq steady state of the divider."""
+    t = divider_temperature(ta, v)
+    r = r_up(t)
+    p = v * v * r / (r + R_LO) ** 2
+    mid = v * R_LO / (r + R_LO)
+    allowed = iec_allowed(ta)
+    return {
+        "RUP tmax": (t, TMAX_UP, t <= TMAX_UP),
+        "RUP power_rating": (p, allowed, p <= allowed),
+        "V(mid) min": (mid, V_MID_MIN, mid >= V_MID_MIN),
+    }
+
+
+def limit_tol(name: str, expected: float) -> float:
+    """How far ngspice's answer may lie from brentq's: temperatures to reltol |T| + vntol,
+    powers and voltages to reltol (the manual's convergence criterion, 11.1.2)."""
+    return t_tol(expected) if name.endswith("tmax") else RELTOL * abs(expected) + VNTOL
+
+
+def drift_ppm(ta: float, v: float, t: float, tc1: float = TC1) -> float:
+    """|V_hot / V_cold - 1| of V(mid): the divider at *t* against the divider held at *ta*."""
+    hot = v * R_LO / (r_up(t, tc1) + R_LO)
+    cold = v * R_LO / (r_up(ta, tc1) + R_LO)
+    return abs(hot / cold - 1) * 1e6
+
+
+def checked_sweep(*args: str, code: int) -> tuple[Result, dict[str, Any]]:
+    result = invoke(*args, "--check", "--json", "-")
+    assert result.exit_code == code, result.output
+    data: dict[str, Any] = json.loads(result.stdout)
+    return result, data
+
+
+@pytest.fixture(scope="module")
+def limit_sweep(tmp_path_factory: pytest.TempPathFactory) -> tuple[Result, dict[str, Any], Path]:
+    junit = tmp_path_factory.mktemp("junit") / "sweep.xml"
+    args = (DIVIDER, "-a", LIMITS, "--ambient", CHECK_AMBIENTS, "--junit", str(junit), "-j", "2")
+    result, data = checked_sweep(*args, code=EXIT_CHECK_FAILED)
+    return result, data, junit
+
+
+@pytest.mark.parametrize("ambient", parse_range(CHECK_AMBIENTS, "--ambient"))
+def test_check_corners_against_brentq(
+    limit_sweep: tuple[Result, dict[str, Any], Path], ambient: float
+) -> None:
+    _result, data, _junit = limit_sweep
+    corner = next(c for c in data["corners"] if c["ambient"] == ambient)
+    got = {f"{x['subject']} {x['limit']}": x for x in corner["limits"]}
+    expected = expected_limits(ambient)
+    assert list(got) == list(expected)  # check's order: part limits, then signal limits
+    for name, (value, bound, passes) in expected.items():
+        tol = limit_tol(name, value)
+        # the verdict is decided by more than the simulator's tolerance
+        assert abs(value - bound) > 10 * tol, (name, value, bound)
+        assert got[name]["value"] == pytest.approx(value, abs=tol)
+        assert got[name]["bound"] == pytest.approx(bound, abs=1e-12)
+        assert got[name]["passed"] is passes, (name, ambient)
+        assert got[name]["margin"] == pytest.approx(
+            (bound - value) if got[name]["upper"] else (value - bound), abs=tol
+        )
+
+
+def test_check_grid_has_passing_and_failing_corners(
+    limit_sweep: tuple[Result, dict[str, Any], Path],
+) -> None:
+    result, data, _junit = limit_sweep
+    ambients = parse_range(CHECK_AMBIENTS, "--ambient")
+    verdicts = [all(p for _v, _b, p in expected_limits(ta).values()) for ta in ambients]
+    assert True in verdicts and False in verdicts  # the grid straddles the limits
+    failing = [k for k, ok in enumerate(verdicts) if not ok]
+    assert data["check"]["corners_checked"] == len(ambients)
+    assert data["check"]["corners_failing"] == failing
+    # one line per violated limit naming the corner, then the summary (table on stderr)
+    lines = [x for x in result.stderr.splitlines() if x.startswith("FAIL")]
+    wanted = [
+        f"FAIL {name} at corner {k} (ambient {ta:g} degC): "
+        for k, ta in enumerate(ambients)
+        for name, (_v, _b, passes) in expected_limits(ta).items()
+        if not passes
+    ]
+    assert [x[: len(w)] for x, w in zip(lines, wanted, strict=True)] == wanted
+    n = len(ambients)
+    assert f"{DIVIDER}: {n} corners checked, {len(failing)} failing" in result.stderr
+    # the worst margin of each limit, at the corner brentq puts it
+    for worst in data["check"]["worst"]:
+        name = f"{worst['subject']} {worst['limit']}"
+        margins = []
+        for ta in ambients:
+            value, bound, _p = expected_limits(ta)[name]
+            margins.append(bound - value if worst["upper"] else value - bound)
+        assert worst["corner"] == int(np.argmin(margins))
+        assert worst["margin"] == pytest.approx(min(margins), abs=limit_tol(name, worst["value"]))
+        assert f"worst {name}: " in result.stderr
+
+
+def test_check_junit_has_a_case_per_corner_and_limit(
+    limit_sweep: tuple[Result, dict[str, Any], Path],
+) -> None:
+    """JUnit XML as CI servers read it (testsuites > testsuite > testcase > failure; the
+    Apache Ant JUnit layout, from memory)."""
+    _result, _data, junit = limit_sweep
+    root = ET.parse(junit).getroot()
+    (suite,) = root.findall("testsuite")
+    cases = suite.findall("testcase")
+    ambients = parse_range(CHECK_AMBIENTS, "--ambient")
+    assert len(cases) == len(ambients) * 3 == int(root.get("tests", "0"))
+    expected_failures = 0
+    for k, ta in enumerate(ambients):
+        for name, (value, _bound, passes) in expected_limits(ta).items():
+            case = next(
+                c for c in cases if c.get("name") == f"corner {k} (ambient {ta:g} degC) {name}"
+            )
+            failure = case.find("failure")
+            assert (failure is None) is passes
+            if failure is not None:
+                expected_failures += 1
+                match = re.search(
+                    r": ([-+0-9.e]+) (degC|W|V), at (most|least) ", failure.get("message", "")
+                )
+                assert match, failure.get("message")
+                # printed to 5 significant digits: half a unit of the 5th digit on top
+                shown = limit_tol(name, value) + 5e-5 * abs(value)
+                assert float(match[1]) == pytest.approx(value, abs=shown)
+    assert int(suite.get("failures", "-1")) == expected_failures > 0
+    assert suite.get("errors") == "0"
+
+
+@pytest.fixture(scope="module")
+def drift_sweep() -> dict[str, Any]:
+    args = (DIVIDER, "-a", DRIFT, "--param", "vbridge=4:12:4", "--ambient", "25:85:60")
+    return checked_sweep(*args, "-j", "2", code=EXIT_CHECK_FAILED)[1]
+
+
+@pytest.mark.parametrize(
+    ("vbridge", "ambient"),
+    [(v, ta) for v in (4.0, 8.0, 12.0) for ta in (25.0, 85.0)],
+)
+def test_drift_limit_against_the_heated_and_unheated_divider(
+    drift_sweep: dict[str, Any], vbridge: float, ambient: float
+) -> None:
+    corner = next(
+        c for c in drift_sweep["corners"]
+        if (c["params"]["vbridge"], c["ambient"]) == (vbridge, ambient)
+    )  # fmt: skip
+    (limit,) = corner["limits"]
+    assert (limit["subject"], limit["limit"], limit["unit"]) == ("V(mid)", "max_drift_ppm", "ppm")
+    t = divider_temperature(ambient, vbridge)
+    expected = drift_ppm(ambient, vbridge, t)
+    # a temperature off by the simulator's tolerance moves the drift by this much
+    tol = abs(drift_ppm(ambient, vbridge, t + t_tol(t)) - expected)
+    assert abs(expected - DRIFT_MAX_PPM) > 10 * tol
+    assert limit["value"] == pytest.approx(expected, abs=tol)
+    assert limit["passed"] is (expected <= DRIFT_MAX_PPM)
+
+
+def test_drift_of_monte_carlo_draws_uses_each_draws_own_baseline(tmp_path: Path) -> None:
+    """The unheated run of a corner is the same draw: its R(Ta) has the drawn tc1."""
+    annotation = tmp_path / "divider.thermal.toml"
+    text = Path(MC_ANNOTATION).read_text()
+    annotation.write_text(text + f'\n[limit."V(mid)"]\nmax_drift_ppm = {DRIFT_MAX_PPM}\n')
+    args = (DIVIDER, "-a", str(annotation), "--monte-carlo", "4", "--seed", "3")
+    _result, data = checked_sweep(*args, "--ambient", "85", "-j", "2", code=EXIT_CHECK_FAILED)
+    for corner in data["corners"]:
+        drawn = corner["drawn"]["RUP"]
+        tc1, rth = drawn["tc1_ppm"] * 1e-6, drawn["rth"]
+        t = divider_temperature(85.0, 12.0, tc1=tc1, rth=rth)
+        expected = drift_ppm(85.0, 12.0, t, tc1)
+        tol = abs(drift_ppm(85.0, 12.0, t + t_tol(t), tc1) - expected)
+        assert corner["limits"][0]["value"] == pytest.approx(expected, abs=tol)
+
+
+def test_check_results_do_not_depend_on_jobs_or_executor(
+    drift_sweep: dict[str, Any], dask_scheduler: str
+) -> None:
+    args = (DIVIDER, "-a", DRIFT, "--param", "vbridge=4:12:4", "--ambient", "25:85:60")
+    serial = checked_sweep(*args, "-j", "1", code=EXIT_CHECK_FAILED)[1]
+    on_dask = checked_sweep(
+        *args, "--executor", "dask", "--scheduler", dask_scheduler, code=EXIT_CHECK_FAILED
+    )[1]
+    for other in (drift_sweep, on_dask):
+        assert [c["limits"] for c in other["corners"]] == [c["limits"] for c in serial["corners"]]
+        assert other["check"] == serial["check"]
+        assert corner_numbers(other) == corner_numbers(serial)
+
+
+@pytest.mark.parametrize(
+    ("args", "code", "words"),
+    [
+        # every corner inside its limits (brentq: 72.9 degC at most, V(mid) >= 6.75 V)
+        ((DIVIDER, "-a", LIMITS, "--ambient", "0:60:30", "--check"), EXIT_OK,
+         ["3 corners checked, 0 failing"]),
+        ((DIVIDER, "-a", LIMITS, "--ambient", CHECK_AMBIENTS, "--check"), EXIT_CHECK_FAILED,
+         ["FAIL RUP tmax at corner 4 (ambient 120 degC): ", "5 corners checked, 2 failing"]),
+        # without --check nothing is held to the limits: the same corners exit 0
+        ((DIVIDER, "-a", LIMITS, "--ambient", CHECK_AMBIENTS), EXIT_OK, []),
+        # -q: the violations stay (on stderr), the table and the summary go
+        ((DIVIDER, "-a", LIMITS, "--ambient", "120", "--check", "-q"), EXIT_CHECK_FAILED,
+         ["FAIL RUP tmax at corner 0 (ambient 120 degC): "]),
+        # a corner with no answer keeps sweep's statuses: 1 when some ran, the
+        # simulator's (7: runaway) when none did
+        ((RUNAWAY, "--param", "idrive=0.1:0.3:0.2", "--check"), EXIT_CHECK_FAILED,
+         ["1 corner checked, 0 failing, 1 gave no answer", "no limits: "]),
+        ((RUNAWAY, "--param", "idrive=0.3:0.4:0.1", "--check"), EXIT_THERMAL_RUNAWAY,
+         ["0 corners checked, 0 failing, 2 gave no answer"]),
+        ((DIVIDER, "--junit", "x.xml"), EXIT_BAD_INPUT, ["--junit is for --check"]),
+    ],
+)  # fmt: skip
+def test_check_exit_status(args: tuple[str, ...], code: int, words: list[str]) -> None:
+    result = invoke(*args)
+    assert result.exit_code == code, result.output
+    for word in words:
+        assert word in result.output
+    if "--check" not in args:
+        assert "FAIL" not in result.output and "checked" not in result.output
+    if "-q" in args:
+        assert "corners checked" not in result.output and "caution" not in result.output
+
+
+def test_check_with_a_limit_on_no_node_is_exit_2_before_any_corner(tmp_path: Path) -> None:
+    annotation = tmp_path / "divider.thermal.toml"
+    text = (FIXTURES / "divider.thermal.toml").read_text()
+    annotation.write_text(text + '\n[limit."V(mdi)"]\nmax = 7\n')
+    junit = tmp_path / "report.xml"
+    args = (DIVIDER, "-a", str(annotation), "--ambient", "0:50:25", "--check")
+    result = invoke(*args, "--junit", str(junit))
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert 'names node "mdi"' in result.stderr and 'did you mean "V(mid)"' in result.stderr
+    assert "corner 0" not in result.output  # nothing ran
+    # the report is still written, with one error case, so no older one stands in for it
+    root = ET.parse(junit).getroot()
+    (case,) = root.iter("testcase")
+    assert case.get("name") == "run" and case.find("error") is not None
+
+
+def test_check_junit_names_a_corner_without_answer(tmp_path: Path) -> None:
+    junit = tmp_path / "report.xml"
+    result = invoke(RUNAWAY, "--param", "idrive=0.1:0.3:0.2", "--check", "--junit", str(junit))
+    assert result.exit_code == EXIT_CHECK_FAILED
+    cases = list(ET.parse(junit).getroot().iter("testcase"))
+    # the annotation sets no limit: the corner that ran has no case, the other an error
+    assert [c.get("name") for c in cases] == ["corner 1 (ambient 25 degC, idrive=0.3) run"]
+    error = cases[0].find("error")
+    assert error is not None and "runs away" in (error.text or "")

@@ -1,9 +1,15 @@
-"""``heatweave sweep``: one deck at many ambients, parameter values and Monte Carlo draws."""
+"""``heatweave sweep``: one deck at many ambients, parameter values and Monte Carlo draws.
+
+With ``--check`` every corner is held to the annotation's limits as ``check`` holds one run
+(:mod:`heatweave.sweep_limits`), and ``--junit FILE`` writes one test case per corner and
+limit.
+"""
 
 from __future__ import annotations
 
 import sys
 from collections.abc import Callable
+from pathlib import Path
 from typing import TYPE_CHECKING
 
 import click
@@ -21,13 +27,16 @@ from heatweave.cli.common import (
     run_control_options,
     style_severity,
 )
-from heatweave.errors import UsageError
+from heatweave.errors import HeatweaveError, UsageError
+from heatweave.junit import Case
 
 if TYPE_CHECKING:
     from heatweave.annotations import Annotation
+    from heatweave.runner import RunOptions
+    from heatweave.sweep import SweepPlan, SweepResult
 
 #: What every worker imports: loaded once by the fork server, then shared by the workers.
-WORKER_MODULES = ("heatweave.sweep", "heatweave.reports", "heatweave.runaway")
+WORKER_MODULES = ("heatweave.sweep", "heatweave.reports", "heatweave.runaway", "heatweave.checks")
 #: Width of the progress bar in characters.
 BAR = 30
 
@@ -109,6 +118,20 @@ def _has_tolerances(annotation: Annotation) -> bool:
     metavar="ADDRESS",
     help="Dask scheduler (tcp://HOST:PORT); without it --executor dask starts a local cluster.",
 )
+@click.option(
+    "--check",
+    "check_limits",
+    is_flag=True,
+    help="Hold every corner to the annotation's limits (tmax, derated power_rating, "
+    '[limit."V(node)"]), as check does; exit 1 when a corner violates one.',
+)
+@click.option(
+    "--junit",
+    "junit_file",
+    metavar="FILE",
+    help="With --check: write a JUnit XML report, one test case per corner and limit "
+    "(- is stdout).",
+)
 @report_options("Write one CSV row per corner and part.")
 @run_control_options("Stop ngspice after this long (each corner).")
 @guarded
@@ -126,6 +149,8 @@ def sweep(
     jobs: int | None,
     executor: str,
     scheduler: str | None,
+    check_limits: bool,
+    junit_file: str | None,
     timeout: float | None,
     json_file: str | None,
     csv_file: str | None,
@@ -135,19 +160,19 @@ def sweep(
     """Run DECK at every corner of a sweep, in parallel, and report each part per corner.
 
     Corners are the full grid of --param values x Monte Carlo draws x --ambient values.
-    Exit status: 0 when every corner ran, 1 when some failed (each is named), and when all
-    failed the status of the first corner's error (3, 4, 7, ...).
+    Exit status: 0 when every corner ran, 1 when some failed (each is named) or, with
+    --check, violated a limit, and when all failed the status of the first corner's error
+    (3, 4, 7, ...).
     """  # fmt: skip
-    from heatweave.emitter import load_inputs
-    from heatweave.executors import make_executor
-    from heatweave.files import write_atomic
     from heatweave.runner import RunOptions
-    from heatweave.sweep import SweepPlan, describe, exit_status, run_sweep
+    from heatweave.sweep import SweepPlan
     from heatweave.sweep_grid import parse_assignment, parse_range
 
     if seed is not None and draws is None:
         raise UsageError("--seed is for --monte-carlo", hint="add --monte-carlo N")
-    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file}
+    if junit_file is not None and not check_limits:
+        raise UsageError("--junit is for --check", hint="add --check")
+    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file}
     check_outputs(outputs, deck)
     ambients: tuple[float | None, ...] = (None,)
     if ambient_range is not None:
@@ -164,8 +189,38 @@ def sweep(
         timeout=timeout,
     )
     annotation_path = annotation_for(deck, annotations)
+    try:
+        result = _run(deck, annotation_path, plan, options, check_limits, executor, jobs,
+                      scheduler, quiet)  # fmt: skip
+    except HeatweaveError as err:
+        # As with check: a report is still written, so an older one never stands in.
+        if junit_file is not None:
+            _write_junit(junit_file, deck, (_run_error(deck, err),))
+        raise
+    _report(result, outputs, junit_file, quiet)
+
+
+def _run(
+    deck: str,
+    annotation_path: str,
+    plan: SweepPlan,
+    options: RunOptions,
+    check_limits: bool,
+    executor: str,
+    jobs: int | None,
+    scheduler: str | None,
+    quiet: bool,
+) -> SweepResult:
+    """Load the inputs, resolve the limits (bad ones are exit 2 before any corner runs) and
+    run every corner."""
+    from heatweave.checks import resolve_limits
+    from heatweave.emitter import load_inputs
+    from heatweave.executors import make_executor
+    from heatweave.sweep import run_sweep
+
     inputs = load_inputs(deck, annotation_path)
-    if draws and not _has_tolerances(inputs.annotation):
+    limits = resolve_limits(inputs.annotation, inputs.index) if check_limits else None
+    if plan.draws and not _has_tolerances(inputs.annotation):
         message = (
             f"warning: {inputs.annotation_path} gives no tolerance: every Monte Carlo draw is "
             "the nominal design (hint: write a key as {nominal = ..., sigma = ...} or "
@@ -175,14 +230,23 @@ def sweep(
     pool = make_executor(executor, jobs, scheduler, preload=WORKER_MODULES)
     try:
         progress = progress_bar(not quiet and is_terminal())
-        result = run_sweep(inputs, plan, options, pool, progress)
+        return run_sweep(inputs, plan, options, pool, progress, limits=limits)
     finally:
         pool.close()
+
+
+def _report(
+    result: SweepResult, outputs: dict[str, str | None], junit_file: str | None, quiet: bool
+) -> None:
+    """Warnings, the reports asked for, the table and the limit lines; then exit."""
+    from heatweave import sweep_limits, sweep_report
+    from heatweave.files import write_atomic
+    from heatweave.sweep import describe, exit_status
+
     # Warnings every corner repeats (a dropped .control block) are printed once.
     for text in dict.fromkeys(w for o in result.outcomes for w in o.warnings):
         click.echo(style_severity(text, "warning"), err=True)
-    from heatweave import sweep_report
-
+    json_file, csv_file, plot_file = outputs["--json"], outputs["--csv"], outputs["--plot"]
     if json_file is not None:
         write_atomic(json_file, sweep_report.render_json(result))
     if csv_file is not None:
@@ -191,12 +255,37 @@ def sweep(
         from heatweave.reports import sweep_plot
 
         write_atomic(plot_file, sweep_plot.render_png(result))
+    if junit_file is not None:
+        _write_junit(junit_file, result.inputs.deck_path, sweep_limits.junit_cases(result))
+    stream = sys.stderr if "-" in outputs.values() else sys.stdout
     if not quiet:
-        stream = sys.stderr if "-" in outputs.values() else sys.stdout
         text = sweep_report.render_table(result, colour=is_terminal(stream))
         click.echo(text, file=stream, nl=False)
     elif result.failed:
         for outcome in result.failed:
             where = describe(outcome.corner, sweep_report.corner_ambient(result, outcome))
             click.echo(f"{where} failed: {outcome.error}", err=True)
+    if result.checked:
+        # -q keeps the violations (on stderr, like failed corners) and drops the summary.
+        lines = sweep_limits.violation_lines(result)
+        if not quiet:
+            lines += sweep_limits.summary_lines(result)
+        target = sys.stderr if quiet else stream
+        for line in lines:
+            if line.startswith("FAIL") and is_terminal(target):
+                line = click.style(line[:4], fg="red") + line[4:]
+            click.echo(line, file=target)
     sys.exit(exit_status(result))
+
+
+def _run_error(deck: str, err: HeatweaveError) -> Case:
+    """The one JUnit test case of a sweep that gave nothing to check."""
+    return Case("run", f"heatweave.{Path(deck).stem}", error=err.render())
+
+
+def _write_junit(path: str, deck: str, cases: tuple[Case, ...]) -> None:
+    """The sweep's JUnit report: one suite for the deck (``-``: stdout)."""
+    from heatweave.files import write_atomic
+    from heatweave.junit import Suite, render
+
+    write_atomic(path, render([Suite(name=deck, cases=cases)], name="heatweave sweep"))
