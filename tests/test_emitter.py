@@ -539,3 +539,57 @@ def test_a_vector_ngspice_did_not_write_is_a_simulator_error(
     monkeypatch.setattr(results, "device_name", lambda resolved, name: f"nosuch.{name}")
     with pytest.raises(SimulatorError, match=re.escape("has no vector 'i(nosuch.vhw_s_ih_1)'")):
         run(str(deck), str(deck.with_suffix(".thermal.toml")))
+
+
+# --- analyses code models do not implement (ngspice manual 1.2) ------------------------
+
+DIVIDER_AC = "divider\nV1 in 0 DC 10 AC 1\nR1 in out 1k\nR2 out 0 1k\nC1 out 0 1u\n"
+LINEAR_R1 = 'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0.004\nrth = 50.0\n'
+
+
+@pytest.mark.parametrize(
+    ("analysis", "line"),
+    [(".pz in 0 out 0 vol pz\n", 6), (".sens v(out)\n", 6), (".disto dec 5 1k 10k\n", 6),
+     (".op\n.control\nrun\n  pz in 0 out 0 vol pz\n.endc\n", 9)],
+)  # fmt: skip
+def test_analyses_code_models_lack_fall_back_to_the_reference_form(
+    tmp_path: Path, analysis: str, line: int
+) -> None:
+    deck = write_case(tmp_path, DIVIDER_AC + analysis + ".end\n", LINEAR_R1)
+    emitted = emit_files(str(deck), str(deck.with_suffix(".thermal.toml")), form="switch")
+    assert "Bhw_r1 in out I = " in emitted.text and "\nAhw_" not in emitted.text
+    (warning,) = [f for f in emitted.findings if "code models do not implement" in f.message]
+    assert warning.location is not None and warning.location.line == line
+
+
+def test_analyses_code_models_run_keep_the_switch_form(tmp_path: Path) -> None:
+    deck = write_case(tmp_path, DIVIDER_AC + ".ac dec 5 1 1k\n.op\n.end\n", LINEAR_R1)
+    emitted = emit_files(str(deck), str(deck.with_suffix(".thermal.toml")), form="switch")
+    assert "\nAhw_r_r1 " in emitted.text and not emitted.findings
+
+
+@pytest.mark.parametrize("form", ["reference", "switch"])
+def test_noise_of_annotated_resistors_is_missing_and_said(tmp_path: Path, form: str) -> None:
+    # Johnson-Nyquist: a resistor's noise voltage density is sqrt(4 k T R) (k = 1.380649e-23
+    # J/K, SI 2019; T = ngspice's 27 degC).  At 1 Hz the divider's output sees R1 || R2 =
+    # 500 ohm of noise in the plain deck; with R1 annotated only R2's own noise is left,
+    # through the divider at R1's operating temperature (brentq on T = 25 + Rth P(T)):
+    # sqrt(4 k T R2) R1 / (R1 + R2), about 30 % less.  That is what the warning says; the
+    # rest is noise that should not be there (the switch form's fixed share of R1, and the
+    # thermal resistor's noise reaching R1's resistance through its temperature).
+    deck = write_case(tmp_path, DIVIDER_AC + ".noise v(out) V1 lin 1 1 1\n.end\n", LINEAR_R1)
+    emitted = emit_files(str(deck), str(deck.with_suffix(".thermal.toml")), form=form)
+    (warning,) = [f for f in emitted.findings if "no thermal noise" in f.message]
+    assert warning.location is not None and warning.location.line == 6
+    kt4 = 4 * 1.380649e-23 * (27 + 273.15)
+    plain = simulate(deck.read_text(), "noise v(out) V1 lin 1 1 1")
+    heated = simulate(emitted.text, "noise v(out) V1 lin 1 1 1")
+    assert plain["onoise_spectrum"][0] == pytest.approx(math.sqrt(kt4 * 500.0), rel=1e-3)
+
+    def r1(t: float) -> float:
+        return 1000.0 * (1 + 0.004 * (t - 25.0))
+
+    hot = brentq(lambda t: t - 25.0 - 50.0 * (10.0 / (r1(t) + 1000.0)) ** 2 * r1(t), 25, 200)
+    share = r1(hot) / (r1(hot) + 1000.0)
+    missing = math.sqrt(kt4 * 1000.0) * share
+    assert missing < heated["onoise_spectrum"][0] < 0.8 * plain["onoise_spectrum"][0]

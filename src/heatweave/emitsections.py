@@ -5,11 +5,12 @@ and the cold start), and the check that no added name is already the deck's."""
 from __future__ import annotations
 
 import hashlib
+import re
 
 from heatweave import __version__
-from heatweave.deck import Deck
+from heatweave.deck import ControlBlock, Deck, iter_cards
 from heatweave.emitforms import TRTOL_NOTE, preamble, shared_nodes
-from heatweave.errors import EmitError
+from heatweave.errors import EmitError, Finding, Location
 from heatweave.hierarchy import DeckIndex, Project
 from heatweave.quantities import format_number
 from heatweave.thermal_circuit import AMBIENT_NODE, PREFIX, ThermalCircuit
@@ -172,3 +173,86 @@ def check_names(
                     card.location(),
                     hint=f"rename it: names containing {PREFIX!r} are heatweave's",
                 )
+
+
+# The analyses XSPICE code models do not implement (ngspice manual 1.2: "the Code Model
+# subsystem ... do[es] not implement Pole-Zero, Distortion, Sensitivity and Noise"): as dot
+# cards (found with .control, whose blocks may run them as commands; a literal "." lets the
+# regex engine skip ahead), and as commands at the start of a .control block's line.  The
+# texts searched are in lower case.
+_DOT_ANALYSIS = re.compile(r"\.(pz|disto|sens|noise|control)(?=[ \t\r\n]|\Z)")
+_COMMAND = re.compile(r"\n[ \t]*(pz|disto|sens|noise)(?=[ \t\r\n]|\Z)")
+
+
+def analyses(
+    project: Project, folded: list[tuple[Deck, str, bool]]
+) -> list[tuple[str, Location | None]]:
+    """The pole-zero, distortion, sensitivity and noise analyses the deck asks for, each with
+    where it stands: dot cards in the deck and its includes, commands in its ``.control``
+    blocks.  *folded* is :func:`folded_files`; a deck without such a line costs one scan."""
+    dotted = {"." + word for _d, low, _t in folded for word in _DOT_ANALYSIS.findall(low)}
+    if not dotted:
+        return []
+    found: list[tuple[str, Location | None]] = []
+    for deck in (project.deck, *(include.deck for include in project.includes)):
+        for node in deck.body:
+            if isinstance(node, ControlBlock):
+                found.extend(_commands(node))
+        found.extend(
+            (card.name[1:], card.location()) for card in iter_cards(deck.body)
+            if card.name in dotted and card.name != ".control"
+        )  # fmt: skip
+    return found
+
+
+def _commands(block: ControlBlock) -> list[tuple[str, Location | None]]:
+    """The analyses a ``.control`` block runs (its own lines, not dot cards)."""
+    out: list[tuple[str, Location | None]] = []
+    for match in _COMMAND.finditer("\n" + block.text.lower()):
+        where = None
+        if block.source is not None and block.offset >= 0:
+            where = block.source.location(block.offset + match.start(1) - 1)
+        out.append((match.group(1), where))
+    return out
+
+
+def analysis_findings(
+    found: list[tuple[str, Location | None]], form: str, resistors: bool
+) -> tuple[str, list[Finding]]:
+    """The card form to write given the analyses *found*, and what the user should hear.
+
+    A form with code models falls back to the reference form where the deck runs an
+    analysis code models do not implement (pole-zero, distortion, sensitivity; ngspice may
+    crash on them).  Noise runs with either form, but neither behavioural sources nor code
+    models have thermal noise, so the annotated resistors' noise is missing from it (the
+    switch form keeps that of its fixed share), and the thermal network's resistors add a
+    little noise of their own through the temperature dependence."""
+    findings: list[Finding] = []
+    gaps = [(name, where) for name, where in found if name != "noise"]
+    if gaps and form != "reference":
+        name, where = gaps[0]
+        findings.append(
+            Finding(
+                "warning",
+                f".{name}: XSPICE code models do not implement this analysis (ngspice manual "
+                f"1.2), so the annotated resistors are written in the reference form, not "
+                f"the {form} form",
+                where,
+                "run the analysis on a copy of the deck if the faster form matters",
+            )
+        )
+        form = "reference"
+    noise = [where for name, where in found if name == "noise"]
+    if noise and resistors:
+        findings.append(
+            Finding(
+                "warning",
+                "noise: the annotated resistors are written as behavioural sources or code "
+                "models, which ngspice gives no thermal noise, while the thermal network's "
+                "resistors get electrical noise: the analysis is wrong for those parts",
+                noise[0],
+                "analyse noise on the plain deck with each resistor at the resistance "
+                "heatweave run reports for it",
+            )
+        )
+    return form, findings

@@ -37,7 +37,15 @@ from heatweave.emitforms import (
     resistor_cards,
     step_limit_options,
 )
-from heatweave.emitsections import MARK, check_names, folded_files, header, thermal_section
+from heatweave.emitsections import (
+    MARK,
+    analyses,
+    analysis_findings,
+    check_names,
+    folded_files,
+    header,
+    thermal_section,
+)
 from heatweave.errors import EmitError, Finding
 from heatweave.hierarchy import DeckIndex, Project, x_card_parts
 from heatweave.quantities import format_number
@@ -370,8 +378,13 @@ def emit_deck(
         return Emitted(deck.write() if written is None else written, (), (), circuit)
     if written is None:
         written = deck.write()
+    # Each file's text in lower case, once: the analysis, option and name checks search it.
+    folded = folded_files(project, written)
+    resistors = any(part.is_resistor for part in circuit.parts)
+    form, notes = analysis_findings(analyses(project, folded), form, resistors)
     eol = line_ending(deck)
     rewriter = _Rewriter(index, circuit, form, heating, eol)
+    rewriter.findings.extend(notes)
     title = deck.title or "heatweave electrothermal deck" + eol
     if not title.endswith("\n"):
         title += eol
@@ -387,8 +400,6 @@ def emit_deck(
             body = rewriter.body(deck.body, "", top=True)
         copies = "".join(node.write() for node in rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
-    # Each file's text in lower case, once: the option check and the name check search it.
-    folded = folded_files(project, written)
     options = step_limit_options(form, [(low, t) for _d, low, t in folded], folded=True)
     section_text = thermal_section(circuit, thermal, bool(rewriter.copies), form, options, heating)
     if eol != "\n":
