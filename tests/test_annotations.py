@@ -745,3 +745,19 @@ def test_annotation_is_immutable() -> None:
     assert isinstance(ann, Annotation)
     with pytest.raises(AttributeError):
         ann.start = "steady"  # type: ignore[misc]
+
+
+@pytest.mark.parametrize(
+    ("table", "warned"),
+    [
+        ("rth = 50\nderating_knee = 70\n", True),  # nothing to derate
+        ("rth = 50\npower_rating = 0.25\ntmax = 155\nderating_knee = 70\n", False),
+        ("rth = 50\npower_rating = 0.25\n", False),
+    ],
+)
+def test_a_derating_knee_without_a_rating_is_warned(table: str, warned: bool) -> None:
+    ann = loads(LINEAR + table, FILE)
+    found = [w for w in ann.warnings if "derating_knee has no effect" in w.message]
+    assert bool(found) is warned
+    if warned:
+        assert found[0].location is not None and found[0].location.line == 6

@@ -228,6 +228,12 @@ def _part(name: str, table: dict[str, object], reader: TableReader) -> PartSpec:
     if cls is not None:
         params = _model_params(cls, got, reader, path)
     tmax, knee = got.number("tmax"), got.number("derating_knee")
+    if knee is not None and "power_rating" not in got.values:
+        reader.warn(
+            (*path, "derating_knee"),
+            "derating_knee has no effect without power_rating: only a rated power is derated",
+            "add power_rating (W at or below the knee), or remove derating_knee",
+        )
     knee = DEFAULT_DERATING_KNEE if knee is None else knee
     if tmax is not None and "power_rating" in got.values and tmax <= knee:
         raise AnnotationError(
