@@ -195,9 +195,10 @@ def analyses(
         return []
     found: list[tuple[str, Location | None]] = []
     for deck in (project.deck, *(include.deck for include in project.includes)):
-        for node in deck.body:
-            if isinstance(node, ControlBlock):
-                found.extend(_commands(node))
+        if ".control" in dotted:  # only then can a block run one as a command
+            for node in deck.body:
+                if isinstance(node, ControlBlock):
+                    found.extend(_commands(node))
         found.extend(
             (card.name[1:], card.location()) for card in iter_cards(deck.body)
             if card.name in dotted and card.name != ".control"
