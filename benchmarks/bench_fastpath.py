@@ -42,10 +42,10 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from chain_deck import write_chain
 
 from heatweave import cosim
-from heatweave.emitter import emit_files
+from heatweave.emit.emitter import emit_files
 from heatweave.quantities import parse_number
 from heatweave.simulators.rawfile import read_raw
-from heatweave.thermal_circuit import hot_node
+from heatweave.thermal.circuit import hot_node
 
 
 @dataclass(frozen=True, slots=True)

@@ -9,7 +9,7 @@ from __future__ import annotations
 import time
 import timeit
 
-from heatweave.grammar import parse_card, parser
+from heatweave.spice.grammar import parse_card, parser
 
 CARDS = [
     "R1 a b 1k",
@@ -25,7 +25,7 @@ CARDS = [
 
 def main() -> None:
     start = time.perf_counter()
-    import lark  # noqa: F401  (imported on first use by heatweave.grammar)
+    import lark  # noqa: F401  (imported on first use by heatweave.spice.grammar)
 
     imported = time.perf_counter()
     parser()

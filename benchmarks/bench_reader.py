@@ -80,11 +80,11 @@ def measure_time(command: list[str], stdout: Path | None = None) -> tuple[float,
 
 def stages(deck: Path, annotation: Path) -> list[tuple[str, float]]:
     """CPU seconds of each stage of one glob emit, run in this process: what dominates."""
-    from heatweave.annotations import bind, load
-    from heatweave.emitter import Inputs, emit_inputs
+    from heatweave.annotation import bind, load
+    from heatweave.emit.emitter import Inputs, emit_inputs
     from heatweave.files import encode
-    from heatweave.hierarchy import DeckIndex, load_project
-    from heatweave.thermal_circuit import build_circuit
+    from heatweave.spice.hierarchy import DeckIndex, load_project
+    from heatweave.thermal.circuit import build_circuit
 
     clock = time.process_time
     spent: list[tuple[str, float]] = []

@@ -20,8 +20,8 @@ from pathlib import Path
 
 import numpy as np
 
-from heatweave.runner import RunOptions, run
-from heatweave.settle import SettleOptions, settle
+from heatweave.run.runner import RunOptions, run
+from heatweave.settle.periodic import SettleOptions, settle
 
 PERIOD = 1e-4
 DECK = """PWM heater for the settle benchmark: 10 V, 10 kHz, 50 % duty into 50 ohm

@@ -5,7 +5,7 @@ A chain of ``--count`` ten-ohm resistors in series across a 1 kHz sine (``.tran 
 25 V ambient source.  The circuit is an invented scenario for timing, not a real design.
 
 Runs side by side, ``--repeat`` times each in turn (the median is kept): the plain deck
-(the yardstick) and the chain written in every form of :mod:`heatweave.emitforms`, each
+(the yardstick) and the chain written in every form of :mod:`heatweave.emit.forms`, each
 with ``ngspice -b`` on a copy of the deck whose ``.control`` block runs the analysis and
 ``rusage all``.  CPU time (the child's user + system) is the figure compared, since the
 machine may be shared; wall time is printed beside it.  A second run of each form writes
@@ -40,7 +40,7 @@ from pathlib import Path
 
 import numpy as np
 
-from heatweave.emitforms import FORMS, preamble, resistor_cards, step_limit_options
+from heatweave.emit.forms import FORMS, preamble, resistor_cards, step_limit_options
 from heatweave.simulators.rawfile import read_raw
 from heatweave.tempmodels import get
 

@@ -5,10 +5,10 @@ shunt (about 90000 time steps, 0.6 s of ngspice on an idle core), so process sta
 not dominate.  Other sessions on the machine take cores away from both workers (the
 kernel shares CPU between sessions fairly), so the load average is printed beside the
 figures: the 1.7 target assumes an otherwise idle 2-core machine.
-Both runs go through :func:`heatweave.sweep.run_sweep` with the executors the command uses
+Both runs go through :func:`heatweave.sweep.corners.run_sweep` with the executors the command uses
 (this process for -j 1, a local process pool for -j 2); pool start-up is included in the
 -j 2 time.  Also times one corner with each ngspice back end, the figures behind
-:func:`heatweave.sweep.worker_backend`.
+:func:`heatweave.sweep.corners.worker_backend`.
 
 Run: ``.venv/bin/python benchmarks/bench_sweep.py``
 """
@@ -22,10 +22,10 @@ import time
 from pathlib import Path
 
 from heatweave.cli.sweep_cmd import WORKER_MODULES
-from heatweave.emitter import load_inputs
-from heatweave.executors import Executor, ProcessExecutor, SerialExecutor
-from heatweave.runner import RunOptions, run
-from heatweave.sweep import SweepPlan, run_sweep
+from heatweave.emit.emitter import load_inputs
+from heatweave.run.runner import RunOptions, run
+from heatweave.sweep.corners import SweepPlan, run_sweep
+from heatweave.sweep.executors import Executor, ProcessExecutor, SerialExecutor
 
 FIXTURES = Path(__file__).resolve().parent.parent / "tests" / "fixtures" / "sweep"
 DECK = str(FIXTURES / "pwm_shunt.cir")

@@ -14,7 +14,7 @@ import pytest
 from click.testing import CliRunner
 from jsonschema import Draft202012Validator
 
-from heatweave.annotations import (
+from heatweave.annotation import (
     Ambient,
     Annotation,
     DeckCatalog,
@@ -28,7 +28,7 @@ from heatweave.annotations import (
 )
 from heatweave.cli.schema_cmd import schema as schema_command
 from heatweave.errors import AnnotationError
-from heatweave.globmatch import matching_paths
+from heatweave.spice.globmatch import matching_paths
 from heatweave.tempmodels import REGISTRY
 
 FIXTURES = Path(__file__).parent / "fixtures" / "annotations"

@@ -15,9 +15,9 @@ import pytest
 from click.testing import CliRunner
 from scipy.optimize import brentq
 
-from heatweave.checks import LimitResult
+from heatweave.annotation.ratings import derated_power
+from heatweave.checks.limits import LimitResult
 from heatweave.cli import main
-from heatweave.ratings import derated_power
 
 FIXTURES = Path(__file__).parent / "fixtures" / "check"
 DECK = FIXTURES / "divider.cir"

@@ -1,6 +1,6 @@
 """The windowed co-simulation against the full electrothermal deck and the power balance.
 
-References: the emitted electrothermal deck simulated by ngspice (heatweave.runner.run,
+References: the emitted electrothermal deck simulated by ngspice (heatweave.run.runner.run,
 the straightforward behavioural-source form), scipy.optimize.brentq on the steady power
 balance T = T_amb + Rth V_rms^2 R(T) / (R(T) + R2)^2 of a divider (Joule heating of a
 resistor, P = V^2/R; first-order thermal balance, Incropera ch. 5.1), and closed-form
@@ -24,8 +24,8 @@ from heatweave.cosim.method import Transient, choose_method, source_time_scale
 from heatweave.cosim.windows import window_power
 from heatweave.errors import UsageError
 from heatweave.networks import Foster, NetworkForm, Single
-from heatweave.runner import RunOptions, run
-from heatweave.thermal_circuit import AMBIENT_NODE, PartPlan, SharedNode, ThermalCircuit
+from heatweave.run.runner import RunOptions, run
+from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, SharedNode, ThermalCircuit
 
 FIXTURES = Path(__file__).parent / "fixtures" / "cosim"
 #: The acceptance target of the fast run path (issue "Fast electrothermal simulation").

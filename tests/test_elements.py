@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from heatweave.emitter import emit_files
+from heatweave.emit.emitter import emit_files
 from heatweave.errors import EmitError
 from heatweave.simulators import get_simulator
 

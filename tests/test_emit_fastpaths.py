@@ -1,7 +1,7 @@
 """The emitter's paths for large decks give byte for byte what its plain paths give.
 
 * Stencils: one part's text is made once per (model, network, cold node) and filled in
-  for every other part of that kind (:mod:`heatweave.stencil`).
+  for every other part of that kind (:mod:`heatweave.emit.stencil`).
 * Splicing: when every part is a top-level card of the deck as read, the new cards are
   spliced into the file's text at their offsets instead of rewriting the tree.
 * ``DeckIndex.matching``: a flat deck's globs run over its cards' texts, not over names cut
@@ -23,13 +23,13 @@ from pathlib import Path
 
 import pytest
 
-from heatweave import stencil
 from heatweave.bulk import fast_init
-from heatweave.emitforms import FORMS
-from heatweave.emitter import _Rewriter, emit_files
+from heatweave.emit import stencil
+from heatweave.emit.emitter import _Rewriter, emit_files
+from heatweave.emit.forms import FORMS
 from heatweave.errors import HeatweaveError
-from heatweave.globmatch import matching_paths
-from heatweave.hierarchy import DeckIndex, load_project
+from heatweave.spice.globmatch import matching_paths
+from heatweave.spice.hierarchy import DeckIndex, load_project
 
 DECK = """\
 stencil test deck

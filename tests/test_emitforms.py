@@ -14,7 +14,8 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from heatweave.emitforms import (
+from heatweave.emit.emitter import emit_files
+from heatweave.emit.forms import (
     FORMS,
     STEP_LIMIT_OPTION,
     TRTOL_NOTE,
@@ -25,7 +26,6 @@ from heatweave.emitforms import (
     shared_nodes,
     step_limit_options,
 )
-from heatweave.emitter import emit_files
 from heatweave.simulators import get_simulator
 from heatweave.tempmodels import REGISTRY, TempModel, get
 

@@ -14,13 +14,13 @@ import pytest
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
-from heatweave import results
-from heatweave.emitsections import stale_reason
-from heatweave.emitter import emit_files, emit_inputs, load_inputs
+from heatweave.emit.emitter import emit_files, emit_inputs, load_inputs
+from heatweave.emit.sections import stale_reason
 from heatweave.errors import EmitError, SimulatorError
-from heatweave.reader import read
-from heatweave.runner import RunOptions, run
+from heatweave.run import results
+from heatweave.run.runner import RunOptions, run
 from heatweave.simulators import get_simulator
+from heatweave.spice.reader import read
 
 FIXTURES = Path(__file__).parent / "fixtures" / "emit"
 pytestmark = pytest.mark.ngspice

@@ -34,13 +34,13 @@ from click.testing import CliRunner
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
-from heatweave.annotations import load
+from heatweave.annotation import load
 from heatweave.cli import main
-from heatweave.emitter import Inputs, load_inputs
+from heatweave.emit.emitter import Inputs, load_inputs
 from heatweave.quantities import parse_number
-from heatweave.results import main_plot
-from heatweave.runner import RunOptions, RunOutcome, run, run_baseline
-from heatweave.settle import SettleOptions, settle
+from heatweave.run.results import main_plot
+from heatweave.run.runner import RunOptions, RunOutcome, run, run_baseline
+from heatweave.settle.periodic import SettleOptions, settle
 
 DECKS = Path(__file__).resolve().parent.parent / "decks"
 EXAMPLES = (

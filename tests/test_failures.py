@@ -8,7 +8,6 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
-from heatweave import runner
 from heatweave.cli import main
 from heatweave.errors import (
     EXIT_BAD_INPUT,
@@ -19,6 +18,7 @@ from heatweave.errors import (
     EXIT_TIMESTEP_TOO_SMALL,
     HeatweaveError,
 )
+from heatweave.run import runner
 
 FIXTURES = Path(__file__).parent / "fixtures" / "check"
 

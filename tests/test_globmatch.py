@@ -14,8 +14,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from heatweave.deck import Card
-from heatweave.globmatch import glob_regex, matching, matching_heads
+from heatweave.spice.deck import Card
+from heatweave.spice.globmatch import glob_regex, matching, matching_heads
 
 
 def _reference(pattern: str, names: list[str]) -> list[int]:

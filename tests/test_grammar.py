@@ -22,11 +22,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from heatweave import grammar
 from heatweave.files import read_text
-from heatweave.grammar import CardSyntaxError, parse_card
-from heatweave.reader import read
-from heatweave.syntax import (
+from heatweave.spice import grammar
+from heatweave.spice.grammar import CardSyntaxError, parse_card
+from heatweave.spice.reader import read
+from heatweave.spice.syntax import (
     Call,
     DotSyntax,
     ElementSyntax,
@@ -744,7 +744,7 @@ def test_grammar_from_installed_package(tmp_path: Path) -> None:
     )
     shutil.copytree(REPO / "grammar", site / "heatweave" / "grammar")
     script = textwrap.dedent("""
-        from heatweave import grammar
+        from heatweave.spice import grammar
         print(grammar.grammar_dir())
         print(grammar.parse_card("R1 a b 1k").nodes[1].text)
     """)

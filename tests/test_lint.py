@@ -8,7 +8,7 @@ import pytest
 from click.testing import CliRunner
 
 from heatweave.cli.lint_cmd import lint
-from heatweave.lint import lint_file
+from heatweave.spice.lint import lint_file
 
 FIXTURES = Path(__file__).parent / "fixtures" / "lint"
 
@@ -146,7 +146,7 @@ def test_vnam_names_a_source_not_a_node(tmp_path: Path) -> None:
 
 
 def test_emitted_switch_deck_lints_clean(tmp_path: Path) -> None:
-    from heatweave.emitter import emit_files
+    from heatweave.emit.emitter import emit_files
 
     root = Path(__file__).parents[1] / "decks" / "current-monitor"
     emitted = tmp_path / "monitor-emitted.cir"

@@ -1,4 +1,4 @@
-"""lint's card rules (heatweave.lint_cards), each row held against ngspice 39 itself.
+"""lint's card rules (heatweave.spice.lint_cards), each row held against ngspice 39 itself.
 
 Every row names the manual section of the card's general form and says what ngspice 39.3
 does with the card; the test runs ngspice on the same deck and checks that it really does
@@ -17,8 +17,8 @@ import pytest
 from click.testing import CliRunner
 
 from heatweave.cli.lint_cmd import lint
-from heatweave.lint import lint_file
 from heatweave.simulators.rawfile import read_raw
+from heatweave.spice.lint import lint_file
 
 pytestmark = pytest.mark.skipif(shutil.which("ngspice") is None, reason="needs ngspice")
 

@@ -9,9 +9,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from heatweave.deck import Block, Card, ControlBlock, strip_inline_comment
 from heatweave.files import decode, encode
-from heatweave.reader import read
+from heatweave.spice.deck import Block, Card, ControlBlock, strip_inline_comment
+from heatweave.spice.reader import read
 
 CORPUS = sorted(
     p for p in (Path(__file__).parent / "decks").rglob("*") if p.is_file()

@@ -23,10 +23,10 @@ from matplotlib.patches import Rectangle
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
-from heatweave.emitter import load_inputs
-from heatweave.ratings import derated_power, margins, worst_instant
+from heatweave.annotation.ratings import derated_power, margins, worst_instant
+from heatweave.emit.emitter import load_inputs
 from heatweave.reports import RunReport, build_report, csv_report, json_report, plot
-from heatweave.runner import RunOptions, run
+from heatweave.run.runner import RunOptions, run
 
 pytestmark = pytest.mark.ngspice
 
@@ -257,7 +257,7 @@ def test_worst_instant(power: list[float], local: list[float], index: int) -> No
 
 
 def test_table_margins_agree_with_check() -> None:
-    from heatweave.checks import ambient_series, part_limits
+    from heatweave.checks.limits import ambient_series, part_limits
 
     path = str(FIXTURES / "board.cir")
     annotation = path.replace(".cir", ".thermal.toml")

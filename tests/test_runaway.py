@@ -17,17 +17,17 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq, fsolve
 
-from heatweave import runner
-from heatweave.annotations import load
+from heatweave.annotation import load
 from heatweave.errors import EXIT_THERMAL_RUNAWAY, ThermalRunawayError
-from heatweave.runaway import (
+from heatweave.run import runner
+from heatweave.run.runaway import (
     RunawayError,
     driven_text,
     driving_point,
     first_jump,
     last_on_branch,
 )
-from heatweave.thermal_circuit import build_circuit
+from heatweave.thermal.circuit import build_circuit
 
 KELVIN = 273.15
 
@@ -190,7 +190,7 @@ def test_driven_text_scales_every_injected_power() -> None:
 def test_driving_point_resistances(tmp_path: Path) -> None:
     """Two parts on one board node, the board to ambient, plus a direct coupling path:
     Z solved by hand with series/parallel rules (Kirchhoff)."""
-    from heatweave.emitter import load_inputs
+    from heatweave.emit.emitter import load_inputs
 
     deck = tmp_path / "two.cir"
     deck.write_text("two\nV1 a 0 1\nR1 a b 10\nR2 b 0 10\n.op\n.end\n")

@@ -27,11 +27,11 @@ from scipy.integrate import solve_ivp
 from heatweave.cli import main
 from heatweave.errors import EXIT_BAD_INPUT, EXIT_THERMAL_RUNAWAY, ThermalRunawayError
 from heatweave.networks import Cauer, Foster, NetworkForm
-from heatweave.runner import RunOptions, run
-from heatweave.settle import SettleOptions, settle
-from heatweave.settle_thermal import periodic
-from heatweave.thermal_circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
-from heatweave.thermal_solver import assemble
+from heatweave.run.runner import RunOptions, run
+from heatweave.settle.periodic import SettleOptions, settle
+from heatweave.settle.thermal import periodic
+from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
+from heatweave.thermal.solver import assemble
 
 FIXTURES = Path(__file__).parent / "fixtures" / "settle"
 needs_ngspice = pytest.mark.skipif(shutil.which("ngspice") is None, reason="needs ngspice")

@@ -10,9 +10,9 @@ import io
 import numpy as np
 
 from heatweave.reports.cautions import CAUTION_LINE
+from heatweave.reports.settle import render_csv, render_table
 from heatweave.reports.table import WIDTH
-from heatweave.settle import Envelope, PartSettled, Settled
-from heatweave.settle_report import render_csv, render_table
+from heatweave.settle.periodic import Envelope, PartSettled, Settled
 
 # Values chosen to need all 17 significant digits, so rounding anywhere shows.
 TIME = np.array([0.0, 0.1234567890123456789, 2.718281828459045])

@@ -25,11 +25,11 @@ from click.testing import CliRunner, Result
 from scipy import stats
 from scipy.optimize import brentq
 
-from heatweave.annotations import load
+from heatweave.annotation import load
 from heatweave.cli.sweep_cmd import sweep
 from heatweave.errors import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK, EXIT_THERMAL_RUNAWAY
-from heatweave.sweep import draws
-from heatweave.sweep_grid import parse_range
+from heatweave.sweep.corners import draws
+from heatweave.sweep.grid import parse_range
 
 pytestmark = pytest.mark.ngspice
 
@@ -203,8 +203,8 @@ def test_param_corners_match_the_closed_form() -> None:
 
 
 def test_param_rewrite_keeps_the_rest_of_the_deck(tmp_path: Path) -> None:
-    from heatweave.emitter import load_inputs
-    from heatweave.sweep_grid import with_params
+    from heatweave.emit.emitter import load_inputs
+    from heatweave.sweep.grid import with_params
 
     inputs = load_inputs(HEATER, str(FIXTURES / "heater.thermal.toml"))
     changed = with_params(inputs, {"vheat": 7.5})

@@ -14,7 +14,7 @@ import pytest
 import scipy.integrate
 
 from heatweave.networks import Cauer, Foster, NetworkForm, Single
-from heatweave.thermal_circuit import (
+from heatweave.thermal.circuit import (
     AMBIENT_NODE,
     Coupling,
     PartPlan,
@@ -22,7 +22,7 @@ from heatweave.thermal_circuit import (
     ThermalCircuit,
     shared_node,
 )
-from heatweave.thermal_solver import Propagator, ThermalAssemblyError, assemble
+from heatweave.thermal.solver import Propagator, ThermalAssemblyError, assemble
 
 AMBIENT = 25.0
 

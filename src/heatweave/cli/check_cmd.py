@@ -24,7 +24,7 @@ from heatweave.cli.common import (
     simulation_options,
 )
 from heatweave.errors import EXIT_CHECK_FAILED
-from heatweave.junit import Case, Suite, render
+from heatweave.reports.junit import Case, Suite, render
 
 
 @click.command()
@@ -54,9 +54,10 @@ def check(
     IEC 60115-1 at the temperature of the node its path ends on, and each [limit."V(node)"]
     table (min, max, and max_drift_ppm against the same deck without self-heating).
     """
-    from heatweave import checks, runner
-    from heatweave.emitter import load_inputs
+    from heatweave.checks import limits as checks
+    from heatweave.emit.emitter import load_inputs
     from heatweave.errors import HeatweaveError
+    from heatweave.run import runner
 
     chosen = annotation_for(deck, annotations)
     started = time.monotonic()

@@ -154,7 +154,7 @@ def annotation_for(deck: str, annotations: str | None) -> str:
     """The annotation file to use: the one given, else ``DECK.thermal.toml`` beside the deck."""
     from pathlib import Path
 
-    from heatweave.annotations import default_path
+    from heatweave.annotation import default_path
     from heatweave.errors import UsageError
 
     if annotations:

@@ -8,7 +8,7 @@ from pathlib import Path
 import click
 
 from heatweave.cli.common import guarded, report_findings
-from heatweave.emitforms import FORMS
+from heatweave.emit.forms import FORMS
 from heatweave.errors import EXIT_CHECK_FAILED, UsageError
 from heatweave.files import encode, read_text, same_file, write_atomic
 
@@ -16,7 +16,7 @@ from heatweave.files import encode, read_text, same_file, write_atomic
 def default_annotation(deck: str) -> Path | None:
     """``DECK.thermal.toml`` beside the deck (``amp.thermal.toml`` for ``amp.cir``), or
     ``None`` when there is none."""
-    from heatweave.annotations import default_path
+    from heatweave.annotation import default_path
 
     candidate = default_path(deck)
     return candidate if deck != "-" and candidate.is_file() else None
@@ -26,10 +26,10 @@ def build_emitted(deck: str, annotation: str | None, *, form: str = "switch") ->
     """The emitted deck's text: the input unchanged when there is no annotation file."""
     chosen = Path(annotation) if annotation else default_annotation(deck)
     if chosen is None:
-        from heatweave.reader import read_deck_text
+        from heatweave.spice.reader import read_deck_text
 
         return read_deck_text(deck)
-    from heatweave.emitter import emit_files
+    from heatweave.emit.emitter import emit_files
 
     result = emit_files(deck, str(chosen), form=form)
     report_findings(list(result.findings))
@@ -76,7 +76,7 @@ def emit(
     """
     text = build_emitted(deck, annotations, form=form)
     if check_file is not None:
-        from heatweave.emitsections import stale_reason
+        from heatweave.emit.sections import stale_reason
 
         try:
             committed = read_text(check_file)

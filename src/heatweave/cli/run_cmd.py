@@ -25,7 +25,7 @@ from heatweave.cli.common import (
 from heatweave.errors import UsageError
 
 if TYPE_CHECKING:
-    from heatweave.hierarchy import DeckIndex
+    from heatweave.spice.hierarchy import DeckIndex
 
 
 def progress_printer(enabled: bool) -> Callable[[float], None] | None:
@@ -84,9 +84,9 @@ def deck_nodes(index: DeckIndex) -> frozenset[str] | None:
     """Every node of the circuit as ngspice names it (``out``, ``x1.mid``), ground aside;
     ``None`` when some element's terminals cannot be told from its card (an XSPICE ``A``
     card, say), so that only the simulation's own vectors can say which nodes exist."""
-    from heatweave.elements import card_nodes
     from heatweave.errors import HeatweaveError
-    from heatweave.hierarchy import global_names, top_level_node
+    from heatweave.spice.hierarchy import global_names, top_level_node
+    from heatweave.spice.netlist import card_nodes
 
     globals_ = global_names(index)
     found: set[str] = set()
@@ -155,11 +155,11 @@ def run(
 
     The summary table goes to stdout (to stderr when a report is written to stdout).
     """  # fmt: skip
-    from heatweave.emitter import load_inputs
+    from heatweave.emit.emitter import load_inputs
     from heatweave.files import write_atomic
     from heatweave.reports import build_report
-    from heatweave.runner import RunOptions
-    from heatweave.runner import run as run_deck
+    from heatweave.run.runner import RunOptions
+    from heatweave.run.runner import run as run_deck
 
     analyses = analyses_of(op, tran)
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file}
@@ -183,7 +183,7 @@ def run(
     else:
         from heatweave.cosim import run_auto
         from heatweave.reports.model import report_of
-        from heatweave.runner import deck_analyses_of
+        from heatweave.run.runner import deck_analyses_of
 
         fast = run_auto(deck, annotation_path, options, method=method, inputs=inputs)
         report_findings(list(fast.findings))

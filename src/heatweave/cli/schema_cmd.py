@@ -6,7 +6,7 @@ import json
 
 import click
 
-from heatweave.annotations import schema as annotation_schema
+from heatweave.annotation import schema as annotation_schema
 from heatweave.cli.common import guarded
 from heatweave.files import write_atomic
 

@@ -86,11 +86,11 @@ def settle(
     the temperatures stop changing; then reports each part's cycle-mean, peak and valley
     temperature within the settled period.  Exit status 7 reports thermal runaway.
     """
-    from heatweave.emitter import load_inputs
+    from heatweave.emit.emitter import load_inputs
     from heatweave.files import write_atomic
-    from heatweave.settle import SettleOptions, Step
-    from heatweave.settle import settle as settle_deck
-    from heatweave.settle_report import progress_line, render_csv, render_json, render_table
+    from heatweave.reports.settle import progress_line, render_csv, render_json, render_table
+    from heatweave.settle.periodic import SettleOptions, Step
+    from heatweave.settle.periodic import settle as settle_deck
 
     if csv_file is not None and envelope is None:
         raise UsageError("--csv writes the warm-up curve", hint="add --envelope TSTOP")

@@ -1,7 +1,7 @@
 """``heatweave sweep``: one deck at many ambients, parameter values and Monte Carlo draws.
 
 With ``--check`` every corner is held to the annotation's limits as ``check`` holds one run
-(:mod:`heatweave.sweep_limits`), and ``--junit FILE`` writes one test case per corner and
+(:mod:`heatweave.sweep.limits`), and ``--junit FILE`` writes one test case per corner and
 limit.
 """
 
@@ -28,15 +28,20 @@ from heatweave.cli.common import (
     style_severity,
 )
 from heatweave.errors import HeatweaveError, UsageError
-from heatweave.junit import Case
+from heatweave.reports.junit import Case
 
 if TYPE_CHECKING:
-    from heatweave.annotations import Annotation
-    from heatweave.runner import RunOptions
-    from heatweave.sweep import SweepPlan, SweepResult
+    from heatweave.annotation import Annotation
+    from heatweave.run.runner import RunOptions
+    from heatweave.sweep.corners import SweepPlan, SweepResult
 
 #: What every worker imports: loaded once by the fork server, then shared by the workers.
-WORKER_MODULES = ("heatweave.sweep", "heatweave.reports", "heatweave.runaway", "heatweave.checks")
+WORKER_MODULES = (
+    "heatweave.sweep.corners",
+    "heatweave.reports",
+    "heatweave.run.runaway",
+    "heatweave.checks.limits",
+)
 #: Width of the progress bar in characters.
 BAR = 30
 
@@ -164,9 +169,9 @@ def sweep(
     --check, violated a limit, and when all failed the status of the first corner's error
     (3, 4, 7, ...).
     """  # fmt: skip
-    from heatweave.runner import RunOptions
-    from heatweave.sweep import SweepPlan
-    from heatweave.sweep_grid import parse_assignment, parse_range
+    from heatweave.run.runner import RunOptions
+    from heatweave.sweep.corners import SweepPlan
+    from heatweave.sweep.grid import parse_assignment, parse_range
 
     if seed is not None and draws is None:
         raise UsageError("--seed is for --monte-carlo", hint="add --monte-carlo N")
@@ -213,10 +218,10 @@ def _run(
 ) -> SweepResult:
     """Load the inputs, resolve the limits (bad ones are exit 2 before any corner runs) and
     run every corner."""
-    from heatweave.checks import resolve_limits
-    from heatweave.emitter import load_inputs
-    from heatweave.executors import make_executor
-    from heatweave.sweep import run_sweep
+    from heatweave.checks.limits import resolve_limits
+    from heatweave.emit.emitter import load_inputs
+    from heatweave.sweep.corners import run_sweep
+    from heatweave.sweep.executors import make_executor
 
     inputs = load_inputs(deck, annotation_path)
     limits = resolve_limits(inputs.annotation, inputs.index) if check_limits else None
@@ -239,9 +244,10 @@ def _report(
     result: SweepResult, outputs: dict[str, str | None], junit_file: str | None, quiet: bool
 ) -> None:
     """Warnings, the reports asked for, the table and the limit lines; then exit."""
-    from heatweave import sweep_limits, sweep_report
     from heatweave.files import write_atomic
-    from heatweave.sweep import describe, exit_status
+    from heatweave.reports import sweep as sweep_report
+    from heatweave.sweep.corners import describe, exit_status
+    from heatweave.sweep import limits as sweep_limits
 
     # Warnings every corner repeats (a dropped .control block) are printed once.
     for text in dict.fromkeys(w for o in result.outcomes for w in o.warnings):
@@ -286,6 +292,6 @@ def _run_error(deck: str, err: HeatweaveError) -> Case:
 def _write_junit(path: str, deck: str, cases: tuple[Case, ...]) -> None:
     """The sweep's JUnit report: one suite for the deck (``-``: stdout)."""
     from heatweave.files import write_atomic
-    from heatweave.junit import Suite, render
+    from heatweave.reports.junit import Suite, render
 
     write_atomic(path, render([Suite(name=deck, cases=cases)], name="heatweave sweep"))

@@ -8,8 +8,8 @@ in :mod:`heatweave.cosim.windows`).  This avoids evaluating two behavioural expr
 per resistor at every time step and Newton iteration, which is where the full deck spends
 most of its time.
 
-:func:`run` takes the same inputs as :func:`heatweave.runner.run` and returns a
-:class:`FastOutcome` holding the same :class:`~heatweave.results.RunResults`, on the
+:func:`run` takes the same inputs as :func:`heatweave.run.runner.run` and returns a
+:class:`FastOutcome` holding the same :class:`~heatweave.run.results.RunResults`, on the
 co-simulation's window grid.  :func:`run_auto` picks the method (:func:`choose_method`)
 and falls back to the full deck where the co-simulation would not be accurate.
 """
@@ -20,15 +20,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from heatweave.annotations import Annotation
-from heatweave.deck import Card, Node
-from heatweave.elements import card_nodes
-from heatweave.emitter import Inputs, emit_inputs, load_inputs
+from heatweave.annotation import Annotation
+from heatweave.emit.emitter import Inputs, emit_inputs, load_inputs
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
-from heatweave.hierarchy import DeckIndex, global_names, top_level_node
-from heatweave.reader import read
-from heatweave.results import PartResult, RunResults, device_name, range_findings
-from heatweave.runner import (
+from heatweave.run.results import PartResult, RunResults, device_name, range_findings
+from heatweave.run.runner import (
     ANALYSIS_CARDS,
     RunOptions,
     RunOutcome,
@@ -36,8 +32,12 @@ from heatweave.runner import (
     deck_folder,
     strip_control,
 )
-from heatweave.thermal_circuit import AMBIENT_NODE, ThermalCircuit
-from heatweave.thermal_solver import ThermalSystem, assemble
+from heatweave.spice.deck import Card, Node
+from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
+from heatweave.spice.netlist import card_nodes
+from heatweave.spice.reader import read
+from heatweave.thermal.circuit import AMBIENT_NODE, ThermalCircuit
+from heatweave.thermal.solver import ThermalSystem, assemble
 
 from .engine import Plan, Probe, StrongFeedback, Trace, cosimulate
 from .method import SEPARATION, Transient, choose_method, source_time_scale
@@ -65,7 +65,7 @@ DEFAULT_OPTIONS = RunOptions()
 class FastOutcome:
     """A run by either method: its results, which method ran, and why.
 
-    ``full`` is the :class:`~heatweave.runner.RunOutcome` when the full deck ran;
+    ``full`` is the :class:`~heatweave.run.runner.RunOutcome` when the full deck ran;
     ``trace`` the co-simulation's raw record (windows, profile) when it did not.
     """
 
@@ -112,8 +112,7 @@ def run_auto(
 
     ``cosim`` forced where it does not apply raises :class:`UsageError` with the reason.
     """
-    from heatweave import runner
-
+    from heatweave.run import runner
     if method not in METHODS:
         raise UsageError(f"unknown method {method!r}", hint="choose auto, cosim or full")
     inputs = inputs or load_inputs(deck_path, annotation_path)
@@ -164,7 +163,7 @@ def run(
     tolerance: float = DEFAULT_TOLERANCE,
     prepared: tuple[ThermalCircuit, tuple[Finding, ...]] | None = None,
 ) -> FastOutcome:
-    """Co-simulate one run (same inputs as :func:`heatweave.runner.run`).
+    """Co-simulate one run (same inputs as :func:`heatweave.run.runner.run`).
 
     Raises :class:`UsageError` when the run is not one the co-simulation can do (see
     :func:`choose_method`; the time-scale check is left to the caller), and when

@@ -33,8 +33,8 @@ from heatweave.simulators.shared import (
     raise_failure,
     stray_stderr,
 )
-from heatweave.thermal_circuit import PartPlan
-from heatweave.thermal_solver import Propagator, ThermalSystem
+from heatweave.thermal.circuit import PartPlan
+from heatweave.thermal.solver import Propagator, ThermalSystem
 
 from .bank import ModelBank
 from .method import Transient

@@ -13,8 +13,8 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 from heatweave.quantities import parse_number
-from heatweave.thermal_circuit import ThermalCircuit
-from heatweave.thermal_solver import ThermalAssemblyError, assemble
+from heatweave.thermal.circuit import ThermalCircuit
+from heatweave.thermal.solver import ThermalAssemblyError, assemble
 
 #: The fastest thermal time constant must exceed the slowest electrical time scale this
 #: many times: the temperature ripple at the electrical time scale is then below about

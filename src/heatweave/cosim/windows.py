@@ -2,7 +2,7 @@
 
 Over a window of length ``h`` every resistance is held at one value; the thermal network
 is advanced exactly with the window's mean power plus the first-order term of the power's
-variation inside the window (:class:`heatweave.thermal_solver.Propagator`).  Two errors
+variation inside the window (:class:`heatweave.thermal.solver.Propagator`).  Two errors
 remain, and the rule bounds both:
 
 1. Holding R.  R is held at its value at the predicted mid-window temperature

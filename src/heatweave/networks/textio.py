@@ -11,13 +11,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from heatweave.annotation_locator import syntax_error
 from heatweave.errors import InputError, Location
 from heatweave.networks.base import FORMS, FloatArray, NetworkError, NetworkForm
 from heatweave.networks.cauer import Cauer
 from heatweave.networks.foster import Foster
 from heatweave.networks.single import Single
 from heatweave.quantities import parse_number
+from heatweave.tomlspots import syntax_error
 
 
 class DataFileError(InputError):

@@ -18,7 +18,7 @@ import io
 import numpy as np
 
 from heatweave.reports.model import RunReport
-from heatweave.results import FloatArray
+from heatweave.run.results import FloatArray
 
 #: The time column's header.
 TIME_HEADER = "time [s]"

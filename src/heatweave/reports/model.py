@@ -2,8 +2,9 @@
 
 The table, JSON, CSV and plot writers read a :class:`RunReport`, so a number printed on the
 terminal is the very number written to the JSON.  Rating margins follow
-:mod:`heatweave.ratings`, judged as ``check`` judges them: the local ambient of a part is the
-temperature at the cold end of its thermal path (the ambient, or the shared node it sits on);
+:mod:`heatweave.annotation.ratings`, judged as ``check`` judges them: the local ambient
+of a part is the temperature at the cold end of its thermal path (the ambient, or the shared
+node it sits on);
 the power margin is taken at the instant of the run where the derated rating is closest to
 being exceeded; the temperature margin uses the hottest temperature reached.
 """
@@ -14,12 +15,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from heatweave.annotations import AMBIENT
-from heatweave.emitter import Inputs
+from heatweave.annotation import AMBIENT
+from heatweave.annotation.ratings import Margins, margins, worst_instant
+from heatweave.emit.emitter import Inputs
 from heatweave.errors import Finding
-from heatweave.ratings import Margins, margins, worst_instant
-from heatweave.results import FloatArray, PartResult, RunResults
-from heatweave.runner import RunOutcome, deck_analyses_of
+from heatweave.run.results import FloatArray, PartResult, RunResults
+from heatweave.run.runner import RunOutcome, deck_analyses_of
 
 PPM = 1e6
 
@@ -93,7 +94,7 @@ def local_ambient(results: RunResults, label: str, ambient: FloatArray) -> Float
 
 def part_row(part: PartResult, results: RunResults, ambient: FloatArray) -> PartRow:
     """A part's row, its power margin taken at the worst instant of the run (as ``check``
-    judges it, :func:`heatweave.ratings.worst_instant`)."""
+    judges it, :func:`heatweave.annotation.ratings.worst_instant`)."""
     plan = part.plan
     assert plan is not None
     local = local_ambient(results, plan.to_label, ambient)

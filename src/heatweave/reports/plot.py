@@ -21,7 +21,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from heatweave.reports.model import RunReport
-from heatweave.results import FloatArray
+from heatweave.run.results import FloatArray
 
 AMBIENT_COLOUR = "0.45"
 #: Smallest vertical distance between two end labels, as a share of the panel's height.

@@ -23,8 +23,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from heatweave.reports.plot import palette
-from heatweave.sweep import PERCENTILES, SweepResult, summary
-from heatweave.sweep_report import corner_ambient
+from heatweave.reports.sweep import corner_ambient
+from heatweave.sweep.corners import PERCENTILES, SweepResult, summary
 
 QUANTITIES = (
     ("temperature", "part temperature (degC)"),

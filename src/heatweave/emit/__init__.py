@@ -1,0 +1,1 @@
+"""emit: see DEVELOPERS.md."""

@@ -1,0 +1,172 @@
+"""What ``heatweave settle`` writes: the JSON report, the warm-up CSV, the terminal table.
+
+The CSV and the table's caution follow ``run``'s (:mod:`heatweave.reports.csv_report`,
+:mod:`heatweave.reports.table`).
+
+JSON keys follow ``run``'s report where the meaning is the same (``parts.NAME.temperature``,
+``.peak_temperature``, ``.power``, ``.resistance``, ``nodes.NAME``), read over the settled
+period: ``temperature`` is the cycle mean, ``peak_temperature`` and ``valley_temperature``
+the extremes within the period, ``power`` the cycle-mean dissipation and ``resistance``
+the resistance at the cycle-mean temperature.  Added: ``period``, ``periods`` (electrical
+periods simulated per iteration), ``iterations``, ``final_change`` (K), ``loop_gain``,
+``history`` (one object per iteration), ``node_extremes`` and ``envelope`` (the warm-up
+from cold, when asked for).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import textwrap
+from typing import Any
+
+from heatweave import __version__
+from heatweave.emit.emitter import Inputs
+from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
+from heatweave.reports.csv_report import TIME_HEADER, render_columns, temperature_header
+from heatweave.reports.table import WIDTH
+from heatweave.settle.periodic import Settled, Step
+
+
+def _number(value: float | None) -> float | None:
+    """A float for JSON; non-finite values become ``null``."""
+    if value is None or not math.isfinite(value):
+        return None
+    return float(value)
+
+
+def as_dict(settled: Settled, inputs: Inputs) -> dict[str, Any]:
+    """The report as plain data, keys in a fixed order."""
+    parts = {
+        part.path: {
+            "model": part.model,
+            "temperature": _number(part.temperature),
+            "peak_temperature": _number(part.peak_temperature),
+            "valley_temperature": _number(part.valley_temperature),
+            "ripple": _number(part.peak_temperature - part.valley_temperature),
+            "resistance": _number(part.resistance),
+            "nominal_resistance": _number(part.nominal_resistance),
+            "power": _number(part.power),
+            "peak_power": _number(part.peak_power),
+        }
+        for part in settled.parts
+    }
+    envelope = None
+    if settled.envelope is not None:
+        env = settled.envelope
+        envelope = {
+            "time": [float(t) for t in env.time],
+            "parts": {name: [float(v) for v in values] for name, values in env.parts.items()},
+            "nodes": {name: [float(v) for v in values] for name, values in env.nodes.items()},
+        }
+    return {
+        "heatweave_version": __version__,
+        "deck": inputs.deck_path,
+        "annotations": {"path": inputs.annotation_path, "sha256": inputs.annotation.sha256},
+        "analysis": "settle",
+        "period": settled.period,
+        "periods": settled.periods,
+        "ambient": _number(settled.ambient),
+        "iterations": settled.iterations,
+        "final_change": _number(settled.final_change),
+        "loop_gain": _number(settled.gain),
+        "parts": parts,
+        "nodes": {label: _number(value) for label, value in settled.nodes.items()},
+        "node_extremes": {
+            label: {
+                "peak_temperature": _number(settled.node_peaks[label]),
+                "valley_temperature": _number(settled.node_valleys[label]),
+            }
+            for label in settled.nodes
+        },
+        "voltages": {node: _number(value) for node, value in settled.voltages.items()},
+        "history": [_step(step) for step in settled.history],
+        "envelope": envelope,
+        "warnings": [finding.render() for finding in settled.findings],
+        "cautions": CAUTION_TEXT,
+    }
+
+
+def _step(step: Step) -> dict[str, Any]:
+    return {
+        "iteration": step.iteration,
+        "change": _number(step.change),
+        "hottest": step.hottest,
+        "temperature": _number(step.temperature),
+        "periods": step.periods,
+        "loop_gain": _number(step.gain),
+    }
+
+
+def render_json(settled: Settled, inputs: Inputs) -> str:
+    """The JSON text (indented, newline at the end)."""
+    data = as_dict(settled, inputs)
+    return json.dumps(data, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+
+
+def render_csv(settled: Settled) -> str:
+    """The warm-up curve as CSV, in ``run``'s form (:mod:`heatweave.reports.csv_report`):
+    ``time [s]``, then the temperature of each part and of each shared node (``@label``)."""
+    env = settled.envelope
+    if env is None:
+        return ""
+    cols = [(TIME_HEADER, env.time)]
+    cols += [(temperature_header(name), values) for name, values in env.parts.items()]
+    cols += [(temperature_header(name, node=True), values) for name, values in env.nodes.items()]
+    return render_columns(cols)
+
+
+def progress_line(step: Step) -> str:
+    """One line per iteration for a terminal."""
+    gain = "" if step.gain is None else f", loop gain {step.gain:+.3f}"
+    return (
+        f"iteration {step.iteration}: largest change {step.change:.3g} K "
+        f"({step.hottest} at {step.temperature:.2f} degC), {step.periods} periods{gain}"
+    )
+
+
+def seconds(value: float) -> str:
+    """A time for people: ``1 ms``, ``10 us``, ``2.5 s``."""
+    for unit, scale in (("s", 1.0), ("ms", 1e-3), ("us", 1e-6), ("ns", 1e-9)):
+        if abs(value) >= scale:
+            return f"{value / scale:.4g} {unit}"
+    return f"{value:.4g} s"
+
+
+def render_table(settled: Settled) -> str:
+    """The terminal summary: a heading, one row per part and shared node, the caution."""
+    gain = "" if settled.gain is None else f", loop gain {settled.gain:+.3f}"
+    lines = [
+        f"periodic steady state, period {seconds(settled.period)}, ambient "
+        f"{settled.ambient:g} degC: settled in {settled.iterations} iteration(s) of "
+        f"{settled.periods} periods, last change {settled.final_change:.2g} K{gain}",
+        "",
+    ]
+    head = ("part", "mean", "peak", "valley", "ripple", "mean power", "resistance")
+    units = ("", "degC", "degC", "degC", "K", "W", "ohm")
+    rows: list[tuple[str, ...]] = [head, units]
+    for part in settled.parts:
+        rows.append(
+            (
+                part.path,
+                f"{part.temperature:.2f}",
+                f"{part.peak_temperature:.2f}",
+                f"{part.valley_temperature:.2f}",
+                f"{part.peak_temperature - part.valley_temperature:.3f}",
+                f"{part.power:.4g}",
+                "-" if part.resistance is None else f"{part.resistance:.5g}",
+            )
+        )
+    for label, mean in settled.nodes.items():
+        peak, valley = settled.node_peaks[label], settled.node_valleys[label]
+        rows.append(
+            (f"[{label}]", f"{mean:.2f}", f"{peak:.2f}", f"{valley:.2f}",
+             f"{peak - valley:.3f}", "", "")
+        )  # fmt: skip
+    widths = [max(len(row[k]) for row in rows) for k in range(len(head))]
+    for row in rows:
+        cells = [row[0].ljust(widths[0])]
+        cells += [cell.rjust(widths[k]) for k, cell in enumerate(row) if k]
+        lines.append("  ".join(cells).rstrip())
+    lines += ["", *textwrap.wrap(CAUTION_LINE, WIDTH)]
+    return "\n".join(lines) + "\n"

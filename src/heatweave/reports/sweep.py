@@ -1,0 +1,245 @@
+"""The reports of ``heatweave sweep``: JSON, CSV and the terminal table.
+
+JSON (``--json FILE``), keys in this order:
+
+``heatweave_version``, ``deck``, ``annotations`` (``path``, ``sha256``), ``analysis_commands``
+    As in ``run``'s report.
+``executor``
+    ``local`` or ``dask``: where the corners ran (the numbers never depend on it).
+``sweep``
+    The plan: ``ambients`` (degC; ``[null]`` for the annotation's own), ``params`` (name:
+    list of values), ``monte_carlo`` (``{"draws": N, "seed": S}`` or ``null``).
+``corners``
+    One object per corner in corner order: ``index``, ``ambient`` (degC), ``params``
+    (name: value), ``draw`` (Monte Carlo draw number or ``null``), ``drawn`` (part pattern,
+    ``@node`` or ``A~B`` path: the drawn values of its toleranced keys), ``status`` (``ok``
+    or ``failed``), ``error`` (the message of a failed corner), ``analysis``, ``backend``,
+    and ``parts``, ``nodes``, ``voltages`` exactly as ``run --json`` writes them.  With
+    ``--check`` also ``limits``: the corner's limits in ``check``'s order (parts' ``tmax``
+    and ``power_rating``, then signal limits), each as
+    :meth:`heatweave.checks.limits.LimitResult.as_dict` gives it (``subject``, ``limit``,
+    ``value``, ``bound``, ``unit``, ``upper``, ``margin``, ``passed``, ``detail``), or
+    ``null`` for a corner that gave no answer.
+``summary``
+    :func:`heatweave.sweep.corners.summary`.
+``failed``
+    The indices of corners that failed.
+``check``
+    With ``--check`` only: :func:`heatweave.sweep.limits.as_dict` (corners checked, the
+    indices of corners failing a limit, the worst margin of each limit and its corner).
+``cautions``
+    What these numbers are and are not.
+
+CSV (``--csv FILE``): one row per corner and part, units in the header.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import textwrap
+from typing import Any
+
+from heatweave import __version__
+from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
+from heatweave.reports.table import WIDTH, cell_styles, grid
+from heatweave.run.runner import deck_analyses_of
+from heatweave.sweep.corners import PERCENTILES, CornerOutcome, SweepResult, describe, summary
+
+
+def corner_ambient(result: SweepResult, outcome: CornerOutcome) -> float:
+    """The ambient a corner ran at (degC): the value asked for when the sweep set one (the
+    simulator reads some decimals back a bit off, 0.3 as 0.30000000000000004), else the
+    final ambient the run reported, else the annotation's."""
+    if outcome.corner.ambient is not None:
+        return outcome.corner.ambient
+    if outcome.data is not None:
+        return float(outcome.data["ambient"])
+    return result.inputs.annotation.ambient.at(0.0)
+
+
+def _corner(result: SweepResult, outcome: CornerOutcome) -> dict[str, Any]:
+    corner, data = outcome.corner, outcome.data or {}
+    out = {
+        "index": corner.index,
+        "ambient": corner_ambient(result, outcome),
+        "params": dict(corner.params),
+        "draw": corner.draw,
+        "drawn": corner.drawn,
+        "status": "ok" if outcome.ok else "failed",
+        "error": outcome.error,
+        "analysis": data.get("analysis"),
+        "backend": data.get("backend"),
+        "parts": data.get("parts", {}),
+        "nodes": data.get("nodes", {}),
+        "voltages": data.get("voltages", {}),
+    }
+    if result.checked:
+        limits = outcome.limits
+        out["limits"] = None if limits is None else [item.as_dict() for item in limits]
+    return out
+
+
+def analyses(result: SweepResult) -> list[str]:
+    """The analyses that ran: the command line's, else the deck's own cards."""
+    if result.options.analyses:
+        return list(result.options.analyses)
+    return deck_analyses_of(result.inputs.project.deck.write())
+
+
+def as_dict(result: SweepResult) -> dict[str, Any]:
+    """The sweep as plain data, keys in documented order."""
+    plan = result.plan
+    inputs = result.inputs
+    out = {
+        "heatweave_version": __version__,
+        "deck": inputs.deck_path,
+        "annotations": {"path": inputs.annotation_path, "sha256": inputs.annotation.sha256},
+        "analysis_commands": analyses(result),
+        "executor": result.executor,
+        "sweep": {
+            "ambients": list(plan.ambients),
+            "params": {name: list(values) for name, values in plan.params},
+            "monte_carlo": {"draws": plan.draws, "seed": plan.seed} if plan.draws else None,
+        },
+        "corners": [_corner(result, o) for o in result.outcomes],
+        "summary": summary(result),
+        "failed": [o.corner.index for o in result.failed],
+    }
+    if result.checked:
+        from heatweave.sweep import limits as sweep_limits
+        out["check"] = sweep_limits.as_dict(result)
+    out["cautions"] = CAUTION_TEXT
+    return out
+
+
+def render_json(result: SweepResult) -> str:
+    """The JSON text (indented, newline at the end)."""
+    return json.dumps(as_dict(result), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+
+
+CSV_PART_COLUMNS = (
+    ("temperature", "T [degC]"),
+    ("peak_temperature", "T peak [degC]"),
+    ("resistance", "R [ohm]"),
+    ("resistance_change_ppm", "dR [ppm]"),
+    ("power", "P [W]"),
+)
+
+
+def render_csv(result: SweepResult) -> str:
+    """One row per corner and part; a failed corner gives one row with its error."""
+    names = [name for name, _ in result.plan.params]
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(
+        ["corner", "draw", "ambient [degC]", *names, "part", *(h for _, h in CSV_PART_COLUMNS),
+         "status", "error"]
+    )  # fmt: skip
+    for outcome in result.outcomes:
+        corner = outcome.corner
+        lead = [
+            corner.index,
+            "" if corner.draw is None else corner.draw,
+            repr(corner_ambient(result, outcome)),
+            *(repr(corner.params[n]) for n in names),
+        ]
+        if outcome.data is None:
+            blanks = [""] * (1 + len(CSV_PART_COLUMNS))
+            writer.writerow([*lead, *blanks, "failed", (outcome.error or "").splitlines()[0]])
+            continue
+        for part, values in outcome.data["parts"].items():
+            cells = ["" if values[k] is None else repr(values[k]) for k, _ in CSV_PART_COLUMNS]
+            writer.writerow([*lead, part, *cells, "ok", ""])
+    return buffer.getvalue()
+
+
+# ------------------------------------------------------------------------------ table
+
+
+def _num(value: float | None, spec: str) -> str:
+    return "-" if value is None else format(value, spec)
+
+
+def _settings(result: SweepResult) -> str:
+    plan = result.plan
+    what = [f"{len(result.outcomes)} corners"]
+    if plan.draws:
+        what.append(f"Monte Carlo {plan.draws} draws, seed {plan.seed}")
+    ran = "; ".join(analyses(result)) or "deck analyses"
+    return f"{result.inputs.deck_path}: {ran}, {', '.join(what)} ({result.executor} executor)"
+
+
+def _corner_table(result: SweepResult) -> tuple[list[list[str]], list[list[str]], list[bool]]:
+    names = [name for name, _ in result.plan.params]
+    parts = result.part_names
+    header = [["corner", "ambient", *names], ["", "degC", *[""] * len(names)]]
+    for part in parts:
+        header[0] += [f"T {part}", f"dR {part}", f"P {part}"]
+        header[1] += ["degC", "ppm", "W"]
+    body = []
+    for outcome in result.outcomes:
+        corner = outcome.corner
+        row = [str(corner.index), f"{corner_ambient(result, outcome):.2f}"]
+        row += [f"{corner.params[n]:.6g}" for n in names]
+        for part in parts:
+            if outcome.data is None:
+                row += ["failed", "", ""]
+                continue
+            values = outcome.data["parts"][part]
+            row += [
+                _num(values["temperature"], ".2f"),
+                _num(values["resistance_change_ppm"], "+.1f"),
+                _num(values["power"], ".4g"),
+            ]
+        body.append(row)
+    left = [False] * len(header[0])
+    return header, body, left
+
+
+def _monte_carlo_table(
+    result: SweepResult, stats: dict[str, Any]
+) -> tuple[list[list[str]], list[list[str]], list[bool]]:
+    names = [name for name, _ in result.plan.params]
+    labels = [f"p{p:g}" for p in PERCENTILES]
+    header = [
+        ["ambient", *names, "draws", "part", "quantity", "mean", "std", *labels],
+        ["degC", *[""] * len(names), "", "", "", "", "", *[""] * len(labels)],
+    ]
+    units = {"temperature": ("T", "degC", ".2f"), "resistance_change_ppm": ("dR", "ppm", "+.1f")}
+    body = []
+    for group in stats["groups"]:
+        lead = [_num(group["ambient"], ".2f"), *(f"{group['params'][n]:.6g}" for n in names)]
+        for part, quantities in group["parts"].items():
+            for key, values in quantities.items():
+                symbol, unit, spec = units[key]
+                cells = [format(values[k], spec) for k in ("mean", "p1", "p50", "p99")]
+                cells.insert(1, format(values["std"], spec.lstrip("+")))
+                body.append([*lead, str(group["draws"]), part, f"{symbol} {unit}", *cells])
+    left = [False] * len(header[0])
+    for i in (len(names) + 2, len(names) + 3):
+        left[i] = True
+    return header, body, left
+
+
+def render_table(result: SweepResult, colour: bool = False) -> str:
+    """Settings line, one row per corner (or the Monte Carlo statistics), failures, caution."""
+    styles = cell_styles(colour)
+    stats = summary(result)
+    if result.plan.draws:
+        header, body, left = _monte_carlo_table(result, stats)
+    else:
+        header, body, left = _corner_table(result)
+    lines = [_settings(result), ""]
+    if body:
+        levels = [[""] * len(left) for _ in body]
+        lines += grid(header, body, left, levels, styles)
+    else:
+        lines.append("no corner ran")
+    for outcome in result.failed:
+        first = (outcome.error or "").splitlines()[0]
+        where = describe(outcome.corner, corner_ambient(result, outcome))
+        lines.append(styles["over"](f"{where} failed: {first}"))
+    lines += ["", *textwrap.wrap(CAUTION_LINE, WIDTH)]
+    return "\n".join(lines) + "\n"

@@ -1,0 +1,1 @@
+"""run: see DEVELOPERS.md."""

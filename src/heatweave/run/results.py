@@ -1,0 +1,273 @@
+"""What a run means: temperatures, resistances, dissipation and node voltages per part.
+
+ngspice returns vectors; this module turns them into the quantities a designer asks for,
+using the same temperature models the emitted deck evaluates (so R(T) here is R(T) there):
+
+* a part's temperature is its hot-spot node voltage (1 V = 1 degC);
+* a resistor's resistance is its model at that temperature, its dissipation V^2/R;
+* a heat-only part's dissipation is ``sum (V(k) - V(last)) * I(k)`` over its sensed terminals;
+* the change of resistance is against the deck's value (the nominal at ``tref``);
+* a temperature outside the range where the part's model is defined
+  (:attr:`~heatweave.tempmodels.TempModel.valid_range`) is an extrapolation, and
+  :func:`range_findings` says so.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import numpy.typing as npt
+
+from heatweave.errors import Finding, SimulatorError
+from heatweave.simulators import Plot, SimResult
+from heatweave.spice.deck import Block
+from heatweave.spice.hierarchy import DeckIndex, Resolved, global_names, top_level_node
+from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
+
+FloatArray = npt.NDArray[np.float64]
+
+
+@dataclass(frozen=True, slots=True)
+class PartResult:
+    """One heated part's results; series are ``None`` for an operating point."""
+
+    path: str
+    model: str | None
+    temperature: float
+    power: float
+    resistance: float | None
+    nominal_resistance: float | None
+    peak_temperature: float | None = None
+    peak_power: float | None = None
+    temperature_series: FloatArray | None = field(default=None, repr=False)
+    power_series: FloatArray | None = field(default=None, repr=False)
+    resistance_series: FloatArray | None = field(default=None, repr=False)
+    plan: PartPlan | None = field(default=None, repr=False, compare=False)
+
+    @property
+    def resistance_change(self) -> float | None:
+        """Relative change of resistance against the deck's value (final point)."""
+        if self.resistance is None or not self.nominal_resistance:
+            return None
+        return self.resistance / self.nominal_resistance - 1.0
+
+    @property
+    def hottest(self) -> float:
+        """The highest temperature seen: the peak of a transient, else the final value."""
+        return self.peak_temperature if self.peak_temperature is not None else self.temperature
+
+
+@dataclass(frozen=True, slots=True)
+class RunResults:
+    """Everything a run reports, from one plot (the transient when there is one)."""
+
+    analysis: str
+    ambient: float
+    parts: tuple[PartResult, ...]
+    nodes: dict[str, float]
+    voltages: dict[str, float]
+    time: FloatArray | None = field(default=None, repr=False)
+    node_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
+    voltage_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
+    ambient_series: FloatArray | None = field(default=None, repr=False)
+
+    def part(self, path: str) -> PartResult:
+        """A part's results by instance path (case-insensitive)."""
+        for part in self.parts:
+            if part.path.lower() == path.lower():
+                return part
+        raise KeyError(path)
+
+
+def main_plot(sim: SimResult) -> Plot:
+    """The plot results are read from: the last transient, else the last operating point,
+    else the last plot of any kind."""
+    for kind in ("tran", "op"):
+        found = [p for p in sim.plots if p.kind == kind]
+        if found:
+            return found[-1]
+    if not sim.plots:
+        from heatweave.errors import SimulatorError
+
+        raise SimulatorError(
+            "ngspice produced no results",
+            hint="check that the deck's analysis cards are valid (see the log with -v)",
+        )
+    return sim.plots[-1]
+
+
+def _vector(plot: Plot, name: str) -> FloatArray:
+    try:
+        return np.real(np.asarray(plot[name])).astype(np.float64)
+    except KeyError:
+        raise SimulatorError(
+            f"ngspice's {plot.name} plot has no vector {name!r}, which heatweave expected",
+            hint="heatweave named a node or device unlike ngspice: please report it with "
+            "the deck and its annotation file",
+        ) from None
+
+
+def device_name(resolved: Resolved, name: str) -> str:
+    """ngspice's name of device *name* placed beside the element at *resolved*:
+    ``vx`` at the top level, ``v.x1.x3.vx`` inside instances.
+
+    A definition nested in another one is expanded inside that one's body before the
+    instances around it, and each expansion of a device puts its letter before the
+    instance name: ``v.x1.v.xl.vx`` for ``XL`` of a cell defined inside ``X1``'s
+    definition (ngspice 39, checked with ``show``)."""
+    instances = resolved.instances
+    if not instances:
+        return name.lower()
+    names = [card.name for card in instances]
+    definitions = resolved.definitions
+    owner = [_owner(definitions, k) for k in range(len(definitions))]
+    device, letter, last = name.lower(), name[0].lower(), len(names)
+    if all(o < 0 for o in owner):
+        return f"{letter}.{'.'.join(names)}.{device}"
+
+    def expand(scope: int) -> tuple[int, str]:
+        # In the body of instance *scope*'s definition (-1: the top level) once it has
+        # expanded the instances it owns: the first card of the path left unexpanded
+        # (``last``: the device itself) and its name there.
+        k = scope + 1
+        current = names[k] if k < last else device
+        while k < last and owner[k] == scope:
+            k, inner = expand(k)
+            current = f"{letter}.{current}.{inner}" if k == last else f"{current}.{inner}"
+        return k, current
+
+    return expand(-1)[1]
+
+
+def _owner(definitions: tuple[Block, ...], k: int) -> int:
+    """The index of the definition whose body holds definition *k* (-1: the top level)."""
+    for j in range(k - 1, -1, -1):
+        if any(node is definitions[k] for node in definitions[j].body):
+            return j
+    return -1
+
+
+def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunResults:
+    """Read a simulation of an emitted deck back into per-part results."""
+    plot = main_plot(sim)
+    transient = plot.kind == "tran"
+    time = _vector(plot, "time") if transient and "time" in plot else None
+    globals_ = global_names(index) | {AMBIENT_NODE}
+
+    def voltage(node: str) -> FloatArray:
+        if node.lower() in ("0", "gnd"):
+            return np.zeros(len(plot.scale_values) if plot.scale_values is not None else 1)
+        return _vector(plot, f"v({node.lower()})")
+
+    parts = []
+    for part in circuit.parts:
+        resolved = part.resolved or index.resolve(part.path)
+        assert resolved is not None
+        temp = _vector(plot, f"v({part.node})")
+        nodes = [top_level_node(resolved, n, globals_) for n in part.terminals]
+        resistance = nominal = None
+        if part.model is not None:
+            r_series = part.model.resistance(temp)
+            resistance_series: FloatArray | None = r_series
+            drop = voltage(nodes[0]) - voltage(nodes[1])
+            power = drop * drop / r_series
+            resistance = float(r_series[-1])
+            nominal = part.nominal_resistance
+        else:
+            resistance_series = None
+            power = np.zeros_like(temp)
+            name = safe(part.path)
+            for k in range(len(nodes) - 1):
+                sense = device_name(resolved, f"v{PREFIX}s_{name}_{k + 1}")
+                power = power + (voltage(nodes[k]) - voltage(nodes[-1])) * _vector(
+                    plot, f"i({sense})"
+                )
+        parts.append(
+            PartResult(
+                path=part.path,
+                model=part.model_name,
+                temperature=float(temp[-1]),
+                power=float(power[-1]),
+                resistance=resistance,
+                nominal_resistance=nominal,
+                peak_temperature=float(temp.max()) if transient else None,
+                peak_power=float(power.max()) if transient else None,
+                temperature_series=temp if transient else None,
+                power_series=power if transient else None,
+                resistance_series=resistance_series if transient else None,
+                plan=part,
+            )
+        )
+    nodes_final: dict[str, float] = {}
+    node_series: dict[str, FloatArray] = {}
+    for shared in circuit.nodes:
+        values = _vector(plot, f"v({shared.node})")
+        nodes_final[shared.label] = float(values[-1])
+        if transient:
+            node_series[shared.label] = values
+    ambient_values = _vector(plot, f"v({AMBIENT_NODE})")
+    voltages: dict[str, float] = {}
+    voltage_series: dict[str, FloatArray] = {}
+    for name, raw in plot.vectors.items():
+        if not (name.startswith("v(") and name.endswith(")")) or PREFIX in name:
+            continue
+        node = name[2:-1]
+        real = np.real(np.asarray(raw)).astype(np.float64)
+        voltages[node] = float(real[-1])
+        if transient:
+            voltage_series[node] = real
+    return RunResults(
+        analysis=plot.kind,
+        ambient=float(ambient_values[-1]),
+        parts=tuple(parts),
+        nodes=nodes_final,
+        voltages=voltages,
+        time=time,
+        node_series=node_series,
+        voltage_series=voltage_series,
+        ambient_series=ambient_values if transient else None,
+    )
+
+
+def outside_range(part: PartResult) -> tuple[float, float] | None:
+    """``(temperature, bound)`` of the reading furthest past the part's model range, or
+    ``None`` when every reading lies inside it (or the model declares no range)."""
+    found = part.plan.model.valid_range if part.plan and part.plan.model else None
+    if found is None:
+        return None
+    series = part.temperature_series
+    values = series if series is not None else np.array([part.temperature])
+    low, high = float(np.min(values)), float(np.max(values))
+    if not (np.isfinite(low) and np.isfinite(high)):
+        return None  # non-finite results are a failure of their own, not a range question
+    if high > found.high:
+        return high, found.high
+    if low < found.low:
+        return low, found.low
+    return None
+
+
+def range_findings(results: RunResults) -> tuple[Finding, ...]:
+    """A warning for every part whose temperature left the range its model is defined in:
+    the resistance, dissipation and temperature reported there are extrapolations."""
+    findings = []
+    for part in results.parts:
+        past = outside_range(part)
+        if past is not None and part.plan is not None:
+            findings.append(range_warning(part.plan, *past))
+    return tuple(findings)
+
+
+def range_warning(plan: PartPlan, temperature: float, bound: float) -> Finding:
+    """The warning that *plan*'s part reached *temperature*, past *bound* of its model."""
+    assert plan.model is not None and plan.model.valid_range is not None
+    return Finding(
+        "warning",
+        f"{plan.path} reaches {temperature:.4g} degC, beyond {bound:g} degC where its "
+        f"{plan.model_name} model ends ({plan.model.valid_range.describe()}): its resistance, "
+        "dissipation and temperature there are extrapolations of the formula, not physics",
+        plan.location,
+        "lower the drive or the thermal resistance, or describe the part over that span "
+        "with a table model of measured points",
+    )

@@ -1,0 +1,552 @@
+"""Thermal runaway: explain why an electrothermal run has no (physical) answer.
+
+Self-heating is a feedback loop: dissipation heats a part, its resistance changes, and so
+does its dissipation.  With loop gain ``g = Rth * dP/dT`` below one the loop settles; where
+``g`` reaches one the steady state folds over (a saddle-node) and beyond it no nearby steady
+state exists: an NTC across a stiff voltage source, a PTC fed by a current source.
+
+Method (continuation in a drive parameter):
+
+1. Every part's injected dissipation is scaled by a drive ``lambda``: in the emitted deck
+   each ``Bhw_p_<name> 0 <hot node> I = <expr>`` becomes ``I = V(hw_drive)*(<expr>)``, with
+   ``Vhw_drive hw_drive 0 DC 0``.  ngspice sweeps it (``dc Vhw_drive 0 1 0.01``); a DC sweep
+   starts each point from the previous solution, so it follows the stable branch.
+2. The branch is lost where the sweep stops converging, gives non-finite values, or jumps:
+   a temperature step more than :data:`JUMP_RATIO` times the previous one (and above
+   :data:`JUMP_FLOOR`).  Near a fold steps grow like ``1/sqrt(lambda* - lambda)``, a factor
+   of about 2.4 between the last two points at most; a jump to a far branch is far larger.
+3. The last interval is swept again in :data:`FINE_STEPS` steps, starting on the branch
+   (``.nodeset`` of the thermal nodes at the last good point), so the drive is known to
+   ``0.01 / FINE_STEPS``.
+4. At the last good point each part's loop gain is ``lambda * Z_ii * dP_i/dT_i``: ``Z`` the
+   driving-point thermal resistances of the steady-state thermal network (own path, shared
+   nodes, couplings), ``dP/dT`` by central differences of two ngspice solutions with the
+   part temperatures held fixed (sources on the hot nodes) at +-:data:`FD_STEP` K.  The part
+   with the largest gain is named; the largest eigenvalue of ``lambda Z J`` is the loop gain
+   of the whole circuit.
+5. For a deck of linear elements with one independent source, dissipation scales with the
+   square of the source, so the critical source value is ``sqrt(lambda*)`` times the deck's.
+6. A model defined over a limited range (the RTD's Callendar-Van Dusen polynomial, IEC
+   60751: -200 to 850 degC) also ends the branch where a part leaves that range: beyond it
+   the formula is an extrapolation, and the polynomial even bends back, giving ngspice a
+   spurious far root to land on.  The drive at which the part reaches the range's end is
+   interpolated between the sweep points on either side; the loop gain reported is the
+   one at full dissipation with the part at that end, the last temperature where the
+   model means something.  At or above 1 the heating still outruns the thermal path where
+   the model stops: a runaway out of the model's range.  Below 1 the part just runs hot;
+   the run stands, with the warning of :func:`heatweave.run.results.range_findings`.
+
+A transient whose temperatures pass :data:`heatweave.run.runner.IMPLAUSIBLE_TEMPERATURE` or
+turn non-finite is reported with the part and the time it passed that (and its ``tmax``).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
+
+import numpy as np
+import numpy.typing as npt
+
+from heatweave.errors import Location, SimulatorError, ThermalRunawayError
+from heatweave.quantities import parse_number
+from heatweave.spice.deck import Card
+from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
+
+if TYPE_CHECKING:
+    from heatweave.emit.emitter import Inputs
+    from heatweave.run.results import RunResults
+    from heatweave.run.runner import Prepared, RunOptions
+    from heatweave.simulators import Plot
+    from heatweave.spice.hierarchy import DeckIndex
+
+FloatArray = npt.NDArray[np.float64]
+
+DRIVE_SOURCE = "vhw_drive"
+COARSE_STEPS = 100
+FINE_STEPS = 100
+JUMP_RATIO = 4.0
+JUMP_FLOOR = 0.25  # K: smaller steps are never taken for a jump
+FD_STEP = 0.1  # K
+# Near a fold the power balance is flat, so ngspice's default tolerances (reltol 1e-3)
+# accept points slightly past it; the diagnosis decks solve tighter.
+TIGHT = ".options reltol=1e-6 vntol=1e-9 abstol=1e-15"
+_POWER_LINE = re.compile(r"^(Bhw_p_\S+\s+0\s+\S+\s+I\s*=\s*)(.+)$", re.IGNORECASE | re.MULTILINE)
+_END_LINE = re.compile(r"^\.end\s*$", re.IGNORECASE | re.MULTILINE)
+LINEAR_LETTERS = frozenset("RCLKVI")
+# Controlled sources with a plain gain: E/G name n+ n- nc+ nc- gain, F/H name n+ n- vname gain.
+CONTROLLED_FIELDS = {"E": 6, "G": 6, "F": 5, "H": 5}
+
+HINT = (
+    "lower the drive, give the part a lower thermal resistance (more copper, a heat sink), "
+    "or add series resistance so its dissipation falls as it heats"
+)
+
+
+@dataclass(frozen=True, slots=True)
+class Diagnosis:
+    """What the continuation found at the last steady state before the branch vanished."""
+
+    part: str
+    loop_gain: float  # the named part's own lambda * Rth * dP/dT
+    circuit_gain: float  # largest eigenvalue of the loop matrix
+    drive: float  # last drive (share of full dissipation) with a steady state
+    temperature: float  # the named part's temperature there, degC
+    source: tuple[str, float, float] | None = None  # (name, critical value, deck value)
+    # When the branch ended at the named part's model range: that range in words.
+    model_range: str | None = None
+
+    def sentence(self) -> str:
+        """The diagnosis in words."""
+        if self.model_range is not None:
+            return self._range_sentence(self.model_range)
+        text = (
+            f"loop gain Rth*dP/dT reached {self.loop_gain:.3g} at {100 * self.drive:.3g} % of "
+            f"the full dissipation ({self.part} at {self.temperature:.4g} degC) and the "
+            "solution vanished beyond it"
+        )
+        if abs(self.circuit_gain - self.loop_gain) > 0.02:
+            text += f" (loop gain of the whole circuit {self.circuit_gain:.3g})"
+        return text + self._source_clause()
+
+    def _range_sentence(self, model_range: str) -> str:
+        return (
+            f"no steady state inside its {model_range}; at full dissipation "
+            f"its loop gain Rth*dP/dT is {self.loop_gain:.3g} at {self.temperature:.4g} degC, "
+            "where that range ends, so each kelvin of warming still brings more than a "
+            f"kelvin more; its steady state reaches {self.temperature:.4g} degC at "
+            f"{100 * self.drive:.3g} % of the full dissipation"
+        ) + self._source_clause()
+
+    def _source_clause(self) -> str:
+        if self.source is None:
+            return ""
+        name, critical, value = self.source
+        unit = "A" if name[:1].upper() == "I" else "V"
+        return (
+            f"; with {name} as the only source this is {name} = {critical:.4g} {unit}"
+            f" (the deck has {value:.4g} {unit})"
+        )
+
+
+class RunawayError(ThermalRunawayError):
+    """A thermal runaway, with the numbers behind the message."""
+
+    def __init__(
+        self,
+        message: str,
+        hint: str,
+        diagnosis: Diagnosis | None,
+        location: Location | None = None,
+    ) -> None:
+        super().__init__(message, location, hint)
+        self.diagnosis = diagnosis
+
+
+def driven_text(text: str) -> str:
+    """The emitted deck with every injected dissipation scaled by ``V(hw_drive)``."""
+    scaled = _POWER_LINE.sub(lambda m: f"{m[1]}V(hw_drive)*({m[2].rstrip()})", text)
+    return add_cards(scaled, ["Vhw_drive hw_drive 0 DC 0", ".global hw_drive", TIGHT])
+
+
+def add_cards(text: str, cards: list[str]) -> str:
+    """*text* with *cards* placed before its last ``.end`` (or at the end)."""
+    block = "".join(card + "\n" for card in cards)
+    ends = list(_END_LINE.finditer(text))
+    if not ends:
+        return text + ("" if text.endswith("\n") else "\n") + block
+    at = ends[-1].start()
+    return text[:at] + block + text[at:]
+
+
+def thermal_nodes(circuit: ThermalCircuit) -> list[str]:
+    """Hot-spot nodes of the parts, then shared nodes."""
+    return [p.node for p in circuit.parts] + [n.node for n in circuit.nodes]
+
+
+class Continuation:
+    """Sweeps of the drive on one prepared deck."""
+
+    def __init__(self, prepared: Prepared, options: RunOptions) -> None:
+        assert prepared.emitted.circuit is not None
+        self.prepared = prepared
+        self.options = replace(options, progress=None)
+        self.circuit = prepared.emitted.circuit
+        self.text = driven_text(prepared.text)
+        self.nodes = thermal_nodes(self.circuit)
+
+    def run(self, text: str, analyses: tuple[str, ...]) -> tuple[Plot, ...]:
+        from heatweave.run.runner import simulate
+
+        sim = simulate(replace(self.prepared, text=text, analyses=analyses, deck_analyses=False),
+                       self.options)  # fmt: skip
+        return tuple(p for p in sim.plots if p.kind == "dc")
+
+    def sweep(self, lo: float, step: float, count: int, start: FloatArray | None) -> Plot:
+        """Drive from *lo* in *count* steps of *step*, from thermal temperatures *start*."""
+        text = self.text
+        if start is not None:
+            sets = " ".join(f"V({n})={t:.12g}" for n, t in zip(self.nodes, start, strict=True))
+            text = add_cards(text, [f".nodeset {sets}"])
+        hi = lo + count * step
+        return self.run(text, (f"dc {DRIVE_SOURCE} {lo:.12g} {hi:.12g} {step:.12g}",))[-1]
+
+    def converged(
+        self, lo: float, step: float, count: int, start: FloatArray | None
+    ) -> Plot | None:
+        """The longest sweep from *lo* that ngspice finishes (bisection on its length)."""
+        try:
+            return self.sweep(lo, step, count, start)
+        except SimulatorError:
+            pass
+        good, bad, plot = -1, count, None
+        while bad - good > 1:
+            middle = (good + bad) // 2
+            try:
+                plot, good = self.sweep(lo, step, middle, start), middle
+            except SimulatorError:
+                bad = middle
+        return plot
+
+    def temperatures(self, plot: Plot) -> FloatArray:
+        """Thermal node temperatures, one row per node, one column per sweep point."""
+        return np.array([np.real(np.asarray(plot[f"v({n})"])) for n in self.nodes], dtype=float)
+
+
+def first_jump(temps: FloatArray) -> int | None:
+    """Index of the first sweep point that is off the branch (see the module docstring)."""
+    if not np.isfinite(temps[:, 0]).all():
+        return 0
+    previous = 0.0
+    for k in range(1, temps.shape[1]):
+        column = temps[:, k]
+        if not np.isfinite(column).all():
+            return k
+        step = float(np.max(np.abs(column - temps[:, k - 1])))
+        if k > 1 and step > JUMP_RATIO * max(previous, JUMP_FLOOR):
+            return k
+        previous = step
+    return None
+
+
+@dataclass(frozen=True, slots=True)
+class BranchEnd:
+    """The last steady state found on the branch, and whether the branch ran out."""
+
+    drive: float
+    temps: FloatArray  # thermal node temperatures there
+    lost: bool
+    full: FloatArray | None  # temperatures at full drive when the branch reached it
+    edge: int | None = None  # the part (index) whose model range ended the branch
+
+
+def first_outside(circuit: ThermalCircuit, temps: FloatArray) -> tuple[int, int] | None:
+    """``(sweep point, part)`` of the first point where a part's temperature lies outside
+    its model's range; ``None`` when none does, or when the sweep starts outside (the
+    ambient itself is then out of range: nothing to follow)."""
+    for k in range(temps.shape[1]):
+        for i, part in enumerate(circuit.parts):
+            found = part.model.valid_range if part.model is not None else None
+            if found is not None and float(temps[i, k]) not in found:
+                return None if k == 0 else (k, i)
+    return None
+
+
+def range_end(cont: Continuation, drive: FloatArray, temps: FloatArray, k: int,
+              part: int) -> BranchEnd:  # fmt: skip
+    """The branch end where *part* leaves its model's range between sweep points ``k - 1``
+    and ``k``: swept again finely, then interpolated linearly to the range's end."""
+    plan = cont.circuit.parts[part]
+    assert plan.model is not None and plan.model.valid_range is not None
+    found = plan.model.valid_range
+    lo = float(drive[k - 1])
+    fine = float(drive[k] - drive[k - 1]) / FINE_STEPS
+    refined = cont.converged(lo, fine, FINE_STEPS, temps[:, k - 1])
+    if refined is not None:
+        ftemps = cont.temperatures(refined)
+        fdrive = np.real(np.asarray(refined.scale_values)).astype(float)
+        hit = first_outside(cont.circuit, ftemps)
+        if hit is not None and hit[1] == part and first_jump(ftemps[:, : hit[0] + 1]) is None:
+            drive, temps, k = fdrive, ftemps, hit[0]
+    a, b = temps[:, k - 1], temps[:, k]
+    bound = found.high if b[part] > found.high else found.low
+    share = (bound - a[part]) / (b[part] - a[part])
+    at = a + share * (b - a)
+    at[part] = bound
+    lam = float(drive[k - 1] + share * (drive[k] - drive[k - 1]))
+    return BranchEnd(lam, at, True, None, part)
+
+
+def follow(cont: Continuation) -> BranchEnd | None:
+    """Follow the steady state from no dissipation to full; ``None`` when even the
+    unheated circuit has no solution (the failure is electrical, not thermal)."""
+    step = 1.0 / COARSE_STEPS
+    plot = cont.converged(0.0, step, COARSE_STEPS, None)
+    if plot is None:
+        return None
+    temps = cont.temperatures(plot)
+    drive = np.real(np.asarray(plot.scale_values)).astype(float)
+    k = first_jump(temps)
+    outside = first_outside(cont.circuit, temps[:, : (temps.shape[1] if k is None else k)])
+    if outside is not None:
+        return range_end(cont, drive, temps, *outside)
+    reached = k is None and drive[-1] >= 1.0 - 1e-9
+    if reached:
+        from heatweave.run.runner import IMPLAUSIBLE_TEMPERATURE
+
+        if float(np.max(temps[:, -1])) <= IMPLAUSIBLE_TEMPERATURE:
+            return BranchEnd(1.0, temps[:, -1], False, temps[:, -1])
+        k = 1  # smooth but implausible: look for a fold inside the first step
+    last = (k if k is not None else temps.shape[1]) - 1
+    if last < 0:
+        return None
+    # Start one coarse step early: the first fine step has no step before it to compare.
+    back = max(last - 1, 0)
+    fine = step / FINE_STEPS
+    count = (last - back + 1) * FINE_STEPS
+    refined = cont.converged(float(drive[back]), fine, count, temps[:, back])
+    if refined is None:
+        return BranchEnd(float(drive[last]), temps[:, last], True, None)
+    ftemps = cont.temperatures(refined)
+    fdrive = np.real(np.asarray(refined.scale_values)).astype(float)
+    j = first_jump(ftemps)
+    if j is None and reached:
+        return BranchEnd(1.0, temps[:, -1], False, temps[:, -1])
+    end = (j if j is not None else ftemps.shape[1]) - 1
+    end = last_on_branch(ftemps, max(end, 0))
+    return BranchEnd(float(fdrive[end]), ftemps[:, end], True, None)
+
+
+def last_on_branch(temps: FloatArray, end: int) -> int:
+    """The last sweep point up to *end* that is still on the branch.
+
+    Approaching a fold the temperature steps grow without bound (T - T_fold goes as the
+    square root of the drive left); where they shrink again the solver has stalled just
+    past the fold, accepting points on the flat residual there.  The branch ends after its
+    largest step."""
+    if end < 2:
+        return end
+    steps = np.max(np.abs(np.diff(temps[:, : end + 1], axis=1)), axis=0)
+    return int(np.argmax(steps)) + 1
+
+
+def driving_point(circuit: ThermalCircuit) -> tuple[list[str], FloatArray]:
+    """Steady-state thermal impedances between all thermal nodes (K/W), ambient as ground."""
+    nodes = thermal_nodes(circuit)
+    where = {n: i for i, n in enumerate(nodes)}
+    g = np.zeros((len(nodes), len(nodes)))
+
+    def conductance(a: str, b: str, rth: float) -> None:
+        for x, y in ((a, b), (b, a)):
+            if x in where:
+                g[where[x], where[x]] += 1.0 / rth
+                if y in where:
+                    g[where[x], where[y]] -= 1.0 / rth
+
+    for part in circuit.parts:
+        conductance(part.node, part.to, part.network.total_rth)
+    for shared in circuit.nodes:
+        conductance(shared.node, shared.to, shared.rth)
+    for coupling in circuit.couplings:
+        conductance(coupling.a, coupling.b, coupling.rth)
+    inverse: FloatArray = np.linalg.inv(g).astype(np.float64)
+    return nodes, inverse
+
+
+def terminals(part: PartPlan, index: DeckIndex) -> tuple[str, str]:
+    """The two top-level node names of a resistor part, as ngspice names them."""
+    from heatweave.spice.hierarchy import global_names, top_level_node
+    from heatweave.spice.netlist import card_nodes
+
+    resolved = index.resolve(part.path)
+    assert resolved is not None
+    found = card_nodes(resolved.card, index)
+    globals_ = global_names(index) | {AMBIENT_NODE}
+    a, b = (top_level_node(resolved, n, globals_) for n in found[:2])
+    return a, b
+
+
+def _voltage(plot: Plot, node: str) -> FloatArray:
+    if node in ("0", "gnd"):
+        return np.zeros(len(np.asarray(plot.scale_values)))
+    return np.real(np.asarray(plot[f"v({node})"])).astype(float)
+
+
+def power_jacobian(cont: Continuation, index: DeckIndex, temps: FloatArray) -> FloatArray:
+    """``dP_i/dT_j`` (W/K) of the resistor parts with all part temperatures held fixed."""
+    parts = [p for p in cont.circuit.parts if p.model is not None]
+    fixed = {p.node: float(t) for p, t in zip(cont.circuit.parts, temps, strict=False)}
+    cards = [f"Vhw_fix_{k} {p.node} 0 DC {fixed[p.node]:.12g}" for k, p in enumerate(parts)]
+    analyses = tuple(
+        f"dc vhw_fix_{k} {fixed[p.node] - FD_STEP:.12g} {fixed[p.node] + FD_STEP:.12g} "
+        f"{FD_STEP:.12g}"
+        for k, p in enumerate(parts)
+    )
+    plots = cont.run(add_cards(cont.text, cards), analyses)
+    nodes = [terminals(p, index) for p in parts]
+    jac = np.zeros((len(parts), len(parts)))
+    for j, plot in enumerate(plots):
+        for i, part in enumerate(parts):
+            assert part.model is not None
+            t = np.full(3, fixed[part.node])
+            if i == j:
+                t = t + np.array([-FD_STEP, 0.0, FD_STEP])
+            drop = _voltage(plot, nodes[i][0]) - _voltage(plot, nodes[i][1])
+            power = drop * drop / part.model.resistance(t)
+            jac[i, j] = (power[2] - power[0]) / (2 * FD_STEP)
+    return jac
+
+
+def diagnose(cont: Continuation, index: DeckIndex, end: BranchEnd) -> Diagnosis | None:
+    """Loop gains at the branch end; ``None`` without a resistor part."""
+    parts = [p for p in cont.circuit.parts if p.model is not None]
+    if not parts:
+        return None
+    jac = power_jacobian(cont, index, end.temps)
+    names, z = driving_point(cont.circuit)
+    rows = [names.index(p.node) for p in parts]
+    # At a model's range end the question is the full dissipation's gain there (item 6).
+    share = 1.0 if end.edge is not None else end.drive
+    loop = share * z[np.ix_(rows, rows)] @ jac
+    own = np.diag(loop)
+    top = int(np.argmax(own))
+    model_range = None
+    if end.edge is not None:
+        edge = cont.circuit.parts[end.edge]
+        top = parts.index(edge)
+        assert edge.model is not None and edge.model.valid_range is not None
+        model_range = f"{edge.model_name} model's range, {edge.model.valid_range.describe()}"
+    circuit_gain = float(np.max(np.real(np.linalg.eigvals(loop))))
+    temperature = float(end.temps[names.index(parts[top].node)])
+    source = single_source(index)
+    scaled = None
+    if source is not None:
+        scaled = (source[0], source[1] * math.sqrt(end.drive), source[1])
+    return Diagnosis(parts[top].path, float(own[top]), circuit_gain, end.drive, temperature,
+                     scaled, model_range)  # fmt: skip
+
+
+def single_source(index: DeckIndex) -> tuple[str, float] | None:
+    """The deck's only independent source and its DC value, when every element is linear
+    (R, C, L, K, V, I, and E, F, G, H with a plain gain): then dissipation scales with the
+    square of that source."""
+    sources = []
+    for path in index.element_paths():
+        resolved = index.resolve(path)
+        if resolved is None:
+            return None
+        letter = resolved.card.head[:1].upper()
+        if letter not in LINEAR_LETTERS and not linear_controlled(resolved.card):
+            return None
+        if resolved.card.head[:1].upper() in "VI":
+            sources.append(resolved.card)
+    if len(sources) != 1:
+        return None
+    fields = sources[0].fields()[3:]
+    if fields and fields[0].lower() == "dc":
+        fields = fields[1:]
+    value = source_value(index, fields[0]) if fields else None
+    return None if value is None else (sources[0].head, value)
+
+
+def source_value(index: DeckIndex, text: str) -> float | None:
+    """A source's written value: a number, or ``{name}`` of a top-level ``.param`` that
+    assigns a plain number (the last such card wins, as in ngspice)."""
+    value = parse_number(text)
+    if value is not None or not (text.startswith("{") and text.endswith("}")):
+        return value
+    name = text[1:-1].strip().lower()
+    for node in index.project.deck.body:
+        if isinstance(node, Card) and node.name == ".param":
+            fields = node.fields()
+            for i in range(1, len(fields) - 2):
+                if fields[i].lower() == name and fields[i + 1] == "=":
+                    value = parse_number(fields[i + 2])
+    return value
+
+
+def linear_controlled(card: Card) -> bool:
+    """True for a controlled source written with a plain numeric gain (no POLY, VALUE,
+    TABLE or parameter expression)."""
+    fields = card.fields()
+    count = CONTROLLED_FIELDS.get(card.head[:1].upper())
+    return count is not None and len(fields) == count and parse_number(fields[-1]) is not None
+
+
+def growth(results: RunResults) -> str | None:
+    """When and where a transient's temperatures left physical values, in words."""
+    from heatweave.run.runner import IMPLAUSIBLE_TEMPERATURE
+
+    if results.time is None:
+        return None
+    first: tuple[float, str] | None = None
+    for part in results.parts:
+        series = part.temperature_series
+        if series is None:
+            continue
+        bad = np.flatnonzero(~np.isfinite(series) | (series > IMPLAUSIBLE_TEMPERATURE))
+        if bad.size == 0:
+            continue
+        at = float(results.time[bad[0]])
+        text = f"{part.path} passed {IMPLAUSIBLE_TEMPERATURE:g} degC at t = {at:.4g} s"
+        tmax = part.plan.tmax if part.plan is not None else None
+        over = np.flatnonzero(series > tmax) if tmax is not None else np.array([], dtype=int)
+        if over.size:
+            passed = f"{float(results.time[over[0]]):.4g}"
+            text += f" (its tmax {tmax:g} degC at t = {passed} s)"
+        if first is None or at < first[0]:
+            first = (at, text)
+    return first[1] if first else None
+
+
+def explain(
+    inputs: Inputs,
+    options: RunOptions,
+    prepared: Prepared,
+    failure: SimulatorError | None,
+    results: RunResults | None,
+) -> ThermalRunawayError | None:
+    """The runaway behind a failed or implausible run, or ``None`` when the failure has
+    another cause (the steady state exists all the way to full dissipation, or even the
+    unheated circuit fails)."""
+    if prepared.emitted.circuit is None or not prepared.emitted.circuit.parts:
+        return None
+    grew = growth(results) if results is not None else None
+    cont = Continuation(prepared, options)
+    try:
+        end = follow(cont)
+        diagnosis = diagnose(cont, inputs.index, end) if end is not None and end.lost else None
+    except SimulatorError:
+        end, diagnosis = None, None
+    if diagnosis is not None and diagnosis.model_range is not None:
+        if max(diagnosis.loop_gain, diagnosis.circuit_gain) < 1.0:
+            return None  # hot beyond the model's range, but no runaway: the run stands
+        plan = prepared.emitted.circuit.parts[end.edge] if end and end.edge is not None else None
+        text = f"{diagnosis.part} runs away thermally: " + diagnosis.sentence()
+        if grew:
+            text = f"thermal runaway in the transient: {grew}; {text}"
+        elif results is not None and plan is not None:
+            found = results.part(plan.path).temperature
+            text += (
+                f". The solution ngspice found instead, {found:.4g} degC, lies where the "
+                "formula does not hold"
+            )
+        return RunawayError(text, HINT, diagnosis, plan.location if plan else None)
+    if diagnosis is not None:
+        head = f"{diagnosis.part} runs away thermally: no steady state exists; "
+        if grew:
+            head = f"thermal runaway in the transient: {grew}; no steady state exists: "
+        return RunawayError(head + diagnosis.sentence(), HINT, diagnosis)
+    if grew:
+        tail = ""
+        if end is not None and end.full is not None:
+            hottest = float(np.max(end.full))
+            tail = f"; its steady state at full dissipation lies at {hottest:.4g} degC"
+        return RunawayError(
+            f"temperatures grow without a physical bound in the transient: {grew}{tail}",
+            HINT,
+            None,
+        )
+    return None

@@ -1,0 +1,1 @@
+"""settle: see DEVELOPERS.md."""

@@ -1,0 +1,458 @@
+"""``settle``: the thermal steady state of a periodically driven circuit, without
+simulating every switching period until the temperatures stop moving.
+
+Method: relaxation between the two time scales, the averaged-power (quasi-static)
+coupling of electrothermal co-simulation by simulator coupling: an electrical simulator and
+a thermal network solver exchange dissipated powers and temperatures until they agree.
+Reference, from memory (check before quoting): S. Wünsche, C. Clauß, P. Schwarz and
+F. Winkler, "Electro-thermal circuit simulation using simulator coupling", IEEE
+Transactions on VLSI Systems, 1997.  The electrical waveform settles within a few
+switching periods while the temperatures take many thermal time constants, so the two are
+solved in turn:
+
+1. hold every part at a temperature ``T_k`` (each annotated resistor becomes a plain
+   resistor at ``R(T_k)``) and simulate periods until two successive periods agree;
+2. take each part's dissipation averaged over the last period;
+3. solve the linear thermal network for its steady state under those powers;
+4. repeat from 1 with the new temperatures until the largest change is below ``tol``.
+
+The fixed point ``T = G(T)`` (``G``: temperatures -> averaged powers -> steady
+temperatures) is solved with Broyden's method (C. G. Broyden, "A class of methods for
+solving nonlinear simultaneous equations", Mathematics of Computation, 1965; from
+memory).  It begins as the plain relaxation step and turns into a secant (quasi-Newton)
+step, so loop gains close to 1, where plain relaxation crawls, take a handful of
+iterations.  A loop gain ``dG/dT`` of 1 or more means each kelvin of warming raises the
+dissipation enough to warm the part by a kelvin or more: there is no stable operating
+point, and ``settle`` reports thermal runaway.
+
+The ripple within a period is the periodic steady state of the thermal network driven by
+the instantaneous power of the last settled period (exact, see
+:func:`heatweave.settle.thermal.periodic`).  The method assumes that
+ripple is small enough that resistances do not change noticeably within a period.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+import numpy.typing as npt
+
+from heatweave.emit.emitter import Inputs, load_inputs
+from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, UsageError
+from heatweave.run.results import range_warning
+from heatweave.run.runner import IMPLAUSIBLE_TEMPERATURE, RunOptions
+from heatweave.settle.electrical import Cycle, Electrical
+from heatweave.settle.thermal import periodic
+from heatweave.thermal.circuit import PartPlan
+from heatweave.thermal.solver import Propagator, ThermalSystem, assemble
+
+FloatArray = npt.NDArray[np.float64]
+
+#: Temperature step (K) of the finite differences that measure a reported loop gain.
+GAIN_STEP = 0.1
+
+
+@dataclass(frozen=True, slots=True)
+class Step:
+    """What one iteration did, for progress lines and the JSON history."""
+
+    iteration: int
+    change: float  # largest temperature change (K)
+    hottest: str
+    temperature: float  # the hottest part's new temperature (degC)
+    periods: int
+    gain: float | None  # dominant loop gain dG/dT (signed), once two evaluations exist
+
+
+@dataclass(frozen=True, slots=True)
+class SettleOptions:
+    """How to settle: the drive period and the iteration's tolerances."""
+
+    period: float
+    periods: int = 4
+    tstep: float | None = None
+    tol: float = 0.01
+    max_iter: int = 30
+    wave_tol: float = 1e-4
+    max_periods: int = 256
+    envelope: float | None = None
+    envelope_points: int = 30
+    ambient: float | None = None
+    backend: str = "auto"
+    allow_control: bool = False
+    timeout: float | None = None
+    progress: Callable[[Step], None] | None = field(default=None, compare=False)
+
+    def run_options(self) -> RunOptions:
+        """The options of each electrical simulation."""
+        return RunOptions(
+            ambient=self.ambient,
+            backend=self.backend,
+            allow_control=self.allow_control,
+            timeout=self.timeout,
+        )
+
+
+@dataclass(frozen=True, slots=True)
+class PartSettled:
+    """One part in the settled periodic state."""
+
+    path: str
+    model: str | None
+    temperature: float  # cycle mean (degC)
+    peak_temperature: float
+    valley_temperature: float
+    power: float  # cycle mean (W)
+    peak_power: float
+    resistance: float | None  # at the cycle-mean temperature (ohm)
+    nominal_resistance: float | None
+    plan: PartPlan | None = field(default=None, repr=False, compare=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Envelope:
+    """The warm-up from cold with cycle-averaged powers: temperatures against time."""
+
+    time: FloatArray = field(repr=False)
+    parts: dict[str, FloatArray] = field(repr=False)
+    nodes: dict[str, FloatArray] = field(repr=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Settled:
+    """The result of :func:`settle`."""
+
+    period: float
+    ambient: float
+    parts: tuple[PartSettled, ...]
+    nodes: dict[str, float]
+    node_peaks: dict[str, float]
+    node_valleys: dict[str, float]
+    voltages: dict[str, float]
+    iterations: int
+    final_change: float
+    periods: int
+    gain: float | None
+    history: tuple[Step, ...]
+    findings: tuple[Finding, ...]
+    envelope: Envelope | None = None
+
+
+def _ambient(inputs: Inputs, options: SettleOptions) -> float:
+    if options.ambient is not None:
+        return options.ambient
+    if inputs.annotation.ambient.profile is not None:
+        raise UsageError(
+            "settle needs a fixed ambient temperature; the annotation gives a profile",
+            hint="pass --ambient DEGC for the temperature to settle at",
+        )
+    return inputs.annotation.ambient.temperature
+
+
+def check_options(options: SettleOptions) -> None:
+    """Refuse option values the method cannot use."""
+    if not options.period > 0:
+        raise UsageError("--period must be greater than zero", hint="e.g. --period 1m")
+    if options.periods < 2:
+        raise UsageError(
+            "--periods must be at least 2", hint="two periods are needed to see them repeat"
+        )
+    if options.tstep is not None and not 0 < options.tstep < options.period:
+        raise UsageError(
+            "--tstep must be positive and shorter than --period",
+            hint="leave it out for period/400",
+        )
+    if not options.tol > 0:
+        raise UsageError("--tol must be greater than zero", hint="e.g. --tol 0.01 (kelvin)")
+    if options.max_iter < 1:
+        raise UsageError("--max-iter must be at least 1", hint="e.g. --max-iter 30")
+
+
+class _Loop:
+    """The fixed-point iteration over the resistor parts' temperatures (Broyden)."""
+
+    def __init__(self, electrical: Electrical, system: ThermalSystem, ambient: float,
+                 options: SettleOptions) -> None:  # fmt: skip
+        self.electrical = electrical
+        self.system = system
+        self.ambient = ambient
+        self.options = options
+        parts = electrical.circuit.parts
+        self.index = [k for k, p in enumerate(parts) if p.is_resistor]
+        self.names = [parts[k].path for k in self.index]
+        self.periods = options.periods
+        self.evaluations = 0
+
+    def evaluate(self, temps: FloatArray) -> tuple[Cycle, FloatArray]:
+        """Averaged powers at *temps* and the steady temperatures they give (all outputs)."""
+        limit = max(self.options.max_periods, self.periods)
+        cycle = self.electrical.cycle(list(temps), self.periods, limit)
+        self.periods = cycle.periods
+        self.evaluations += 1
+        return cycle, steady(self.system, cycle.mean_power, self.ambient)
+
+    def runaway(self, gain: FloatArray, temps: FloatArray, why: str) -> ThermalRunawayError:
+        """The error naming the part that carries the dominant loop gain."""
+        values, vectors = np.linalg.eig(gain)
+        k = int(np.argmax(values.real))
+        part = int(np.argmax(np.abs(vectors[:, k])))
+        plan = self.electrical.circuit.parts[self.index[part]]
+        return ThermalRunawayError(
+            f"thermal runaway: {plan.path} has loop gain {values[k].real:.3f} "
+            f"(at {temps[part]:.1f} degC): {why}",
+            plan.location,
+            "lower the drive, voltage or duty, improve its thermal path (smaller rth), or "
+            "choose a part whose resistance changes less with temperature",
+        )
+
+    def bounds(self) -> tuple[FloatArray, FloatArray]:
+        """Per resistor part, the temperatures the iteration may try: its model's range
+        (where the formula holds), else up to :data:`IMPLAUSIBLE_TEMPERATURE`."""
+        lo, hi = [], []
+        for k in self.index:
+            model = self.electrical.circuit.parts[k].model
+            found = model.valid_range if model is not None else None
+            lo.append(found.low if found else -273.15)
+            hi.append(min(found.high if found else math.inf, IMPLAUSIBLE_TEMPERATURE))
+        return np.array(lo), np.array(hi)
+
+    def measured_gain(self, temps: FloatArray, out: FloatArray) -> FloatArray:
+        """``dG/dT`` at *temps* (where ``G`` gave *out*) by backward differences of
+        :data:`GAIN_STEP`, one evaluation per part: the loop gain where it is reported,
+        not the secant estimate of the iteration so far."""
+        n = len(self.index)
+        gain = np.zeros((n, n))
+        for j in range(n):
+            shifted = temps.copy()
+            shifted[j] -= GAIN_STEP
+            _, lower = self.evaluate(shifted)
+            gain[:, j] = (out[self.index] - lower[self.index]) / GAIN_STEP
+        return gain
+
+    def run(self) -> tuple[Cycle, list[Step]]:
+        """Iterate from ambient until settled: the last period and every step taken.
+
+        Steps are kept inside :meth:`bounds`.  A part held at its bound whose heating
+        pushes it past the bound is examined there: with a loop gain of 1 or more it runs
+        away out of the range; below 1 (a hot part, not a runaway) a model range is left
+        open and the iteration goes on beyond it, reported by :func:`range_warnings`."""
+        n = len(self.index)
+        temps = np.full(n, self.ambient)
+        low, high = self.bounds()
+        steps: list[Step] = []
+        jac = -np.eye(n)  # Broyden's estimate of d(G(T) - T)/dT; -I = plain relaxation
+        last: tuple[FloatArray, FloatArray] | None = None
+        for iteration in range(1, self.options.max_iter + 1):
+            cycle, out = self.evaluate(temps)
+            residual = out[self.index] - temps
+            change = float(np.max(np.abs(residual), initial=0.0))
+            if last is not None:
+                step, moved = temps - last[0], residual - last[1]
+                norm = float(step @ step)
+                if norm > 0:
+                    jac = jac + np.outer(moved - jac @ step, step) / norm
+            gain = jac + np.eye(n) if last is not None else None
+            steps.append(self._step(iteration, change, out, gain))
+            if self.options.progress is not None:
+                self.options.progress(steps[-1])
+            pushed = (temps >= high) & (residual > 0) | (temps <= low) & (residual < 0)
+            if np.any(pushed):
+                # Held at a bound and pushed past it: judged by the gain measured there.
+                low, high = self.past_bound(temps, out, pushed, low, high)
+            elif gain is not None and n and float(np.max(np.linalg.eigvals(gain).real)) >= 1.0:
+                raise self.runaway(
+                    gain, temps, "each kelvin it warms raises its dissipation enough to warm "
+                    "it by a kelvin or more, so there is no stable operating point",
+                )  # fmt: skip
+            if change < self.options.tol:
+                return cycle, steps
+            last = (temps, residual)
+            proposed = temps - np.linalg.solve(jac, residual)
+            # Heating alone keeps every part above absolute zero: a step below it is a
+            # secant gone astray, so take the plain relaxation step instead.
+            proposed = proposed if float(np.min(proposed)) > -273.15 else out[self.index]
+            if not np.all(np.isfinite(proposed)):
+                raise self.runaway(
+                    self.measured_gain(temps, out), temps, "its temperature heads to "
+                    "values that are not numbers",
+                )  # fmt: skip
+            temps = np.clip(proposed, low, high)
+        raise ConvergenceError(
+            f"the temperatures did not settle within {self.options.max_iter} iterations "
+            f"(last change {steps[-1].change:.3g} K, tolerance {self.options.tol:g} K)",
+            hint="raise --max-iter, loosen --tol, or check the waveform repeats (--periods)",
+        )
+
+    def past_bound(self, temps: FloatArray, out: FloatArray, pushed: npt.NDArray[np.bool_],
+                   low: FloatArray, high: FloatArray) -> tuple[FloatArray, FloatArray]:  # fmt: skip
+        """Parts at their bound (*temps*) pushed past it: a runaway error when the loop
+        gain there is 1 or more, or at :data:`IMPLAUSIBLE_TEMPERATURE`; otherwise the
+        bounds with those parts' model ranges opened."""
+        gain = self.measured_gain(temps, out)
+        parts = self.electrical.circuit.parts
+        j = int(np.flatnonzero(pushed)[0])
+        model = parts[self.index[j]].model
+        found = model.valid_range if model is not None else None
+        at_range = found is not None and temps[j] in (found.low, found.high)
+        if float(np.max(np.linalg.eigvals(gain).real)) >= 1.0 and at_range:
+            assert found is not None
+            raise self.runaway(
+                gain, temps, f"there its {parts[self.index[j]].model_name} model's range ends "
+                f"({found.describe()}) and it still heats faster than its path cools it, so "
+                "no steady state exists inside that range",
+            )  # fmt: skip
+        if not at_range:
+            raise self.runaway(
+                gain, temps, f"its temperature heads beyond {IMPLAUSIBLE_TEMPERATURE:g} degC"
+            )
+        opened = pushed & ((temps == low) | (temps == high))
+        return np.where(opened, -273.15, low), np.where(opened, IMPLAUSIBLE_TEMPERATURE, high)
+
+    def _step(self, iteration: int, change: float, out: FloatArray,
+              gain: FloatArray | None) -> Step:  # fmt: skip
+        parts = self.electrical.circuit.parts
+        hottest = int(np.argmax(out[: len(parts)])) if parts else 0
+        rho = None
+        if gain is not None and gain.size:
+            values = np.linalg.eigvals(gain)
+            rho = float(values[int(np.argmax(np.abs(values)))].real)
+        return Step(
+            iteration, change, parts[hottest].path if parts else "",
+            float(out[hottest]) if parts else self.ambient, self.periods, rho,
+        )  # fmt: skip
+
+
+def settle(
+    deck_path: str,
+    annotation_path: str,
+    options: SettleOptions,
+    *,
+    inputs: Inputs | None = None,
+) -> Settled:
+    """The periodic electrothermal steady state of a deck driven with period
+    ``options.period`` (see the module docstring for the method)."""
+    check_options(options)
+    inputs = inputs or load_inputs(deck_path, annotation_path)
+    ambient = _ambient(inputs, options)
+    tstep = options.tstep or options.period / 400.0
+    electrical = Electrical(inputs, options.run_options(), options.period, tstep, options.wave_tol)
+    circuit = electrical.circuit
+    system = assemble(circuit)
+    loop = _Loop(electrical, system, ambient, options)
+    cycle, steps = loop.run()
+    ripple = periodic(system, cycle.time, cycle.power, ambient)
+    parts = []
+    for k, plan in enumerate(circuit.parts):
+        model = plan.model
+        mean = float(ripple.mean[k])
+        parts.append(
+            PartSettled(
+                path=plan.path,
+                model=plan.model_name,
+                temperature=mean,
+                peak_temperature=float(ripple.peak[k]),
+                valley_temperature=float(ripple.valley[k]),
+                power=float(cycle.mean_power[k]),
+                peak_power=float(np.max(cycle.power[:, k])),
+                resistance=None if model is None else float(model.resistance(mean)),
+                nominal_resistance=None
+                if model is None
+                else float(model.resistance(getattr(model, "tref", 25.0))),
+                plan=plan,
+            )
+        )
+    n = len(circuit.parts)
+    labels = [node.label for node in circuit.nodes]
+    envelope = None
+    if options.envelope is not None:
+        envelope = warm_up(loop, options.envelope, options.envelope_points)
+    rho = steps[-1].gain
+    return Settled(
+        period=options.period,
+        ambient=ambient,
+        parts=tuple(parts),
+        nodes={label: float(ripple.mean[n + j]) for j, label in enumerate(labels)},
+        node_peaks={label: float(ripple.peak[n + j]) for j, label in enumerate(labels)},
+        node_valleys={label: float(ripple.valley[n + j]) for j, label in enumerate(labels)},
+        voltages=cycle.voltages,
+        iterations=len(steps),
+        final_change=steps[-1].change,
+        periods=cycle.periods,
+        gain=rho,
+        history=tuple(steps),
+        findings=(*electrical.findings, *range_warnings(parts)),
+        envelope=envelope,
+    )
+
+
+def range_warnings(parts: list[PartSettled]) -> list[Finding]:
+    """A warning for each part whose settled period leaves its model's range."""
+    found = []
+    for part in parts:
+        model = part.plan.model if part.plan is not None else None
+        span = model.valid_range if model is not None else None
+        if part.plan is None or span is None:
+            continue
+        if part.peak_temperature > span.high:
+            found.append(range_warning(part.plan, part.peak_temperature, span.high))
+        elif part.valley_temperature < span.low:
+            found.append(range_warning(part.plan, part.valley_temperature, span.low))
+    return found
+
+
+def steady(system: ThermalSystem, power: FloatArray, ambient: float) -> FloatArray:
+    """Temperatures (parts, then shared nodes) at rest under constant *power*."""
+    state = system.steady_state(power, ambient)
+    return system.temperatures(state, system.inputs(power, ambient))
+
+
+def envelope_times(system: ThermalSystem, stop: float, points: int) -> FloatArray:
+    """Times for the warm-up curve: 0, then geometric from a fifth of the fastest
+    thermal time constant (or stop/1e4) to *stop*."""
+    first = stop / 1e4
+    if system.size:
+        first = min(max(first, float(system.time_constants[0]) / 5.0), stop / 2.0)
+    return np.concatenate([[0.0], np.geomspace(first, stop, points)])
+
+
+def warm_up(loop: _Loop, stop: float, points: int) -> Envelope:
+    """The thermal transient from cold, powers re-evaluated as the temperatures change.
+
+    Each step holds the cycle-averaged powers constant and advances the network exactly;
+    the powers are those at the step's start and at its predicted end, averaged (Heun's
+    predictor-corrector, second order in the step), each from an electrical simulation of
+    the periods at those temperatures.
+    """
+    system, ambient = loop.system, loop.ambient
+    propagate = Propagator(system)
+    times = envelope_times(system, stop, points)
+    z = system.rest_state(ambient)
+    circuit = loop.electrical.circuit
+    n = len(circuit.parts)
+
+    def temperatures(state: FloatArray, power: FloatArray) -> FloatArray:
+        return system.temperatures(state, system.inputs(power, ambient))
+
+    def powers(state: FloatArray, guess: FloatArray) -> FloatArray:
+        cycle, _ = loop.evaluate(temperatures(state, guess)[loop.index])
+        return cycle.mean_power
+
+    def advance(state: FloatArray, power: FloatArray, h: float) -> FloatArray:
+        return propagate.advance(state, system.inputs(power, ambient), h)
+
+    p_now = powers(z, np.zeros(n))
+    rows = [temperatures(z, p_now)]
+    for h in np.diff(times):
+        p_end = powers(advance(z, p_now, float(h)), p_now)
+        z = advance(z, 0.5 * (p_now + p_end), float(h))
+        p_now = powers(z, p_end)
+        rows.append(temperatures(z, p_now))
+    table = np.array(rows)
+    return Envelope(
+        times,
+        {part.path: table[:, k] for k, part in enumerate(circuit.parts)},
+        {node.label: table[:, n + j] for j, node in enumerate(circuit.nodes)},
+    )

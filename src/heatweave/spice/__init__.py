@@ -1,0 +1,1 @@
+"""spice: see DEVELOPERS.md."""

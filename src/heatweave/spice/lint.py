@@ -1,0 +1,233 @@
+"""``lint``: the full grammar on every card, structural checks, and the annotation file.
+
+Findings are :class:`~heatweave.errors.Finding` objects, one a line when printed
+(``FILE:LINE:COL: error|warning: message``).  Errors are what ngspice would reject or what
+would make heatweave's output wrong; warnings are what is legal but likely a slip.
+"""
+
+from __future__ import annotations
+
+import re
+from collections import Counter
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+
+from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location
+from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node
+from heatweave.spice.grammar import CardSyntaxError, parse_card
+from heatweave.spice.hierarchy import (
+    DeckIndex,
+    Project,
+    Scope,
+    global_names,
+    load_project,
+    subckt_ports,
+    x_card_parts,
+)
+from heatweave.spice.syntax import CardSyntax, ElementSyntax
+
+
+def syntax_of(card: Card) -> CardSyntax:
+    """The card's typed syntax; a :class:`DeckSyntaxError` at the right place if it has none."""
+    logical = card.logical().text
+    try:
+        return parse_card(logical)
+    except CardSyntaxError as err:
+        raise DeckSyntaxError(err.message, card.location(err.offset), err.hint) from None
+
+
+def _where(node: Card | ControlBlock) -> Location | None:
+    if isinstance(node, Card):
+        return node.location()
+    return node.source.location(node.offset) if node.source else None
+
+
+def _structure(body: Iterable[Node], top: bool) -> Iterator[Finding]:
+    """Unclosed blocks, stray closers, orphan continuation lines."""
+    for node in body:
+        if isinstance(node, ControlBlock) and not node.closed:
+            yield Finding(
+                "error", ".control without .endc", _where(node), "close the block with .endc"
+            )
+        elif isinstance(node, Block):
+            if node.end is None:
+                yield Finding(
+                    "error",
+                    f".{node.kind} {node.label} is never closed",
+                    node.header.location(),
+                    "add .ends" if node.kind == "subckt" else "add .endl",
+                )
+            yield from _structure(node.body, top=False)
+        elif isinstance(node, Card):
+            name = node.name
+            if name in (".ends", ".endl"):
+                opener = ".subckt" if name == ".ends" else ".lib"
+                yield Finding(
+                    "error", f"{name} without {opener}", node.location(),
+                    f"remove it, or add the {opener} line it should close",
+                )  # fmt: skip
+            elif node.head.startswith("+"):
+                yield Finding(
+                    "error",
+                    "continuation line with no card to continue",
+                    node.location(),
+                    "a '+' line continues the card above it; the title line cannot continue",
+                )
+
+
+def _parse_all(decks: Iterable[Deck], index: DeckIndex) -> Iterator[Finding]:
+    """The grammar on every card, then the card rules of :mod:`heatweave.spice.lint_cards`."""
+    from heatweave.spice.lint_cards import card_problems
+
+    def model_of(name: str) -> Card | None:
+        return index.models.get(name)
+
+    for deck in decks:
+        for card in deck.cards():
+            if card.head.startswith("+"):
+                continue  # reported by the structure check
+            try:
+                syntax = syntax_of(card)
+            except DeckSyntaxError as err:
+                yield Finding("error", err.message, err.location, err.hint)
+                continue
+            for problem in card_problems(syntax, card.logical().text, model_of):
+                where = card.location(problem.offset)
+                yield Finding(problem.severity, problem.message, where, problem.hint)
+
+
+def _scopes(scope: Scope) -> Iterator[tuple[Scope, Block | None]]:
+    yield scope, None
+    for key, inner in scope.scopes.items():
+        for found, block in _scopes(inner):
+            yield found, block if block is not None else scope.subckts[key]
+
+
+# ``%vnam(V1)`` reads the current of source V1: a name, not a node (manual 12.1.1).
+_VNAM = re.compile(r"%vnam\s*\(\s*([^\s()]+)\s*\)", re.IGNORECASE)
+
+
+def _xspice_nodes(card: Card) -> list[str]:
+    """The nodes an XSPICE ``A`` card connects (``null`` ports and ``%vnam`` names aside)."""
+    syntax = syntax_of(card)
+    if not isinstance(syntax, ElementSyntax):
+        return []
+    names = {m.lower() for m in _VNAM.findall(card.logical().text)}
+    return [n.text for n in syntax.nodes if n.key not in names]
+
+
+def _connections(
+    index: DeckIndex, scope: Scope, block: Block | None, globals_: set[str]
+) -> Iterator[Finding]:
+    """Duplicate names, unknown subcircuits, nodes with a single connection (ground and
+    ``.global`` nodes aside: one net everywhere, connected in other scopes too)."""
+    from heatweave.spice.netlist import card_nodes
+
+    seen: dict[str, Card] = {}
+    counts: Counter[str] = Counter()
+    first: dict[str, Card] = {}
+    for card in scope.cards:
+        key = card.name
+        if key in seen:
+            yield Finding(
+                "error",
+                f"duplicate element name {card.head} (first at line {_line(seen[key])})",
+                card.location(),
+                "element names must be unique within a (sub)circuit; SPICE ignores case",
+            )
+        else:
+            seen[key] = card
+        if card.letter == "X":
+            _nodes, sub, _params = x_card_parts(card)
+            if index.lookup_subckt(sub, scope) is None:
+                yield Finding(
+                    "error",
+                    f"{card.head} uses unknown subcircuit {sub!r}",
+                    card.location(),
+                    "define it with .subckt, or include the file that does",
+                )
+        try:
+            nodes = _xspice_nodes(card) if card.letter == "A" else card_nodes(card, index)
+        except HeatweaveError:
+            continue
+        if card.letter == "K":
+            continue
+        for node in nodes:
+            low = node.lower()
+            counts[low] += 1
+            first.setdefault(low, card)
+    ports = {p.lower() for p in subckt_ports(block)} if block is not None else set()
+    for node, count in counts.items():
+        if count == 1 and node not in globals_ and node not in ports:
+            card = first[node]
+            yield Finding(
+                "warning",
+                f"node {node} has a single connection ({card.head})",
+                card.location(),
+                "connect it, or check the spelling of the node name",
+            )
+
+
+def _line(card: Card) -> int:
+    location = card.location()
+    return location.line if location else 0
+
+
+def lint_project(project: Project, annotation: str | None = None) -> list[Finding]:
+    """Every finding for a deck, its includes and (optionally) its annotation file."""
+    decks = [project.deck, *(inc.deck for inc in project.includes)]
+    index = DeckIndex(project)
+    findings = list(_parse_all(decks, index))
+    for deck in decks:
+        findings.extend(_structure(deck.body, top=True))
+    globals_ = global_names(index)
+    for scope, block in _scopes(index.top):
+        findings.extend(_connections(index, scope, block, globals_))
+    if annotation is not None:
+        findings.extend(_annotation_findings(project, index, annotation, findings))
+    return sorted(findings, key=_order)
+
+
+def _annotation_findings(
+    project: Project, index: DeckIndex, annotation: str, known: list[Finding]
+) -> list[Finding]:
+    """The annotation file read, bound, its limits resolved and the deck emitted, as
+    ``check`` and ``emit`` do it: whatever they would reject is an error here too (once:
+    a card the grammar already rejected is not reported again)."""
+    from heatweave.annotation import bind, load
+    from heatweave.checks.limits import resolve_limits
+    from heatweave.emit.emitter import Inputs, emit_inputs
+
+    found: list[Finding] = []
+    try:
+        loaded = load(annotation, deck_name=project.deck.path)
+        found.extend(loaded.warnings)
+        bound = bind(loaded, index)
+        resolve_limits(loaded, index)
+        inputs = Inputs(str(project.deck.path), annotation, project, index, loaded, bound)
+        found.extend(emit_inputs(inputs).findings)
+    except HeatweaveError as err:
+        error = Finding("error", err.message, err.location, err.hint)
+        seen = {(f.location, f.message) for f in known}
+        if (error.location, error.message) not in seen:
+            found.append(error)
+    return found
+
+
+def _order(finding: Finding) -> tuple[str, int, int]:
+    loc = finding.location
+    return (loc.file, loc.line, loc.column) if loc else ("", 0, 0)
+
+
+def lint_file(path: str, annotation: str | None = None) -> list[Finding]:
+    """Lint a deck on disk; an unreadable deck or include is itself a finding."""
+    try:
+        project = load_project(path)
+    except HeatweaveError as err:
+        return [Finding("error", err.message, err.location, err.hint)]
+    if annotation is None:
+        from heatweave.annotation import default_path
+
+        candidate = default_path(path)
+        annotation = str(candidate) if Path(candidate).is_file() else None
+    return lint_project(project, annotation)

@@ -1,0 +1,1 @@
+"""sweep: see DEVELOPERS.md."""

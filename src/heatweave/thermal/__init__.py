@@ -1,0 +1,1 @@
+"""thermal: see DEVELOPERS.md."""
