@@ -20,7 +20,8 @@ from pathlib import Path
 
 import numpy as np
 
-from heatweave.run.runner import RunOptions, run
+from heatweave.run.prepare import RunOptions
+from heatweave.run.runner import run
 from heatweave.settle.periodic import SettleOptions, settle
 
 PERIOD = 1e-4

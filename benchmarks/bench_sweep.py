@@ -23,7 +23,8 @@ from pathlib import Path
 
 from heatweave.cli.sweep_cmd import WORKER_MODULES
 from heatweave.emit.emitter import load_inputs
-from heatweave.run.runner import RunOptions, run
+from heatweave.run.prepare import RunOptions
+from heatweave.run.runner import run
 from heatweave.sweep.corners import SweepPlan, run_sweep
 from heatweave.sweep.executors import Executor, ProcessExecutor, SerialExecutor
 

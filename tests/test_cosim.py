@@ -24,7 +24,8 @@ from heatweave.cosim.method import Transient, choose_method, source_time_scale
 from heatweave.cosim.windows import window_power
 from heatweave.errors import UsageError
 from heatweave.networks import Foster, NetworkForm, Single
-from heatweave.run.runner import RunOptions, run
+from heatweave.run.prepare import RunOptions
+from heatweave.run.runner import run
 from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, SharedNode, ThermalCircuit
 
 FIXTURES = Path(__file__).parent / "fixtures" / "cosim"

@@ -18,7 +18,8 @@ from heatweave.emit.emitter import emit_files, emit_inputs, load_inputs
 from heatweave.emit.sections import stale_reason
 from heatweave.errors import EmitError, SimulatorError
 from heatweave.run import results
-from heatweave.run.runner import RunOptions, run
+from heatweave.run.prepare import RunOptions
+from heatweave.run.runner import run
 from heatweave.simulators import get_simulator
 from heatweave.spice.reader import read
 

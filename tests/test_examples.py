@@ -38,8 +38,9 @@ from heatweave.annotation import load
 from heatweave.cli import main
 from heatweave.emit.emitter import Inputs, load_inputs
 from heatweave.quantities import parse_number
+from heatweave.run.prepare import RunOptions
 from heatweave.run.results import main_plot
-from heatweave.run.runner import RunOptions, RunOutcome, run, run_baseline
+from heatweave.run.runner import RunOutcome, run, run_baseline
 from heatweave.settle.periodic import SettleOptions, settle
 
 DECKS = Path(__file__).resolve().parent.parent / "decks"

@@ -7,8 +7,8 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
+from heatweave.checks.lint import lint_file
 from heatweave.cli.lint_cmd import lint
-from heatweave.spice.lint import lint_file
 
 FIXTURES = Path(__file__).parent / "fixtures" / "lint"
 

@@ -16,9 +16,9 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
+from heatweave.checks.lint import lint_file
 from heatweave.cli.lint_cmd import lint
 from heatweave.simulators.rawfile import read_raw
-from heatweave.spice.lint import lint_file
 
 pytestmark = pytest.mark.skipif(shutil.which("ngspice") is None, reason="needs ngspice")
 

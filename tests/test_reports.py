@@ -26,7 +26,8 @@ from scipy.optimize import brentq
 from heatweave.annotation.ratings import derated_power, margins, worst_instant
 from heatweave.emit.emitter import load_inputs
 from heatweave.reports import RunReport, build_report, csv_report, json_report, plot
-from heatweave.run.runner import RunOptions, run
+from heatweave.run.prepare import RunOptions
+from heatweave.run.runner import run
 
 pytestmark = pytest.mark.ngspice
 

@@ -27,7 +27,8 @@ from scipy.integrate import solve_ivp
 from heatweave.cli import main
 from heatweave.errors import EXIT_BAD_INPUT, EXIT_THERMAL_RUNAWAY, ThermalRunawayError
 from heatweave.networks import Cauer, Foster, NetworkForm
-from heatweave.run.runner import RunOptions, run
+from heatweave.run.prepare import RunOptions
+from heatweave.run.runner import run
 from heatweave.settle.periodic import SettleOptions, settle
 from heatweave.settle.thermal import periodic
 from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit

@@ -58,13 +58,14 @@ def check(
     from heatweave.emit.emitter import load_inputs
     from heatweave.errors import HeatweaveError
     from heatweave.run import runner
+    from heatweave.run.prepare import RunOptions
 
     chosen = annotation_for(deck, annotations)
     started = time.monotonic()
     try:
         inputs = load_inputs(deck, chosen)
         signals = checks.resolve_limits(inputs.annotation, inputs.index)
-        options = runner.RunOptions(
+        options = RunOptions(
             analyses=analyses_of(op, tran), ambient=ambient, backend=backend,
             allow_control=allow_control,
         )  # fmt: skip

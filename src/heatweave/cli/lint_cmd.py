@@ -29,7 +29,7 @@ def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool) -> 
     a line as FILE:LINE:COL: error|warning: message, and exits with status 1 when there is
     any error (2 for unusable options).
     """
-    from heatweave.spice.lint import lint_file
+    from heatweave.checks.lint import lint_file
 
     if annotations is not None and len(decks) > 1:
         raise UsageError(

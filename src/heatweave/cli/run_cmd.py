@@ -158,7 +158,7 @@ def run(
     from heatweave.emit.emitter import load_inputs
     from heatweave.files import write_atomic
     from heatweave.reports import build_report
-    from heatweave.run.runner import RunOptions
+    from heatweave.run.prepare import RunOptions
     from heatweave.run.runner import run as run_deck
 
     analyses = analyses_of(op, tran)
@@ -183,7 +183,7 @@ def run(
     else:
         from heatweave.cosim import run_auto
         from heatweave.reports.model import report_of
-        from heatweave.run.runner import deck_analyses_of
+        from heatweave.run.prepare import deck_analyses_of
 
         fast = run_auto(deck, annotation_path, options, method=method, inputs=inputs)
         report_findings(list(fast.findings))

@@ -32,7 +32,7 @@ from heatweave.reports.junit import Case
 
 if TYPE_CHECKING:
     from heatweave.annotation import Annotation
-    from heatweave.run.runner import RunOptions
+    from heatweave.run.prepare import RunOptions
     from heatweave.sweep.corners import SweepPlan, SweepResult
 
 #: What every worker imports: loaded once by the fork server, then shared by the workers.
@@ -169,7 +169,7 @@ def sweep(
     --check, violated a limit, and when all failed the status of the first corner's error
     (3, 4, 7, ...).
     """  # fmt: skip
-    from heatweave.run.runner import RunOptions
+    from heatweave.run.prepare import RunOptions
     from heatweave.sweep.corners import SweepPlan
     from heatweave.sweep.grid import parse_assignment, parse_range
 
@@ -246,8 +246,8 @@ def _report(
     """Warnings, the reports asked for, the table and the limit lines; then exit."""
     from heatweave.files import write_atomic
     from heatweave.reports import sweep as sweep_report
-    from heatweave.sweep.corners import describe, exit_status
     from heatweave.sweep import limits as sweep_limits
+    from heatweave.sweep.corners import describe, exit_status
 
     # Warnings every corner repeats (a dropped .control block) are printed once.
     for text in dict.fromkeys(w for o in result.outcomes for w in o.warnings):

@@ -23,15 +23,15 @@ import numpy as np
 from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Inputs, emit_inputs, load_inputs
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
-from heatweave.run.results import PartResult, RunResults, device_name, range_findings
-from heatweave.run.runner import (
+from heatweave.run.prepare import (
     ANALYSIS_CARDS,
     RunOptions,
-    RunOutcome,
     deck_analyses_of,
     deck_folder,
     strip_control,
 )
+from heatweave.run.results import PartResult, RunResults, device_name, range_findings
+from heatweave.run.runner import RunOutcome
 from heatweave.spice.deck import Card, Node
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
 from heatweave.spice.netlist import card_nodes

@@ -19,8 +19,9 @@ from heatweave.annotation import AMBIENT
 from heatweave.annotation.ratings import Margins, margins, worst_instant
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import Finding
+from heatweave.run.prepare import deck_analyses_of
 from heatweave.run.results import FloatArray, PartResult, RunResults
-from heatweave.run.runner import RunOutcome, deck_analyses_of
+from heatweave.run.runner import RunOutcome
 
 PPM = 1e6
 

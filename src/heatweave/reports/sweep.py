@@ -44,7 +44,7 @@ from typing import Any
 from heatweave import __version__
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.table import WIDTH, cell_styles, grid
-from heatweave.run.runner import deck_analyses_of
+from heatweave.run.prepare import deck_analyses_of
 from heatweave.sweep.corners import PERCENTILES, CornerOutcome, SweepResult, describe, summary
 
 

@@ -14,6 +14,7 @@ using the same temperature models the emitted deck evaluates (so R(T) here is R(
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -271,3 +272,18 @@ def range_warning(plan: PartPlan, temperature: float, bound: float) -> Finding:
         "lower the drive or the thermal resistance, or describe the part over that span "
         "with a table model of measured points",
     )
+
+
+#: Above this (degC) a part temperature is no longer a physical answer but a runaway.
+IMPLAUSIBLE_TEMPERATURE = 1000.0
+
+
+def implausible(results: RunResults) -> bool:
+    """True when some part's temperature or resistance cannot be physical."""
+    for part in results.parts:
+        values = [part.temperature, part.hottest]
+        if any(not math.isfinite(v) or v > IMPLAUSIBLE_TEMPERATURE for v in values):
+            return True
+        if part.resistance is not None and not part.resistance > 0:
+            return True
+    return False

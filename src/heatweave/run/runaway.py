@@ -57,8 +57,8 @@ from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
+    from heatweave.run.prepare import Prepared, RunOptions
     from heatweave.run.results import RunResults
-    from heatweave.run.runner import Prepared, RunOptions
     from heatweave.simulators import Plot
     from heatweave.spice.hierarchy import DeckIndex
 
@@ -178,7 +178,7 @@ class Continuation:
         self.nodes = thermal_nodes(self.circuit)
 
     def run(self, text: str, analyses: tuple[str, ...]) -> tuple[Plot, ...]:
-        from heatweave.run.runner import simulate
+        from heatweave.run.prepare import simulate
 
         sim = simulate(replace(self.prepared, text=text, analyses=analyses, deck_analyses=False),
                        self.options)  # fmt: skip
@@ -294,7 +294,7 @@ def follow(cont: Continuation) -> BranchEnd | None:
         return range_end(cont, drive, temps, *outside)
     reached = k is None and drive[-1] >= 1.0 - 1e-9
     if reached:
-        from heatweave.run.runner import IMPLAUSIBLE_TEMPERATURE
+        from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE
 
         if float(np.max(temps[:, -1])) <= IMPLAUSIBLE_TEMPERATURE:
             return BranchEnd(1.0, temps[:, -1], False, temps[:, -1])
@@ -477,7 +477,7 @@ def linear_controlled(card: Card) -> bool:
 
 def growth(results: RunResults) -> str | None:
     """When and where a transient's temperatures left physical values, in words."""
-    from heatweave.run.runner import IMPLAUSIBLE_TEMPERATURE
+    from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE
 
     if results.time is None:
         return None

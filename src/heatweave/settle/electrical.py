@@ -23,8 +23,8 @@ import numpy.typing as npt
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import EmitError, Finding
 from heatweave.quantities import format_number
+from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate
 from heatweave.run.results import RunResults, extract
-from heatweave.run.runner import Prepared, RunOptions, prepare, simulate
 from heatweave.thermal.circuit import PREFIX, PartPlan, ThermalCircuit, safe
 
 FloatArray = npt.NDArray[np.float64]

@@ -42,8 +42,8 @@ import numpy.typing as npt
 
 from heatweave.emit.emitter import Inputs, load_inputs
 from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, UsageError
-from heatweave.run.results import range_warning
-from heatweave.run.runner import IMPLAUSIBLE_TEMPERATURE, RunOptions
+from heatweave.run.prepare import RunOptions
+from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, range_warning
 from heatweave.settle.electrical import Cycle, Electrical
 from heatweave.settle.thermal import periodic
 from heatweave.thermal.circuit import PartPlan

@@ -13,6 +13,8 @@ import importlib.resources
 from pathlib import Path
 from typing import TYPE_CHECKING, cast
 
+from heatweave.errors import DeckSyntaxError
+from heatweave.spice.deck import Card
 from heatweave.spice.syntax import Call, CardSyntax, Token, Value
 
 if TYPE_CHECKING:  # lark is imported on first use, so importing this module stays cheap
@@ -200,3 +202,12 @@ def _unclosed(text: str, opening: str, closing: str) -> int:
         elif depth == 0 and ch == closing and stack:
             stack.pop()
     return stack[0] if stack else len(text.rstrip())
+
+
+def syntax_of(card: Card) -> CardSyntax:
+    """The card's typed syntax; a :class:`DeckSyntaxError` at the right place if it has none."""
+    logical = card.logical().text
+    try:
+        return parse_card(logical)
+    except CardSyntaxError as err:
+        raise DeckSyntaxError(err.message, card.location(err.offset), err.hint) from None

@@ -1,4 +1,4 @@
-"""``lint``: the full grammar on every card, structural checks, and the annotation file.
+"""Lint of a plain deck: the full grammar on every card and structural checks.
 
 Findings are :class:`~heatweave.errors.Finding` objects, one a line when printed
 (``FILE:LINE:COL: error|warning: message``).  Errors are what ngspice would reject or what
@@ -10,30 +10,19 @@ from __future__ import annotations
 import re
 from collections import Counter
 from collections.abc import Iterable, Iterator
-from pathlib import Path
 
 from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node
-from heatweave.spice.grammar import CardSyntaxError, parse_card
+from heatweave.spice.grammar import syntax_of
 from heatweave.spice.hierarchy import (
     DeckIndex,
     Project,
     Scope,
     global_names,
-    load_project,
     subckt_ports,
     x_card_parts,
 )
-from heatweave.spice.syntax import CardSyntax, ElementSyntax
-
-
-def syntax_of(card: Card) -> CardSyntax:
-    """The card's typed syntax; a :class:`DeckSyntaxError` at the right place if it has none."""
-    logical = card.logical().text
-    try:
-        return parse_card(logical)
-    except CardSyntaxError as err:
-        raise DeckSyntaxError(err.message, card.location(err.offset), err.hint) from None
+from heatweave.spice.syntax import ElementSyntax
 
 
 def _where(node: Card | ControlBlock) -> Location | None:
@@ -173,61 +162,19 @@ def _line(card: Card) -> int:
     return location.line if location else 0
 
 
-def lint_project(project: Project, annotation: str | None = None) -> list[Finding]:
-    """Every finding for a deck, its includes and (optionally) its annotation file."""
+def lint_project(project: Project, index: DeckIndex | None = None) -> list[Finding]:
+    """Every finding for a deck and its includes, in file and line order."""
     decks = [project.deck, *(inc.deck for inc in project.includes)]
-    index = DeckIndex(project)
+    index = index or DeckIndex(project)
     findings = list(_parse_all(decks, index))
     for deck in decks:
         findings.extend(_structure(deck.body, top=True))
     globals_ = global_names(index)
     for scope, block in _scopes(index.top):
         findings.extend(_connections(index, scope, block, globals_))
-    if annotation is not None:
-        findings.extend(_annotation_findings(project, index, annotation, findings))
-    return sorted(findings, key=_order)
+    return sorted(findings, key=order)
 
 
-def _annotation_findings(
-    project: Project, index: DeckIndex, annotation: str, known: list[Finding]
-) -> list[Finding]:
-    """The annotation file read, bound, its limits resolved and the deck emitted, as
-    ``check`` and ``emit`` do it: whatever they would reject is an error here too (once:
-    a card the grammar already rejected is not reported again)."""
-    from heatweave.annotation import bind, load
-    from heatweave.checks.limits import resolve_limits
-    from heatweave.emit.emitter import Inputs, emit_inputs
-
-    found: list[Finding] = []
-    try:
-        loaded = load(annotation, deck_name=project.deck.path)
-        found.extend(loaded.warnings)
-        bound = bind(loaded, index)
-        resolve_limits(loaded, index)
-        inputs = Inputs(str(project.deck.path), annotation, project, index, loaded, bound)
-        found.extend(emit_inputs(inputs).findings)
-    except HeatweaveError as err:
-        error = Finding("error", err.message, err.location, err.hint)
-        seen = {(f.location, f.message) for f in known}
-        if (error.location, error.message) not in seen:
-            found.append(error)
-    return found
-
-
-def _order(finding: Finding) -> tuple[str, int, int]:
+def order(finding: Finding) -> tuple[str, int, int]:
     loc = finding.location
     return (loc.file, loc.line, loc.column) if loc else ("", 0, 0)
-
-
-def lint_file(path: str, annotation: str | None = None) -> list[Finding]:
-    """Lint a deck on disk; an unreadable deck or include is itself a finding."""
-    try:
-        project = load_project(path)
-    except HeatweaveError as err:
-        return [Finding("error", err.message, err.location, err.hint)]
-    if annotation is None:
-        from heatweave.annotation import default_path
-
-        candidate = default_path(path)
-        annotation = str(candidate) if Path(candidate).is_file() else None
-    return lint_project(project, annotation)

@@ -37,7 +37,7 @@ from heatweave.annotation import Annotation, sample
 from heatweave.checks.limits import LimitResult, Signal
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import EXIT_CHECK_FAILED, EXIT_OK, HeatweaveError
-from heatweave.run.runner import RunOptions, deck_folder
+from heatweave.run.prepare import RunOptions, deck_folder
 from heatweave.sweep.executors import Executor
 from heatweave.sweep.grid import check_params, with_params
 

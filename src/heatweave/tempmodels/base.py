@@ -7,7 +7,6 @@ generated from these rows, so a key documented in one place is checked in the ot
 
 from __future__ import annotations
 
-import math
 from abc import ABC, abstractmethod
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
@@ -189,10 +188,3 @@ def _apply(func: object, t_c: float | FloatArray) -> float | FloatArray:
 def paren(expr: str) -> str:
     """*expr* in parentheses, so it can be used as an operand."""
     return f"({expr})"
-
-
-def check_positive(name: str, value: float) -> float:
-    """*value* if it is a finite positive number, else ValueError naming *name*."""
-    if not (math.isfinite(value) and value > 0):
-        raise ValueError(f"{name} must be a positive number, not {value!r}")
-    return value

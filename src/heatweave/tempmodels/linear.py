@@ -10,7 +10,6 @@ from dataclasses import dataclass, replace
 from typing import ClassVar, Self
 
 from heatweave.quantities import format_number as fmt
-from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     FloatArray,
     NumberFormat,
@@ -23,6 +22,7 @@ from heatweave.tempmodels.base import (
     pick,
     written,
 )
+from heatweave.tempmodels.registry import register
 
 TC1 = (
     ParamSpec("tc1", "1/K", "first-order temperature coefficient", group="tc1", example="5e-5"),

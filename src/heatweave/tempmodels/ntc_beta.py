@@ -13,7 +13,6 @@ from typing import ClassVar, Self
 import numpy as np
 
 from heatweave.quantities import format_number as fmt
-from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     KELVIN_OFFSET,
     FloatArray,
@@ -26,6 +25,7 @@ from heatweave.tempmodels.base import (
     paren,
     written,
 )
+from heatweave.tempmodels.registry import register
 
 
 @register

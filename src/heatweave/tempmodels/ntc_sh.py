@@ -18,7 +18,6 @@ from typing import ClassVar, Self
 import numpy as np
 
 from heatweave.quantities import format_number as fmt
-from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     KELVIN_OFFSET,
     FloatArray,
@@ -31,6 +30,7 @@ from heatweave.tempmodels.base import (
     paren,
     written,
 )
+from heatweave.tempmodels.registry import register
 
 
 @register

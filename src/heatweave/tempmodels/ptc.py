@@ -22,7 +22,6 @@ from typing import ClassVar, Self
 import numpy as np
 
 from heatweave.quantities import format_number as fmt
-from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     FloatArray,
     NumberFormat,
@@ -34,6 +33,7 @@ from heatweave.tempmodels.base import (
     paren,
     written,
 )
+from heatweave.tempmodels.registry import register
 
 EXP_CLAMP = 200.0
 DEFAULT_RATIO = 1e4

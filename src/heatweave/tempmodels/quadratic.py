@@ -9,9 +9,9 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 from typing import ClassVar
 
-from heatweave.tempmodels import register
 from heatweave.tempmodels.base import ParamSpec, ValidRange
 from heatweave.tempmodels.linear import TC1, TC2, Polynomial
+from heatweave.tempmodels.registry import register
 
 
 @register

@@ -19,7 +19,6 @@ from typing import ClassVar, Self
 import numpy as np
 
 from heatweave.quantities import format_number as fmt
-from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     FloatArray,
     NumberFormat,
@@ -32,6 +31,7 @@ from heatweave.tempmodels.base import (
     pick,
     written,
 )
+from heatweave.tempmodels.registry import register
 
 IEC_A = 3.9083e-3
 IEC_B = -5.775e-7

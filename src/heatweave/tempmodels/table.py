@@ -17,7 +17,6 @@ from typing import ClassVar, Self
 import numpy as np
 
 from heatweave.quantities import format_number as fmt
-from heatweave.tempmodels import register
 from heatweave.tempmodels.base import (
     FloatArray,
     NumberFormat,
@@ -27,6 +26,7 @@ from heatweave.tempmodels.base import (
     ValidRange,
     paren,
 )
+from heatweave.tempmodels.registry import register
 
 
 @register

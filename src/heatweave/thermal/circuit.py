@@ -20,6 +20,7 @@ from heatweave.annotation import AMBIENT, Annotation, BoundPart, NetworkSpec
 from heatweave.bulk import fast_init, paused_gc
 from heatweave.errors import AnnotationError, EmitError, Finding, Location
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
+from heatweave.spice.grammar import syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Resolved
 from heatweave.tempmodels.base import TempModel
 
@@ -178,8 +179,6 @@ def build_circuit(
             card = found.card
             simple = simple_resistor(card) if item.kind == "R" else None
             if simple is None:
-                from heatweave.spice.lint import syntax_of  # the grammar: only for other cards
-
                 syntax_of(card)  # a malformed card is reported where it stands
                 terminals = tuple(card_nodes(card, index))
             else:

@@ -1,0 +1,51 @@
+"""``lint`` with the annotation file: the plain deck's findings plus what ``check`` and
+``emit`` would reject in the annotation (read, bound, limits resolved, deck emitted)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from heatweave.annotation import bind, default_path, load
+from heatweave.checks.limits import resolve_limits
+from heatweave.emit.emitter import Inputs, emit_inputs
+from heatweave.errors import Finding, HeatweaveError
+from heatweave.spice.hierarchy import DeckIndex, Project, load_project
+from heatweave.spice.lint import lint_project, order
+
+
+def annotation_findings(
+    project: Project, index: DeckIndex, annotation: str, known: list[Finding]
+) -> list[Finding]:
+    """Whatever ``check`` and ``emit`` would reject is an error here too (once: a card the
+    grammar already rejected is not reported again)."""
+    found: list[Finding] = []
+    try:
+        loaded = load(annotation, deck_name=project.deck.path)
+        found.extend(loaded.warnings)
+        bound = bind(loaded, index)
+        resolve_limits(loaded, index)
+        inputs = Inputs(str(project.deck.path), annotation, project, index, loaded, bound)
+        found.extend(emit_inputs(inputs).findings)
+    except HeatweaveError as err:
+        error = Finding("error", err.message, err.location, err.hint)
+        seen = {(f.location, f.message) for f in known}
+        if (error.location, error.message) not in seen:
+            found.append(error)
+    return found
+
+
+def lint_file(path: str, annotation: str | None = None) -> list[Finding]:
+    """Lint a deck on disk and its annotation file (the one beside it unless named); an
+    unreadable deck or include is itself a finding."""
+    try:
+        project = load_project(path)
+    except HeatweaveError as err:
+        return [Finding("error", err.message, err.location, err.hint)]
+    if annotation is None:
+        candidate = default_path(path)
+        annotation = str(candidate) if Path(candidate).is_file() else None
+    index = DeckIndex(project)
+    findings = lint_project(project, index)
+    if annotation is not None:
+        findings.extend(annotation_findings(project, index, annotation, findings))
+    return sorted(findings, key=order)
