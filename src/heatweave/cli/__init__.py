@@ -1,7 +1,7 @@
 """The ``heatweave`` command line: one click group, one module per command.
 
 Commands are loaded lazily so that ``heatweave --help`` and the fast ``emit`` path do not
-import numpy, matplotlib or PySpice when they do not need them.
+import numpy, matplotlib or the ngspice library when they do not need them.
 """
 
 from __future__ import annotations

@@ -11,28 +11,15 @@ its own state, so the electrical solution is never restarted or approximated.
 
 from __future__ import annotations
 
-import re
 import time as clock
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.simulators.base import timed_out
-from heatweave.simulators.naming import VOLTAGE, vector_name
-from heatweave.simulators.shared import (
-    ENGINE_LOCK,
-    SharedSimulator,
-    c_strings,
-    inside,
-    load_deck,
-    quiet_pyspice,
-    raise_failure,
-    stray_stderr,
-)
+from heatweave.simulators import Session, SharedSimulator
 from heatweave.thermal.circuit import PartPlan
 from heatweave.thermal.solver import Propagator, ThermalSystem
 
@@ -116,48 +103,18 @@ class Plan:
 
 
 def cosimulate(deck: str, cwd: str | Path, plan: Plan, timeout: float | None = None) -> Trace:
-    """Run the windowed co-simulation of *deck* (the plain circuit, no analysis cards)."""
-    engine = SharedSimulator().load()
-    with ENGINE_LOCK, quiet_pyspice():
-        lib = engine._ngspice_shared
-        try:
-            _command(lib, "destroy all")
-            engine.heatweave_log.clear()
-            stray: list[str] = []
-            with inside(Path(cwd)), stray_stderr(stray):
-                load_deck(engine, deck)
-                raise_failure(engine.heatweave_log)
-                loop = _Loop(engine, plan)
-                trace = loop.run(timeout)
-            _check(stray)
-            return trace
-        finally:
-            _command(lib, "destroy all")
-            _command(lib, "remcirc")
-            engine.heatweave_log.clear()
-
-
-#: What ngspice says when a ``stop when`` pauses the transient: not a failure.
-_PAUSED = re.compile(r"simulation interrupted|condition met: stop|pause requested", re.I)
-
-
-def _check(log: Sequence[str]) -> None:
-    """Raise the failure the log shows, ignoring the messages of a paused transient."""
-    raise_failure([line for line in log if not _PAUSED.search(line)])
-
-
-def _command(lib: Any, command: str) -> int:
-    return int(lib.ngSpice_Command(command.encode("utf-8")))
+    """Run the windowed co-simulation of *deck* (the plain circuit, no analysis cards);
+    *timeout* (s) bounds the whole run, windows included."""
+    with SharedSimulator().session(deck, cwd=cwd, timeout=timeout) as session:
+        return _Loop(session, plan).run()
 
 
 class _Loop:
     """One co-simulation's state between windows."""
 
-    def __init__(self, engine: Any, plan: Plan) -> None:
+    def __init__(self, session: Session, plan: Plan) -> None:
         parts, probes, system, tran = plan.parts, plan.probes, plan.system, plan.tran
-        self.engine = engine
-        self.lib = engine._ngspice_shared
-        self.ffi = engine.heatweave_ffi
+        self.session = session
         self.bank = ModelBank([p.model for p in parts if p.model is not None])
         self.probes = probes
         self.system = system
@@ -178,44 +135,30 @@ class _Loop:
         """``alter`` every resistor whose held value moved by more than *threshold*."""
         changed = np.abs(values - self.held) > threshold * np.abs(self.held)
         for j in np.flatnonzero(changed).tolist():
-            _command(self.lib, f"alter {self.probes[j].device} = {float(values[j])!r}")
+            self.session.alter(self.probes[j].device, float(values[j]))
         self.held = np.where(changed, values, self.held)
         self.clock.lap("alter")
 
     def tail(self, name: str, start: int, length: int | None = None) -> FloatArray:
-        """Samples *start* onwards of vector *name* (a view: copy before ngspice resumes)."""
-        info = self.lib.ngGet_Vec_Info(name.encode("utf-8"))
-        if info == self.ffi.NULL:
-            from heatweave.errors import SimulatorError
+        """Samples *start* onwards of vector *name* (*length* of them, or all)."""
+        return self.session.samples(name, start, None if length is None else start + length)
 
-            raise SimulatorError(f"ngspice has no vector {name!r} during the co-simulation")
-        total = int(info.v_length)
-        buffer = self.ffi.buffer(info.v_realdata, total * 8)
-        end = total if length is None else start + length
-        return np.frombuffer(buffer, dtype=np.float64)[start:end]
-
-    def run(self, timeout: float | None) -> Trace:
+    def run(self) -> Trace:
         system, n_parts, bank = self.system, self.bank.size, self.bank
-        deadline = None if timeout is None else clock.monotonic() + timeout
         z = system.rest_state(self.ambient)
         power = np.zeros(n_parts)
         temps = system.temperatures(z, system.inputs(power, self.ambient))
         self.hold(bank.resistance(temps[:n_parts]))
         times, rows, powers, ohms = [0.0], [temps], [power], [bank.resistance(temps[:n_parts])]
         ends = [0]
-        h, start, now, first = self.rule.first(), 0, 0.0, True
+        h, start, now = self.rule.first(), 0, 0.0
         gain = system.dc_gain[:n_parts, :n_parts]
         while now < self.tran.tstop * (1 - 1e-12):
             target = now + h
-            _command(self.lib, "delete all")
-            if target < self.tran.tstop * (1 - 1e-9):
-                _command(self.lib, f"stop when time > {target!r}")
-            _command(self.lib, self.tran.command() if first else "resume")
-            first = False
+            until = target if target < self.tran.tstop * (1 - 1e-9) else None
+            self.session.advance(self.tran.command(), until)
             self.clock.lap("ngspice")
-            _check(self.engine.heatweave_log)
-            self.engine.heatweave_log.clear()
-            t = self.tail("time", start).copy()
+            t = self.tail("time", start)
             if t.shape[0] < 2:
                 break
             drops = self._drops(start, t.shape[0])
@@ -243,8 +186,6 @@ class _Loop:
             mid = part_temps + rate * min(h, self.tran.tstop - now) / 2
             self.clock.lap("thermal")
             self.hold(bank.resistance(mid), self.rule.alter_threshold(gain, power))
-            if deadline is not None and clock.monotonic() > deadline:
-                raise timed_out(timeout)
         powers[0] = powers[1] if len(powers) > 1 else powers[0]
         voltages = self._voltages(np.array(ends))
         self.clock.lap("read")
@@ -255,7 +196,7 @@ class _Loop:
             np.array(powers).T,
             np.array(ohms).T,
             voltages,
-            "\n".join(self.engine.heatweave_log),
+            self.session.log,
             dict(self.clock.spent),
             stats,
         )
@@ -269,21 +210,10 @@ class _Loop:
 
     def _voltages(self, ends: npt.NDArray[np.intp]) -> dict[str, FloatArray]:
         """Every node voltage of the transient at the window ends."""
-        plot = self.ffi.string(self.lib.ngSpice_CurPlot()).decode()
         out: dict[str, FloatArray] = {}
-        for raw in c_strings(self.ffi, self.lib.ngSpice_AllVecs(plot.encode())):
-            info = self.lib.ngGet_Vec_Info(f"{plot}.{raw}".encode())
-            if int(info.v_type) != 3 or info.v_realdata == self.ffi.NULL:
-                continue
-            length = int(info.v_length)
-            values = np.frombuffer(self.ffi.buffer(info.v_realdata, length * 8), np.float64)
-            name = vector_name(raw, VOLTAGE)
-            if name.startswith("v(") and name.endswith(")"):
-                out[name[2:-1]] = values[np.minimum(ends, length - 1)].copy()
+        for name, values in self.session.node_voltages().items():
+            out[name] = values[np.minimum(ends, values.shape[0] - 1)].copy()
         return out
 
     def _stats(self) -> str:
-        before = len(self.engine.heatweave_log)
-        _command(self.lib, "rusage time totiter traniter tranpoints trantime")
-        lines = self.engine.heatweave_log[before:]
-        return "\n".join(line.strip() for line in lines if line.strip())
+        return self.session.stats()

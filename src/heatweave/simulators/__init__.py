@@ -1,9 +1,11 @@
 """Simulator back ends: run a prepared deck with ngspice and return immutable results.
 
-``get_simulator("shared")`` drives libngspice in this process (PySpice),
+``get_simulator("shared")`` drives libngspice in this process (our own ctypes binding of its
+documented C interface, :mod:`.libngspice`),
 ``get_simulator("batch")`` runs ``ngspice -b`` in a subprocess, and ``"auto"`` (the default)
 picks the shared library when it loads and the batch program otherwise.  Both return the
-same :class:`SimResult` for the same deck.
+same :class:`SimResult` for the same deck.  The co-simulation's pause/alter/resume is
+:meth:`Simulator.session` (shared library only).  Nothing outside this package touches ngspice.
 """
 
 from __future__ import annotations
@@ -12,7 +14,7 @@ import os
 
 from heatweave.errors import LibngspiceMissingError, UsageError
 
-from .base import Plot, Progress, SimResult, Simulator
+from .base import Plot, Progress, Session, SimResult, Simulator
 from .batch import BatchSimulator
 from .shared import SharedSimulator
 
@@ -23,6 +25,7 @@ __all__ = [
     "BatchSimulator",
     "Plot",
     "Progress",
+    "Session",
     "SharedSimulator",
     "SimResult",
     "Simulator",

@@ -15,7 +15,7 @@ import shutil
 import tempfile
 from abc import ABC, abstractmethod
 from collections.abc import Callable, Iterator, Mapping, Sequence
-from contextlib import contextmanager
+from contextlib import AbstractContextManager, contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
@@ -29,6 +29,7 @@ from heatweave.errors import SimulatorError, UsageError
 from .naming import vector_name
 
 Array = npt.NDArray[np.float64] | npt.NDArray[np.complex128]
+FloatArray = npt.NDArray[np.float64]
 Progress = Callable[[float], None]
 
 ANALYSIS_COMMANDS = frozenset(
@@ -188,3 +189,48 @@ class Simulator(ABC):
         ``progress(fraction)`` is called with the fraction done when the back end knows it.
         Raises :class:`heatweave.errors.SimulatorError` or one of its subclasses.
         """
+
+    def session(
+        self, deck: str, *, cwd: str | os.PathLike[str], timeout: float | None = None
+    ) -> AbstractContextManager[Session]:
+        """A :class:`Session` on *deck* (a plain circuit without analysis cards) whose
+        transient can be paused, altered and resumed: the co-simulation's way of driving
+        ngspice.  ``timeout`` bounds the whole session.  Back ends that cannot pause a
+        transient raise :class:`heatweave.errors.UsageError`.
+        """
+        raise UsageError(
+            f"the {self.name} back end cannot pause a transient",
+            hint="the co-simulation needs the ngspice shared library (--backend shared)",
+        )
+
+
+class Session(ABC):
+    """A loaded circuit whose transient runs in parts: :meth:`advance` to a pause,
+    :meth:`alter` element values, :meth:`advance` again (ngspice's ``resume``)."""
+
+    @abstractmethod
+    def advance(self, tran: str, until: float | None) -> None:
+        """Run the transient *tran* (``tran TSTEP TSTOP``; the first call starts it, later
+        ones resume it) until the first accepted time point past *until*, or to its end
+        when *until* is ``None``.  Raises the simulator's error, or a timeout."""
+
+    @abstractmethod
+    def alter(self, device: str, value: float) -> None:
+        """Set element *device*'s value (ngspice's ``alter``) while the transient pauses."""
+
+    @abstractmethod
+    def samples(self, name: str, start: int = 0, stop: int | None = None) -> FloatArray:
+        """Samples ``[start:stop]`` of vector *name* of the running transient (a copy)."""
+
+    @abstractmethod
+    def node_voltages(self) -> dict[str, FloatArray]:
+        """Every node voltage of the transient so far, by node name (a copy)."""
+
+    @abstractmethod
+    def stats(self) -> str:
+        """The simulator's own statistics of the run (ngspice's ``rusage``)."""
+
+    @property
+    @abstractmethod
+    def log(self) -> str:
+        """The simulator's output since the last pause."""

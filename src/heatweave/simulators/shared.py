@@ -1,22 +1,23 @@
-"""The shared back end: PySpice's ``NgSpiceShared`` driving libngspice inside this process.
+"""The shared back end: libngspice driven in this process through :mod:`.libngspice`.
 
 The library is found without the user setting paths: ``HEATWEAVE_LIBNGSPICE`` if set, else
 Debian's ``/usr/lib/x86_64-linux-gnu/libngspice.so.0``, else whatever
-:func:`ctypes.util.find_library` finds.  PySpice only looks for ``libngspice.so``, so its
-``LIBRARY_PATH`` is set before the one instance is created.
+:func:`ctypes.util.find_library` finds.
 
 libngspice keeps one state per process, so runs are serialised by a lock and every run ends
 with ``destroy all`` and ``remcirc``: the next deck starts from nothing.  ngspice's output
-arrives through the ``send_char`` callback and becomes the result's log; PySpice's logging
-(its version warning, its copies of ngspice's stderr) is silenced while we call it.
-Analyses run in ngspice's background thread (``bg_`` commands) so a timeout can halt them.
+arrives through the ``SendChar`` callback and becomes the result's log.  Analyses run in
+ngspice's background thread (``bg_`` commands) while this thread waits in short polls, so a
+timeout or a signal (Ctrl-C, SIGTERM) halts them and the run ends cleanly.
+
+:class:`SharedSession` is the co-simulation's way in: a loaded circuit whose transient runs
+to a pause, is altered, and resumes.
 """
 
 from __future__ import annotations
 
 import ctypes
 import ctypes.util
-import logging
 import os
 import re
 import sys
@@ -26,24 +27,28 @@ import time
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import ClassVar
 
 import numpy as np
 
 from heatweave import files
-from heatweave.errors import LibngspiceMissingError
+from heatweave.errors import LibngspiceMissingError, SimulatorError
 
 from . import diagnose
 from .base import (
     Array,
+    FloatArray,
     Plot,
     Progress,
+    Session,
     SimResult,
     Simulator,
+    check_analysis,
     command_script,
     timed_out,
     working_folder,
 )
+from .libngspice import MISSING_HINT, Library, open_library
 from .naming import (
     CURRENT,
     FREQUENCY,
@@ -57,18 +62,12 @@ from .naming import (
 
 ENV_LIBRARY = "HEATWEAVE_LIBNGSPICE"
 DEBIAN_LIBRARY = "/usr/lib/x86_64-linux-gnu/libngspice.so.0"
-MISSING_HINT = (
-    f"install it with 'apt-get install libngspice0-dev', set {ENV_LIBRARY} to the library's "
-    "path, or use the batch back end"
-)
 # ngspice's simulation_type enum (sharedspice.h): the ones naming.py distinguishes.
 _VECTOR_TYPES = {1: TIME, 2: FREQUENCY, 3: VOLTAGE, 4: CURRENT}
-_PERCENT = re.compile(r"(\d+(?:\.\d+)?)\s*%")
-_IDLE_GRACE = 1.0
-_POLL = 0.02
+#: What ngspice says when a ``stop when`` pauses the transient: not a failure.
+PAUSED = re.compile(r"simulation interrupted|condition met: stop|pause requested", re.I)
 
 ENGINE_LOCK = threading.RLock()
-_LOADED: dict[str, Any] = {}
 
 
 def resolve_library(explicit: str | os.PathLike[str] | None = None) -> str:
@@ -90,24 +89,6 @@ def resolve_library(explicit: str | os.PathLike[str] | None = None) -> str:
         f"the ngspice shared library was not found (looked for {', '.join(candidates)})",
         hint=MISSING_HINT,
     )
-
-
-@contextmanager
-def quiet_pyspice() -> Iterator[None]:
-    """PySpice's loggers off, so its warnings and ngspice echoes stay out of user output."""
-    loggers = [logging.getLogger("PySpice")] + [
-        logging.getLogger(name)
-        for name in list(logging.root.manager.loggerDict)
-        if name.startswith("PySpice.")
-    ]
-    previous = [logger.disabled for logger in loggers]
-    for logger in loggers:
-        logger.disabled = True
-    try:
-        yield
-    finally:
-        for logger, state in zip(loggers, previous, strict=True):
-            logger.disabled = state
 
 
 @contextmanager
@@ -150,71 +131,60 @@ def inside(folder: Path) -> Iterator[None]:
         os.chdir(before)
 
 
-def _engine(path: str) -> Any:
-    """The process's one PySpice ngspice instance for library *path*."""
-    if path in _LOADED:
-        return _LOADED[path]
+def raise_failure(log: Sequence[str]) -> None:
+    """Raise the error the log shows, if any."""
+    error = diagnose.failure(diagnose.log_lines("\n".join(log)))
+    if error is not None:
+        raise error
+
+
+def _finish(library: Library, command: str, deadline: float | None, timeout: float | None) -> None:
+    """Run *command* in ngspice's background thread and wait for it, halting it at
+    *deadline* or when a signal interrupts the wait."""
+    library.start(command)
     try:
-        ctypes.CDLL(path)
-    except OSError as exc:
-        raise LibngspiceMissingError(
-            f"the ngspice shared library {path} cannot be loaded: {exc}", hint=MISSING_HINT
-        ) from exc
-    if _LOADED:
-        raise LibngspiceMissingError(
-            f"another ngspice library is already loaded ({next(iter(_LOADED))})",
-            hint="use one library per process",
+        finished = library.wait(deadline)
+    except BaseException:
+        library.halt()
+        raise
+    if not finished:
+        library.halt()
+        raise timed_out(timeout)
+    if library.exited is not None:
+        status, library.exited = library.exited, None
+        raise SimulatorError(
+            f"ngspice stopped itself (exit status {status})",
+            hint="run the deck with --backend batch -v to see ngspice's own messages",
         )
-    try:
-        from PySpice.Spice.NgSpice.Shared import NgSpiceShared, ffi
-    except ImportError as exc:
-        raise LibngspiceMissingError(
-            f"PySpice is not installed: {exc}", hint="pip install PySpice"
-        ) from exc
 
-    class Engine(NgSpiceShared):  # type: ignore[misc]
-        """NgSpiceShared whose callbacks feed a log and a progress function."""
 
-        def __init__(self, **kwargs: Any) -> None:
-            # The callbacks fire during PySpice's own __init__ already.
-            self.heatweave_log: list[str] = []
-            self.heatweave_progress: Progress | None = None
-            self.heatweave_done = threading.Event()
-            self.heatweave_ffi = ffi
-            super().__init__(**kwargs)
+def _read_plots(library: Library) -> tuple[Plot, ...]:
+    """Every plot in memory except ``const``, oldest first, every vector copied out."""
+    plot_names = [name for name in library.plots() if name != "const"]
+    plot_names.reverse()
+    kinds = [kind_from_plot_name(name) for name in plot_names]
+    plots = []
+    for plot_name, kind, name in zip(plot_names, kinds, number_plots(kinds), strict=True):
+        vectors: dict[str, Array] = {}
+        scale = None
+        for raw in reversed(library.vector_names(plot_name)):
+            found = library.vector(f"{plot_name}.{raw}")
+            if found is None:
+                continue
+            vtype, values = _VECTOR_TYPES.get(found[0]), found[1]
+            if scale is None and kind != "op" and is_scale_name(raw, vtype):
+                scale = vector_name(raw, vtype, scale=True)
+                vectors[scale] = np.ascontiguousarray(values.real, dtype=np.float64)
+            else:
+                vectors[vector_name(raw, vtype)] = values
+        if scale is not None:
+            vectors = {scale: vectors[scale], **vectors}
+        plots.append(Plot(name=name, kind=kind, scale=scale, vectors=vectors))
+    return tuple(plots)
 
-        def send_char(self, message: str, ngspice_id: int) -> int:
-            _, _, text = message.partition(" ")
-            self.heatweave_log.append(text)
-            return 0
 
-        def send_stat(self, message: str, ngspice_id: int) -> int:
-            match = _PERCENT.search(message)
-            if match and self.heatweave_progress is not None:
-                self.heatweave_progress(min(float(match.group(1)) / 100.0, 1.0))
-            return 0
-
-        @staticmethod
-        def _background_thread_running(no_thread: bool, ngspice_id: int, user_data: Any) -> int:
-            # PySpice's own version returns None, which cffi reports on stderr.  The flag is
-            # false while the background thread runs, true once it has ended (manual
-            # 19.3.3.6, and what ngspice 39 does; 19.3.2.1 words it the other way round).
-            self = ffi.from_handle(user_data)
-            if no_thread:
-                self.heatweave_done.set()
-            return 0
-
-    Engine.LIBRARY_PATH = path.replace("{", "{{").replace("}", "}}")
-    with quiet_pyspice():
-        try:
-            engine = Engine(ngspice_id=0, send_data=False)
-        except (OSError, NameError) as exc:
-            raise LibngspiceMissingError(
-                f"the ngspice shared library {path} could not be started: {exc}",
-                hint=MISSING_HINT,
-            ) from exc
-    _LOADED[path] = engine
-    return engine
+def _deadline(timeout: float | None) -> float | None:
+    return None if timeout is None else time.monotonic() + timeout
 
 
 class SharedSimulator(Simulator):
@@ -225,10 +195,10 @@ class SharedSimulator(Simulator):
     def __init__(self, library: str | os.PathLike[str] | None = None) -> None:
         self.library = library
 
-    def load(self) -> Any:
+    def load(self) -> Library:
         """Load the library now (it is loaded once per process); raises when it cannot."""
         with ENGINE_LOCK:
-            return _engine(resolve_library(self.library))
+            return open_library(resolve_library(self.library))
 
     def run(
         self,
@@ -244,125 +214,111 @@ class SharedSimulator(Simulator):
     ) -> SimResult:
         """See :meth:`Simulator.run`; progress comes from ngspice's status callback."""
         script = command_script(analyses, deck_analyses, save)
-        with ENGINE_LOCK, working_folder(workdir) as folder, quiet_pyspice():
-            engine = self.load()
-            deadline = None if timeout is None else time.monotonic() + timeout
+        deadline = _deadline(timeout)
+        with ENGINE_LOCK, working_folder(workdir) as folder:
+            library = self.load()
             try:
-                _command(engine, "destroy all")
-                engine.heatweave_log.clear()
-                engine.heatweave_progress = progress
+                library.reset()
+                library.log.clear()
+                library.progress = progress
                 with inside(Path(cwd) if cwd is not None else folder):
-                    with stray_stderr(engine.heatweave_log):
-                        load_deck(engine, deck)
-                    raise_failure(engine.heatweave_log)
-                    with stray_stderr(engine.heatweave_log):
+                    with stray_stderr(library.log):
+                        library.load_circuit(deck.splitlines())
+                    raise_failure(library.log)
+                    with stray_stderr(library.log):
                         for command in script:
-                            _run_command(engine, command, deadline, timeout)
-                log = "\n".join(engine.heatweave_log)
-                raise_failure(engine.heatweave_log)
-                plots = _read_plots(engine)
+                            if command.startswith("save "):
+                                library.command(command)
+                            else:
+                                _finish(library, command, deadline, timeout)
+                log = "\n".join(library.log)
+                raise_failure(library.log)
+                plots = _read_plots(library)
             finally:
-                engine.heatweave_progress = None
-                _command(engine, "destroy all")
-                _command(engine, "remcirc")
-                engine.heatweave_log.clear()
+                library.progress = None
+                library.reset()
+                library.log.clear()
         if progress is not None:
             progress(1.0)
         return diagnose.result(plots, log, self.name)
 
-
-def raise_failure(log: list[str]) -> None:
-    """Raise the error the log shows, if any."""
-    error = diagnose.failure(diagnose.log_lines("\n".join(log)))
-    if error is not None:
-        raise error
-
-
-def _command(engine: Any, command: str) -> int:
-    return int(engine._ngspice_shared.ngSpice_Command(command.encode("utf-8")))
-
-
-def load_deck(engine: Any, deck: str) -> None:
-    """Hand *deck* to the shared library line by line (``ngSpice_Circ``)."""
-    ffi = engine.heatweave_ffi
-    keep = [ffi.new("char[]", files.encode(line)) for line in deck.splitlines()]
-    # ngSpice_Circ takes the deck as complete only at an ``.end`` line (a file does not need
-    # one); a second ``.end`` after the deck's own is harmless.
-    keep += [ffi.new("char[]", b".end"), ffi.NULL]
-    engine._ngspice_shared.ngSpice_Circ(ffi.new("char *[]", keep))
-
-
-def _run_command(engine: Any, command: str, deadline: float | None, timeout: float | None) -> None:
-    """One script command; analyses in ngspice's background thread, watched for *deadline*."""
-    if command.startswith("save "):
-        _command(engine, command)
-        return
-    engine.heatweave_done.clear()
-    _command(engine, "bg_" + command)
-    idle_since = None
-    lib = engine._ngspice_shared
-    while True:
-        finished = engine.heatweave_done.wait(_POLL)
-        if not lib.ngSpice_running():
-            if finished:
-                return
-        elif finished:
-            # The thread has said it ended (or an earlier one's word came late) while ngspice
-            # still runs: wait without the event, which would return at once and spin.
-            time.sleep(_POLL)
-        now = time.monotonic()
-        if deadline is not None and now > deadline:
-            _command(engine, "bg_halt")
-            engine.heatweave_done.wait(5.0)
-            raise timed_out(timeout)
-        if lib.ngSpice_running():
-            idle_since = None
-        elif idle_since is None:
-            idle_since = now
-        elif now - idle_since > _IDLE_GRACE:
-            return
+    @contextmanager
+    def session(
+        self, deck: str, *, cwd: str | os.PathLike[str], timeout: float | None = None
+    ) -> Iterator[Session]:
+        """See :meth:`Simulator.session`."""
+        with ENGINE_LOCK:
+            library = self.load()
+            stray: list[str] = []
+            try:
+                library.reset()
+                library.log.clear()
+                with inside(Path(cwd)), stray_stderr(stray):
+                    library.load_circuit(deck.splitlines())
+                    raise_failure(library.log)
+                    yield SharedSession(library, _deadline(timeout), timeout)
+                raise_failure([line for line in stray if not PAUSED.search(line)])
+            finally:
+                library.reset()
+                library.log.clear()
 
 
-def c_strings(ffi: Any, array: Any) -> list[str]:
-    """The strings of a NULL-terminated C array of ``char *`` (vector and plot names)."""
-    names = []
-    index = 0
-    while array[index] != ffi.NULL:
-        names.append(ffi.string(array[index]).decode("utf-8", "replace"))
-        index += 1
-    return names
+class SharedSession(Session):
+    """A circuit loaded in libngspice whose transient runs window by window."""
 
+    def __init__(self, library: Library, deadline: float | None, timeout: float | None) -> None:
+        self._library = library
+        self._deadline = deadline
+        self._timeout = timeout
+        self._started = False
 
-def _read_plots(engine: Any) -> tuple[Plot, ...]:
-    """Every plot in memory except ``const``, oldest first, every vector copied out."""
-    ffi = engine.heatweave_ffi
-    lib = engine._ngspice_shared
-    plot_names = [name for name in c_strings(ffi, lib.ngSpice_AllPlots()) if name != "const"]
-    plot_names.reverse()
-    kinds = [kind_from_plot_name(name) for name in plot_names]
-    plots = []
-    for plot_name, kind, name in zip(plot_names, kinds, number_plots(kinds), strict=True):
-        vectors: dict[str, Array] = {}
-        scale = None
-        for raw in reversed(c_strings(ffi, lib.ngSpice_AllVecs(plot_name.encode("utf-8")))):
-            info = lib.ngGet_Vec_Info(f"{plot_name}.{raw}".encode())
-            vtype = _VECTOR_TYPES.get(int(info.v_type))
-            values = _values(ffi, info)
-            if scale is None and kind != "op" and is_scale_name(raw, vtype):
-                scale = vector_name(raw, vtype, scale=True)
-                vectors[scale] = np.ascontiguousarray(values.real, dtype=np.float64)
-            else:
-                vectors[vector_name(raw, vtype)] = values
-        if scale is not None:
-            vectors = {scale: vectors[scale], **vectors}
-        plots.append(Plot(name=name, kind=kind, scale=scale, vectors=vectors))
-    return tuple(plots)
+    def advance(self, tran: str, until: float | None) -> None:
+        """See :meth:`Session.advance`."""
+        library = self._library
+        library.command("delete all")
+        if until is not None:
+            library.command(f"stop when time > {until!r}")
+        command = "resume" if self._started else check_analysis(tran)
+        self._started = True
+        _finish(library, command, self._deadline, self._timeout)
+        raise_failure([line for line in library.log if not PAUSED.search(line)])
+        library.log.clear()
 
+    def alter(self, device: str, value: float) -> None:
+        """See :meth:`Session.alter`."""
+        self._library.alter(device, value)
 
-def _values(ffi: Any, info: Any) -> Array:
-    length = int(info.v_length)
-    if info.v_compdata != ffi.NULL:
-        buffer = ffi.buffer(info.v_compdata, length * 16)
-        return np.frombuffer(buffer, dtype=np.complex128).copy()
-    buffer = ffi.buffer(info.v_realdata, length * 8)
-    return np.frombuffer(buffer, dtype=np.float64).copy()
+    def samples(self, name: str, start: int = 0, stop: int | None = None) -> FloatArray:
+        """See :meth:`Session.samples`."""
+        found = self._library.vector(name, start, stop)
+        if found is None:
+            raise SimulatorError(f"ngspice has no vector {name!r} during the co-simulation")
+        return np.ascontiguousarray(found[1].real, dtype=np.float64)
+
+    def node_voltages(self) -> dict[str, FloatArray]:
+        """See :meth:`Session.node_voltages`."""
+        library = self._library
+        plot = library.current_plot()
+        out: dict[str, FloatArray] = {}
+        for raw in library.vector_names(plot):
+            found = library.vector(f"{plot}.{raw}")
+            if found is None or _VECTOR_TYPES.get(found[0]) != VOLTAGE:
+                continue
+            if np.iscomplexobj(found[1]):
+                continue
+            name = vector_name(raw, VOLTAGE)
+            if name.startswith("v(") and name.endswith(")"):
+                out[name[2:-1]] = np.asarray(found[1], dtype=np.float64)
+        return out
+
+    def stats(self) -> str:
+        """See :meth:`Session.stats`."""
+        library = self._library
+        before = len(library.log)
+        library.command("rusage time totiter traniter tranpoints trantime")
+        return "\n".join(line.strip() for line in library.log[before:] if line.strip())
+
+    @property
+    def log(self) -> str:
+        """See :meth:`Session.log`."""
+        return "\n".join(self._library.log)
