@@ -178,8 +178,9 @@ def test_shared_nodes_and_heat_only_part() -> None:
     out = run(str(FIXTURES / "shared.cir"), str(FIXTURES / "shared.thermal.toml"))
     res = out.results
     # The transistor's own dissipation, V * I from the plain deck (collector and base at
-    # 0.7 V, emitter at 0): the supply current of VC.
-    plain = simulate((FIXTURES / "shared.cir").read_text())
+    # 0.7 V, emitter at 0): the supply current of VC, the circuit at the ambient (40 degC).
+    text = (FIXTURES / "shared.cir").read_text()
+    plain = simulate(text.replace("\n.end", "\n.temp 40\n.end"))
     p_q = -0.7 * plain["i(vc)"][-1]
     assert res.part("QX").power == pytest.approx(p_q, rel=1e-6)
     # Steady-state heat balance, solved by hand as a linear system G T = P.

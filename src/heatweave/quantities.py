@@ -91,3 +91,53 @@ class SpiceQuantity(click.ParamType):  # type: ignore[type-arg]
         if self.positive and number <= 0:
             self.fail(f"{value!r} must be greater than zero", param, ctx)
         return number
+
+
+#: 0 K in degC; no temperature lies below it.
+ABSOLUTE_ZERO = -273.15
+_PLAIN = re.compile(r"\s*[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?\s*$")
+
+
+def temperature_problem(text: str) -> str | None:
+    """Why *text* is not a temperature in degC, or ``None`` when it is one.
+
+    A temperature is a plain number: a letter after it is refused, since SPICE would read
+    ``77F`` as 77 femto and ``300K`` as 300 kilo, while the writer meant Fahrenheit or
+    kelvin; a value below absolute zero is refused too."""
+    if not _PLAIN.match(text):
+        unit = _NUMBER.match(text)
+        if unit is not None and unit.group("suffix"):
+            return (
+                f"{text!r} carries a unit or scale factor ({unit.group('suffix')!r}); "
+                "temperatures are plain numbers in degC (SPICE would read F as femto and "
+                "K as kilo), e.g. 25 or -40"
+            )
+        return f"{text!r} is not a temperature; write a number in degC, e.g. 25 or -40"
+    value = float(text)
+    return below_absolute_zero(value)
+
+
+def below_absolute_zero(value: float) -> str | None:
+    """A sentence saying *value* (degC) lies below absolute zero, or ``None``."""
+    if value < ABSOLUTE_ZERO:
+        return f"{value:g} degC lies below absolute zero ({ABSOLUTE_ZERO:g} degC)"
+    return None
+
+
+class Temperature(click.ParamType):  # type: ignore[type-arg]
+    """A click option type for a temperature in degC: a plain number, at or above 0 K."""
+
+    name = "temperature"
+
+    def convert(
+        self, value: object, param: click.Parameter | None, ctx: click.Context | None
+    ) -> float:
+        if isinstance(value, int | float):
+            problem = below_absolute_zero(float(value))
+            number = float(value)
+        else:
+            problem = temperature_problem(str(value))
+            number = float(str(value)) if problem is None else 0.0
+        if problem is not None:
+            self.fail(problem, param, ctx)
+        return number

@@ -31,6 +31,7 @@ from heatweave.annotation.types import (
     PathSpec,
 )
 from heatweave.errors import AnnotationError, Location
+from heatweave.quantities import ABSOLUTE_ZERO, below_absolute_zero
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
 from heatweave.tomlspots import KeyPath, Locator, syntax_error
 
@@ -142,8 +143,22 @@ def _ambient(table: object, reader: TableReader) -> Ambient:
                 reader.value_location(("ambient", "profile")),
                 "write [time s, degC] pairs in time order, e.g. [[0, 25], [600, 40]]",
             )
+        coldest = min(v for _, v in profile)
+        if below_absolute_zero(coldest):
+            raise AnnotationError(
+                f"the ambient profile reaches {coldest:g} degC, below absolute zero "
+                f"({ABSOLUTE_ZERO:g} degC)",
+                reader.value_location(("ambient", "profile")),
+                "write the profile's temperatures in degC",
+            )
         return Ambient(temperature=profile[0][1], profile=profile)
     temperature = got.number("temperature")
+    if temperature is not None and below_absolute_zero(temperature):
+        raise AnnotationError(
+            f"ambient temperature {below_absolute_zero(temperature)}",
+            reader.value_location(("ambient", "temperature")),
+            "write the ambient in degC, e.g. temperature = 25.0",
+        )
     return Ambient(temperature=25.0 if temperature is None else temperature)
 
 

@@ -88,7 +88,7 @@ def deck_options(func: F) -> F:
 
 def simulation_options(func: F) -> F:
     """``--ambient``, ``--backend`` and ``--allow-control``."""
-    from heatweave.quantities import SpiceQuantity
+    from heatweave.quantities import Temperature
 
     func = click.option(
         "--allow-control",
@@ -104,9 +104,10 @@ def simulation_options(func: F) -> F:
     )(func)
     return click.option(
         "--ambient",
-        type=SpiceQuantity("degC"),
+        type=Temperature(),
         metavar="DEGC",
-        help="Ambient temperature instead of the annotation file's.",
+        help="Ambient temperature (degC, a plain number) instead of the annotation file's; "
+        "it sets every element's temperature, annotated or not.",
     )(func)
 
 

@@ -181,7 +181,7 @@ def sweep(
     check_outputs(outputs, deck)
     ambients: tuple[float | None, ...] = (None,)
     if ambient_range is not None:
-        ambients = parse_range(ambient_range, "--ambient")
+        ambients = parse_range(ambient_range, "--ambient", temperature=True)
     params = tuple(parse_assignment(text) for text in param_ranges)
     names = [name.lower() for name, _ in params]
     if len(set(names)) != len(names):

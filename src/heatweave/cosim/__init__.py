@@ -22,6 +22,8 @@ import numpy as np
 
 from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Inputs, emit_inputs, load_inputs
+from heatweave.emit.splice import insert_before_end
+from heatweave.emit.temperature import temp_card
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.run.prepare import (
     ANALYSIS_CARDS,
@@ -204,7 +206,7 @@ def run(
         tolerance,
     )
     folder = Path(deck_folder(inputs))
-    trace = cosimulate(plain_deck(text), folder, plan, options.timeout)
+    trace = cosimulate(plain_deck(text, circuit), folder, plan, options.timeout)
     results = to_results(trace, circuit, system)
     reason = f"co-simulation in {trace.windows} windows"
     past = range_findings(results)  # a part beyond its model's range, as runner.run warns
@@ -215,12 +217,16 @@ def run(
 DROPPED_CARDS = ANALYSIS_CARDS | {".save"}
 
 
-def plain_deck(text: str) -> str:
-    """The deck without its analysis and ``.save`` cards (see :data:`DROPPED_CARDS`)."""
+def plain_deck(text: str, circuit: ThermalCircuit | None = None) -> str:
+    """The deck without its analysis and ``.save`` cards (see :data:`DROPPED_CARDS`); with
+    *circuit*, ending with ``.temp`` at its ambient, as the emitted deck does
+    (:mod:`heatweave.emit.temperature`)."""
     deck = read(text)
     kept: list[Node] = [
         n for n in deck.body if not (isinstance(n, Card) and n.name in DROPPED_CARDS)
     ]
+    if circuit is not None:
+        kept = insert_before_end(kept, Card(temp_card(circuit) + "\n"))
     return deck.with_body(tuple(kept)).write()
 
 

@@ -46,6 +46,7 @@ from heatweave.emit.sections import (
 )
 from heatweave.emit.splice import end_position, insert_before_end, line_ending, spliced
 from heatweave.emit.stencil import Made, Stencils
+from heatweave.emit.temperature import temperature_findings
 from heatweave.errors import EmitError, Finding
 from heatweave.quantities import format_number
 from heatweave.spice.deck import Block, Card, Deck, Node, SourceFile
@@ -385,6 +386,7 @@ def emit_deck(
     eol = line_ending(deck)
     rewriter = _Rewriter(index, circuit, form, heating, eol)
     rewriter.findings.extend(notes)
+    rewriter.findings.extend(temperature_findings(((d, low) for d, low, _t in folded), circuit))
     title = deck.title or "heatweave electrothermal deck" + eol
     if not title.endswith("\n"):
         title += eol

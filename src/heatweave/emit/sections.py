@@ -9,6 +9,7 @@ import re
 
 from heatweave import __version__
 from heatweave.emit.forms import TRTOL_NOTE, preamble, shared_nodes
+from heatweave.emit.temperature import temp_card
 from heatweave.errors import EmitError, Finding, Location
 from heatweave.quantities import format_number
 from heatweave.spice.deck import ControlBlock, Deck, iter_cards
@@ -87,9 +88,10 @@ def thermal_section(
     options: list[str] | None = None,
     heating: bool = True,
 ) -> str:
-    """Ambient source, shared nodes, couplings, the card form's shared models and
-    *options* lines, and for the thermal nodes: ``.global`` when subcircuit copies reach
-    them (*shared*), ``.ic`` at ambient for a cold start."""
+    """Ambient source and ``.temp`` (:mod:`heatweave.emit.temperature`), shared nodes,
+    couplings, the card form's shared models and *options* lines, and for the thermal
+    nodes: ``.global`` when subcircuit copies reach them (*shared*), ``.ic`` at ambient
+    for a cold start."""
     lines = [f"{MARK}thermal network"]
     # Each model object once (parts of one table with equal values share one).
     models = list({id(p.model): p.model for p in circuit.parts if p.model is not None}.values())
@@ -103,6 +105,7 @@ def thermal_section(
         lines.append(f"V{AMBIENT_NODE} {AMBIENT_NODE} 0 PWL({points})")
     else:
         lines.append(f"V{AMBIENT_NODE} {AMBIENT_NODE} 0 DC {format_number(circuit.ambient)}")
+    lines.append(temp_card(circuit))  # every element without a thermal network: the ambient
     for node in circuit.nodes:
         lines.append(f"R{node.node} {node.node} {node.to} {format_number(node.rth)}")
         if node.cth > 0:

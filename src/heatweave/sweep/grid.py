@@ -17,7 +17,7 @@ from dataclasses import replace
 from heatweave.emit.emitter import Inputs
 from heatweave.emit.sections import MARK
 from heatweave.errors import Location, UsageError
-from heatweave.quantities import format_number, parse_number
+from heatweave.quantities import format_number, parse_number, temperature_problem
 from heatweave.spice.deck import Block, Card, Node
 from heatweave.spice.hierarchy import DeckIndex, Project
 
@@ -29,18 +29,24 @@ _RANGE_HINT = (
 )
 
 
-def parse_range(text: str, what: str) -> tuple[float, ...]:
+def parse_range(text: str, what: str, temperature: bool = False) -> tuple[float, ...]:
     """The grid of a ``START:STOP:STEP`` range, a single value, or a comma list of values
-    and ranges (``0.2m,1m,2m``), as floats in the order given."""
+    and ranges (``0.2m,1m,2m``), as floats in the order given.  With *temperature* the
+    values are degC: plain numbers (``77F`` is refused, not read as 77 femto) at or above
+    absolute zero."""
     if "," in text:
         values: list[float] = []
         for piece in text.split(","):
-            values.extend(parse_range(piece.strip(), what))
+            values.extend(parse_range(piece.strip(), what, temperature))
         return tuple(values)
     pieces = text.split(":")
     numbers = [parse_number(p) for p in pieces]
     if len(pieces) not in (1, 3) or any(n is None for n in numbers):
         raise UsageError(f"{what} {text!r} is not a value or a range", hint=_RANGE_HINT)
+    for piece in pieces[:2] if temperature else ():
+        problem = temperature_problem(piece)
+        if problem is not None:
+            raise UsageError(f"{what} {text!r}: {problem}", hint=_RANGE_HINT)
     found = [float(n) for n in numbers if n is not None]
     if len(found) == 1:
         return (found[0],)

@@ -1,0 +1,131 @@
+"""The ambient is the temperature of the whole circuit, not only of the annotated parts.
+
+ngspice evaluates every element without its own ``temp=`` at the circuit temperature, which
+a ``.temp`` card sets (ngspice manual, ``.TEMP`` and ``.OPTIONS TEMP``).  The emitted deck
+ends with ``.temp`` at the run's ambient, so a diode, a transistor or a resistor with
+``tc1`` that carries no annotation sees the ambient heatweave reports.  Checked with
+ngspice 39: the last ``.temp`` card of a deck wins, and a ``.temp`` card wins over
+``.options temp=`` wherever each stands, so heatweave's card decides.
+
+A deck's own ``.temp`` or ``.options temp=`` that disagrees with the run's ambient is
+reported and overridden, never silently used.  ``tnom`` (the temperature the device models'
+parameters were measured at) is no ambient: it is kept, and reported when it disagrees.
+An ambient profile drives the thermal networks over time, but ``.temp`` holds one value
+per run: the elements without a thermal network stay at the profile's value at t = 0.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterable
+
+from heatweave.errors import Finding
+from heatweave.quantities import format_number, parse_number
+from heatweave.spice.deck import Card, Deck, iter_cards
+from heatweave.thermal.circuit import ThermalCircuit
+
+#: ``.options`` spellings ngspice accepts.
+OPTION_CARDS = frozenset({".option", ".options", ".opt"})
+_SETTING = re.compile(r"(?i)(?<![\w.])(temp|tnom)\s*=\s*([^\s,()]+)")
+#: Two temperatures this close (K) are the same setting written differently.
+SAME = 1e-9
+
+
+def circuit_temperature(circuit: ThermalCircuit) -> float:
+    """The one temperature (degC) ngspice runs the elements without a thermal network at:
+    the fixed ambient, or a profile's value at t = 0."""
+    return float(circuit.ambient_at_start)
+
+
+def temp_card(circuit: ThermalCircuit) -> str:
+    """The ``.temp`` line that sets the circuit temperature to the run's ambient."""
+    return f".temp {format_number(circuit_temperature(circuit))}"
+
+
+def temperature_findings(
+    decks: Iterable[tuple[Deck, str]], circuit: ThermalCircuit
+) -> list[Finding]:
+    """What the user must hear about the circuit temperature: each ``.temp``, ``temp=`` or
+    ``tnom=`` of the deck or its includes that disagrees with the run's ambient, and what
+    an ambient profile cannot reach.  *decks* are each file's deck and its text in lower
+    case (searched first, so a deck without such a card costs one scan)."""
+    ambient = circuit_temperature(circuit)
+    found: list[Finding] = []
+    if isinstance(circuit.ambient, tuple):
+        found.append(
+            Finding(
+                "note",
+                "the ambient profile drives the annotated parts' thermal networks over time; "
+                "ngspice's circuit temperature (.temp) holds one value per run, so every "
+                "element without annotation (and the device models of heat-only parts) "
+                f"stays at {format_number(ambient)} degC, the profile's value at t = 0",
+                None,
+                "sweep --ambient over the profile's span to see those elements at each temperature",
+            )
+        )
+    for deck, low in decks:
+        if ".temp" not in low and "temp" not in low and "tnom" not in low:
+            continue
+        for card in iter_cards(deck.body):
+            if card.name == ".temp":
+                found.extend(_temp_card(card, ambient))
+            elif card.name in OPTION_CARDS:
+                found.extend(_option_card(card, ambient))
+    return found
+
+
+def _disagrees(text: str, ambient: float) -> bool:
+    value = parse_number(text)
+    return value is None or abs(value - ambient) > SAME
+
+
+def _temp_card(card: Card, ambient: float) -> list[Finding]:
+    fields = card.fields()[1:]
+    written = " ".join(fields)
+    if len(fields) == 1 and not _disagrees(fields[0], ambient):
+        return []
+    return [
+        Finding(
+            "warning",
+            f"the deck's .temp {written} is not used: heatweave runs the whole circuit at the "
+            f"run's ambient, {format_number(ambient)} degC ([ambient] of the annotation file, "
+            "or --ambient)",
+            card.location(),
+            "set the temperature you mean in [ambient] or with --ambient, and delete this card",
+        )
+    ]
+
+
+def _option_card(card: Card, ambient: float) -> list[Finding]:
+    out = []
+    logical = card.logical().text
+    for match in _SETTING.finditer(logical):
+        key, value = match.group(1).lower(), match.group(2)
+        if not _disagrees(value, ambient):
+            continue
+        where = card.location(match.start())
+        if key == "temp":
+            out.append(
+                Finding(
+                    "warning",
+                    f"the deck's temp={value} is not used: heatweave runs the whole circuit at "
+                    f"the run's ambient, {format_number(ambient)} degC ([ambient] of the "
+                    "annotation file, or --ambient)",
+                    where,
+                    "set the temperature you mean in [ambient] or with --ambient, and delete "
+                    "temp= from this card",
+                )
+            )
+        else:
+            out.append(
+                Finding(
+                    "warning",
+                    f"the deck's tnom={value} is kept: it is the temperature its device "
+                    "models' parameters were measured at, not the circuit's; the circuit runs "
+                    f"at the run's ambient, {format_number(ambient)} degC",
+                    where,
+                    "delete tnom= if it was meant as the ambient; set that in [ambient] or "
+                    "with --ambient",
+                )
+            )
+    return out
