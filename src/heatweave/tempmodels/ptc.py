@@ -9,7 +9,10 @@ The blend is smooth (no step), monotonic and bounded.  The exponent is clamped t
 Python and ngspice alike: ngspice 39.3's B-source ``exp`` saturates near 1e99 (argument ~228,
 checked in the tests), and at +-200 the blend is already flat to double precision.
 
-r_cold is ``r25`` if written, else chosen so that the deck's value holds at ``tref``.
+r_cold is ``r25`` if written, else chosen so that the deck's value holds at ``tref``: with
+``r_max`` written that is R = r_c (1 + F) / (1 + F r_c / r_max) solved for r_c,
+r_c = R / (1 + F (1 - R / r_max)); without it r_max = 10^4 r_c and r_c = R (1 + F q) / (1 + F)
+with q = 10^-4.
 """
 
 from __future__ import annotations
@@ -107,11 +110,11 @@ class Ptc(TempModel):
             assert alpha is not None
             k = math.log1p(alpha / 100.0)
         r25 = written(params, "r25")
-        ratio = written(params, "r_max")
-        shape = cls(1.0, t_switch, k, (ratio / r25) if (ratio and r25) else DEFAULT_RATIO)
+        r_max = written(params, "r_max")
         if r25 is None:
-            r25 = r_nominal / shape.resistance(cls.reference(tref))
-        r_max = ratio if ratio is not None else DEFAULT_RATIO * r25
+            r25 = cold_resistance(r_nominal, cls.reference(tref), t_switch, k, r_max)
+        if r_max is None:
+            r_max = DEFAULT_RATIO * r25
         if r_max <= r25:
             raise ValueError(f"r_max ({fmt(r_max)} ohm) must exceed the cold resistance")
         return cls(r25, t_switch, k, r_max)
@@ -158,3 +161,17 @@ class Ptc(TempModel):
                 )
             )
         return tuple(found)
+
+
+def cold_resistance(
+    r_nominal: float, tref: float, t_switch: float, k: float, r_max: float | None
+) -> float:
+    """The cold resistance that makes R(tref) the deck's value *r_nominal* (module docstring)."""
+    f = math.exp(min(max(k * (tref - t_switch), -EXP_CLAMP), EXP_CLAMP))
+    if r_max is None:
+        return r_nominal * (1.0 + f / DEFAULT_RATIO) / (1.0 + f)
+    if r_nominal >= r_max:
+        raise ValueError(
+            f"the deck's value ({fmt(r_nominal)} ohm) must lie below r_max ({fmt(r_max)} ohm)"
+        )
+    return r_nominal / (1.0 + f * (1.0 - r_nominal / r_max))
