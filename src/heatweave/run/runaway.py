@@ -53,13 +53,14 @@ import numpy.typing as npt
 from heatweave.errors import Location, SimulatorError, ThermalRunawayError
 from heatweave.quantities import parse_number
 from heatweave.spice.deck import Card
+from heatweave.thermal.balance import check_state, conductances, thermal_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
     from heatweave.run.prepare import Prepared, RunOptions
     from heatweave.run.results import RunResults
-    from heatweave.simulators import Plot
+    from heatweave.simulators import Plot, SimResult
     from heatweave.spice.hierarchy import DeckIndex
 
 FloatArray = npt.NDArray[np.float64]
@@ -161,16 +162,14 @@ def add_cards(text: str, cards: list[str]) -> str:
     return text[:at] + block + text[at:]
 
 
-def thermal_nodes(circuit: ThermalCircuit) -> list[str]:
-    """Hot-spot nodes of the parts, then shared nodes."""
-    return [p.node for p in circuit.parts] + [n.node for n in circuit.nodes]
-
-
 class Continuation:
     """Sweeps of the drive on one prepared deck."""
 
-    def __init__(self, prepared: Prepared, options: RunOptions) -> None:
+    def __init__(
+        self, prepared: Prepared, options: RunOptions, index: DeckIndex | None = None
+    ) -> None:
         assert prepared.emitted.circuit is not None
+        self.index = index  # with it, every sweep point is held to the heat balance
         self.prepared = prepared
         self.options = replace(options, progress=None)
         self.circuit = prepared.emitted.circuit
@@ -178,11 +177,17 @@ class Continuation:
         self.nodes = thermal_nodes(self.circuit)
 
     def run(self, text: str, analyses: tuple[str, ...]) -> tuple[Plot, ...]:
+        sim = self.simulate(text, analyses)
+        return tuple(p for p in sim.plots if p.kind == "dc")
+
+    def simulate(self, text: str, analyses: tuple[str, ...] | None = None) -> SimResult:
+        """ngspice on *text*, with *analyses* instead of the prepared ones when given."""
         from heatweave.run.prepare import simulate
 
-        sim = simulate(replace(self.prepared, text=text, analyses=analyses, deck_analyses=False),
-                       self.options)  # fmt: skip
-        return tuple(p for p in sim.plots if p.kind == "dc")
+        prepared = replace(self.prepared, text=text)
+        if analyses is not None:
+            prepared = replace(prepared, analyses=analyses, deck_analyses=False)
+        return simulate(prepared, self.options)
 
     def sweep(self, lo: float, step: float, count: int, start: FloatArray | None) -> Plot:
         """Drive from *lo* in *count* steps of *step*, from thermal temperatures *start*."""
@@ -213,6 +218,41 @@ class Continuation:
     def temperatures(self, plot: Plot) -> FloatArray:
         """Thermal node temperatures, one row per node, one column per sweep point."""
         return np.array([np.real(np.asarray(plot[f"v({n})"])) for n in self.nodes], dtype=float)
+
+
+def first_off(cont: Continuation, plot: Plot, temps: FloatArray) -> int | None:
+    """Index of the first sweep point off the physical branch: a jump (:func:`first_jump`),
+    or a point that fails :func:`~heatweave.thermal.balance.check_state` with the drive's
+    share of each dissipation (a resistance at or below zero, where ngspice happily settles
+    on a negative resistance; a point past a fold that ngspice accepts although its heat
+    does not balance)."""
+    jump = first_jump(temps)
+    drive = np.real(np.asarray(plot.scale_values)).astype(float)
+    powers = sweep_powers(cont, plot, temps)
+    ambient = cont.circuit.ambient_at_start
+    for k in range(temps.shape[1] if jump is None else jump):
+        for i, part in enumerate(cont.circuit.parts):
+            if part.model is not None and not float(part.model.resistance(temps[i, k])) > 0:
+                return k
+        if powers is not None:
+            verdict = check_state(cont.circuit, temps[:, k], drive[k] * powers[:, k], ambient)
+            if not verdict.ok:
+                return k
+    return jump
+
+
+def sweep_powers(cont: Continuation, plot: Plot, temps: FloatArray) -> FloatArray | None:
+    """Each part's full dissipation V^2/R(T) at every sweep point (parts x points);
+    ``None`` with a heat-only part or without the deck's index."""
+    if cont.index is None or any(p.model is None for p in cont.circuit.parts):
+        return None
+    rows = []
+    for i, part in enumerate(cont.circuit.parts):
+        assert part.model is not None
+        a, b = terminals(part, cont.index)
+        drop = _voltage(plot, a) - _voltage(plot, b)
+        rows.append(drop * drop / part.model.resistance(temps[i]))
+    return np.array(rows, dtype=float)
 
 
 def first_jump(temps: FloatArray) -> int | None:
@@ -288,7 +328,7 @@ def follow(cont: Continuation) -> BranchEnd | None:
         return None
     temps = cont.temperatures(plot)
     drive = np.real(np.asarray(plot.scale_values)).astype(float)
-    k = first_jump(temps)
+    k = first_off(cont, plot, temps)
     outside = first_outside(cont.circuit, temps[:, : (temps.shape[1] if k is None else k)])
     if outside is not None:
         return range_end(cont, drive, temps, *outside)
@@ -311,7 +351,7 @@ def follow(cont: Continuation) -> BranchEnd | None:
         return BranchEnd(float(drive[last]), temps[:, last], True, None)
     ftemps = cont.temperatures(refined)
     fdrive = np.real(np.asarray(refined.scale_values)).astype(float)
-    j = first_jump(ftemps)
+    j = first_off(cont, refined, ftemps)
     if j is None and reached:
         return BranchEnd(1.0, temps[:, -1], False, temps[:, -1])
     end = (j if j is not None else ftemps.shape[1]) - 1
@@ -334,25 +374,8 @@ def last_on_branch(temps: FloatArray, end: int) -> int:
 
 def driving_point(circuit: ThermalCircuit) -> tuple[list[str], FloatArray]:
     """Steady-state thermal impedances between all thermal nodes (K/W), ambient as ground."""
-    nodes = thermal_nodes(circuit)
-    where = {n: i for i, n in enumerate(nodes)}
-    g = np.zeros((len(nodes), len(nodes)))
-
-    def conductance(a: str, b: str, rth: float) -> None:
-        for x, y in ((a, b), (b, a)):
-            if x in where:
-                g[where[x], where[x]] += 1.0 / rth
-                if y in where:
-                    g[where[x], where[y]] -= 1.0 / rth
-
-    for part in circuit.parts:
-        conductance(part.node, part.to, part.network.total_rth)
-    for shared in circuit.nodes:
-        conductance(shared.node, shared.to, shared.rth)
-    for coupling in circuit.couplings:
-        conductance(coupling.a, coupling.b, coupling.rth)
-    inverse: FloatArray = np.linalg.inv(g).astype(np.float64)
-    return nodes, inverse
+    inverse: FloatArray = np.linalg.inv(conductances(circuit)).astype(np.float64)
+    return thermal_nodes(circuit), inverse
 
 
 def terminals(part: PartPlan, index: DeckIndex) -> tuple[str, str]:
@@ -388,14 +411,15 @@ def power_jacobian(cont: Continuation, index: DeckIndex, temps: FloatArray) -> F
     nodes = [terminals(p, index) for p in parts]
     jac = np.zeros((len(parts), len(parts)))
     for j, plot in enumerate(plots):
+        # ngspice decides the number of sweep points from the rounded bounds (two to four
+        # here): the ends of the sweep as it ran, not three points assumed.
+        held = np.real(np.asarray(plot.scale_values)).astype(float)
         for i, part in enumerate(parts):
             assert part.model is not None
-            t = np.full(3, fixed[part.node])
-            if i == j:
-                t = t + np.array([-FD_STEP, 0.0, FD_STEP])
+            t = held if i == j else np.full(len(held), fixed[part.node])
             drop = _voltage(plot, nodes[i][0]) - _voltage(plot, nodes[i][1])
             power = drop * drop / part.model.resistance(t)
-            jac[i, j] = (power[2] - power[0]) / (2 * FD_STEP)
+            jac[i, j] = (power[-1] - power[0]) / (held[-1] - held[0])
     return jac
 
 
@@ -514,7 +538,7 @@ def explain(
     if prepared.emitted.circuit is None or not prepared.emitted.circuit.parts:
         return None
     grew = growth(results) if results is not None else None
-    cont = Continuation(prepared, options)
+    cont = Continuation(prepared, options, inputs.index)
     try:
         end = follow(cont)
         diagnosis = diagnose(cont, inputs.index, end) if end is not None and end.lost else None

@@ -26,6 +26,7 @@ from heatweave.run.results import (
     outside_range,
     range_findings,
 )
+from heatweave.run.verify import verify_run
 from heatweave.simulators import SimResult
 
 
@@ -62,6 +63,9 @@ def run(
             explained = explain_runaway(inputs, options, prepared, None, results)
             if explained is not None:
                 raise explained
+        verified = verify_run(inputs, options, prepared, sim, results)
+        sim, results = verified.sim, verified.results
+        prepared = replace(prepared, findings=prepared.findings + verified.findings)
     except SimulatorError as err:
         # The warnings from emitting still matter (a dropped .control block, say).
         err.findings = (*prepared.findings, *err.findings)

@@ -1,0 +1,282 @@
+"""Every steady state a run reports is verified; one that fails is replaced or refused.
+
+A steady state comes back from ngspice as an operating point (``.op``), the last point of
+a ``.dc`` sweep, or the first point of a transient that starts steady.  It is held to the
+heat balance of :func:`heatweave.thermal.balance.check_state`, and ngspice's fall-backs are
+recognised: when gmin and source stepping fail, ngspice 39 runs a short pseudo-transient
+("Transient op started", 10 us by default) and returns wherever that stopped; the thermal
+capacitors have barely charged, so the state is not a steady one.
+
+A state that fails is never the answer.  :func:`recover` looks for the circuit's own state:
+
+1. continuation from cold (:func:`heatweave.run.runaway.follow`): every dissipation scaled from
+   0 to full, each point starting from the last.  When that branch reaches full
+   dissipation its state is the answer (the one a slow warm-up reaches);
+2. when the branch ends (a fold, loop gain 1), the part with the highest loop gain is held
+   at each temperature from the ambient up (:func:`scan`): the current the holding source
+   takes is the heat balance at that node with every other part free, so its sign changes
+   are the steady states.  The lowest stable one (heat surplus below it, deficit above) is
+   where the part settles when switched on from cold: a PTC that trips lands there;
+3. otherwise no steady state exists and the error says why, with the loop gain.
+
+The state found is solved again by ngspice from that point (``.nodeset``) and verified once
+more.  For ``ptc`` parts (whose resistance switches) every verified state is also scanned:
+when a second stable state exists, a warning names both and says which one is reported.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from heatweave.errors import Finding, SimulatorError, ThermalRunawayError
+from heatweave.run.results import RunResults, extract
+from heatweave.run.runaway import (
+    HINT,
+    TIGHT,
+    Continuation,
+    RunawayError,
+    add_cards,
+    diagnose,
+    follow,
+)
+from heatweave.thermal.balance import Verdict, check_state, thermal_nodes
+from heatweave.thermal.circuit import PartPlan, ThermalCircuit
+
+if TYPE_CHECKING:
+    from heatweave.emit.emitter import Inputs
+    from heatweave.run.prepare import Prepared, RunOptions
+    from heatweave.run.runaway import FloatArray
+    from heatweave.simulators import SimResult
+
+_FALLBACK = re.compile(r"transient op started", re.IGNORECASE)
+SCAN_STEP = 0.5  # K between held temperatures
+SCAN_TOP = 1000.0  # degC: heatweave.run.runner.IMPLAUSIBLE_TEMPERATURE
+SWITCHING = frozenset({"ptc"})
+
+
+class NoSteadyStateError(ThermalRunawayError):
+    """No verified steady state: the one ngspice gave fails and none other was found."""
+
+
+def fell_back(log: str) -> bool:
+    """True when ngspice's operating point came from its pseudo-transient fall-back."""
+    return _FALLBACK.search(log) is not None
+
+
+def steady_index(results: RunResults, circuit: ThermalCircuit) -> int | None:
+    """Which point of *results* is a steady state to verify: the last of an operating point
+    or DC sweep, the first of a transient that starts steady; ``None`` for none."""
+    if results.analysis in ("op", "dc"):
+        return -1
+    if results.analysis == "tran" and circuit.start == "steady" and results.time is not None:
+        return 0
+    return None
+
+
+def verdict_of(results: RunResults, circuit: ThermalCircuit, at: int) -> Verdict:
+    """:func:`check_state` on point *at* of *results* (every path verifies through it)."""
+    by_label = {p.path: p for p in results.parts}
+
+    def pick(final: float, series: FloatArray | None) -> float:
+        return float(series[at]) if series is not None and at != -1 else final
+
+    temps = [pick(by_label[p.path].temperature, by_label[p.path].temperature_series)
+             for p in circuit.parts]  # fmt: skip
+    temps += [pick(results.nodes[n.label], results.node_series.get(n.label)) for n in circuit.nodes]
+    powers = [pick(by_label[p.path].power, by_label[p.path].power_series) for p in circuit.parts]
+    ambient = pick(results.ambient, results.ambient_series)
+    return check_state(circuit, temps, powers, ambient)
+
+
+@dataclass(frozen=True, slots=True)
+class Verified:
+    """A run's results after verification, and what the reader must be told."""
+
+    sim: SimResult
+    results: RunResults
+    findings: tuple[Finding, ...]
+
+
+def verify_run(
+    inputs: Inputs, options: RunOptions, prepared: Prepared, sim: SimResult, results: RunResults
+) -> Verified:
+    """The run's results if their steady state holds, else the circuit's own (see the module
+    docstring); raises :class:`ThermalRunawayError` when there is none."""
+    circuit = prepared.emitted.circuit
+    assert circuit is not None
+    at = steady_index(results, circuit)
+    if at is None or not circuit.parts:
+        return Verified(sim, results, ())
+    verdict = verdict_of(results, circuit, at)
+    fallback = fell_back(sim.log)
+    if verdict.ok and not fallback:
+        notes, lowest = multiple(options, prepared, results)
+        if lowest is None:
+            return Verified(sim, results, verdict.warnings + notes)
+        why = "ngspice's operating point landed on another of its stable states"
+        why += f" ({notes[0].message})"
+        how = "the lowest stable one, where it settles when switched on from cold"
+        return resolve(inputs, options, prepared, lowest.temps, why, how)
+    why = verdict.reason() if not verdict.ok else ""
+    if fallback:
+        lead = "ngspice's operating point failed gmin and source stepping and fell back to its "
+        lead += 'short pseudo-transient ("transient op"), which leaves the thermal nodes short '
+        lead += "of their steady state"
+        why = f"{lead}: {why}" if why else lead
+    return recover(inputs, options, prepared, results, why)
+
+
+def recover(
+    inputs: Inputs, options: RunOptions, prepared: Prepared, results: RunResults, why: str
+) -> Verified:
+    """The circuit's verified steady state in place of one that failed for reason *why*."""
+    circuit = prepared.emitted.circuit
+    assert circuit is not None
+    cont = Continuation(prepared, options, inputs.index)
+    try:
+        end = follow(cont)
+        diagnosis = diagnose(cont, inputs.index, end) if end is not None and end.lost else None
+    except SimulatorError:
+        end, diagnosis = None, None
+    if end is not None and not end.lost and end.full is not None:
+        how = "followed from cold by continuation (every dissipation raised from 0 to full)"
+        return resolve(inputs, options, prepared, end.full, why, how)
+    if diagnosis is not None:
+        part = next(p for p in circuit.parts if p.path == diagnosis.part)
+        states = scan(prepared, options, part)
+        stable = [s for s in states if s.stable]
+        if stable:
+            how = (
+                f"where {part.path} settles when switched on from cold: the branch from cold "
+                f"ends at {100 * diagnosis.drive:.3g} % of the full dissipation (loop gain "
+                f"{diagnosis.loop_gain:.3g}), and {part.path} switches to its steady state at "
+                f"{stable[0].temperature:.4g} degC"
+            )
+            return resolve(inputs, options, prepared, stable[0].temps, why, how)
+        head = f"{diagnosis.part} runs away thermally: no steady state exists; "
+        text = head + diagnosis.sentence() + f". The state ngspice returned does not hold: {why}"
+        raise RunawayError(text, HINT, diagnosis)
+    raise NoSteadyStateError(
+        f"no verified steady state: {why}; continuation from cold found none either",
+        hint="run a transient from cold (--tran) to see where the temperatures go, or lower "
+        "the drive",
+    )
+
+
+def resolve(
+    inputs: Inputs, options: RunOptions, prepared: Prepared, temps: FloatArray, why: str,
+    how: str,
+) -> Verified:  # fmt: skip
+    """ngspice's solution started from thermal temperatures *temps*, verified."""
+    circuit = prepared.emitted.circuit
+    assert circuit is not None
+    sets = " ".join(f"V({n})={t:.12g}" for n, t in zip(thermal_nodes(circuit), temps, strict=True))
+    text = add_cards(prepared.text, [f".nodeset {sets}", TIGHT])
+    sim = Continuation(prepared, options).simulate(text)
+    results = extract(sim, circuit, inputs.index)
+    at = steady_index(results, circuit)
+    verdict = verdict_of(results, circuit, at if at is not None else -1)
+    if not verdict.ok or fell_back(sim.log):
+        raise NoSteadyStateError(
+            f"no verified steady state: {why}; the state {how} does not hold either "
+            f"({verdict.reason() or 'ngspice fell back to its transient op again'})",
+            hint="run a transient from cold (--tran) to see where the temperatures go",
+        )
+    note = Finding(
+        "warning",
+        f"the steady state ngspice returned was not the circuit's ({why}); heatweave "
+        f"reports instead the state {how}, which balances",
+        None,
+        "a transient from cold (--tran) shows how the circuit gets there",
+    )
+    return Verified(sim, results, (note, *verdict.warnings))
+
+
+@dataclass(frozen=True, slots=True)
+class State:
+    """A steady state found by :func:`scan`: the held part's temperature, every thermal
+    node's there, and whether it is stable (a surplus of heat below it, a deficit above)."""
+
+    temperature: float
+    temps: FloatArray
+    stable: bool
+
+
+def scan(prepared: Prepared, options: RunOptions, part: PartPlan) -> list[State]:
+    """The steady states with *part* held at each temperature from the ambient up to where
+    its model (or any other part's resistance) stops being physical, every other part free."""
+    circuit = prepared.emitted.circuit
+    assert circuit is not None and part.model is not None
+    low = float(circuit.ambient_at_start)
+    high = SCAN_TOP
+    found = part.model.valid_range
+    if found is not None:
+        low, high = max(low, found.low), min(high, found.high)
+    if high <= low + SCAN_STEP:
+        return []
+    text = add_cards(prepared.text, [f"Vhw_hold {part.node} 0 DC {low:.12g}", TIGHT])
+    steps = f"dc vhw_hold {low:.12g} {high:.12g} {SCAN_STEP:.12g}"
+    try:
+        sim = Continuation(prepared, options).simulate(text, (steps,))
+    except SimulatorError:
+        return []
+    plot = [p for p in sim.plots if p.kind == "dc"][-1]
+    held = np.real(np.asarray(plot.scale_values)).astype(float)
+    temps = np.array([held if n == part.node else np.real(np.asarray(plot[f"v({n})"]))
+                      for n in thermal_nodes(circuit)], dtype=float)  # fmt: skip
+    # Heat the holding source takes out of the node: the surplus there.
+    surplus = np.real(np.asarray(plot["i(vhw_hold)"])).astype(float)
+    valid = np.isfinite(surplus) & np.all(np.isfinite(temps), axis=0)
+    for i, other in enumerate(circuit.parts):
+        if other.model is not None:
+            valid &= np.asarray(other.model.resistance(temps[i]), dtype=float) > 0
+    end = int(np.argmin(valid)) if not valid.all() else len(valid)
+    states = []
+    for k in range(1, end):
+        a, b = surplus[k - 1], surplus[k]
+        if a == 0 or np.sign(a) == np.sign(b):
+            continue
+        share = a / (a - b)
+        at = temps[:, k - 1] + share * (temps[:, k] - temps[:, k - 1])
+        states.append(State(float(at[circuit.parts.index(part)]), at, bool(a > 0)))
+    return states
+
+
+def multiple(
+    options: RunOptions, prepared: Prepared, results: RunResults
+) -> tuple[tuple[Finding, ...], State | None]:
+    """A warning for each switching part (:data:`SWITCHING`) with more than one stable
+    steady state (which exist, which one is reported and why), and the lowest of them when
+    the reported state is another one (it is then replaced: a start from cold lands low)."""
+    circuit = prepared.emitted.circuit
+    assert circuit is not None
+    if results.analysis != "op":
+        return (), None
+    found = []
+    for part in circuit.parts:
+        if part.model_name not in SWITCHING:
+            continue
+        stable = [s for s in scan(prepared, options, part) if s.stable]
+        if len(stable) < 2:
+            continue
+        reported = results.part(part.path).temperature
+        listed = ", ".join(f"{s.temperature:.4g} degC" for s in stable)
+        nearest = min(stable, key=lambda s: abs(s.temperature - reported))
+        text = f"{part.path} has {len(stable)} stable steady states ({listed})"
+        if nearest is not stable[0]:
+            return (Finding("warning", text, part.location),), stable[0]
+        found.append(
+            Finding(
+                "warning",
+                f"{text}; the one reported, {reported:.4g} degC, is the lowest, where it "
+                "settles when switched on from cold",
+                part.location,
+                "a transient from cold (--tran) shows which one the circuit reaches; a "
+                "disturbance (a surge, a hot start) can move it to a higher one",
+            )
+        )
+    return tuple(found), None

@@ -1,0 +1,169 @@
+"""Is a steady state the circuit's?  The heat balance of the whole thermal network.
+
+In a steady state no heat is stored: at every thermal node (each part's hot spot, each
+shared node) the heat leaving through the conductances equals the heat injected there::
+
+    sum_j G_ij (T_i - T_j) = P_i       (P_i: the part's dissipation, 0 at a shared node)
+
+with ``G`` the steady conductances (a part's network counts with its total Rth, shared
+nodes and ``[[path]]`` couplings with theirs) and the ambient a fixed temperature.
+:func:`check_state` holds a reported state to that, with the reported powers, to the
+accuracy ngspice solves to: every temperature is known to ``eps = RELTOL |T| + ABSTOL_T``
+(ngspice's default ``reltol`` and ``vntol``, 1 V = 1 degC), every electrical power to
+``2 RELTOL |P|``, and a resistor's power moves with its temperature by at most
+``P |dR/dT| / R`` (at a fixed voltage or current; any circuit around it lies in between).
+The residual at node ``i`` may therefore be::
+
+    |r_i| <= sum_j |G_ij| eps_j + P_i |dR/dT|_i / R_i eps_i + 2 RELTOL |P_i| + ABSTOL_P
+
+Beside the balance, a state is refused when it cannot be physical: a resistance at or below
+zero, a non-finite value, or a node colder than the ambient while no dissipation is
+negative (heat flows only downhill, so with every source of heat positive no node can be
+colder than the sink).  A heat-only part with a negative dissipation gets a warning.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import numpy.typing as npt
+
+from heatweave.errors import Finding
+from heatweave.thermal.circuit import AMBIENT_NODE, ThermalCircuit
+
+FloatArray = npt.NDArray[np.float64]
+
+RELTOL = 1e-3  # ngspice's default reltol
+ABSTOL_T = 1e-6  # K: ngspice's default vntol, in degC
+ABSTOL_P = 1e-12  # W
+
+
+def thermal_nodes(circuit: ThermalCircuit) -> list[str]:
+    """Hot-spot nodes of the parts, then shared nodes (the order of every array here)."""
+    return [p.node for p in circuit.parts] + [n.node for n in circuit.nodes]
+
+
+def conductances(circuit: ThermalCircuit) -> FloatArray:
+    """The steady conductance matrix (W/K) over :func:`thermal_nodes`, ambient as ground."""
+    nodes = thermal_nodes(circuit)
+    where = {n: i for i, n in enumerate(nodes)}
+    g = np.zeros((len(nodes), len(nodes)))
+
+    def branch(a: str, b: str, rth: float) -> None:
+        for x, y in ((a, b), (b, a)):
+            if x in where:
+                g[where[x], where[x]] += 1.0 / rth
+                if y in where and y != AMBIENT_NODE:
+                    g[where[x], where[y]] -= 1.0 / rth
+
+    for part in circuit.parts:
+        branch(part.node, part.to, part.network.total_rth)
+    for shared in circuit.nodes:
+        branch(shared.node, shared.to, shared.rth)
+    for coupling in circuit.couplings:
+        branch(coupling.a, coupling.b, coupling.rth)
+    return g
+
+
+@dataclass(frozen=True, slots=True)
+class Verdict:
+    """What :func:`check_state` found: the balance residuals, what is wrong, warnings."""
+
+    labels: tuple[str, ...]
+    residual: FloatArray  # W at each thermal node: heat out minus heat in
+    tolerance: FloatArray  # W allowed there
+    error: FloatArray  # K: reported temperature minus the one the powers give
+    problems: tuple[str, ...]
+    warnings: tuple[Finding, ...] = ()
+
+    @property
+    def ok(self) -> bool:
+        """True when the state balances and nothing in it is unphysical."""
+        return not self.problems
+
+    def reason(self) -> str:
+        """Everything wrong with the state, in words."""
+        return "; ".join(self.problems)
+
+
+def check_state(
+    circuit: ThermalCircuit,
+    temps: Sequence[float] | FloatArray,
+    powers: Sequence[float] | FloatArray,
+    ambient: float,
+    *,
+    accuracy: float = 0.0,
+) -> Verdict:
+    """Hold one steady state to the heat balance and to physics (module docstring).
+
+    *temps* are in :func:`thermal_nodes` order (degC), *powers* per part (W), *ambient* the
+    sink's temperature (degC); *accuracy* (K) widens every temperature's uncertainty when the
+    state comes from an iteration stopped at that tolerance (``settle``'s ``--tol``).
+    """
+    labels = tuple(p.path for p in circuit.parts) + tuple(n.label for n in circuit.nodes)
+    t = np.asarray(temps, dtype=float)
+    p_parts = np.asarray(powers, dtype=float)
+    n_parts = len(circuit.parts)
+    injected = np.concatenate([p_parts, np.zeros(len(circuit.nodes))])
+    problems: list[str] = []
+    warnings: list[Finding] = []
+    if not (np.all(np.isfinite(t)) and np.all(np.isfinite(p_parts)) and math.isfinite(ambient)):
+        bad = [labels[i] for i in range(len(t)) if not math.isfinite(float(t[i]))]
+        bad += [labels[i] for i in range(n_parts) if not math.isfinite(float(p_parts[i]))]
+        problems.append(f"non-finite temperature or dissipation ({', '.join(bad) or 'ambient'})")
+        empty = np.full(len(labels), np.nan)
+        return Verdict(labels, empty, empty, empty, tuple(problems))
+    g = conductances(circuit)
+    theta = t - ambient
+    residual = g @ theta - injected
+    eps = RELTOL * np.abs(t) + ABSTOL_T + accuracy
+    slope = np.zeros(len(labels))
+    for i, part in enumerate(circuit.parts):
+        if part.model is None:
+            continue
+        ohms = float(part.model.resistance(float(t[i])))
+        if not ohms > 0:
+            problems.append(
+                f"{part.path}'s resistance at {t[i]:.4g} degC is {ohms:.4g} ohm: its "
+                f"{part.model_name} model has no physical value there"
+            )
+            continue
+        slope[i] = abs(p_parts[i] * float(part.model.slope(float(t[i])))) / ohms
+    tolerance = np.abs(g) @ eps + slope * eps + 2 * RELTOL * np.abs(injected) + ABSTOL_P
+    try:
+        error = np.linalg.solve(g, residual) if len(labels) else residual
+    except np.linalg.LinAlgError:
+        error = np.full(len(labels), np.nan)
+    worst = int(np.argmax(np.abs(residual) / tolerance)) if len(labels) else 0
+    if len(labels) and abs(residual[worst]) > tolerance[worst]:
+        problems.append(
+            f"the heat balance fails at {labels[worst]}: {abs(residual[worst]):.4g} W "
+            f"{'more' if residual[worst] > 0 else 'less'} leaves than is dissipated there "
+            f"(allowed {tolerance[worst]:.2g} W); the reported temperature is "
+            f"{abs(error[worst]):.4g} K {'above' if error[worst] > 0 else 'below'} the one "
+            "its reported powers give"
+        )
+    for i, part in enumerate(circuit.parts):
+        if part.model is None and p_parts[i] < -(2 * RELTOL * abs(p_parts[i]) + ABSTOL_P):
+            warnings.append(
+                Finding(
+                    "warning",
+                    f"{part.path} is a heat-only part with a negative dissipation "
+                    f"({p_parts[i]:.4g} W): it delivers power to the circuit, so heatweave "
+                    "cools it by that much",
+                    part.location,
+                    "check the orientation of its terminals (power is V*I into the part), "
+                    "or leave a source out of the annotation",
+                )
+            )
+    if np.all(p_parts >= -ABSTOL_P) and len(labels):
+        coldest = int(np.argmin(theta + eps))
+        if theta[coldest] + eps[coldest] < 0:
+            problems.append(
+                f"{labels[coldest]} at {t[coldest]:.4g} degC is colder than the ambient "
+                f"({ambient:.4g} degC) although no part dissipates a negative power"
+            )
+    return Verdict(labels, residual, tolerance, error, tuple(problems), tuple(warnings))
