@@ -1,0 +1,195 @@
+"""Every reported steady state is the circuit's, or a refusal: issue 12, section 1.
+
+Each case is reproduced with a deck of our own and held to independent references: scipy's
+brentq on the same power balance (T - Ta = Rth P(T)), closed forms of the fold
+(Vcrit = sqrt(R0 / (4 |tc1| Rth)) for a linear part with negative tc1 across a stiff source;
+Icrit = 1 / sqrt(R0 Rth tc1) for a positive TCR on a current source, where the loop gain
+I^2 R0 Rth tc1 reaches 1), and stock ngspice run on the emitted deck.
+"""
+
+from __future__ import annotations
+
+import math
+import shutil
+import subprocess
+from pathlib import Path
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from scipy.optimize import brentq
+
+from heatweave import runner
+from heatweave.cli import main
+from heatweave.errors import EXIT_THERMAL_RUNAWAY, ThermalRunawayError
+from heatweave.runaway import RunawayError
+from heatweave.verify import SCAN_STEP, fell_back
+
+BACKENDS = ["shared", "batch"]
+
+
+def write(tmp_path: Path, deck: str, note: str, name: str = "d") -> tuple[str, str]:
+    (tmp_path / f"{name}.cir").write_text(deck)
+    (tmp_path / f"{name}.thermal.toml").write_text(note)
+    return str(tmp_path / f"{name}.cir"), str(tmp_path / f"{name}.thermal.toml")
+
+
+def ptc_r(t_c: float, r_cold: float, t_switch: float, decade: float, r_max: float) -> float:
+    """The ptc model's published form (tempmodels/ptc.py docstring)."""
+    f = 10.0 ** min(max((t_c - t_switch) / decade, -86.0), 86.0)
+    return r_cold * (1 + f) / (1 + f * r_cold / r_max)
+
+
+def roots(balance: object, low: float, high: float, step: float = 0.01) -> list[float]:
+    """Every root of *balance* on [low, high] by brentq between sign changes on a grid."""
+    assert callable(balance)
+    grid = np.arange(low, high, step)
+    values = np.array([balance(t) for t in grid])
+    found = []
+    for k in np.flatnonzero(np.sign(values[:-1]) != np.sign(values[1:])):
+        found.append(float(brentq(balance, grid[k], grid[k + 1], xtol=1e-12)))
+    return found
+
+
+# A switching PTC (10 ohm cold, switch 120 degC, tenfold per kelvin, Rth 100 K/W) in series
+# with a 100 ohm load on 60 V: cold it would dissipate 3 W and rise 300 K, so only the
+# tripped state exists.  ngspice's operating point fails gmin and source stepping here and
+# falls back to its transient op, which stops near the switch temperature.
+PTC_DECK = "ptc in series with a load\nV1 rail 0 DC {v}\nRP rail mid 10\nRL mid 0 100\n.op\n.end\n"
+PTC_NOTE = (
+    'schema = 1\n[ambient]\ntemperature = 25.0\n[part.RP]\nmodel = "ptc"\n'
+    "t_switch = 120.0\ndecade = 1.0\nrth = 100.0\ncth = 0.5\n"
+)
+
+
+def ptc_balance(volts: float) -> object:
+    r_cold = 10.0 * (1 + 10 ** ((25 - 120) / 1.0) / 1e4) / (1 + 10 ** ((25 - 120) / 1.0))
+
+    def balance(t: float) -> float:
+        r = ptc_r(t, r_cold, 120.0, 1.0, 1e4 * r_cold)
+        return t - 25.0 - 100.0 * volts**2 * r / (r + 100.0) ** 2
+
+    return balance
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_tripped_ptc_reports_the_only_steady_state(tmp_path: Path, backend: str) -> None:
+    deck, note = write(tmp_path, PTC_DECK.format(v=60), PTC_NOTE)
+    (expected,) = roots(ptc_balance(60.0), 25.0, 400.0)  # scipy: the one state there is
+    outcome = runner.run(deck, note, runner.RunOptions(backend=backend))
+    part = outcome.results.part("RP")
+    assert part.temperature == pytest.approx(expected, abs=0.05)
+    assert 25.0 + 100.0 * part.power == pytest.approx(part.temperature, abs=0.05)
+    # The reader is told that ngspice's own answer was replaced, and why.
+    assert any("transient op" in f.message for f in outcome.prepared.findings)
+
+
+NGSPICE = shutil.which("ngspice")
+
+
+@pytest.mark.skipif(NGSPICE is None, reason="ngspice is not installed")
+def test_stock_ngspice_falls_back_to_transient_op_on_that_deck(tmp_path: Path) -> None:
+    # The case is real: stock ngspice, on the emitted deck, prints its fall-back and
+    # returns a temperature far from the balance (the state heatweave printed before).
+    deck, note = write(tmp_path, PTC_DECK.format(v=60), PTC_NOTE)
+    emitted = tmp_path / "e.cir"
+    CliRunner().invoke(main, ["emit", deck, "-o", str(emitted)])
+    text = emitted.read_text().replace(".op\n", ".op\n.print dc v(hw_t_rp)\n")
+    emitted.write_text(text)
+    out = subprocess.run(
+        [str(NGSPICE), "-b", str(emitted)], capture_output=True, text=True, timeout=60
+    )
+    log = out.stdout + out.stderr
+    assert fell_back(log)
+    (expected,) = roots(ptc_balance(60.0), 25.0, 400.0)
+    shown = [line for line in log.splitlines() if "hw_t_rp" in line.lower() and "=" in line]
+    if shown:  # ngspice prints "v(hw_t_rp) = 1.17...e+02"
+        assert abs(float(shown[-1].split("=")[-1]) - expected) > 5.0
+
+
+def test_ptc_below_trip_reports_cold_state_and_names_both(tmp_path: Path) -> None:
+    # 30 V: the cold state (about 25 + 100 * 0.74 W) and a tripped one both exist (scipy).
+    deck, note = write(tmp_path, PTC_DECK.format(v=30), PTC_NOTE)
+    found = roots(ptc_balance(30.0), 25.0, 400.0)
+    stable = found[0::2]  # alternating stable / unstable, starting stable from ambient
+    assert len(stable) == 2
+    outcome = runner.run(deck, note, runner.RunOptions())
+    assert outcome.results.part("RP").temperature == pytest.approx(stable[0], abs=0.05)
+    warning = next(f for f in outcome.prepared.findings if "stable steady states" in f.message)
+    assert f"{stable[0]:.4g}" in warning.message and "switched on from cold" in warning.message
+    # The second one is located by the scan (held temperatures SCAN_STEP apart, linear
+    # interpolation between them): to that step.
+    listed = warning.message.split("(")[1].split(")")[0].split(", ")
+    assert [float(x.split()[0]) for x in listed] == pytest.approx(stable, abs=SCAN_STEP)
+
+
+NEG_DECK = "negative tc1 across a supply\nV1 rail 0 DC {v!r}\nRN rail 0 100\n.op\n.end\n"
+NEG_NOTE = (
+    'schema = 1\n[ambient]\ntemperature = 25.0\n[part.RN]\nmodel = "linear"\n'
+    "tc1 = -0.004\nrth = 100.0\ncth = 0.1\n"
+)
+V_CRIT = math.sqrt(100.0 / (4 * 0.004 * 100.0))  # closed form: 7.906 V
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+@pytest.mark.parametrize("share", [0.5, 0.9, 0.99])
+def test_negative_tc1_below_vcrit_is_exact(tmp_path: Path, backend: str, share: float) -> None:
+    volts = share * V_CRIT
+    deck, note = write(tmp_path, NEG_DECK.format(v=volts), NEG_NOTE)
+    c = 100.0 * volts**2 / 100.0  # Rth V^2 / R0; theta (1 - |tc1| theta) = c
+    theta = (1 - math.sqrt(1 - 4 * 0.004 * c)) / (2 * 0.004)  # the low (stable) root
+    outcome = runner.run(deck, note, runner.RunOptions(backend=backend))
+    assert outcome.results.part("RN").temperature == pytest.approx(25.0 + theta, abs=0.02)
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+@pytest.mark.parametrize("over", [1.05, 1.5, 12.0 / V_CRIT])
+def test_negative_tc1_above_vcrit_runs_away(tmp_path: Path, backend: str, over: float) -> None:
+    deck, note = write(tmp_path, NEG_DECK.format(v=over * V_CRIT), NEG_NOTE)
+    with pytest.raises(ThermalRunawayError) as caught:
+        runner.run(deck, note, runner.RunOptions(backend=backend))
+    err = caught.value
+    assert err.exit_code == EXIT_THERMAL_RUNAWAY
+    assert isinstance(err, RunawayError) and err.diagnosis is not None
+    assert err.diagnosis.source is not None
+    assert err.diagnosis.source[1] == pytest.approx(V_CRIT, rel=2e-3)
+    assert "loop gain" in err.message
+
+
+CUR_DECK = "positive tcr on a current source\nI1 0 top DC {i!r}\nRS top 0 100\n.op\n.end\n"
+CUR_NOTE = (
+    'schema = 1\n[ambient]\ntemperature = 25.0\n[part.RS]\nmodel = "linear"\n'
+    "tc1 = 0.004\nrth = 500.0\ncth = 0.1\npower_rating = 0.25\ntmax = 155\n"
+)
+I_CRIT = 1.0 / math.sqrt(100.0 * 500.0 * 0.004)  # loop gain I^2 R0 Rth tc1 = 1
+
+
+@pytest.mark.parametrize("gain", [1.5, 3.0, 10.0, 50.0, 100.0, 200.0])
+def test_positive_tcr_on_current_source_runs_away(tmp_path: Path, gain: float) -> None:
+    # Loop gains 1.5 to 100 raised a numpy broadcasting ValueError (issue 14); at 200 the
+    # run reported -75 degC and a negative power with exit 0.
+    deck, note = write(tmp_path, CUR_DECK.format(i=I_CRIT * math.sqrt(gain)), CUR_NOTE)
+    with pytest.raises(ThermalRunawayError) as caught:
+        runner.run(deck, note, runner.RunOptions())
+    err = caught.value
+    assert isinstance(err, RunawayError) and err.diagnosis is not None
+    assert err.diagnosis.source is not None
+    assert err.diagnosis.source[1] == pytest.approx(I_CRIT, rel=0.02)
+
+
+@pytest.mark.parametrize("command", [["run"], ["check"], ["sweep", "--check", "--ambient", "25"]])
+def test_runaway_exits_7_in_every_command(tmp_path: Path, command: list[str]) -> None:
+    deck, note = write(tmp_path, CUR_DECK.format(i=I_CRIT * math.sqrt(200.0)), CUR_NOTE)
+    result = CliRunner().invoke(main, [*command, deck, "-a", note])
+    assert result.exit_code == EXIT_THERMAL_RUNAWAY, result.output
+    assert "-75" not in result.output
+
+
+def test_stable_current_source_matches_closed_form(tmp_path: Path) -> None:
+    # Below the critical current: theta = c / (1 - tc1 c), c = Rth I^2 R0 (closed form).
+    current = 0.5 * I_CRIT
+    deck, note = write(tmp_path, CUR_DECK.format(i=current), CUR_NOTE)
+    c = 500.0 * current**2 * 100.0
+    theta = c / (1 - 0.004 * c)
+    outcome = runner.run(deck, note, runner.RunOptions())
+    assert outcome.results.part("RS").temperature == pytest.approx(25.0 + theta, abs=0.02)
