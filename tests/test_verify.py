@@ -19,11 +19,11 @@ import pytest
 from click.testing import CliRunner
 from scipy.optimize import brentq
 
-from heatweave import runner
 from heatweave.cli import main
 from heatweave.errors import EXIT_THERMAL_RUNAWAY, ThermalRunawayError
-from heatweave.runaway import RunawayError
-from heatweave.verify import SCAN_STEP, fell_back
+from heatweave.run import runner
+from heatweave.run.runaway import RunawayError
+from heatweave.run.verify import SCAN_STEP, fell_back
 
 BACKENDS = ["shared", "batch"]
 
@@ -91,7 +91,7 @@ NGSPICE = shutil.which("ngspice")
 def test_stock_ngspice_falls_back_to_transient_op_on_that_deck(tmp_path: Path) -> None:
     # The case is real: stock ngspice, on the emitted deck, prints its fall-back and
     # returns a temperature far from the balance (the state heatweave printed before).
-    deck, note = write(tmp_path, PTC_DECK.format(v=60), PTC_NOTE)
+    deck, _ = write(tmp_path, PTC_DECK.format(v=60), PTC_NOTE)
     emitted = tmp_path / "e.cir"
     CliRunner().invoke(main, ["emit", deck, "-o", str(emitted)])
     text = emitted.read_text().replace(".op\n", ".op\n.print dc v(hw_t_rp)\n")
