@@ -24,6 +24,7 @@ from heatweave.annotation import (
     default_path,
     load,
     loads,
+    sample,
     schema,
 )
 from heatweave.cli.schema_cmd import schema as schema_command
@@ -141,7 +142,7 @@ def test_tolerances_loaded_and_sampled() -> None:
     assert part.param_map == {"tc1_ppm": 25.0}  # the nominal in ordinary runs
     assert dict(part.tolerances) == {"tc1_ppm": Distribution(25.0, sigma=5.0)}
     assert dict(ann.nodes[0].tolerances) == {"rth": Distribution(30.0, low=27.0, high=33.0)}
-    draws = [ann.sample(np.random.default_rng(seed)) for seed in range(2000)]
+    draws = [sample(ann, np.random.default_rng(seed)) for seed in range(2000)]
     tc1 = np.array([dict(d.parts[0].params)["tc1_ppm"] for d in draws])
     rth = np.array([d.nodes[0].rth for d in draws])
     path = np.array([d.paths[0].rth for d in draws])
@@ -152,14 +153,14 @@ def test_tolerances_loaded_and_sampled() -> None:
     assert rth.std() == pytest.approx(6.0 / math.sqrt(12), rel=0.1)  # uniform: width/sqrt(12)
     assert path.mean() == pytest.approx(100.0, abs=4 * 10.0 / math.sqrt(2000))
     assert draws[0].parts[0].tolerances == part.tolerances  # distributions kept for re-draws
-    assert ann.sample(np.random.default_rng(7)) == ann.sample(np.random.default_rng(7))
+    assert sample(ann, np.random.default_rng(7)) == sample(ann, np.random.default_rng(7))
 
 
 def test_sample_draws_from_numpy_generator() -> None:
     ann = loads(
         HEAD + '[part.R1]\nmodel = "linear"\ntc1_ppm = 5\nrth = {nominal = 10, sigma = 2}\n'
     )
-    drawn = ann.sample(np.random.default_rng(11)).parts[0].network.stages[0][0]
+    drawn = sample(ann, np.random.default_rng(11)).parts[0].network.stages[0][0]
     assert drawn == np.random.default_rng(11).normal(10.0, 2.0)
 
 

@@ -26,6 +26,8 @@ from heatweave.networks import (
     NetworkForm,
     Single,
     from_annotation,
+    to_cauer,
+    to_foster,
 )
 from heatweave.networks.fit import fit_foster
 
@@ -60,7 +62,7 @@ def _signal_step(net: NetworkForm, t: np.ndarray) -> np.ndarray:
 
 
 def _time_grid(net: NetworkForm) -> np.ndarray:
-    tau = net.to_foster().tau
+    tau = to_foster(net).tau
     return np.logspace(np.log10(tau.min()) - 2, np.log10(tau.max()) + 1.5, 120)
 
 
@@ -91,7 +93,7 @@ def test_single_without_capacitance_is_steady_only() -> None:
     assert np.array_equal(net.zth([-1.0, 0.0, 1e-9, 5.0]), [0.0, 0.0, 2.0, 2.0])
     assert np.allclose(net.impedance(S_POINTS), 2.0, rtol=0, atol=0)
     with pytest.raises(NetworkError) as info:
-        net.to_foster()
+        to_foster(net)
     assert info.value.hint
 
 
@@ -121,7 +123,7 @@ def test_cauer_step_against_scipy_signal(net: Cauer) -> None:
 def test_cauer_step_against_its_foster(net: Cauer) -> None:
     # Reference: the converted Foster network's closed form sum Ri (1 - exp(-t/taui)).
     t = _time_grid(net)
-    foster = net.to_foster()
+    foster = to_foster(net)
     closed = np.sum(foster.rth * -np.expm1(-t[:, None] / foster.tau), axis=1)
     ladder = _signal_step(net, t)
     assert np.allclose(closed, ladder, rtol=1e-8, atol=1e-10 * net.total_rth)
@@ -156,7 +158,7 @@ def test_steady_state_and_initial_rises(net: NetworkForm) -> None:
 
 @pytest.mark.parametrize("net", FOSTERS)
 def test_foster_to_cauer_invariants(net: Foster) -> None:
-    ladder = net.to_cauer()
+    ladder = to_cauer(net)
     # Same impedance everywhere (definition of the equivalence), 1e-9 relative.
     assert _relative(ladder.impedance(S_POINTS), net.impedance(S_POINTS)) < 1e-9
     # Z(0) = sum R in both forms; high-frequency limit Z ~ 1/(s C1) with 1/C1 = sum 1/Ci.
@@ -164,21 +166,21 @@ def test_foster_to_cauer_invariants(net: Foster) -> None:
     assert math.isclose(1.0 / ladder.cth[0], float(np.sum(1.0 / net.cth)), rel_tol=1e-12)
     t = _time_grid(net)
     assert np.allclose(ladder.zth(t), net.zth(t), rtol=1e-9, atol=1e-12 * net.total_rth)
-    back = ladder.to_foster()
+    back = to_foster(ladder)
     assert len(back.stages) == len(net.stages)
     assert np.allclose(np.array(back.stages), np.array(net.stages), rtol=1e-9, atol=0)
 
 
 @pytest.mark.parametrize("net", CAUERS)
 def test_cauer_to_foster_invariants(net: Cauer) -> None:
-    foster = net.to_foster()
+    foster = to_foster(net)
     assert _relative(foster.impedance(S_POINTS), net.impedance(S_POINTS)) < 1e-9
     assert math.isclose(foster.total_rth, net.total_rth, rel_tol=1e-12)
     assert math.isclose(1.0 / net.cth[0], float(np.sum(1.0 / foster.cth)), rel_tol=1e-12)
     # Poles are minus the eigenvalues of C^-1 G (reference: numpy.linalg.eigvals).
     poles = np.sort(np.linalg.eigvals(-net.state_space().a).real)
     assert np.allclose(np.sort(1.0 / foster.tau), poles, rtol=1e-9)
-    back = foster.to_cauer()
+    back = to_cauer(foster)
     assert np.allclose(np.array(back.stages), np.array(net.stages), rtol=1e-9, atol=0)
 
 
@@ -186,8 +188,8 @@ def test_conversion_is_exact_for_many_stages() -> None:
     # Derived here: ten stages over six decades, where float polynomial division fails.
     stages = tuple((0.1 * (k + 1), 10.0 ** (-5 + 0.65 * k)) for k in range(10))
     net = Foster(stages)
-    assert _relative(net.to_cauer().impedance(S_POINTS), net.impedance(S_POINTS)) < 1e-9
-    assert np.allclose(np.array(net.to_cauer().to_foster().stages), np.array(stages),
+    assert _relative(to_cauer(net).impedance(S_POINTS), net.impedance(S_POINTS)) < 1e-9
+    assert np.allclose(np.array(to_foster(to_cauer(net)).stages), np.array(stages),
                        rtol=1e-8)
 
 
@@ -211,7 +213,7 @@ def test_port_model_on_a_shared_node(net: NetworkForm) -> None:
     z = np.array([c @ np.linalg.solve(s * np.eye(n + 1) - a, b) + port.d[0, 0]
                   for s in S_POINTS])
     if isinstance(net, Cauer) or (isinstance(net, Single) and net.cth > 0):
-        ladder = net.to_cauer()
+        ladder = to_cauer(net)
         expected = Cauer((*ladder.stages, (rs, cs))).impedance(S_POINTS)
     else:
         expected = net.impedance(S_POINTS) + rs / (1.0 + S_POINTS * rs * cs)
@@ -277,7 +279,7 @@ NGSPICE = shutil.which("ngspice")
 def _spread(net: NetworkForm) -> float:
     if isinstance(net, Single) and net.cth == 0:
         return 1.0
-    tau = net.to_foster().tau
+    tau = to_foster(net).tau
     return float(tau.max() / tau.min())
 
 
@@ -289,7 +291,7 @@ SIMULATED = [p for p in [*ALL, pytest.param(Single(0.9, 0.0), id="single-steady"
 
 def _simulate(net: NetworkForm, start: str, power: float, cold: float, tmp: Path) -> tuple:
     real = net.elements("hw_", "hot", "amb", "0")
-    tau = net.to_foster().tau if not (isinstance(net, Single) and net.cth == 0) else [1e-3]
+    tau = to_foster(net).tau if not (isinstance(net, Single) and net.cth == 0) else [1e-3]
     # tstep sets ngspice's first step (tau_min/100); tmax = tstop/2000 caps later steps.
     step, stop = float(min(tau)) / 100, 5 * float(max(tau))
     rises = net.initial_rises("hw_", "hot", start, power)  # type: ignore[arg-type]

@@ -26,7 +26,7 @@ from scipy.integrate import solve_ivp
 
 from heatweave.cli import main
 from heatweave.errors import EXIT_BAD_INPUT, EXIT_THERMAL_RUNAWAY, ThermalRunawayError
-from heatweave.networks import Cauer, Foster, NetworkForm
+from heatweave.networks import Cauer, Foster, NetworkForm, to_cauer
 from heatweave.run.prepare import RunOptions
 from heatweave.run.runner import run
 from heatweave.settle.periodic import SettleOptions, settle
@@ -138,7 +138,7 @@ def test_periodic_ripple_matches_closed_form(
     """settle's ripple solver on the rectangular train, with the network as given and as
     its exactly equivalent Cauer ladder (same terminal impedance, coupled states)."""
     foster = Foster(stages)
-    network: NetworkForm = foster if form == "foster" else foster.to_cauer()
+    network: NetworkForm = foster if form == "foster" else to_cauer(foster)
     assert isinstance(network, Foster | Cauer)
     system = assemble(_system(network))
     on = duty * period

@@ -14,9 +14,10 @@ globs matching one element is an error naming both; a glob matching nothing is a
 
 from __future__ import annotations
 
-from heatweave.annotation.binding import DeckCatalog, bind, sample
+from heatweave.annotation.binding import DeckCatalog, bind
 from heatweave.annotation.fields import Distribution
 from heatweave.annotation.loader import default_path, load, loads
+from heatweave.annotation.sampling import sample
 from heatweave.annotation.schema import schema
 from heatweave.annotation.types import (
     AMBIENT,

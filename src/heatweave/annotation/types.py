@@ -9,6 +9,7 @@ from typing import Literal
 import numpy as np
 
 from heatweave.annotation.fields import Distribution
+from heatweave.annotation.ratings import derated_power
 from heatweave.bulk import fast_init
 from heatweave.errors import AnnotationError, Finding, Location
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
@@ -101,8 +102,6 @@ class PartSpec:
         """Allowed power (W) at *t_c*: full to the knee, linear to zero at tmax (IEC 60115-1)."""
         if self.power_rating is None:
             return None
-        from heatweave.annotation.ratings import derated_power
-
         return derated_power(self.power_rating, t_c, self.derating_knee, self.tmax)
 
 
@@ -150,12 +149,6 @@ class Annotation:
             if node.name == name:
                 return node
         raise KeyError(name)
-
-    def sample(self, rng: np.random.Generator) -> Annotation:
-        """A copy with every toleranced value drawn from its distribution."""
-        from heatweave.annotation.binding import sample
-
-        return sample(self, rng)
 
 
 @fast_init

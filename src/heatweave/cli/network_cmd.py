@@ -10,7 +10,7 @@ import numpy as np
 from heatweave.cli.common import guarded
 from heatweave.errors import UsageError
 from heatweave.files import read_text, write_atomic
-from heatweave.networks import Foster, NetworkError, NetworkForm
+from heatweave.networks import Foster, NetworkError, NetworkForm, to_cauer, to_foster
 from heatweave.networks.fit import FitResult, fit_foster
 from heatweave.networks.textio import ZthData, network_toml, read_network_toml, read_zth_csv
 from heatweave.quantities import SpiceQuantity
@@ -91,7 +91,7 @@ def convert_command(network_file: str, target: str, part: str | None, output: st
     networks have the same Zth at every frequency; the invariants are printed as comments.
     """
     source = read_network_toml(read_text(network_file), _shown(network_file), part)
-    converted = source.to_cauer() if target == "cauer" else source.to_foster()
+    converted = to_cauer(source) if target == "cauer" else to_foster(source)
     write_atomic(output, network_toml(converted, _invariants(source, converted)))
 
 
@@ -101,7 +101,7 @@ def _shown(path: str) -> str:
 
 def _invariants(source: NetworkForm, converted: NetworkForm) -> tuple[str, ...]:
     """Comments stating what the conversion keeps: sum of R and the first capacitance."""
-    foster, cauer = source.to_foster(), source.to_cauer()
+    foster, cauer = to_foster(source), to_cauer(source)
     return (
         f"{converted.kind} form of a {source.kind} network, same Zth(s) at every frequency",
         f"sum of rth: {converted.total_rth!r} K/W (input: {source.total_rth!r} K/W)",

@@ -15,6 +15,7 @@ from heatweave.networks.base import (
     StateSpace,
 )
 from heatweave.networks.cauer import Cauer
+from heatweave.networks.convert import to_cauer, to_foster
 from heatweave.networks.foster import Foster
 from heatweave.networks.single import Single
 
@@ -41,4 +42,6 @@ __all__ = [
     "Single",
     "StateSpace",
     "from_annotation",
+    "to_cauer",
+    "to_foster",
 ]

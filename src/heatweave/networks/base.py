@@ -14,16 +14,12 @@ from __future__ import annotations
 from abc import ABC, abstractmethod
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, ClassVar, Literal
+from typing import ClassVar, Literal
 
 import numpy as np
 import numpy.typing as npt
 
 from heatweave.errors import InputError, Location
-
-if TYPE_CHECKING:
-    from heatweave.networks.cauer import Cauer
-    from heatweave.networks.foster import Foster
 
 FloatArray = npt.NDArray[np.float64]
 ComplexArray = npt.NDArray[np.complex128]
@@ -127,12 +123,9 @@ class NetworkForm(ABC):
         """Zth(s) in K/W at complex frequencies *s* (1/s)."""
 
     @abstractmethod
-    def to_foster(self) -> Foster:
-        """The equivalent Foster network (same impedance at every frequency)."""
-
-    @abstractmethod
-    def to_cauer(self) -> Cauer:
-        """The equivalent Cauer ladder (same impedance at every frequency)."""
+    def foster_pairs(self) -> tuple[tuple[float, float], ...]:
+        """(rth, tau) of the equivalent Foster network (same impedance at every frequency);
+        :class:`NetworkError` where the form has none.  ``networks.convert`` builds on it."""
 
     @abstractmethod
     def port_model(self) -> StateSpace:

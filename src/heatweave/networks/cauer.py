@@ -12,11 +12,13 @@ from dataclasses import dataclass
 
 import numpy as np
 import numpy.typing as npt
+from scipy.linalg import eigh_tridiagonal
 
 from heatweave.networks.base import (
     ComplexArray,
     Element,
     FloatArray,
+    NetworkError,
     NetworkForm,
     Realisation,
     StateSpace,
@@ -24,7 +26,6 @@ from heatweave.networks.base import (
     positive_pairs,
     register,
 )
-from heatweave.networks.foster import Foster
 
 
 @register
@@ -76,7 +77,9 @@ class Cauer(NetworkForm):
 
     def zth(self, t: npt.ArrayLike) -> FloatArray:
         """Through the exactly equivalent Foster form (eigen-decomposition of the ladder)."""
-        return self.to_foster().zth(as_times(t))
+        pairs = np.array(self.foster_pairs())
+        after = np.maximum(as_times(t), 0.0)[..., None]
+        return np.asarray(np.sum(pairs[:, 0] * -np.expm1(-after / pairs[:, 1]), axis=-1))
 
     def impedance(self, s: npt.ArrayLike) -> ComplexArray:
         freq = np.asarray(s, dtype=complex)
@@ -86,13 +89,21 @@ class Cauer(NetworkForm):
             z = 1.0 / (freq * c + 1.0 / (r + z))
         return np.asarray(z)
 
-    def to_foster(self) -> Foster:
-        from heatweave.networks.convert import cauer_to_foster
-
-        return cauer_to_foster(self)
-
-    def to_cauer(self) -> Cauer:
-        return self
+    def foster_pairs(self) -> tuple[tuple[float, float], ...]:
+        """Partial fractions: the poles of Zth(s) are minus the eigenvalues of the ladder
+        matrix C^-1 G, made symmetric tridiagonal by scaling with C^(1/2) (see convert)."""
+        scale = 1.0 / np.sqrt(self.cth)
+        g = self.conductance()
+        diagonal = np.diag(g) * scale**2
+        off = np.diag(g, 1) * scale[:-1] * scale[1:]
+        lam, vectors = eigh_tridiagonal(diagonal, off)
+        weights = vectors[0, :] * scale[0]
+        if np.any(lam <= 0):
+            raise NetworkError(
+                "the Cauer ladder has a non-positive pole; its values are out of range",
+                hint="check that every Cauer rth and cth is positive and of sensible size",
+            )
+        return tuple(zip((weights**2 / lam).tolist(), (1.0 / lam).tolist(), strict=True))
 
     def port_model(self) -> StateSpace:
         n = len(self.stages)

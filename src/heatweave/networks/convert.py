@@ -20,12 +20,10 @@ from __future__ import annotations
 
 from fractions import Fraction
 
-import numpy as np
-from scipy.linalg import eigh_tridiagonal
-
-from heatweave.networks.base import NetworkError
+from heatweave.networks.base import NetworkError, NetworkForm
 from heatweave.networks.cauer import Cauer
 from heatweave.networks.foster import Foster
+from heatweave.networks.single import Single
 
 Poly = list[Fraction]  # coefficients, lowest power first
 
@@ -84,15 +82,18 @@ def foster_to_cauer(foster: Foster) -> Cauer:
 
 def cauer_to_foster(cauer: Cauer) -> Foster:
     """The Foster network with the Cauer ladder's impedance (partial fractions)."""
-    scale = 1.0 / np.sqrt(cauer.cth)
-    g = cauer.conductance()
-    diagonal = np.diag(g) * scale**2
-    off = np.diag(g, 1) * scale[:-1] * scale[1:]
-    lam, vectors = eigh_tridiagonal(diagonal, off)
-    weights = vectors[0, :] * scale[0]
-    if np.any(lam <= 0):
-        raise NetworkError(
-            "the Cauer ladder has a non-positive pole; its values are out of range",
-            hint="check that every Cauer rth and cth is positive and of sensible size",
-        )
-    return Foster(tuple(zip((weights**2 / lam).tolist(), (1.0 / lam).tolist(), strict=True)))
+    return Foster(cauer.foster_pairs())
+
+
+def to_foster(network: NetworkForm) -> Foster:
+    """The equivalent Foster network of any form (same impedance at every frequency)."""
+    return network if isinstance(network, Foster) else Foster(network.foster_pairs())
+
+
+def to_cauer(network: NetworkForm) -> Cauer:
+    """The equivalent Cauer ladder of any form (same impedance at every frequency)."""
+    if isinstance(network, Cauer):
+        return network
+    if isinstance(network, Single):
+        return network.ladder()
+    return foster_to_cauer(to_foster(network))

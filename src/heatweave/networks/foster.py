@@ -10,7 +10,6 @@ thermal reference.  It is exact between its two terminals only.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
 import numpy as np
 import numpy.typing as npt
@@ -26,9 +25,6 @@ from heatweave.networks.base import (
     positive_pairs,
     register,
 )
-
-if TYPE_CHECKING:
-    from heatweave.networks.cauer import Cauer
 
 
 @register
@@ -85,13 +81,8 @@ class Foster(NetworkForm):
         freq = np.asarray(s, dtype=complex)[..., None]
         return np.asarray(np.sum(self.rth / (1.0 + freq * self.tau), axis=-1))
 
-    def to_foster(self) -> Foster:
-        return self
-
-    def to_cauer(self) -> Cauer:
-        from heatweave.networks.convert import foster_to_cauer
-
-        return foster_to_cauer(self)
+    def foster_pairs(self) -> tuple[tuple[float, float], ...]:
+        return self.stages
 
     def port_model(self) -> StateSpace:
         n = len(self.stages)

@@ -23,7 +23,6 @@ from heatweave.networks.base import (
     register,
 )
 from heatweave.networks.cauer import Cauer
-from heatweave.networks.foster import Foster
 
 
 @register
@@ -69,7 +68,8 @@ class Single(NetworkForm):
     def stage_rth(self) -> tuple[float, ...]:
         return (self.rth,)
 
-    def _ladder(self) -> Cauer:
+    def ladder(self) -> Cauer:
+        """The one-stage Cauer ladder; a steady-only stage (cth = 0) has none."""
         if self.cth == 0:
             raise NetworkError(
                 "a single stage with cth = 0 has no dynamic (Foster or Cauer) form",
@@ -81,18 +81,15 @@ class Single(NetworkForm):
         times = as_times(t)
         if self.cth == 0:
             return np.where(times > 0, self.rth, 0.0)
-        return self._ladder().zth(times)
+        return self.ladder().zth(times)
 
     def impedance(self, s: npt.ArrayLike) -> ComplexArray:
         freq = np.asarray(s, dtype=complex)
         return np.asarray(self.rth / (1.0 + freq * self.tau))
 
-    def to_foster(self) -> Foster:
-        self._ladder()
-        return Foster(((self.rth, self.tau),))
-
-    def to_cauer(self) -> Cauer:
-        return self._ladder()
+    def foster_pairs(self) -> tuple[tuple[float, float], ...]:
+        self.ladder()
+        return ((self.rth, self.tau),)
 
     def port_model(self) -> StateSpace:
         if self.cth == 0:
@@ -105,7 +102,7 @@ class Single(NetworkForm):
                 ("P", "T_cold"),
                 ("T_hot", "Q_cold"),
             )
-        return self._ladder().port_model()
+        return self.ladder().port_model()
 
     def elements(self, prefix: str, hot: str, cold: str, ground: str = "0") -> Realisation:
         """``R{prefix}1`` hot to cold and, when ``cth > 0``, ``C{prefix}1`` hot to *ground*."""

@@ -14,6 +14,7 @@ import numpy as np
 from heatweave.errors import InputError, Location
 from heatweave.networks.base import FORMS, FloatArray, NetworkError, NetworkForm
 from heatweave.networks.cauer import Cauer
+from heatweave.networks.convert import to_foster
 from heatweave.networks.foster import Foster
 from heatweave.networks.single import Single
 from heatweave.quantities import parse_number
@@ -147,7 +148,7 @@ def read_network_toml(text: str, filename: str, part: str | None = None) -> Netw
     try:
         network = FORMS[key].from_annotation(_plain(table[key]))
         if isinstance(network, Single):
-            network.to_foster()  # a steady-only stage (cth = 0) has neither form: said here
+            to_foster(network)  # a steady-only stage (cth = 0) has neither form: said here
     except NetworkError as err:
         raise err.at(where) from None
     return network
