@@ -29,8 +29,8 @@ STAGES = (
     "cosim",
     "settle",
     "checks",
-    "sweep",
     "reports",
+    "sweep",
     "compare",
     "cli",
 )

@@ -245,9 +245,9 @@ def _report(
 ) -> None:
     """Warnings, the reports asked for, the table and the limit lines; then exit."""
     from heatweave.files import write_atomic
-    from heatweave.reports import sweep as sweep_report
     from heatweave.sweep import limits as sweep_limits
-    from heatweave.sweep.corners import describe, exit_status
+    from heatweave.sweep import report as sweep_report
+    from heatweave.sweep.corners import corner_ambient, describe, exit_status
 
     # Warnings every corner repeats (a dropped .control block) are printed once.
     for text in dict.fromkeys(w for o in result.outcomes for w in o.warnings):
@@ -258,7 +258,7 @@ def _report(
     if csv_file is not None:
         write_atomic(csv_file, sweep_report.render_csv(result))
     if plot_file is not None:
-        from heatweave.reports import sweep_plot
+        from heatweave.sweep import plot as sweep_plot
 
         write_atomic(plot_file, sweep_plot.render_png(result))
     if junit_file is not None:
@@ -269,7 +269,7 @@ def _report(
         click.echo(text, file=stream, nl=False)
     elif result.failed:
         for outcome in result.failed:
-            where = describe(outcome.corner, sweep_report.corner_ambient(result, outcome))
+            where = describe(outcome.corner, corner_ambient(result, outcome))
             click.echo(f"{where} failed: {outcome.error}", err=True)
     if result.checked:
         # -q keeps the violations (on stderr, like failed corners) and drops the summary.

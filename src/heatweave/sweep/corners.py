@@ -155,6 +155,17 @@ class SweepResult:
 # ------------------------------------------------------------------------------- plan
 
 
+def corner_ambient(result: SweepResult, outcome: CornerOutcome) -> float:
+    """The ambient a corner ran at (degC): the value asked for when the sweep set one (the
+    simulator reads some decimals back a bit off, 0.3 as 0.30000000000000004), else the
+    final ambient the run reported, else the annotation's."""
+    if outcome.corner.ambient is not None:
+        return outcome.corner.ambient
+    if outcome.data is not None:
+        return float(outcome.data["ambient"])
+    return result.inputs.annotation.ambient.at(0.0)
+
+
 def worker_backend(name: str) -> str:
     """The back end workers use for ``--backend NAME``: ``auto`` means the batch program
     when it is installed.  Measured with ``benchmarks/bench_sweep.py`` (a 90 ms transient

@@ -20,8 +20,7 @@ from typing import Any
 
 from heatweave.checks.limits import LimitResult
 from heatweave.reports.junit import Case
-from heatweave.reports.sweep import corner_ambient
-from heatweave.sweep.corners import CornerOutcome, SweepResult, describe
+from heatweave.sweep.corners import CornerOutcome, SweepResult, corner_ambient, describe
 
 
 @dataclass(frozen=True, slots=True)

@@ -23,8 +23,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from heatweave.reports.plot import palette
-from heatweave.reports.sweep import corner_ambient
-from heatweave.sweep.corners import PERCENTILES, SweepResult, summary
+from heatweave.sweep.corners import PERCENTILES, SweepResult, corner_ambient, summary
 
 QUANTITIES = (
     ("temperature", "part temperature (degC)"),

@@ -45,18 +45,14 @@ from heatweave import __version__
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.table import WIDTH, cell_styles, grid
 from heatweave.run.prepare import deck_analyses_of
-from heatweave.sweep.corners import PERCENTILES, CornerOutcome, SweepResult, describe, summary
-
-
-def corner_ambient(result: SweepResult, outcome: CornerOutcome) -> float:
-    """The ambient a corner ran at (degC): the value asked for when the sweep set one (the
-    simulator reads some decimals back a bit off, 0.3 as 0.30000000000000004), else the
-    final ambient the run reported, else the annotation's."""
-    if outcome.corner.ambient is not None:
-        return outcome.corner.ambient
-    if outcome.data is not None:
-        return float(outcome.data["ambient"])
-    return result.inputs.annotation.ambient.at(0.0)
+from heatweave.sweep.corners import (
+    PERCENTILES,
+    CornerOutcome,
+    SweepResult,
+    corner_ambient,
+    describe,
+    summary,
+)
 
 
 def _corner(result: SweepResult, outcome: CornerOutcome) -> dict[str, Any]:
