@@ -30,6 +30,7 @@ from heatweave.annotation.types import (
     NodeSpec,
     PartSpec,
     PathSpec,
+    ReviewSpec,
 )
 
 __all__ = [
@@ -45,6 +46,7 @@ __all__ = [
     "NodeSpec",
     "PartSpec",
     "PathSpec",
+    "ReviewSpec",
     "bind",
     "default_path",
     "load",

@@ -110,6 +110,19 @@ LIMIT_FIELDS = (
     Field("max", "number", "", "largest allowed value", "5.0"),
 )
 
+#: The ``[review]`` table: thresholds of ``heatweave compare``'s gate.
+REVIEW_FIELDS = (
+    Field("max_rise_growth", "nonnegative", "K", "most a part's rise above ambient may grow", "2"),
+    Field("max_drift_growth_ppm", "nonnegative", "ppm", "most a part's drift may grow", "50"),
+    Field(
+        "max_margin_loss_percent",
+        "nonnegative",
+        "%",
+        "most a limit's margin may shrink, in percent of the old margin",
+        "25",
+    ),
+)
+
 
 def model_fields(specs: Iterable[ParamSpec]) -> tuple[Field, ...]:
     """A temperature model's keys as fields (numbers may carry a tolerance)."""

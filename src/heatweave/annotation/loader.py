@@ -14,6 +14,7 @@ from heatweave.annotation.fields import (
     NODE_FIELDS,
     PART_FIELDS,
     PATH_FIELDS,
+    REVIEW_FIELDS,
     TOP_FIELDS,
     closest,
     model_fields,
@@ -29,13 +30,14 @@ from heatweave.annotation.types import (
     NodeSpec,
     PartSpec,
     PathSpec,
+    ReviewSpec,
 )
 from heatweave.errors import AnnotationError, Location
 from heatweave.quantities import ABSOLUTE_ZERO, below_absolute_zero
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
 from heatweave.tomlspots import KeyPath, Locator, syntax_error
 
-TOP_TABLES = ("ambient", "node", "part", "path", "limit")
+TOP_TABLES = ("ambient", "node", "part", "path", "limit", "review")
 
 
 def default_path(deck: str | Path) -> Path:
@@ -84,6 +86,7 @@ def loads(text: str, file: str = "<annotation>", deck_name: str | None = None) -
         _limit(name, table, reader) for name, table in reader.tables(raw, "limit").items()
     )
     _check_graph(nodes, parts, paths, reader)
+    review = _review(raw.get("review"), reader)
     start = str(top.values.get("start", "cold"))
     assert start in ("cold", "steady")
     return Annotation(
@@ -99,6 +102,7 @@ def loads(text: str, file: str = "<annotation>", deck_name: str | None = None) -
         limits=limits,
         warnings=tuple(reader.warnings),
         deck_name=deck_name,
+        review=review,
     )
 
 
@@ -345,6 +349,24 @@ def _limit(signal: str, table: dict[str, object], reader: TableReader) -> LimitS
             "swap them or widen the window",
         )
     return LimitSpec(signal, got.number("max_drift_ppm"), low, high, reader.table_location(path))
+
+
+def _review(table: object, reader: TableReader) -> ReviewSpec | None:
+    """The ``[review]`` table of ``heatweave compare``'s gate, if there is one."""
+    if table is None:
+        return None
+    path: KeyPath = ("review",)
+    if not isinstance(table, dict):
+        raise AnnotationError(
+            "review must be a table", reader.key_location(path), "write a [review] header"
+        )
+    got = reader.read(table, REVIEW_FIELDS, path)
+    return ReviewSpec(
+        got.number("max_rise_growth"),
+        got.number("max_drift_growth_ppm"),
+        got.number("max_margin_loss_percent"),
+        reader.table_location(path),
+    )
 
 
 def _check_graph(

@@ -11,6 +11,7 @@ from heatweave.annotation.fields import (
     NODE_FIELDS,
     PART_FIELDS,
     PATH_FIELDS,
+    REVIEW_FIELDS,
     TOP_FIELDS,
     Field,
     model_fields,
@@ -129,6 +130,7 @@ def schema() -> Schema:
                 **named,
                 "additionalProperties": {**_table(LIMIT_FIELDS), "minProperties": 1},
             },
+            "review": _table(REVIEW_FIELDS),
         }
     )
     return {

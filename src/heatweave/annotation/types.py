@@ -127,6 +127,16 @@ class LimitSpec:
 
 
 @dataclass(frozen=True, slots=True)
+class ReviewSpec:
+    """The ``[review]`` table: how much worse ``heatweave compare`` lets a change make things."""
+
+    max_rise_growth: float | None
+    max_drift_growth_ppm: float | None
+    max_margin_loss_percent: float | None
+    location: Location
+
+
+@dataclass(frozen=True, slots=True)
 class Annotation:
     """A validated annotation file; immutable, transforms return new objects."""
 
@@ -142,6 +152,7 @@ class Annotation:
     limits: tuple[LimitSpec, ...]
     warnings: tuple[Finding, ...] = ()
     deck_name: str | None = None
+    review: ReviewSpec | None = None
 
     def node(self, name: str) -> NodeSpec:
         """The node called *name* (KeyError if none)."""

@@ -16,6 +16,7 @@ from heatweave import __version__
 # command name -> "module:attribute"; a new command is one module and one line here.
 COMMANDS: dict[str, str] = {
     "check": "heatweave.cli.check_cmd:check",
+    "compare": "heatweave.cli.compare_cmd:compare",
     "emit": "heatweave.cli.emit_cmd:emit",
     "lint": "heatweave.cli.lint_cmd:lint",
     "network": "heatweave.cli.network_cmd:network",

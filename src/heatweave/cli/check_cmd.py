@@ -23,6 +23,7 @@ from heatweave.cli.common import (
     report_findings,
     simulation_options,
 )
+from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import EXIT_CHECK_FAILED
 from heatweave.reports.junit import Case, Suite, render
 
@@ -37,6 +38,7 @@ from heatweave.reports.junit import Case, Suite, render
 )
 @analysis_options
 @simulation_options
+@html_option
 @guarded
 def check(
     deck: str,
@@ -47,6 +49,7 @@ def check(
     ambient: float | None,
     backend: str,
     allow_control: bool,
+    html_file: str | None,
 ) -> None:
     """Run DECK with self-heating and check every limit its annotation file sets.
 
@@ -60,6 +63,7 @@ def check(
     from heatweave.run import runner
     from heatweave.run.prepare import RunOptions
 
+    check_html_path(html_file)
     chosen = annotation_for(deck, annotations)
     started = time.monotonic()
     try:
@@ -95,6 +99,12 @@ def check(
             for item in found
         )
         write_junit(junit_file, deck, cases, elapsed)
+    if html_file is not None:
+        from heatweave.reports.html_pages import run_page
+        from heatweave.reports.model import build_report
+
+        report = build_report(inputs, outcome)
+        write_html(html_file, lambda: run_page(report, inputs, found, command="check"))
     if any(not item.passed for item in found):
         sys.exit(EXIT_CHECK_FAILED)
 

@@ -22,6 +22,7 @@ from heatweave.cli.common import (
     run_control_options,
     simulation_options,
 )
+from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import UsageError
 
 if TYPE_CHECKING:
@@ -134,6 +135,7 @@ def check_probes_early(probes: tuple[str, ...], index: DeckIndex) -> None:
     "auto: cosim where it is accurate, else full.",
 )
 @run_control_options("Stop ngspice after this long.")
+@html_option
 @guarded
 def run(
     deck: str,
@@ -150,6 +152,7 @@ def run(
     timeout: float | None,
     method: str,
     quiet: bool,
+    html_file: str | None,
 ) -> None:
     """Simulate DECK with self-heating and report part temperatures, drift and margins.
 
@@ -162,7 +165,8 @@ def run(
     from heatweave.run.runner import run as run_deck
 
     analyses = analyses_of(op, tran)
-    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file}
+    check_html_path(html_file)
+    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--html": html_file}
     check_outputs(outputs, deck)
     annotation_path = annotation_for(deck, annotations)
     inputs = load_inputs(deck, annotation_path)
@@ -210,6 +214,10 @@ def run(
         from heatweave.reports import plot
 
         write_atomic(plot_file, plot.render_png(report))
+    if html_file is not None:
+        from heatweave.reports.html_pages import run_page
+
+        write_html(html_file, lambda: run_page(report, inputs))
     if not quiet:
         from heatweave.reports import table
 

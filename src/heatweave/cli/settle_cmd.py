@@ -16,6 +16,7 @@ from heatweave.cli.common import (
     run_control_options,
     simulation_options,
 )
+from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import UsageError
 from heatweave.quantities import SpiceQuantity
 
@@ -72,12 +73,13 @@ from heatweave.quantities import SpiceQuantity
 @simulation_options
 @report_options("Write the --envelope warm-up curve as CSV (- is stdout).", plot=False)
 @run_control_options("Stop each ngspice run after this long.")
+@html_option
 @guarded
 def settle(
     deck: str, annotations: str | None, period: float, periods: int, tstep: float | None,
     tol: float, max_iter: int, wave_tol: float, envelope: float | None,
     ambient: float | None, backend: str, allow_control: bool, json_file: str | None,
-    csv_file: str | None, timeout: float | None, quiet: bool,
+    csv_file: str | None, timeout: float | None, quiet: bool, html_file: str | None,
 ) -> None:  # fmt: skip
     """Find the thermal steady state of DECK driven periodically with period T.
 
@@ -94,6 +96,7 @@ def settle(
 
     if csv_file is not None and envelope is None:
         raise UsageError("--csv writes the warm-up curve", hint="add --envelope TSTOP")
+    check_html_path(html_file)
     outputs = {"--json": json_file, "--csv": csv_file}
     if json_file == csv_file == "-":
         raise UsageError("--json and --csv both write to stdout", hint="give one a file name")
@@ -115,6 +118,10 @@ def settle(
         write_atomic(json_file, render_json(settled, inputs))
     if csv_file is not None:
         write_atomic(csv_file, render_csv(settled))
+    if html_file is not None:
+        from heatweave.reports.html_pages import settle_page
+
+        write_html(html_file, lambda: settle_page(settled, inputs))
     if not quiet:
         stream = sys.stderr if "-" in outputs.values() else sys.stdout
         click.echo(render_table(settled), file=stream, nl=False)

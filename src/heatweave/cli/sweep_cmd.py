@@ -27,6 +27,7 @@ from heatweave.cli.common import (
     run_control_options,
     style_severity,
 )
+from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import HeatweaveError, UsageError
 from heatweave.reports.junit import Case
 
@@ -139,6 +140,7 @@ def _has_tolerances(annotation: Annotation) -> bool:
 )
 @report_options("Write one CSV row per corner and part.")
 @run_control_options("Stop ngspice after this long (each corner).")
+@html_option
 @guarded
 def sweep(
     deck: str,
@@ -161,6 +163,7 @@ def sweep(
     csv_file: str | None,
     plot_file: str | None,
     quiet: bool,
+    html_file: str | None,
 ) -> None:
     """Run DECK at every corner of a sweep, in parallel, and report each part per corner.
 
@@ -177,8 +180,9 @@ def sweep(
         raise UsageError("--seed is for --monte-carlo", hint="add --monte-carlo N")
     if junit_file is not None and not check_limits:
         raise UsageError("--junit is for --check", hint="add --check")
+    check_html_path(html_file)
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file}
-    check_outputs(outputs, deck)
+    check_outputs({**outputs, "--html": html_file}, deck)
     ambients: tuple[float | None, ...] = (None,)
     if ambient_range is not None:
         ambients = parse_range(ambient_range, "--ambient", temperature=True)
@@ -202,6 +206,10 @@ def sweep(
         if junit_file is not None:
             _write_junit(junit_file, deck, (_run_error(deck, err),))
         raise
+    if html_file is not None:
+        from heatweave.reports.html_pages import sweep_page
+
+        write_html(html_file, lambda: sweep_page(result))
     _report(result, outputs, junit_file, quiet)
 
 
