@@ -254,6 +254,30 @@ BAD = [
         'tc1_ppm is a key of model linear, quadratic: add model = "linear"',
     ),
     (
+        "review-unknown-key",
+        HEAD + "[review]\nmax_rise_grow = 2\n",
+        3,
+        1,
+        'unknown key "max_rise_grow" in [review]',
+        'did you mean "max_rise_growth"?',
+    ),
+    (
+        "review-negative",
+        HEAD + "[review]\nmax_drift_growth_ppm = -5\n",
+        3,
+        24,
+        "max_drift_growth_ppm must be zero or a positive number in ppm, not -5",
+        "for example max_drift_growth_ppm = 50",
+    ),
+    (
+        "review-not-a-table",
+        HEAD + "review = 3\n",
+        2,
+        1,
+        "review must be a table",
+        "write a [review] header",
+    ),
+    (
         "schema-2",
         "schema = 2\n",
         1,
@@ -723,6 +747,10 @@ SCHEMA_AGREEMENT = [
     pytest.param(_PART + 'foster = [["12", "-10m"]]\n', False, id="negative string tau"),
     pytest.param(HEAD + '[ambient]\nprofile = [[0, "25"], ["10m", 40]]\n', True, id="profile"),
     pytest.param(HEAD + "[node.ambient]\nrth = 3\n", False, id="node named ambient"),
+    pytest.param(HEAD + "[review]\nmax_rise_growth = 2\n", True, id="review"),
+    pytest.param(HEAD + '[review]\nmax_drift_growth_ppm = "50"\n', True, id="review string"),
+    pytest.param(HEAD + "[review]\nmax_rise_growth = -2\n", False, id="review negative"),
+    pytest.param(HEAD + "[review]\nrise = 2\n", False, id="review unknown key"),
 ]
 
 
@@ -762,3 +790,12 @@ def test_a_derating_knee_without_a_rating_is_warned(table: str, warned: bool) ->
     assert bool(found) is warned
     if warned:
         assert found[0].location is not None and found[0].location.line == 6
+
+
+def test_review_thresholds_are_read() -> None:
+    text = HEAD + "[review]\nmax_rise_growth = 2\nmax_margin_loss_percent = \"25\"\n"
+    review = loads(text, FILE).review
+    assert review is not None
+    assert (review.max_rise_growth, review.max_drift_growth_ppm) == (2.0, None)
+    assert review.max_margin_loss_percent == 25.0
+    assert loads(HEAD, FILE).review is None

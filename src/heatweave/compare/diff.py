@@ -185,13 +185,13 @@ def _limit_crossings(change: LimitChange, gate: Thresholds) -> tuple[str, ...]:
     out = []
     if change.status == "pass->FAIL":
         out.append(
-            f"held before and fails now (margin {_num(change.new.margin)} {change.new.unit})"
+            f"held before and fails now (margin {_num(change.new.margin)} {change.new.margin_unit})"
         )
     loss, limit = change.margin_loss_percent, gate.max_margin_loss_percent
     if limit is not None and loss is not None and loss > limit:
         lost = change.old.margin - change.new.margin
         out.append(
-            f"margin shrank by {_num(lost)} {change.new.unit} ({_num(loss)} %), "
+            f"margin shrank by {_num(lost)} {change.new.margin_unit} ({_num(loss)} %), "
             f"more than {_num(limit)} %"
         )
     return tuple(out)

@@ -97,6 +97,8 @@ def limit_row(change: LimitChange) -> Row:
     """One limit: old and new value, the margin's change, the verdict."""
     either = change.new or change.old
     unit = either.unit if either is not None else ""
+    if either is not None and either.margin_unit != unit:  # degC values, margins in K
+        unit = f"{unit} / {either.margin_unit}"
     delta = None
     if change.old is not None and change.new is not None:
         delta = change.new.margin - change.old.margin
@@ -108,7 +110,7 @@ def limit_row(change: LimitChange) -> Row:
         change.limit,
         f"{_limit_number(change.old, 'value')} ({_limit_number(change.old, 'margin')})",
         f"{_limit_number(change.new, 'value')} ({_limit_number(change.new, 'margin')})",
-        number(delta, unit, signed=True),
+        number(delta, either.margin_unit if either is not None else "", signed=True),
         unit,
         change.status,
         level,

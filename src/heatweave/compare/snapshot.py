@@ -49,6 +49,11 @@ class LimitFigures:
     margin: float
     passed: bool
 
+    @property
+    def margin_unit(self) -> str:
+        """The margin's unit: a temperature difference is in K, whatever the value's."""
+        return "K" if self.unit == "degC" else self.unit
+
 
 @dataclass(frozen=True, slots=True)
 class Snapshot:

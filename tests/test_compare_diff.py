@@ -1,0 +1,188 @@
+"""How ``compare`` reads saved results and holds changes to its gate (no simulator needed).
+
+The results are written here in the documented JSON forms of ``run``, ``settle`` and
+``sweep`` (:mod:`heatweave.reports.json_report`, :mod:`heatweave.settle_report`,
+:mod:`heatweave.sweep_report`); the expected figures are plain arithmetic on them.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+from typing import Any
+
+import pytest
+from click.testing import CliRunner
+
+from heatweave.cli import main
+from heatweave.compare.diff import Thresholds, compare, margin_loss_percent
+from heatweave.compare.render import render_markdown, render_table
+from heatweave.compare.snapshot import snapshot_of
+
+
+def run_part(temperature: float, ppm: float, power: float, tmax_margin: float) -> dict[str, Any]:
+    return {
+        "model": "linear",
+        "temperature": temperature,
+        "peak_temperature": None,
+        "resistance_change_ppm": ppm,
+        "power": power,
+        "ratings": {"power_rating": 1.0, "tmax": 155.0, "allowed_power": 1.0},
+        "margins": {"temperature": tmax_margin, "power": 1.0 - power, "load": power},
+    }
+
+
+def run_result(parts: dict[str, dict[str, Any]], ambient: float = 25.0) -> dict[str, Any]:
+    return {
+        "deck": "board.cir",
+        "annotations": {"path": "b.toml", "sha256": "0"},
+        "analysis": "op",
+        "ambient": ambient,
+        "parts": parts,
+        "nodes": {},
+        "warnings": [],
+    }
+
+
+OLD = run_result({"R1": run_part(45.0, 200.0, 0.30, 110.0), "R2": run_part(30.0, 50.0, 0.1, 125.0)})
+NEW = run_result(
+    {"R1": run_part(52.0, 260.0, 0.31, 103.0), "R3": run_part(28.0, 10.0, 0.05, 127.0)}
+)
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "expected"),
+    [
+        (10.0, 8.0, 20.0),  # a fifth of the room lost
+        (10.0, 12.0, -20.0),  # room gained
+        (-2.0, -3.0, 50.0),  # already over, and further over: still a loss
+        (0.0, 0.0, 0.0),
+        (0.0, -1.0, math.inf),
+    ],
+)
+def test_margin_loss_percent(old: float, new: float, expected: float) -> None:
+    assert margin_loss_percent(old, new) == expected
+
+
+def test_parts_added_removed_and_changed() -> None:
+    result = compare(snapshot_of(OLD, "old"), snapshot_of(NEW, "new"), Thresholds())
+    by_name = {p.name: p for p in result.parts}
+    assert by_name["R2"].status == "removed" and by_name["R3"].status == "added"
+    r1 = by_name["R1"]
+    rise = r1.change("rise")
+    assert rise is not None and rise.old == 20.0 and rise.new == 27.0 and rise.delta == 7.0
+    assert r1.drift_growth == 60.0
+    assert next(p.name for p in result.parts) == "R1"  # the part that got worse comes first
+    statuses = {(c.subject, c.limit): c.status for c in result.limits}
+    assert statuses[("R2", "tmax")] == "removed" and statuses[("R3", "tmax")] == "added"
+    assert statuses[("R1", "tmax")] == "pass" and result.passed
+
+
+@pytest.mark.parametrize(
+    ("gate", "crossed"),
+    [
+        (Thresholds(max_rise_growth=6.9), ["R1: rise grew by 7 K, more than 6.9 K"]),
+        (Thresholds(max_rise_growth=7.1), []),
+        (Thresholds(max_drift_growth_ppm=59.0), ["R1: drift grew by 60 ppm, more than 59 ppm"]),
+        (Thresholds(max_drift_growth_ppm=61.0), []),
+        # R1's tmax margin went from 110 K to 103 K: 6.36 % of it lost.
+        (Thresholds(max_margin_loss_percent=6.0), ["R1 tmax: margin shrank by 7 K"]),
+        (Thresholds(max_margin_loss_percent=6.5), []),
+    ],
+)
+def test_gate(gate: Thresholds, crossed: list[str]) -> None:
+    result = compare(snapshot_of(OLD, "old"), snapshot_of(NEW, "new"), gate)
+    assert len(result.crossed) == len(crossed)
+    for line, words in zip(result.crossed, crossed, strict=True):
+        assert line.startswith(words)
+    assert result.passed is (not crossed)
+
+
+def test_options_override_the_file() -> None:
+    options = Thresholds(max_rise_growth=1.0)
+    table = Thresholds(max_rise_growth=5.0, max_drift_growth_ppm=20.0)
+    assert options.over(table) == Thresholds(1.0, 20.0, None)
+
+
+def test_settle_result_reads_the_cycle_mean_and_drift_from_resistance() -> None:
+    data = {
+        "analysis": "settle",
+        "ambient": 20.0,
+        "deck": "d.cir",
+        "parts": {
+            "RH": {
+                "temperature": 50.0,
+                "peak_temperature": 53.0,
+                "resistance": 10.05,
+                "nominal_resistance": 10.0,
+                "power": 2.0,
+            }
+        },
+    }
+    part = snapshot_of(data, "s").parts["RH"]
+    assert part.settled_mean == 50.0 and part.temperature is None and part.peak == 53.0
+    assert part.rise == 30.0
+    assert part.drift_ppm == pytest.approx(5000.0)
+
+
+def test_sweep_parts_pair_up_by_corner() -> None:
+    def corner(index: int, ambient: float, temperature: float) -> dict[str, Any]:
+        return {
+            "index": index,
+            "ambient": ambient,
+            "params": {"rload": 100.0},
+            "draw": None,
+            "status": "ok",
+            "parts": {"R1": run_part(temperature, 0.0, 0.2, 100.0)},
+            "limits": [
+                {
+                    "subject": "R1",
+                    "limit": "tmax",
+                    "value": temperature,
+                    "bound": 155.0,
+                    "unit": "degC",
+                    "margin": 155.0 - temperature,
+                    "passed": True,
+                }
+            ],
+        }
+
+    old = {"corners": [corner(0, -40.0, -20.0), corner(1, 85.0, 105.0)]}
+    new = {"corners": [corner(0, 85.0, 108.0)]}  # only the hot corner is left, at index 0
+    result = compare(snapshot_of(old, "a"), snapshot_of(new, "b"), Thresholds())
+    by_name = {p.name: p for p in result.parts}
+    hot = by_name["R1 @ 85 degC, rload=100"]
+    rise = hot.change("rise")
+    assert rise is not None and rise.delta == pytest.approx(3.0)
+    assert by_name["R1 @ -40 degC, rload=100"].status == "removed"
+    assert {(c.subject, c.status) for c in result.limits} == {
+        ("R1 @ -40 degC, rload=100", "removed"),
+        ("R1 @ 85 degC, rload=100", "pass"),
+    }
+
+
+def test_markdown_puts_the_worst_first_and_folds_the_rest() -> None:
+    parts = {f"R{i}": run_part(30.0, 0.0, 0.1, 120.0) for i in range(1, 9)}
+    worse = {**parts, "R7": run_part(40.0, 0.0, 0.1, 110.0), "R3": run_part(33.0, 0.0, 0.1, 117.0)}
+    result = compare(
+        snapshot_of(run_result(parts), "a"),
+        snapshot_of(run_result(worse), "b"),
+        Thresholds(max_rise_growth=5.0),
+    )
+    text = render_markdown(result)
+    summary, folded = text.split("<details>")
+    assert summary.index("`R7`") < summary.index("`R3`")  # 10 K worse before 3 K worse
+    assert "`R1`" not in summary and "`R1`" in folded  # unchanged parts are folded away
+    assert "- :x: `R7`: rise grew by 10 K, more than 5 K" in summary
+    table = render_table(result)
+    assert "CROSSED R7: rise grew by 10 K" in table and "gate crossed 1 time" in table
+
+
+def test_results_of_two_commands_are_not_compared(tmp_path: Path) -> None:
+    run = tmp_path / "run.json"
+    run.write_text(json.dumps(OLD))
+    settle = tmp_path / "settle.json"
+    settle.write_text(json.dumps({**OLD, "analysis": "settle"}))
+    result = CliRunner().invoke(main, ["compare", str(run), str(settle)])
+    assert result.exit_code == 2 and "is a run result" in result.output
