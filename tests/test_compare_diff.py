@@ -1,8 +1,8 @@
 """How ``compare`` reads saved results and holds changes to its gate (no simulator needed).
 
 The results are written here in the documented JSON forms of ``run``, ``settle`` and
-``sweep`` (:mod:`heatweave.reports.json_report`, :mod:`heatweave.settle_report`,
-:mod:`heatweave.sweep_report`); the expected figures are plain arithmetic on them.
+``sweep`` (:mod:`heatweave.reports.json_report`, :mod:`heatweave.reports.settle`,
+:mod:`heatweave.reports.sweep`); the expected figures are plain arithmetic on them.
 """
 
 from __future__ import annotations

@@ -182,7 +182,7 @@ def compare(
 
 
 def _file_thresholds(path: str | None) -> Thresholds:
-    from heatweave.annotations import load
+    from heatweave.annotation import load
 
     if path is None:
         return Thresholds()
@@ -207,7 +207,7 @@ def _run_revisions(
     """Run DECK as it was at *revision* and as it is, with the same options."""
     from heatweave.compare.execute import run_side
     from heatweave.compare.revision import checkout
-    from heatweave.runner import RunOptions
+    from heatweave.run.prepare import RunOptions
 
     chosen = annotation_for(deck, annotations)
     options = RunOptions(

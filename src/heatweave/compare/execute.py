@@ -10,11 +10,13 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-from heatweave import checks, runner
-from heatweave.emitter import load_inputs
+from heatweave.checks import limits as checks
+from heatweave.emit.emitter import load_inputs
 from heatweave.reports import json_report
 from heatweave.reports.inputs import InputFile, input_files
 from heatweave.reports.model import RunReport, build_report
+from heatweave.run import runner
+from heatweave.run.prepare import RunOptions
 
 
 @dataclass(frozen=True, slots=True)
@@ -28,7 +30,7 @@ class Side:
     files: tuple[InputFile, ...]
 
 
-def run_side(label: str, deck: str, annotations: str, options: runner.RunOptions) -> Side:
+def run_side(label: str, deck: str, annotations: str, options: RunOptions) -> Side:
     """Run *deck* with *annotations* under *options* and check its limits."""
     inputs = load_inputs(deck, annotations)
     signals = checks.resolve_limits(inputs.annotation, inputs.index)

@@ -18,9 +18,9 @@ from typing import Any
 from heatweave import __version__
 from heatweave.compare.diff import Change, Comparison, LimitChange, PartChange, Thresholds
 from heatweave.compare.snapshot import LimitFigures
-from heatweave.junit import Case, Suite
-from heatweave.junit import render as render_junit_xml
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
+from heatweave.reports.junit import Case, Suite
+from heatweave.reports.junit import render as render_junit_xml
 from heatweave.reports.table import WIDTH, cell_styles, grid
 
 #: How many parts and limits the Markdown shows before the collapsed section.

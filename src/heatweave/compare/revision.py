@@ -17,10 +17,10 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 
-from heatweave.deck import Block, Card, Node
 from heatweave.errors import UsageError
-from heatweave.hierarchy import _include_target as include_target
-from heatweave.reader import read
+from heatweave.spice.deck import Block, Card, Node
+from heatweave.spice.hierarchy import _include_target as include_target
+from heatweave.spice.reader import read
 
 #: The longest git may take for one command before heatweave gives up on it (s).
 GIT_TIMEOUT = 60.0

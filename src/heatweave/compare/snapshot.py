@@ -2,12 +2,12 @@
 
 ``run --json``, ``settle --json`` and ``sweep --json`` results are all understood; the keys
 are read with the meaning their writers document (:mod:`heatweave.reports.json_report`,
-:mod:`heatweave.settle_report`, :mod:`heatweave.sweep_report`), so a key whose definition
+:mod:`heatweave.reports.settle`, :mod:`heatweave.reports.sweep`), so a key whose definition
 changes there changes here with it.  A sweep's parts and limits are named per corner
 (``R1 @ 85 degC, rload=100``) so that corners pair up by what they ran, not by position.
 
 Limits come from the result's ``limits`` list where it has one (``check``'s
-:meth:`~heatweave.checks.LimitResult.as_dict` form); a result without one still holds its
+:meth:`~heatweave.checks.limits.LimitResult.as_dict` form); a result without one still holds its
 parts' ``tmax`` and derated ``power_rating`` margins, which become the same two limits.
 """
 

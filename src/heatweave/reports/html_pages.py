@@ -15,14 +15,17 @@ from typing import Any
 import numpy as np
 from matplotlib.figure import Figure
 
-from heatweave.checks import LimitResult
-from heatweave.emitter import Inputs
-from heatweave.reports import json_report
+from heatweave.checks.limits import LimitResult
+from heatweave.emit.emitter import Inputs
+from heatweave.reports import json_report, plot, sweep_plot
+from heatweave.reports import settle as settle_report
+from heatweave.reports import sweep as sweep_report
 from heatweave.reports.html import Page, Section, Table, svg_of
 from heatweave.reports.inputs import input_files
 from heatweave.reports.model import RunReport
-from heatweave.settle import Settled
-from heatweave.sweep import SweepResult
+from heatweave.reports.plot import palette, time_scale
+from heatweave.settle.periodic import Settled
+from heatweave.sweep.corners import SweepResult
 
 DASH = "-"
 PPM = 1e6
@@ -108,7 +111,7 @@ def nodes_table(nodes: Mapping[str, Any]) -> Table:
 
 
 def limits_table(limits: Sequence[Mapping[str, Any]], caption: str) -> Table:
-    """Limits in :meth:`~heatweave.checks.LimitResult.as_dict` form, with their verdicts."""
+    """Limits in :meth:`~heatweave.checks.limits.LimitResult.as_dict` form, with their verdicts."""
     head = ("limit on", "limit", "value", "bound", "margin", "unit", "verdict", "detail")
     rows, levels = [], []
     for item in limits:
@@ -178,8 +181,6 @@ def run_page(
     command: str = "run",
 ) -> Page:
     """The page of ``run`` (limits from the ratings) or ``check`` (*limits* as checked)."""
-    from heatweave.reports import plot
-
     data = json_report.as_dict(report)
     checked = [item.as_dict() for item in limits] if limits is not None else rating_limits(data)
     passed = all(item["passed"] for item in checked) if checked else None
@@ -211,9 +212,7 @@ def run_page(
 
 def settle_page(settled: Settled, inputs: Inputs) -> Page:
     """The page of ``settle``: the settled period's parts and nodes, the warm-up curve."""
-    from heatweave.settle_report import as_dict, seconds
-
-    data = as_dict(settled, inputs)
+    data = settle_report.as_dict(settled, inputs)
     tables = [
         parts_table(
             data["parts"],
@@ -228,7 +227,8 @@ def settle_page(settled: Settled, inputs: Inputs) -> Page:
     if settled.envelope is not None:
         figures = (svg_of(warmup_figure([("", settled.envelope.time, settled.envelope.parts)])),)
     method = (
-        f"{inputs.deck_path}: periodic steady state, period {seconds(settled.period)}, "
+        f"{inputs.deck_path}: periodic steady state, "
+        f"period {settle_report.seconds(settled.period)}, "
         f"{settled.iterations} iterations, last change {settled.final_change:.3g} K; "
         f"ambient {settled.ambient:.2f} degC"
     )
@@ -254,8 +254,6 @@ def settle_page(settled: Settled, inputs: Inputs) -> Page:
 def warmup_figure(sides: Sequence[tuple[str, Any, Mapping[str, Any]]]) -> Figure:
     """Part temperatures over time, one (label, time, part curves) per side; with two
     sides the first is dashed and the second solid, a part keeping its colour."""
-    from heatweave.reports.plot import palette, time_scale
-
     figure = Figure(figsize=(8.0, 3.8), layout="constrained")
     axes = figure.add_subplot()
     names = sorted({name for _, _, parts in sides for name in parts})
@@ -288,10 +286,7 @@ def _corner_label(corner: Mapping[str, Any]) -> str:
 
 def sweep_page(result: SweepResult) -> Page:
     """The page of ``sweep``: one row per corner and part, the limits, the figure."""
-    from heatweave.reports import sweep_plot
-    from heatweave.sweep_report import as_dict
-
-    data = as_dict(result)
+    data = sweep_report.as_dict(result)
     rows, marks, failed = [], [], []
     limits: list[dict[str, Any]] = []
     for corner in data["corners"]:

@@ -10,7 +10,7 @@ import hashlib
 from dataclasses import dataclass
 from pathlib import Path
 
-from heatweave.emitter import Inputs
+from heatweave.emit.emitter import Inputs
 
 
 @dataclass(frozen=True, slots=True)
