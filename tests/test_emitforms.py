@@ -20,7 +20,7 @@ from heatweave.emit.forms import (
     STEP_LIMIT_OPTION,
     TRTOL_NOTE,
     added_nodes,
-    falls_back,
+    get_form,
     preamble,
     resistor_cards,
     shared_nodes,
@@ -241,9 +241,9 @@ def test_divider_form_falls_back_outside_linear_models(
     model_name: str, params: dict[str, float], expected: bool
 ) -> None:
     model = get(model_name).from_params(params, 100.0)
-    assert falls_back("divider", model) is expected
-    assert falls_back("switch", model) is False
-    assert falls_back("reference", model) is False
+    assert (not get_form("divider").handles(model)) is expected
+    assert (not get_form("switch").handles(model)) is False
+    assert (not get_form("reference").handles(model)) is False
 
 
 def test_parts_with_equal_parameters_share_one_model_card() -> None:

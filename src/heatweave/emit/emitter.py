@@ -263,16 +263,8 @@ class _Rewriter:
         """An annotated resistor's text and added names, from *part*'s model and network
         and the names given (which may be a stencil's placeholders)."""
         assert part.model is not None
-        if self.form != "reference":
-            lines = resistor_cards(self.form, name, a, b, hot, part.model, self.heating)
-            extra = added_nodes(self.form, name, part.model, self.heating)
-        else:
-            r_expr = part.model.expression(f"V({hot})")
-            v = f"V({a},{b})"
-            lines = [f"B{PREFIX}{name} {a} {b} I = {v}/({r_expr})"]
-            if self.heating:
-                lines.append(f"B{PREFIX}p_{name} 0 {hot} I = {v}*{v}/({r_expr})")
-            extra = ()
+        lines = resistor_cards(self.form, name, a, b, hot, part.model, self.heating)
+        extra = added_nodes(self.form, name, part.model, self.heating)
         text, added, thermal = self._with_network(lines, part, path, name, hot)
         return text, (*extra, *added), thermal
 

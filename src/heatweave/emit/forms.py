@@ -409,11 +409,6 @@ def added_nodes(form: str, name: str, model: TempModel, heating: bool) -> tuple[
     return get_form(form).nodes(name, model, heating)
 
 
-def falls_back(form: str, model: TempModel) -> bool:
-    """True when *form* writes the reference cards for *model* (it cannot express it)."""
-    return not get_form(form).handles(model)
-
-
 def shared_nodes(
     form: str, models: Iterable[TempModel], heating: bool = True
 ) -> tuple[str, ...]:

@@ -25,9 +25,6 @@ from heatweave.errors import Location
 
 _HEAD = re.compile(r"[ \t]*([^ \t\r\n,=()]*)")
 
-#: First characters that ngspice turns into a comment line (manual 2.1.2.2), plus ``*``.
-COMMENT_STARTS = frozenset('*=[]?()&%$§\\"!:')
-
 
 @dataclass(frozen=True, slots=True, eq=False)
 class SourceFile:
