@@ -1,1 +1,1 @@
-"""checks: see DEVELOPERS.md."""
+"""Limits and ratings held against a run's results, and lint of a deck with its annotation."""

@@ -1,1 +1,2 @@
-"""run: see DEVELOPERS.md."""
+"""One run: prepare the emitted deck, simulate it, read the results back, verify steady
+states and diagnose thermal runaway."""

@@ -1,1 +1,2 @@
-"""settle: see DEVELOPERS.md."""
+"""Periodic steady state of switching circuits: one electrical period, the thermal response
+solved exactly over the period."""

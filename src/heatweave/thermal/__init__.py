@@ -1,1 +1,2 @@
-"""thermal: see DEVELOPERS.md."""
+"""The thermal circuit built from a bound annotation, its heat balance, and the assembled
+thermal ODE and its exact propagator."""
