@@ -39,7 +39,7 @@ def test_unclosed_blocks() -> None:
     deck = FIXTURES / "unclosed.cir"
     found = rendered(deck)
     assert f"{deck}:4:1: error: .subckt never is never closed" in found
-    assert f"{deck}:6:1: error: .control without .endc" in found
+    assert f"{deck}:6:1: warning: .control without .endc runs to the end of the file" in found
 
 
 # Bad snippets: (deck body after the title, line, column, message).
@@ -48,7 +48,7 @@ BAD = [
     ("R1 a b {2*x\n", 2, 8, "unbalanced '{'"),
     ("V1 a 0 1\n.model\n", 3, 7, "expected a model name"),
     ("V1 a 0 1\nR1 a 0\n+ {1k\n", 4, 3, "unbalanced '{'"),
-    ("+ stray\n", 2, 1, "continuation line with no card to continue"),
+    ("+ stray\nR1 a 0 1\n", 2, 1, "continuation line with no card to continue"),
 ]
 
 

@@ -49,8 +49,9 @@ from heatweave.emit.stencil import Made, Stencils
 from heatweave.emit.temperature import temperature_findings
 from heatweave.errors import EmitError, Finding
 from heatweave.quantities import format_number
+from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.deck import Block, Card, Deck, Node, SourceFile
-from heatweave.spice.hierarchy import DeckIndex, Project, x_card_parts
+from heatweave.spice.hierarchy import DeckIndex, Project
 from heatweave.spice.netlist import positional_spans, rewrite_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
 

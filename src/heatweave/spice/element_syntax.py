@@ -93,7 +93,7 @@ _NEEDS_MODEL = {
     "h": "controlling voltage source",
 }
 _NONLINEAR_KEYS = {"value", "vol", "cur", "table", "poly"}
-_DIGITAL_GATES = {
+DIGITAL_GATES = {
     "buf",
     "inv",
     "and",
@@ -193,7 +193,7 @@ def _node_count(letter: str, fields: list[Field], text: str) -> int:
         return 3 if len(words) == 3 else 4
     if letter == "u":
         gate = _head_key(fields[0]) if fields else ""
-        if gate in _DIGITAL_GATES:  # U<name> <gate>[(n)] <pwr> <gnd> <nodes...> <tmodel> <io>
+        if gate in DIGITAL_GATES:  # U<name> <gate>[(n)] <pwr> <gnd> <nodes...> <tmodel> <io>
             return -2
         return 3
     return -1  # all words but the last: P, X, N

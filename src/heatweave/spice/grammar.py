@@ -86,10 +86,22 @@ def parse_card(text: str) -> CardSyntax:
         # The inline transformer makes parse() return syntax objects, not a Tree.
         result = cast(CardSyntax, parser().parse(text))
     except UnexpectedInput as exc:
-        raise _describe(exc, text) from None
+        error = _describe(exc, text)
+        if unclosed_model(text) is None:
+            raise error from None
+        # ngspice 39 reads a .model whose '(' never closes as if it closed at the end.
+        return parse_card(text + ")")
     except BuildError as exc:
         raise CardSyntaxError(exc.offset, exc.message, exc.hint) from None
     return result
+
+
+def unclosed_model(text: str) -> int | None:
+    """Where the '(' of a ``.model`` card's parameter list opens, when it never closes."""
+    if text[:6].lower() != ".model" or text[6:7] not in (" ", "\t", "("):
+        return None
+    at = _unclosed(text, "(", ")")
+    return at if at < len(text.rstrip()) and text[at] == "(" else None
 
 
 # Messages for the parser states right after a dot keyword (lower case, as written).

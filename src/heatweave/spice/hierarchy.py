@@ -19,7 +19,11 @@ from typing import TypeVar
 
 from heatweave.bulk import fast_init, paused_gc
 from heatweave.errors import DeckStructureError, Location
+from heatweave.spice import deckparams
+from heatweave.spice.cardparts import subckt_ports, x_card_parts
+from heatweave.spice.conditionals import Place, decide, may_have_conditionals
 from heatweave.spice.deck import _HEAD, Block, Card, Deck, Node, strip_inline_comment
+from heatweave.spice.expressions import Func
 from heatweave.spice.globmatch import line_numbers, line_starts, matching_heads, matching_paths
 from heatweave.spice.reader import read_file
 
@@ -56,7 +60,7 @@ def load_project(path: str) -> Project:
     includes: list[Include] = []
     cache: dict[str, Deck] = {}
     if deck.source is None or _MAY_INCLUDE.search(deck.source.text):
-        _follow(deck.body, deck.path, (os.path.abspath(path),), includes, cache)
+        _follow(deck.body, deck.path, ((os.path.abspath(path), None),), includes, cache)
     return Project(deck, tuple(includes))
 
 
@@ -84,7 +88,7 @@ def _include_target(card: Card) -> tuple[str, str | None] | None:
 def _follow(
     body: tuple[Node, ...],
     including: str,
-    chain: tuple[str, ...],
+    chain: tuple[tuple[str, str | None], ...],
     out: list[Include],
     cache: dict[str, Deck],
 ) -> None:
@@ -103,8 +107,9 @@ def _follow(
         base = Path(including).parent if including not in ("-", "<deck>") else Path(".")
         full = (base / os.path.expanduser(name)).resolve()
         where = node.location()
-        if str(full) in chain:
-            cycle = " -> ".join([*(os.path.basename(c) for c in chain), full.name])
+        link = (str(full), section.lower() if section is not None else None)
+        if link in chain:  # a section may use another section of its own file (2.8)
+            cycle = " -> ".join(_shown(c) for c in (*chain, link))
             raise DeckStructureError(
                 f"include cycle: {cycle}",
                 where,
@@ -138,7 +143,12 @@ def _follow(
         if section is not None:
             chosen = _section(deck, section, where)
         out.append(Include(node, key, section, deck, chosen))
-        _follow(chosen, key, (*chain, key), out, cache)
+        _follow(chosen, key, (*chain, link), out, cache)
+
+
+def _shown(link: tuple[str, str | None]) -> str:
+    name = os.path.basename(link[0])
+    return name if link[1] is None else f"{name} section {link[1]}"
 
 
 def _section(deck: Deck, section: str, where: Location | None) -> tuple[Node, ...]:
@@ -156,25 +166,8 @@ def _section(deck: Deck, section: str, where: Location | None) -> tuple[Node, ..
     )
 
 
-def x_card_parts(card: Card) -> tuple[list[str], str, list[str]]:
-    """(nodes, subcircuit name, parameter fields) of an ``X`` card.
-
-    The subcircuit name is the last positional field before the first ``key=value`` pair or
-    the optional ``params:`` keyword (manual 2.5.3, 2.9.3).
-    """
-    fields = card.fields()[1:]
-    stop = len(fields)
-    for i, f in enumerate(fields):
-        if f.lower() == "params:" or (i + 1 < len(fields) and fields[i + 1] == "="):
-            stop = i
-            break
-    positional = fields[:stop]
-    if not positional:
-        return [], "", fields[stop:]
-    return positional[:-1], positional[-1], fields[stop:]
-
-
 _T = TypeVar("_T")
+_PARAMS = (".param", ".func")
 _TEXT = operator.attrgetter("text")
 # Card.head's pattern after a NUL: all cards' texts joined by NULs, one scan finds them all.
 _HEADS = re.compile(r"\x00[ \t]*([^ \t\r\n,=()\x00]*)")
@@ -284,6 +277,8 @@ class DeckIndex:
         self._models: dict[str, Card] = {}
         self._top: Scope | None = None
         self._scanned: tuple[Sequence[str], str] | None = None  # see matching()
+        self.places: dict[int, Place] = {}  # cards in undecided .if branches, by id()
+        self._conditions: tuple[dict[str, float], dict[str, Func]] | None = None
 
     @property
     def top(self) -> Scope:
@@ -291,8 +286,21 @@ class DeckIndex:
         pays for indexing its cards)."""
         if self._top is None:
             with paused_gc():
-                self._top = self._scope("", None, self._expand(self.project.deck.body))
+                nodes = self._expand(self.project.deck.body)
+                sources = [self.project.deck, *(inc.deck for inc in self.project.includes)]
+                if may_have_conditionals(d.source.text for d in sources if d.source):
+                    cards = [n for n in nodes if type(n) is Card and n.name in _PARAMS]
+                    self._conditions = deckparams.values(cards)
+                self._top = self._scope("", None, self._decide(nodes))
         return self._top
+
+    def _decide(self, nodes: list[Node]) -> list[Node]:
+        """*nodes* less the branches of ``.if`` blocks that ngspice drops (2.13)."""
+        if self._conditions is None:
+            return nodes
+        kept, outcome = decide(nodes, *self._conditions)
+        self.places.update(outcome.places)
+        return kept
 
     @property
     def models(self) -> dict[str, Card]:
@@ -348,7 +356,7 @@ class DeckIndex:
         for block in blocks:
             key = block.label.lower()
             scope.subckts.setdefault(key, block)
-            scope.scopes.setdefault(key, self._scope(key, scope, list(block.body)))
+            scope.scopes.setdefault(key, self._scope(key, scope, self._decide(list(block.body))))
         return scope
 
     def _index_models(self, cards: list[Card], others: list[int], heads: list[str]) -> None:
@@ -441,17 +449,6 @@ class DeckIndex:
             definitions.append(found[0])
             scope = found[1]
         return None
-
-
-def subckt_ports(block: Block) -> list[str]:
-    """The port names of a ``.subckt`` header, before ``params:`` or ``key=value``."""
-    fields = block.header.fields()[2:]
-    ports: list[str] = []
-    for i, f in enumerate(fields):
-        if f.lower() == "params:" or (i + 1 < len(fields) and fields[i + 1] == "="):
-            break
-        ports.append(f)
-    return ports
 
 
 def global_names(index: DeckIndex) -> set[str]:

@@ -7,22 +7,20 @@ would make heatweave's output wrong; warnings are what is legal but likely a sli
 
 from __future__ import annotations
 
-import re
 from collections import Counter
 from collections.abc import Iterable, Iterator
 
 from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location
+from heatweave.spice.acceptance import rejections
+from heatweave.spice.cardparts import subckt_ports, x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node
-from heatweave.spice.grammar import syntax_of
+from heatweave.spice.grammar import syntax_of, unclosed_model
 from heatweave.spice.hierarchy import (
     DeckIndex,
     Project,
     Scope,
     global_names,
-    subckt_ports,
-    x_card_parts,
 )
-from heatweave.spice.syntax import ElementSyntax
 
 
 def _where(node: Card | ControlBlock) -> Location | None:
@@ -35,9 +33,10 @@ def _structure(body: Iterable[Node], top: bool) -> Iterator[Finding]:
     """Unclosed blocks, stray closers, orphan continuation lines."""
     for node in body:
         if isinstance(node, ControlBlock) and not node.closed:
-            yield Finding(
-                "error", ".control without .endc", _where(node), "close the block with .endc"
-            )
+            yield Finding(  # ngspice 39 warns "Missing .endc statement!" and runs it
+                "warning", ".control without .endc runs to the end of the file",
+                _where(node), "close the block with .endc",
+            )  # fmt: skip
         elif isinstance(node, Block):
             if node.end is None:
                 yield Finding(
@@ -80,7 +79,14 @@ def _parse_all(decks: Iterable[Deck], index: DeckIndex) -> Iterator[Finding]:
             except DeckSyntaxError as err:
                 yield Finding("error", err.message, err.location, err.hint)
                 continue
-            for problem in card_problems(syntax, card.logical().text, model_of):
+            logical = card.logical().text
+            opening = unclosed_model(logical)
+            if opening is not None:
+                yield Finding(
+                    "warning", "the '(' of this .model never closes; ngspice 39 reads the "
+                    "card to its end", card.location(opening), "add the ')'",
+                )  # fmt: skip
+            for problem in card_problems(syntax, logical, model_of):
                 where = card.location(problem.offset)
                 yield Finding(problem.severity, problem.message, where, problem.hint)
 
@@ -92,40 +98,16 @@ def _scopes(scope: Scope) -> Iterator[tuple[Scope, Block | None]]:
             yield found, block if block is not None else scope.subckts[key]
 
 
-# ``%vnam(V1)`` reads the current of source V1: a name, not a node (manual 12.1.1).
-_VNAM = re.compile(r"%vnam\s*\(\s*([^\s()]+)\s*\)", re.IGNORECASE)
-
-
-def _xspice_nodes(card: Card) -> list[str]:
-    """The nodes an XSPICE ``A`` card connects (``null`` ports and ``%vnam`` names aside)."""
-    syntax = syntax_of(card)
-    if not isinstance(syntax, ElementSyntax):
-        return []
-    names = {m.lower() for m in _VNAM.findall(card.logical().text)}
-    return [n.text for n in syntax.nodes if n.key not in names]
-
-
 def _connections(
     index: DeckIndex, scope: Scope, block: Block | None, globals_: set[str]
 ) -> Iterator[Finding]:
-    """Duplicate names, unknown subcircuits, nodes with a single connection (ground and
+    """Unknown subcircuits, nodes with a single connection (ground and
     ``.global`` nodes aside: one net everywhere, connected in other scopes too)."""
     from heatweave.spice.netlist import card_nodes
 
-    seen: dict[str, Card] = {}
     counts: Counter[str] = Counter()
     first: dict[str, Card] = {}
     for card in scope.cards:
-        key = card.name
-        if key in seen:
-            yield Finding(
-                "error",
-                f"duplicate element name {card.head} (first at line {_line(seen[key])})",
-                card.location(),
-                "element names must be unique within a (sub)circuit; SPICE ignores case",
-            )
-        else:
-            seen[key] = card
         if card.letter == "X":
             _nodes, sub, _params = x_card_parts(card)
             if index.lookup_subckt(sub, scope) is None:
@@ -136,10 +118,8 @@ def _connections(
                     "define it with .subckt, or include the file that does",
                 )
         try:
-            nodes = _xspice_nodes(card) if card.letter == "A" else card_nodes(card, index)
+            nodes = card_nodes(card, index)
         except HeatweaveError:
-            continue
-        if card.letter == "K":
             continue
         for node in nodes:
             low = node.lower()
@@ -172,6 +152,7 @@ def lint_project(project: Project, index: DeckIndex | None = None) -> list[Findi
     globals_ = global_names(index)
     for scope, block in _scopes(index.top):
         findings.extend(_connections(index, scope, block, globals_))
+    findings.extend(rejections(index))
     return sorted(findings, key=order)
 
 

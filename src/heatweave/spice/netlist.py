@@ -20,8 +20,12 @@ from dataclasses import dataclass
 from heatweave.bulk import fast_init
 from heatweave.errors import EmitError
 from heatweave.quantities import parse_number
+from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.deck import _FIELD, Card, Node
-from heatweave.spice.hierarchy import DeckIndex, Project, Resolved, x_card_parts
+from heatweave.spice.element_syntax import DIGITAL_GATES
+from heatweave.spice.grammar import CardSyntaxError, parse_card
+from heatweave.spice.hierarchy import DeckIndex, Project, Resolved
+from heatweave.spice.syntax import ElementSyntax
 
 _NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[A-Za-z]*"
 _NODE = r"[^\s,=()'{}\"\[\]<>~%]+"
@@ -89,13 +93,34 @@ def _node_spans(card: Card, index: DeckIndex | None) -> list[tuple[str, int, int
                 return fields[:i]
         return fields[: MODEL_ENDS_NODES[letter]]
     count = NODE_COUNT.get(letter)
-    if count is None:
-        raise EmitError(
-            f"heatweave cannot tell the terminals of {card.head} ({letter} elements)",
-            card.location(),
-            hint="annotate a subcircuit instance that contains it instead",
-        )
+    if letter == "K":  # K couples two inductors it names: no terminals (3.3.12)
+        return []
+    if count is None or (letter == "U" and _digital_gate(fields)):
+        return _grammar_nodes(card)
     return fields[:count]
+
+
+def _digital_gate(fields: list[tuple[str, int, int]]) -> bool:
+    return bool(fields) and fields[0][0].lower() in DIGITAL_GATES
+
+
+# ``%vnam(V1)`` reads the current of source V1: a name, not a node (manual 12.1.1).
+_VNAM = re.compile(r"%vnam\s*\(\s*([^\s()]+)\s*\)", re.IGNORECASE)
+
+
+def _grammar_nodes(card: Card) -> list[tuple[str, int, int]]:
+    """Nodes the grammar finds on cards without a fixed count (A, P, N, digital U): an
+    XSPICE card's ports with ``[ ]`` vectors, ``%`` types and ``~`` read as ngspice does
+    (12.1.1), ``null`` and ``%vnam`` source names left out."""
+    logical = card.logical().text
+    try:
+        syntax = parse_card(logical)
+    except CardSyntaxError as err:
+        raise EmitError(err.message, card.location(err.offset), err.hint) from None
+    if not isinstance(syntax, ElementSyntax):
+        return []
+    names = {m.lower() for m in _VNAM.findall(logical)}
+    return [(n.text, n.offset, n.end) for n in syntax.nodes if n.key not in names]
 
 
 def card_nodes(card: Card, index: DeckIndex | None = None) -> list[str]:

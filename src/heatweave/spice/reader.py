@@ -60,10 +60,11 @@ def _read(text: str, path: str, title: bool) -> Deck:
     control: list[str] | None = None  # pieces of an open .control block
     control_start = (0, "")
     append = body.append
-    for match in _CARD.finditer(text, pos):
+    match_at = _CARD.match
+    while (match := match_at(text, pos)) is not None:
+        # Matched where the last card ended: a search would skip ahead, past the '*' of
+        # a last comment line, and take its text for a card (issue 17).
         card_offset, end = match.span(2)
-        # Everything since the last card is this card's lead: its trivia lines (and, were
-        # the patterns ever to skip a character, that too: text is never lost).
         lead = text[pos:card_offset]
         card_text = text[card_offset:end]
         pos = end

@@ -1,0 +1,347 @@
+"""Decks ngspice 39 refuses to load, found before ngspice sees them (issue 14).
+
+Each rule was held against ngspice 39.3 (``tests/conformance`` runs it on a deck of each
+kind): an unknown dot card ("unimplemented control card"), a parameter no ``.param``
+defines ("Undefined parameter") or one that depends on itself ("circular parameter
+dependency"), a subcircuit that instantiates itself ("unknown subckt" after a thousand
+levels), ``nan``/``inf`` or a brace expression without a finite value ("unknown parameter"),
+an unbalanced parenthesis in a brace expression ("Closing ')' not found"), a deck with no
+circuit, and two elements of one name ("device already exists").  ``lint`` reports them
+all; ``run``, ``check``, ``settle`` and ``sweep`` refuse the deck with the first one.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterable, Iterator
+from dataclasses import dataclass
+
+from heatweave.errors import DeckStructureError, Finding
+from heatweave.spice import deckparams
+from heatweave.spice.cardparts import x_card_parts
+from heatweave.spice.conditionals import exclusive
+from heatweave.spice.deck import Block, Card, ControlBlock, iter_cards
+from heatweave.spice.expressions import (
+    BUILTIN_FUNCTIONS,
+    RUNTIME_CALLS,
+    RUNTIME_NAMES,
+    ExprError,
+    calls_used,
+    evaluate,
+    names_used,
+    unbalanced_paren,
+)
+from heatweave.spice.grammar import CardSyntaxError, parse_card
+from heatweave.spice.hierarchy import DeckIndex, Scope
+from heatweave.spice.syntax import (
+    Call,
+    ElementSyntax,
+    Field,
+    Param,
+    ParamCardSyntax,
+    Value,
+    ValueKind,
+)
+
+# Dot cards ngspice 39.3 reads: by their full name, or (second set) by any name that
+# starts so (".optio", ".params" and ".includ" are read as .options, .param, .include).
+KNOWN_DOT_CARDS = frozenset((
+    ".op", ".tran", ".ac", ".dc", ".noise", ".disto", ".pz", ".sens", ".tf", ".sp", ".pss",
+    ".optran", ".meas", ".measure", ".save", ".print", ".plot", ".width", ".ic", ".nodeset",
+    ".temp", ".end", ".endc", ".prot", ".unprot", ".if", ".elseif", ".else", ".endif", ".lib",
+    ".endl",
+))  # fmt: skip
+KNOWN_DOT_PREFIXES = (".opt", ".inc", ".param", ".func", ".global", ".four", ".probe",
+                      ".csparam", ".model", ".control", ".title", ".subckt", ".ends")  # fmt: skip
+_NOT_FINITE = frozenset({"nan", "inf", "+inf", "-inf", "infinity"})
+_EVALUATED = frozenset("rclvi")  # element values ngspice computes before the simulation
+
+
+@dataclass(frozen=True, slots=True)
+class _Expr:
+    card: Card
+    text: str  # as written, with its delimiters
+    offset: int  # in the card's logical text
+
+
+def rejections(index: DeckIndex) -> list[Finding]:
+    """Every reason ngspice 39 would refuse the deck of *index*, as located errors."""
+    cards = list(_read_cards(index))
+    found = list(_empty(index, cards))
+    found.extend(_unknown_dot_cards(cards))
+    found.extend(_parameters(index, cards))
+    found.extend(_recursion(index))
+    found.extend(duplicates(index))
+    return found
+
+
+def refuse_rejected(index: DeckIndex) -> None:
+    """Raise the first of :func:`rejections` (exit 2) before anything is simulated."""
+    for finding in rejections(index):
+        raise DeckStructureError(finding.message, finding.location, finding.hint)
+
+
+def _read_cards(index: DeckIndex) -> Iterator[Card]:
+    """The cards ngspice reads: the deck's and those its include cards bring in."""
+    yield from iter_cards(index.project.deck.body)
+    for inc in index.project.includes:
+        yield from iter_cards(inc.body)
+
+
+def _error(card: Card, offset: int, message: str, hint: str) -> Finding:
+    return Finding("error", message, card.location(offset), hint)
+
+
+def _empty(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
+    """No element, subcircuit, model or control block: ngspice has no circuit to run."""
+    deck = index.project.deck
+    if any(isinstance(n, ControlBlock) for n in deck.body):
+        return
+    for card in cards:
+        if card.is_element or card.name in (".subckt", ".model", ".lib", ".include", ".inc"):
+            return
+    where = deck.source.location(0) if deck.source is not None else None
+    yield Finding(
+        "error",
+        "the deck holds no circuit: no element card after the title line",
+        where,
+        "the first line is the title (manual 2.1.1); ngspice 39 runs nothing "
+        "(or stops) on a deck without elements",
+    )
+
+
+def _unknown_dot_cards(cards: Iterable[Card]) -> Iterator[Finding]:
+    for card in cards:
+        if not card.is_dot:
+            continue
+        name = card.name
+        if name in KNOWN_DOT_CARDS or name.startswith(KNOWN_DOT_PREFIXES):
+            continue
+        yield _error(
+            card, 0, f"unknown dot card {card.head}: ngspice 39 stops with "
+            "'unimplemented control card'",
+            "check the spelling; ngspice reads .tran .ac .dc .op .model .param .subckt "
+            ".include .lib .options .print .save .meas ... (manual chapter 2, 15)",
+        )  # fmt: skip
+
+
+# -- parameters -------------------------------------------------------------------------
+
+
+def _values(fields: Iterable[Field]) -> Iterator[Value]:
+    for field in fields:
+        if isinstance(field, Value):
+            yield field
+        elif isinstance(field, Param):
+            yield from _values((field.value, *field.more))
+        elif isinstance(field, Call):
+            yield from _values((*field.args, *field.params))
+
+
+def _expressions(card: Card) -> Iterator[_Expr]:
+    """The brace and quoted expressions ngspice evaluates before the simulation."""
+    text = card.text
+    plain = "{" not in text and "'" not in text and not _MAY_NOT_FINITE.search(text)
+    if plain and not card.name.startswith(".param"):
+        return
+    logical = card.logical().text
+    try:
+        syntax = parse_card(logical)
+    except CardSyntaxError:
+        return  # lint reports the card's grammar
+    if isinstance(syntax, ElementSyntax):
+        if syntax.letter not in _EVALUATED and syntax.letter != "x":
+            return
+        fields: tuple[Field, ...] = (*syntax.positional, *syntax.params)
+    else:
+        fields = tuple(getattr(syntax, "params", ()))
+    unbraced = isinstance(syntax, ParamCardSyntax)  # .param a = b*2 is an expression too
+    for value in _values(fields):
+        if (
+            value.kind in (ValueKind.BRACE, ValueKind.QUOTED)
+            or (value.key in _NOT_FINITE and isinstance(syntax, ElementSyntax))
+            or (unbraced and value.kind in (ValueKind.NAME, ValueKind.EXPRESSION))
+        ):
+            yield _Expr(card, value.text, value.offset)
+
+
+_MAY_NOT_FINITE = re.compile(r"(?i)(?<![\w.])[-+]?(?:nan|inf)(?![\w.])")
+
+
+def _defined_names(index: DeckIndex, cards: list[Card]) -> set[str]:
+    """Every name a ``.param`` card, a subcircuit's parameters or ``.func`` defines."""
+    names: set[str] = set()
+    for card in cards:
+        name = card.name
+        if name.startswith(".param"):
+            names.update(d.name for d in deckparams.param_defs(card))
+        elif name == ".subckt":
+            fields = card.fields()
+            names.update(f.lower() for k, f in enumerate(fields[:-1]) if fields[k + 1] == "=")
+        elif name.startswith(".func"):
+            func = deckparams.func_def(card)
+            if func is not None:
+                names.add(func.name)
+    return names
+
+
+def _parameters(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
+    defined = _defined_names(index, cards)
+    top = {id(c) for c in index.top.cards}
+    params, funcs = deckparams.values(_top_cards(index))
+    yield from _circular(index, cards)
+    for expr in (e for card in cards for e in _expressions(card)):
+        card = expr.card
+        if card.is_element and expr.text.lower().lstrip("+-") in _NOT_FINITE:
+            yield _error(card, expr.offset, f"{card.head} has the value {expr.text}: ngspice 39 "
+                         "reads it as an unknown parameter and stops",
+                         "write a finite number")  # fmt: skip
+            continue
+        inner = expr.text[1:-1] if expr.text[:1] in "{'" else expr.text
+        bad = unbalanced_paren(inner)
+        if bad is not None:
+            yield _error(card, expr.offset + (expr.text[:1] in "{'") + bad,
+                         f"unbalanced parenthesis in the expression {expr.text}",
+                         "ngspice 39 stops with \"Closing ')' not found\"; balance the "
+                         "parentheses")  # fmt: skip
+            continue
+        calls = set(calls_used(expr.text))
+        used = names_used(expr.text)
+        if calls & RUNTIME_CALLS or any(n in RUNTIME_NAMES for n, _ in used):
+            continue  # a run-time expression (behavioural values): not evaluated here
+        if calls - BUILTIN_FUNCTIONS - set(funcs) - defined:
+            continue  # a function heatweave does not know: ngspice may
+        missing = next(((n, at) for n, at in used if n not in defined), None)
+        if missing is not None:
+            name, at = missing
+            yield _error(card, expr.offset + at, f"parameter {name!r} is not defined: "
+                         "ngspice 39 stops with 'Undefined parameter'",
+                         f"define it with .param {name} = ... (manual 2.9.1)")  # fmt: skip
+            continue
+        if id(card) in top and card.name != ".param":
+            try:
+                evaluate(expr.text, params, funcs)
+            except ExprError as err:
+                if err.kind == "math":
+                    yield _error(card, expr.offset, f"the expression {expr.text} of "
+                                 f"{card.head} has no finite value: {err.message}",
+                                 "ngspice 39 stops on it; " + err.hint)  # fmt: skip
+
+
+def _top_cards(index: DeckIndex) -> Iterator[Card]:
+    """The cards at the top level of the deck and of the files it includes."""
+    bodies = [index.project.deck.body, *(inc.body for inc in index.project.includes)]
+    for body in bodies:
+        yield from (node for node in body if isinstance(node, Card))
+
+
+def _circular(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
+    """``.param`` definitions that depend on themselves, scope by scope."""
+    bodies = [[c for c in _top_cards(index) if c.name.startswith(".param")]]
+    for definition in _definitions(index.top):
+        bodies.append([c for c in iter_cards(definition.body) if c.name.startswith(".param")])
+    for body in bodies:
+        defs = {d.name: d for card in body for d in deckparams.param_defs(card)}
+        graph = {n: [u for u, _ in names_used(d.text) if u in defs] for n, d in defs.items()}
+        for name in _cycle(graph):
+            d = defs[name]
+            yield _error(d.card, d.offset, f"parameter {name!r} depends on itself: ngspice 39 "
+                         "stops with 'circular parameter dependency'",
+                         "define each parameter from numbers or other parameters")  # fmt: skip
+            break
+
+
+def _cycle(graph: dict[str, list[str]]) -> list[str]:
+    """The names on a cycle of *graph* (empty when it has none)."""
+    state: dict[str, int] = {}
+    stack: list[str] = []
+
+    def visit(node: str) -> list[str]:
+        state[node] = 1
+        stack.append(node)
+        for nxt in graph.get(node, ()):
+            if state.get(nxt) == 1:
+                return stack[stack.index(nxt) :]
+            if nxt not in state:
+                found = visit(nxt)
+                if found:
+                    return found
+        stack.pop()
+        state[node] = 2
+        return []
+
+    for node in graph:
+        if node not in state:
+            found = visit(node)
+            if found:
+                return found
+    return []
+
+
+def _definitions(scope: Scope) -> Iterator[Block]:
+    for key, inner in scope.scopes.items():
+        yield scope.subckts[key]
+        yield from _definitions(inner)
+
+
+# -- subcircuits ------------------------------------------------------------------------
+
+
+def _recursion(index: DeckIndex) -> Iterator[Finding]:
+    """A subcircuit reached again from inside itself, following the instances."""
+
+    def walk(scope: Scope, chain: tuple[str, ...]) -> Iterator[Finding]:
+        for card in scope.cards:
+            if card.letter != "X":
+                continue
+            found = index.lookup_subckt(x_card_parts(card)[1], scope)
+            if found is None:
+                continue
+            block, inner = found
+            key = f"{id(block)}"
+            if key in chain:
+                yield _error(card, 0, f"subcircuit {block.label} instantiates itself "
+                             f"({card.head} inside it): ngspice 39 stops with "
+                             "'unknown subckt'", "a subcircuit may not contain an "
+                             "instance of itself, directly or through another")  # fmt: skip
+                return
+            yield from walk(inner, (*chain, key))
+
+    seen: set[str] = set()
+    for finding in walk(index.top, ()):
+        if finding.message not in seen:
+            seen.add(finding.message)
+            yield finding
+
+
+# -- names ------------------------------------------------------------------------------
+
+
+def duplicates(index: DeckIndex) -> Iterator[Finding]:
+    """Two elements of one name in one (sub)circuit; names in different branches of one
+    undecided ``.if`` do not clash (2.13)."""
+    for scope in _all_scopes(index.top):
+        seen: dict[str, list[Card]] = {}
+        for card, head in zip(scope.cards, scope.heads, strict=True):
+            key = head.lower()
+            place = index.places.get(id(card), ())
+            earlier = seen.setdefault(key, [])
+            clash = next(
+                (c for c in earlier if not exclusive(index.places.get(id(c), ()), place)), None
+            )
+            earlier.append(card)
+            if clash is not None:
+                line = clash.location()
+                yield Finding(
+                    "error",
+                    f"duplicate element name {head} (first at line {line.line if line else 0})",
+                    card.location(),
+                    "element names must be unique within a (sub)circuit, case ignored; "
+                    "ngspice 39 stops with 'device already exists'",
+                )
+
+
+def _all_scopes(scope: Scope) -> Iterator[Scope]:
+    yield scope
+    for inner in scope.scopes.values():
+        yield from _all_scopes(inner)
