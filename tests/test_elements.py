@@ -21,7 +21,10 @@ ANNOTATION = 'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0.004\nrth = 50.0\n
 
 def deck_with(card: str) -> str:
     """A 1 V source across R1 (line 3), with a parameter and a resistor model to use."""
-    return f"values\n.param rval=2k\n{card}\nV1 a 0 DC 1\n.model rmod r rsh=100\n.op\n.end\n"
+    return (
+        f"values\n.param rval=2k\n{card}\nV1 a 0 DC 1\n.model rmod r rsh=100\n"
+        ".func half(x) {x/2}\n.func pick(c,a,b) {c ? a : b}\n.op\n.end\n"
+    )
 
 
 def emit_case(tmp_path: Path, card: str) -> tuple[Path, Path]:
@@ -76,16 +79,32 @@ BAD_VALUES = [
         "unknown-parameter",
         "R1 a 0 {rx*2}",
         8,
-        "cannot evaluate the value '{rx*2}' of R1: 'rx' is not a numeric .param",
-        "define it with a .param card the resistor sees (.param rx = ...), or write a number",
+        "cannot evaluate the value '{rx*2}' of R1: 'rx' is not defined by a .param",
+        "define it (.param rx = ...) or write a number",
     ),
-    (
-        "unknown-function",
-        "R1 a 0 {sin(rval)}",
+    (  # ngspice draws a new value on every run: no single nominal (manual 2.9.5)
+        "random-function",
+        "R1 a 0 {agauss(rval, 0.1, 3)}",
         8,
-        "cannot evaluate the value '{sin(rval)}' of R1: heatweave does not evaluate "
-        "the function 'sin'",
-        "annotated values may use + - * / ^ and abs, exp, ln, log, log10, max, min, pow, sqrt",
+        "cannot evaluate the value '{agauss(rval, 0.1, 3)}' of R1: agauss() draws a random "
+        "value (manual 2.9.5)",
+        "give the nominal value instead",
+    ),
+    (  # a function neither ngspice's brace functions nor a .func defines
+        "unknown-function",
+        "R1 a 0 {twice(rval)}",
+        8,
+        "cannot evaluate the value '{twice(rval)}' of R1: twice() is no function ngspice "
+        "knows in braces, nor a .func",
+        "define it with .func",
+    ),
+    (  # a time-dependent value inside a ternary: ngspice makes it a run-time resistor
+        "runtime-in-ternary",
+        "R1 a 0 {temper > 50 ? rval : 1k}",
+        8,
+        "cannot evaluate the value '{temper > 50 ? rval : 1k}' of R1: 'temper' changes "
+        "during the simulation",
+        RUNTIME,
     ),
     (
         "divides-by-zero",
@@ -136,6 +155,10 @@ GOOD_VALUES = [
     "R1 a 0 rval",  # ngspice 39 warns "can't find model 'rval'", then uses the parameter
     "R1 a 0 {rval} scale=3",
     "R1 a 0 1.5k rmod",  # an explicit value overrides the model's (manual 3.3.2)
+    "R1 a 0 {half(rval)*3}",  # .func (manual 2.10), issue 15
+    "R1 a 0 {rval > 1k ? rval : 1k}",  # ?: in braces (manual 2.9.5), issue 15
+    "R1 a 0 '2*pick(rval < 1k, 1k, half(rval))'",
+    "R1 a 0 {sin(0.5)*rval + nint(2.5)}",
 ]
 
 

@@ -26,6 +26,7 @@ from heatweave.cli.common import (
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import EXIT_CHECK_FAILED
 from heatweave.reports.junit import Case, Suite, render
+from heatweave.spice.acceptance import refuse_rejected
 
 
 @click.command()
@@ -68,6 +69,7 @@ def check(
     started = time.monotonic()
     try:
         inputs = load_inputs(deck, chosen)
+        refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
         signals = checks.resolve_limits(inputs.annotation, inputs.index)
         options = RunOptions(
             analyses=analyses_of(op, tran), ambient=ambient, backend=backend,

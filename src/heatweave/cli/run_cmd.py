@@ -24,6 +24,7 @@ from heatweave.cli.common import (
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import UsageError
+from heatweave.spice.acceptance import refuse_rejected
 
 if TYPE_CHECKING:
     from heatweave.spice.hierarchy import DeckIndex
@@ -170,6 +171,7 @@ def run(
     check_outputs(outputs, deck)
     annotation_path = annotation_for(deck, annotations)
     inputs = load_inputs(deck, annotation_path)
+    refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
     check_probes_early(probe, inputs.index)
     options = RunOptions(
         analyses=analyses,

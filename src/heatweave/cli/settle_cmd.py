@@ -19,6 +19,7 @@ from heatweave.cli.common import (
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import UsageError
 from heatweave.quantities import SpiceQuantity
+from heatweave.spice.acceptance import refuse_rejected
 
 
 @click.command()
@@ -102,6 +103,7 @@ def settle(
         raise UsageError("--json and --csv both write to stdout", hint="give one a file name")
     annotation_path = annotation_for(deck, annotations)
     inputs = load_inputs(deck, annotation_path)
+    refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
 
     def show(step: Step) -> None:
         click.echo(progress_line(step), err=True)

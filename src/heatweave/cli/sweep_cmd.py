@@ -30,6 +30,7 @@ from heatweave.cli.common import (
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import HeatweaveError, UsageError
 from heatweave.reports.junit import Case
+from heatweave.spice.acceptance import refuse_rejected
 
 if TYPE_CHECKING:
     from heatweave.annotation import Annotation
@@ -232,6 +233,7 @@ def _run(
     from heatweave.sweep.executors import make_executor
 
     inputs = load_inputs(deck, annotation_path)
+    refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
     limits = resolve_limits(inputs.annotation, inputs.index) if check_limits else None
     if plan.draws and not _has_tolerances(inputs.annotation):
         message = (

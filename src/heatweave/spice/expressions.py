@@ -222,7 +222,7 @@ class _Evaluator:
             try:
                 left = _BINARY[tok.text](left, right)
             except (ZeroDivisionError, ValueError):
-                raise ExprError("math", tok.offset, f"{tok.text!r} has no finite value here",
+                raise ExprError("math", tok.offset, "it divides by zero",
                                 "check the .param values it uses") from None  # fmt: skip
 
     def unary(self) -> float:

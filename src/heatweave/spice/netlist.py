@@ -8,21 +8,21 @@ model name ends the node list, which needs the deck's model names.
 
 from __future__ import annotations
 
-import ast
 import contextlib
 import functools
 import math
-import operator
 import re
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 from heatweave.bulk import fast_init
 from heatweave.errors import EmitError
 from heatweave.quantities import parse_number
+from heatweave.spice import deckparams, expressions
 from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.deck import _FIELD, Card, Node
 from heatweave.spice.element_syntax import DIGITAL_GATES
+from heatweave.spice.expressions import ExprError, Func
 from heatweave.spice.grammar import CardSyntaxError, parse_card
 from heatweave.spice.hierarchy import DeckIndex, Project, Resolved
 from heatweave.spice.syntax import ElementSyntax
@@ -165,10 +165,14 @@ _TEMPERATURE_PARAMS = ("tc1", "tc2", "tc", "tce", "temp", "dtemp")
 
 
 def resistor_value(
-    card: Card, params: Mapping[str, float], simple: re.Match[str] | None = None
+    card: Card,
+    params: Mapping[str, float],
+    simple: re.Match[str] | None = None,
+    funcs: Mapping[str, Func] | None = None,
 ) -> ResistorValue:
-    """The nominal resistance of an ``R`` card, evaluating ``{expr}`` with *params*;
-    *simple* is the card's :data:`SIMPLE_RESISTOR` match when the caller has it."""
+    """The nominal resistance of an ``R`` card, evaluating ``{expr}`` with *params* and the
+    ``.func`` definitions *funcs*; *simple* is the card's :data:`SIMPLE_RESISTOR` match
+    when the caller has it."""
     pairs: dict[str, tuple[str, int]] = {}  # key -> (value as written, logical offset)
     positional: list[tuple[str, int]] = []
     if simple is None:
@@ -194,7 +198,7 @@ def resistor_value(
             hint="write the value on the card (e.g. 10k or {rval}); geometry from a model "
             "(l, w, rsh) is not supported for annotated parts",
         )
-    ohms = evaluate(raw, params, card, at)
+    ohms = evaluate(raw, params, card, at, funcs)
     notes = []
     for key in _TEMPERATURE_PARAMS:
         if key in pairs:
@@ -210,7 +214,7 @@ def resistor_value(
     for key in ("m", "scale"):
         if key in pairs:
             text, where = pairs[key]
-            factor = evaluate(text, params, card, where)
+            factor = evaluate(text, params, card, where, funcs)
             if key == "scale":
                 ohms *= factor
             else:
@@ -280,66 +284,36 @@ def _unbraced(card: Card, written: str, start: int) -> EmitError:
     )
 
 
-_BINARY: dict[type[ast.operator], Callable[[float, float], float]] = {
-    ast.Add: operator.add,
-    ast.Sub: operator.sub,
-    ast.Mult: operator.mul,
-    ast.Div: operator.truediv,
-    ast.Pow: operator.pow,
-}
-_FUNCS: dict[str, Callable[..., float]] = {
-    "sqrt": math.sqrt, "exp": math.exp, "ln": math.log, "log": math.log,
-    "log10": math.log10, "abs": abs, "min": min, "max": max, "pow": math.pow,
-}  # fmt: skip
-_NUMBER_IN_EXPR = re.compile(r"(?<![\w.])(\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[A-Za-z]*")
-
-
 #: A node voltage or branch current in an expression: ``V(a)``, ``v(a,b)``, ``I(V1)``.
 _RUNTIME = re.compile(r"(?<![\w.])[vViI][ \t]*\(")
 _GENERIC_HINT = "annotated resistors need a number or an expression of numeric .param values"
 
 
-class _Unreadable(Exception):
-    """Why an expression has no value: the end of the message, and the hint."""
-
-    def __init__(self, why: str, hint: str = _GENERIC_HINT) -> None:
-        super().__init__(why)
-        self.why = why
-        self.hint = hint
-
-
 def evaluate(
-    text: str, params: Mapping[str, float], card: Card | None = None, at: int = 0
+    text: str,
+    params: Mapping[str, float],
+    card: Card | None = None,
+    at: int = 0,
+    funcs: Mapping[str, Func] | None = None,
 ) -> float:
     """A SPICE value: a number with scale factor, or a ``{...}``/``'...'`` expression over
-    numeric ``.param`` values (arithmetic and the common functions).  *at* is the value's
-    logical offset on *card*, where an error points."""
+    numeric ``.param`` values and ``.func`` definitions, as ngspice 39 evaluates it
+    (:mod:`heatweave.spice.expressions`).  *at* is the value's logical offset on *card*, where an
+    error points; the error says which construct has no value, and why."""
     number = parse_number(text)
     if number is not None:
         return number
-    head = card.head if card else "a card"
-    where = card.location(at) if card else None
     if _RUNTIME.search(text):
         raise _runtime(card, text, at)
-    expr = text.strip()
-    if expr[:1] in "{'" and expr[-1:] in "}'":
-        expr = expr[1:-1]
-
-    def literal(m: re.Match[str]) -> str:
-        value = parse_number(m.group(0))
-        return repr(value) if value is not None else m.group(0)
-
-    python = _NUMBER_IN_EXPR.sub(literal, expr).replace("^", "**")
     try:
-        tree = ast.parse(python, mode="eval")
-        return _eval(tree.body, {k.lower(): v for k, v in params.items()})
-    except _Unreadable as err:
-        why, hint = f": {err.why}", err.hint
-    except ZeroDivisionError:
-        why, hint = ": it divides by zero", "check the .param values it uses"
-    except (SyntaxError, ValueError, TypeError, OverflowError):
-        why, hint = "", _GENERIC_HINT
-    raise EmitError(f"cannot evaluate the value {text!r} of {head}{why}", where, hint=hint)
+        return expressions.evaluate(text, params, funcs)
+    except ExprError as err:
+        raise EmitError(
+            f"cannot evaluate the value {text!r} of {card.head if card else 'a card'}: "
+            f"{err.message}",
+            card.location(at) if card else None,
+            hint=_RUNTIME_HINT if err.kind == "runtime" else err.hint or _GENERIC_HINT,
+        ) from None
 
 
 def _runtime(card: Card | None, text: str, at: int) -> EmitError:
@@ -348,39 +322,18 @@ def _runtime(card: Card | None, text: str, at: int) -> EmitError:
         f"the value {text!r} of {card.head if card else 'a card'} depends on node voltages "
         "or currents: such values cannot be annotated",
         card.location(at) if card else None,
-        hint="give the resistor a fixed value (a number or an expression of .param values), "
-        "or leave it out of the annotation file",
+        hint=_RUNTIME_HINT,
     )
 
 
-def _eval(node: ast.expr, params: Mapping[str, float]) -> float:
-    if isinstance(node, ast.Constant) and isinstance(node.value, int | float):
-        return float(node.value)
-    if isinstance(node, ast.Name):
-        if node.id.lower() not in params:
-            raise _Unreadable(
-                f"{node.id!r} is not a numeric .param",
-                f"define it with a .param card the resistor sees (.param {node.id} = ...), "
-                "or write a number",
-            )
-        return params[node.id.lower()]
-    if isinstance(node, ast.UnaryOp) and isinstance(node.op, ast.USub | ast.UAdd):
-        value = _eval(node.operand, params)
-        return -value if isinstance(node.op, ast.USub) else value
-    if isinstance(node, ast.BinOp) and type(node.op) in _BINARY:
-        return _BINARY[type(node.op)](_eval(node.left, params), _eval(node.right, params))
-    if isinstance(node, ast.Call) and isinstance(node.func, ast.Name):
-        func = _FUNCS.get(node.func.id.lower())
-        if func is None:
-            raise _Unreadable(
-                f"heatweave does not evaluate the function {node.func.id!r}",
-                "annotated values may use + - * / ^ and " + ", ".join(sorted(_FUNCS)),
-            )
-        return float(func(*(_eval(a, params) for a in node.args)))
-    raise ValueError("unsupported expression")
+_RUNTIME_HINT = (
+    "give the resistor a fixed value (a number or an expression of .param values), "
+    "or leave it out of the annotation file"
+)
 
 
 _PARAM_CARD = re.compile(r"\.[pP][aA][rR][aA][mM]")  # a first look; see top_params
+_FUNC_CARD = re.compile(r"\.[fF][uU][nN][cC]")
 
 
 def top_params(index: DeckIndex) -> dict[str, float]:
@@ -393,6 +346,17 @@ def top_params(index: DeckIndex) -> dict[str, float]:
         return values
     _param_cards(project.deck.body, values, project)
     return values
+
+
+def top_funcs(index: DeckIndex) -> dict[str, Func]:
+    """The ``.func`` definitions of the deck's top level and of the files it includes."""
+    project = index.project
+    sources = [project.deck.source, *(inc.deck.source for inc in project.includes)]
+    if all(s is not None and _FUNC_CARD.search(s.text) is None for s in sources):
+        return {}
+    bodies = [project.deck.body, *(inc.body for inc in project.includes)]
+    cards = (n for body in bodies for n in body if isinstance(n, Card) and n.name == ".func")
+    return deckparams.values(cards)[1]
 
 
 def scope_params(top: Mapping[str, float], found: Resolved) -> dict[str, float]:

@@ -146,11 +146,13 @@ def build_circuit(
         resistor_value,
         scope_params,
         simple_resistor,
+        top_funcs,
         top_params,
     )
 
     findings: list[Finding] = list(annotation.warnings)
     params = top_params(index)
+    funcs = top_funcs(index)
 
     def node_of(label: str) -> str:
         return AMBIENT_NODE if label == AMBIENT else shared_node(label)
@@ -190,7 +192,7 @@ def build_circuit(
                     if chain not in scoped:
                         scoped[chain] = scope_params(params, found)
                     seen = scoped[chain]
-                value = resistor_value(card, seen, simple)
+                value = resistor_value(card, seen, simple, funcs)
                 if value.notes:
                     findings.extend(
                         Finding("warning", f"{item.element}: {note}", found.card.location())
