@@ -19,7 +19,7 @@ from dataclasses import dataclass
 from heatweave.errors import DeckStructureError, Finding
 from heatweave.spice import deckparams
 from heatweave.spice.cardparts import x_card_parts
-from heatweave.spice.conditionals import exclusive
+from heatweave.spice.conditionals import condition_text, exclusive
 from heatweave.spice.deck import Block, Card, ControlBlock, iter_cards
 from heatweave.spice.expressions import (
     BUILTIN_FUNCTIONS,
@@ -67,7 +67,8 @@ class _Expr:
 def rejections(index: DeckIndex) -> list[Finding]:
     """Every reason ngspice 39 would refuse the deck of *index*, as located errors."""
     cards = list(_read_cards(index))
-    found = list(_empty(index, cards))
+    found = list(_title(index))
+    found.extend(_empty(index, cards))
     found.extend(_unknown_dot_cards(cards))
     found.extend(_parameters(index, cards))
     found.extend(_recursion(index))
@@ -108,6 +109,25 @@ def _empty(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
         "the first line is the title (manual 2.1.1); ngspice 39 runs nothing "
         "(or stops) on a deck without elements",
     )
+
+
+def _title(index: DeckIndex) -> Iterator[Finding]:
+    """A title line that ngspice 39 reads as a card after all (checked on 39.3)."""
+    deck = index.project.deck
+    title = (deck.title or "").strip()
+    word = title.split(None, 1)[0].lower() if title else ""
+    where = deck.source.location(0) if deck.source is not None else None
+    hint = "the first line is the title (manual 2.1.1): put a title line above this card"
+    if word.startswith(".param"):
+        yield Finding("error", "the title line starts with .param: ngspice 39 stops with "
+                      "'title line is missing'", where, hint)  # fmt: skip
+    elif word in (".if", ".elseif", ".else", ".endif"):
+        yield Finding("error", f"the title line starts with {word}: ngspice 39 stops with "
+                      "'Mismatch of .if ... .endif statements'", where, hint)  # fmt: skip
+    elif word.startswith(".inc"):
+        yield Finding("warning", "the title line is an .include: ngspice 39 reads the file, "
+                      "heatweave does not (its elements and nodes are not checked)", where,
+                      hint)  # fmt: skip
 
 
 def _unknown_dot_cards(cards: Iterable[Card]) -> Iterator[Finding]:
@@ -165,6 +185,14 @@ def _expressions(card: Card) -> Iterator[_Expr]:
             yield _Expr(card, value.text, value.offset)
 
 
+def _condition(card: Card) -> Iterator[_Expr]:
+    """The condition of an ``.if``/``.elseif`` card, as a brace expression."""
+    if card.name in (".if", ".elseif"):
+        text = condition_text(card)
+        if text is not None:
+            yield _Expr(card, "{" + text + "}", card.logical().text.index(text) - 1)
+
+
 _MAY_NOT_FINITE = re.compile(r"(?i)(?<![\w.])[-+]?(?:nan|inf)(?![\w.])")
 
 
@@ -190,7 +218,7 @@ def _parameters(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
     top = {id(c) for c in index.top.cards}
     params, funcs = deckparams.values(_top_cards(index))
     yield from _circular(index, cards)
-    for expr in (e for card in cards for e in _expressions(card)):
+    for expr in (e for card in cards for e in (*_expressions(card), *_condition(card))):
         card = expr.card
         if card.is_element and expr.text.lower().lstrip("+-") in _NOT_FINITE:
             yield _error(card, expr.offset, f"{card.head} has the value {expr.text}: ngspice 39 "
@@ -202,8 +230,8 @@ def _parameters(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
         if bad is not None:
             yield _error(card, expr.offset + (expr.text[:1] in "{'") + bad,
                          f"unbalanced parenthesis in the expression {expr.text}",
-                         "ngspice 39 stops with \"Closing ')' not found\"; balance the "
-                         "parentheses")  # fmt: skip
+                         "ngspice 39 stops on it (\"Closing ')' not found\", \"Syntax "
+                         "error\"); balance the parentheses")  # fmt: skip
             continue
         calls = set(calls_used(expr.text))
         used = names_used(expr.text)
@@ -243,12 +271,14 @@ def _circular(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
     for body in bodies:
         defs = {d.name: d for card in body for d in deckparams.param_defs(card)}
         graph = {n: [u for u, _ in names_used(d.text) if u in defs] for n, d in defs.items()}
-        for name in _cycle(graph):
-            d = defs[name]
-            yield _error(d.card, d.offset, f"parameter {name!r} depends on itself: ngspice 39 "
-                         "stops with 'circular parameter dependency'",
+        cycle = _cycle(graph)
+        if cycle:
+            d = defs[cycle[0]]
+            says = "Undefined parameter" if len(cycle) == 1 else "circular parameter dependency"
+            path = " -> ".join((*cycle, cycle[0]))
+            yield _error(d.card, d.offset, f"parameter {cycle[0]!r} depends on itself ({path}): "
+                         f"ngspice 39 stops with '{says}'",
                          "define each parameter from numbers or other parameters")  # fmt: skip
-            break
 
 
 def _cycle(graph: dict[str, list[str]]) -> list[str]:
