@@ -2,7 +2,7 @@
 
 The results are written here in the documented JSON forms of ``run``, ``settle`` and
 ``sweep`` (:mod:`heatweave.reports.json_report`, :mod:`heatweave.reports.settle`,
-:mod:`heatweave.reports.sweep`); the expected figures are plain arithmetic on them.
+:mod:`heatweave.sweep.report`); the expected figures are plain arithmetic on them.
 """
 
 from __future__ import annotations

@@ -208,7 +208,7 @@ def sweep(
             _write_junit(junit_file, deck, (_run_error(deck, err),))
         raise
     if html_file is not None:
-        from heatweave.reports.html_pages import sweep_page
+        from heatweave.sweep.page import sweep_page
 
         write_html(html_file, lambda: sweep_page(result))
     _report(result, outputs, junit_file, quiet)

@@ -2,7 +2,7 @@
 
 ``run --json``, ``settle --json`` and ``sweep --json`` results are all understood; the keys
 are read with the meaning their writers document (:mod:`heatweave.reports.json_report`,
-:mod:`heatweave.reports.settle`, :mod:`heatweave.reports.sweep`), so a key whose definition
+:mod:`heatweave.reports.settle`, :mod:`heatweave.sweep.report`), so a key whose definition
 changes there changes here with it.  A sweep's parts and limits are named per corner
 (``R1 @ 85 degC, rload=100``) so that corners pair up by what they ran, not by position.
 
