@@ -25,7 +25,13 @@ from click.testing import CliRunner
 from scipy.integrate import solve_ivp
 
 from heatweave.cli import main
-from heatweave.errors import EXIT_BAD_INPUT, EXIT_THERMAL_RUNAWAY, ThermalRunawayError
+from heatweave.errors import (
+    EXIT_BAD_INPUT,
+    EXIT_SIMULATION_FAILED,
+    EXIT_THERMAL_RUNAWAY,
+    ThermalRunawayError,
+    UsageError,
+)
 from heatweave.networks import Cauer, Foster, NetworkForm, to_cauer
 from heatweave.run.prepare import RunOptions
 from heatweave.run.runner import run
@@ -320,7 +326,7 @@ def test_cli_json_csv_and_table(tmp_path: Path) -> None:
     deck, annotation = fixture("pwm_heater")
     out, csv = tmp_path / "settle.json", tmp_path / "warm.csv"
     args = ["settle", deck, "-a", annotation, "--period", "1m", "--json", str(out),
-            "--envelope", "60m", "--csv", str(csv)]  # fmt: skip
+            "--warmup", "60m", "--csv", str(csv)]  # fmt: skip
     result = CliRunner().invoke(main, args)
     assert result.exit_code == 0, result.output
     data = json.loads(out.read_text())
@@ -338,25 +344,60 @@ def test_cli_json_csv_and_table(tmp_path: Path) -> None:
     assert "R1" in result.output and "caution:" in result.output
 
 
+@pytest.mark.parametrize("period", ["700u", "1.5m", "0.5m"])
+def test_period_the_source_does_not_repeat_with_is_refused_at_its_card(period: str) -> None:
+    """A 1 kHz PULSE examined in 0.7, 1.5 or 0.5 ms windows: refused before simulating,
+    naming the source card (FILE:LINE), as the waveforms never repeat with that period."""
+    deck, annotation = fixture("pwm_heater")
+    result = CliRunner().invoke(main, ["settle", deck, "-a", annotation, "--period", period])
+    assert result.exit_code == EXIT_BAD_INPUT, result.output
+    assert f"{deck}:2:" in result.output and "not a period of V1's PULSE" in result.output
+    assert "Traceback" not in result.output
+
+
 @needs_ngspice
 @pytest.mark.ngspice
-@pytest.mark.parametrize("envelope", [None, 0.06], ids=["steady", "with-envelope"])
-def test_wrong_period_warns_once(envelope: float | None) -> None:
-    """A 1 kHz drive examined in 0.7 ms windows never repeats: every electrical simulation
-    sees it, but the report says so once, with the largest difference seen."""
+def test_waveform_that_does_not_repeat_is_refused() -> None:
+    """A drive heatweave cannot read (a B source of time, 1 kHz) with a 0.7 ms period: the
+    waveforms of consecutive periods differ point by point, so no state is reported."""
+    deck, annotation = fixture("sine_expr")
+    result = CliRunner().invoke(main, ["settle", deck, "-a", annotation, "--period", "0.7m"])
+    assert result.exit_code == EXIT_SIMULATION_FAILED, result.output
+    assert "does not repeat with period 700 us" in result.output
+    assert "the power of R1" in result.output or "V(drive)" in result.output
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_waveform_that_repeats_settles_to_the_closed_form() -> None:
+    """The same deck with its true period: v = 5 + 5 sin(wt) into 50 ohm without TCR has
+    mean power (25 + 25/2) / 50 = 0.75 W (mean of sin^2 is 1/2), so the cycle mean is
+    25 + 20 K/W x 0.75 W = 40 degC (closed form); without --period the B source is refused."""
+    deck, annotation = fixture("sine_expr")
+    settled = settle(deck, annotation, SettleOptions(period=1e-3))
+    part = settled.parts[0]
+    assert part.power == pytest.approx(0.75, rel=1e-3)
+    assert part.temperature == pytest.approx(40.0, abs=0.02)
+    with pytest.raises(UsageError, match="B1"):
+        settle(deck, annotation, SettleOptions())
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_period_taken_from_the_source_and_said() -> None:
     deck, annotation = fixture("pwm_heater")
-    options = SettleOptions(period=7e-4, max_periods=8, envelope=envelope, envelope_points=3)
-    settled = settle(deck, annotation, options)
-    waveform = [f for f in settled.findings if "waveform" in f.message]
-    assert len(waveform) == 1, [f.message for f in waveform]
-    assert "--period" in (waveform[0].hint or "")
+    result = CliRunner().invoke(main, ["settle", deck, "-a", annotation])
+    assert result.exit_code == 0, result.output
+    assert "period 1 ms" in result.output
+    assert f"period: taken from V1's PULSE ({deck}:2)" in result.output
 
 
 @pytest.mark.parametrize(
     ("args", "needle"),
     [
         (["--period", "0"], "--period"),
-        (["--period", "1m", "--csv", "x.csv"], "--envelope"),
+        (["--period", "1m", "--csv", "x.csv"], "--warmup"),
+        (["--period", "1m", "--warmup", "1", "--envelope", "1"], "--envelope"),
         (["--period", "1m", "--periods", "1"], "--periods"),
         (["--period", "1m", "--tstep", "2m"], "--tstep"),
     ],

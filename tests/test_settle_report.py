@@ -12,7 +12,8 @@ import numpy as np
 from heatweave.reports.cautions import CAUTION_LINE
 from heatweave.reports.settle import render_csv, render_table
 from heatweave.reports.table import WIDTH
-from heatweave.settle.periodic import Envelope, PartSettled, Settled
+from heatweave.settle.periodic import PartSettled, Settled
+from heatweave.settle.warmup import Envelope
 
 # Values chosen to need all 17 significant digits, so rounding anywhere shows.
 TIME = np.array([0.0, 0.1234567890123456789, 2.718281828459045])

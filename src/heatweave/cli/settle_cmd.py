@@ -16,8 +16,7 @@ from heatweave.cli.common import (
     run_control_options,
     simulation_options,
 )
-from heatweave.cli.html_out import check_html_path, html_option, write_html
-from heatweave.errors import UsageError
+from heatweave.errors import Finding, UsageError
 from heatweave.quantities import SpiceQuantity
 from heatweave.spice.acceptance import refuse_rejected
 
@@ -26,10 +25,11 @@ from heatweave.spice.acceptance import refuse_rejected
 @deck_options
 @click.option(
     "--period",
-    required=True,
     type=SpiceQuantity("s", positive=True),
     metavar="T",
-    help="Period of the drive, e.g. 1m or 10u.",
+    help="Period of the drive, e.g. 1m or 10u; it must be a whole multiple of every "
+    "source's period (default: the least common period of the deck's PULSE, SIN, PWL r=, "
+    "SFFM and AM sources).",
 )
 @click.option(
     "--periods",
@@ -66,28 +66,39 @@ from heatweave.spice.acceptance import refuse_rejected
     help="Relative difference allowed between two successive periods.",
 )
 @click.option(
-    "--envelope",
+    "--warmup",
     type=SpiceQuantity("s", positive=True),
     metavar="TSTOP",
-    help="Also compute the warm-up from cold up to TSTOP (JSON and CSV).",
+    help="Also compute the warm-up from cold up to TSTOP (JSON, CSV and plot).",
+)
+@click.option(
+    "--envelope",
+    "old_envelope",
+    type=SpiceQuantity("s", positive=True),
+    metavar="TSTOP",
+    hidden=True,
+    help="Former name of --warmup.",
 )
 @simulation_options
-@report_options("Write the --envelope warm-up curve as CSV (- is stdout).", plot=False)
+@report_options("Write the --warmup curve as CSV (- is stdout).", plot=False)
 @run_control_options("Stop each ngspice run after this long.")
 @html_option
 @guarded
 def settle(
-    deck: str, annotations: str | None, period: float, periods: int, tstep: float | None,
-    tol: float, max_iter: int, wave_tol: float, envelope: float | None,
-    ambient: float | None, backend: str, allow_control: bool, json_file: str | None,
-    csv_file: str | None, timeout: float | None, quiet: bool, html_file: str | None,
+    deck: str, annotations: str | None, period: float | None, periods: int,
+    tstep: float | None, tol: float, max_iter: int, wave_tol: float, warmup: float | None,
+    old_envelope: float | None, ambient: float | None, backend: str, allow_control: bool,
+    json_file: str | None, csv_file: str | None, timeout: float | None, quiet: bool,
 ) -> None:  # fmt: skip
-    """Find the thermal steady state of DECK driven periodically with period T.
+    """Find the thermal steady state of DECK driven periodically.
 
-    Simulates a few periods at fixed part temperatures, averages each part's dissipation
-    over a period, solves the thermal network for its steady state, and repeats until
-    the temperatures stop changing; then reports each part's cycle-mean, peak and valley
-    temperature within the settled period.  Exit status 7 reports thermal runaway.
+    The period is --period T, else the least common period of the deck's sources; a
+    period the sources do not repeat with, or a circuit whose waveforms do not repeat
+    with it, is refused.  Simulates a few periods at fixed part temperatures, averages
+    each part's dissipation over a period, solves the thermal network for its steady
+    state, and repeats until the temperatures stop changing; then reports each part's
+    cycle-mean, peak and valley temperature within the settled period.  Exit status 7
+    reports thermal runaway.
     """
     from heatweave.emit.emitter import load_inputs
     from heatweave.files import write_atomic
@@ -95,9 +106,13 @@ def settle(
     from heatweave.settle.periodic import SettleOptions, Step
     from heatweave.settle.periodic import settle as settle_deck
 
-    if csv_file is not None and envelope is None:
-        raise UsageError("--csv writes the warm-up curve", hint="add --envelope TSTOP")
-    check_html_path(html_file)
+    if old_envelope is not None:
+        if warmup is not None:
+            raise UsageError("--envelope is the former name of --warmup", hint="give --warmup only")
+        report_findings([Finding("warning", "--envelope is deprecated; use --warmup TSTOP", None)])
+        warmup = old_envelope
+    if csv_file is not None and warmup is None:
+        raise UsageError("--csv writes the warm-up curve", hint="add --warmup TSTOP")
     outputs = {"--json": json_file, "--csv": csv_file}
     if json_file == csv_file == "-":
         raise UsageError("--json and --csv both write to stdout", hint="give one a file name")
@@ -110,7 +125,7 @@ def settle(
 
     options = SettleOptions(
         period=period, periods=periods, tstep=tstep, tol=tol, max_iter=max_iter,
-        wave_tol=wave_tol, envelope=envelope, ambient=ambient, backend=backend,
+        wave_tol=wave_tol, envelope=warmup, ambient=ambient, backend=backend,
         allow_control=allow_control, timeout=timeout,
         progress=show if not quiet and is_terminal() else None,
     )  # fmt: skip

@@ -7,7 +7,8 @@ JSON keys follow ``run``'s report where the meaning is the same (``parts.NAME.te
 ``.peak_temperature``, ``.power``, ``.resistance``, ``nodes.NAME``), read over the settled
 period: ``temperature`` is the cycle mean, ``peak_temperature`` and ``valley_temperature``
 the extremes within the period, ``power`` the cycle-mean dissipation and ``resistance``
-the resistance at the cycle-mean temperature.  Added: ``period``, ``periods`` (electrical
+the resistance at the cycle-mean temperature.  Added: ``period``, ``period_from`` (the
+sources it was taken from, or ``--period``), ``periods`` (electrical
 periods simulated per iteration), ``iterations``, ``final_change`` (K), ``loop_gain``,
 ``history`` (one object per iteration), ``node_extremes`` and ``envelope`` (the warm-up
 from cold, when asked for).
@@ -26,6 +27,7 @@ from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.csv_report import TIME_HEADER, render_columns, temperature_header
 from heatweave.reports.table import WIDTH
 from heatweave.settle.periodic import Settled, Step
+from heatweave.settle.sources import seconds
 
 
 def _number(value: float | None) -> float | None:
@@ -65,6 +67,7 @@ def as_dict(settled: Settled, inputs: Inputs) -> dict[str, Any]:
         "annotations": {"path": inputs.annotation_path, "sha256": inputs.annotation.sha256},
         "analysis": "settle",
         "period": settled.period,
+        "period_from": settled.drive.describe() if settled.drive else None,
         "periods": settled.periods,
         "ambient": _number(settled.ambient),
         "iterations": settled.iterations,
@@ -125,14 +128,6 @@ def progress_line(step: Step) -> str:
     )
 
 
-def seconds(value: float) -> str:
-    """A time for people: ``1 ms``, ``10 us``, ``2.5 s``."""
-    for unit, scale in (("s", 1.0), ("ms", 1e-3), ("us", 1e-6), ("ns", 1e-9)):
-        if abs(value) >= scale:
-            return f"{value / scale:.4g} {unit}"
-    return f"{value:.4g} s"
-
-
 def render_table(settled: Settled) -> str:
     """The terminal summary: a heading, one row per part and shared node, the caution."""
     gain = "" if settled.gain is None else f", loop gain {settled.gain:+.3f}"
@@ -140,8 +135,10 @@ def render_table(settled: Settled) -> str:
         f"periodic steady state, period {seconds(settled.period)}, ambient "
         f"{settled.ambient:g} degC: settled in {settled.iterations} iteration(s) of "
         f"{settled.periods} periods, last change {settled.final_change:.2g} K{gain}",
-        "",
     ]
+    if settled.drive is not None:
+        lines += textwrap.wrap(f"period: {settled.drive.describe()}", WIDTH)
+    lines.append("")
     head = ("part", "mean", "peak", "valley", "ripple", "mean power", "resistance")
     units = ("", "degC", "degC", "degC", "K", "W", "ohm")
     rows: list[tuple[str, ...]] = [head, units]

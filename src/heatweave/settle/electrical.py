@@ -13,6 +13,7 @@ iteration of every time step.
 
 from __future__ import annotations
 
+import math
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
@@ -21,10 +22,11 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.emit.emitter import Inputs
-from heatweave.errors import EmitError, Finding
+from heatweave.errors import ConvergenceError, EmitError, Finding
 from heatweave.quantities import format_number
 from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate
 from heatweave.run.results import RunResults, extract
+from heatweave.settle.sources import seconds
 from heatweave.thermal.circuit import PREFIX, PartPlan, ThermalCircuit, safe
 
 FloatArray = npt.NDArray[np.float64]
@@ -63,21 +65,27 @@ def period_stats(times: FloatArray, values: FloatArray) -> tuple[FloatArray, Flo
     return np.asarray(mean), np.asarray(rms)
 
 
-def repeat_error(time: FloatArray, values: FloatArray, period: float) -> float:
-    """How much the last period differs from the one before, relative to the signals' size.
+def repeat_error(time: FloatArray, values: FloatArray, period: float) -> FloatArray:
+    """How much each signal's last period differs from the period before, point by point.
 
-    Compares each signal's period mean and period RMS (exact integrals of the samples, so
-    different time points in the two periods do not matter); the result is the largest
-    difference divided by that signal's peak magnitude in the last period.
+    Both periods are put on the union of their time points (linear between samples, as
+    the simulator's waveforms are read) and the difference is integrated:
+    ``integral |x(t) - x(t - T)| dt / (T max |x|)`` over the last period.  Unlike period
+    means, which two different waveforms can share, this is zero only for a waveform that
+    repeats; an edge that moves by ``dt`` between the periods counts ``dt / T`` of its
+    height, so the simulator's time steps landing differently do not count as a change.
     """
     end = float(time[-1])
-    t_last, last = window(time, values, end - period, end)
-    t_prev, prev = window(time, values, end - 2 * period, end - period)
-    mean_a, rms_a = period_stats(t_last, last)
-    mean_b, rms_b = period_stats(t_prev, prev)
-    scale = np.maximum(np.max(np.abs(last), axis=0, initial=0.0), 1e-12)
-    worst = np.maximum(np.abs(mean_a - mean_b), np.abs(rms_a - rms_b)) / scale
-    return float(np.max(worst, initial=0.0))
+    t_last, _ = window(time, values, end - period, end)
+    t_prev, _ = window(time, values, end - 2 * period, end - period)
+    grid = np.union1d(t_last, t_prev + period)
+    errors = []
+    for k in range(values.shape[1]):
+        now = np.interp(grid, time, values[:, k])
+        before = np.interp(grid - period, time, values[:, k])
+        scale = max(float(np.max(np.abs(now))), float(np.max(np.abs(before))), 1e-12)
+        errors.append(float(np.trapezoid(np.abs(now - before), grid)) / (period * scale))
+    return np.array(errors)
 
 
 @dataclass(frozen=True, slots=True)
@@ -89,7 +97,8 @@ class Cycle:
     mean_power: FloatArray  # per part (W)
     voltages: dict[str, float]  # cycle mean of each circuit node (V)
     periods: int  # periods simulated
-    repeat: float  # relative difference of the last two periods
+    repeat: float  # relative difference of the last two periods (largest signal)
+    series: dict[str, FloatArray] = field(default_factory=dict, repr=False)  # node voltages
 
 
 class Electrical:
@@ -102,12 +111,16 @@ class Electrical:
         period: float,
         tstep: float,
         wave_tol: float,
+        start: float = 0.0,
     ) -> None:
         self.inputs = inputs
         self.options = options
         self.period = period
         self.tstep = tstep
         self.wave_tol = wave_tol
+        #: The sources repeat from this time on (delays, finished one-shot waveforms): the
+        #: two periods compared lie after it.
+        self.min_periods = 2 + max(0, math.ceil(start / period - 1e-9))
         self.base: Prepared = prepare(
             inputs, replace(options, analyses=(self._analysis(2),)), heating=False
         )
@@ -116,30 +129,11 @@ class Electrical:
         self.circuit: ThermalCircuit = circuit
         self.resistors = tuple(p for p in circuit.parts if p.is_resistor)
         self.cycles = 0  # calls of cycle() so far
-        self.unsettled: list[tuple[float, int]] = []  # (repeat error, periods) above wave_tol
 
     @property
     def findings(self) -> list[Finding]:
-        """The preparation's findings, then one warning if any cycle never repeated.
-
-        Every cycle of a run sees the same unsuitable drive (a wrong ``--period``), so the
-        warning is given once, for the largest difference seen, not once per cycle.
-        """
-        findings = list(self.base.findings)
-        if self.unsettled:
-            error, periods = max(self.unsettled)
-            findings.append(
-                Finding(
-                    "warning",
-                    f"the electrical waveform still changes by {error:.2g} (relative) from "
-                    f"one period to the next after {periods} periods (in "
-                    f"{len(self.unsettled)} of {self.cycles} cycles simulated)",
-                    None,
-                    "pass a larger --periods, or check that the drive really is periodic "
-                    "with --period",
-                )
-            )
-        return findings
+        """The preparation's findings."""
+        return list(self.base.findings)
 
     def _analysis(self, periods: int) -> str:
         stop = periods * self.period
@@ -157,27 +151,44 @@ class Electrical:
 
     def cycle(self, temps: Sequence[float], periods: int, max_periods: int) -> Cycle:
         """The last period at *temps*, simulating more periods (doubling, up to
-        *max_periods*) until two successive periods agree within the waveform tolerance."""
+        *max_periods*) until two successive periods agree within the waveform tolerance.
+
+        Raises :class:`ConvergenceError` naming the signal that still changes when they
+        never do: the circuit does not repeat with the period (or not yet), and no
+        periodic steady state can be reported."""
         fixed = dict(zip((p.path for p in self.resistors), temps, strict=True))
+        periods = max(periods, self.min_periods)
+        max_periods = max(max_periods, periods)
         while True:
             results = self.simulate(temps, periods)
             assert results.time is not None
             power = self._power(results, fixed)
             names = sorted(results.voltage_series)
             signals = np.column_stack([power, *(results.voltage_series[n] for n in names)])
-            error = repeat_error(results.time, signals, self.period)
+            errors = repeat_error(results.time, signals, self.period)
+            error = float(np.max(errors, initial=0.0))
             if error <= self.wave_tol or periods >= max_periods:
                 break
             periods = min(2 * periods, max_periods)
         self.cycles += 1
+        labels = [f"the power of {part.path}" for part in results.parts]
+        labels += [f"V({name})" for name in names]
         if error > self.wave_tol:
-            self.unsettled.append((error, periods))
+            worst = labels[int(np.argmax(errors))]
+            raise ConvergenceError(
+                f"the circuit does not repeat with period {seconds(self.period)}: after "
+                f"{periods} periods, {worst} still differs from one period to the next by "
+                f"{error:.2g} of its peak (tolerance {self.wave_tol:g})",
+                hint="check that every drive repeats with this period; a slow electrical "
+                "start-up needs a larger --periods",
+            )
         end = float(results.time[-1])
         times, last = window(results.time, signals, end - self.period, end)
         n = power.shape[1]
         means, _rms = period_stats(times, last)
         voltages = {name: float(means[n + k]) for k, name in enumerate(names)}
-        return Cycle(times, last[:, :n], means[:n], voltages, periods, error)
+        series = {name: last[:, n + k] for k, name in enumerate(names)}
+        return Cycle(times, last[:, :n], means[:n], voltages, periods, error, series)
 
     def _power(self, results: RunResults, fixed: dict[str, float]) -> FloatArray:
         """Each part's instantaneous dissipation (``samples x parts``).

@@ -45,9 +45,11 @@ from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, Usa
 from heatweave.run.prepare import RunOptions
 from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, range_warning
 from heatweave.settle.electrical import Cycle, Electrical
+from heatweave.settle.sources import DrivePeriod, drive_period, seconds
 from heatweave.settle.thermal import periodic
+from heatweave.settle.warmup import Envelope, warm_up
 from heatweave.thermal.circuit import PartPlan
-from heatweave.thermal.solver import Propagator, ThermalSystem, assemble
+from heatweave.thermal.solver import ThermalSystem, assemble
 
 FloatArray = npt.NDArray[np.float64]
 
@@ -69,9 +71,10 @@ class Step:
 
 @dataclass(frozen=True, slots=True)
 class SettleOptions:
-    """How to settle: the drive period and the iteration's tolerances."""
+    """How to settle: the drive period (``None``: the deck's sources' common period) and
+    the iteration's tolerances."""
 
-    period: float
+    period: float | None = None
     periods: int = 4
     tstep: float | None = None
     tol: float = 0.01
@@ -113,17 +116,8 @@ class PartSettled:
 
 
 @dataclass(frozen=True, slots=True)
-class Envelope:
-    """The warm-up from cold with cycle-averaged powers: temperatures against time."""
-
-    time: FloatArray = field(repr=False)
-    parts: dict[str, FloatArray] = field(repr=False)
-    nodes: dict[str, FloatArray] = field(repr=False)
-
-
-@dataclass(frozen=True, slots=True)
 class Settled:
-    """The result of :func:`settle`."""
+    """The result of :func:`settle`; ``drive`` says where the period comes from."""
 
     period: float
     ambient: float
@@ -139,6 +133,15 @@ class Settled:
     history: tuple[Step, ...]
     findings: tuple[Finding, ...]
     envelope: Envelope | None = None
+    drive: DrivePeriod | None = None
+    #: The last settled period's node voltages (V), on the parts' power sample times.
+    voltage_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
+    #: Each part's dissipation over the settled period (samples x parts, W) and the times
+    #: of those samples from the period's start (s).
+    time: FloatArray | None = field(default=None, repr=False)
+    power: FloatArray | None = field(default=None, repr=False)
+    #: Temperatures over the settled period (samples x outputs: parts, then nodes; degC).
+    temperatures: FloatArray | None = field(default=None, repr=False)
 
 
 def _ambient(inputs: Inputs, options: SettleOptions) -> float:
@@ -154,13 +157,13 @@ def _ambient(inputs: Inputs, options: SettleOptions) -> float:
 
 def check_options(options: SettleOptions) -> None:
     """Refuse option values the method cannot use."""
-    if not options.period > 0:
+    if options.period is not None and not options.period > 0:
         raise UsageError("--period must be greater than zero", hint="e.g. --period 1m")
     if options.periods < 2:
         raise UsageError(
             "--periods must be at least 2", hint="two periods are needed to see them repeat"
         )
-    if options.tstep is not None and not 0 < options.tstep < options.period:
+    if options.tstep is not None and not 0 < options.tstep < (options.period or math.inf):
         raise UsageError(
             "--tstep must be positive and shorter than --period",
             hint="leave it out for period/400",
@@ -333,12 +336,23 @@ def settle(
     inputs: Inputs | None = None,
 ) -> Settled:
     """The periodic electrothermal steady state of a deck driven with period
-    ``options.period`` (see the module docstring for the method)."""
+    ``options.period``, or the common period of its sources (see the module docstring for
+    the method and :mod:`heatweave.settle.sources` for the period)."""
     check_options(options)
     inputs = inputs or load_inputs(deck_path, annotation_path)
     ambient = _ambient(inputs, options)
-    tstep = options.tstep or options.period / 400.0
-    electrical = Electrical(inputs, options.run_options(), options.period, tstep, options.wave_tol)
+    drive = drive_period(inputs.index, options.period)
+    period = drive.period
+    if options.tstep is not None and not options.tstep < period:
+        raise UsageError(
+            f"--tstep must be shorter than the period ({seconds(period)})",
+            hint="leave it out for period/400",
+        )
+    # Every source's period sampled finely, however many of them the period holds.
+    tstep = options.tstep or min(period / 400.0, (drive.shortest or period) / 100.0)
+    electrical = Electrical(
+        inputs, options.run_options(), period, tstep, options.wave_tol, drive.start
+    )
     circuit = electrical.circuit
     system = assemble(circuit)
     loop = _Loop(electrical, system, ambient, options)
@@ -368,10 +382,13 @@ def settle(
     labels = [node.label for node in circuit.nodes]
     envelope = None
     if options.envelope is not None:
-        envelope = warm_up(loop, options.envelope, options.envelope_points)
+        envelope = warm_up(
+            system, ambient, circuit, lambda temps: loop.evaluate(temps[loop.index])[0].mean_power,
+            options.envelope, options.envelope_points,
+        )  # fmt: skip
     rho = steps[-1].gain
     return Settled(
-        period=options.period,
+        period=period,
         ambient=ambient,
         parts=tuple(parts),
         nodes={label: float(ripple.mean[n + j]) for j, label in enumerate(labels)},
@@ -385,6 +402,11 @@ def settle(
         history=tuple(steps),
         findings=(*electrical.findings, *range_warnings(parts)),
         envelope=envelope,
+        drive=drive,
+        voltage_series=cycle.series,
+        time=cycle.time - cycle.time[0],
+        power=cycle.power,
+        temperatures=ripple.outputs,
     )
 
 
@@ -407,52 +429,3 @@ def steady(system: ThermalSystem, power: FloatArray, ambient: float) -> FloatArr
     """Temperatures (parts, then shared nodes) at rest under constant *power*."""
     state = system.steady_state(power, ambient)
     return system.temperatures(state, system.inputs(power, ambient))
-
-
-def envelope_times(system: ThermalSystem, stop: float, points: int) -> FloatArray:
-    """Times for the warm-up curve: 0, then geometric from a fifth of the fastest
-    thermal time constant (or stop/1e4) to *stop*."""
-    first = stop / 1e4
-    if system.size:
-        first = min(max(first, float(system.time_constants[0]) / 5.0), stop / 2.0)
-    return np.concatenate([[0.0], np.geomspace(first, stop, points)])
-
-
-def warm_up(loop: _Loop, stop: float, points: int) -> Envelope:
-    """The thermal transient from cold, powers re-evaluated as the temperatures change.
-
-    Each step holds the cycle-averaged powers constant and advances the network exactly;
-    the powers are those at the step's start and at its predicted end, averaged (Heun's
-    predictor-corrector, second order in the step), each from an electrical simulation of
-    the periods at those temperatures.
-    """
-    system, ambient = loop.system, loop.ambient
-    propagate = Propagator(system)
-    times = envelope_times(system, stop, points)
-    z = system.rest_state(ambient)
-    circuit = loop.electrical.circuit
-    n = len(circuit.parts)
-
-    def temperatures(state: FloatArray, power: FloatArray) -> FloatArray:
-        return system.temperatures(state, system.inputs(power, ambient))
-
-    def powers(state: FloatArray, guess: FloatArray) -> FloatArray:
-        cycle, _ = loop.evaluate(temperatures(state, guess)[loop.index])
-        return cycle.mean_power
-
-    def advance(state: FloatArray, power: FloatArray, h: float) -> FloatArray:
-        return propagate.advance(state, system.inputs(power, ambient), h)
-
-    p_now = powers(z, np.zeros(n))
-    rows = [temperatures(z, p_now)]
-    for h in np.diff(times):
-        p_end = powers(advance(z, p_now, float(h)), p_now)
-        z = advance(z, 0.5 * (p_now + p_end), float(h))
-        p_now = powers(z, p_end)
-        rows.append(temperatures(z, p_now))
-    table = np.array(rows)
-    return Envelope(
-        times,
-        {part.path: table[:, k] for k, part in enumerate(circuit.parts)},
-        {node.label: table[:, n + j] for j, node in enumerate(circuit.nodes)},
-    )
