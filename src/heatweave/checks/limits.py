@@ -33,6 +33,7 @@ from heatweave.annotation.ratings import derated_power, worst_instant
 from heatweave.errors import AnnotationError
 from heatweave.run.results import PartResult, RunResults, main_plot
 from heatweave.run.runner import RunOutcome
+from heatweave.settle.periodic import Settled
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX
@@ -41,6 +42,9 @@ FloatArray = npt.NDArray[np.float64]
 
 #: Baseline points below this share of the baseline's peak magnitude are left out of drift.
 DRIFT_FLOOR = 1e-6
+#: ``RunResults.analysis`` of a settled period (:func:`settled_results`): power ratings are
+#: held against the period's mean dissipation, times are read from the period's start.
+SETTLED = "settled period"
 #: A value this close to its bound, relatively, is on it: a few units in the last place of a
 #: double (2.2e-16 relative), far below any simulator's tolerance (reltol 1e-3 by default).
 ROUND_OFF = 1e-12
@@ -174,6 +178,8 @@ def part_limits(results: RunResults, ambient: FloatArray) -> list[LimitResult]:
             continue
         if plan.tmax is not None:
             detail = "peak of the transient" if part.peak_temperature is not None else ""
+            if results.analysis == SETTLED:
+                detail = "peak within the settled period"
             out.append(
                 LimitResult(part.path, "tmax", part.hottest, plan.tmax, "degC", True, detail)
             )
@@ -194,6 +200,10 @@ def _power_limit(part: PartResult, results: RunResults, ambient: FloatArray) -> 
         local, where = np.array([results.nodes[plan.to_label]]), f'node "{plan.to_label}"'
     power = part.power_series if part.power_series is not None else np.array([part.power])
     powers, temps = [float(p) for p in power], [float(t) for t in local]
+    settled = results.analysis == SETTLED
+    if settled:  # continuous load: the period's mean, at the warmest local temperature
+        powers, temps = [part.power], [max(temps)]
+        local = np.array(temps)
     worst = worst_instant(rating, powers, temps, plan.derating_knee, plan.tmax)
     allowed = derated_power(rating, temps[worst], plan.derating_knee, plan.tmax)
     at = f"{_num(float(local[worst]))} degC at {where}"
@@ -201,7 +211,9 @@ def _power_limit(part: PartResult, results: RunResults, ambient: FloatArray) -> 
         detail = f"rating {_num(rating)} W, not derated: no tmax given ({at})"
     else:
         detail = f"rating {_num(rating)} W derated for {at}"
-    if results.time is not None:
+    if settled:
+        detail = f"mean over the settled period; {detail}, its warmest in the period"
+    elif results.time is not None:
         detail += " " + _when(results, worst)
     return LimitResult(part.path, "power_rating", powers[worst], allowed, "W", True, detail)
 
@@ -236,6 +248,8 @@ def signal_limits(
 def _when(results: RunResults, at: int) -> str:
     if results.time is None:
         return ""
+    if results.analysis == SETTLED:
+        return f"at {float(results.time[at]):.4g} s into the settled period"
     return f"at t = {float(results.time[at]):.4g} s"
 
 
@@ -293,3 +307,45 @@ def summary(results: Sequence[LimitResult]) -> str:
     failed = sum(not r.passed for r in results)
     noun = "limit" if len(results) == 1 else "limits"
     return f"{len(results)} {noun} checked, {failed} violated"
+
+
+def settled_results(settled: Settled) -> RunResults:
+    """A settled period (:func:`heatweave.settle.periodic.settle`) as the results of a run
+    over that one period, so that every limit is read as for any run."""
+    assert settled.time is not None and settled.power is not None
+    assert settled.temperatures is not None
+    temps, n = settled.temperatures, len(settled.parts)
+    parts = []
+    for k, part in enumerate(settled.parts):
+        parts.append(
+            PartResult(
+                path=part.path, model=part.model, temperature=part.temperature,
+                power=part.power, resistance=part.resistance,
+                nominal_resistance=part.nominal_resistance,
+                peak_temperature=part.peak_temperature, peak_power=part.peak_power,
+                temperature_series=temps[:, k], power_series=settled.power[:, k],
+                plan=part.plan,
+            )
+        )  # fmt: skip
+    nodes = {label: temps[:, n + j] for j, label in enumerate(settled.nodes)}
+    return RunResults(
+        SETTLED, settled.ambient, tuple(parts), dict(settled.nodes), dict(settled.voltages),
+        settled.time, nodes, dict(settled.voltage_series),
+    )  # fmt: skip
+
+
+def evaluate_settled(settled: Settled, signals: Sequence[Signal]) -> tuple[LimitResult, ...]:
+    """Every limit over a settled period, as :func:`evaluate` reads a run: ``tmax`` against
+    the peak temperature within the period, ``power_rating`` against the period's mean
+    dissipation (continuous load, IEC 60115-1) derated at the warmest temperature of the
+    part's local ambient within the period, signal limits on every point of the period
+    and drifts against the same period without self-heating (``settled.baseline``)."""
+    results = settled_results(settled)
+    baseline = None
+    if settled.baseline is not None:
+        time, voltages = settled.baseline
+        baseline = RunResults(SETTLED, settled.ambient, (), {}, {}, time, {}, voltages)
+    ambient = np.full(len(results.time if results.time is not None else [0]), settled.ambient)
+    found = part_limits(results, ambient)
+    found += signal_limits(signals, results, baseline)
+    return tuple(found)

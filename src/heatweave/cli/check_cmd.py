@@ -9,7 +9,9 @@ from __future__ import annotations
 
 import sys
 import time
+from collections.abc import Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING, TextIO
 
 import click
 
@@ -27,6 +29,9 @@ from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import EXIT_CHECK_FAILED
 from heatweave.reports.junit import Case, Suite, render
 from heatweave.spice.acceptance import refuse_rejected
+
+if TYPE_CHECKING:
+    from heatweave.checks.limits import LimitResult
 
 
 @click.command()
@@ -56,13 +61,18 @@ def check(
 
     Checked: each part's tmax (the peak of a transient) and its power_rating derated by
     IEC 60115-1 at the temperature of the node its path ends on, and each [limit."V(node)"]
-    table (min, max, and max_drift_ppm against the same deck without self-heating).
+    table (min, max, and max_drift_ppm against the same deck without self-heating).  A
+    periodic deck whose thermal time constants are long against its period is checked in
+    its periodic steady state (as settle finds it) instead of its own short transient; the
+    method line says which.
     """
     from heatweave.checks import limits as checks
+    from heatweave.checks.periodic import choose
     from heatweave.emit.emitter import load_inputs
     from heatweave.errors import HeatweaveError
     from heatweave.run import runner
     from heatweave.run.prepare import RunOptions
+    from heatweave.settle.periodic import SettleOptions, settle
 
     check_html_path(html_file)
     chosen = annotation_for(deck, annotations)
@@ -75,29 +85,55 @@ def check(
             analyses=analyses_of(op, tran), ambient=ambient, backend=backend,
             allow_control=allow_control,
         )  # fmt: skip
-        outcome = runner.run(deck, chosen, options, inputs=inputs)
-        report_findings(list(outcome.prepared.findings))
+        method = choose(inputs, options)
         needed = checks.needs_baseline(signals)
-        baseline = runner.run_baseline(inputs, options) if needed else None
-        found = checks.evaluate(outcome, signals, baseline)
+        if method.drive is not None:
+            settle_options = SettleOptions(
+                period=method.drive.period, ambient=ambient, backend=backend,
+                allow_control=allow_control, baseline=needed,
+            )  # fmt: skip
+            settled = settle(deck, chosen, settle_options, inputs=inputs)
+            report_findings(list(settled.findings))
+            found = checks.evaluate_settled(settled, signals)
+        else:
+            outcome = runner.run(deck, chosen, options, inputs=inputs)
+            report_findings(list(outcome.prepared.findings))
+            baseline = runner.run_baseline(inputs, options) if needed else None
+            found = checks.evaluate(outcome, signals, baseline)
     except HeatweaveError as err:
         # A report is still written: the previous run's must not stand in for this one.
         if junit_file is not None:
-            failed = _case(deck, "run", error=err.render())
+            failed = junit_case(deck, "run", error=err.render())
             write_junit(junit_file, deck, (failed,), time.monotonic() - started)
         raise
-    elapsed = time.monotonic() - started
+    report_limits(deck, found, junit_file, time.monotonic() - started, method.line())
+
+
+def report_limits(
+    deck: str, found: Sequence[LimitResult], junit_file: str | None, elapsed: float,
+    method: str | None = None, stream: TextIO | None = None,
+) -> None:  # fmt: skip
+    """What ``check`` and ``settle --check`` print: the method line, one line per limit
+    and the summary (on *stream*, else stdout, or stderr when the JUnit report goes to
+    stdout), the JUnit report, and exit status 1 on a violation."""
+    from heatweave.checks.limits import summary
+
     # With the JUnit report on stdout, the lines go to stderr so that stdout stays XML.
-    stream = sys.stderr if junit_file == "-" else sys.stdout
+    if stream is None:
+        stream = sys.stderr if junit_file == "-" else sys.stdout
+    if method is not None:
+        click.echo(method, file=stream)
     for item in found:
         line = item.message()
         if is_terminal(stream):
             line = click.style(line[:4], fg="green" if item.passed else "red") + line[4:]
         click.echo(line, file=stream)
-    click.echo(f"{deck}: {checks.summary(found)}", file=stream)
+    click.echo(f"{deck}: {summary(found)}", file=stream)
     if junit_file is not None:
         cases = tuple(
-            _case(deck, f"{item.subject} {item.limit}", None if item.passed else item.message())
+            junit_case(
+                deck, f"{item.subject} {item.limit}", None if item.passed else item.message()
+            )
             for item in found
         )
         write_junit(junit_file, deck, cases, elapsed)
@@ -111,7 +147,7 @@ def check(
         sys.exit(EXIT_CHECK_FAILED)
 
 
-def _case(deck: str, name: str, failure: str | None = None, error: str | None = None) -> Case:
+def junit_case(deck: str, name: str, failure: str | None = None, error: str | None = None) -> Case:
     """One JUnit test case of *deck*'s suite."""
     return Case(name, f"heatweave.{Path(deck).stem}", failure=failure, error=error)
 

@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import sys
+import time
 
 import click
 
 from heatweave.cli.common import (
     annotation_for,
+    check_outputs,
     deck_options,
     guarded,
     is_terminal,
@@ -80,7 +82,19 @@ from heatweave.spice.acceptance import refuse_rejected
     help="Former name of --warmup.",
 )
 @simulation_options
-@report_options("Write the --warmup curve as CSV (- is stdout).", plot=False)
+@report_options("Write the --warmup curve as CSV (- is stdout).")
+@click.option(
+    "--check",
+    is_flag=True,
+    help="Hold the settled period to the annotation's limits, as check does (exit 1 on a "
+    "violation).",
+)
+@click.option(
+    "--junit",
+    "junit_file",
+    metavar="FILE",
+    help="Write the limits as a JUnit XML report here (- is stdout); implies --check.",
+)
 @run_control_options("Stop each ngspice run after this long.")
 @html_option
 @guarded
@@ -88,7 +102,8 @@ def settle(
     deck: str, annotations: str | None, period: float | None, periods: int,
     tstep: float | None, tol: float, max_iter: int, wave_tol: float, warmup: float | None,
     old_envelope: float | None, ambient: float | None, backend: str, allow_control: bool,
-    json_file: str | None, csv_file: str | None, timeout: float | None, quiet: bool,
+    json_file: str | None, csv_file: str | None, plot_file: str | None, check: bool,
+    junit_file: str | None, timeout: float | None, quiet: bool,
 ) -> None:  # fmt: skip
     """Find the thermal steady state of DECK driven periodically.
 
@@ -97,10 +112,15 @@ def settle(
     with it, is refused.  Simulates a few periods at fixed part temperatures, averages
     each part's dissipation over a period, solves the thermal network for its steady
     state, and repeats until the temperatures stop changing; then reports each part's
-    cycle-mean, peak and valley temperature within the settled period.  Exit status 7
-    reports thermal runaway.
+    cycle-mean, peak and valley temperature within the settled period.  With --check,
+    each part's tmax is held against its peak temperature, its derated power_rating
+    against its mean dissipation, and each [limit] table against the settled period.
+    Exit status 1 reports a violated limit, 7 thermal runaway.
     """
+    from heatweave.checks import limits
+    from heatweave.cli.check_cmd import junit_case, report_limits, write_junit
     from heatweave.emit.emitter import load_inputs
+    from heatweave.errors import HeatweaveError
     from heatweave.files import write_atomic
     from heatweave.reports.settle import progress_line, render_csv, render_json, render_table
     from heatweave.settle.periodic import SettleOptions, Step
@@ -113,32 +133,44 @@ def settle(
         warmup = old_envelope
     if csv_file is not None and warmup is None:
         raise UsageError("--csv writes the warm-up curve", hint="add --warmup TSTOP")
-    outputs = {"--json": json_file, "--csv": csv_file}
-    if json_file == csv_file == "-":
-        raise UsageError("--json and --csv both write to stdout", hint="give one a file name")
+    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file}
+    check_outputs(outputs, deck)
+    check = check or junit_file is not None
+    started = time.monotonic()
     annotation_path = annotation_for(deck, annotations)
-    inputs = load_inputs(deck, annotation_path)
-    refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
+    try:
+        inputs = load_inputs(deck, annotation_path)
+        # Limit tables naming nodes the deck lacks are refused before simulating.
+        signals = limits.resolve_limits(inputs.annotation, inputs.index) if check else ()
 
-    def show(step: Step) -> None:
-        click.echo(progress_line(step), err=True)
+        def show(step: Step) -> None:
+            click.echo(progress_line(step), err=True)
 
-    options = SettleOptions(
-        period=period, periods=periods, tstep=tstep, tol=tol, max_iter=max_iter,
-        wave_tol=wave_tol, envelope=warmup, ambient=ambient, backend=backend,
-        allow_control=allow_control, timeout=timeout,
-        progress=show if not quiet and is_terminal() else None,
-    )  # fmt: skip
-    settled = settle_deck(deck, annotation_path, options, inputs=inputs)
+        options = SettleOptions(
+            period=period, periods=periods, tstep=tstep, tol=tol, max_iter=max_iter,
+            wave_tol=wave_tol, envelope=warmup, ambient=ambient, backend=backend,
+            allow_control=allow_control, timeout=timeout,
+            progress=show if not quiet and is_terminal() else None,
+            baseline=limits.needs_baseline(signals),
+        )  # fmt: skip
+        settled = settle_deck(deck, annotation_path, options, inputs=inputs)
+    except HeatweaveError as err:
+        if junit_file is not None:  # no stale report of an earlier run left standing
+            failed = junit_case(deck, "settle", error=err.render())
+            write_junit(junit_file, deck, (failed,), time.monotonic() - started)
+        raise
     report_findings(list(settled.findings))
+    found = limits.evaluate_settled(settled, signals) if check else None
     if json_file is not None:
-        write_atomic(json_file, render_json(settled, inputs))
+        write_atomic(json_file, render_json(settled, inputs, found))
     if csv_file is not None:
         write_atomic(csv_file, render_csv(settled))
-    if html_file is not None:
-        from heatweave.reports.html_pages import settle_page
+    if plot_file is not None:
+        from heatweave.reports.settle_plot import render_png
 
-        write_html(html_file, lambda: settle_page(settled, inputs))
+        write_atomic(plot_file, render_png(settled, deck))
+    stream = sys.stderr if "-" in outputs.values() else sys.stdout
     if not quiet:
-        stream = sys.stderr if "-" in outputs.values() else sys.stdout
         click.echo(render_table(settled), file=stream, nl=False)
+    if found is not None:
+        report_limits(deck, found, junit_file, time.monotonic() - started, stream=stream)

@@ -10,8 +10,9 @@ the extremes within the period, ``power`` the cycle-mean dissipation and ``resis
 the resistance at the cycle-mean temperature.  Added: ``period``, ``period_from`` (the
 sources it was taken from, or ``--period``), ``periods`` (electrical
 periods simulated per iteration), ``iterations``, ``final_change`` (K), ``loop_gain``,
-``history`` (one object per iteration), ``node_extremes`` and ``envelope`` (the warm-up
-from cold, when asked for).
+``history`` (one object per iteration), ``node_extremes``, ``envelope`` (the warm-up
+from cold, with ``--warmup``) and ``limits`` (with ``--check``: each limit as ``check``'s
+:meth:`~heatweave.checks.limits.LimitResult.as_dict`, else ``null``).
 """
 
 from __future__ import annotations
@@ -19,9 +20,11 @@ from __future__ import annotations
 import json
 import math
 import textwrap
+from collections.abc import Sequence
 from typing import Any
 
 from heatweave import __version__
+from heatweave.checks.limits import LimitResult
 from heatweave.emit.emitter import Inputs
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.csv_report import TIME_HEADER, render_columns, temperature_header
@@ -37,8 +40,10 @@ def _number(value: float | None) -> float | None:
     return float(value)
 
 
-def as_dict(settled: Settled, inputs: Inputs) -> dict[str, Any]:
-    """The report as plain data, keys in a fixed order."""
+def as_dict(
+    settled: Settled, inputs: Inputs, limits: Sequence[LimitResult] | None = None
+) -> dict[str, Any]:
+    """The report as plain data, keys in a fixed order; ``limits`` with ``--check``."""
     parts = {
         part.path: {
             "model": part.model,
@@ -85,6 +90,7 @@ def as_dict(settled: Settled, inputs: Inputs) -> dict[str, Any]:
         "voltages": {node: _number(value) for node, value in settled.voltages.items()},
         "history": [_step(step) for step in settled.history],
         "envelope": envelope,
+        "limits": None if limits is None else [item.as_dict() for item in limits],
         "warnings": [finding.render() for finding in settled.findings],
         "cautions": CAUTION_TEXT,
     }
@@ -101,9 +107,11 @@ def _step(step: Step) -> dict[str, Any]:
     }
 
 
-def render_json(settled: Settled, inputs: Inputs) -> str:
+def render_json(
+    settled: Settled, inputs: Inputs, limits: Sequence[LimitResult] | None = None
+) -> str:
     """The JSON text (indented, newline at the end)."""
-    data = as_dict(settled, inputs)
+    data = as_dict(settled, inputs, limits)
     return json.dumps(data, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
 
 

@@ -83,6 +83,9 @@ class SettleOptions:
     max_periods: int = 256
     envelope: float | None = None
     envelope_points: int = 30
+    #: Also simulate the settled period without self-heating (every part at ambient), the
+    #: reference of drift limits.
+    baseline: bool = False
     ambient: float | None = None
     backend: str = "auto"
     allow_control: bool = False
@@ -142,6 +145,9 @@ class Settled:
     power: FloatArray | None = field(default=None, repr=False)
     #: Temperatures over the settled period (samples x outputs: parts, then nodes; degC).
     temperatures: FloatArray | None = field(default=None, repr=False)
+    #: With ``SettleOptions.baseline``: the period without self-heating, its times from the
+    #: period's start and node voltages.
+    baseline: tuple[FloatArray, dict[str, FloatArray]] | None = field(default=None, repr=False)
 
 
 def _ambient(inputs: Inputs, options: SettleOptions) -> float:
@@ -387,6 +393,10 @@ def settle(
             options.envelope, options.envelope_points,
         )  # fmt: skip
     rho = steps[-1].gain
+    baseline = None
+    if options.baseline:
+        cold = electrical.cycle([ambient] * len(loop.index), loop.periods, options.max_periods)
+        baseline = (cold.time - cold.time[0], cold.series)
     return Settled(
         period=period,
         ambient=ambient,
@@ -407,6 +417,7 @@ def settle(
         time=cycle.time - cycle.time[0],
         power=cycle.power,
         temperatures=ripple.outputs,
+        baseline=baseline,
     )
 
 

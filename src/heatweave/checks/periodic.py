@@ -1,0 +1,74 @@
+"""Which state ``check`` holds to the limits: the deck's own run, or its periodic steady state.
+
+A switching deck's own transient is a few periods long and starts cold, while its parts
+take seconds to minutes to warm up: the limits of that transient say nothing about the
+board in use.  When the deck is periodic and its thermal time constants are long against
+the period, ``check`` settles it (:func:`heatweave.settle.periodic.settle`) instead, under
+the rule ``run --method auto`` uses to trust averaged powers
+(:data:`heatweave.cosim.method.SEPARATION`): the fastest thermal time constant at least
+that many periods long.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from heatweave.cosim.method import SEPARATION, Transient
+from heatweave.emit.emitter import Inputs, emit_inputs
+from heatweave.errors import HeatweaveError
+from heatweave.run.runner import RunOptions, deck_analyses_of
+from heatweave.settle.sources import DrivePeriod, drive_period, seconds
+from heatweave.thermal.solver import ThermalAssemblyError, assemble
+
+
+@dataclass(frozen=True, slots=True)
+class Choice:
+    """The state to check: ``drive`` set for the periodic steady state; ``reason`` says why."""
+
+    drive: DrivePeriod | None
+    reason: str
+
+    def line(self) -> str:
+        """``method: ...`` for the report."""
+        if self.drive is None:
+            return f"method: the run itself, not its periodic steady state: {self.reason}"
+        return (
+            f"method: periodic steady state (as settle finds it), period "
+            f"{seconds(self.drive.period)} {self.drive.describe()}; {self.reason}"
+        )
+
+
+def choose(inputs: Inputs, options: RunOptions) -> Choice:
+    """The periodic steady state when the run would be the deck's own single transient, the
+    deck's sources share a period, the ambient is fixed and every thermal time constant is
+    at least :data:`SEPARATION` periods; else the run itself, with the reason."""
+    if options.analyses:
+        return Choice(None, "the analysis given on the command line")
+    own = deck_analyses_of(inputs.project.deck.write())
+    if len(own) != 1 or Transient.parse(own[0]) is None:
+        asked = ", ".join(own) or "no analysis"
+        return Choice(None, f"the deck asks for {asked}, not one transient")
+    if options.ambient is None and inputs.annotation.ambient.profile is not None:
+        return Choice(None, "the ambient follows a profile")
+    try:
+        drive = drive_period(inputs.index, None)
+    except HeatweaveError as err:
+        return Choice(None, f"not periodic: {err.message}")
+    circuit = emit_inputs(inputs, ambient=options.ambient).circuit
+    if circuit is None or not circuit.parts:
+        return Choice(None, "no heated parts")
+    try:
+        system = assemble(circuit)
+    except ThermalAssemblyError as err:
+        return Choice(None, f"the thermal network could not be assembled: {err.message}")
+    if system.has_feedthrough:
+        return Choice(None, "a part or node without heat capacity follows its power instantly")
+    fastest = float(system.time_constants[0])
+    ratio = fastest / drive.period
+    periods = f"{ratio:.0f}" if ratio >= 100 else f"{ratio:.3g}"
+    if ratio < SEPARATION:
+        return Choice(
+            None, f"the fastest thermal time constant ({fastest:.3g} s) is only {periods} "
+            f"periods; settling needs {SEPARATION:g}",
+        )  # fmt: skip
+    return Choice(drive, f"fastest thermal time constant {fastest:.3g} s = {periods} periods")
