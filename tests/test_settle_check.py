@@ -25,6 +25,7 @@ from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
+from scipy.optimize import brentq
 
 from heatweave.annotation.ratings import derated_power
 from heatweave.cli import main
@@ -141,3 +142,58 @@ def test_settle_plot_and_deprecated_envelope(tmp_path: Path) -> None:
     assert result.exit_code == 0, result.output
     assert "--envelope is deprecated; use --warmup" in result.output
     assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+DIVIDER = """PWM into a load over a sense resistor: the sense voltage drifts as the load warms
+VPWM drive 0 PULSE(0 24 0 10n 10n 14.99u 50u)
+RLOAD drive out 40
+RS out 0 8
+.tran 10n 200u
+.end
+"""
+DIVIDER_NOTES = """schema = 1
+[ambient]
+temperature = 25.0
+[part.RLOAD]
+model = "linear"
+tc1 = 0.002
+rth = 10.0
+cth = 0.05
+[limit."V(out)"]
+max_drift_ppm = 1.0
+"""
+
+
+def test_settle_check_drift_against_the_same_period_without_heating(tmp_path: Path) -> None:
+    """V(out) = V RS / (R(T) + RS) while the source is on (and 0 V while off, where drift is
+    not defined and skipped).  settle holds R at the cycle-mean temperature, the root of
+    T = Ta + Rth P(T) with P(T) = D_eff V^2 R(T) / (R(T) + RS)^2 (scipy brentq), so the drift
+    is (R0 + RS) / (R(T) + RS) - 1 at every point of the on-time (linear TCR:
+    R(T) = R0 (1 + tc1 (T - 25)))."""
+    deck, notes = tmp_path / "divider.cir", tmp_path / "divider.thermal.toml"
+    deck.write_text(DIVIDER)
+    notes.write_text(DIVIDER_NOTES)
+    r0, rs, tc1, ambient = 40.0, 8.0, 0.002, 25.0
+    duty = (PW + (TR + TF) / 3.0) / PER
+
+    def resistance(t_c: float) -> float:
+        return r0 * (1.0 + tc1 * (t_c - 25.0))
+
+    def balance(t_c: float) -> float:
+        r = resistance(t_c)
+        return ambient + RTH * duty * V * V * r / (r + rs) ** 2 - t_c
+
+    hot = brentq(balance, ambient, ambient + 200.0, xtol=1e-12)
+    drift = ((r0 + rs) / (resistance(hot) + rs) - 1.0) * 1e6
+    report = tmp_path / "out.json"
+    args = ["settle", str(deck), "--check", "--json", str(report), "-q", "--tol", "1e-4"]
+    result = CliRunner().invoke(main, args)
+    assert result.exit_code == EXIT_CHECK_FAILED, result.output
+    (limit,) = json.loads(report.read_text())["limits"]
+    assert limit["limit"] == "max_drift_ppm" and not limit["passed"]
+    # Allowed: settle's tolerance (1e-4 K) plus the trapezoidal rule's bound on the mean
+    # power (module docstring) times Rth, in kelvin, times the drift's slope in ppm/K.
+    r_hot = resistance(hot)
+    slope = r0 * tc1 / (r_hot + rs) * 1e6
+    sampling = V * V * r_hot / (r_hot + rs) ** 2 * (TR + TF) / 6.0 / PER
+    assert abs(limit["value"] - abs(drift)) <= slope * (1e-4 + RTH * sampling)

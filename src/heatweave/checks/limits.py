@@ -265,7 +265,9 @@ def _drift(
         hot, base = hot[-1:], base[-1:]
     floor = DRIFT_FLOOR * float(np.max(np.abs(base)))
     usable = np.abs(base) > floor
-    if not usable.any() or abs(float(base[-1])) <= floor:
+    # A period may well end where the signal is 0 V; a run's final value must not.
+    ends_at_zero = results.analysis != SETTLED and abs(float(base[-1])) <= floor
+    if not usable.any() or ends_at_zero:
         raise AnnotationError(
             f'drift of "{spec.signal}" is undefined: without self-heating it is 0 V',
             spec.location,
