@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from heatweave.cosim.method import SEPARATION, Transient
 from heatweave.emit.emitter import Inputs, emit_inputs
 from heatweave.errors import HeatweaveError
-from heatweave.run.runner import RunOptions, deck_analyses_of
+from heatweave.run.prepare import RunOptions, deck_analyses_of
 from heatweave.settle.sources import DrivePeriod, drive_period, seconds
 from heatweave.thermal.solver import ThermalAssemblyError, assemble
 
@@ -34,7 +34,7 @@ class Choice:
             return f"method: the run itself, not its periodic steady state: {self.reason}"
         return (
             f"method: periodic steady state (as settle finds it), period "
-            f"{seconds(self.drive.period)} {self.drive.describe()}; {self.reason}"
+            f"{seconds(self.drive.period)}, {self.drive.describe()}; {self.reason}"
         )
 
 
