@@ -86,6 +86,7 @@ def check(
             allow_control=allow_control,
         )  # fmt: skip
         method = choose(inputs, options)
+        settled, outcome = None, None
         needed = checks.needs_baseline(signals)
         if method.drive is not None:
             settle_options = SettleOptions(
@@ -106,6 +107,17 @@ def check(
             failed = junit_case(deck, "run", error=err.render())
             write_junit(junit_file, deck, (failed,), time.monotonic() - started)
         raise
+    if html_file is not None:
+        from heatweave.reports import html_pages
+
+        if settled is not None:  # the settled period's page (its limits are on stdout)
+            write_html(html_file, lambda: html_pages.settle_page(settled, inputs))
+        else:
+            from heatweave.reports.model import build_report
+
+            assert outcome is not None
+            report = build_report(inputs, outcome)
+            write_html(html_file, lambda: html_pages.run_page(report, inputs, found, "check"))
     report_limits(deck, found, junit_file, time.monotonic() - started, method.line())
 
 
@@ -137,12 +149,6 @@ def report_limits(
             for item in found
         )
         write_junit(junit_file, deck, cases, elapsed)
-    if html_file is not None:
-        from heatweave.reports.html_pages import run_page
-        from heatweave.reports.model import build_report
-
-        report = build_report(inputs, outcome)
-        write_html(html_file, lambda: run_page(report, inputs, found, command="check"))
     if any(not item.passed for item in found):
         sys.exit(EXIT_CHECK_FAILED)
 

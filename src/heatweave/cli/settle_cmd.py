@@ -18,6 +18,7 @@ from heatweave.cli.common import (
     run_control_options,
     simulation_options,
 )
+from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import Finding, UsageError
 from heatweave.quantities import SpiceQuantity
 from heatweave.spice.acceptance import refuse_rejected
@@ -103,7 +104,7 @@ def settle(
     tstep: float | None, tol: float, max_iter: int, wave_tol: float, warmup: float | None,
     old_envelope: float | None, ambient: float | None, backend: str, allow_control: bool,
     json_file: str | None, csv_file: str | None, plot_file: str | None, check: bool,
-    junit_file: str | None, timeout: float | None, quiet: bool,
+    junit_file: str | None, timeout: float | None, quiet: bool, html_file: str | None,
 ) -> None:  # fmt: skip
     """Find the thermal steady state of DECK driven periodically.
 
@@ -135,11 +136,13 @@ def settle(
         raise UsageError("--csv writes the warm-up curve", hint="add --warmup TSTOP")
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file}
     check_outputs(outputs, deck)
+    check_html_path(html_file)
     check = check or junit_file is not None
     started = time.monotonic()
     annotation_path = annotation_for(deck, annotations)
     try:
         inputs = load_inputs(deck, annotation_path)
+        refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
         # Limit tables naming nodes the deck lacks are refused before simulating.
         signals = limits.resolve_limits(inputs.annotation, inputs.index) if check else ()
 
@@ -169,6 +172,10 @@ def settle(
         from heatweave.reports.settle_plot import render_png
 
         write_atomic(plot_file, render_png(settled, deck))
+    if html_file is not None:
+        from heatweave.reports.html_pages import settle_page
+
+        write_html(html_file, lambda: settle_page(settled, inputs))
     stream = sys.stderr if "-" in outputs.values() else sys.stdout
     if not quiet:
         click.echo(render_table(settled), file=stream, nl=False)
