@@ -248,18 +248,21 @@ def render_markdown(comparison: Comparison) -> str:
         lines.append("No part changed.")
     notable = [c for c in comparison.limits if c.crossed or c.status not in ("pass", "FAIL")]
     if notable:
-        lines += ["", "Limits that changed verdict, appeared or disappeared:", ""]
+        lines += ["", "Limits that crossed the gate, changed verdict, appeared or went:", ""]
         lines += _md_table(LIMIT_HEAD, [limit_row(c) for c in notable])
-    lines += [
-        "",
-        f"<details><summary>The other parts ({len(rest)}) and every limit "
-        f"({len(comparison.limits)})</summary>",
-        "",
-    ]
+    folded = []
     if rest:
-        lines += _md_table(PART_HEAD, [r for p in rest for r in part_rows(p)])
+        folded.append(f"the other parts ({len(rest)})")
     if comparison.limits:
-        lines += ["", *_md_table(LIMIT_HEAD, [limit_row(c) for c in comparison.limits])]
+        folded.append(f"every limit ({len(comparison.limits)})")
+    if not folded:
+        return "\n".join([*lines, "", f"> {CAUTION_LINE}", ""])
+    summary = " and ".join(folded)
+    lines += ["", f"<details><summary>{summary[0].upper()}{summary[1:]}</summary>", ""]
+    if rest:
+        lines += [*_md_table(PART_HEAD, [r for p in rest for r in part_rows(p)]), ""]
+    if comparison.limits:
+        lines += _md_table(LIMIT_HEAD, [limit_row(c) for c in comparison.limits])
     lines += ["", "</details>", "", f"> {CAUTION_LINE}", ""]
     return "\n".join(lines)
 

@@ -7,6 +7,7 @@ annotation file stand behind its numbers (``sha256sum FILE`` gives the same dige
 from __future__ import annotations
 
 import hashlib
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -30,6 +31,12 @@ def _digest(path: str, fallback: str) -> str:
     return hashlib.sha256(data).hexdigest()
 
 
+def _shown(path: str) -> str:
+    """An included file as people read it: relative to the current folder when inside it."""
+    relative = os.path.relpath(path)
+    return path if relative.startswith("..") else relative
+
+
 def input_files(inputs: Inputs) -> tuple[InputFile, ...]:
     """The deck (standard input: the text read), every included file once, and the
     annotation file, in that order."""
@@ -47,6 +54,6 @@ def input_files(inputs: Inputs) -> tuple[InputFile, ...]:
     for include in inputs.project.includes:
         if include.path not in seen:
             seen.add(include.path)
-            files.append(InputFile("include", include.path, _digest(include.path, "")))
+            files.append(InputFile("include", _shown(include.path), _digest(include.path, "")))
     files.append(InputFile("annotation file", inputs.annotation_path, inputs.annotation.sha256))
     return tuple(files)
