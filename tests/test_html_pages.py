@@ -89,7 +89,7 @@ def pages(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
             str(DECKS / "pwm-heater" / "heater.cir"),
             "--period",
             "500u",
-            "--envelope",
+            "--warmup",
             "200",
             "-q",
         ],

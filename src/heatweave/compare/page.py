@@ -3,7 +3,7 @@
 The tables are the rows the terminal and Markdown forms print (:mod:`heatweave.compare.
 render`); a change that makes things worse is shaded amber, a crossed threshold red.  The
 figure puts the warm-up curves of both sides on one plot (old dashed, new solid) when both
-ran a transient (or a settle with ``--envelope``); for an operating point it sets each
+ran a transient (or a settle with ``--warmup``); for an operating point it sets each
 part's rise above ambient, old beside new, as bars.
 """
 

@@ -234,7 +234,7 @@ def settle_page(settled: Settled, inputs: Inputs) -> Page:
         Section(
             "Warm-up from cold",
             figures=figures,
-            paragraphs=() if figures else ("Not computed: add --envelope TSTOP.",),
+            paragraphs=() if figures else ("Not computed: add --warmup TSTOP.",),
         ),
     ]
     return Page(
