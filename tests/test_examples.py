@@ -24,6 +24,7 @@ import math
 import re
 import shutil
 import subprocess
+from collections.abc import Callable
 from functools import cache
 from pathlib import Path
 
@@ -514,11 +515,9 @@ def heater_duty(inputs: Inputs) -> float:
     return (off - on) / period
 
 
-@needs_ngspice
-def test_pwm_heater_mean_rise_is_mean_power_times_rth() -> None:
-    """Mean rise = P_mean * (Rth_part + Rth_plate), P_mean = D V^2 R(T) / (R(T) + R_on)^2
-    with R(T) at the mean temperature (the ripple at 2 kHz is below a millikelvin)."""
-    inputs = inputs_of(*HEATER)
+def heater_balance(inputs: Inputs) -> tuple[float, Callable[[float], float]]:
+    """The heater's mean temperature, the root of T = Ta + P_mean(T) (Rth_part + Rth_plate)
+    (scipy brentq), and P_mean(T) = D V^2 R(T) / (R(T) + R_on)^2."""
     ambient = inputs.annotation.ambient.temperature
     rth_part = spec_of(inputs, "RHEAT")["rth"]
     rth_plate = inputs.annotation.node("plate").rth
@@ -533,7 +532,17 @@ def test_pwm_heater_mean_rise_is_mean_power_times_rth() -> None:
     def balance(t_c: float) -> float:
         return ambient + mean_power(t_c) * (rth_part + rth_plate) - t_c
 
-    expected = brentq(balance, ambient, ambient + 200.0, xtol=1e-10)
+    return float(brentq(balance, ambient, ambient + 200.0, xtol=1e-10)), mean_power
+
+
+@needs_ngspice
+def test_pwm_heater_mean_rise_is_mean_power_times_rth() -> None:
+    """Mean rise = P_mean * (Rth_part + Rth_plate), P_mean = D V^2 R(T) / (R(T) + R_on)^2
+    with R(T) at the mean temperature (the ripple at 2 kHz is below a millikelvin)."""
+    inputs = inputs_of(*HEATER)
+    ambient = inputs.annotation.ambient.temperature
+    rth_plate = inputs.annotation.node("plate").rth
+    expected, mean_power = heater_balance(inputs)
     settled = settle(*paths(*HEATER), SettleOptions(period=500e-6), inputs=inputs)
     (part,) = settled.parts
     # settle stops when an iteration moves less than its tol (0.01 K).
@@ -546,3 +555,19 @@ def test_pwm_heater_mean_rise_is_mean_power_times_rth() -> None:
     # The note's numbers: 4.78 W mean, 31.3 degC (5 degC in the box), plate 24.1 degC.
     assert part.power == pytest.approx(4.78, abs=0.01)
     assert part.temperature == pytest.approx(31.3, abs=0.05)
+
+
+@needs_ngspice
+def test_pwm_heater_is_checked_in_its_periodic_steady_state() -> None:
+    """check gates the deck in its periodic steady state (its own transient is ten periods
+    from cold): the rating against the brentq mean power, tmax against the mean temperature
+    (the ripple is below a millikelvin), five printed digits."""
+    expected, mean_power = heater_balance(inputs_of(*HEATER))
+    result = CliRunner().invoke(main, ["check", paths(*HEATER)[0]])
+    assert result.exit_code == 0, result.output
+    assert result.output.startswith("method: periodic steady state")
+    power = re.search(r"RHEAT power_rating: ([0-9.]+) W, at most 25 W", result.output)
+    peak = re.search(r"RHEAT tmax: ([0-9.]+) degC", result.output)
+    assert power is not None and peak is not None, result.output
+    assert float(power[1]) == pytest.approx(mean_power(expected), rel=1e-4)
+    assert float(peak[1]) == pytest.approx(expected, abs=0.01)
