@@ -197,3 +197,13 @@ def test_settle_check_drift_against_the_same_period_without_heating(tmp_path: Pa
     slope = r0 * tc1 / (r_hot + rs) * 1e6
     sampling = V * V * r_hot / (r_hot + rs) ** 2 * (TR + TF) / 6.0 / PER
     assert abs(limit["value"] - abs(drift)) <= slope * (1e-4 + RTH * sampling)
+
+
+def test_check_page_of_a_settled_deck_shows_its_limits(tmp_path: Path) -> None:
+    page = tmp_path / "check.html"
+    args = ["check", DECK, "--ambient", "100", "--html", str(page)]
+    result = CliRunner().invoke(main, args)
+    assert result.exit_code == EXIT_CHECK_FAILED, result.output
+    text = page.read_text()
+    assert "Limits over the settled period" in text
+    assert "4 limits checked, 1 violated" in text and "taken from VPWM" in text

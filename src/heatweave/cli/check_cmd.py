@@ -89,8 +89,9 @@ def check(
         settled, outcome = None, None
         needed = checks.needs_baseline(signals)
         if method.drive is not None:
+            # No period given: settle takes the sources' own and says where it came from.
             settle_options = SettleOptions(
-                period=method.drive.period, ambient=ambient, backend=backend,
+                ambient=ambient, backend=backend,
                 allow_control=allow_control, baseline=needed,
             )  # fmt: skip
             settled = settle(deck, chosen, settle_options, inputs=inputs)
@@ -110,8 +111,8 @@ def check(
     if html_file is not None:
         from heatweave.reports import html_pages
 
-        if settled is not None:  # the settled period's page (its limits are on stdout)
-            write_html(html_file, lambda: html_pages.settle_page(settled, inputs))
+        if settled is not None:
+            write_html(html_file, lambda: html_pages.settle_page(settled, inputs, found, "check"))
         else:
             from heatweave.reports.model import build_report
 

@@ -175,7 +175,7 @@ def settle(
     if html_file is not None:
         from heatweave.reports.html_pages import settle_page
 
-        write_html(html_file, lambda: settle_page(settled, inputs))
+        write_html(html_file, lambda: settle_page(settled, inputs, found))
     stream = sys.stderr if "-" in outputs.values() else sys.stdout
     if not quiet:
         click.echo(render_table(settled), file=stream, nl=False)

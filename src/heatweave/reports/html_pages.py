@@ -207,9 +207,15 @@ def run_page(
     )
 
 
-def settle_page(settled: Settled, inputs: Inputs) -> Page:
-    """The page of ``settle``: the settled period's parts and nodes, the warm-up curve."""
-    data = settle_report.as_dict(settled, inputs)
+def settle_page(
+    settled: Settled,
+    inputs: Inputs,
+    limits: Sequence[LimitResult] | None = None,
+    command: str = "settle",
+) -> Page:
+    """The page of ``settle``: the settled period's parts and nodes, the warm-up curve, and
+    with *limits* (``settle --check``, or ``check`` on a periodic deck) the limits."""
+    data = settle_report.as_dict(settled, inputs, limits)
     tables = [
         parts_table(
             data["parts"],
@@ -229,6 +235,14 @@ def settle_page(settled: Settled, inputs: Inputs) -> Page:
         f"{settled.iterations} iterations, last change {settled.final_change:.3g} K; "
         f"ambient {settled.ambient:.2f} degC"
     )
+    if settled.drive is not None:
+        method += f"; period {settled.drive.describe()}"
+    checked = data["limits"] or []
+    passed = all(item["passed"] for item in checked) if checked else None
+    verdict = "settled"
+    if limits is not None:
+        failed = sum(not item["passed"] for item in checked)
+        verdict = f"settled; {len(checked)} limits checked, {failed} violated"
     sections = [
         Section("Parts and nodes", tables=tuple(tables)),
         Section(
@@ -237,10 +251,19 @@ def settle_page(settled: Settled, inputs: Inputs) -> Page:
             paragraphs=() if figures else ("Not computed: add --warmup TSTOP.",),
         ),
     ]
+    if limits is not None:
+        sections.insert(
+            1,
+            Section(
+                "Limits over the settled period",
+                tables=(limits_table(checked, "Limits and ratings"),) if checked else (),
+                paragraphs=() if checked else ("The annotation file sets no limit and no rating.",),
+            ),
+        )
     return Page(
-        f"heatweave settle: {inputs.deck_path}",
-        "settled",
-        None,
+        f"heatweave {command}: {inputs.deck_path}",
+        verdict,
+        passed,
         method,
         (("", input_files(inputs)),),
         tuple(sections),
