@@ -279,3 +279,18 @@ def test_usage_errors(tmp_path: Path) -> None:
     assert one.exit_code == 2 and "two saved results" in one.output
     html = runner.invoke(main, ["compare", "a.json", "b.json", "--html", "-"])
     assert html.exit_code == 2 and "--html writes a page to a file" in html.output
+
+
+def test_an_error_at_the_revision_names_the_file_there(tmp_path: Path) -> None:
+    root = tmp_path / "board"
+    root.mkdir()
+    git(root, "init", "-q")
+    write_revision(root, RTH_OLD, review="[review]\nmax_rise_grow = 2\n")  # a misspelt key
+    git(root, "add", "-A")
+    git(root, "commit", "-qm", "first")
+    write_revision(root, RTH_NEW)
+    git(root, "commit", "-qam", "second, spelt right")
+    code, output, _ = compare(root, "heater.cir", "--against", "HEAD~1")
+    assert code == 2
+    assert "HEAD~1:heater.thermal.toml:11:1: error: at HEAD~1: unknown key" in output
+    assert "heatweave-compare-" not in output  # the temporary folder is never shown

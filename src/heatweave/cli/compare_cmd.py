@@ -7,6 +7,7 @@ a file that is not a result), and the simulator's own statuses (3 to 7) as ``run
 
 from __future__ import annotations
 
+import os
 import shutil
 import sys
 import time
@@ -218,27 +219,30 @@ def _run_revisions(
         timeout=timeout,
     )
     past = checkout(deck, chosen, revision)
+    folder = past.folder.rstrip("/") + "/"
+
+    def named(text: str) -> str:
+        """Paths in the temporary folder as the revision holds them (``HEAD~1:deck.cir``)."""
+        return text.replace(folder, f"{revision}:")
+
     try:
         label = f"{revision} ({past.commit[:10]})"
         try:
             old = run_side(label, past.deck, past.annotations, options)
         except HeatweaveError as err:
-            err.message = f"at {revision}: {err.message}"
+            err.message = f"at {revision}: {named(err.message)}"
+            if err.location is not None:
+                err.location = replace(err.location, file=named(os.path.abspath(err.location.file)))
             raise
-        # Named as the revision holds them, not by the temporary folder they ran in.
-        prefix = past.folder.rstrip("/") + "/"
-        files = tuple(
-            replace(f, path=f"{revision}:{f.path.removeprefix(prefix)}")
-            if f.path.startswith(prefix)
-            else f
-            for f in old.files
-        )
+        files = tuple(replace(f, path=named(os.path.abspath(f.path))) for f in old.files)
+        warnings = tuple(named(w) for w in old.report.warnings)
         data = {
             **old.data,
             "deck": deck,
             "annotations": {"path": chosen, "sha256": old.data["annotations"]["sha256"]},
+            "warnings": list(warnings),
         }
-        old = replace(old, data=data, files=files)
+        old = replace(old, data=data, files=files, report=replace(old.report, warnings=warnings))
         new = run_side("working tree", deck, chosen, options)
     finally:
         shutil.rmtree(past.folder, ignore_errors=True)
