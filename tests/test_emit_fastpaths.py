@@ -6,8 +6,6 @@
   spliced into the file's text at their offsets instead of rewriting the tree.
 * ``DeckIndex.matching``: a flat deck's globs run over its cards' texts, not over names cut
   out of them first.
-* ``bulk.fast_init``: the quicker ``__init__`` of the records made once per part sets what
-  the dataclass's own ``__init__`` sets.
 
 The reference for each is the emitter with that path switched off: every form, every
 temperature model and network form, ground and mixed-case nodes, instance paths, parts
@@ -17,13 +15,11 @@ cards after ``.end``, CRLF, comments between continuation lines, includes).
 
 from __future__ import annotations
 
-import dataclasses
 import shutil
 from pathlib import Path
 
 import pytest
 
-from heatweave.bulk import fast_init
 from heatweave.emit import stencil
 from heatweave.emit.emitter import _Rewriter, emit_files
 from heatweave.emit.forms import FORMS
@@ -218,68 +214,6 @@ def test_globs_on_card_texts_at_the_edges(tmp_path: Path, text: str) -> None:
         assert index.matching(pattern) == matching_paths(pattern, paths), pattern
     assert [card.head for card in index.top.cards] == list(index.top.heads)
     assert (index.top.texts is None) == (";" in text)  # which of the two ways ran
-
-
-# --------------------------------------------------------------------------- fast_init
-
-
-@dataclasses.dataclass(frozen=True, slots=True)
-class _Plain:
-    a: str
-    b: int = 2
-    c: tuple[int, ...] = ()
-    d: str = dataclasses.field(init=False, compare=False)
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "d", self.a * self.b)
-
-
-_Fast = fast_init(
-    dataclasses.dataclass(frozen=True, slots=True)(
-        type("_Fast", (), {"__annotations__": _Plain.__annotations__, "b": 2, "c": (),
-                           "d": dataclasses.field(init=False, compare=False),
-                           "__post_init__": _Plain.__post_init__})
-    )
-)  # fmt: skip
-
-
-@pytest.mark.parametrize(
-    ("args", "kwargs"),
-    [(("x",), {}), (("x", 3), {}), (("x",), {"c": (1,)}), ((), {"a": "y", "b": 0, "c": ()})],
-)
-def test_fast_init_sets_what_dataclass_init_sets(
-    args: tuple[object, ...], kwargs: dict[str, object]
-) -> None:
-    plain, fast = _Plain(*args, **kwargs), _Fast(*args, **kwargs)  # type: ignore[arg-type]
-    for name in ("a", "b", "c", "d"):
-        assert getattr(fast, name) == getattr(plain, name)
-    with pytest.raises(dataclasses.FrozenInstanceError):
-        fast.a = "z"  # type: ignore[misc]
-    with pytest.raises(TypeError):
-        _Fast()  # a required field missing, as with dataclass's own __init__
-
-
-def test_fast_init_refuses_default_factory() -> None:
-    @dataclasses.dataclass(frozen=True, slots=True)
-    class WithFactory:
-        items: list[int] = dataclasses.field(default_factory=list)
-
-    with pytest.raises(TypeError, match="default_factory"):
-        fast_init(WithFactory)
-
-
-def test_fast_init_without_slots_sets_through_setattr() -> None:
-    @fast_init
-    @dataclasses.dataclass(frozen=True)
-    class Unslotted:
-        a: str
-        b: int = 2
-
-    made = Unslotted("x")
-    assert (made.a, made.b) == ("x", 2)
-    assert made == Unslotted("x", 2)
-    with pytest.raises(dataclasses.FrozenInstanceError):
-        made.a = "z"  # type: ignore[misc]
 
 
 # --------------------------------------------------------------------------- line endings

@@ -11,7 +11,6 @@ from heatweave.annotation.types import (
     BoundPart,
     PartSpec,
 )
-from heatweave.bulk import paused_gc
 from heatweave.errors import AnnotationError
 from heatweave.spice.globmatch import matching
 from heatweave.tempmodels import REGISTRY
@@ -64,8 +63,7 @@ def bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:
 
     Exact keys beat globs; an element matched by two globs (and no exact key) is an error.
     """
-    with paused_gc():  # a deck may have a million elements, a glob may match most
-        return _bind(annotation, catalog)
+    return _bind(annotation, catalog)
 
 
 def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]:

@@ -10,7 +10,6 @@ import numpy as np
 
 from heatweave.annotation.fields import Distribution
 from heatweave.annotation.ratings import derated_power
-from heatweave.bulk import fast_init
 from heatweave.errors import AnnotationError, Finding, Location
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
 
@@ -162,7 +161,6 @@ class Annotation:
         raise KeyError(name)
 
 
-@fast_init
 @dataclass(frozen=True, slots=True)
 class BoundPart:
     """A deck element with the part table that applies to it."""

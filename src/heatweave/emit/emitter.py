@@ -29,7 +29,6 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
 from heatweave.annotation import Annotation, BoundPart
-from heatweave.bulk import paused_gc
 from heatweave.emit.forms import (
     added_nodes,
     resistor_cards,
@@ -387,12 +386,10 @@ def emit_deck(
     end_at = end_position(deck)
     # Splicing needs the deck as read (a sweep may have edited it).
     if deck.source is not None and end_at is not None and written == deck.source.text:
-        with paused_gc():
-            edits = rewriter.edits(deck.source)
+        edits = rewriter.edits(deck.source)
     body: list[Node] = []
     if edits is None:
-        with paused_gc():
-            body = rewriter.body(deck.body, "", top=True)
+        body = rewriter.body(deck.body, "", top=True)
         copies = "".join(node.write() for node in rewriter.unplaced())
     thermal = [AMBIENT_NODE, *(n.node for n in circuit.nodes), *rewriter.thermal]
     options = step_limit_options(form, [(low, t) for _d, low, t in folded], folded=True)

@@ -17,7 +17,6 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TypeVar
 
-from heatweave.bulk import fast_init, paused_gc
 from heatweave.errors import DeckStructureError, Location
 from heatweave.spice import deckparams
 from heatweave.spice.cardparts import subckt_ports, x_card_parts
@@ -257,7 +256,6 @@ class Scope:
         return self._by_name.get(name)
 
 
-@fast_init
 @dataclass(frozen=True, slots=True)
 class Resolved:
     """An element found by instance path: its card and the ``X`` cards leading to it."""
@@ -285,13 +283,12 @@ class DeckIndex:
         """The top-level scope, built on first use (a deck with nothing to rewrite never
         pays for indexing its cards)."""
         if self._top is None:
-            with paused_gc():
-                nodes = self._expand(self.project.deck.body)
-                sources = [self.project.deck, *(inc.deck for inc in self.project.includes)]
-                if may_have_conditionals(d.source.text for d in sources if d.source):
-                    cards = [n for n in nodes if type(n) is Card and n.name in _PARAMS]
-                    self._conditions = deckparams.values(cards)
-                self._top = self._scope("", None, self._decide(nodes))
+            nodes = self._expand(self.project.deck.body)
+            sources = [self.project.deck, *(inc.deck for inc in self.project.includes)]
+            if may_have_conditionals(d.source.text for d in sources if d.source):
+                cards = [n for n in nodes if type(n) is Card and n.name in _PARAMS]
+                self._conditions = deckparams.values(cards)
+            self._top = self._scope("", None, self._decide(nodes))
         return self._top
 
     def _decide(self, nodes: list[Node]) -> list[Node]:

@@ -15,7 +15,6 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 
-from heatweave.bulk import fast_init
 from heatweave.errors import EmitError
 from heatweave.quantities import parse_number
 from heatweave.spice import deckparams, expressions
@@ -142,7 +141,6 @@ def rewrite_nodes(card: Card, new: Mapping[int, str], index: DeckIndex | None = 
     return logical + "\n"
 
 
-@fast_init
 @dataclass(frozen=True, slots=True)
 class ResistorValue:
     """A resistor card's nominal resistance (value * scale / m) and what it set aside."""

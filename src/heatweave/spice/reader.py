@@ -17,7 +17,6 @@ from __future__ import annotations
 
 import re
 
-from heatweave.bulk import paused_gc
 from heatweave.errors import DeckStructureError
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 
@@ -41,8 +40,7 @@ def read(text: str, path: str = "<deck>", *, title: bool = True) -> Deck:
     Never fails on ngspice-acceptable input; structural problems that ngspice would also
     reject (``.ends`` without ``.subckt``) are kept as plain cards and reported by ``lint``.
     """
-    with paused_gc():
-        return _read(text, path, title)
+    return _read(text, path, title)
 
 
 def _read(text: str, path: str, title: bool) -> Deck:

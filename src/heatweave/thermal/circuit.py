@@ -17,7 +17,6 @@ import re
 from dataclasses import dataclass, field
 
 from heatweave.annotation import AMBIENT, Annotation, BoundPart, NetworkSpec
-from heatweave.bulk import fast_init, paused_gc
 from heatweave.errors import AnnotationError, EmitError, Finding, Location
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
 from heatweave.spice.grammar import syntax_of
@@ -48,7 +47,6 @@ def shared_node(name: str) -> str:
     return f"{PREFIX}n_{safe(name)}"
 
 
-@fast_init
 @dataclass(frozen=True, slots=True)
 class PartPlan:
     """One heated part: a resistor with a temperature model, or a heat-only element."""
@@ -162,54 +160,53 @@ def build_circuit(
     shared: dict[int, tuple[NetworkForm, str]] = {}
     models: dict[tuple[int, float], TempModel | None] = {}
     scoped: dict[tuple[int, ...], dict[str, float]] = {}  # parameters by instance chain
-    with paused_gc():  # a glob may annotate a hundred thousand parts
-        for item in bound:
-            spec = item.spec
-            common = shared.get(id(spec))
-            if common is None:
-                try:
-                    network = from_annotation(spec.network.kind, _network_data(spec.network))
-                except NetworkError as err:
-                    raise err.at(spec.location) from None
-                common = shared[id(spec)] = (network, node_of(spec.to))
-            network, to_node = common
-            model = None
-            nominal = None
-            found = index.element_at(item.position, item.element)
-            if found is None:
-                raise AnnotationError(f"{item.element} is not in the deck", spec.location)
-            card = found.card
-            simple = simple_resistor(card) if item.kind == "R" else None
-            if simple is None:
-                syntax_of(card)  # a malformed card is reported where it stands
-                terminals = tuple(card_nodes(card, index))
-            else:
-                terminals = (simple.group(1), simple.group(2))
-            if spec.model is not None:
-                seen = params
-                if found.instances:  # inside subcircuits: their parameters count too
-                    chain = tuple(map(id, found.instances))
-                    if chain not in scoped:
-                        scoped[chain] = scope_params(params, found)
-                    seen = scoped[chain]
-                value = resistor_value(card, seen, simple, funcs)
-                if value.notes:
-                    findings.extend(
-                        Finding("warning", f"{item.element}: {note}", found.card.location())
-                        for note in value.notes
-                    )
-                nominal = value.ohms
-                key = (id(spec), nominal)
-                model = models.get(key)
-                if model is None:  # parts of one table with equal values share their model
-                    model = models[key] = spec.temp_model(nominal)
-            parts.append(
-                PartPlan(
-                    item.element, spec.model, model, network, to_node, spec.to,
-                    spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
-                    terminals, found,
+    for item in bound:
+        spec = item.spec
+        common = shared.get(id(spec))
+        if common is None:
+            try:
+                network = from_annotation(spec.network.kind, _network_data(spec.network))
+            except NetworkError as err:
+                raise err.at(spec.location) from None
+            common = shared[id(spec)] = (network, node_of(spec.to))
+        network, to_node = common
+        model = None
+        nominal = None
+        found = index.element_at(item.position, item.element)
+        if found is None:
+            raise AnnotationError(f"{item.element} is not in the deck", spec.location)
+        card = found.card
+        simple = simple_resistor(card) if item.kind == "R" else None
+        if simple is None:
+            syntax_of(card)  # a malformed card is reported where it stands
+            terminals = tuple(card_nodes(card, index))
+        else:
+            terminals = (simple.group(1), simple.group(2))
+        if spec.model is not None:
+            seen = params
+            if found.instances:  # inside subcircuits: their parameters count too
+                chain = tuple(map(id, found.instances))
+                if chain not in scoped:
+                    scoped[chain] = scope_params(params, found)
+                seen = scoped[chain]
+            value = resistor_value(card, seen, simple, funcs)
+            if value.notes:
+                findings.extend(
+                    Finding("warning", f"{item.element}: {note}", found.card.location())
+                    for note in value.notes
                 )
-            )  # fmt: skip
+            nominal = value.ohms
+            key = (id(spec), nominal)
+            model = models.get(key)
+            if model is None:  # parts of one table with equal values share their model
+                model = models[key] = spec.temp_model(nominal)
+        parts.append(
+            PartPlan(
+                item.element, spec.model, model, network, to_node, spec.to,
+                spec.power_rating, spec.tmax, spec.derating_knee, spec.location, nominal,
+                terminals, found,
+            )
+        )  # fmt: skip
     nodes = tuple(SharedNode(n.name, n.rth, n.cth, node_of(n.to), n.to) for n in annotation.nodes)
     couplings = tuple(
         Coupling(node_of(p.between[0]), node_of(p.between[1]), p.rth, p.between)
