@@ -174,7 +174,7 @@ def test_markdown_puts_the_worst_first_and_folds_the_rest() -> None:
     summary, folded = text.split("<details>")
     assert summary.index("`R7`") < summary.index("`R3`")  # 10 K worse before 3 K worse
     assert "`R1`" not in summary and "`R1`" in folded  # unchanged parts are folded away
-    assert "- :x: `R7`: rise grew by 10 K, more than 5 K" in summary
+    assert "- **crossed** `R7`: rise grew by 10 K, more than 5 K" in summary
     table = render_table(result)
     assert "CROSSED R7: rise grew by 10 K" in table and "gate crossed 1 time" in table
 

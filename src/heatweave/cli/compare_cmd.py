@@ -177,7 +177,8 @@ def compare(
         from heatweave.compare.render import render_table
 
         stream = sys.stderr if on_stdout else sys.stdout
-        click.echo(render_table(comparison, colour=is_terminal(stream)), file=stream, nl=False)
+        colour = is_terminal(stream) and "NO_COLOR" not in os.environ
+        click.echo(render_table(comparison, colour=colour), file=stream, nl=False)
     if not comparison.passed:
         sys.exit(EXIT_CHECK_FAILED)
 

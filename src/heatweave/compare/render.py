@@ -232,7 +232,7 @@ def render_markdown(comparison: Comparison) -> str:
         "",
     ]
     lines += [
-        f"- :x: `{_md(line.split(': ', 1)[0])}`: {_md(line.split(': ', 1)[1])}"
+        f"- **crossed** `{_md(line.split(': ', 1)[0])}`: {_md(line.split(': ', 1)[1])}"
         for line in comparison.crossed
     ]
     if comparison.crossed:
