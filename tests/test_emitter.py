@@ -564,10 +564,29 @@ def test_analyses_code_models_lack_fall_back_to_the_reference_form(
     assert warning.location is not None and warning.location.line == line
 
 
-def test_analyses_code_models_run_keep_the_switch_form(tmp_path: Path) -> None:
-    deck = write_case(tmp_path, DIVIDER_AC + ".ac dec 5 1 1k\n.op\n.end\n", LINEAR_R1)
-    emitted = emit_files(str(deck), str(deck.with_suffix(".thermal.toml")), form="switch")
-    assert "\nAhw_r_r1 " in emitted.text and not emitted.findings
+@pytest.mark.ngspice
+@pytest.mark.parametrize("form", ["switch", "divider"])
+def test_ac_small_signal_of_an_annotated_divider(tmp_path: Path, form: str) -> None:
+    # Found by the conformance suite: with code models the small-signal response came out
+    # 4.06 V for this 1 V divider (the plain deck: 0.5).  Closed form of a self-heated
+    # resistor with an instantaneous thermal path (no cth): V = I R(T), T = 25 + Rth I^2 R,
+    # so dV/dI = R + I R'(T) dT/dI with dT/dI = 2 Rth I R / (1 - Rth I^2 R'), R' = R0 tc1.
+    deck = write_case(tmp_path, DIVIDER_AC + ".ac lin 1 1 1\n.end\n", LINEAR_R1)
+    emitted = emit_files(str(deck), str(deck.with_suffix(".thermal.toml")), form=form)
+
+    def r1(t: float) -> float:
+        return 1000.0 * (1 + 0.004 * (t - 25.0))
+
+    hot = brentq(lambda t: t - 25.0 - 50.0 * (10.0 / (r1(t) + 1000.0)) ** 2 * r1(t), 25, 200)
+    current = 10.0 / (r1(hot) + 1000.0)
+    slope = 1000.0 * 0.004
+    dt_di = 2 * 50.0 * current * r1(hot) / (1 - 50.0 * current**2 * slope)
+    r_ac = r1(hot) + current * slope * dt_di
+    sim = get_simulator("batch").run(emitted.text, analyses=(), deck_analyses=True)
+    out = abs(complex(sim.plots[-1]["v(out)"][0]))
+    # C1 = 1 uF at 1 Hz against 500 ohm: |1 + j w R C| - 1 = 5e-6, below the tolerance.
+    assert out == pytest.approx(1000.0 / (1000.0 + r_ac), rel=1e-4)
+    assert any(".ac" in f.message for f in emitted.findings)
 
 
 @pytest.mark.parametrize("form", ["reference", "switch"])

@@ -49,7 +49,7 @@ from heatweave.emit.temperature import temperature_findings
 from heatweave.errors import EmitError, Finding
 from heatweave.quantities import format_number
 from heatweave.spice.cardparts import x_card_parts
-from heatweave.spice.deck import Block, Card, Deck, Node, SourceFile
+from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 from heatweave.spice.hierarchy import DeckIndex, Project
 from heatweave.spice.netlist import positional_spans, rewrite_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
@@ -407,6 +407,16 @@ def emit_deck(
     check_names(
         index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)], folded
     )
+    last = deck.body[-1] if deck.body else None
+    if isinstance(last, ControlBlock) and not last.closed:
+        # ngspice 39 drops every .model card of a deck whose .control block has no .endc
+        # ("could not find a valid modelname"), the section's code models too: close it.
+        text += ("" if text.endswith("\n") else eol) + ".endc" + eol
+        rewriter.findings.append(Finding(
+            "warning", "the .control block has no .endc; the emitted deck closes it at the "
+            "end of the file, where ngspice 39 ends it", last.source.location(last.offset)
+            if last.source is not None else None,
+        ))  # fmt: skip
     return Emitted(text, tuple(rewriter.added), tuple(rewriter.findings), circuit)
 
 

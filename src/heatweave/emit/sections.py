@@ -183,14 +183,17 @@ def check_names(
 # cards (found with .control, whose blocks may run them as commands; a literal "." lets the
 # regex engine skip ahead), and as commands at the start of a .control block's line.  The
 # texts searched are in lower case.
-_DOT_ANALYSIS = re.compile(r"\.(pz|disto|sens|noise|control)(?=[ \t\r\n]|\Z)")
-_COMMAND = re.compile(r"\n[ \t]*(pz|disto|sens|noise)(?=[ \t\r\n]|\Z)")
+# The AC analysis too: ngspice builds the code models' small-signal response from their
+# partial derivatives, which for heatweave's switch and product stages give a wrong answer
+# (a 1 V divider read 4.06 V, or NaN where the resistor carries no bias current).
+_DOT_ANALYSIS = re.compile(r"\.(pz|disto|sens|noise|ac|control)(?=[ \t\r\n]|\Z)")
+_COMMAND = re.compile(r"\n[ \t]*(pz|disto|sens|noise|ac)(?=[ \t\r\n]|\Z)")
 
 
 def analyses(
     project: Project, folded: list[tuple[Deck, str, bool]]
 ) -> list[tuple[str, Location | None]]:
-    """The pole-zero, distortion, sensitivity and noise analyses the deck asks for, each with
+    """The pole-zero, distortion, sensitivity, noise and AC analyses the deck asks for, each with
     where it stands: dot cards in the deck and its includes, commands in its ``.control``
     blocks.  *folded* is :func:`folded_files`; a deck without such a line costs one scan."""
     dotted = {"." + word for _d, low, _t in folded for word in _DOT_ANALYSIS.findall(low)}
@@ -235,12 +238,16 @@ def analysis_findings(
     gaps = [(name, where) for name, where in found if name != "noise"]
     if gaps and form != "reference":
         name, where = gaps[0]
+        why = (
+            "the code models' small-signal response is wrong for heatweave's stages"
+            if name == "ac"
+            else "XSPICE code models do not implement this analysis (ngspice manual 1.2)"
+        )
         findings.append(
             Finding(
                 "warning",
-                f".{name}: XSPICE code models do not implement this analysis (ngspice manual "
-                f"1.2), so the annotated resistors are written in the reference form, not "
-                f"the {form} form",
+                f".{name}: {why}, so the annotated resistors are written in the reference "
+                f"form, not the {form} form",
                 where,
                 "run the analysis on a copy of the deck if the faster form matters",
             )

@@ -8,7 +8,7 @@ most of the rewrite.  ``tests/test_emit_fastpaths.py`` checks the two give the s
 
 from __future__ import annotations
 
-from heatweave.spice.deck import Card, Deck, Node
+from heatweave.spice.deck import Card, ControlBlock, Deck, Node
 
 
 def line_ending(deck: Deck) -> str:
@@ -28,6 +28,13 @@ def end_position(deck: Deck) -> int | None:
             if node.source is not deck.source or node.offset < 0:
                 return None
             return node.offset - len(node.lead)
+    last = deck.body[-1] if deck.body else None
+    if isinstance(last, ControlBlock) and not last.closed:
+        # A .control block that runs to the end of the file (no .endc, no .end): ngspice
+        # would read the section as commands; it goes above the block.
+        if last.source is not deck.source or last.offset < 0:
+            return None
+        return last.offset - len(last.lead)
     return -1
 
 
@@ -76,6 +83,8 @@ def insert_before_end(body: list[Node], section: Card, eol: str = "\n") -> list[
         node = body[i]
         if isinstance(node, Card) and node.name == ".end":
             return [*body[:i], section, *body[i:]]
+    if body and isinstance(body[-1], ControlBlock) and not body[-1].closed:
+        return [*body[:-1], section, body[-1]]  # see end_position
     if body and not body[-1].write().endswith("\n"):
         # The file ended without a newline: start the section on a line of its own.
         section = Card(section.text, eol + section.lead)

@@ -69,6 +69,7 @@ def rejections(index: DeckIndex) -> list[Finding]:
     cards = list(_read_cards(index))
     found = list(_title(index))
     found.extend(_empty(index, cards))
+    found.extend(_open_control(index, cards))
     found.extend(_unknown_dot_cards(cards))
     found.extend(_parameters(index, cards))
     found.extend(_recursion(index))
@@ -128,6 +129,38 @@ def _title(index: DeckIndex) -> Iterator[Finding]:
         yield Finding("warning", "the title line is an .include: ngspice 39 reads the file, "
                       "heatweave does not (its elements and nodes are not checked)", where,
                       hint)  # fmt: skip
+
+
+_MODEL_LETTERS = frozenset("DQJMZSWOYUANP")
+
+
+def _open_control(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
+    """A ``.control`` block without ``.endc`` in a deck whose elements use models: ngspice
+    39 then drops every ``.model`` card ("could not find a valid modelname")."""
+    deck = index.project.deck
+    last = deck.body[-1] if deck.body else None
+    if not isinstance(last, ControlBlock) or last.closed:
+        return
+    models = {c.fields()[1].lower() for c in cards if c.name == ".model" and len(c.fields()) > 1}
+    if not models:
+        return
+    user = next(
+        (
+            c
+            for c in cards
+            if c.letter in _MODEL_LETTERS
+            or (c.letter in "RCL" and any(f.lower() in models for f in c.fields()[3:]))
+        ),
+        None,
+    )
+    if user is None:
+        return
+    yield Finding(
+        "error", f"the .control block has no .endc, and {user.head} uses a model: ngspice 39 "
+        "then drops every .model card ('could not find a valid modelname')",
+        last.source.location(last.offset) if last.source is not None else None,
+        "close the block with .endc",
+    )  # fmt: skip
 
 
 def _unknown_dot_cards(cards: Iterable[Card]) -> Iterator[Finding]:
