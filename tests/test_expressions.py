@@ -25,8 +25,10 @@ FUNCS = {
     "pick": Func("pick", ("c", "a", "b"), "c ? a : b"),
     "twice": Func("twice", ("x",), "2*half(x)*2"),
 }
-DEFINITIONS = ".param rval=2k k1=3 sel=1\n.func half(x) {x/2}\n.func pick(c,a,b) {c ? a : b}\n" \
+DEFINITIONS = (
+    ".param rval=2k k1=3 sel=1\n.func half(x) {x/2}\n.func pick(c,a,b) {c ? a : b}\n"
     ".func twice(x) {2*half(x)*2}\n"
+)
 
 # Expressions ngspice 39.3 evaluates (precedence, associativity, functions, .func, ?:).
 ACCEPTED = [
@@ -39,13 +41,13 @@ ACCEPTED = [
     "1 - -3", "10kOhm", "3.3MOhm", "1T", "1a", "2*(3+4)", "tanh(0.5)", "asinh(1)",
     "5 > 3 ? 1 : 2", "1+2 == 3", "1 || 0 && 0", "rval*k1", "sel == 1 ? rval : 2*rval",
     "half(rval)", "pick(sel, 10, 20)", "pick(0, 10, 20)", "twice(k1)", "rval/(1+k1)",
-]
+]  # fmt: skip
 # Expressions ngspice 39.3 refuses, and the kind of refusal heatweave gives.
 REFUSED = [
     ("pi", "undefined"), ("nosuch*2", "undefined"), ("(2*(1k)", "syntax"),
     ("2*1k)", "syntax"), ("1/0", "math"), ("sqrt(-4)", "math"), ("pow(-2,0.5)", "math"),
     ("2*+3", "unsupported"), ("temper", "runtime"),
-]
+]  # fmt: skip
 
 
 def ngspice_values(deck: str, folder: Path) -> tuple[dict[str, float], str]:

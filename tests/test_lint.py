@@ -91,12 +91,17 @@ REJECTED_LATER = [
     (
         "V1 in 0 1\nR1 in out 1\nR2 out 0 1\n.op\n",
         NOTES + '[limit."V(outt)"]\nmax = 1.0\n',
-        "amp.thermal.toml", 6, 'names node "outt"',
+        "amp.thermal.toml",
+        6,
+        'names node "outt"',
     ),
     # emit: the deck already uses a name heatweave adds for R1's hot spot
     (
         "V1 in 0 1\nR1 in hw_t_r1 1\nR2 hw_t_r1 0 1\n.op\n",
-        NOTES, "amp.cir", 3, "which heatweave reserves",
+        NOTES,
+        "amp.cir",
+        3,
+        "which heatweave reserves",
     ),
 ]
 
@@ -184,3 +189,73 @@ def test_global_nodes_are_connected_across_subcircuits(
     deck = tmp_path / "global.cir"
     deck.write_text("global nodes\n" + body)
     assert [m.removeprefix(f"{deck}:") for m in rendered(deck)] == expected
+
+
+# Issue 17: the same element name in two branches of one .if block is not a duplicate;
+# conditions heatweave cannot compute leave every branch in, and only names in the same
+# branch (or outside the block) clash.  ngspice 39 keeps the branch the .param values pick.
+CONDITIONAL = [
+    (".param sel=2\nV1 in 0 1\n.if (sel == 1)\nRx in 0 1k\n.else\nRx in 0 2k\n.endif\n", []),
+    (  # undecided (ngspice would stop on the undefined name, lint says so once)
+        "V1 in 0 1\n.if (corner == 1)\nRx in 0 1k\n.elseif (corner == 2)\nRx in 0 2k\n"
+        ".else\nRx in 0 3k\n.endif\n",
+        [
+            f"{line}: error: parameter 'corner' is not defined: ngspice 39 stops with 'Undefined "
+            "parameter'"
+            for line in ("3:6", "5:10")
+        ],
+    ),
+    (  # the active branch names Rx twice
+        ".param sel=1\nV1 in 0 1\n.if (sel == 1)\nRx in 0 1k\nRx in 0 2k\n.endif\n",
+        ["6:1: error: duplicate element name Rx (first at line 5)"],
+    ),
+    (  # the inactive branch's duplicate is not read by ngspice
+        ".param sel=0\nV1 in 0 1\nRx in 0 3k\n.if (sel)\nRx in 0 1k\n.endif\n",
+        [],
+    ),
+]
+
+
+@pytest.mark.parametrize(("body", "expected"), CONDITIONAL)
+def test_conditional_branches(tmp_path: Path, body: str, expected: list[str]) -> None:
+    deck = tmp_path / "cond.cir"
+    deck.write_text("conditional\n" + body + ".op\n.end\n")
+    found = [m.removeprefix(f"{deck}:") for m in rendered(deck) if " error: " in m]
+    assert found == expected
+
+
+def test_strict_fails_on_warnings_only_when_asked(tmp_path: Path) -> None:
+    deck = tmp_path / "ctl.cir"
+    deck.write_text("control to the end\nV1 a 0 1\nR1 a 0 1k\n.op\n.control\nop\n")
+    runner = CliRunner()
+    plain = runner.invoke(lint, [str(deck)])
+    assert plain.exit_code == 0
+    assert "6:1: warning: .control without .endc" not in plain.output
+    assert "5:1: warning: .control without .endc runs to the end of the file" in plain.output
+    assert runner.invoke(lint, ["--strict", str(deck)]).exit_code == 1
+    assert runner.invoke(lint, ["--strict", str(FIXTURES / "clean.cir")]).exit_code == 0
+
+
+def test_title_line_read_as_a_card(tmp_path: Path) -> None:
+    # ngspice 39.3 reads an .include on the title line (heatweave does not) and stops on a
+    # .param there ("title line is missing"); checked in tests/conformance (r21).
+    deck = tmp_path / "t.cir"
+    (tmp_path / "more.inc").write_text("R9 a 0 1k\n")
+    deck.write_text(".include more.inc\nV1 a 0 1\nR1 a 0 1k\n.op\n.end\n")
+    (finding,) = lint_file(str(deck))
+    assert finding.severity == "warning" and "title line is an .include" in finding.message
+
+
+def test_checks_see_the_nodes_of_a_and_k_cards(tmp_path: Path) -> None:
+    # Issue 15: a deck with XSPICE A cards and a K card made check exit 2 ("cannot tell
+    # the terminals"); a limit on a node only an A card drives must now resolve.
+    deck = tmp_path / "mixed.cir"
+    deck.write_text(
+        "mixed\nV1 in 0 sin(0 1 1k)\nR1 in a 100\nAgain %v(a) %vd(out 0) amp\n"
+        ".model amp gain(gain=2)\nRo out 0 1k\nL1 a 0 1m\nL2 b 0 1m\nK1 L1 L2 0.5\n"
+        "Rb b 0 10\n.tran 1u 1m\n.end\n"
+    )
+    (tmp_path / "mixed.thermal.toml").write_text(NOTES + '[limit."V(out)"]\nmax = 5.0\n')
+    from heatweave.checks.lint import lint_file as lint_annotated
+
+    assert [f for f in lint_annotated(str(deck)) if f.severity == "error"] == []

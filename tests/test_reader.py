@@ -128,3 +128,19 @@ def test_round_trip_property(lines: list[str], eol: str, final: bool) -> None:
     text = eol.join(line.replace("\n", " ") for line in lines) + (eol if final else "")
     assert read(text).write() == text
     assert read(text, title=False).write() == text
+
+
+# Issue 17: the last line of an included model file was a '*' comment; the reader searched
+# past the '*' for the next card and took " F grade ..." for an F element.
+@pytest.mark.parametrize(
+    "text",
+    [
+        ".model d1 d(is=1f\n\t+ n=1.0)\n* F grade option\n",
+        ".model d1 d(is=1f\n\t+ n=1.0)\n* F grade option",
+        "R1 a 0 1k\n*\n* c2\n\n",
+    ],
+)
+def test_comment_lines_at_the_end_are_trivia(text: str) -> None:
+    deck = read(text, title=False)
+    assert [c.head for c in deck.cards()] == [text.split()[0]]
+    assert deck.write() == text
