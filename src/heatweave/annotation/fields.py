@@ -36,6 +36,27 @@ class Field:
     required: bool = False
     tolerance: bool = False  # may be written as {nominal = ..., sigma = ...} etc.
     choices: tuple[str, ...] = ()
+    # (low, high, why): the span outside which the physics heatweave computes means nothing.
+    limits: tuple[float, float, str] | None = None
+
+
+#: Above this a thermal resistance's conductance (K/W -> W/K) is below ngspice's default gmin
+#: (1e-12 S, manual 15.1.2), the conductance ngspice itself adds to keep nodes solvable: the
+#: node's temperature would be set by that, not by the path written.
+RTH_LIMIT = 1e12
+RTH_LIMITS = (
+    0.0,
+    RTH_LIMIT,
+    f"above {RTH_LIMIT:g} K/W its conductance is below ngspice's gmin (1e-12 S), which "
+    "would set the temperature instead of the path written",
+)
+#: heatweave.run.results' implausible temperature: a reference past it is no measurement.
+TREF_LIMITS = (
+    -273.15,
+    1000.0,
+    "a reference temperature lies between absolute zero and 1000 degC, where a resistor's "
+    "value can have been measured",
+)
 
 
 START_CHOICES = ("cold", "steady")
@@ -62,7 +83,15 @@ AMBIENT_FIELDS = (
         "[[0, 25], [600, 40]]",
     ),
 )
-RTH = Field("rth", "positive", "K/W", "thermal resistance to `to`", "30.0", tolerance=True)
+RTH = Field(
+    "rth",
+    "positive",
+    "K/W",
+    "thermal resistance to `to`",
+    "30.0",
+    tolerance=True,
+    limits=RTH_LIMITS,
+)
 CTH = Field(
     "cth",
     "nonnegative",
@@ -82,7 +111,14 @@ PART_FIELDS = (
         '"linear"',
         choices=tuple(sorted(REGISTRY)),
     ),
-    Field("tref", "number", "degC", "temperature at which the deck's value holds", "25.0"),
+    Field(
+        "tref",
+        "number",
+        "degC",
+        "temperature at which the deck's value holds",
+        "25.0",
+        limits=TREF_LIMITS,
+    ),
     RTH,
     CTH,
     Field("foster", "stages", "[K/W, s]", "Foster stages (rth, tau)", "[[12.0, 0.01]]"),
@@ -236,6 +272,13 @@ def check_number(field: Field, value: object, where: LocateFn) -> float:
     number = as_number(value)
     if number is None or not fits(field.kind, number):
         raise _fail(field, value, where)
+    if field.limits is not None and not field.limits[0] <= number <= field.limits[1]:
+        low, high, why = field.limits
+        raise AnnotationError(
+            f"{field.key} = {shown(value)} is outside {low:g} to {high:g} {field.unit}: {why}",
+            where(),
+            f"for example {field.key} = {field.example}",
+        )
     return number
 
 
@@ -253,6 +296,13 @@ def check_pairs(field: Field, value: object, where: LocateFn) -> tuple[tuple[flo
             raise _fail(field, item, where, words)
         if field.kind == "stages" and not (x > 0 and y > 0):
             raise _fail(field, item, where, "an array of positive [" + field.unit[1:-1] + "] pairs")
+        if field.kind == "stages" and x > RTH_LIMIT:
+            raise AnnotationError(
+                f"{field.key}: a stage's rth of {format_number(x)} K/W is too large: "
+                f"{RTH_LIMITS[2]}",
+                where(),
+                f"for example {field.key} = {field.example}",
+            )
         pairs.append((x, y))
     return tuple(pairs)
 

@@ -145,6 +145,10 @@ def run_auto(
             reason = "the ngspice shared library is missing, so the full deck ran"
         except StrongFeedback as strong:
             if method == "cosim":
+                # A runaway is one whatever the method: the full deck's diagnosis says so
+                # (exit 7, with the loop gain); a strong but stable loop is a usage error.
+                runner.run(deck_path, annotation_path, options, inputs=inputs,
+                           annotation=annotation)  # fmt: skip
                 raise UsageError(
                     f"the co-simulation stopped: {strong} (above {MAX_LOOP_GAIN:g})",
                     hint="use --method full: near thermal runaway only the full deck is exact",

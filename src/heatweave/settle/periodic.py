@@ -44,10 +44,12 @@ from heatweave.emit.emitter import Inputs, load_inputs
 from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, UsageError
 from heatweave.run.prepare import RunOptions
 from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, range_warning
+from heatweave.run.verify import NoSteadyStateError
 from heatweave.settle.electrical import Cycle, Electrical
 from heatweave.settle.sources import DrivePeriod, drive_period, seconds
 from heatweave.settle.thermal import periodic
 from heatweave.settle.warmup import Envelope, warm_up
+from heatweave.thermal.balance import Verdict, check_state
 from heatweave.thermal.circuit import PartPlan
 from heatweave.thermal.solver import ThermalSystem, assemble
 
@@ -194,6 +196,7 @@ class _Loop:
         self.names = [parts[k].path for k in self.index]
         self.periods = options.periods
         self.evaluations = 0
+        self.settled_at = np.zeros(len(self.index))
 
     def evaluate(self, temps: FloatArray) -> tuple[Cycle, FloatArray]:
         """Averaged powers at *temps* and the steady temperatures they give (all outputs)."""
@@ -277,6 +280,7 @@ class _Loop:
                     "it by a kelvin or more, so there is no stable operating point",
                 )  # fmt: skip
             if change < self.options.tol:
+                self.settled_at = temps  # the temperatures the last period was run at
                 return cycle, steps
             last = (temps, residual)
             proposed = temps - np.linalg.solve(jac, residual)
@@ -364,6 +368,7 @@ def settle(
     loop = _Loop(electrical, system, ambient, options)
     cycle, steps = loop.run()
     ripple = periodic(system, cycle.time, cycle.power, ambient)
+    verdict = verify_settled(loop, ripple.mean, cycle.mean_power)
     parts = []
     for k, plan in enumerate(circuit.parts):
         model = plan.model
@@ -410,7 +415,7 @@ def settle(
         periods=cycle.periods,
         gain=rho,
         history=tuple(steps),
-        findings=(*electrical.findings, *range_warnings(parts)),
+        findings=(*electrical.findings, *range_warnings(parts), *verdict.warnings),
         envelope=envelope,
         drive=drive,
         voltage_series=cycle.series,
@@ -419,6 +424,23 @@ def settle(
         temperatures=ripple.outputs,
         baseline=baseline,
     )
+
+
+def verify_settled(loop: _Loop, mean: FloatArray, power: FloatArray) -> Verdict:
+    """The mean state's heat balance (:func:`~heatweave.thermal.balance.check_state`), with
+    the resistor parts at the temperatures their powers were computed at; a state that fails
+    is refused (exit 7), never reported."""
+    circuit = loop.electrical.circuit
+    state = np.array(mean, dtype=float)
+    state[loop.index] = loop.settled_at
+    verdict = check_state(circuit, state, power, loop.ambient, accuracy=loop.options.tol)
+    if not verdict.ok:
+        raise NoSteadyStateError(
+            f"no verified periodic steady state: {verdict.reason()}",
+            hint="tighten --tol, or run a transient from cold (heatweave run --tran) to see "
+            "where the temperatures go",
+        )
+    return verdict
 
 
 def range_warnings(parts: list[PartSettled]) -> list[Finding]:

@@ -13,10 +13,11 @@ node ``board``), ``hw_amb`` (ambient), elements ``Bhw_rsense``, ``Rhw_n_board``.
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass, field
 
-from heatweave.annotation import AMBIENT, Annotation, BoundPart, NetworkSpec
+from heatweave.annotation import AMBIENT, Annotation, BoundPart, NetworkSpec, PartSpec
 from heatweave.errors import AnnotationError, EmitError, Finding, Location
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
 from heatweave.spice.grammar import syntax_of
@@ -200,6 +201,7 @@ def build_circuit(
             model = models.get(key)
             if model is None:  # parts of one table with equal values share their model
                 model = models[key] = spec.temp_model(nominal)
+                _check_model(model, spec, item.element, _ambients(annotation))
         parts.append(
             PartPlan(
                 item.element, spec.model, model, network, to_node, spec.to,
@@ -245,3 +247,36 @@ def _network_data(spec: NetworkSpec) -> object:
     if spec.kind == "single":
         return spec.stages[0]
     return spec.stages
+
+
+def _ambients(annotation: Annotation) -> tuple[float, ...]:
+    """Every ambient temperature the annotation sets (degC)."""
+    if annotation.ambient.profile is not None:
+        return tuple(t for _, t in annotation.ambient.profile)
+    return (annotation.ambient.temperature,)
+
+
+def _check_model(model: TempModel | None, spec: PartSpec, element: str,
+                 ambients: tuple[float, ...]) -> None:  # fmt: skip
+    """A located error when *model* has no physical value where the part starts: its
+    ``tref`` outside the model's range, or a resistance at or below zero at an ambient."""
+    if model is None:
+        return
+    found = model.valid_range
+    if spec.tref is not None and found is not None and spec.tref not in found:
+        raise AnnotationError(
+            f"{element}: tref = {spec.tref:g} degC lies outside the {spec.model} model's "
+            f"range, {found.describe()}",
+            spec.location,
+            "give the temperature at which the deck's value was measured, inside that range",
+        )
+    for ambient in ambients:
+        ohms = float(model.resistance(ambient))
+        if not (ohms > 0 and math.isfinite(ohms)):
+            raise AnnotationError(
+                f"{element}: its {spec.model} model gives {ohms:.4g} ohm at the ambient "
+                f"({ambient:g} degC), not a resistance",
+                spec.location,
+                "check tref and the temperature coefficients: the formula must hold from "
+                "the ambient to the hottest the part gets",
+            )
