@@ -193,3 +193,48 @@ def test_stable_current_source_matches_closed_form(tmp_path: Path) -> None:
     theta = c / (1 - 0.004 * c)
     outcome = runner.run(deck, note, runner.RunOptions())
     assert outcome.results.part("RS").temperature == pytest.approx(25.0 + theta, abs=0.02)
+
+
+def test_steady_start_is_verified_at_time_zero(tmp_path: Path) -> None:
+    # start = "steady": the transient's first point is the operating point of the tripped
+    # PTC above; it must be the balanced state (scipy), not the fall-back.
+    deck = PTC_DECK.format(v=60).replace(".op", ".tran 0.1 1")
+    note = PTC_NOTE.replace("schema = 1\n", 'schema = 1\nstart = "steady"\n')
+    deck_path, note_path = write(tmp_path, deck, note)
+    (expected,) = roots(ptc_balance(60.0), 25.0, 400.0)
+    outcome = runner.run(deck_path, note_path, runner.RunOptions())
+    series = outcome.results.part("RP").temperature_series
+    assert series is not None
+    assert float(series[0]) == pytest.approx(expected, abs=0.05)
+
+
+BAD_VALUES = [
+    ("rth = 30.0", "rth = 1e300", "rth = 1e+300 is outside"),
+    ("rth = 30.0", "foster = [[1e300, 1.0]]", "too large"),
+    ("tc1 = 0.004", "tc1 = 0.004\ntref = 1e6", "tref = 1000000 is outside"),
+    ("tc1 = 0.004", "tc1 = 0.004\ntref = 300", "-10 ohm at the ambient"),
+    ('model = "linear"\ntc1 = 0.004', 'model = "rtd"\ntref = 900', "outside the rtd model's range"),
+]
+
+
+@pytest.mark.parametrize(("old", "new", "said"), BAD_VALUES)
+def test_meaningless_values_are_located_errors(
+    tmp_path: Path, old: str, new: str, said: str
+) -> None:
+    # rth = 1e300 reported 0.00 degC, tref = 1e6 a negative resistance (issue 12).
+    note = 'schema = 1\n[part.RB]\nmodel = "linear"\ntc1 = 0.004\nrth = 30.0\n'
+    deck, note_path = write(
+        tmp_path, "d\nV1 a 0 DC 5\nRB a 0 100\n.op\n.end\n", note.replace(old, new)
+    )
+    result = CliRunner().invoke(main, ["run", deck, "-a", note_path, "-q"])
+    assert result.exit_code == 2, result.output
+    assert said in result.output and "d.thermal.toml:" in result.output
+
+
+def test_cosim_runaway_exits_7(tmp_path: Path) -> None:
+    # --method cosim stopped by the loop gain and exited 2; a runaway is exit 7 by any method.
+    deck = CUR_DECK.format(i=0.2).replace(".op", ".tran 1 2000")
+    deck_path, note = write(tmp_path, deck, CUR_NOTE.replace("cth = 0.1", "cth = 10"))
+    result = CliRunner().invoke(main, ["run", deck_path, "-a", note, "--method", "cosim", "-q"])
+    assert result.exit_code == EXIT_THERMAL_RUNAWAY, result.output
+    assert "loop gain" in result.output
