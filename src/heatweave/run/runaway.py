@@ -374,7 +374,7 @@ def last_on_branch(temps: FloatArray, end: int) -> int:
 
 def driving_point(circuit: ThermalCircuit) -> tuple[list[str], FloatArray]:
     """Steady-state thermal impedances between all thermal nodes (K/W), ambient as ground."""
-    inverse: FloatArray = np.linalg.inv(conductances(circuit)).astype(np.float64)
+    inverse: FloatArray = np.linalg.inv(conductances(circuit).toarray()).astype(np.float64)
     return thermal_nodes(circuit), inverse
 
 

@@ -30,9 +30,12 @@ from dataclasses import dataclass
 
 import numpy as np
 import numpy.typing as npt
+from scipy.sparse import csc_matrix, csr_matrix
+from scipy.sparse.linalg import splu
 
 from heatweave.errors import Finding
-from heatweave.thermal.circuit import AMBIENT_NODE, ThermalCircuit
+from heatweave.tempmodels.base import TempModel
+from heatweave.thermal.circuit import ThermalCircuit
 
 FloatArray = npt.NDArray[np.float64]
 
@@ -46,18 +49,19 @@ def thermal_nodes(circuit: ThermalCircuit) -> list[str]:
     return [p.node for p in circuit.parts] + [n.node for n in circuit.nodes]
 
 
-def conductances(circuit: ThermalCircuit) -> FloatArray:
-    """The steady conductance matrix (W/K) over :func:`thermal_nodes`, ambient as ground."""
+def conductances(circuit: ThermalCircuit) -> csr_matrix:
+    """The steady conductance matrix (W/K) over :func:`thermal_nodes`, ambient as ground
+    (sparse: a deck may annotate a hundred thousand parts)."""
     nodes = thermal_nodes(circuit)
     where = {n: i for i, n in enumerate(nodes)}
-    g = np.zeros((len(nodes), len(nodes)))
+    entries: list[tuple[int, int, float]] = []
 
     def branch(a: str, b: str, rth: float) -> None:
         for x, y in ((a, b), (b, a)):
             if x in where:
-                g[where[x], where[x]] += 1.0 / rth
-                if y in where and y != AMBIENT_NODE:
-                    g[where[x], where[y]] -= 1.0 / rth
+                entries.append((where[x], where[x], 1.0 / rth))
+                if y in where:
+                    entries.append((where[x], where[y], -1.0 / rth))
 
     for part in circuit.parts:
         branch(part.node, part.to, part.network.total_rth)
@@ -65,7 +69,9 @@ def conductances(circuit: ThermalCircuit) -> FloatArray:
         branch(shared.node, shared.to, shared.rth)
     for coupling in circuit.couplings:
         branch(coupling.a, coupling.b, coupling.rth)
-    return g
+    size = len(nodes)
+    rows, cols, values = zip(*entries, strict=True) if entries else ((), (), ())
+    return csr_matrix((values, (rows, cols)), shape=(size, size))  # duplicates are summed
 
 
 @dataclass(frozen=True, slots=True)
@@ -121,21 +127,29 @@ def check_state(
     residual = g @ theta - injected
     eps = RELTOL * np.abs(t) + ABSTOL_T + accuracy
     slope = np.zeros(len(labels))
+    groups: dict[TempModel, list[int]] = {}  # parts with equal models, evaluated together
     for i, part in enumerate(circuit.parts):
-        if part.model is None:
-            continue
-        ohms = float(part.model.resistance(float(t[i])))
-        if not ohms > 0:
+        if part.model is not None:
+            groups.setdefault(part.model, []).append(i)
+    for members in groups.values():
+        model = circuit.parts[members[0]].model
+        assert model is not None
+        at = t[members]
+        ohms = np.asarray(model.resistance(at), dtype=float)
+        negative = [members[k] for k in np.flatnonzero(~(ohms > 0))]
+        for i in negative[:3]:
+            part = circuit.parts[i]
             problems.append(
-                f"{part.path}'s resistance at {t[i]:.4g} degC is {ohms:.4g} ohm: its "
-                f"{part.model_name} model has no physical value there"
+                f"{part.path}'s resistance at {t[i]:.4g} degC is "
+                f"{float(model.resistance(float(t[i]))):.4g} ohm: its {part.model_name} "
+                "model has no physical value there"
             )
-            continue
-        slope[i] = abs(p_parts[i] * float(part.model.slope(float(t[i])))) / ohms
-    tolerance = np.abs(g) @ eps + slope * eps + 2 * RELTOL * np.abs(injected) + ABSTOL_P
+        safe = np.where(ohms > 0, ohms, np.inf)
+        slope[members] = np.abs(p_parts[members] * np.asarray(model.slope(at))) / safe
+    tolerance = abs(g) @ eps + slope * eps + 2 * RELTOL * np.abs(injected) + ABSTOL_P
     try:
-        error = np.linalg.solve(g, residual) if len(labels) else residual
-    except np.linalg.LinAlgError:
+        error = np.asarray(splu(csc_matrix(g)).solve(residual)) if len(labels) else residual
+    except RuntimeError:  # singular: some node has no path to ambient
         error = np.full(len(labels), np.nan)
     worst = int(np.argmax(np.abs(residual) / tolerance)) if len(labels) else 0
     if len(labels) and abs(residual[worst]) > tolerance[worst]:
