@@ -12,7 +12,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import numpy.typing as npt
-from scipy.linalg import eigh_tridiagonal
 
 from heatweave.networks.base import (
     ComplexArray,
@@ -92,6 +91,8 @@ class Cauer(NetworkForm):
     def foster_pairs(self) -> tuple[tuple[float, float], ...]:
         """Partial fractions: the poles of Zth(s) are minus the eigenvalues of the ladder
         matrix C^-1 G, made symmetric tridiagonal by scaling with C^(1/2) (see convert)."""
+        from scipy.linalg import eigh_tridiagonal  # scipy loads only here: emit stays quick
+
         scale = 1.0 / np.sqrt(self.cth)
         g = self.conductance()
         diagonal = np.diag(g) * scale**2
