@@ -9,8 +9,12 @@ so an interrupted run never leaves half a file behind.
 from __future__ import annotations
 
 import os
+import signal
 import sys
 import tempfile
+import threading
+from collections.abc import Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from pathlib import Path
 
 from heatweave.errors import UsageError
@@ -39,51 +43,132 @@ def read_text(path: str | os.PathLike[str]) -> str:
 def write_atomic(path: str | os.PathLike[str], data: bytes | str) -> None:
     """Write *data* to *path* so that readers see the old file or the whole new one.
 
-    ``-`` writes to standard output.  Text is encoded with :func:`encode`.
+    ``-`` writes to standard output.  Text is encoded with :func:`encode`.  A symlink is
+    written through (the link stays, its target is replaced); the file keeps its mode.
+    SIGTERM or SIGHUP during the write removes the temporary file before the signal takes
+    its course (see :func:`_signals_raise`).
     """
     payload = encode(data) if isinstance(data, str) else data
     if str(path) == "-":
         sys.stdout.buffer.write(payload)
         sys.stdout.buffer.flush()
         return
-    target = Path(path)
+    target = Path(os.path.realpath(path)) if os.path.islink(path) else Path(path)
     folder = target.parent if str(target.parent) else Path(".")
     if target.is_dir():
-        raise UsageError(f"cannot write {target}: it is a folder", hint="name a file")
+        raise UsageError(f"cannot write {path}: it is a folder", hint="name a file")
+    with _signals_raise():
+        try:
+            fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+        except FileNotFoundError:
+            raise UsageError(
+                f"cannot write {path}: the folder {folder} does not exist",
+                hint=f"create it first (mkdir -p {folder}) or choose another path",
+            ) from None
+        except PermissionError:
+            raise UsageError(
+                f"cannot write {path}: no permission to write in {folder}",
+                hint="choose a folder you can write to",
+            ) from None
+        try:
+            with os.fdopen(fd, "wb") as handle:
+                handle.write(payload)
+                handle.flush()
+                os.fsync(handle.fileno())
+            if target.exists():
+                os.chmod(tmp, target.stat().st_mode & 0o777)
+            else:
+                umask = os.umask(0)
+                os.umask(umask)
+                os.chmod(tmp, 0o666 & ~umask)
+            os.replace(tmp, target)
+        except BaseException:
+            Path(tmp).unlink(missing_ok=True)
+            raise
+
+
+class _Stopped(BaseException):
+    """A termination signal arrived while a file was being written."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+#: Signals that end a process by default and that a CI runner or a closed terminal sends.
+_ENDING = (signal.SIGTERM, signal.SIGHUP)
+
+
+@contextmanager
+def _signals_raise() -> Iterator[None]:
+    """While the body runs, SIGTERM and SIGHUP raise instead of ending the process at once,
+    so the body's cleanup (removing a temporary file) runs; afterwards the handlers in place
+    before are restored and the signal is delivered to them again.  Only the main thread
+    can set handlers; elsewhere the body runs as it is."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous: dict[int, signal._HANDLER] = {}
+
+    def stop(signum: int, _frame: object) -> None:
+        raise _Stopped(signum)
+
+    for number in _ENDING:
+        handler = signal.getsignal(number)
+        if handler not in (signal.SIG_IGN, None):
+            previous[number] = handler
+            signal.signal(number, stop)
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
-    except FileNotFoundError:
-        raise UsageError(
-            f"cannot write {target}: the folder {folder} does not exist",
-            hint=f"create it first (mkdir -p {folder}) or choose another path",
-        ) from None
-    except PermissionError:
-        raise UsageError(
-            f"cannot write {target}: no permission to write in {folder}",
-            hint="choose a folder you can write to",
-        ) from None
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(payload)
-            handle.flush()
-            os.fsync(handle.fileno())
-        if target.exists():
-            os.chmod(tmp, target.stat().st_mode & 0o777)
-        else:
-            umask = os.umask(0)
-            os.umask(umask)
-            os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, target)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+        yield
+    except _Stopped as stopped:
+        _restore(previous)
+        previous = {}
+        signal.raise_signal(stopped.signum)
+        raise SystemExit(128 + stopped.signum) from None  # a handler that returned
+    finally:
+        _restore(previous)
+
+
+def _restore(handlers: Mapping[int, signal._HANDLER]) -> None:
+    for number, handler in handlers.items():
+        signal.signal(number, handler)
 
 
 def same_file(a: str | os.PathLike[str], b: str | os.PathLike[str]) -> bool:
-    """True when two paths name one existing file (``-`` is never a file)."""
+    """True when two paths name one file: the same device and inode (a hard link, a
+    symlink, ``..`` or another spelling), or the same resolved path (``-`` is never a file)."""
     if str(a) == "-" or str(b) == "-":
         return False
     try:
-        return os.path.samefile(a, b)
+        first, second = os.stat(a), os.stat(b)
     except OSError:
-        return Path(a).resolve() == Path(b).resolve()
+        return os.path.realpath(a) == os.path.realpath(b)
+    return (first.st_dev, first.st_ino) == (second.st_dev, second.st_ino)
+
+
+def refuse_overwrite(
+    outputs: Mapping[str, str | None], inputs: Sequence[tuple[str, str]], hint: str = ""
+) -> None:
+    """Refuse (exit 2) before anything runs when an output would replace an input.
+
+    *outputs* maps each output option (``--json``) to its path, ``None`` when not given and
+    ``-`` for stdout; *inputs* lists (what it is, path) for the deck, its annotation file and
+    every file it includes.  Two outputs naming one file are refused too: one would be lost.
+    """
+    named = [(option, path) for option, path in outputs.items() if path not in (None, "-")]
+    for option, path in named:
+        assert path is not None
+        for what, source in inputs:
+            if source != "-" and same_file(path, source):
+                raise UsageError(
+                    f"{option} {path} is {what} ({source}), which heatweave never overwrites",
+                    hint=hint or f"choose another file name for {option}",
+                )
+    for k, (option, path) in enumerate(named):
+        for other, second in named[k + 1 :]:
+            assert path is not None and second is not None
+            if same_file(path, second):
+                raise UsageError(
+                    f"{option} and {other} both write to {path}",
+                    hint="give each output a file of its own",
+                )

@@ -19,9 +19,12 @@ from heatweave.cli.common import (
     analyses_of,
     analysis_options,
     annotation_for,
+    check_outputs,
     deck_options,
+    guard_outputs,
     guarded,
     is_terminal,
+    may_replace_report,
     report_findings,
     simulation_options,
 )
@@ -76,9 +79,12 @@ def check(
 
     check_html_path(html_file)
     chosen = annotation_for(deck, annotations)
+    outputs = {"--junit": junit_file, "--html": html_file}
+    check_outputs(outputs, deck, chosen)
     started = time.monotonic()
     try:
         inputs = load_inputs(deck, chosen)
+        guard_outputs(outputs, inputs)
         refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
         signals = checks.resolve_limits(inputs.annotation, inputs.index)
         options = RunOptions(
@@ -104,7 +110,7 @@ def check(
             found = checks.evaluate(outcome, signals, baseline)
     except HeatweaveError as err:
         # A report is still written: the previous run's must not stand in for this one.
-        if junit_file is not None:
+        if junit_file is not None and may_replace_report(junit_file):
             failed = junit_case(deck, "run", error=err.render())
             write_junit(junit_file, deck, (failed,), time.monotonic() - started)
         raise

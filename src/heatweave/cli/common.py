@@ -5,11 +5,15 @@ from __future__ import annotations
 import functools
 import sys
 from collections.abc import Callable
-from typing import ParamSpec, TypeVar
+from typing import TYPE_CHECKING, ParamSpec, TypeVar
 
 import click
 
 from heatweave.errors import Finding, HeatweaveError
+
+if TYPE_CHECKING:
+    from heatweave.emitter import Inputs
+    from heatweave.hierarchy import Project
 
 P = ParamSpec("P")
 R = TypeVar("R")
@@ -210,12 +214,13 @@ def run_control_options(timeout_help: str) -> Callable[[F], F]:
     return decorate
 
 
-def check_outputs(outputs: dict[str, str | None], deck: str) -> None:
-    """At most one output on stdout, and none of them the input deck."""
-    from pathlib import Path
-
+def check_outputs(
+    outputs: dict[str, str | None], deck: str, annotation: str | None = None
+) -> None:
+    """At most one output on stdout, and none of them the deck or its annotation file (the
+    files it includes are checked by :func:`guard_outputs` once they are known)."""
     from heatweave.errors import UsageError
-    from heatweave.files import same_file
+    from heatweave.files import refuse_overwrite
 
     on_stdout = [name for name, path in outputs.items() if path == "-"]
     if len(on_stdout) > 1:
@@ -223,9 +228,40 @@ def check_outputs(outputs: dict[str, str | None], deck: str) -> None:
             f"{' and '.join(on_stdout)} both write to stdout",
             hint="send at most one of them to -; give the others file names",
         )
-    for name, path in outputs.items():
-        if path is not None and path != "-" and Path(path).exists() and same_file(path, deck):
-            raise UsageError(
-                f"{name} {path} is the input deck, which heatweave never overwrites",
-                hint=f"choose another file name for {name}",
-            )
+    refuse_overwrite(outputs, input_files(deck, annotation))
+
+
+def guard_outputs(outputs: dict[str, str | None], inputs: Inputs) -> None:
+    """Refuse outputs that are the deck, its annotation file or any file it includes."""
+    from heatweave.files import refuse_overwrite
+
+    found = input_files(inputs.deck_path, inputs.annotation_path, inputs.project)
+    refuse_overwrite(outputs, found)
+
+
+def may_replace_report(path: str) -> bool:
+    """True when *path* is stdout, absent, or an earlier XML report.  A report written on
+    the way out of a failure (when the files a deck includes may not all be known yet)
+    goes only to such a path, never over a file that could be an input."""
+    from pathlib import Path
+
+    if path == "-" or not Path(path).exists():
+        return True
+    try:
+        with open(path, "rb") as handle:
+            start = handle.read(64).lstrip()
+    except OSError:
+        return False
+    return start.startswith((b"<?xml", b"<testsuites"))
+
+
+def input_files(
+    deck: str, annotation: str | None = None, project: Project | None = None
+) -> list[tuple[str, str]]:
+    """(what it is, path) of every file a command reads: the output guard's list."""
+    found = [("the input deck", deck)]
+    if annotation is not None:
+        found.append(("the annotation file", annotation))
+    if project is not None:
+        found.extend(("a file the deck includes", include.path) for include in project.includes)
+    return found

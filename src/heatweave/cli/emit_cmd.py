@@ -3,14 +3,15 @@
 from __future__ import annotations
 
 import sys
+from collections.abc import Mapping
 from pathlib import Path
 
 import click
 
-from heatweave.cli.common import guarded, report_findings
+from heatweave.cli.common import guarded, input_files, report_findings
 from heatweave.emit.forms import FORMS
 from heatweave.errors import EXIT_CHECK_FAILED, UsageError
-from heatweave.files import encode, read_text, same_file, write_atomic
+from heatweave.files import encode, read_text, refuse_overwrite, same_file, write_atomic
 
 
 def default_annotation(deck: str) -> Path | None:
@@ -22,18 +23,29 @@ def default_annotation(deck: str) -> Path | None:
     return candidate if deck != "-" and candidate.is_file() else None
 
 
-def build_emitted(deck: str, annotation: str | None, *, form: str = "switch") -> str:
-    """The emitted deck's text: the input unchanged when there is no annotation file."""
+def build_emitted(
+    deck: str, annotation: str | None, *, form: str = "switch", outputs: Mapping[str, str | None]
+) -> str:
+    """The emitted deck's text (the input unchanged when there is no annotation file), once
+    *outputs* are known to replace none of the files read (:func:`guard_outputs`)."""
     chosen = Path(annotation) if annotation else default_annotation(deck)
     if chosen is None:
-        from heatweave.spice.reader import read_deck_text
+        from heatweave.spice.hierarchy import load_project
 
-        return read_deck_text(deck)
-    from heatweave.emit.emitter import emit_files
+        project = load_project(deck)
+        refuse_overwrite(outputs, input_files(deck, None, project), hint=_HINT)
+        return project.deck.write()
+    from heatweave.emit.emitter import emit_inputs, load_inputs
 
-    result = emit_files(deck, str(chosen), form=form)
+    inputs = load_inputs(deck, str(chosen))
+    found = input_files(deck, inputs.annotation_path, inputs.project)
+    refuse_overwrite(outputs, found, hint=_HINT)
+    result = emit_inputs(inputs, form=form)
     report_findings(list(result.findings))
     return result.text
+
+
+_HINT = "choose another -o, or pass --in-place (without -o) to rewrite the deck itself"
 
 
 @click.command()
@@ -45,7 +57,11 @@ def build_emitted(deck: str, annotation: str | None, *, form: str = "switch") ->
     help="Annotation file (default: DECK.thermal.toml beside the deck).",
 )
 @click.option("-o", "--output", default="-", show_default=True, help="Where to write; - is stdout.")
-@click.option("--in-place", is_flag=True, help="Allow OUTPUT to be the input deck itself.")
+@click.option(
+    "--in-place",
+    is_flag=True,
+    help="Rewrite DECK itself (atomically, keeping its mode), instead of writing -o.",
+)
 @click.option(
     "--check",
     "check_file",
@@ -74,7 +90,15 @@ def emit(
 
     Without an annotation file the deck is written unchanged, byte for byte.
     """
-    text = build_emitted(deck, annotations, form=form)
+    other = output != "-" and not same_file(output, deck)
+    if in_place and (deck == "-" or other or check_file is not None):
+        raise UsageError(
+            "--in-place rewrites the deck file itself",
+            hint="give a deck file, and no other -o and no --check with --in-place",
+        )
+    target = deck if in_place else output
+    outputs: dict[str, str | None] = {} if in_place or check_file is not None else {"-o": output}
+    text = build_emitted(deck, annotations, form=form, outputs=outputs)
     if check_file is not None:
         from heatweave.emit.sections import stale_reason
 
@@ -89,9 +113,4 @@ def emit(
             sys.exit(EXIT_CHECK_FAILED)
         click.echo(f"{check_file}: up to date", err=True)
         return
-    if output != "-" and deck != "-" and same_file(output, deck) and not in_place:
-        raise UsageError(
-            f"refusing to overwrite the input deck {deck}",
-            hint="choose another -o, or pass --in-place to replace it (written atomically)",
-        )
-    write_atomic(output, encode(text))
+    write_atomic(target, encode(text))

@@ -9,7 +9,7 @@ import numpy as np
 
 from heatweave.cli.common import guarded
 from heatweave.errors import UsageError
-from heatweave.files import read_text, write_atomic
+from heatweave.files import read_text, refuse_overwrite, write_atomic
 from heatweave.networks import Foster, NetworkError, NetworkForm, to_cauer, to_foster
 from heatweave.networks.fit import FitResult, fit_foster
 from heatweave.networks.textio import ZthData, network_toml, read_network_toml, read_zth_csv
@@ -51,6 +51,7 @@ def fit_command(
     a power step.  A header row is optional and '#' starts a comment.  Use '-' for stdin.
     The fit minimises relative error, so every decade of time counts alike.
     """
+    check_outputs({"-o": output, "--plot": plot_file}, [("the Zth data", zth_file)])
     data = read_zth_csv(read_text(zth_file), _shown(zth_file))
     keep = np.ones(data.t.size, dtype=bool)
     if t_min is not None:
@@ -90,9 +91,17 @@ def convert_command(network_file: str, target: str, part: str | None, output: st
     top-level network wins; otherwise --part or the only part with a network).  The two
     networks have the same Zth at every frequency; the invariants are printed as comments.
     """
+    check_outputs({"-o": output}, [("the network file", network_file)])
     source = read_network_toml(read_text(network_file), _shown(network_file), part)
     converted = to_cauer(source) if target == "cauer" else to_foster(source)
     write_atomic(output, network_toml(converted, _invariants(source, converted)))
+
+
+def check_outputs(outputs: dict[str, str | None], inputs: list[tuple[str, str]]) -> None:
+    """At most one output on stdout, and none of them the input file."""
+    if list(outputs.values()).count("-") > 1:
+        raise UsageError("-o and --plot both write to stdout", hint="give --plot a file name")
+    refuse_overwrite(outputs, inputs)
 
 
 def _shown(path: str) -> str:

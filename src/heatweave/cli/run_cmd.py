@@ -15,6 +15,7 @@ from heatweave.cli.common import (
     annotation_for,
     check_outputs,
     deck_options,
+    guard_outputs,
     guarded,
     is_terminal,
     report_findings,
@@ -168,9 +169,10 @@ def run(
     analyses = analyses_of(op, tran)
     check_html_path(html_file)
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--html": html_file}
-    check_outputs(outputs, deck)
     annotation_path = annotation_for(deck, annotations)
+    check_outputs(outputs, deck, annotation_path)
     inputs = load_inputs(deck, annotation_path)
+    guard_outputs(outputs, inputs)
     refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
     check_probes_early(probe, inputs.index)
     options = RunOptions(

@@ -11,8 +11,10 @@ from heatweave.cli.common import (
     annotation_for,
     check_outputs,
     deck_options,
+    guard_outputs,
     guarded,
     is_terminal,
+    may_replace_report,
     report_findings,
     report_options,
     run_control_options,
@@ -134,14 +136,16 @@ def settle(
         warmup = old_envelope
     if csv_file is not None and warmup is None:
         raise UsageError("--csv writes the warm-up curve", hint="add --warmup TSTOP")
-    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file}
-    check_outputs(outputs, deck)
+    outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file,
+               "--html": html_file}  # fmt: skip
     check_html_path(html_file)
     check = check or junit_file is not None
     started = time.monotonic()
     annotation_path = annotation_for(deck, annotations)
+    check_outputs(outputs, deck, annotation_path)
     try:
         inputs = load_inputs(deck, annotation_path)
+        guard_outputs(outputs, inputs)
         refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
         # Limit tables naming nodes the deck lacks are refused before simulating.
         signals = limits.resolve_limits(inputs.annotation, inputs.index) if check else ()
@@ -158,7 +162,8 @@ def settle(
         )  # fmt: skip
         settled = settle_deck(deck, annotation_path, options, inputs=inputs)
     except HeatweaveError as err:
-        if junit_file is not None:  # no stale report of an earlier run left standing
+        # no stale report of an earlier run left standing (nor over a file not a report)
+        if junit_file is not None and may_replace_report(junit_file):
             failed = junit_case(deck, "settle", error=err.render())
             write_junit(junit_file, deck, (failed,), time.monotonic() - started)
         raise

@@ -21,8 +21,10 @@ from heatweave.cli.common import (
     annotation_for,
     check_outputs,
     deck_options,
+    guard_outputs,
     guarded,
     is_terminal,
+    may_replace_report,
     report_options,
     run_control_options,
     style_severity,
@@ -183,7 +185,8 @@ def sweep(
         raise UsageError("--junit is for --check", hint="add --check")
     check_html_path(html_file)
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file}
-    check_outputs({**outputs, "--html": html_file}, deck)
+    annotation_path = annotation_for(deck, annotations)
+    check_outputs({**outputs, "--html": html_file}, deck, annotation_path)
     ambients: tuple[float | None, ...] = (None,)
     if ambient_range is not None:
         ambients = parse_range(ambient_range, "--ambient", temperature=True)
@@ -198,13 +201,12 @@ def sweep(
         allow_control=allow_control,
         timeout=timeout,
     )
-    annotation_path = annotation_for(deck, annotations)
     try:
         result = _run(deck, annotation_path, plan, options, check_limits, executor, jobs,
-                      scheduler, quiet)  # fmt: skip
+                      scheduler, quiet, {**outputs, "--html": html_file})  # fmt: skip
     except HeatweaveError as err:
         # As with check: a report is still written, so an older one never stands in.
-        if junit_file is not None:
+        if junit_file is not None and may_replace_report(junit_file):
             _write_junit(junit_file, deck, (_run_error(deck, err),))
         raise
     if html_file is not None:
@@ -224,15 +226,17 @@ def _run(
     jobs: int | None,
     scheduler: str | None,
     quiet: bool,
+    outputs: dict[str, str | None],
 ) -> SweepResult:
-    """Load the inputs, resolve the limits (bad ones are exit 2 before any corner runs) and
-    run every corner."""
+    """Load the inputs, refuse *outputs* that would replace one, resolve the limits (bad
+    ones are exit 2 before any corner runs) and run every corner."""
     from heatweave.checks.limits import resolve_limits
     from heatweave.emit.emitter import load_inputs
     from heatweave.sweep.corners import run_sweep
     from heatweave.sweep.executors import make_executor
 
     inputs = load_inputs(deck, annotation_path)
+    guard_outputs(outputs, inputs)
     refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
     limits = resolve_limits(inputs.annotation, inputs.index) if check_limits else None
     if plan.draws and not _has_tolerances(inputs.annotation):

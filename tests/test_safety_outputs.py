@@ -1,0 +1,210 @@
+"""No input is ever overwritten: every output option of every command, aimed at the deck,
+its annotation file or a file the deck includes, however the path is spelled, is refused
+with exit status 2 before anything runs, and the file keeps its bytes.
+
+The deck carries a ``.control`` block that would create a marker file: with
+``--allow-control`` a run that went ahead would leave it, so its absence shows that nothing
+ran.  Also here: ``emit --in-place`` and a SIGTERM during an atomic write."""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import sys
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from heatweave.cli import main
+
+DECK = """output guard deck
+.include parts.inc
+V1 in 0 DC 10
+RTOP in out 1k
+.tran 1m 10m
+.control
+shell touch {marker}
+.endc
+.end
+"""
+PARTS = "* the lower leg, in a file of its own\nRBOT out 0 1k\n"
+NOTES = 'schema = 1\n[part.RTOP]\nmodel = "linear"\ntc1 = 0.003\nrth = 60.0\ncth = 0.02\n'
+
+# command words before DECK, and the words after it that every case of the command needs
+SIMULATING = ["--allow-control", "--backend", "batch"]
+COMMANDS: dict[str, tuple[list[str], list[str], list[str]]] = {
+    # option -> (command, extra words, the option's own words besides the path)
+    "emit -o": (["emit"], [], ["-o"]),
+    "run --json": (["run"], SIMULATING, ["--json"]),
+    "run --csv": (["run"], SIMULATING, ["--csv"]),
+    "run --plot": (["run"], SIMULATING, ["--plot"]),
+    "check --junit": (["check"], SIMULATING, ["--junit"]),
+    "settle --json": (["settle"], [*SIMULATING, "--period", "1m"], ["--json"]),
+    "settle --csv": (["settle"], [*SIMULATING, "--period", "1m", "--envelope", "10m"], ["--csv"]),
+    "sweep --json": (["sweep"], [*SIMULATING, "-j", "1"], ["--json"]),
+    "sweep --csv": (["sweep"], [*SIMULATING, "-j", "1"], ["--csv"]),
+    "sweep --plot": (["sweep"], [*SIMULATING, "-j", "1"], ["--plot"]),
+    "sweep --junit": (["sweep"], [*SIMULATING, "-j", "1", "--check"], ["--junit"]),
+}
+TARGETS = {"deck": "d.cir", "annotation": "d.thermal.toml", "include": "parts.inc"}
+
+
+def _relative(tmp: Path, name: str) -> str:
+    return name
+
+
+def _absolute(tmp: Path, name: str) -> str:
+    return str(tmp / name)
+
+
+def _dotdot(tmp: Path, name: str) -> str:
+    return f"sub/../{name}"
+
+
+def _symlink(tmp: Path, name: str) -> str:
+    link = tmp / f"link-{name}"
+    link.symlink_to(tmp / name)
+    return link.name
+
+
+def _hardlink(tmp: Path, name: str) -> str:
+    link = tmp / "sub" / f"hard-{name}"
+    os.link(tmp / name, link)
+    return f"sub/{link.name}"
+
+
+SPELLINGS: dict[str, Callable[[Path, str], str]] = {
+    "relative": _relative,
+    "absolute": _absolute,
+    "dotdot": _dotdot,
+    "symlink": _symlink,
+    "hardlink": _hardlink,
+}
+
+
+@pytest.fixture
+def project(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
+    """A deck, its annotation file and an included file, with the tests run from there."""
+    (tmp_path / "sub").mkdir()
+    marker = tmp_path / "MARKER"
+    (tmp_path / "d.cir").write_text(DECK.format(marker=marker))
+    (tmp_path / "parts.inc").write_text(PARTS)
+    (tmp_path / "d.thermal.toml").write_text(NOTES)
+    monkeypatch.chdir(tmp_path)
+    return tmp_path
+
+
+def snapshot(folder: Path) -> dict[str, bytes]:
+    return {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()}
+
+
+@pytest.mark.parametrize("spelling", SPELLINGS)
+@pytest.mark.parametrize("target", TARGETS)
+@pytest.mark.parametrize("option", COMMANDS)
+def test_every_output_option_refuses_every_input(
+    project: Path, option: str, target: str, spelling: str
+) -> None:
+    command, extra, words = COMMANDS[option]
+    path = SPELLINGS[spelling](project, TARGETS[target])
+    before = snapshot(project)
+    result = CliRunner().invoke(main, [*command, "d.cir", *extra, *words, path])
+    assert result.exit_code == 2, result.output
+    assert "never overwrites" in result.output
+    assert "Traceback" not in result.output
+    assert snapshot(project) == before
+    assert not (project / "MARKER").exists()
+
+
+@pytest.mark.parametrize(
+    ("option", "extra"),
+    [("-o", []), ("--plot", ["--plot"])],
+    ids=["fit -o", "fit --plot"],
+)
+def test_network_fit_refuses_its_data(project: Path, option: str, extra: list[str]) -> None:
+    data = project / "zth.csv"
+    data.write_text("time,zth\n1e-3,0.5\n1e-2,2\n1e-1,5\n1,8\n10,9.5\n")
+    before = data.read_bytes()
+    words = ["-o", "sub/../zth.csv"] if option == "-o" else ["--plot", "link.csv"]
+    (project / "link.csv").symlink_to(data)
+    result = CliRunner().invoke(main, ["network", "fit", "zth.csv", "-n", "1", *words])
+    assert result.exit_code == 2 and "never overwrites" in result.output
+    assert data.read_bytes() == before
+
+
+def test_network_convert_refuses_its_input(project: Path) -> None:
+    source = project / "net.toml"
+    source.write_text("foster = [[1.0, 0.1], [2.0, 1.0]]\n")
+    before = source.read_bytes()
+    result = CliRunner().invoke(
+        main, ["network", "convert", "net.toml", "--to", "cauer", "-o", str(source)]
+    )
+    assert result.exit_code == 2 and "never overwrites" in result.output
+    assert source.read_bytes() == before
+
+
+def test_two_outputs_to_one_file_are_refused(project: Path) -> None:
+    result = CliRunner().invoke(
+        main, ["run", "d.cir", *SIMULATING, "--json", "r.out", "--csv", "./r.out"]
+    )
+    assert result.exit_code == 2 and "both write to" in result.output
+    assert not (project / "MARKER").exists()
+
+
+def test_emit_in_place_rewrites_the_deck_like_sed(project: Path) -> None:
+    deck = project / "d.cir"
+    deck.chmod(0o640)
+    link = project / "link.cir"
+    link.symlink_to(deck)
+    result = CliRunner().invoke(main, ["emit", "link.cir", "-a", "d.thermal.toml", "--in-place"])
+    assert result.exit_code == 0, result.output
+    assert result.stdout_bytes == b""  # nothing on stdout: the deck itself was rewritten
+    assert link.is_symlink()  # written through the link, which stays
+    assert "*hw* RTOP: model linear" in deck.read_text()
+    assert deck.stat().st_mode & 0o777 == 0o640
+    assert sorted(p.name for p in project.iterdir() if p.name.startswith(".")) == []
+
+
+@pytest.mark.parametrize(
+    "words",
+    [["-", "--in-place"], ["d.cir", "--in-place", "-o", "other.cir"]],
+    ids=["stdin", "other-output"],
+)
+def test_emit_in_place_needs_a_deck_file_and_no_other_output(
+    project: Path, words: list[str]
+) -> None:
+    before = snapshot(project)
+    result = CliRunner().invoke(main, ["emit", *words, "-a", "d.thermal.toml"], input="t\n")
+    assert result.exit_code == 2 and "--in-place" in result.output
+    assert snapshot(project) == before
+
+
+WRITER = """
+import sys, time
+from heatweave import files
+payload = b"x" * (1 << 20)
+def slow_fsync(fd):
+    print("writing", flush=True)
+    time.sleep(30)
+files.os.fsync = slow_fsync
+files.write_atomic(sys.argv[1], payload)
+"""
+
+
+def test_sigterm_during_an_atomic_write_leaves_no_temporary_file(tmp_path: Path) -> None:
+    target = tmp_path / "out.cir"
+    target.write_text("old\n")
+    child = subprocess.Popen(
+        [sys.executable, "-c", WRITER, str(target)], stdout=subprocess.PIPE, text=True
+    )
+    assert child.stdout is not None
+    assert child.stdout.readline().strip() == "writing"
+    assert any(p.name.startswith(".out.cir.") for p in tmp_path.iterdir())
+    child.send_signal(signal.SIGTERM)
+    assert child.wait(timeout=20) == -signal.SIGTERM  # still ended by the signal
+    time.sleep(0.05)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out.cir"]
+    assert target.read_text() == "old\n"
