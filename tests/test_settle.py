@@ -415,7 +415,7 @@ def test_control_blocks_dropped_with_warning() -> None:
     deck, annotation = fixture("with_control")
     result = CliRunner().invoke(main, ["settle", deck, "-a", annotation, "--period", "1m"])
     assert result.exit_code == 0, result.output
-    assert "dropped 1 .control block" in result.output
+    assert "dropped a .control block" in result.output
     assert "this line must not run" not in result.output
 
 

@@ -43,8 +43,8 @@ def _read_key(text: str, pos: int) -> tuple[list[tuple[str, int]], int] | None:
             chars: list[str] = []
             while pos < len(text) and text[pos] != quote:
                 if quote == '"' and text[pos] == "\\" and pos + 1 < len(text):
-                    pos += 1
-                    chars.append({"n": "\n", "t": "\t"}.get(text[pos], text[pos]))
+                    char, pos = _escape(text, pos + 1)
+                    chars.append(char)
                 else:
                     chars.append(text[pos])
                 pos += 1
@@ -64,6 +64,23 @@ def _read_key(text: str, pos: int) -> tuple[list[tuple[str, int]], int] | None:
             pos += 1
             continue
         return parts, pos
+
+
+_ESCAPES = {"b": "\b", "t": "\t", "n": "\n", "f": "\f", "r": "\r"}
+
+
+def _escape(text: str, pos: int) -> tuple[str, int]:
+    """The character a basic string's escape stands for (*pos* just after the backslash),
+    and the index of the escape's last character: ``\\n``, ``\\u0007``, ``\\U0001F600``."""
+    letter = text[pos]
+    width = {"u": 4, "U": 8}.get(letter)
+    if width is not None:
+        digits = text[pos + 1 : pos + 1 + width]
+        try:
+            return chr(int(digits, 16)), pos + width
+        except ValueError:
+            return letter, pos
+    return _ESCAPES.get(letter, letter), pos
 
 
 def _skip_value(lines: list[str], row: int, col: int) -> int:

@@ -32,6 +32,7 @@ from heatweave.annotation.types import (
     PathSpec,
     ReviewSpec,
 )
+from heatweave.deck import unprintable
 from heatweave.errors import AnnotationError, Location
 from heatweave.quantities import ABSOLUTE_ZERO, below_absolute_zero
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
@@ -166,8 +167,19 @@ def _ambient(table: object, reader: TableReader) -> Ambient:
     return Ambient(temperature=25.0 if temperature is None else temperature)
 
 
+def _check_name(name: str, path: KeyPath, reader: TableReader) -> None:
+    bad = unprintable(name)
+    if bad is not None:
+        raise AnnotationError(
+            f"the name {name!r} holds the character {bad}, which no deck name may hold",
+            reader.key_location(path),
+            "write names with printable characters only, on one line",
+        )
+
+
 def _node(name: str, table: dict[str, object], reader: TableReader) -> NodeSpec:
     path: KeyPath = ("node", name)
+    _check_name(name, path, reader)
     if name == AMBIENT:
         raise AnnotationError(
             '"ambient" is the name of the surroundings, not a node you can define',
@@ -231,6 +243,7 @@ def _network(name: str, got: TableResult, reader: TableReader, path: KeyPath) ->
 
 def _part(name: str, table: dict[str, object], reader: TableReader) -> PartSpec:
     path: KeyPath = ("part", name)
+    _check_name(name, path, reader)
     model = table.get("model")
     common = (
         reader.read({k: v for k, v in table.items() if k == "model"}, PART_FIELDS[:1], path)
@@ -334,6 +347,7 @@ def _path(index: int, table: dict[str, object], reader: TableReader) -> PathSpec
 
 def _limit(signal: str, table: dict[str, object], reader: TableReader) -> LimitSpec:
     path: KeyPath = ("limit", signal)
+    _check_name(signal, path, reader)
     got = reader.read(table, LIMIT_FIELDS, path)
     if not got.values:
         raise AnnotationError(

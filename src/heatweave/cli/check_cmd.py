@@ -59,6 +59,7 @@ def check(
     backend: str,
     allow_control: bool,
     html_file: str | None,
+    init_file: str | None,
 ) -> None:
     """Run DECK with self-heating and check every limit its annotation file sets.
 
@@ -89,7 +90,7 @@ def check(
         signals = checks.resolve_limits(inputs.annotation, inputs.index)
         options = RunOptions(
             analyses=analyses_of(op, tran), ambient=ambient, backend=backend,
-            allow_control=allow_control,
+            allow_control=allow_control, init_file=init_file,
         )  # fmt: skip
         method = choose(inputs, options)
         settled, outcome = None, None

@@ -90,14 +90,32 @@ def deck_options(func: F) -> F:
     return click.argument("deck", type=deck)(func)
 
 
+INIT_FILE_HELP = (
+    "An ngspice init file to read before the deck (by default none is: not the .spiceinit "
+    "of the deck's folder, of the current folder or of your home)."
+)
+
+
+def init_file_option(func: F) -> F:
+    """``--init-file FILE``: the one way an ngspice init file is read."""
+    return click.option(
+        "--init-file",
+        type=click.Path(dir_okay=False, exists=True, resolve_path=True),
+        metavar="FILE",
+        help=INIT_FILE_HELP,
+    )(func)
+
+
 def simulation_options(func: F) -> F:
-    """``--ambient``, ``--backend`` and ``--allow-control``."""
+    """``--ambient``, ``--backend``, ``--allow-control`` and ``--init-file``."""
     from heatweave.quantities import Temperature
 
+    func = init_file_option(func)
     func = click.option(
         "--allow-control",
         is_flag=True,
-        help="Keep the deck's .control blocks (they can run any command: trusted decks only).",
+        help="Keep the .control blocks and *# lines of the deck and of every file it "
+        "includes (they can run any command: trusted decks only).",
     )(func)
     func = click.option(
         "--backend",

@@ -147,6 +147,7 @@ def run(
     ambient: float | None,
     backend: str,
     allow_control: bool,
+    init_file: str | None,
     json_file: str | None,
     csv_file: str | None,
     plot_file: str | None,
@@ -180,6 +181,7 @@ def run(
         ambient=ambient,
         backend=backend,
         allow_control=allow_control,
+        init_file=init_file,
         timeout=timeout,
         progress=progress_printer(not quiet and is_terminal()),
     )

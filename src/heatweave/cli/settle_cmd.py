@@ -105,6 +105,7 @@ def settle(
     deck: str, annotations: str | None, period: float | None, periods: int,
     tstep: float | None, tol: float, max_iter: int, wave_tol: float, warmup: float | None,
     old_envelope: float | None, ambient: float | None, backend: str, allow_control: bool,
+    init_file: str | None,
     json_file: str | None, csv_file: str | None, plot_file: str | None, check: bool,
     junit_file: str | None, timeout: float | None, quiet: bool, html_file: str | None,
 ) -> None:  # fmt: skip
@@ -156,7 +157,7 @@ def settle(
         options = SettleOptions(
             period=period, periods=periods, tstep=tstep, tol=tol, max_iter=max_iter,
             wave_tol=wave_tol, envelope=warmup, ambient=ambient, backend=backend,
-            allow_control=allow_control, timeout=timeout,
+            allow_control=allow_control, init_file=init_file, timeout=timeout,
             progress=show if not quiet and is_terminal() else None,
             baseline=limits.needs_baseline(signals),
         )  # fmt: skip

@@ -23,6 +23,7 @@ from heatweave.cli.common import (
     deck_options,
     guard_outputs,
     guarded,
+    init_file_option,
     is_terminal,
     may_replace_report,
     report_options,
@@ -112,8 +113,10 @@ def _has_tolerances(annotation: Annotation) -> bool:
 @click.option(
     "--allow-control",
     is_flag=True,
-    help="Keep the deck's .control blocks (they can run any command).",
+    help="Keep the .control blocks and *# lines of the deck and of every file it includes "
+    "(they can run any command: trusted decks only).",
 )
+@init_file_option
 @click.option("-j", "--jobs", type=int, help="Worker processes (default: all cores).")
 @click.option(
     "--executor",
@@ -156,6 +159,7 @@ def sweep(
     tran: tuple[float, float] | None,
     backend: str,
     allow_control: bool,
+    init_file: str | None,
     jobs: int | None,
     executor: str,
     scheduler: str | None,
@@ -199,6 +203,7 @@ def sweep(
         analyses=analyses_of(op, tran),
         backend=backend,
         allow_control=allow_control,
+        init_file=init_file,
         timeout=timeout,
     )
     try:

@@ -30,7 +30,7 @@ from heatweave.run.prepare import (
     RunOptions,
     deck_analyses_of,
     deck_folder,
-    strip_control,
+    made_safe,
 )
 from heatweave.run.results import PartResult, RunResults, device_name, range_findings
 from heatweave.run.runner import RunOutcome
@@ -198,7 +198,7 @@ def run(
         )
     system = assemble(circuit)
     # Always dropped (with the warning): the co-simulation issues its own commands.
-    text, dropped = strip_control(inputs.project.deck.write(), inputs.deck_path, allow=False)
+    text, dropped = made_safe(inputs.project.deck.write(), inputs, allow=False)
     from pathlib import Path
 
     plan = Plan(
@@ -210,7 +210,7 @@ def run(
         tolerance,
     )
     folder = Path(deck_folder(inputs))
-    trace = cosimulate(plain_deck(text, circuit), folder, plan, options.timeout)
+    trace = cosimulate(plain_deck(text, circuit), folder, plan, options.timeout, options.init_file)
     results = to_results(trace, circuit, system)
     reason = f"co-simulation in {trace.windows} windows"
     past = range_findings(results)  # a part beyond its model's range, as runner.run warns

@@ -102,10 +102,18 @@ class Plan:
     tolerance: float
 
 
-def cosimulate(deck: str, cwd: str | Path, plan: Plan, timeout: float | None = None) -> Trace:
+def cosimulate(
+    deck: str,
+    cwd: str | Path,
+    plan: Plan,
+    timeout: float | None = None,
+    init_file: str | Path | None = None,
+) -> Trace:
     """Run the windowed co-simulation of *deck* (the plain circuit, no analysis cards);
-    *timeout* (s) bounds the whole run, windows included."""
-    with SharedSimulator().session(deck, cwd=cwd, timeout=timeout) as session:
+    *timeout* (s) bounds the whole run, windows included.  *cwd* is where files the deck
+    names are found; ngspice reads no init file but *init_file* (see the back end)."""
+    simulator = SharedSimulator()
+    with simulator.session(deck, cwd=cwd, timeout=timeout, init_file=init_file) as session:
         return _Loop(session, plan).run()
 
 

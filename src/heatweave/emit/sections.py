@@ -12,7 +12,7 @@ from heatweave.emit.forms import TRTOL_NOTE, preamble, shared_nodes
 from heatweave.emit.temperature import temp_card
 from heatweave.errors import EmitError, Finding, Location
 from heatweave.quantities import format_number
-from heatweave.spice.deck import ControlBlock, Deck, iter_cards
+from heatweave.spice.deck import ControlBlock, Deck, iter_cards, unprintable
 from heatweave.spice.hierarchy import DeckIndex, Project
 from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, ThermalCircuit
 
@@ -27,7 +27,18 @@ def sha256(text: str) -> str:
 
 
 def header(deck_name: str, deck_text: str, annotation_name: str, annotation_text: str) -> str:
-    """The comment block after the title: sources, their hashes, the unit convention."""
+    """The comment block after the title: sources, their hashes, the unit convention.
+
+    The two file names are written into the deck: one holding a newline or another control
+    character is refused, since ngspice would read what follows it as a card."""
+    for what, name in (("deck", deck_name), ("annotation file", annotation_name)):
+        bad = unprintable(name)
+        if bad is not None:
+            raise EmitError(
+                f"the {what}'s file name {name!r} holds the character {bad}",
+                hint="rename the file: names written into the deck must be printable, "
+                "on one line",
+            )
     lines = [
         f"* electrothermal deck written by heatweave {__version__}; edit the sources, not this",
         f"* source deck: {deck_name} sha256 {sha256(deck_text)}",

@@ -1,8 +1,9 @@
 """Preparing an electrothermal deck for ngspice and simulating it.
 
-The emitted deck loses its ``.control`` blocks (their commands can run shell commands)
-unless the caller allows them; heatweave then drives the analyses itself.  Nothing is
-written except in a temporary working folder.
+ngspice gets one file: the emitted deck with every include inlined and every line it would
+run as a command (``.control`` blocks at any depth, ``*#`` lines) taken out unless the
+caller allows them (:mod:`heatweave.run.safedeck`); heatweave then drives the analyses
+itself.  Nothing is written except in a temporary working folder.
 """
 
 from __future__ import annotations
@@ -14,7 +15,8 @@ from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Emitted, Inputs, emit_inputs
 from heatweave.errors import Finding, UsageError
 from heatweave.simulators import Progress, SimResult, get_simulator
-from heatweave.spice.deck import Card, ControlBlock, Deck, Node
+from heatweave.run.safedeck import safe_deck
+from heatweave.spice.deck import Card
 from heatweave.spice.reader import read
 
 #: Dot cards that ask ngspice for an analysis (manual 15.3).
@@ -33,8 +35,11 @@ class RunOptions:
     allow_control: bool = False
     timeout: float | None = None
     progress: Progress | None = field(default=None, compare=False)
-    #: Folder ngspice runs in, where it finds relative includes (default: deck_folder).
+    #: Folder where ngspice finds files the deck names (default: deck_folder); ngspice itself
+    #: runs in a private folder and reads the deck's includes inlined (run.safedeck).
     cwd: str | None = None
+    #: An ngspice init file to read (by default none is: not the deck folder's, not HOME's).
+    init_file: str | None = None
 
 
 def deck_folder(inputs: Inputs) -> str:
@@ -55,30 +60,12 @@ class Prepared:
     cwd: str
 
 
-def strip_control(
-    text: str, path: str, allow: bool, origin: Deck | None = None
-) -> tuple[str, tuple[Finding, ...]]:
-    """The deck without its ``.control`` blocks (unless *allow*), and a warning if any.
-
-    *origin* is the deck as the user wrote it when *text* is the emitted deck: the warning
-    points at the block there, since the emitted deck's line numbers are not the user's.
-    """
-    deck = read(text, path)
-    blocks = [n for n in deck.body if isinstance(n, ControlBlock)]
-    if allow or not blocks:
-        return text, ()
-    kept: list[Node] = [n for n in deck.body if not isinstance(n, ControlBlock)]
-    own = [n for n in origin.body if isinstance(n, ControlBlock)] if origin else []
-    first = (own or blocks)[0]
-    where = first.source.location(first.offset) if first.source else None
-    warning = Finding(
-        "warning",
-        f"dropped {len(blocks)} .control block(s): their commands can run anything on this "
-        "machine, so heatweave drives the analyses itself",
-        where,
-        "pass --allow-control to keep them if you trust this deck",
-    )
-    return deck.with_body(tuple(kept)).write(), (warning,)
+def made_safe(text: str, inputs: Inputs, allow: bool) -> tuple[str, tuple[Finding, ...]]:
+    """*text* as :func:`heatweave.run.safedeck.safe_deck` gives it to ngspice: includes
+    inlined, ``.control`` blocks and ``*#`` lines taken out unless *allow*, with a warning
+    for each (located in the user's files)."""
+    safe = safe_deck(text, inputs.project, deck_folder(inputs), allow)
+    return safe.text, safe.findings
 
 
 def deck_analyses_of(text: str) -> list[str]:
@@ -105,9 +92,7 @@ def prepare(
         ambient=options.ambient,
         heating=heating,
     )
-    text, dropped = strip_control(
-        emitted.text, inputs.deck_path, options.allow_control, inputs.project.deck
-    )
+    text, dropped = made_safe(emitted.text, inputs, options.allow_control)
     own = deck_analyses_of(text)
     if not options.analyses and not own and not options.allow_control:
         raise UsageError(
@@ -134,4 +119,5 @@ def simulate(prepared: Prepared, options: RunOptions) -> SimResult:
         cwd=prepared.cwd,
         timeout=options.timeout,
         progress=options.progress,
+        init_file=options.init_file,
     )

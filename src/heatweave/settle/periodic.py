@@ -92,6 +92,7 @@ class SettleOptions:
     backend: str = "auto"
     allow_control: bool = False
     timeout: float | None = None
+    init_file: str | None = None
     progress: Callable[[Step], None] | None = field(default=None, compare=False)
 
     def run_options(self) -> RunOptions:
@@ -101,6 +102,7 @@ class SettleOptions:
             backend=self.backend,
             allow_control=self.allow_control,
             timeout=self.timeout,
+            init_file=self.init_file,
         )
 
 

@@ -160,6 +160,48 @@ def working_folder(workdir: str | os.PathLike[str] | None) -> Iterator[Path]:
         shutil.rmtree(path, ignore_errors=True)
 
 
+#: The name ngspice looks for in its working folder at start-up (manual 16.6).
+INIT_NAME = ".spiceinit"
+#: Variables that lead ngspice to a user's init file (manual 16.6, 16.7): never passed on.
+INIT_VARIABLES = ("SPICE_USERINIT_DIR", "USERPROFILE")
+INPUT_VARIABLE = "NGSPICE_INPUT_DIR"
+
+
+def private_environment(
+    folder: Path, input_dir: str | os.PathLike[str] | None, base: Mapping[str, str] | None = None
+) -> dict[str, str]:
+    """The environment ngspice runs in: *base* (default: this process's) with ``HOME`` an
+    empty folder inside *folder* and no variable naming another init folder, so that no
+    ``.spiceinit`` or ``spice.rc`` of the user's or of a deck's folder is read; files named
+    by the deck (an XSPICE ``file=``) are still found in *input_dir* (``NGSPICE_INPUT_DIR``)."""
+    env = {k: v for k, v in (os.environ if base is None else base).items()}
+    for name in INIT_VARIABLES:
+        env.pop(name, None)
+    home = folder / "home"
+    home.mkdir(exist_ok=True)
+    env["HOME"] = str(home)
+    if input_dir is not None:
+        env[INPUT_VARIABLE] = str(input_dir)
+    return env
+
+
+def place_init_file(init_file: str | os.PathLike[str] | None, folder: Path) -> Path | None:
+    """Copy the init file the user asked for into *folder* as ``.spiceinit``; its path."""
+    if init_file is None:
+        return None
+    source = Path(init_file)
+    try:
+        data = source.read_bytes()
+    except OSError as err:
+        raise UsageError(
+            f"cannot read the init file {source}: {err.strerror or err}",
+            hint="name an existing ngspice init file with --init-file",
+        ) from None
+    target = folder / INIT_NAME
+    target.write_bytes(data)
+    return target
+
+
 class Simulator(ABC):
     """A way to run ngspice on a deck."""
 
@@ -177,21 +219,30 @@ class Simulator(ABC):
         workdir: str | os.PathLike[str] | None = None,
         timeout: float | None = None,
         progress: Progress | None = None,
+        init_file: str | os.PathLike[str] | None = None,
     ) -> SimResult:
         """Simulate *deck* and return every plot it produced.
 
         ``analyses`` are extra analysis commands (``op``, ``tran 1u 1m``) run after the
         deck's own analysis cards, or instead of them when ``deck_analyses`` is false.
-        ``save`` limits the vectors kept (ngspice's ``save``).  ``cwd`` is the folder
-        relative ``.include`` paths are resolved against (default: the working folder).
-        ``workdir`` keeps ngspice's files in that folder; by default a temporary one is used
-        and removed.  ``timeout`` in seconds stops a run that takes too long.
+        ``save`` limits the vectors kept (ngspice's ``save``).  ``cwd`` is the folder where
+        files the deck names are looked for (``NGSPICE_INPUT_DIR``; the caller inlines the
+        includes, :mod:`heatweave.safedeck`).  ngspice itself runs in the working folder,
+        with an empty home there, so that it reads no init file: ``workdir`` keeps its files
+        in that folder (a folder of heatweave's own); by default a temporary one is used and
+        removed.  ``init_file`` is an ngspice init file the user asked to have read.
+        ``timeout`` in seconds stops a run that takes too long.
         ``progress(fraction)`` is called with the fraction done when the back end knows it.
         Raises :class:`heatweave.errors.SimulatorError` or one of its subclasses.
         """
 
     def session(
-        self, deck: str, *, cwd: str | os.PathLike[str], timeout: float | None = None
+        self,
+        deck: str,
+        *,
+        cwd: str | os.PathLike[str],
+        timeout: float | None = None,
+        init_file: str | os.PathLike[str] | None = None,
     ) -> AbstractContextManager[Session]:
         """A :class:`Session` on *deck* (a plain circuit without analysis cards) whose
         transient can be paused, altered and resumed: the co-simulation's way of driving

@@ -24,7 +24,17 @@ from heatweave import files
 from heatweave.errors import NgspiceMissingError, UsageError
 
 from . import diagnose
-from .base import Plot, Progress, SimResult, Simulator, command_script, timed_out, working_folder
+from .base import (
+    Plot,
+    Progress,
+    SimResult,
+    Simulator,
+    command_script,
+    place_init_file,
+    private_environment,
+    timed_out,
+    working_folder,
+)
 from .naming import number_plots
 from .rawfile import read_raw
 
@@ -107,8 +117,13 @@ class BatchSimulator(Simulator):
         workdir: str | os.PathLike[str] | None = None,
         timeout: float | None = None,
         progress: Progress | None = None,
+        init_file: str | os.PathLike[str] | None = None,
     ) -> SimResult:
-        """See :meth:`Simulator.run`; the batch back end reports progress only at the end."""
+        """See :meth:`Simulator.run`; the batch back end reports progress only at the end.
+
+        ngspice runs in the working folder with a private environment
+        (:func:`private_environment`): it finds no init file but *init_file*, copied there.
+        """
         script = command_script(analyses, deck_analyses, save)
         program = self.program()
         with working_folder(workdir) as folder:
@@ -125,11 +140,14 @@ class BatchSimulator(Simulator):
             text += control_block(script, raw_path, self.filetype)
             deck_path = folder / DECK_NAME
             deck_path.write_bytes(files.encode(text))
+            place_init_file(init_file, folder)
+            environment = private_environment(folder, cwd)
             command = [program, "-b", "-o", str(log_path), str(deck_path)]
             try:
                 finished = subprocess.run(
                     command,
-                    cwd=Path(cwd) if cwd is not None else folder,
+                    cwd=folder,
+                    env=environment,
                     stdin=subprocess.DEVNULL,
                     stdout=subprocess.DEVNULL,
                     stderr=subprocess.PIPE,

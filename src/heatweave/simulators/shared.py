@@ -36,6 +36,7 @@ from heatweave.errors import LibngspiceMissingError, SimulatorError
 
 from . import diagnose
 from .base import (
+    INIT_VARIABLES,
     Array,
     FloatArray,
     Plot,
@@ -45,6 +46,8 @@ from .base import (
     Simulator,
     check_analysis,
     command_script,
+    place_init_file,
+    private_environment,
     timed_out,
     working_folder,
 )
@@ -120,15 +123,46 @@ def stray_stderr(sink: list[str]) -> Iterator[None]:
 
 
 @contextmanager
-def inside(folder: Path) -> Iterator[None]:
-    """Run the body with *folder* as the working directory (ngspice resolves includes
-    against it), restoring the old one afterwards."""
+def inside(folder: Path, input_dir: str | os.PathLike[str] | None = None) -> Iterator[None]:
+    """Run the body with *folder* as the working directory and the private environment of
+    :func:`private_environment` (so libngspice finds no init file there, in ``HOME`` or in
+    ``SPICE_USERINIT_DIR``), restoring the old folder and variables afterwards."""
     before = os.getcwd()
+    wanted = private_environment(folder, input_dir)
+    names = set(wanted) | set(INIT_VARIABLES)
+    saved = {name: os.environ.get(name) for name in names}
     os.chdir(folder)
     try:
+        for name in INIT_VARIABLES:
+            os.environ.pop(name, None)
+        for name, value in wanted.items():
+            if saved[name] != value:
+                os.environ[name] = value
         yield
     finally:
+        for name, old in saved.items():
+            if old is None:
+                os.environ.pop(name, None)
+            elif os.environ.get(name) != old:
+                os.environ[name] = old
         os.chdir(before)
+
+
+def prepare_library(
+    library: Library,
+    folder: Path,
+    input_dir: str | os.PathLike[str] | None,
+    init_file: str | os.PathLike[str] | None,
+) -> None:
+    """Point the library at *input_dir* for files the deck names (``sourcepath``, which
+    the library reads where the program reads ``NGSPICE_INPUT_DIR``; manual 19.4.1.3), or
+    at the private *folder*, and ``source`` the *init_file* the user asked for."""
+    where = str(input_dir if input_dir is not None else folder)
+    if not any(ch.isspace() or ch in "()" for ch in where):
+        library.command(f"setcs sourcepath = ( {where} )")
+    init = place_init_file(init_file, folder)
+    if init is not None:
+        library.command(f"source {init}")
 
 
 def raise_failure(log: Sequence[str]) -> None:
@@ -196,8 +230,12 @@ class SharedSimulator(Simulator):
         self.library = library
 
     def load(self) -> Library:
-        """Load the library now (it is loaded once per process); raises when it cannot."""
-        with ENGINE_LOCK:
+        """Load the library now (it is loaded once per process); raises when it cannot.
+
+        libngspice reads spinit and the first ``.spiceinit`` it finds (working folder,
+        HOME) when it starts: it starts in an empty folder of its own, with an empty home.
+        """
+        with ENGINE_LOCK, working_folder(None) as empty, inside(empty.resolve()):
             return open_library(resolve_library(self.library))
 
     def run(
@@ -211,8 +249,13 @@ class SharedSimulator(Simulator):
         workdir: str | os.PathLike[str] | None = None,
         timeout: float | None = None,
         progress: Progress | None = None,
+        init_file: str | os.PathLike[str] | None = None,
     ) -> SimResult:
-        """See :meth:`Simulator.run`; progress comes from ngspice's status callback."""
+        """See :meth:`Simulator.run`; progress comes from ngspice's status callback.
+
+        The library started without any init file (:meth:`load`); *init_file* is
+        ``source``d before the deck is loaded (its settings then stay for later runs of
+        this process: one command, one set of options)."""
         script = command_script(analyses, deck_analyses, save)
         deadline = _deadline(timeout)
         with ENGINE_LOCK, working_folder(workdir) as folder:
@@ -221,8 +264,9 @@ class SharedSimulator(Simulator):
                 library.reset()
                 library.log.clear()
                 library.progress = progress
-                with inside(Path(cwd) if cwd is not None else folder):
+                with inside(folder.resolve(), cwd):
                     with stray_stderr(library.log):
+                        prepare_library(library, folder.resolve(), cwd, init_file)
                         library.load_circuit(deck.splitlines())
                     raise_failure(library.log)
                     with stray_stderr(library.log):
@@ -244,16 +288,24 @@ class SharedSimulator(Simulator):
 
     @contextmanager
     def session(
-        self, deck: str, *, cwd: str | os.PathLike[str], timeout: float | None = None
+        self,
+        deck: str,
+        *,
+        cwd: str | os.PathLike[str],
+        timeout: float | None = None,
+        init_file: str | os.PathLike[str] | None = None,
     ) -> Iterator[Session]:
-        """See :meth:`Simulator.session`."""
-        with ENGINE_LOCK:
+        """See :meth:`Simulator.session`; ngspice works in a private folder, as in
+        :meth:`run`."""
+        with ENGINE_LOCK, working_folder(None) as private:
             library = self.load()
             stray: list[str] = []
+            folder = private.resolve()
             try:
                 library.reset()
                 library.log.clear()
-                with inside(Path(cwd)), stray_stderr(stray):
+                with inside(folder, cwd), stray_stderr(stray):
+                    prepare_library(library, folder, cwd, init_file)
                     library.load_circuit(deck.splitlines())
                     raise_failure(library.log)
                     yield SharedSession(library, _deadline(timeout), timeout)

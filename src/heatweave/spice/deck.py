@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import bisect
 import re
+import unicodedata
 from collections.abc import Iterator
 from dataclasses import dataclass, field, replace
 from typing import Union
@@ -24,6 +25,19 @@ from typing import Union
 from heatweave.errors import Location
 
 _HEAD = re.compile(r"[ \t]*([^ \t\r\n,=()]*)")
+
+
+def unprintable(name: str) -> str | None:
+    """``None`` when *name* may be written into a deck (in a comment or as a name), else
+    its first character that may not, spelled ``U+000A``: a control character (a newline
+    would start a new line of the deck: a ``.control`` one, say), an invisible format
+    character (a bidirectional override) or a line or paragraph separator."""
+    if name.isascii() and name.isprintable():
+        return None
+    for char in name:
+        if unicodedata.category(char) in ("Cc", "Cf", "Zl", "Zp"):
+            return f"U+{ord(char):04X}"
+    return None
 
 
 @dataclass(frozen=True, slots=True, eq=False)

@@ -21,7 +21,7 @@ from heatweave.errors import DeckStructureError, Location
 from heatweave.spice import deckparams
 from heatweave.spice.cardparts import subckt_ports, x_card_parts
 from heatweave.spice.conditionals import Place, decide, may_have_conditionals
-from heatweave.spice.deck import _HEAD, Block, Card, Deck, Node, strip_inline_comment
+from heatweave.spice.deck import _HEAD, Block, Card, Deck, Node, iter_cards, strip_inline_comment
 from heatweave.spice.expressions import Func
 from heatweave.spice.globmatch import line_numbers, line_starts, matching_heads, matching_paths
 from heatweave.spice.reader import read_file
@@ -69,7 +69,7 @@ def load_project(path: str) -> Project:
 _MAY_INCLUDE = re.compile(r"\.(?:[iI][nN][cC]|[lL][iI][bB])")
 
 
-def _include_target(card: Card) -> tuple[str, str | None] | None:
+def include_target(card: Card) -> tuple[str, str | None] | None:
     """(file name, library section) of an include card, or ``None`` for other cards."""
     name = card.name
     if name not in (".include", ".inc", ".lib"):
@@ -99,7 +99,7 @@ def _follow(
             continue
         if not isinstance(node, Card):
             continue
-        target = _include_target(node)
+        target = include_target(node)
         if target is None:
             continue
         name, section = target
@@ -126,6 +126,7 @@ def _follow(
         deck = cache.get(key)
         if deck is None:
             deck = read_file(key, title=False)
+            refuse_foreign(deck, name, where)
             cache[key] = deck
         if deck.source is not None and not _MAY_INCLUDE.search(deck.source.text):
             out.append(
@@ -134,13 +135,13 @@ def _follow(
                     key,
                     section,
                     deck,
-                    _section(deck, section, where) if section is not None else deck.body,
+                    library_section(deck, section, where) if section is not None else deck.body,
                 )
             )
             continue
         chosen = deck.body
         if section is not None:
-            chosen = _section(deck, section, where)
+            chosen = library_section(deck, section, where)
         out.append(Include(node, key, section, deck, chosen))
         _follow(chosen, key, (*chain, link), out, cache)
 
@@ -150,7 +151,48 @@ def _shown(link: tuple[str, str | None]) -> str:
     return name if link[1] is None else f"{name} section {link[1]}"
 
 
-def _section(deck: Deck, section: str, where: Location | None) -> tuple[Node, ...]:
+#: How many of an included file's first cards :func:`foreign_reason` looks at.
+_SAMPLE_CARDS = 50
+# A SPICE name: a letter, then no slash and at most one colon (``user:x:0:0:...:/bin/sh``
+# is a line of a password file).
+_SPICE_NAME = re.compile(r"[A-Za-z][^/\\:]*(?::[^/\\:]*)?\Z")
+_CONTROL_BYTES = re.compile(r"[\x00-\x08\x0e-\x1f\x7f]")
+
+
+def foreign_reason(deck: Deck) -> str | None:
+    """Why an included file is plainly not a SPICE file (binary, a key or certificate, lines
+    that are no cards: a password or configuration file), or ``None``.  Looks at the whole
+    text for bytes and keys, and at the first few cards only."""
+    text = deck.source.text if deck.source is not None else deck.write()
+    if len(_CONTROL_BYTES.findall(text, 0, 65536)) > 2:
+        return "it holds control bytes: a binary file"
+    if "-----BEGIN " in text:
+        return "it holds a key or a certificate"
+    for number, card in enumerate(iter_cards(deck.body)):
+        if number >= _SAMPLE_CARDS:
+            break
+        if card.is_dot:
+            continue
+        fields = card.fields()
+        if not _SPICE_NAME.match(card.head) or len(fields) < 3 or fields[1] == "=":
+            return "its lines are not SPICE cards"
+    return None
+
+
+def refuse_foreign(deck: Deck, name: str, where: Location | None) -> None:
+    """Refuse an included file that is not a SPICE file, quoting none of its lines: a deck
+    from elsewhere may name a key or a password file, whose lines an error would show."""
+    reason = foreign_reason(deck)
+    if reason is not None:
+        raise DeckStructureError(
+            f"the included file {name!r} is not a SPICE file ({reason}); heatweave does not "
+            "read it, and shows none of its lines",
+            where,
+            hint="check the path on this card: it should name a SPICE file",
+        )
+
+
+def library_section(deck: Deck, section: str, where: Location | None) -> tuple[Node, ...]:
     names = []
     for node in deck.body:
         if isinstance(node, Block) and node.kind == "lib":
@@ -312,7 +354,7 @@ class DeckIndex:
         out: list[Node] = []
         for node in body:
             out.append(node)
-            if isinstance(node, Card) and node.is_dot and _include_target(node) is not None:
+            if isinstance(node, Card) and node.is_dot and include_target(node) is not None:
                 inc = self.project.include_for(node)
                 if inc is not None:
                     out.extend(self._expand(inc.body))

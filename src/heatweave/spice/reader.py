@@ -69,7 +69,7 @@ def _read(text: str, path: str, title: bool) -> Deck:
         if control is not None:
             control.append(lead)
             control.append(card_text)
-            if _word_is(card_text.lstrip(_BLANKS), ".endc"):
+            if _starts(card_text.lstrip(_BLANKS), ".endc"):
                 offset, block_lead = control_start
                 append(ControlBlock("".join(control), block_lead, source, offset))
                 control = None
@@ -81,7 +81,7 @@ def _read(text: str, path: str, title: bool) -> Deck:
             append(Card(card_text, lead, source, card_offset))
             continue
         stripped = card_text.lstrip(_BLANKS)
-        if _word_is(stripped, ".control"):
+        if _starts(stripped, ".control"):
             control = [card_text]
             control_start = (card_offset, lead)
             continue
@@ -100,10 +100,10 @@ def _read(text: str, path: str, title: bool) -> Deck:
     return Deck(path, title_text, tuple(stack[0][1]), trailer, source)
 
 
-def _word_is(stripped: str, word: str) -> bool:
-    """True when a stripped line starts with dot keyword *word* (case-insensitive)."""
-    n = len(word)
-    return stripped[:n].lower() == word and (len(stripped) == n or not stripped[n].isalnum())
+def _starts(stripped: str, word: str) -> bool:
+    """True when a stripped line starts with *word* whatever follows: ngspice 39 opens a
+    ``.control`` block at ``.controls`` too, and closes one at ``.endcx`` (verified)."""
+    return stripped[: len(word)].lower() == word
 
 
 def _structure(

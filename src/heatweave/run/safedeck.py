@@ -1,0 +1,215 @@
+"""The deck heatweave hands ngspice: one file in which no line is a command.
+
+ngspice runs interpreter commands (``shell`` among them) from these places in a deck
+(manual 16.4.3, 17.5.80; each checked against ngspice 39):
+
+* ``.control`` ... ``.endc`` blocks, in the deck, in every file it includes, in ``.lib``
+  sections and ``.subckt`` bodies (ngspice matches the words as prefixes: ``.controls``
+  opens a block too);
+* every line starting with ``*#``, in any file: ngspice wraps it in a ``.control`` block;
+* a whole file whose first line starts with ``*ng_script``: ngspice reads it as a script.
+
+:func:`safe_deck` therefore inlines every ``.include`` and ``.lib FILE SECTION`` (ngspice
+reads no file but the one deck: a file it read itself could hold any of the above), drops
+each ``.control`` block unless the user allows them, turns ``*#`` lines into plain comments
+and replaces a script title.  The fourth place, the init files ``.spiceinit`` and
+``spice.rc``, is closed by the back ends, which run ngspice with a private working folder and
+home (:func:`heatweave.simulators.base.private_environment`).
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from collections.abc import Iterable
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+from heatweave.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
+from heatweave.errors import DeckStructureError, Finding, Location
+from heatweave.hierarchy import Project, include_target, library_section, refuse_foreign
+from heatweave.reader import read, read_file
+
+MARK = "*hw* "
+#: A line ngspice runs as a command although it looks like a comment (manual 17.5.80).
+_HASH_LINE = re.compile(r"(?m)^([ \t]*)\*#")
+_SCRIPT_TITLE = "*ng_script"
+ALLOW_HINT = "pass --allow-control to keep them if you trust this deck and every file it includes"
+
+
+@dataclass(frozen=True, slots=True)
+class SafeDeck:
+    """The text to simulate and the warnings about what was taken out of it."""
+
+    text: str
+    findings: tuple[Finding, ...]
+
+
+def safe_deck(text: str, project: Project, folder: str, allow_control: bool) -> SafeDeck:
+    """*text* (the deck to simulate: emitted, or the plain deck) made safe for ngspice.
+
+    *project* is the deck as read, with its includes (their texts are taken from there, so
+    a file is read once); *folder* is where the deck's relative include paths start.  With
+    *allow_control* the ``.control`` blocks and ``*#`` lines stay (the user trusts the deck);
+    the includes are inlined and a script title replaced all the same.
+    """
+    deck = read(text, project.deck.path)
+    files = {include.path: include.deck for include in project.includes}
+    inliner = _Inliner(files, allow_control)
+    body = inliner.body(deck.body, Path(folder), (), top=True)
+    title = deck.title
+    if title is not None and title.lstrip(" \t").lower().startswith(_SCRIPT_TITLE):
+        title = "heatweave: a title line that asked ngspice to read a script was replaced\n"
+    trailer = deck.trailer if allow_control else defuse(deck.trailer)
+    safe = replace(deck, title=title, body=tuple(body), trailer=trailer)
+    return SafeDeck(safe.write(), findings(project, allow_control))
+
+
+def defuse(text: str) -> str:
+    """*text* with every ``*#`` line turned into a plain comment (``* #``)."""
+    if "*#" not in text:
+        return text
+    return _HASH_LINE.sub(r"\1* #", text)
+
+
+class _Inliner:
+    """Inlines includes and drops command lines, one body at a time; new nodes only."""
+
+    def __init__(self, files: dict[str, Deck], allow_control: bool) -> None:
+        self.files = files
+        self.allow = allow_control
+
+    def body(
+        self, nodes: Iterable[Node], folder: Path, chain: tuple[str, ...], *, top: bool
+    ) -> list[Node]:
+        out: list[Node] = []
+        for node in nodes:
+            if isinstance(node, ControlBlock):
+                if self.allow:
+                    out.append(node)
+                else:
+                    note = f"{MARK}a .control block was dropped here\n"
+                    out.append(Card(note, defuse(node.lead)))
+            elif isinstance(node, Block):
+                header, end = self.card(node.header), node.end and self.card(node.end)
+                inner = self.body(node.body, folder, chain, top=top)
+                out.append(Block(header, tuple(inner), end))
+            elif include_target(node) is not None:
+                out.extend(self.inline(node, folder, chain))
+            elif not top and node.name == ".end":
+                # ngspice ignores .end in an included file; the shared library would stop
+                # reading the inlined deck there.
+                out.append(Card(MARK + node.text, self.card(node).lead))
+            else:
+                out.append(self.card(node))
+        return out
+
+    def card(self, card: Card) -> Card:
+        if self.allow or ("*#" not in card.lead and "*#" not in card.text):
+            return card
+        return replace(card, lead=defuse(card.lead), text=defuse(card.text))
+
+    def inline(self, card: Card, folder: Path, chain: tuple[str, ...]) -> list[Node]:
+        """The include *card* as a comment, then the body it brings in, made safe."""
+        target = include_target(card)
+        assert target is not None
+        name, section = target
+        full = str((folder / os.path.expanduser(name)).resolve())
+        where = card.location()
+        if full in chain:
+            raise DeckStructureError(f"include cycle through {full}", where)
+        deck = self.files.get(full)
+        if deck is None:
+            if not Path(full).is_file():
+                raise DeckStructureError(
+                    f"included file {name!r} not found (looked for {full})",
+                    where,
+                    hint="paths are relative to the file that holds the include card",
+                )
+            deck = read_file(full, title=False)
+            refuse_foreign(deck, name, where)
+            self.files[full] = deck
+        chosen = deck.body if section is None else library_section(deck, section, where)
+        note = Card(f"{MARK}inlined: {card.logical().text}\n", self.card(card).lead)
+        inner = self.body(chosen, Path(full).parent, (*chain, full), top=False)
+        return [note, *inner]
+
+
+def findings(project: Project, allow_control: bool) -> tuple[Finding, ...]:
+    """One warning for each ``.control`` block and ``*#`` line taken out of what ngspice
+    would have read, located in the user's files; and one for a script title."""
+    found: dict[tuple[str, int], Finding] = {}
+    title = project.deck.title
+    if title is not None and title.lstrip(" \t").lower().startswith(_SCRIPT_TITLE):
+        where = project.deck.source.location(0) if project.deck.source else None
+        _add(found, Finding(
+            "warning",
+            "the title line starts with *ng_script, which makes ngspice read the whole deck "
+            "as a command script: heatweave gives ngspice another title",
+            where,
+            "give the deck an ordinary first line (a title)",
+        ))  # fmt: skip
+    if allow_control:
+        return tuple(found.values())
+    bodies = [project.deck.body, *(include.body for include in project.includes)]
+    for body in bodies:
+        for node in _walk(body):
+            if isinstance(node, ControlBlock):
+                _add(found, Finding(
+                    "warning",
+                    "dropped a .control block: its commands could run anything on this "
+                    "machine, so heatweave drives the analyses itself",
+                    _at(node.source, node.offset),
+                    ALLOW_HINT,
+                ))  # fmt: skip
+            else:
+                for offset in _hash_lines(node.lead):
+                    at = _at(node.source, node.offset - len(node.lead) + offset)
+                    _add(found, _hash_finding(at))
+                if isinstance(node, Card):
+                    for offset in _hash_lines(node.text):
+                        _add(found, _hash_finding(_at(node.source, node.offset + offset)))
+    deck = project.deck
+    for offset in _hash_lines(deck.trailer):
+        start = len(deck.write()) - len(deck.trailer)
+        _add(found, _hash_finding(_at(deck.source, start + offset)))
+    return tuple(found.values())
+
+
+def _walk(body: Iterable[Node]) -> Iterable[Card | ControlBlock]:
+    for node in body:
+        if isinstance(node, Block):
+            yield node.header
+            yield from _walk(node.body)
+            if node.end is not None:
+                yield node.end
+        else:
+            yield node
+
+
+def _hash_lines(text: str) -> list[int]:
+    if "*#" not in text:
+        return []
+    return [match.end(1) for match in _HASH_LINE.finditer(text)]
+
+
+def _at(source: SourceFile | None, offset: int) -> Location | None:
+    if source is None or offset < 0:
+        return None
+    return source.location(offset)
+
+
+def _hash_finding(where: Location | None) -> Finding:
+    return Finding(
+        "warning",
+        "a line starting with *# is a command to ngspice, not a comment: heatweave turned "
+        "it into a comment",
+        where,
+        ALLOW_HINT,
+    )
+
+
+def _add(found: dict[tuple[str, int], Finding], finding: Finding) -> None:
+    where = finding.location
+    key = (where.file, where.line) if where is not None else ("", len(found))
+    found.setdefault(key, finding)
