@@ -32,9 +32,9 @@ from heatweave.annotation.types import (
     PathSpec,
     ReviewSpec,
 )
-from heatweave.deck import unprintable
 from heatweave.errors import AnnotationError, Location
 from heatweave.quantities import ABSOLUTE_ZERO, below_absolute_zero
+from heatweave.spice.deck import unprintable
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
 from heatweave.tomlspots import KeyPath, Locator, syntax_error
 

@@ -12,8 +12,8 @@ import click
 from heatweave.errors import Finding, HeatweaveError
 
 if TYPE_CHECKING:
-    from heatweave.emitter import Inputs
-    from heatweave.hierarchy import Project
+    from heatweave.emit.emitter import Inputs
+    from heatweave.spice.hierarchy import Project
 
 P = ParamSpec("P")
 R = TypeVar("R")

@@ -14,8 +14,8 @@ from pathlib import Path
 from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Emitted, Inputs, emit_inputs
 from heatweave.errors import Finding, UsageError
-from heatweave.simulators import Progress, SimResult, get_simulator
 from heatweave.run.safedeck import safe_deck
+from heatweave.simulators import Progress, SimResult, get_simulator
 from heatweave.spice.deck import Card
 from heatweave.spice.reader import read
 

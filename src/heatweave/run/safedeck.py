@@ -25,10 +25,10 @@ from collections.abc import Iterable
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from heatweave.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 from heatweave.errors import DeckStructureError, Finding, Location
-from heatweave.hierarchy import Project, include_target, library_section, refuse_foreign
-from heatweave.reader import read, read_file
+from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
+from heatweave.spice.hierarchy import Project, include_target, library_section, refuse_foreign
+from heatweave.spice.reader import read, read_file
 
 MARK = "*hw* "
 #: A line ngspice runs as a command although it looks like a comment (manual 17.5.80).
