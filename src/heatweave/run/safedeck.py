@@ -34,6 +34,9 @@ MARK = "*hw* "
 #: A line ngspice runs as a command although it looks like a comment (manual 17.5.80).
 _HASH_LINE = re.compile(r"(?m)^([ \t]*)\*#")
 _SCRIPT_TITLE = "*ng_script"
+_SCRIPT = re.compile(r"[ \t]*\*ng_script", re.IGNORECASE)
+# What a text holds when there is anything to do: an include card, a command line or block.
+_LOOK = re.compile(r"\.(?:inc|lib|control)|\*#", re.IGNORECASE)
 ALLOW_HINT = "pass --allow-control to keep them if you trust this deck and every file it includes"
 
 
@@ -53,12 +56,15 @@ def safe_deck(text: str, project: Project, folder: str, allow_control: bool) -> 
     *allow_control* the ``.control`` blocks and ``*#`` lines stay (the user trusts the deck);
     the includes are inlined and a script title replaced all the same.
     """
+    script_title = _SCRIPT.match(text) is not None
+    if not script_title and _LOOK.search(text) is None:  # the common case: one scan
+        return SafeDeck(text, ())
     deck = read(text, project.deck.path)
     files = {include.path: include.deck for include in project.includes}
     inliner = _Inliner(files, allow_control)
     body = inliner.body(deck.body, Path(folder), (), top=True)
     title = deck.title
-    if title is not None and title.lstrip(" \t").lower().startswith(_SCRIPT_TITLE):
+    if script_title:
         title = "heatweave: a title line that asked ngspice to read a script was replaced\n"
     trailer = deck.trailer if allow_control else defuse(deck.trailer)
     safe = replace(deck, title=title, body=tuple(body), trailer=trailer)
@@ -151,7 +157,11 @@ def findings(project: Project, allow_control: bool) -> tuple[Finding, ...]:
         ))  # fmt: skip
     if allow_control:
         return tuple(found.values())
-    bodies = [project.deck.body, *(include.body for include in project.includes)]
+    bodies = [
+        deck.body if include is None else include.body
+        for deck, include in [(project.deck, None), *((i.deck, i) for i in project.includes)]
+        if _has_commands(deck)
+    ]
     for body in bodies:
         for node in _walk(body):
             if isinstance(node, ControlBlock):
@@ -174,6 +184,15 @@ def findings(project: Project, allow_control: bool) -> tuple[Finding, ...]:
         start = len(deck.write()) - len(deck.trailer)
         _add(found, _hash_finding(_at(deck.source, start + offset)))
     return tuple(found.values())
+
+
+_COMMANDS = re.compile(r"\.control|\*#", re.IGNORECASE)
+
+
+def _has_commands(deck: Deck) -> bool:
+    """False when no line of *deck* can be a command (one scan of its text)."""
+    text = deck.source.text if deck.source is not None else deck.write()
+    return _COMMANDS.search(text) is not None
 
 
 def _walk(body: Iterable[Node]) -> Iterable[Card | ControlBlock]:
