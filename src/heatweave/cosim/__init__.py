@@ -198,7 +198,7 @@ def run(
         )
     system = assemble(circuit)
     # Always dropped (with the warning): the co-simulation issues its own commands.
-    text, dropped = made_safe(inputs.project.deck.write(), inputs, allow=False)
+    text, dropped = made_safe(inputs.project.deck.write(), inputs, options, allow=False)
     from pathlib import Path
 
     plan = Plan(
@@ -209,7 +209,7 @@ def run(
         tran,
         tolerance,
     )
-    folder = Path(deck_folder(inputs))
+    folder = Path(options.cwd or deck_folder(inputs))
     trace = cosimulate(plain_deck(text, circuit), folder, plan, options.timeout, options.init_file)
     results = to_results(trace, circuit, system)
     reason = f"co-simulation in {trace.windows} windows"

@@ -60,11 +60,15 @@ class Prepared:
     cwd: str
 
 
-def made_safe(text: str, inputs: Inputs, allow: bool) -> tuple[str, tuple[Finding, ...]]:
+def made_safe(
+    text: str, inputs: Inputs, options: RunOptions, allow: bool
+) -> tuple[str, tuple[Finding, ...]]:
     """*text* as :func:`heatweave.run.safedeck.safe_deck` gives it to ngspice: includes
-    inlined, ``.control`` blocks and ``*#`` lines taken out unless *allow*, with a warning
-    for each (located in the user's files)."""
-    safe = safe_deck(text, inputs.project, deck_folder(inputs), allow)
+    inlined (from ``options.cwd``, fixed by a sweep before its corners go elsewhere, or
+    the deck's folder), ``.control`` blocks and ``*#`` lines taken out unless *allow*, with
+    a warning for each (located in the user's files)."""
+    folder = options.cwd or deck_folder(inputs)
+    safe = safe_deck(text, inputs.project, folder, allow)
     return safe.text, safe.findings
 
 
@@ -92,7 +96,7 @@ def prepare(
         ambient=options.ambient,
         heating=heating,
     )
-    text, dropped = made_safe(emitted.text, inputs, options.allow_control)
+    text, dropped = made_safe(emitted.text, inputs, options, options.allow_control)
     own = deck_analyses_of(text)
     if not options.analyses and not own and not options.allow_control:
         raise UsageError(
