@@ -227,7 +227,7 @@ class Simulator(ABC):
         deck's own analysis cards, or instead of them when ``deck_analyses`` is false.
         ``save`` limits the vectors kept (ngspice's ``save``).  ``cwd`` is the folder where
         files the deck names are looked for (``NGSPICE_INPUT_DIR``; the caller inlines the
-        includes, :mod:`heatweave.safedeck`).  ngspice itself runs in the working folder,
+        includes, :mod:`heatweave.run.safedeck`).  ngspice itself runs in the working folder,
         with an empty home there, so that it reads no init file: ``workdir`` keeps its files
         in that folder (a folder of heatweave's own); by default a temporary one is used and
         removed.  ``init_file`` is an ngspice init file the user asked to have read.
