@@ -49,6 +49,14 @@ COMMANDS: dict[str, tuple[list[str], list[str], list[str]]] = {
     "sweep --csv": (["sweep"], [*SIMULATING, "-j", "1"], ["--csv"]),
     "sweep --plot": (["sweep"], [*SIMULATING, "-j", "1"], ["--plot"]),
     "sweep --junit": (["sweep"], [*SIMULATING, "-j", "1", "--check"], ["--junit"]),
+    "run --html": (["run"], SIMULATING, ["--html"]),
+    "check --html": (["check"], SIMULATING, ["--html"]),
+    "settle --html": (["settle"], [*SIMULATING, "--period", "1m"], ["--html"]),
+    "sweep --html": (["sweep"], [*SIMULATING, "-j", "1"], ["--html"]),
+    "compare --markdown": (["compare"], [*SIMULATING, "--against", "HEAD"], ["--markdown"]),
+    "compare --json": (["compare"], [*SIMULATING, "--against", "HEAD"], ["--json"]),
+    "compare --junit": (["compare"], [*SIMULATING, "--against", "HEAD"], ["--junit"]),
+    "compare --html": (["compare"], [*SIMULATING, "--against", "HEAD"], ["--html"]),
 }
 TARGETS = {"deck": "d.cir", "annotation": "d.thermal.toml", "include": "parts.inc"}
 
@@ -144,6 +152,16 @@ def test_network_convert_refuses_its_input(project: Path) -> None:
     )
     assert result.exit_code == 2 and "never overwrites" in result.output
     assert source.read_bytes() == before
+
+
+@pytest.mark.parametrize("option", ["--markdown", "--json", "--junit", "--html"])
+def test_compare_refuses_its_saved_results(project: Path, option: str) -> None:
+    for name in ("old.json", "new.json"):
+        (project / name).write_text("{}\n")
+    before = snapshot(project)
+    result = CliRunner().invoke(main, ["compare", "old.json", "new.json", option, "./new.json"])
+    assert result.exit_code == 2 and "never overwrites" in result.output, result.output
+    assert snapshot(project) == before
 
 
 def test_two_outputs_to_one_file_are_refused(project: Path) -> None:

@@ -22,6 +22,7 @@ from heatweave.cli.common import (
     analysis_options,
     annotation_for,
     guarded,
+    input_files,
     is_terminal,
     simulation_options,
 )
@@ -100,6 +101,7 @@ def compare(
     ambient: float | None,
     backend: str,
     allow_control: bool,
+    init_file: str | None,
     timeout: float | None,
     quiet: bool,
 ) -> None:
@@ -129,6 +131,7 @@ def compare(
         raise UsageError(
             f"{' and '.join(on_stdout)} both write to stdout", hint="send at most one to -"
         )
+    _guard_inputs(outputs, sources, annotations, revision)
     options = Thresholds(max_rise_growth, max_drift_growth, max_margin_loss)
     sides = None
     if revision is not None:
@@ -146,6 +149,7 @@ def compare(
             backend,
             allow_control,
             timeout,
+            init_file,
         )
         old_data, new_data = sides[0].data, sides[1].data
         labels = (sides[0].label, sides[1].label)
@@ -183,6 +187,27 @@ def compare(
         sys.exit(EXIT_CHECK_FAILED)
 
 
+def _guard_inputs(
+    outputs: dict[str, str | None],
+    sources: tuple[str, ...],
+    annotations: str | None,
+    revision: str | None,
+) -> None:
+    """Refuse, before anything runs, an output that is an input: the deck, its annotation
+    file and every file it includes (``--against``), or a saved result."""
+    from heatweave.files import refuse_overwrite
+
+    if revision is None or len(sources) != 1:
+        refuse_overwrite(outputs, [("a result to compare", source) for source in sources])
+        return
+    from heatweave.spice.hierarchy import load_project
+
+    deck = sources[0]
+    refuse_overwrite(outputs, input_files(deck, annotations))
+    chosen = annotation_for(deck, annotations)
+    refuse_overwrite(outputs, input_files(deck, chosen, load_project(deck)))
+
+
 def _file_thresholds(path: str | None) -> Thresholds:
     from heatweave.annotation import load
 
@@ -205,6 +230,7 @@ def _run_revisions(
     backend: str,
     allow_control: bool,
     timeout: float | None,
+    init_file: str | None = None,
 ) -> tuple[Side, Side]:
     """Run DECK as it was at *revision* and as it is, with the same options."""
     from heatweave.compare.execute import run_side
@@ -218,6 +244,7 @@ def _run_revisions(
         backend=backend,
         allow_control=allow_control,
         timeout=timeout,
+        init_file=init_file,
     )
     past = checkout(deck, chosen, revision)
     folder = past.folder.rstrip("/") + "/"
