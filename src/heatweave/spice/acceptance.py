@@ -35,8 +35,10 @@ from heatweave.spice.grammar import CardSyntaxError, parse_card
 from heatweave.spice.hierarchy import DeckIndex, Scope
 from heatweave.spice.syntax import (
     Call,
+    DotSyntax,
     ElementSyntax,
     Field,
+    ModelSyntax,
     Param,
     ParamCardSyntax,
     Value,
@@ -55,6 +57,7 @@ KNOWN_DOT_PREFIXES = (".opt", ".inc", ".param", ".func", ".global", ".four", ".p
                       ".csparam", ".model", ".control", ".title", ".subckt", ".ends")  # fmt: skip
 _NOT_FINITE = frozenset({"nan", "inf", "+inf", "-inf", "infinity"})
 _EVALUATED = frozenset("rclvi")  # element values ngspice computes before the simulation
+_EVALUATED_DOT_CARDS = frozenset({"tran", "ac", "dc", "noise", "temp", "options", "option"})
 
 
 @dataclass(frozen=True, slots=True)
@@ -67,11 +70,12 @@ class _Expr:
 def rejections(index: DeckIndex) -> list[Finding]:
     """Every reason ngspice 39 would refuse the deck of *index*, as located errors."""
     cards = list(_read_cards(index))
+    dots = [c for c in cards if _is_dot(c)]
     found = list(_title(index))
     found.extend(_empty(index, cards))
     found.extend(_open_control(index, cards))
-    found.extend(_unknown_dot_cards(cards))
-    found.extend(_parameters(index, cards))
+    found.extend(_unknown_dot_cards(dots))
+    found.extend(_parameters(index, cards, dots))
     found.extend(_recursion(index))
     found.extend(duplicates(index))
     return found
@@ -81,6 +85,12 @@ def refuse_rejected(index: DeckIndex) -> None:
     """Raise the first of :func:`rejections` (exit 2) before anything is simulated."""
     for finding in rejections(index):
         raise DeckStructureError(finding.message, finding.location, finding.hint)
+
+
+def _is_dot(card: Card) -> bool:
+    """A dot card, told from its text's first character (cheaper than ``Card.name``)."""
+    text = card.text
+    return text[:1] == "." or (text[:1] in " \t" and text.lstrip(" \t")[:1] == ".")
 
 
 def _read_cards(index: DeckIndex) -> Iterator[Card]:
@@ -191,12 +201,16 @@ def _values(fields: Iterable[Field]) -> Iterator[Value]:
             yield from _values((*field.args, *field.params))
 
 
+def _may_hold_expression(card: Card) -> bool:
+    """A cheap first look at a card's text: braces, quotes, nan/inf, or a .param card."""
+    text = card.text
+    if "{" in text or "'" in text or _MAY_NOT_FINITE.search(text) is not None:
+        return True
+    return _is_dot(card) and card.name.startswith(".param")
+
+
 def _expressions(card: Card) -> Iterator[_Expr]:
     """The brace and quoted expressions ngspice evaluates before the simulation."""
-    text = card.text
-    plain = "{" not in text and "'" not in text and not _MAY_NOT_FINITE.search(text)
-    if plain and not card.name.startswith(".param"):
-        return
     logical = card.logical().text
     try:
         syntax = parse_card(logical)
@@ -206,8 +220,12 @@ def _expressions(card: Card) -> Iterator[_Expr]:
         if syntax.letter not in _EVALUATED and syntax.letter != "x":
             return
         fields: tuple[Field, ...] = (*syntax.positional, *syntax.params)
+    elif isinstance(syntax, ParamCardSyntax | ModelSyntax):
+        fields = syntax.params
+    elif isinstance(syntax, DotSyntax) and syntax.name in _EVALUATED_DOT_CARDS:
+        fields = (*syntax.args, *syntax.params)
     else:
-        fields = tuple(getattr(syntax, "params", ()))
+        return  # .meas param='...' names measurements, .print and .save output vectors
     unbraced = isinstance(syntax, ParamCardSyntax)  # .param a = b*2 is an expression too
     for value in _values(fields):
         if (
@@ -246,12 +264,15 @@ def _defined_names(index: DeckIndex, cards: list[Card]) -> set[str]:
     return names
 
 
-def _parameters(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
-    defined = _defined_names(index, cards)
-    top = {id(c) for c in index.top.cards}
-    params, funcs = deckparams.values(_top_cards(index))
-    yield from _circular(index, cards)
-    for expr in (e for card in cards for e in (*_expressions(card), *_condition(card))):
+def _parameters(index: DeckIndex, cards: list[Card], dots: list[Card]) -> Iterator[Finding]:
+    defined = _defined_names(index, dots)
+    top: set[int] | None = None
+    top_dots = [c for c in _top_cards(index) if _is_dot(c)]
+    params, funcs = deckparams.values(top_dots)
+    yield from _circular(index, top_dots)
+    conditions = (e for card in dots for e in _condition(card))
+    holders = [c for c in cards if _may_hold_expression(c)]
+    for expr in (*(e for card in holders for e in _expressions(card)), *conditions):
         card = expr.card
         if card.is_element and expr.text.lower().lstrip("+-") in _NOT_FINITE:
             yield _error(card, expr.offset, f"{card.head} has the value {expr.text}: ngspice 39 "
@@ -279,6 +300,8 @@ def _parameters(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
                          "ngspice 39 stops with 'Undefined parameter'",
                          f"define it with .param {name} = ... (manual 2.9.1)")  # fmt: skip
             continue
+        if top is None:
+            top = {id(c) for c in index.top.cards}
         if id(card) in top and card.name != ".param":
             try:
                 evaluate(expr.text, params, funcs)
@@ -296,11 +319,13 @@ def _top_cards(index: DeckIndex) -> Iterator[Card]:
         yield from (node for node in body if isinstance(node, Card))
 
 
-def _circular(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
+def _circular(index: DeckIndex, top_dots: list[Card]) -> Iterator[Finding]:
     """``.param`` definitions that depend on themselves, scope by scope."""
-    bodies = [[c for c in _top_cards(index) if c.name.startswith(".param")]]
+    bodies = [[c for c in top_dots if c.name.startswith(".param")]]
     for definition in _definitions(index.top):
-        bodies.append([c for c in iter_cards(definition.body) if c.name.startswith(".param")])
+        bodies.append(
+            [c for c in iter_cards(definition.body) if _is_dot(c) and c.name.startswith(".param")]
+        )
     for body in bodies:
         defs = {d.name: d for card in body for d in deckparams.param_defs(card)}
         graph = {n: [u for u, _ in names_used(d.text) if u in defs] for n, d in defs.items()}
@@ -354,6 +379,8 @@ def _recursion(index: DeckIndex) -> Iterator[Finding]:
     """A subcircuit reached again from inside itself, following the instances."""
 
     def walk(scope: Scope, chain: tuple[str, ...]) -> Iterator[Finding]:
+        if not scope.instances:
+            return
         for card in scope.cards:
             if card.letter != "X":
                 continue
@@ -384,6 +411,9 @@ def duplicates(index: DeckIndex) -> Iterator[Finding]:
     """Two elements of one name in one (sub)circuit; names in different branches of one
     undecided ``.if`` do not clash (2.13)."""
     for scope in _all_scopes(index.top):
+        lows = "\n".join(scope.heads).lower().split("\n") if scope.heads else []
+        if len(set(lows)) == len(lows):
+            continue  # every name once: the common case, one pass in C
         seen: dict[str, list[Card]] = {}
         for card, head in zip(scope.cards, scope.heads, strict=True):
             key = head.lower()
