@@ -159,6 +159,8 @@ GOOD_VALUES = [
     "R1 a 0 {rval > 1k ? rval : 1k}",  # ?: in braces (manual 2.9.5), issue 15
     "R1 a 0 '2*pick(rval < 1k, 1k, half(rval))'",
     "R1 a 0 {sin(0.5)*rval + nint(2.5)}",
+    # a .param that calls a .func inside ?:, defined below its use (ngspice hoists .param)
+    "R1 a 0 {rdef}\n.param rdef={rval > 1k ? (half(rval)) : rval}",
 ]
 
 

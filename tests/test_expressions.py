@@ -41,12 +41,16 @@ ACCEPTED = [
     "1 - -3", "10kOhm", "3.3MOhm", "1T", "1a", "2*(3+4)", "tanh(0.5)", "asinh(1)",
     "5 > 3 ? 1 : 2", "1+2 == 3", "1 || 0 && 0", "rval*k1", "sel == 1 ? rval : 2*rval",
     "half(rval)", "pick(sel, 10, 20)", "pick(0, 10, 20)", "twice(k1)", "rval/(1+k1)",
+    "(-2)^3", "(-8)^(1/3)", "(-2)**2", "pow(-2,3)", "pwr(-2,3)", "-2^3", "1e308*10 > 1",
+    "1 ? (half(2)) : 3", "0 ? 3 : half(2)", "half(2) ? 1 : 0", "1 ? 1+half(2) : 3",
 ]  # fmt: skip
 # Expressions ngspice 39.3 refuses, and the kind of refusal heatweave gives.
 REFUSED = [
     ("pi", "undefined"), ("nosuch*2", "undefined"), ("(2*(1k)", "syntax"),
     ("2*1k)", "syntax"), ("1/0", "math"), ("sqrt(-4)", "math"), ("pow(-2,0.5)", "math"),
-    ("2*+3", "unsupported"), ("temper", "runtime"),
+    ("2*+3", "unsupported"), ("temper", "runtime"), ("0^-1", "math"),
+    ("pow(-8,1/3)", "math"), ("1 ? half(2) : 3", "unsupported"),
+    ("sel ? twice(k1)*1 : 3", "unsupported"),
 ]  # fmt: skip
 
 

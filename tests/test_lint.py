@@ -256,6 +256,22 @@ def test_checks_see_the_nodes_of_a_and_k_cards(tmp_path: Path) -> None:
         "Rb b 0 10\n.tran 1u 1m\n.end\n"
     )
     (tmp_path / "mixed.thermal.toml").write_text(NOTES + '[limit."V(out)"]\nmax = 5.0\n')
-    from heatweave.checks.lint import lint_file as lint_annotated
+    assert [f for f in lint_file(str(deck)) if f.severity == "error"] == []
 
-    assert [f for f in lint_annotated(str(deck)) if f.severity == "error"] == []
+
+@pytest.mark.parametrize(
+    ("part", "words"),
+    [("Again", "is an XSPICE code-model element"), ("K1", "couples two inductors")],
+)
+def test_annotating_a_and_k_cards_is_refused(tmp_path: Path, part: str, words: str) -> None:
+    # Issue 15: only annotating the element heatweave cannot analyse is refused; the rest
+    # of the deck (its nodes, the resistor beside it) is checked as usual.
+    deck = tmp_path / "mixed.cir"
+    deck.write_text(
+        "mixed\nV1 in 0 1\nR1 in a 100\nAgain %v(a) %vd(out 0) amp\n.model amp gain(gain=2)\n"
+        "Ro out 0 1k\nL1 a 0 1m\nL2 b 0 1m\nK1 L1 L2 0.5\nRb b 0 10\n.op\n.end\n"
+    )
+    (tmp_path / "mixed.thermal.toml").write_text(f"schema = 1\n[part.{part}]\nrth = 5.0\n")
+    errors = [f for f in lint_file(str(deck)) if f.severity == "error"]
+    assert [words in f.message for f in errors] == [True], errors
+    assert errors[0].location is not None and errors[0].location.line == 2

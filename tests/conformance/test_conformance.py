@@ -56,6 +56,7 @@ REJECT = {
     "r20_lib_cycle": ("include cycle", "unimplemented control card"),
     "r21_param_title": ("the title line starts with .param", "title line is missing"),
     "r22_control_eof_models": ("has no .endc, and D1 uses a model", "valid modelname"),
+    "r23_func_after_question": ("a .func call right after '?'", "Expression err"),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

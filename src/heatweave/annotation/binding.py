@@ -135,7 +135,7 @@ def _bind(annotation: Annotation, catalog: DeckCatalog) -> tuple[BoundPart, ...]
     specs = [chosen[at] for at in order]
     kinds = [kind.upper() for kind in map(catalog.element_kind, names)]
     for element, kind, spec in zip(names, kinds, specs, strict=True):
-        if (kind == RESISTOR) != (spec.model is not None):
+        if kind in _NOT_ANNOTATABLE or (kind == RESISTOR) != (spec.model is not None):
             _refuse_kind(element, kind, spec)
     return tuple(map(BoundPart, names, kinds, specs, order))
 
@@ -172,8 +172,26 @@ def _suggest(name: str, elements: Sequence[str]) -> str:
     return "name an element as the deck does: R1, or X2.R4 for R4 inside subcircuit instance X2"
 
 
+# Elements heatweave reads (lint, node counts) but cannot annotate (issues 15, 17).
+_NOT_ANNOTATABLE = {
+    "A": (
+        "is an XSPICE code-model element: its ports (digital, vector, controlling) carry no "
+        "terminal currents heatweave can sense, so it cannot be annotated",
+        "annotate the analog element it drives (a resistor, a switch), or a subcircuit "
+        "instance around it",
+    ),
+    "K": (
+        "couples two inductors: it has no terminals and dissipates nothing",
+        "annotate the inductors' winding resistances instead",
+    ),
+}
+
+
 def _refuse_kind(element: str, kind: str, spec: PartSpec) -> None:
     via = f' (matched by "{spec.pattern}")' if spec.is_glob else ""
+    if kind in _NOT_ANNOTATABLE:
+        why, hint = _NOT_ANNOTATABLE[kind]
+        raise AnnotationError(f'"{element}"{via} {why}', spec.location, hint)
     if kind == RESISTOR and spec.model is None:
         raise AnnotationError(
             f'resistor "{element}"{via} has no temperature model',

@@ -23,11 +23,14 @@ from heatweave.spice.conditionals import condition_text, exclusive
 from heatweave.spice.deck import Block, Card, ControlBlock, iter_cards
 from heatweave.spice.expressions import (
     BUILTIN_FUNCTIONS,
+    FUNC_AFTER_HINT,
+    FUNC_AFTER_QUESTION,
     RUNTIME_CALLS,
     RUNTIME_NAMES,
     ExprError,
     calls_used,
     evaluate,
+    func_after_question,
     names_used,
     unbalanced_paren,
 )
@@ -286,6 +289,10 @@ def _parameters(index: DeckIndex, cards: list[Card], dots: list[Card]) -> Iterat
                          f"unbalanced parenthesis in the expression {expr.text}",
                          "ngspice 39 stops on it (\"Closing ')' not found\", \"Syntax "
                          "error\"); balance the parentheses")  # fmt: skip
+            continue
+        bad_call = func_after_question(expr.text, funcs)
+        if bad_call is not None:
+            yield _error(card, expr.offset + bad_call, FUNC_AFTER_QUESTION, FUNC_AFTER_HINT)
             continue
         calls = set(calls_used(expr.text))
         used = names_used(expr.text)

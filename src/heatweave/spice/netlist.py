@@ -342,7 +342,11 @@ def top_params(index: DeckIndex) -> dict[str, float]:
     sources = [project.deck.source, *(inc.deck.source for inc in project.includes)]
     if all(s is not None and _PARAM_CARD.search(s.text) is None for s in sources):
         return values
-    _param_cards(project.deck.body, values, project)
+    funcs = top_funcs(index)
+    known = -1
+    while len(values) > known:  # ngspice hoists .param cards: a later one may be used above
+        known = len(values)
+        _param_cards(project.deck.body, values, project, funcs)
     return values
 
 
@@ -357,23 +361,29 @@ def top_funcs(index: DeckIndex) -> dict[str, Func]:
     return deckparams.values(cards)[1]
 
 
-def scope_params(top: Mapping[str, float], found: Resolved) -> dict[str, float]:
+def scope_params(
+    top: Mapping[str, float], found: Resolved, funcs: Mapping[str, Func] | None = None
+) -> dict[str, float]:
     """The numeric parameters an element inside subcircuit instances sees: the top-level
     ones, then at each level down the definition's ``params:`` defaults, the instance's
     own ``key=value`` arguments (evaluated where the instance stands) and the definition's
-    ``.param`` cards, inner names hiding outer ones (manual 2.9.3)."""
+    ``.param`` cards, inner names hiding outer ones (manual 2.9.3); *funcs* are the
+    ``.func`` definitions they may call."""
     values = dict(top)
     for instance, definition in zip(found.instances, found.definitions, strict=True):
         caller = values
         values = dict(caller)
-        _assign(_pairs(definition.header.fields()[2:]), values, values)
-        _assign(_pairs(x_card_parts(instance)[2]), caller, values)
-        _param_cards(definition.body, values)
+        _assign(_pairs(definition.header.fields()[2:]), values, values, funcs)
+        _assign(_pairs(x_card_parts(instance)[2]), caller, values, funcs)
+        _param_cards(definition.body, values, funcs=funcs)
     return values
 
 
 def _param_cards(
-    body: tuple[Node, ...], values: dict[str, float], project: Project | None = None
+    body: tuple[Node, ...],
+    values: dict[str, float],
+    project: Project | None = None,
+    funcs: Mapping[str, Func] | None = None,
 ) -> None:
     """Evaluate the ``.param`` cards of *body* into *values*, in order; with *project*,
     those of the files its include cards bring in too, in their place."""
@@ -381,11 +391,11 @@ def _param_cards(
         if not isinstance(card, Card):
             continue
         if card.name == ".param":
-            _assign(_pairs(card.fields()[1:]), values, values)
+            _assign(_pairs(card.fields()[1:]), values, values, funcs)
         elif project is not None and project.includes and card.is_dot:
             included = project.include_for(card)
             if included is not None:
-                _param_cards(included.body, values, project)
+                _param_cards(included.body, values, project, funcs)
 
 
 def _pairs(fields: list[str]) -> list[tuple[str, str]]:
@@ -402,9 +412,12 @@ def _pairs(fields: list[str]) -> list[tuple[str, str]]:
 
 
 def _assign(
-    pairs: list[tuple[str, str]], scope: Mapping[str, float], into: dict[str, float]
+    pairs: list[tuple[str, str]],
+    scope: Mapping[str, float],
+    into: dict[str, float],
+    funcs: Mapping[str, Func] | None = None,
 ) -> None:
     """Each pair's value evaluated in *scope* (numeric ones only) into *into*."""
     for key, text in pairs:
         with contextlib.suppress(EmitError):
-            into[key.lower()] = evaluate(text, scope)
+            into[key.lower()] = evaluate(text, scope, funcs=funcs)

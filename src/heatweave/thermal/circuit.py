@@ -188,7 +188,7 @@ def build_circuit(
             if found.instances:  # inside subcircuits: their parameters count too
                 chain = tuple(map(id, found.instances))
                 if chain not in scoped:
-                    scoped[chain] = scope_params(params, found)
+                    scoped[chain] = scope_params(params, found, funcs)
                 seen = scoped[chain]
             value = resistor_value(card, seen, simple, funcs)
             if value.notes:
