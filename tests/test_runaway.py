@@ -20,8 +20,8 @@ from scipy.optimize import brentq, fsolve
 from heatweave.annotation import load
 from heatweave.errors import EXIT_THERMAL_RUNAWAY, ThermalRunawayError
 from heatweave.run import runner
+from heatweave.run.diagnosis import RunawayError
 from heatweave.run.runaway import (
-    RunawayError,
     driven_text,
     driving_point,
     first_jump,

@@ -22,8 +22,8 @@ from scipy.optimize import brentq
 from heatweave.cli import main
 from heatweave.errors import EXIT_THERMAL_RUNAWAY, ThermalRunawayError
 from heatweave.run import runner
-from heatweave.run.runaway import RunawayError
-from heatweave.run.verify import SCAN_STEP, fell_back
+from heatweave.run.diagnosis import RunawayError
+from heatweave.run.verify import SCAN_STEP, fell_back, solver_tolerances
 
 BACKENDS = ["shared", "batch"]
 
@@ -238,3 +238,28 @@ def test_cosim_runaway_exits_7(tmp_path: Path) -> None:
     result = CliRunner().invoke(main, ["run", deck_path, "-a", note, "--method", "cosim", "-q"])
     assert result.exit_code == EXIT_THERMAL_RUNAWAY, result.output
     assert "loop gain" in result.output
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        ("t\nR1 a 0 1\n.end\n", (1e-3, 0.0)),  # ngspice's defaults (manual 11.1.2)
+        ("t\n.options reltol=1e-2\n.end\n", (1e-2, 0.0)),
+        ("t\n.OPTION vntol=1m RELTOL=1e-4\n.end\n", (1e-3, 1e-3 - 1e-6)),
+    ],
+)
+def test_the_balance_follows_the_decks_solver_tolerances(
+    text: str, expected: tuple[float, float]
+) -> None:
+    # A deck that loosens reltol gets a looser balance, never a tighter one than ngspice's.
+    reltol, extra = solver_tolerances(text)
+    assert (reltol, extra) == pytest.approx(expected)
+
+
+def test_a_transient_through_a_non_positive_resistance_is_refused(tmp_path: Path) -> None:
+    # Negative tc1 across a stiff source far above Vcrit, as a transient from cold: the
+    # resistance heads through zero; no number of that run is the circuit's.
+    deck = NEG_DECK.format(v=3 * V_CRIT).replace(".op", ".tran 0.01 20")
+    deck_path, note = write(tmp_path, deck, NEG_NOTE)
+    result = CliRunner().invoke(main, ["run", deck_path, "-a", note, "--method", "full", "-q"])
+    assert result.exit_code == EXIT_THERMAL_RUNAWAY, result.output

@@ -286,4 +286,7 @@ def implausible(results: RunResults) -> bool:
             return True
         if part.resistance is not None and not part.resistance > 0:
             return True
+        series = part.resistance_series
+        if series is not None and not bool(np.all(series > 0)):
+            return True
     return False

@@ -50,9 +50,9 @@ from typing import TYPE_CHECKING
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.errors import Location, SimulatorError, ThermalRunawayError
-from heatweave.quantities import parse_number
-from heatweave.spice.deck import Card
+from heatweave.errors import SimulatorError, ThermalRunawayError
+from heatweave.run.diagnosis import HINT, Diagnosis, RunawayError
+from heatweave.run.sources import single_source
 from heatweave.thermal.balance import check_state, conductances, thermal_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
 
@@ -76,74 +76,6 @@ FD_STEP = 0.1  # K
 TIGHT = ".options reltol=1e-6 vntol=1e-9 abstol=1e-15"
 _POWER_LINE = re.compile(r"^(Bhw_p_\S+\s+0\s+\S+\s+I\s*=\s*)(.+)$", re.IGNORECASE | re.MULTILINE)
 _END_LINE = re.compile(r"^\.end\s*$", re.IGNORECASE | re.MULTILINE)
-LINEAR_LETTERS = frozenset("RCLKVI")
-# Controlled sources with a plain gain: E/G name n+ n- nc+ nc- gain, F/H name n+ n- vname gain.
-CONTROLLED_FIELDS = {"E": 6, "G": 6, "F": 5, "H": 5}
-
-HINT = (
-    "lower the drive, give the part a lower thermal resistance (more copper, a heat sink), "
-    "or add series resistance so its dissipation falls as it heats"
-)
-
-
-@dataclass(frozen=True, slots=True)
-class Diagnosis:
-    """What the continuation found at the last steady state before the branch vanished."""
-
-    part: str
-    loop_gain: float  # the named part's own lambda * Rth * dP/dT
-    circuit_gain: float  # largest eigenvalue of the loop matrix
-    drive: float  # last drive (share of full dissipation) with a steady state
-    temperature: float  # the named part's temperature there, degC
-    source: tuple[str, float, float] | None = None  # (name, critical value, deck value)
-    # When the branch ended at the named part's model range: that range in words.
-    model_range: str | None = None
-
-    def sentence(self) -> str:
-        """The diagnosis in words."""
-        if self.model_range is not None:
-            return self._range_sentence(self.model_range)
-        text = (
-            f"loop gain Rth*dP/dT reached {self.loop_gain:.3g} at {100 * self.drive:.3g} % of "
-            f"the full dissipation ({self.part} at {self.temperature:.4g} degC) and the "
-            "solution vanished beyond it"
-        )
-        if abs(self.circuit_gain - self.loop_gain) > 0.02:
-            text += f" (loop gain of the whole circuit {self.circuit_gain:.3g})"
-        return text + self._source_clause()
-
-    def _range_sentence(self, model_range: str) -> str:
-        return (
-            f"no steady state inside its {model_range}; at full dissipation "
-            f"its loop gain Rth*dP/dT is {self.loop_gain:.3g} at {self.temperature:.4g} degC, "
-            "where that range ends, so each kelvin of warming still brings more than a "
-            f"kelvin more; its steady state reaches {self.temperature:.4g} degC at "
-            f"{100 * self.drive:.3g} % of the full dissipation"
-        ) + self._source_clause()
-
-    def _source_clause(self) -> str:
-        if self.source is None:
-            return ""
-        name, critical, value = self.source
-        unit = "A" if name[:1].upper() == "I" else "V"
-        return (
-            f"; with {name} as the only source this is {name} = {critical:.4g} {unit}"
-            f" (the deck has {value:.4g} {unit})"
-        )
-
-
-class RunawayError(ThermalRunawayError):
-    """A thermal runaway, with the numbers behind the message."""
-
-    def __init__(
-        self,
-        message: str,
-        hint: str,
-        diagnosis: Diagnosis | None,
-        location: Location | None = None,
-    ) -> None:
-        super().__init__(message, location, hint)
-        self.diagnosis = diagnosis
 
 
 def driven_text(text: str) -> str:
@@ -450,53 +382,6 @@ def diagnose(cont: Continuation, index: DeckIndex, end: BranchEnd) -> Diagnosis 
         scaled = (source[0], source[1] * math.sqrt(end.drive), source[1])
     return Diagnosis(parts[top].path, float(own[top]), circuit_gain, end.drive, temperature,
                      scaled, model_range)  # fmt: skip
-
-
-def single_source(index: DeckIndex) -> tuple[str, float] | None:
-    """The deck's only independent source and its DC value, when every element is linear
-    (R, C, L, K, V, I, and E, F, G, H with a plain gain): then dissipation scales with the
-    square of that source."""
-    sources = []
-    for path in index.element_paths():
-        resolved = index.resolve(path)
-        if resolved is None:
-            return None
-        letter = resolved.card.head[:1].upper()
-        if letter not in LINEAR_LETTERS and not linear_controlled(resolved.card):
-            return None
-        if resolved.card.head[:1].upper() in "VI":
-            sources.append(resolved.card)
-    if len(sources) != 1:
-        return None
-    fields = sources[0].fields()[3:]
-    if fields and fields[0].lower() == "dc":
-        fields = fields[1:]
-    value = source_value(index, fields[0]) if fields else None
-    return None if value is None else (sources[0].head, value)
-
-
-def source_value(index: DeckIndex, text: str) -> float | None:
-    """A source's written value: a number, or ``{name}`` of a top-level ``.param`` that
-    assigns a plain number (the last such card wins, as in ngspice)."""
-    value = parse_number(text)
-    if value is not None or not (text.startswith("{") and text.endswith("}")):
-        return value
-    name = text[1:-1].strip().lower()
-    for node in index.project.deck.body:
-        if isinstance(node, Card) and node.name == ".param":
-            fields = node.fields()
-            for i in range(1, len(fields) - 2):
-                if fields[i].lower() == name and fields[i + 1] == "=":
-                    value = parse_number(fields[i + 2])
-    return value
-
-
-def linear_controlled(card: Card) -> bool:
-    """True for a controlled source written with a plain numeric gain (no POLY, VALUE,
-    TABLE or parameter expression)."""
-    fields = card.fields()
-    count = CONTROLLED_FIELDS.get(card.head[:1].upper())
-    return count is not None and len(fields) == count and parse_number(fields[-1]) is not None
 
 
 def growth(results: RunResults) -> str | None:

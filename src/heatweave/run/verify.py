@@ -33,17 +33,11 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from heatweave.errors import Finding, SimulatorError, ThermalRunawayError
+from heatweave.quantities import parse_number
+from heatweave.run.diagnosis import HINT, RunawayError
 from heatweave.run.results import RunResults, extract
-from heatweave.run.runaway import (
-    HINT,
-    TIGHT,
-    Continuation,
-    RunawayError,
-    add_cards,
-    diagnose,
-    follow,
-)
-from heatweave.thermal.balance import Verdict, check_state, thermal_nodes
+from heatweave.run.runaway import TIGHT, Continuation, add_cards, diagnose, follow
+from heatweave.thermal.balance import ABSTOL_T, RELTOL, Verdict, check_state, thermal_nodes
 from heatweave.thermal.circuit import PartPlan, ThermalCircuit
 
 if TYPE_CHECKING:
@@ -53,6 +47,8 @@ if TYPE_CHECKING:
     from heatweave.simulators import SimResult
 
 _FALLBACK = re.compile(r"transient op started", re.IGNORECASE)
+_OPTIONS = re.compile(r"^[ \t]*\.options?\b(.*)$", re.IGNORECASE | re.MULTILINE)
+_SETTING = re.compile(r"\b(reltol|vntol)\s*=\s*(\S+)", re.IGNORECASE)
 SCAN_STEP = 0.5  # K between held temperatures
 SCAN_TOP = 1000.0  # degC: heatweave.run.runner.IMPLAUSIBLE_TEMPERATURE
 SWITCHING = frozenset({"ptc"})
@@ -77,8 +73,25 @@ def steady_index(results: RunResults, circuit: ThermalCircuit) -> int | None:
     return None
 
 
-def verdict_of(results: RunResults, circuit: ThermalCircuit, at: int) -> Verdict:
-    """:func:`check_state` on point *at* of *results* (every path verifies through it)."""
+def solver_tolerances(text: str) -> tuple[float, float]:
+    """``(reltol, extra)`` for :func:`check_state`: the deck's ``.options reltol`` where it is
+    looser than ngspice's default, and how far its ``vntol`` (V = K) exceeds the default."""
+    reltol, vntol = RELTOL, ABSTOL_T
+    for line in _OPTIONS.findall(text):
+        for key, value in _SETTING.findall(line):
+            number = parse_number(value)
+            if number is None or not number > 0:
+                continue
+            if key.lower() == "reltol":
+                reltol = max(reltol, number)
+            else:
+                vntol = max(vntol, number)
+    return reltol, vntol - ABSTOL_T
+
+
+def verdict_of(results: RunResults, circuit: ThermalCircuit, at: int, text: str = "") -> Verdict:
+    """:func:`check_state` on point *at* of *results* (every path verifies through it), to
+    the tolerances of the deck *text* ran with."""
     by_label = {p.path: p for p in results.parts}
 
     def pick(final: float, series: FloatArray | None) -> float:
@@ -89,7 +102,25 @@ def verdict_of(results: RunResults, circuit: ThermalCircuit, at: int) -> Verdict
     temps += [pick(results.nodes[n.label], results.node_series.get(n.label)) for n in circuit.nodes]
     powers = [pick(by_label[p.path].power, by_label[p.path].power_series) for p in circuit.parts]
     ambient = pick(results.ambient, results.ambient_series)
-    return check_state(circuit, temps, powers, ambient)
+    reltol, extra = solver_tolerances(text)
+    return check_state(circuit, temps, powers, ambient, accuracy=extra, reltol=reltol)
+
+
+def unphysical_series(results: RunResults) -> str | None:
+    """Where a transient passes through a resistance at or below zero, in words."""
+    for part in results.parts:
+        series = part.resistance_series
+        if series is None or bool(np.all(series > 0)):
+            continue
+        k = int(np.argmin(series > 0))
+        when = f" at t = {float(results.time[k]):.4g} s" if results.time is not None else ""
+        hot = part.temperature_series
+        where = f" ({float(hot[k]):.4g} degC)" if hot is not None else ""
+        return (
+            f"{part.path}'s resistance reaches {float(series[k]):.4g} ohm{when}{where}: its "
+            f"{part.model} model has no physical value there"
+        )
+    return None
 
 
 @dataclass(frozen=True, slots=True)
@@ -108,10 +139,16 @@ def verify_run(
     docstring); raises :class:`ThermalRunawayError` when there is none."""
     circuit = prepared.emitted.circuit
     assert circuit is not None
+    negative = unphysical_series(results)
+    if negative is not None:
+        raise NoSteadyStateError(
+            f"the simulation is not the circuit's: {negative}",
+            hint="lower the drive or check the temperature coefficients and tref",
+        )
     at = steady_index(results, circuit)
     if at is None or not circuit.parts:
         return Verified(sim, results, ())
-    verdict = verdict_of(results, circuit, at)
+    verdict = verdict_of(results, circuit, at, prepared.text)
     fallback = fell_back(sim.log)
     if verdict.ok and not fallback:
         notes, lowest = multiple(options, prepared, results)
@@ -179,7 +216,7 @@ def resolve(
     sim = Continuation(prepared, options).simulate(text)
     results = extract(sim, circuit, inputs.index)
     at = steady_index(results, circuit)
-    verdict = verdict_of(results, circuit, at if at is not None else -1)
+    verdict = verdict_of(results, circuit, at if at is not None else -1, prepared.text)
     if not verdict.ok or fell_back(sim.log):
         raise NoSteadyStateError(
             f"no verified steady state: {why}; the state {how} does not hold either "

@@ -102,12 +102,14 @@ def check_state(
     ambient: float,
     *,
     accuracy: float = 0.0,
+    reltol: float = RELTOL,
 ) -> Verdict:
     """Hold one steady state to the heat balance and to physics (module docstring).
 
     *temps* are in :func:`thermal_nodes` order (degC), *powers* per part (W), *ambient* the
     sink's temperature (degC); *accuracy* (K) widens every temperature's uncertainty when the
-    state comes from an iteration stopped at that tolerance (``settle``'s ``--tol``).
+    state comes from an iteration stopped at that tolerance (``settle``'s ``--tol``) or a
+    deck that loosens ngspice's ``vntol``; *reltol* is the deck's ``reltol`` when looser.
     """
     labels = tuple(p.path for p in circuit.parts) + tuple(n.label for n in circuit.nodes)
     t = np.asarray(temps, dtype=float)
@@ -125,7 +127,7 @@ def check_state(
     g = conductances(circuit)
     theta = t - ambient
     residual = g @ theta - injected
-    eps = RELTOL * np.abs(t) + ABSTOL_T + accuracy
+    eps = reltol * np.abs(t) + ABSTOL_T + accuracy
     slope = np.zeros(len(labels))
     groups: dict[TempModel, list[int]] = {}  # parts with equal models, evaluated together
     for i, part in enumerate(circuit.parts):
@@ -146,7 +148,7 @@ def check_state(
             )
         safe = np.where(ohms > 0, ohms, np.inf)
         slope[members] = np.abs(p_parts[members] * np.asarray(model.slope(at))) / safe
-    tolerance = abs(g) @ eps + slope * eps + 2 * RELTOL * np.abs(injected) + ABSTOL_P
+    tolerance = abs(g) @ eps + slope * eps + 2 * reltol * np.abs(injected) + ABSTOL_P
     try:
         error = np.asarray(splu(csc_matrix(g)).solve(residual)) if len(labels) else residual
     except RuntimeError:  # singular: some node has no path to ambient
