@@ -275,3 +275,18 @@ def test_annotating_a_and_k_cards_is_refused(tmp_path: Path, part: str, words: s
     errors = [f for f in lint_file(str(deck)) if f.severity == "error"]
     assert [words in f.message for f in errors] == [True], errors
     assert errors[0].location is not None and errors[0].location.line == 2
+
+
+def test_annotating_an_element_of_an_undecided_branch_is_refused(tmp_path: Path) -> None:
+    # ngspice 39.3 decides a condition on a subcircuit parameter per instance (this deck
+    # draws 5 mA through X1's 1k branch); heatweave cannot, so it refuses to guess.
+    deck = tmp_path / "cond.cir"
+    deck.write_text(
+        "per instance\nV1 in 0 5\nX1 in 0 stage gain=3\n.subckt stage hi lo params: gain=1\n"
+        ".if (gain == 3)\nR1 hi lo 1k\n.else\nR1 hi lo 2k\n.endif\n.ends\n.op\n.end\n"
+    )
+    (tmp_path / "cond.thermal.toml").write_text(
+        'schema = 1\n[part."X1.R1"]\nmodel = "linear"\ntc1 = 0\nrth = 1.0\n'
+    )
+    errors = [f for f in lint_file(str(deck)) if f.severity == "error"]
+    assert [("branch of an .if block" in f.message) for f in errors] == [True], errors

@@ -177,6 +177,14 @@ def build_circuit(
         if found is None:
             raise AnnotationError(f"{item.element} is not in the deck", spec.location)
         card = found.card
+        if index.places and id(card) in index.places:
+            raise AnnotationError(
+                f"{item.element} stands in a branch of an .if block whose condition "
+                "heatweave cannot compute, so which of its cards ngspice keeps is unknown",
+                spec.location,
+                "give the condition's parameters values with .param at the top level "
+                "(a condition on a subcircuit's own parameters is decided per instance)",
+            )
         simple = simple_resistor(card) if item.kind == "R" else None
         if simple is None:
             syntax_of(card)  # a malformed card is reported where it stands
