@@ -26,6 +26,7 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
+from heatweave.cli import main
 from heatweave.cli.emit_cmd import emit
 from heatweave.cli.lint_cmd import lint
 from heatweave.cli.run_cmd import run
@@ -150,3 +151,13 @@ def test_every_deck_is_in_a_table() -> None:
     names = {d.stem for d in (HERE / "reject").glob("*.cir")}
     assert names == set(REJECT)
     assert len(ACCEPT) >= 30
+
+
+@pytest.mark.parametrize("command", ["check", "settle", "sweep"])
+def test_every_simulating_command_refuses_before_ngspice(copied: Path, command: str) -> None:
+    deck = copied / "reject" / "r15_duplicate.cir"
+    note = copied / "reject" / "empty.toml"
+    note.write_text("schema = 1\n")
+    refused = CliRunner().invoke(main, [command, str(deck), "-a", str(note)])
+    assert refused.exit_code == 2, refused.output
+    assert "duplicate element name Rsense" in refused.output
