@@ -58,6 +58,7 @@ REJECT = {
     "r21_param_title": ("the title line starts with .param", "title line is missing"),
     "r22_control_eof_models": ("has no .endc, and D1 uses a model", "valid modelname"),
     "r23_func_after_question": ("a .func call right after '?'", "Expression err"),
+    "r24_three_inductor_k": ("a K card couples exactly two inductors", "unknown parameter (lt)"),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

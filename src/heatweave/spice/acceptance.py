@@ -16,7 +16,7 @@ import re
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 
-from heatweave.errors import DeckStructureError, Finding
+from heatweave.errors import DeckStructureError, DeckSyntaxError, Finding
 from heatweave.spice import deckparams
 from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.conditionals import condition_text, exclusive
@@ -34,7 +34,7 @@ from heatweave.spice.expressions import (
     names_used,
     unbalanced_paren,
 )
-from heatweave.spice.grammar import CardSyntaxError, parse_card
+from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Scope
 from heatweave.spice.syntax import (
     Call,
@@ -81,7 +81,18 @@ def rejections(index: DeckIndex) -> list[Finding]:
     found.extend(_parameters(index, cards, dots))
     found.extend(_recursion(index))
     found.extend(duplicates(index))
+    found.extend(_couplings(cards))
     return found
+
+
+def _couplings(cards: list[Card]) -> Iterator[Finding]:
+    """K cards through the grammar (few, and ngspice stops on a third inductor name)."""
+    for card in cards:
+        if card.letter == "K":
+            try:
+                syntax_of(card)
+            except DeckSyntaxError as err:
+                yield Finding("error", err.message, err.location, err.hint)
 
 
 def refuse_rejected(index: DeckIndex) -> None:

@@ -229,11 +229,18 @@ def _check_element(
         need = "subcircuit name"
     if letter in "fh" and positional and isinstance(positional[0], Call):
         return  # POLY(n) with its controlling sources
-    if letter == "k" and len(positional) < 3:
-        at = positional[-1].end if positional else end
-        raise BuildError(
-            at, "expected two inductor names and a coupling value", f"write {FORMS['k']}"
-        )
+    if letter == "k":  # K L1 L2 value, or K L1 L2 k=value (both read by ngspice 39.3)
+        wanted = 2 if any(p.key.key == "k" for p in params) else 3
+        if len(positional) < wanted:
+            at = positional[-1].end if positional else end
+            raise BuildError(
+                at, "expected two inductor names and a coupling value", f"write {FORMS['k']}"
+            )
+        if len(positional) > wanted:  # ngspice 39.3: "unknown parameter (l3)"
+            raise BuildError(
+                positional[2].offset, "a K card couples exactly two inductors",
+                f"write {FORMS['k']}; couple a third inductor with another K card",
+            )  # fmt: skip
     if need is not None and not any(is_word(f) for f in positional):
         raise BuildError(end, f"expected a {need}", f"write {FORMS[letter]}")
 

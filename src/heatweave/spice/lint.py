@@ -152,7 +152,8 @@ def lint_project(project: Project, index: DeckIndex | None = None) -> list[Findi
     globals_ = global_names(index)
     for scope, block in _scopes(index.top):
         findings.extend(_connections(index, scope, block, globals_))
-    findings.extend(rejections(index))
+    seen = {(f.location, f.message) for f in findings}  # the grammar may have said it
+    findings.extend(f for f in rejections(index) if (f.location, f.message) not in seen)
     return sorted(findings, key=order)
 
 
