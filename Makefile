@@ -49,7 +49,7 @@ $(STAMP): pyproject.toml
 	  DEBIAN_FRONTEND=noninteractive $(SUDO) apt-get install -y -qq python3-venv && \
 	  $(PYTHON) -m venv $(VENV); }
 	$(BIN)/pip install -q --upgrade pip
-	$(BIN)/pip install -q -e '.[test]'
+	$(BIN)/pip install -q -e '.[test,dev,plot]'
 	@touch $(STAMP)
 
 clean:

@@ -7,8 +7,11 @@ scipy.optimize.brentq (a general-purpose reference solver), independently of ngs
 
 from __future__ import annotations
 
+import json
 import re
+import socket
 import xml.etree.ElementTree as ET
+from datetime import UTC, datetime
 from pathlib import Path
 
 import pytest
@@ -89,7 +92,8 @@ def value_of(output: str, subject: str, limit: str) -> float:
 # brentq steady state of the part on ambient (Rth 60 K/W).
 T_HOT = steady(RTH)
 V_HOT = v_out(T_HOT)
-DRIFT_PPM = abs(V_HOT / v_out(AMBIENT) - 1.0) * 1e6
+SIGNED_DRIFT_PPM = (V_HOT / v_out(AMBIENT) - 1.0) * 1e6
+DRIFT_PPM = abs(SIGNED_DRIFT_PPM)
 
 
 @pytest.mark.parametrize(
@@ -97,13 +101,14 @@ DRIFT_PPM = abs(V_HOT / v_out(AMBIENT) - 1.0) * 1e6
     [
         (f"tmax = {T_HOT + 1:.6f}", "RTOP", "tmax", T_HOT, True),
         (f"tmax = {T_HOT - 1:.6f}", "RTOP", "tmax", T_HOT, False),
+        # V(out) falls as the upper leg heats: the drift prints with its minus sign.
         (
             f'[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * 1.01:.6f}',
-            "V(out)", "max_drift_ppm", DRIFT_PPM, True,
+            "V(out)", "max_drift_ppm", SIGNED_DRIFT_PPM, True,
         ),
         (
             f'[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * 0.99:.6f}',
-            "V(out)", "max_drift_ppm", DRIFT_PPM, False,
+            "V(out)", "max_drift_ppm", SIGNED_DRIFT_PPM, False,
         ),
         (f'[limit."V(out)"]\nmin = {V_HOT - 0.01:.6f}', "V(out)", "min", V_HOT, True),
         (f'[limit."V(out)"]\nmax = {V_HOT - 0.01:.6f}', "V(out)", "max", V_HOT, False),
@@ -154,7 +159,7 @@ def test_transient_drift_is_worst_over_time(tmp_path: Path) -> None:
     text = base_annotation() + f'\n[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * 1.01:.6f}\n'
     code, output = run_check(tmp_path, text, "--tran", "10m", "12")
     assert code == 0, output
-    assert value_of(output, "V(out)", "max_drift_ppm") == pytest.approx(DRIFT_PPM, rel=1e-3)
+    assert value_of(output, "V(out)", "max_drift_ppm") == pytest.approx(SIGNED_DRIFT_PPM, rel=1e-3)
     assert "at t = " in output
 
 
@@ -211,7 +216,15 @@ def test_junit_report(tmp_path: Path) -> None:
     assert failure is not None and "max_drift_ppm" in failure.get("message", "")
     assert suite.get("tests") == root.get("tests") == "3"
     assert suite.get("failures") == root.get("failures") == "1"
-    assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d", suite.get("timestamp", ""))
+    # ISO 8601 with the UTC offset (a zone-less stamp is read as local time by CI servers)
+    stamp = datetime.fromisoformat(suite.get("timestamp", ""))
+    assert stamp.utcoffset() is not None
+    assert abs((datetime.now(UTC) - stamp).total_seconds()) < 600
+    assert suite.get("hostname") == socket.gethostname()
+    # each case carries its share of the one run that decided it; they add up to the run
+    times = [float(c.get("time", "nan")) for c in cases]
+    assert all(t > 0 for t in times)
+    assert sum(times) == pytest.approx(float(suite.get("time", "nan")), abs=0.002)
 
 
 def test_junit_on_stdout_is_the_xml_alone(tmp_path: Path) -> None:
@@ -314,3 +327,59 @@ def test_junit_report_when_the_simulation_fails(tmp_path: Path, stem: str, statu
     error = case.find("error")
     assert error is not None and error.get("message", "").startswith("error: ")
     assert error.get("message", "") in result.output
+
+
+def test_json_report_matches_the_lines(tmp_path: Path) -> None:
+    """``--json -``: the limits as data, numbers against brentq; the lines move to stderr."""
+    text = base_annotation() + f'\n[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * 0.5:.6f}\n'
+    path = tmp_path / "divider.thermal.toml"
+    path.write_text(text)
+    result = CliRunner().invoke(main, ["check", str(DECK), "-a", str(path), "--op", "--json", "-"])
+    assert result.exit_code == 1, result.output
+    data = json.loads(result.stdout)
+    assert (data["status"], data["exit_code"], data["error"]) == ("failed", 1, None)
+    assert (data["checked"], data["violated"]) == (3, 1)
+    by_name = {(x["subject"], x["limit"]): x for x in data["limits"]}
+    drift = by_name["V(out)", "max_drift_ppm"]
+    assert drift["value"] == pytest.approx(DRIFT_PPM, rel=2e-4)
+    assert drift["signed_value"] == pytest.approx(SIGNED_DRIFT_PPM, rel=2e-4)
+    assert drift["passed"] is False
+    assert by_name["RTOP", "tmax"]["value"] == pytest.approx(T_HOT, rel=2e-4)
+    assert "FAIL V(out) max_drift_ppm" in result.stderr
+    assert data["annotations"]["path"] == str(path)
+
+
+def test_json_report_when_the_simulation_fails(tmp_path: Path) -> None:
+    """Nothing checked: the report still replaces an older one, with the error's status."""
+    report = tmp_path / "check.json"
+    report.write_text('{\n  "heatweave_version": "0.1.0",\n  "status": "passed"\n}\n')
+    deck, annotation = FIXTURES / "noconv.cir", FIXTURES / "noconv.thermal.toml"
+    result = CliRunner().invoke(main, ["check", str(deck), "-a", str(annotation), "--json",
+                                       str(report)])  # fmt: skip
+    assert result.exit_code == 3
+    data = json.loads(report.read_text())
+    assert (data["status"], data["exit_code"], data["limits"]) == ("error", 3, [])
+    assert data["error"].startswith("error: ")
+
+
+@pytest.mark.parametrize(("factor", "code"), [(0.5, 1), (2.0, 0)])
+def test_quiet_prints_only_violations(tmp_path: Path, factor: float, code: int) -> None:
+    """``-q``: nothing on stdout; the violated limits (only) on stderr; status unchanged."""
+    text = base_annotation() + f'\n[limit."V(out)"]\nmax_drift_ppm = {DRIFT_PPM * factor:.6f}\n'
+    path = tmp_path / "divider.thermal.toml"
+    path.write_text(text)
+    result = CliRunner().invoke(main, ["check", str(DECK), "-a", str(path), "--op", "-q"])
+    assert result.exit_code == code
+    assert result.stdout == ""
+    lines = result.stderr.splitlines()
+    assert [x[:4] for x in lines] == (["FAIL"] if code else [])
+    assert "limits checked" not in result.stderr
+
+
+def test_signed_drift_line() -> None:
+    """A negative drift prints with its sign; the bound judges its magnitude."""
+    item = LimitResult("V(out)", "max_drift_ppm", 1200.0, 1000.0, "ppm", signed=-1200.0)
+    assert not item.passed
+    line = item.message()
+    assert "-1200 ppm, magnitude at most 1000 ppm, over by 200 ppm" in line
+    assert item.as_dict()["signed_value"] == -1200.0

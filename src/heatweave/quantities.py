@@ -55,6 +55,11 @@ def parse_number(text: str) -> float | None:
     return float(m.group("num")) * scale_of(m.group("suffix") or "")
 
 
+def counted(count: int, noun: str, plural: str | None = None) -> str:
+    """``1 window``, ``3 windows``: a count with its noun in the right number."""
+    return f"{count} {noun if count == 1 else plural or noun + 's'}"
+
+
 def format_number(value: float) -> str:
     """A compact, exact (``repr``-precise) SPICE number for emitted decks."""
     if value == 0:

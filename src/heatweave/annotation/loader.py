@@ -41,10 +41,35 @@ from heatweave.tomlspots import KeyPath, Locator, syntax_error
 TOP_TABLES = ("ambient", "node", "part", "path", "limit", "review")
 
 
+#: How an annotation file's name ends: ``amp.cir`` is annotated by ``amp.thermal.toml``.
+ANNOTATION_SUFFIX = ".thermal.toml"
+#: The deck file names heatweave looks for beside an annotation file (and the pre-commit
+#: hook matches): SPICE netlists as people write them for ngspice.  ``.net`` is left out:
+#: schematic editors write their own, non-SPICE netlist formats under that name.
+DECK_SUFFIXES = (".cir", ".sp", ".spi", ".spice", ".ckt")
+
+
 def default_path(deck: str | Path) -> Path:
     """``DECK.thermal.toml`` beside *deck* (``amp.cir`` -> ``amp.thermal.toml``)."""
     deck = Path(deck)
-    return deck.with_name(f"{deck.stem}.thermal.toml")
+    return deck.with_name(f"{deck.stem}{ANNOTATION_SUFFIX}")
+
+
+def is_annotation_file(path: str | Path) -> bool:
+    """True when *path* is named like an annotation file (``*.thermal.toml``)."""
+    return Path(path).name.lower().endswith(ANNOTATION_SUFFIX)
+
+
+def deck_beside(annotation: str | Path) -> Path | None:
+    """The deck *annotation* annotates: ``amp.cir`` (or another of :data:`DECK_SUFFIXES`)
+    beside ``amp.thermal.toml``; ``None`` when there is none."""
+    path = Path(annotation)
+    stem = path.name[: -len(ANNOTATION_SUFFIX)]
+    for suffix in DECK_SUFFIXES:
+        candidate = path.with_name(stem + suffix)
+        if candidate.is_file():
+            return candidate
+    return None
 
 
 def load(path: str | Path, deck_name: str | None = None) -> Annotation:

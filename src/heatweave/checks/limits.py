@@ -67,6 +67,9 @@ class LimitResult:
     unit: str
     upper: bool = True
     detail: str = ""
+    #: The value as read, where the limit judges its magnitude: a drift of -1200 ppm is
+    #: judged as 1200 ppm against ``max_drift_ppm`` but printed with its sign.
+    signed: float | None = None
 
     @property
     def margin(self) -> float:
@@ -85,20 +88,26 @@ class LimitResult:
         verdict = "ok  " if self.passed else "FAIL"
         room = "margin" if self.passed else ("over by" if self.upper else "under by")
         side = "at most" if self.upper else "at least"
+        value = _num(self.value)
+        if self.signed is not None:
+            value, side = f"{self.signed:+.5g}", f"magnitude {side}"
         at = f" at {where}" if where else ""
         text = (
-            f"{verdict} {self.subject} {self.limit}{at}: {_num(self.value)} {self.unit}, "
+            f"{verdict} {self.subject} {self.limit}{at}: {value} {self.unit}, "
             f"{side} {_num(self.bound)} {self.unit}, {room} {_num(abs(self.margin))} {self.unit}"
         )
         return f"{text} ({self.detail})" if self.detail else text
 
     def as_dict(self) -> dict[str, str | float | bool]:
-        """The result as plain data (JSON reports): ``subject``, ``limit``, ``value``,
+        """The result as plain data (JSON reports): ``subject``, ``limit``, ``value`` (what
+        the bound judges: a drift's magnitude), ``signed_value`` (the value with its sign),
         ``bound``, ``unit``, ``upper`` (a ceiling), ``margin``, ``passed``, ``detail``."""
+        signed = self.value if self.signed is None else self.signed
         return {
             "subject": self.subject, "limit": self.limit, "value": self.value,
-            "bound": self.bound, "unit": self.unit, "upper": self.upper,
-            "margin": self.margin, "passed": self.passed, "detail": self.detail,
+            "signed_value": signed, "bound": self.bound, "unit": self.unit,
+            "upper": self.upper, "margin": self.margin, "passed": self.passed,
+            "detail": self.detail,
         }  # fmt: skip
 
 
@@ -273,14 +282,16 @@ def _drift(
             spec.location,
             "limit it with min/max instead of max_drift_ppm",
         )
-    drift = np.where(usable, np.abs(hot / np.where(usable, base, 1.0) - 1.0) * 1e6, 0.0)
+    signed = np.where(usable, (hot / np.where(usable, base, 1.0) - 1.0) * 1e6, 0.0)
+    drift = np.abs(signed)
     worst = int(np.argmax(drift))
     detail = f"{_num(float(hot[worst]))} V heated vs {_num(float(base[worst]))} V unheated"
     if results.time is not None and baseline.time is not None:
         detail += " " + _when(results, worst)
     return LimitResult(
-        spec.signal, "max_drift_ppm", float(drift[worst]), spec.max_drift_ppm, "ppm", True, detail
-    )
+        spec.signal, "max_drift_ppm", float(drift[worst]), spec.max_drift_ppm, "ppm", True, detail,
+        signed=float(signed[worst]),
+    )  # fmt: skip
 
 
 def ambient_series(outcome: RunOutcome) -> FloatArray:

@@ -13,6 +13,7 @@ from typing import Any
 import click
 
 from heatweave import __version__
+from heatweave.cli.common import COLOUR_KEY, COLOUR_MODES
 
 #: The command line's own collector threshold (young generation, then the two older ones).
 #: Reading a large deck makes millions of small objects with no reference cycle among them;
@@ -53,12 +54,26 @@ class LazyGroup(click.Group):
 
 @click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="heatweave")
-def main() -> None:
+@click.option(
+    "--color",
+    "colour",
+    type=click.Choice(COLOUR_MODES),
+    default="auto",
+    show_default=True,
+    help="Colour in tables and messages: auto (on a terminal, unless NO_COLOR is set), "
+    "always, or never.",
+)
+@click.pass_context
+def main(ctx: click.Context, colour: str) -> None:
     """Self-heating for plain SPICE decks.
 
     Annotate which parts heat up and how, and heatweave writes an electrothermal deck that
     stock ngspice runs, simulates it, and reports temperatures, drift and rating margins.
     """
+    ctx.meta[COLOUR_KEY] = colour
+    if colour != "auto":
+        # click.echo strips styles on a pipe unless told; --color always keeps them there
+        ctx.color = colour == "always"
 
 
 def entry() -> None:

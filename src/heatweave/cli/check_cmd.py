@@ -10,6 +10,7 @@ from __future__ import annotations
 import sys
 import time
 from collections.abc import Sequence
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, TextIO
 
@@ -23,14 +24,14 @@ from heatweave.cli.common import (
     deck_options,
     guard_outputs,
     guarded,
-    is_terminal,
     may_replace_report,
     report_findings,
     simulation_options,
+    use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.errors import EXIT_CHECK_FAILED
-from heatweave.reports.junit import Case, Suite, render
+from heatweave.reports.junit import Case, Suite, render, shared_time
 from heatweave.spice.acceptance import refuse_rejected
 
 if TYPE_CHECKING:
@@ -45,6 +46,15 @@ if TYPE_CHECKING:
     metavar="FILE",
     help="Also write a JUnit XML report here (- is stdout).",
 )
+@click.option(
+    "--json",
+    "json_file",
+    metavar="FILE",
+    help="Also write the limits checked as JSON here (- is stdout).",
+)
+@click.option(
+    "-q", "--quiet", is_flag=True, help="Only the violated limits (on stderr); no summary."
+)
 @analysis_options
 @simulation_options
 @html_option
@@ -53,6 +63,8 @@ def check(
     deck: str,
     annotations: str | None,
     junit_file: str | None,
+    json_file: str | None,
+    quiet: bool,
     op: bool,
     tran: tuple[float, float] | None,
     ambient: float | None,
@@ -80,9 +92,9 @@ def check(
 
     check_html_path(html_file)
     chosen = annotation_for(deck, annotations)
-    outputs = {"--junit": junit_file, "--html": html_file}
+    outputs = {"--junit": junit_file, "--json": json_file, "--html": html_file}
     check_outputs(outputs, deck, chosen)
-    started = time.monotonic()
+    started, stamp = time.monotonic(), datetime.now(UTC)
     try:
         inputs = load_inputs(deck, chosen)
         guard_outputs(outputs, inputs)
@@ -111,9 +123,15 @@ def check(
             found = checks.evaluate(outcome, signals, baseline)
     except HeatweaveError as err:
         # A report is still written: the previous run's must not stand in for this one.
+        elapsed = time.monotonic() - started
         if junit_file is not None and may_replace_report(junit_file):
-            failed = junit_case(deck, "run", error=err.render())
-            write_junit(junit_file, deck, (failed,), time.monotonic() - started)
+            failed = junit_case(deck, "run", error=err.render(), seconds=elapsed)
+            write_junit(junit_file, deck, (failed,), elapsed, stamp)
+        if json_file is not None and may_replace_report(json_file):
+            from heatweave.files import write_atomic
+            from heatweave.reports import check_report
+
+            write_atomic(json_file, check_report.render_error(deck, chosen, err))
         raise
     if html_file is not None:
         from heatweave.reports import html_pages
@@ -126,29 +144,45 @@ def check(
             assert outcome is not None
             report = build_report(inputs, outcome)
             write_html(html_file, lambda: html_pages.run_page(report, inputs, found, "check"))
-    report_limits(deck, found, junit_file, time.monotonic() - started, method.line())
+    if json_file is not None:
+        from heatweave.files import write_atomic
+        from heatweave.reports import check_report
+
+        sha256 = inputs.annotation.sha256
+        write_atomic(json_file, check_report.render(deck, chosen, sha256, found))
+    report_limits(
+        deck, found, junit_file, time.monotonic() - started, method.line(),
+        to_stdout=json_file == "-", quiet=quiet, stamp=stamp,
+    )  # fmt: skip
 
 
 def report_limits(
     deck: str, found: Sequence[LimitResult], junit_file: str | None, elapsed: float,
-    method: str | None = None, stream: TextIO | None = None,
+    method: str | None = None, stream: TextIO | None = None, *, to_stdout: bool = False,
+    quiet: bool = False, stamp: datetime | None = None,
 ) -> None:  # fmt: skip
     """What ``check`` and ``settle --check`` print: the method line, one line per limit
-    and the summary (on *stream*, else stdout, or stderr when the JUnit report goes to
-    stdout), the JUnit report, and exit status 1 on a violation."""
+    and the summary (on *stream*, else stdout, or stderr when the JUnit report or another
+    report, *to_stdout*, goes to stdout; with *quiet* only the violated limits, on stderr),
+    the JUnit report (started at *stamp*), and exit status 1 on a violation."""
     from heatweave.checks.limits import summary
 
-    # With the JUnit report on stdout, the lines go to stderr so that stdout stays XML.
-    if stream is None:
-        stream = sys.stderr if junit_file == "-" else sys.stdout
-    if method is not None:
+    # With a report on stdout, the lines go to stderr so that stdout stays XML or JSON.
+    if quiet:
+        stream = sys.stderr
+    elif stream is None:
+        stream = sys.stderr if junit_file == "-" or to_stdout else sys.stdout
+    if method is not None and not quiet:
         click.echo(method, file=stream)
     for item in found:
+        if quiet and item.passed:
+            continue
         line = item.message()
-        if is_terminal(stream):
+        if use_colour(stream):
             line = click.style(line[:4], fg="green" if item.passed else "red") + line[4:]
         click.echo(line, file=stream)
-    click.echo(f"{deck}: {summary(found)}", file=stream)
+    if not quiet:
+        click.echo(f"{deck}: {summary(found)}", file=stream)
     if junit_file is not None:
         cases = tuple(
             junit_case(
@@ -156,18 +190,30 @@ def report_limits(
             )
             for item in found
         )
-        write_junit(junit_file, deck, cases, elapsed)
+        # One run decided every limit: each case carries its share of the run's time.
+        write_junit(junit_file, deck, shared_time(cases, elapsed), elapsed, stamp)
     if any(not item.passed for item in found):
         sys.exit(EXIT_CHECK_FAILED)
 
 
-def junit_case(deck: str, name: str, failure: str | None = None, error: str | None = None) -> Case:
+def junit_case(
+    deck: str,
+    name: str,
+    failure: str | None = None,
+    error: str | None = None,
+    seconds: float = 0.0,
+) -> Case:
     """One JUnit test case of *deck*'s suite."""
-    return Case(name, f"heatweave.{Path(deck).stem}", failure=failure, error=error)
+    return Case(name, f"heatweave.{Path(deck).stem}", seconds, failure=failure, error=error)
 
 
-def write_junit(path: str, deck: str, cases: tuple[Case, ...], elapsed: float) -> None:
-    """The JUnit report of one deck's check (``-``: stdout)."""
+def write_junit(
+    path: str, deck: str, cases: tuple[Case, ...], elapsed: float,
+    stamp: datetime | None = None,
+) -> None:  # fmt: skip
+    """The JUnit report of one deck's check (``-``: stdout), the suite started at *stamp*
+    (default: now)."""
     from heatweave.files import write_atomic
 
-    write_atomic(path, render([Suite(name=deck, cases=cases, time=elapsed)]))
+    suite = Suite(name=deck, cases=cases, time=elapsed, timestamp=stamp)
+    write_atomic(path, render([suite]))

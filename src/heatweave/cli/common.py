@@ -1,8 +1,9 @@
-"""What every command shares: error reporting, exit codes, terminal detection."""
+"""What every command shares: error reporting, exit codes, terminal detection, colour."""
 
 from __future__ import annotations
 
 import functools
+import os
 import sys
 from collections.abc import Callable
 from typing import TYPE_CHECKING, ParamSpec, TypeVar
@@ -47,9 +48,32 @@ def is_terminal(stream: object = None) -> bool:
     return bool(isatty and isatty())
 
 
+#: ``--color`` choices: decide by the stream, or force colour on or off.
+COLOUR_MODES = ("auto", "always", "never")
+#: Where the group keeps ``--color`` for its commands (the root context's ``meta``).
+COLOUR_KEY = "heatweave.colour"
+
+
+def colour_mode() -> str:
+    """The ``--color`` given to ``heatweave`` (``auto`` outside a command line)."""
+    ctx = click.get_current_context(silent=True)
+    mode = ctx.find_root().meta.get(COLOUR_KEY, "auto") if ctx is not None else "auto"
+    return str(mode)
+
+
+def use_colour(stream: object = None) -> bool:
+    """Colour for *stream* (default stderr)?  ``--color always``/``never`` decide; under
+    ``auto`` only a terminal gets colour, and never while ``NO_COLOR`` is set to a non-empty
+    value (the convention of no-color.org: a command-line option overrides it)."""
+    mode = colour_mode()
+    if mode != "auto":
+        return mode == "always"
+    return not os.environ.get("NO_COLOR") and is_terminal(stream)
+
+
 def style_severity(text: str, severity: str) -> str:
-    """Colour the severity word on a terminal only."""
-    if not is_terminal():
+    """Colour the severity word when stderr takes colour (:func:`use_colour`)."""
+    if not use_colour():
         return text
     colour = {"error": "red", "warning": "yellow", "note": "cyan"}.get(severity)
     if colour is None:
@@ -213,6 +237,19 @@ def report_options(csv_help: str, *, plot: bool = True) -> Callable[[F], F]:
     return decorate
 
 
+def require_plotting(option: str = "--plot") -> None:
+    """Refuse *option* before anything runs when matplotlib (the ``plot`` extra) is missing."""
+    from heatweave.errors import UsageError
+
+    try:
+        import matplotlib  # noqa: F401
+    except ImportError:
+        raise UsageError(
+            f"{option} draws with matplotlib, which is not installed",
+            hint="install the plot extra: pip install 'heatweave[plot]'",
+        ) from None
+
+
 def run_control_options(timeout_help: str) -> Callable[[F], F]:
     """``--timeout SECONDS`` (with *timeout_help*) and ``-q/--quiet``."""
 
@@ -258,9 +295,9 @@ def guard_outputs(outputs: dict[str, str | None], inputs: Inputs) -> None:
 
 
 def may_replace_report(path: str) -> bool:
-    """True when *path* is stdout, absent, or an earlier XML report.  A report written on
-    the way out of a failure (when the files a deck includes may not all be known yet)
-    goes only to such a path, never over a file that could be an input."""
+    """True when *path* is stdout, absent, or an earlier XML or heatweave JSON report.  A
+    report written on the way out of a failure (when the files a deck includes may not all
+    be known yet) goes only to such a path, never over a file that could be an input."""
     from pathlib import Path
 
     if path == "-" or not Path(path).exists():
@@ -270,7 +307,8 @@ def may_replace_report(path: str) -> bool:
             start = handle.read(64).lstrip()
     except OSError:
         return False
-    return start.startswith((b"<?xml", b"<testsuites"))
+    json_report = start.startswith(b"{") and b'"heatweave_version"' in start
+    return json_report or start.startswith((b"<?xml", b"<testsuites"))
 
 
 def input_files(

@@ -7,7 +7,7 @@ import sys
 import click
 
 from heatweave.cli.common import guarded, style_severity
-from heatweave.errors import EXIT_CHECK_FAILED, UsageError
+from heatweave.errors import EXIT_CHECK_FAILED, Finding, HeatweaveError, UsageError
 
 
 @click.command()
@@ -31,13 +31,14 @@ def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool, str
     """Check DECKS: every card against the grammar, structure, and the annotation file.
 
     Each DECK is checked with its own annotation file, DECK.thermal.toml beside it, when
-    there is one; -a names another one and then takes exactly one DECK.  Prints one finding
-    a line as FILE:LINE:COL: error|warning: message, and exits with status 1 when there is
-    any error (with --strict, any warning too; 2 for unusable options).  Errors are what
-    ngspice 39 refuses or what would make heatweave's output wrong; a deck ngspice runs
-    gives warnings at most.
+    there is one; -a names another one and then takes exactly one DECK.  An annotation
+    file given as a DECK (NAME.thermal.toml, as a pre-commit hook passes it) checks the
+    deck beside it (NAME.cir, .sp, .spi, .spice or .ckt), or the file alone when there is
+    none.  Prints one finding a line as FILE:LINE:COL: error|warning: message, and exits
+    with status 1 when there is any error (with --strict, any warning too; 2 for unusable
+    options).  Errors are what ngspice 39 refuses or what would make heatweave's output
+    wrong; a deck ngspice runs gives warnings at most.
     """
-    from heatweave.checks.lint import lint_file
 
     if annotations is not None and len(decks) > 1:
         raise UsageError(
@@ -47,8 +48,8 @@ def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool, str
             "-a so that each deck is checked with its own DECK.thermal.toml",
         )
     errors = 0
-    for deck in decks:
-        for finding in lint_file(deck, annotations):
+    for deck in _decks(decks):
+        for finding in _findings(deck, annotations):
             if finding.severity == "error" or strict:
                 errors += 1
             if finding.severity != "error" and no_warnings:
@@ -56,3 +57,29 @@ def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool, str
             click.echo(style_severity(finding.render(), finding.severity))
     if errors:
         sys.exit(EXIT_CHECK_FAILED)
+
+
+def _decks(files: tuple[str, ...]) -> list[str]:
+    """*files* with each annotation file replaced by the deck beside it (when there is
+    one), each deck once, in the order given."""
+    from heatweave.annotation.loader import deck_beside, is_annotation_file
+
+    found: dict[str, None] = {}
+    for name in files:
+        deck = deck_beside(name) if is_annotation_file(name) else None
+        found.setdefault(str(deck) if deck is not None else name)
+    return list(found)
+
+
+def _findings(file: str, annotations: str | None) -> list[Finding]:
+    """Lint a deck; an annotation file with no deck beside it is validated on its own."""
+    from heatweave.annotation.loader import is_annotation_file, load
+    from heatweave.checks.lint import lint_file
+
+    if annotations is None and is_annotation_file(file):
+        try:
+            load(file)
+        except HeatweaveError as err:
+            return [*err.findings, Finding("error", err.message, err.location, err.hint)]
+        return []
+    return lint_file(file, annotations)

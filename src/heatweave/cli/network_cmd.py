@@ -7,7 +7,7 @@ import io
 import click
 import numpy as np
 
-from heatweave.cli.common import guarded
+from heatweave.cli.common import guarded, require_plotting
 from heatweave.errors import UsageError
 from heatweave.files import read_text, refuse_overwrite, write_atomic
 from heatweave.networks import Foster, NetworkError, NetworkForm, to_cauer, to_foster
@@ -52,6 +52,8 @@ def fit_command(
     The fit minimises relative error, so every decade of time counts alike.
     """
     check_outputs({"-o": output, "--plot": plot_file}, [("the Zth data", zth_file)])
+    if plot_file is not None:
+        require_plotting()
     data = read_zth_csv(read_text(zth_file), _shown(zth_file))
     keep = np.ones(data.t.size, dtype=bool)
     if t_min is not None:
@@ -135,8 +137,8 @@ def _plot(data: ZthData, keep: np.ndarray, result: FitResult, target: str) -> by
         stage = Foster(((r, tau),))
         axes.semilogx(fine, stage.zth(fine), "--", lw=1,
                       label=f"stage {index}: {r:.3g} K/W, {tau:.3g} s")
-    axes.set_xlabel("time after the power step t (s)")
-    axes.set_ylabel("thermal impedance Zth (K/W)")
+    axes.set_xlabel("time after the power step t [s]")
+    axes.set_ylabel("thermal impedance Zth [K/W]")
     axes.set_title(f"Foster fit, RMS error {100 * result.rms_rel:.2g} %")
     axes.grid(True, which="both", alpha=0.3)
     axes.legend(fontsize="small")

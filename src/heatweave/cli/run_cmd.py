@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import sys
-from collections.abc import Callable, Collection
+from collections.abc import Collection
 from dataclasses import replace
 from typing import TYPE_CHECKING
 
@@ -20,34 +20,21 @@ from heatweave.cli.common import (
     is_terminal,
     report_findings,
     report_options,
+    require_plotting,
     run_control_options,
     simulation_options,
+    use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
+from heatweave.cli.progress import fraction_progress
 from heatweave.errors import UsageError
 from heatweave.spice.acceptance import refuse_rejected
 
 if TYPE_CHECKING:
+    from heatweave.emit.emitter import Inputs
+    from heatweave.reports.model import RunReport
+    from heatweave.run.prepare import RunOptions
     from heatweave.spice.hierarchy import DeckIndex
-
-
-def progress_printer(enabled: bool) -> Callable[[float], None] | None:
-    """A progress callback drawing ``simulated NN%`` on stderr, or ``None`` when quiet."""
-    if not enabled:
-        return None
-    shown = [-1]
-
-    def show(fraction: float) -> None:
-        percent = int(fraction * 100)
-        if percent == shown[0]:
-            return
-        shown[0] = percent
-        end = "\n" if percent >= 100 else ""
-        click.echo(f"\rsimulated {percent:3d}% of the transient", err=True, nl=False)
-        if end:
-            click.echo("\r" + " " * 32 + "\r", err=True, nl=False)
-
-    return show
 
 
 def probe_nodes(probes: tuple[str, ...], known: Collection[str]) -> tuple[str, ...]:
@@ -162,29 +149,41 @@ def run(
     The summary table goes to stdout (to stderr when a report is written to stdout).
     """  # fmt: skip
     from heatweave.emit.emitter import load_inputs
-    from heatweave.files import write_atomic
-    from heatweave.reports import build_report
     from heatweave.run.prepare import RunOptions
-    from heatweave.run.runner import run as run_deck
 
     analyses = analyses_of(op, tran)
     check_html_path(html_file)
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--html": html_file}
+    if plot_file is not None:
+        require_plotting()
     annotation_path = annotation_for(deck, annotations)
     check_outputs(outputs, deck, annotation_path)
     inputs = load_inputs(deck, annotation_path)
     guard_outputs(outputs, inputs)
     refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
     check_probes_early(probe, inputs.index)
-    options = RunOptions(
-        analyses=analyses,
-        ambient=ambient,
-        backend=backend,
-        allow_control=allow_control,
-        init_file=init_file,
-        timeout=timeout,
-        progress=progress_printer(not quiet and is_terminal()),
-    )
+    with fraction_progress(not quiet and is_terminal(), "simulating") as progress:
+        options = RunOptions(
+            analyses=analyses, ambient=ambient, backend=backend, allow_control=allow_control,
+            init_file=init_file, timeout=timeout, progress=progress,
+        )  # fmt: skip
+        report = _simulate(deck, annotation_path, inputs, options, method, probe, quiet)
+    _write_reports(report, inputs, outputs, quiet)
+
+
+def _simulate(
+    deck: str,
+    annotation_path: str,
+    inputs: Inputs,
+    options: RunOptions,
+    method: str,
+    probe: tuple[str, ...],
+    quiet: bool,
+) -> RunReport:
+    """Run the deck by *method* and build its report."""
+    from heatweave.reports import build_report
+    from heatweave.run.runner import run as run_deck
+
     if method == "full":
         outcome = run_deck(deck, annotation_path, options, inputs=inputs)
         report_findings(list(outcome.prepared.findings))
@@ -203,11 +202,22 @@ def run(
         else:
             own = tuple(deck_analyses_of(inputs.project.deck.write()))
             report = report_of(
-                inputs, fast.results, analyses or own, "shared", fast.findings,
+                inputs, fast.results, options.analyses or own, "shared", fast.findings,
                 probe_nodes(probe, fast.results.voltages), (fast.method, fast.reason),
             )  # fmt: skip
         if not quiet:
             click.echo(f"method: {fast.method} ({fast.reason})", err=True)
+    return report
+
+
+def _write_reports(
+    report: RunReport, inputs: Inputs, outputs: dict[str, str | None], quiet: bool
+) -> None:
+    """The files asked for, then the table (on stderr when a file went to stdout)."""
+    from heatweave.files import write_atomic
+
+    json_file, csv_file, plot_file = outputs["--json"], outputs["--csv"], outputs["--plot"]
+    html_file = outputs["--html"]
     if json_file is not None:
         from heatweave.reports import json_report
 
@@ -229,4 +239,4 @@ def run(
 
         to_stderr = "-" in outputs.values()
         stream = sys.stderr if to_stderr else sys.stdout
-        click.echo(table.render(report, colour=is_terminal(stream)), file=stream, nl=False)
+        click.echo(table.render(report, colour=use_colour(stream)), file=stream, nl=False)

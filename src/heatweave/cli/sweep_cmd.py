@@ -8,7 +8,6 @@ limit.
 from __future__ import annotations
 
 import sys
-from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -27,10 +26,13 @@ from heatweave.cli.common import (
     is_terminal,
     may_replace_report,
     report_options,
+    require_plotting,
     run_control_options,
     style_severity,
+    use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
+from heatweave.cli.progress import count_progress
 from heatweave.errors import HeatweaveError, UsageError
 from heatweave.reports.junit import Case
 from heatweave.spice.acceptance import refuse_rejected
@@ -47,24 +49,6 @@ WORKER_MODULES = (
     "heatweave.run.runaway",
     "heatweave.checks.limits",
 )
-#: Width of the progress bar in characters.
-BAR = 30
-
-
-def progress_bar(enabled: bool) -> Callable[[int, int, int], None] | None:
-    """A callback drawing ``corners 12/20 [######....] 1 failed`` on stderr, or ``None``."""
-    if not enabled:
-        return None
-
-    def show(done: int, total: int, failed: int) -> None:
-        filled = BAR * done // total
-        bar = "#" * filled + "." * (BAR - filled)
-        tail = f" {failed} failed" if failed else ""
-        click.echo(f"\rcorners {done}/{total} [{bar}]{tail}", err=True, nl=False)
-        if done == total:
-            click.echo("\r" + " " * (BAR + 40) + "\r", err=True, nl=False)
-
-    return show
 
 
 def _has_tolerances(annotation: Annotation) -> bool:
@@ -191,6 +175,8 @@ def sweep(
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file}
     annotation_path = annotation_for(deck, annotations)
     check_outputs({**outputs, "--html": html_file}, deck, annotation_path)
+    if plot_file is not None:
+        require_plotting()
     ambients: tuple[float | None, ...] = (None,)
     if ambient_range is not None:
         ambients = parse_range(ambient_range, "--ambient", temperature=True)
@@ -253,8 +239,8 @@ def _run(
         click.echo(style_severity(message, "warning"), err=True)
     pool = make_executor(executor, jobs, scheduler, preload=WORKER_MODULES)
     try:
-        progress = progress_bar(not quiet and is_terminal())
-        return run_sweep(inputs, plan, options, pool, progress, limits=limits)
+        with count_progress(not quiet and is_terminal(), "corners") as progress:
+            return run_sweep(inputs, plan, options, pool, progress, limits=limits)
     finally:
         pool.close()
 
@@ -284,7 +270,7 @@ def _report(
         _write_junit(junit_file, result.inputs.deck_path, sweep_limits.junit_cases(result))
     stream = sys.stderr if "-" in outputs.values() else sys.stdout
     if not quiet:
-        text = sweep_report.render_table(result, colour=is_terminal(stream))
+        text = sweep_report.render_table(result, colour=use_colour(stream))
         click.echo(text, file=stream, nl=False)
     elif result.failed:
         for outcome in result.failed:
@@ -297,7 +283,7 @@ def _report(
             lines += sweep_limits.summary_lines(result)
         target = sys.stderr if quiet else stream
         for line in lines:
-            if line.startswith("FAIL") and is_terminal(target):
+            if line.startswith("FAIL") and use_colour(target):
                 line = click.style(line[:4], fg="red") + line[4:]
             click.echo(line, file=target)
     sys.exit(exit_status(result))

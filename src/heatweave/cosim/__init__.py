@@ -25,6 +25,7 @@ from heatweave.emit.emitter import Inputs, emit_inputs, load_inputs
 from heatweave.emit.splice import insert_before_end
 from heatweave.emit.temperature import temp_card
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
+from heatweave.quantities import counted
 from heatweave.run.prepare import (
     ANALYSIS_CARDS,
     RunOptions,
@@ -212,7 +213,7 @@ def run(
     folder = Path(options.cwd or deck_folder(inputs))
     trace = cosimulate(plain_deck(text, circuit), folder, plan, options.timeout, options.init_file)
     results = to_results(trace, circuit, system)
-    reason = f"co-simulation in {trace.windows} windows"
+    reason = f"co-simulation in {counted(trace.windows, 'window')}"
     past = range_findings(results)  # a part beyond its model's range, as runner.run warns
     return FastOutcome(results, "cosim", reason, findings + dropped + past, trace=trace)
 

@@ -114,6 +114,11 @@ def as_dict(report: RunReport) -> dict[str, Any]:
     }
 
 
+def json_text(data: dict[str, Any]) -> str:
+    """JSON text as every report writes it: indented, UTF-8 safe, newline at the end."""
+    return json.dumps(data, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+
+
 def render(report: RunReport) -> str:
-    """The JSON text (indented, UTF-8 safe, newline at the end)."""
-    return json.dumps(as_dict(report), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+    """The JSON text of *report*."""
+    return json_text(as_dict(report))

@@ -6,13 +6,20 @@ root with ``tests``/``failures``/``errors``/``time`` totals; each ``<testsuite>`
 ``hostname``, ``id`` and ``package``; each ``<testcase>`` with ``name``, ``classname`` and
 ``time``, and a ``<failure message=... type=...>`` child when the limit is violated, or an
 ``<error message=... type=...>`` child when nothing could be checked (the run gave no answer).
+
+``timestamp`` is the moment the suite started, ISO 8601 with its UTC offset
+(``2026-03-01T14:05:09+00:00``); ``hostname`` the machine that ran it.  Times are wall-clock
+seconds: a suite's is the whole command's; the limits of one run are decided together by
+that run, so each of its cases carries an equal share of the run's time (the cases of a
+suite add up to the simulations' time, never more).
 """
 
 from __future__ import annotations
 
+import socket
 import xml.etree.ElementTree as ET
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import UTC, datetime
 
 
@@ -52,6 +59,21 @@ def _seconds(value: float) -> str:
     return f"{value:.3f}"
 
 
+def timestamp(moment: datetime) -> str:
+    """ISO 8601 to the second with the UTC offset; a naive *moment* is taken as UTC."""
+    if moment.tzinfo is None:
+        moment = moment.replace(tzinfo=UTC)
+    return moment.isoformat(timespec="seconds")
+
+
+def shared_time(cases: Sequence[Case], seconds: float) -> tuple[Case, ...]:
+    """*cases* decided together by one run of *seconds*, each carrying an equal share."""
+    if not cases:
+        return ()
+    share = max(seconds, 0.0) / len(cases)
+    return tuple(replace(case, time=share) for case in cases)
+
+
 def render(suites: Sequence[Suite], name: str = "heatweave check") -> str:
     """The XML document (UTF-8 declaration, indented) for *suites*."""
     root = ET.Element(
@@ -62,8 +84,9 @@ def render(suites: Sequence[Suite], name: str = "heatweave check") -> str:
         errors=str(sum(s.errors for s in suites)),
         time=_seconds(sum(s.time for s in suites)),
     )
+    host = socket.gethostname() or "localhost"
     for number, suite in enumerate(suites):
-        stamp = (suite.timestamp or datetime.now(UTC)).strftime("%Y-%m-%dT%H:%M:%S")
+        stamp = timestamp(suite.timestamp or datetime.now(UTC))
         element = ET.SubElement(
             root,
             "testsuite",
@@ -74,7 +97,7 @@ def render(suites: Sequence[Suite], name: str = "heatweave check") -> str:
             skipped="0",
             time=_seconds(suite.time),
             timestamp=stamp,
-            hostname="localhost",
+            hostname=host,
             id=str(number),
             package="heatweave",
         )

@@ -37,12 +37,13 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 import textwrap
 from typing import Any
 
 from heatweave import __version__
+from heatweave.quantities import counted
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
+from heatweave.reports.json_report import json_text
 from heatweave.reports.table import WIDTH, cell_styles, grid
 from heatweave.run.prepare import deck_analyses_of
 from heatweave.sweep.corners import (
@@ -112,7 +113,7 @@ def as_dict(result: SweepResult) -> dict[str, Any]:
 
 def render_json(result: SweepResult) -> str:
     """The JSON text (indented, newline at the end)."""
-    return json.dumps(as_dict(result), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+    return json_text(as_dict(result))
 
 
 CSV_PART_COLUMNS = (
@@ -160,9 +161,9 @@ def _num(value: float | None, spec: str) -> str:
 
 def _settings(result: SweepResult) -> str:
     plan = result.plan
-    what = [f"{len(result.outcomes)} corners"]
+    what = [counted(len(result.outcomes), "corner")]
     if plan.draws:
-        what.append(f"Monte Carlo {plan.draws} draws, seed {plan.seed}")
+        what.append(f"Monte Carlo {counted(plan.draws, 'draw')}, seed {plan.seed}")
     ran = "; ".join(analyses(result)) or "deck analyses"
     return f"{result.inputs.deck_path}: {ran}, {', '.join(what)} ({result.executor} executor)"
 
