@@ -26,6 +26,7 @@ from scipy.optimize import brentq
 from heatweave.annotation.ratings import derated_power, margins, worst_instant
 from heatweave.emit.emitter import load_inputs
 from heatweave.reports import RunReport, build_report, csv_report, json_report, plot
+from heatweave.reports.model import parse_probe
 from heatweave.run.prepare import RunOptions
 from heatweave.run.runner import run
 
@@ -47,7 +48,8 @@ def report_of(deck: str, options: RunOptions = DEFAULT, probes: tuple[str, ...] 
     path = str(FIXTURES / deck)
     annotation = path.replace(".cir", ".thermal.toml")
     inputs = load_inputs(path, annotation)
-    return build_report(inputs, run(path, annotation, options, inputs=inputs), probes)
+    signals = tuple(parse_probe(p) for p in probes)
+    return build_report(inputs, run(path, annotation, options, inputs=inputs), signals)
 
 
 def json_of(deck: str, options: RunOptions = DEFAULT) -> dict[str, Any]:
@@ -193,27 +195,105 @@ def lines_per_axes(report: RunReport) -> list[int]:
 
 
 def test_transient_figure_has_one_curve_per_quantity() -> None:
-    # board.cir: parts RA, RB (resistors), DK (heat only), node patch, probes mid and k
-    report = report_of("board.cir", probes=("mid", "k"))
-    # temperatures: 3 parts + 1 node + ambient; drift: 2 resistors + zero line; voltages: 2
-    assert lines_per_axes(report) == [5, 3, 2]
+    # board.cir: parts RA, RB (resistors), DK (heat only), node patch, probes mid and k,
+    # and the supply's branch current
+    report = report_of("board.cir", probes=("mid", "k", "I(v1)"))
+    marks = sum(len(plot.limit_marks(row)) for row in report.rows)
+    assert marks >= 1  # the fixture gives some part a tmax
+    # temperatures: 3 parts + 1 node + ambient + limit lines; drift: 2 resistors + zero
+    # line; voltages: 2; currents: 1
+    assert lines_per_axes(report) == [5 + marks, 3, 2, 1]
     figure = plot.build_figure(report)
     assert figure.axes[-1].get_xlabel() == "time [s]"
     assert [ax.get_ylabel() for ax in figure.axes] == [
-        "temperature [degC]", "resistance change [ppm]", "voltage [V]",
+        "temperature [degC]", "resistance change [ppm]", "voltage [V]", "current [A]",
     ]  # fmt: skip
+    # the current's curve is the simulated branch current (12 V over RA + RB at the end,
+    # to the simulator's tolerance: the resistances drift only by their TCR)
+    (current,) = [c for c in figure.axes[3].get_children() if isinstance(c, Line2D)]
+    assert current.get_ydata()[-1] == pytest.approx(report.results.currents["v1"], rel=1e-12)
     # one colour per part in every panel
+    curves = {"RA", "RB", "DK", "node patch", "ambient"}
     temp_colour = {t.get_text(): t.get_color() for t in figure.axes[0].texts}
+    limit = plot.limit_marks(report.rows[0])[1][1]
+    assert {name for name in temp_colour if name not in curves} == {
+        "RA, RB tmax 155", f"RA derating limit of node patch {limit:.4g}",
+    }  # RB dissipates more than its 0.5 W even below the knee: no derating limit
+    temp_colour = {name: colour for name, colour in temp_colour.items() if name in curves}
     drift_colour = {t.get_text(): t.get_color() for t in figure.axes[1].texts}
     assert temp_colour["RA"] == drift_colour["RA"] and temp_colour["RB"] == drift_colour["RB"]
     assert len(set(temp_colour.values())) == len(temp_colour)
 
 
 def test_operating_point_figure_is_bars() -> None:
-    report = report_of("board.cir", RunOptions(analyses=("op",)))
+    report = report_of("board.cir", RunOptions(analyses=("op",)), probes=("I(v1)",))
     figure = plot.build_figure(report)
     bars = [sum(isinstance(p, Rectangle) for p in ax.containers[0]) for ax in figure.axes]
-    assert bars == [4, 2]  # 3 parts + node patch; 2 resistors
+    assert bars == [4, 2, 1]  # 3 parts + node patch; 2 resistors; one branch current
+    assert figure.axes[2].get_ylabel() == "current [A]"
+
+
+@pytest.mark.parametrize(
+    ("rating", "power", "knee", "tmax", "expected"),
+    [
+        # IEC 60115-1 curve inverted by hand: the derated rating equals P at
+        # T = knee + (tmax - knee) (1 - P / rating)
+        (0.5, 0.25, 70.0, 155.0, 112.5),
+        (0.5, 0.5, 70.0, 155.0, 70.0),
+        (0.5, 0.0, 70.0, 155.0, 155.0),
+        (0.5, 0.6, 70.0, 155.0, None),  # over the rating even below the knee
+        (0.5, 0.25, 70.0, None, None),  # no tmax: no curve
+    ],
+)
+def test_derating_limit_inverts_the_curve(
+    rating: float, power: float, knee: float, tmax: float | None, expected: float | None
+) -> None:
+    from heatweave.annotation.ratings import derating_limit
+
+    found = derating_limit(rating, power, knee, tmax)
+    if expected is None:
+        assert found is None
+        return
+    assert found == pytest.approx(expected, abs=1e-12)
+    assert derated_power(rating, found, knee, tmax) == pytest.approx(power, abs=1e-12)
+
+
+def test_limit_lines_and_leader_lines() -> None:
+    """tmax and derating limit drawn at their values; crowded end labels get leaders."""
+    report = report_of("divider_tran.cir")
+    (row,) = report.rows
+    marks = dict((label, value) for label, value, _ in plot.limit_marks(row))
+    assert marks["R1 tmax"] == row.tmax == 155.0
+    allowed, margin = row.margins.allowed, row.margins.power
+    assert allowed is not None and margin is not None
+    knee_limit = 70.0 + (155.0 - 70.0) * (1 - (allowed - margin) / 0.5)
+    assert marks["R1 derating limit of ambient"] == pytest.approx(knee_limit, rel=1e-12)
+    figure = plot.build_figure(report)
+    heights = {
+        round(float(line.get_ydata()[0]), 9)
+        for line in figure.axes[0].get_lines()
+        if len(set(line.get_ydata())) == 1
+    }
+    assert {155.0, round(knee_limit, 9)} <= heights
+    assert {"R1", "ambient"} <= {t.get_text() for t in figure.axes[0].texts}
+
+
+def test_crowded_end_labels_get_leader_lines() -> None:
+    """Ends 0.1 apart on a 0..10 panel (labels need 0.75): the moved labels are tied to
+    their curve ends by leader lines; a label that stays at its end gets none."""
+    from matplotlib.figure import Figure
+
+    axes = Figure().add_subplot()
+    axes.set_ylim(0.0, 10.0)
+    ends = [("a", 5.0, "red"), ("b", 5.1, "blue"), ("c", 5.2, "green"), ("far", 9.0, "k")]
+    plot._label_ends(axes, ends)
+    texts = {t.get_text(): t for t in axes.texts}
+    for name, end, _ in ends:
+        text = texts[name]
+        assert text.xy[1] == end  # the leader (or label) points at the curve's end
+        moved = bool(abs(text.xyann[1] - end) > 0.75 / 4)
+        assert (text.arrow_patch is not None) is moved
+    assert texts["c"].arrow_patch is not None and texts["far"].arrow_patch is None
 
 
 @pytest.mark.parametrize(
@@ -236,8 +316,8 @@ def test_csv_operating_point_is_one_row_without_time() -> None:
         "T(RA) [degC]", "R(RA) [ohm]", "P(RA) [W]",
         "T(RB) [degC]", "R(RB) [ohm]", "P(RB) [W]",
         "T(DK) [degC]", "P(DK) [W]",
-        "T(@patch) [degC]",
-        *[f"V({node}) [V]" for node in report.results.voltages],
+        "T(node patch) [degC]",
+        *[f"V({node}) [V]" for node in report.results.voltages],  # no probe: no I() column
     ]  # fmt: skip
     assert float(rows[1][0]) == report.results.part("RA").temperature
 

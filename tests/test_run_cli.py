@@ -20,7 +20,7 @@ from click.testing import CliRunner, Result
 from scipy.optimize import brentq
 
 from heatweave.cli import main
-from heatweave.cli.run_cmd import progress_printer, run
+from heatweave.cli.run_cmd import run
 from heatweave.errors import EXIT_BAD_INPUT, EXIT_OK, EXIT_THERMAL_RUNAWAY
 from heatweave.reports import CAUTION_TEXT
 
@@ -127,7 +127,7 @@ def test_outputs_are_whole_and_only_where_asked(tmp_path: Path) -> None:
     rows = list(csv.reader(io.StringIO((out / "w.csv").read_text())))
     header = rows[0]
     assert header[0] == "time [s]"
-    assert "T(@patch) [degC]" in header and "V(mid) [V]" in header
+    assert "T(node patch) [degC]" in header and "V(mid) [V]" in header
     times = [float(r[0]) for r in rows[1:]]
     assert times[0] == 0.0 and times[-1] == pytest.approx(4.0)  # board.cir: .tran 2m 4
     assert all(b > a for a, b in itertools.pairwise(times))
@@ -203,17 +203,6 @@ def test_tran_option_replaces_the_decks_analysis(step: str, stop: str, command: 
     assert data["analysis"] == "tran"
     assert data["analysis_commands"] == [command]
     assert data["parts"]["R1"]["peak_temperature"] is not None
-
-
-def test_progress_shows_percent(capsys: pytest.CaptureFixture[str]) -> None:
-    show = progress_printer(True)
-    assert show is not None
-    for fraction in (0.0, 0.5, 0.5, 1.0):
-        show(fraction)
-    err = capsys.readouterr().err
-    assert err.count("simulated  50%") == 1
-    assert "simulated 100%" in err
-    assert progress_printer(False) is None
 
 
 # ------------------------------------------------------------ a deck on standard input
@@ -344,3 +333,43 @@ def test_probe_inside_a_subcircuit() -> None:
     t = divider_temperature()
     expected = 10.0 * 100.0 / (100.0 * (1 + 0.004 * (t - 25.0)) + 100.0)
     assert float(rows[-1][-1]) == pytest.approx(expected, abs=RELTOL * expected + VNTOL)
+
+
+# ------------------------------------------------------------ --probe: voltages and currents
+
+
+@pytest.mark.parametrize("method", ["full", "cosim"])
+def test_branch_current_probe_feeds_csv_and_json(tmp_path: Path, method: str) -> None:
+    """``--probe I(v1)`` without ``--plot``: the branch current of the divider's source in
+    the CSV and JSON.  Ohm's law at R1's brentq temperature: I = 10 V / (R1(T) + R2), and
+    ngspice's branch current of a source delivering it is negative (current into its +
+    terminal, the SPICE sign convention)."""
+    deck = tmp_path / "divider.cir"
+    deck.write_text((FIXTURES / "divider.cir").read_text().replace(".op", ".tran 1m 2"))
+    annotation = str(FIXTURES / "divider.thermal.toml")
+    csv_file, json_file = tmp_path / "w.csv", tmp_path / "r.json"
+    result = invoke(str(deck), "-a", annotation, "--probe", "I(V1)", "--probe", "out",
+                    "--method", method, "-q", "--csv", str(csv_file), "--json", str(json_file))
+    assert result.exit_code == EXIT_OK, result.stderr
+    t_hot = divider_temperature()
+    expected = -10.0 / (100.0 * (1 + 0.004 * (t_hot - 25.0)) + 100.0)
+    rows = list(csv.reader(csv_file.read_text().splitlines()))
+    column = rows[0].index("I(v1) [A]")
+    assert float(rows[-1][column]) == pytest.approx(expected, rel=2e-3)
+    assert len(rows) > 3  # one row per time point: the current is a waveform
+    probes = json.loads(json_file.read_text())["probes"]
+    assert list(probes) == ["I(v1)", "V(out)"]
+    current = probes["I(v1)"]
+    assert current["unit"] == "A"
+    assert current["final"] == pytest.approx(expected, rel=2e-3)
+    # heating raises R1, so the cold start draws the most: |I| largest at t = 0
+    assert current["min"] == pytest.approx(-10.0 / 200.0, rel=2e-3)
+    assert probes["V(out)"]["final"] == pytest.approx(-expected * 100.0, rel=2e-3)
+
+
+def test_probe_of_a_current_ngspice_does_not_record(tmp_path: Path) -> None:
+    annotation = str(FIXTURES / "divider.thermal.toml")
+    result = invoke(str(FIXTURES / "divider.cir"), "-a", annotation, "--op", "--probe", "I(R1)")
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert "no branch current of 'r1'" in result.stderr
+    assert "0 V source in series" in result.stderr and "v1" in result.stderr

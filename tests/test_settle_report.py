@@ -35,7 +35,7 @@ def test_envelope_csv_uses_runs_header_and_full_precision() -> None:
     text = render_csv(settled(Envelope(TIME, {"R1": R1}, {"plate": PLATE})))
     rows = list(csv.reader(io.StringIO(text)))
     # The names run's CSV gives the same quantities (csv_report's module docstring).
-    assert rows[0] == ["time [s]", "T(R1) [degC]", "T(@plate) [degC]"]
+    assert rows[0] == ["time [s]", "T(R1) [degC]", "T(node plate) [degC]"]
     values = np.array([[float(cell) for cell in row] for row in rows[1:]])
     np.testing.assert_array_equal(values, np.column_stack([TIME, R1, PLATE]))
 

@@ -460,20 +460,6 @@ def test_control_block_dropped_with_one_warning_for_all_corners() -> None:
     assert "this block must not run" not in result.output
 
 
-def test_progress_bar_only_when_asked(capsys: pytest.CaptureFixture[str]) -> None:
-    from heatweave.cli.sweep_cmd import progress_bar
-
-    assert progress_bar(False) is None  # not a terminal: quiet
-    show = progress_bar(True)
-    assert show is not None
-    show(1, 3, 0)
-    show(2, 3, 1)
-    err = capsys.readouterr().err
-    assert "corners 1/3 [" + "#" * 10 + "." * 20 + "]" in err
-    assert "corners 2/3" in err and "1 failed" in err
-    assert capsys.readouterr().out == ""
-
-
 def test_param_of_an_included_file_is_swept(tmp_path: Path) -> None:
     # The supply voltage is set in an included file, which sweep leaves untouched: each
     # corner's own .param before .end overrides it (ngspice keeps the last assignment).

@@ -84,3 +84,16 @@ def worst_instant(
         derated_power(rating, t, knee, tmax) - p for p, t in zip(power, local_ambient, strict=True)
     ]
     return min(range(len(slack)), key=slack.__getitem__)
+
+
+def derating_limit(
+    rating: float, power: float, knee: float = IEC_60115_KNEE, tmax: float | None = None
+) -> float | None:
+    """The highest local ambient (degC) at which *power* W stays within the IEC 60115-1
+    derated *rating*: the inverse of :func:`derated_power` on its sloping part.  ``None``
+    without *tmax* (no curve) or when *power* exceeds the rating even below the knee."""
+    if tmax is None or power > rating:
+        return None
+    if power <= 0:
+        return tmax
+    return knee + (tmax - knee) * (1.0 - power / rating)

@@ -32,25 +32,50 @@ from heatweave.spice.acceptance import refuse_rejected
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
-    from heatweave.reports.model import RunReport
+    from heatweave.reports.model import Probe, RunReport
     from heatweave.run.prepare import RunOptions
+    from heatweave.run.results import RunResults
     from heatweave.spice.hierarchy import DeckIndex
 
 
 def probe_nodes(probes: tuple[str, ...], known: Collection[str]) -> tuple[str, ...]:
-    """``--probe`` names (``out`` or ``V(out)``) as node names, each checked against the
-    *known* node names (lower case, as ngspice names them)."""
+    """The node voltages among ``--probe`` names (``out`` or ``V(out)``) as node names, each
+    checked against the *known* node names (lower case, as ngspice names them)."""
+    from heatweave.reports.model import parse_probe
+
     found = []
-    for probe in probes:
-        name = probe.strip().lower()
-        if name.startswith("v(") and name.endswith(")"):
-            name = name[2:-1]
-        if name not in known:
+    for text in probes:
+        probe = parse_probe(text)
+        if probe.kind != "v":
+            continue
+        if probe.name not in known:
             raise UsageError(
-                f"--probe {probe}: the deck has no node {name!r}", hint=nodes_hint(name, known)
+                f"--probe {text}: the deck has no node {probe.name!r}",
+                hint=nodes_hint(probe.name, known),
             )
-        found.append(name)
+        found.append(probe.name)
     return tuple(found)
+
+
+def probe_signals(probes: tuple[str, ...], results: RunResults) -> tuple[Probe, ...]:
+    """``--probe`` names as signals of the finished run: node voltages (``out``,
+    ``V(out)``) and branch currents (``I(vamm)``), each checked against its vectors."""
+    from heatweave.reports.model import parse_probe
+
+    probe_nodes(probes, results.voltages)
+    found = []
+    for text in probes:
+        probe = parse_probe(text)
+        if not probe.known(results):
+            every = sorted(results.currents)
+            raise UsageError(
+                f"--probe {text}: ngspice recorded no branch current of {probe.name!r}",
+                hint="ngspice records the current of voltage sources and inductors only; put "
+                "a 0 V source in series to measure it there (branch currents of this deck: "
+                f"{', '.join(every[:LISTED]) or 'none'})",
+            )
+        found.append(probe)
+    return tuple(dict.fromkeys(found))
 
 
 #: How many node names a hint lists at most.
@@ -97,7 +122,9 @@ def check_probes_early(probes: tuple[str, ...], index: DeckIndex) -> None:
 
     Device-internal nodes (``q1#collector``) exist only in the simulation; they are left
     to the check against its vectors."""
-    wanted = tuple(p for p in probes if "#" not in p)
+    from heatweave.reports.model import parse_probe
+
+    wanted = tuple(p for p in probes if "#" not in p and parse_probe(p).kind == "v")
     known = deck_nodes(index) if wanted else None
     if known is not None:
         probe_nodes(wanted, known)
@@ -111,8 +138,9 @@ def check_probes_early(probes: tuple[str, ...], index: DeckIndex) -> None:
 @click.option(
     "--probe",
     multiple=True,
-    metavar="NODE",
-    help="Deck node whose voltage the plot shows (repeatable).",
+    metavar="SIGNAL",
+    help="A node voltage (out, V(out)) or a branch current (I(vamm): voltage sources and "
+    "inductors) to plot and to write to the CSV and JSON reports (repeatable).",
 )
 @click.option(
     "--method",
@@ -187,7 +215,7 @@ def _simulate(
     if method == "full":
         outcome = run_deck(deck, annotation_path, options, inputs=inputs)
         report_findings(list(outcome.prepared.findings))
-        report = build_report(inputs, outcome, probe_nodes(probe, outcome.results.voltages))
+        report = build_report(inputs, outcome, probe_signals(probe, outcome.results))
         report = replace(report, method_reason="asked for the full electrothermal deck")
     else:
         from heatweave.cosim import run_auto
@@ -197,13 +225,13 @@ def _simulate(
         fast = run_auto(deck, annotation_path, options, method=method, inputs=inputs)
         report_findings(list(fast.findings))
         if fast.full is not None:
-            report = build_report(inputs, fast.full, probe_nodes(probe, fast.results.voltages))
+            report = build_report(inputs, fast.full, probe_signals(probe, fast.results))
             report = replace(report, method_reason=fast.reason)
         else:
             own = tuple(deck_analyses_of(inputs.project.deck.write()))
             report = report_of(
                 inputs, fast.results, options.analyses or own, "shared", fast.findings,
-                probe_nodes(probe, fast.results.voltages), (fast.method, fast.reason),
+                probe_signals(probe, fast.results), (fast.method, fast.reason),
             )  # fmt: skip
         if not quiet:
             click.echo(f"method: {fast.method} ({fast.reason})", err=True)

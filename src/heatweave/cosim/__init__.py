@@ -293,4 +293,6 @@ def to_results(trace: Trace, circuit: ThermalCircuit, system: ThermalSystem) -> 
         time=np.asarray(trace.time),
         node_series=series,
         voltage_series=dict(trace.voltages),
+        currents={name: float(values[-1]) for name, values in trace.currents.items()},
+        current_series=dict(trace.currents),
     )

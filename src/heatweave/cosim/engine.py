@@ -58,7 +58,8 @@ class Trace:
     ``temperatures`` has one row per output of the thermal system (parts, then shared
     nodes), ``power`` and ``resistance`` one row per part: the mean dissipation over the
     window ending at each time (column 0 repeats the first window) and the resistance at
-    each time's temperature.  ``voltages`` are every node voltage at the window ends.
+    each time's temperature.  ``voltages`` are every node voltage at the window ends,
+    ``currents`` every branch current (voltage sources, inductors) there.
     ``profile`` says where the wall-clock time went (s), ``stats`` is ngspice's ``rusage``.
     """
 
@@ -70,6 +71,7 @@ class Trace:
     log: str
     profile: dict[str, float] = field(default_factory=dict)
     stats: str = ""
+    currents: dict[str, FloatArray] = field(default_factory=dict)
 
     @property
     def windows(self) -> int:
@@ -195,7 +197,7 @@ class _Loop:
             self.clock.lap("thermal")
             self.hold(bank.resistance(mid), self.rule.alter_threshold(gain, power))
         powers[0] = powers[1] if len(powers) > 1 else powers[0]
-        voltages = self._voltages(np.array(ends))
+        voltages, currents = self._signals(np.array(ends))
         self.clock.lap("read")
         stats = self._stats()
         return Trace(
@@ -207,6 +209,7 @@ class _Loop:
             self.session.log,
             dict(self.clock.spent),
             stats,
+            currents,
         )
 
     def _drops(self, start: int, length: int) -> FloatArray:
@@ -216,12 +219,17 @@ class _Loop:
             matrix[k] = self.tail(name, start, length)
         return np.asarray(matrix[self.index_a] - matrix[self.index_b])
 
-    def _voltages(self, ends: npt.NDArray[np.intp]) -> dict[str, FloatArray]:
-        """Every node voltage of the transient at the window ends."""
-        out: dict[str, FloatArray] = {}
-        for name, values in self.session.node_voltages().items():
-            out[name] = values[np.minimum(ends, values.shape[0] - 1)].copy()
-        return out
+    def _signals(
+        self, ends: npt.NDArray[np.intp]
+    ) -> tuple[dict[str, FloatArray], dict[str, FloatArray]]:
+        """Every node voltage and branch current of the transient at the window ends."""
+        found: tuple[dict[str, FloatArray], dict[str, FloatArray]] = ({}, {})
+        for table, out in zip(
+            (self.session.node_voltages(), self.session.branch_currents()), found, strict=True
+        ):
+            for name, values in table.items():
+                out[name] = values[np.minimum(ends, values.shape[0] - 1)].copy()
+        return found
 
     def _stats(self) -> str:
         return self.session.stats()

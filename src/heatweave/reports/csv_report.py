@@ -2,12 +2,14 @@
 
 One header row; each column name carries its unit in brackets::
 
-    time [s], T(R1) [degC], R(R1) [ohm], P(R1) [W], T(@board) [degC], V(out) [V]
+    time [s], T(R1) [degC], R(R1) [ohm], P(R1) [W], T(node board) [degC], V(out) [V], I(vamm) [A]
 
 Parts come in annotation order (temperature, resistance for resistors, dissipation), then
-shared thermal nodes (``@`` before the node name, so a node never reads like a part), then
-the deck's node voltages.  A transient gives one row per time point ngspice returned; an
-operating point one row, without the time column.
+shared thermal nodes (``node`` and a space before the node's name: a space can be in no
+SPICE name, so a node never reads like a part or like ngspice's ``@device[param]``), then
+the deck's node voltages, then the branch currents asked for with ``--probe I(vamm)``.  A
+transient gives one row per time point ngspice returned; an operating point one row,
+without the time column.
 """
 
 from __future__ import annotations
@@ -26,7 +28,7 @@ TIME_HEADER = "time [s]"
 
 def temperature_header(name: str, *, node: bool = False) -> str:
     """The header of a part's (or, with *node*, a shared thermal node's) temperature."""
-    return f"T({'@' if node else ''}{name}) [degC]"
+    return f"T({'node ' if node else ''}{name}) [degC]"
 
 
 def columns(report: RunReport) -> list[tuple[str, FloatArray]]:
@@ -52,6 +54,9 @@ def columns(report: RunReport) -> list[tuple[str, FloatArray]]:
         out.append((temperature_header(label, node=True), node_series))
     for node, final in results.voltages.items():
         out.append((f"V({node}) [V]", series(final, results.voltage_series.get(node))))
+    for probe in report.probes:
+        if probe.kind == "i":
+            out.append((f"{probe.label} [{probe.unit}]", probe.series(results)))
     return out
 
 

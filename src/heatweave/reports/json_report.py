@@ -41,6 +41,13 @@ differences in K, resistances in ohm, dissipation in W, voltages in V.
     Shared thermal nodes by name: final temperature (degC).
 ``voltages``
     The deck's own node voltages by node name (lower case, as ngspice names them), final (V).
+``currents``
+    The branch currents ngspice records for the deck's own devices (voltage sources,
+    inductors) by device name (``vamm``, ``v.x1.vs``), final (A).
+``probes``
+    The signals asked for with ``--probe``, by label (``V(out)``, ``I(vamm)``): ``unit``
+    (``V`` or ``A``), ``final``, and over a transient ``min`` and ``max`` (``null`` for an
+    operating point).
 ``warnings``
     The warnings of the run, as printed on stderr.
 ``cautions``
@@ -55,7 +62,7 @@ from typing import Any
 
 from heatweave import __version__
 from heatweave.reports.cautions import CAUTION_TEXT
-from heatweave.reports.model import PartRow, RunReport
+from heatweave.reports.model import PartRow, Probe, RunReport
 
 
 def _number(value: float | None) -> float | None:
@@ -94,6 +101,17 @@ def _part(row: PartRow) -> dict[str, Any]:
     }
 
 
+def _probe(probe: Probe, report: RunReport) -> dict[str, Any]:
+    values = probe.series(report.results)
+    spread = report.transient
+    return {
+        "unit": probe.unit,
+        "final": _number(probe.final(report.results)),
+        "min": _number(float(values.min())) if spread else None,
+        "max": _number(float(values.max())) if spread else None,
+    }
+
+
 def as_dict(report: RunReport) -> dict[str, Any]:
     """The report as plain data, keys in documented order."""
     results = report.results
@@ -109,6 +127,8 @@ def as_dict(report: RunReport) -> dict[str, Any]:
         "parts": {row.path: _part(row) for row in report.rows},
         "nodes": {label: _number(value) for label, value in results.nodes.items()},
         "voltages": {node: _number(value) for node, value in results.voltages.items()},
+        "currents": {name: _number(value) for name, value in results.currents.items()},
+        "probes": {probe.label: _probe(probe, report) for probe in report.probes},
         "warnings": list(report.warnings),
         "cautions": CAUTION_TEXT,
     }

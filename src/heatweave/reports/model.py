@@ -57,6 +57,45 @@ class PartRow:
         return (series / nominal - 1.0) * PPM
 
 
+@dataclass(frozen=True, slots=True)
+class Probe:
+    """A signal of the deck asked for with ``--probe``: a node voltage ``V(out)`` or the
+    branch current ``I(vamm)`` of a device that has one (a voltage source, an inductor)."""
+
+    kind: str  # "v" or "i"
+    name: str  # node or device, lower case as ngspice names it
+
+    @property
+    def label(self) -> str:
+        return f"{self.kind.upper()}({self.name})"
+
+    @property
+    def unit(self) -> str:
+        return "V" if self.kind == "v" else "A"
+
+    def final(self, results: RunResults) -> float:
+        """The value at the end of the run (the operating point's value)."""
+        return (results.voltages if self.kind == "v" else results.currents)[self.name]
+
+    def series(self, results: RunResults) -> FloatArray:
+        """The values over the run (one value for an operating point)."""
+        table = results.voltage_series if self.kind == "v" else results.current_series
+        values = table.get(self.name)
+        return values if values is not None else np.array([self.final(results)])
+
+    def known(self, results: RunResults) -> bool:
+        return self.name in (results.voltages if self.kind == "v" else results.currents)
+
+
+def parse_probe(text: str) -> Probe:
+    """``out`` or ``V(out)``: a node voltage; ``I(vamm)``: a branch current."""
+    name = text.strip().lower()
+    for kind in ("v", "i"):
+        if name.startswith(f"{kind}(") and name.endswith(")"):
+            return Probe(kind, name[2:-1].strip())
+    return Probe("v", name)
+
+
 def is_transient(results: RunResults) -> bool:
     """True when the results hold waveforms over time."""
     return results.analysis == "tran" and results.time is not None
@@ -74,7 +113,7 @@ class RunReport:
     results: RunResults
     rows: tuple[PartRow, ...]
     warnings: tuple[str, ...] = ()
-    probes: tuple[str, ...] = ()
+    probes: tuple[Probe, ...] = ()
     ambient_series: FloatArray | None = field(default=None, repr=False)
     method: str = "full"  # "full" (the electrothermal deck) or "cosim" (the fast path)
     method_reason: str = ""
@@ -119,8 +158,9 @@ def part_row(part: PartResult, results: RunResults, ambient: FloatArray) -> Part
     )  # fmt: skip
 
 
-def build_report(inputs: Inputs, outcome: RunOutcome, probes: tuple[str, ...] = ()) -> RunReport:
-    """The report of one finished run of *inputs*; *probes* are deck nodes to plot."""
+def build_report(inputs: Inputs, outcome: RunOutcome, probes: tuple[Probe, ...] = ()) -> RunReport:
+    """The report of one finished run of *inputs*; *probes* are the deck's signals asked for
+    (plotted, and written to CSV and JSON)."""
     prepared = outcome.prepared
     return report_of(
         inputs,
@@ -138,7 +178,7 @@ def report_of(
     analyses: tuple[str, ...],
     backend: str,
     findings: tuple[Finding, ...],
-    probes: tuple[str, ...] = (),
+    probes: tuple[Probe, ...] = (),
     method: tuple[str, str] = ("full", ""),
 ) -> RunReport:
     """The report of *results*, however they were computed (full deck or co-simulation)."""

@@ -2,9 +2,15 @@
 
 A transient gives stacked panels over one time axis: temperatures of every part (solid) and
 shared thermal node (dashed) with the ambient (dotted grey); the resistance drift of each
-resistor in ppm; the deck node voltages asked for with ``--probe``.  Each curve is named at
-its right end, outside the data, so no legend has to be searched; a part keeps its colour in
-every panel.  An operating point gives bar charts of the same quantities instead.
+resistor in ppm; the deck node voltages and branch currents asked for with ``--probe``.
+Each curve is named at its right end, outside the data, so no legend has to be searched;
+where ends crowd, labels are spread apart and a thin leader line ties each to its curve.  A
+part keeps its colour in every panel.  A part's ``tmax`` is drawn as a dashed line in its
+colour, and, for a part with a ``power_rating``, the derating limit: the highest local
+ambient at which its dissipation (at the instant deciding its power margin) is still within
+the IEC 60115-1 derated rating, as a dash-dotted line.  An operating point gives bar charts
+of the same quantities instead, with the same limit marks.  Units are written in brackets,
+``[degC]``, as in the CSV headers.
 
 The figure is built on matplotlib's object interface with the Agg canvas: no window, no
 global pyplot state, so building it in tests or threads is safe.
@@ -20,7 +26,9 @@ from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from heatweave.reports.model import RunReport
+from heatweave.annotation import AMBIENT
+from heatweave.annotation.ratings import derating_limit
+from heatweave.reports.model import PartRow, Probe, RunReport
 from heatweave.run.results import FloatArray
 
 AMBIENT_COLOUR = "0.45"
@@ -71,15 +79,58 @@ def spread(values: Sequence[float], gap: float) -> list[float]:
 
 
 def _label_ends(axes: Axes, ends: list[tuple[str, float, str]]) -> None:
-    """Write each curve's name just right of the panel at the height where it ends."""
+    """Write each curve's name just right of the panel at the height where it ends; a label
+    moved off that height (ends crowding) gets a leader line back to the curve's end."""
     if not ends:
         return
     low, high = axes.get_ylim()
-    heights = spread([y for _, y, _ in ends], LABEL_GAP * (high - low))
-    for (name, _, colour), height in zip(ends, heights, strict=True):
+    gap = LABEL_GAP * (high - low)
+    heights = spread([y for _, y, _ in ends], gap)
+    for (name, end, colour), height in zip(ends, heights, strict=True):
+        moved = abs(height - end) > gap / 4
         axes.annotate(
-            name, xy=(1.01, height), xycoords=("axes fraction", "data"),
+            name, xy=(1.0, end), xycoords=("axes fraction", "data"),
+            xytext=(1.05 if moved else 1.01, height), textcoords=("axes fraction", "data"),
             color=colour, va="center", fontsize=8, annotation_clip=False,
+            arrowprops={"arrowstyle": "-", "color": colour, "lw": 0.6, "shrinkA": 0,
+                        "shrinkB": 0} if moved else None,
+        )  # fmt: skip
+
+
+def limit_marks(row: PartRow) -> list[tuple[str, float, str]]:
+    """(label, degC, line style) of a part's ``tmax`` and derating limit, where it has them.
+
+    The derating limit is read against the part's local ambient (the ambient, or the shared
+    node its path ends on), which the label names."""
+    marks = []
+    if row.tmax is not None:
+        marks.append((f"{row.path} tmax", row.tmax, "--"))
+    allowed, margin = row.margins.allowed, row.margins.power
+    if row.power_rating is not None and allowed is not None and margin is not None:
+        limit = derating_limit(row.power_rating, allowed - margin, row.derating_knee, row.tmax)
+        if limit is not None:
+            of = "ambient" if row.to == AMBIENT else f"node {row.to}"
+            marks.append((f"{row.path} derating limit of {of}", limit, "-."))
+    return marks
+
+
+def _draw_limits(axes: Axes, report: RunReport, colours: dict[str, str]) -> None:
+    """tmax and derating limits as horizontal lines in the part's colour; limits of the
+    same kind and value share one label (grey when it names several parts), written just
+    under the line at the panel's left edge."""
+    labels: dict[tuple[str, float], list[str]] = {}
+    for row in report.rows:
+        for label, value, style in limit_marks(row):
+            axes.axhline(value, color=colours[row.path], lw=0.9, ls=style, alpha=0.8)
+            what = label[len(row.path) + 1 :]
+            labels.setdefault((what, value), []).append(row.path)
+    for (what, value), paths in labels.items():
+        colour = colours[paths[0]] if len(paths) == 1 else AMBIENT_COLOUR
+        axes.annotate(
+            f"{', '.join(paths)} {what} {value:.4g}", xy=(0.005, value),
+            xycoords=("axes fraction", "data"), xytext=(0, -2), textcoords="offset points",
+            color=colour, fontsize=7, va="top", zorder=5,
+            bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.75, "pad": 0.5},
         )  # fmt: skip
 
 
@@ -89,7 +140,8 @@ def _transient(figure: Figure, report: RunReport, colours: dict[str, str]) -> No
     factor, unit = time_scale(float(results.time[-1]))
     t = results.time / factor
     resistors = [row for row in report.rows if row.drift_series() is not None]
-    panels = 1 + bool(resistors) + bool(report.probes)
+    groups = probe_groups(report.probes)
+    panels = 1 + bool(resistors) + len(groups)
     axes = figure.subplots(panels, 1, sharex=True, squeeze=False)[:, 0]
     temp = axes[0]
     ends: list[tuple[str, float, str]] = []
@@ -109,6 +161,7 @@ def _transient(figure: Figure, report: RunReport, colours: dict[str, str]) -> No
     )
     temp.plot(t, ambient, color=AMBIENT_COLOUR, lw=1.0, ls=":")
     ends.append(("ambient", float(ambient[-1]), AMBIENT_COLOUR))
+    _draw_limits(temp, report, colours)
     temp.set_ylabel("temperature [degC]")
     key = "solid: parts, dashed: thermal nodes" if results.node_series else "parts"
     temp.set_title(f"Temperatures ({key})", fontsize=9, loc="left")
@@ -130,25 +183,42 @@ def _transient(figure: Figure, report: RunReport, colours: dict[str, str]) -> No
         drift.set_ylabel(f"resistance change [{drift_label}]")
         drift.set_title("Resistance drift against the deck's value", fontsize=9, loc="left")
         finished.append((drift, drift_ends))
-    if report.probes:
-        volts = axes[panel]
-        probe_colours = palette([f"V({p})" for p in report.probes], "voltage")
-        volt_ends = []
-        for node in report.probes:
-            values = results.voltage_series[node]
-            name = f"V({node})"
-            volts.plot(t, values, color=probe_colours[name], lw=1.4)
-            volt_ends.append((name, float(values[-1]), probe_colours[name]))
-        volts.set_ylabel("voltage [V]")
-        volts.set_title("Deck node voltages", fontsize=9, loc="left")
+    probe_colours = palette([p.label for p in report.probes], "voltage")
+    for (ylabel, title), probes in groups.items():
+        signals = axes[panel]
+        panel += 1
+        signal_ends = []
+        for probe in probes:
+            values = probe.series(results)
+            colour = probe_colours[probe.label]
+            signals.plot(t, values, color=colour, lw=1.4)
+            signal_ends.append((probe.label, float(values[-1]), colour))
+        signals.set_ylabel(ylabel)
+        signals.set_title(title, fontsize=9, loc="left")
         # Full values on the axis: an offset ("+2.495") is easy to miss.
-        volts.ticklabel_format(axis="y", useOffset=False)
-        finished.append((volts, volt_ends))
+        signals.ticklabel_format(axis="y", useOffset=False)
+        finished.append((signals, signal_ends))
     axes[-1].set_xlabel(f"time [{unit}]")
     axes[-1].set_xlim(float(t[0]), float(t[-1]))
     for ax, curve_ends in finished:
         ax.grid(True, lw=0.4, alpha=0.5)
         _label_ends(ax, curve_ends)
+
+
+PROBE_PANELS = {
+    "v": ("voltage [V]", "Deck node voltages"),
+    "i": ("current [A]", "Branch currents"),
+}
+
+
+def probe_groups(probes: Sequence[Probe]) -> dict[tuple[str, str], list[Probe]]:
+    """The probes by panel (y label, title): voltages, then currents."""
+    groups: dict[tuple[str, str], list[Probe]] = {}
+    for kind, panel in PROBE_PANELS.items():
+        members = [p for p in probes if p.kind == kind]
+        if members:
+            groups[panel] = members
+    return groups
 
 
 def _bars(
@@ -175,7 +245,8 @@ def _bars(
 def _operating_point(figure: Figure, report: RunReport, colours: dict[str, str]) -> None:
     results = report.results
     resistors = [row for row in report.rows if row.change_ppm is not None]
-    panels = 1 + bool(resistors) + bool(report.probes)
+    groups = probe_groups(report.probes)
+    panels = 1 + bool(resistors) + len(groups)
     axes = figure.subplots(panels, 1, squeeze=False)[:, 0]
     names = [row.path for row in report.rows] + [node_name(n) for n in results.nodes]
     values = [row.result.temperature for row in report.rows] + list(results.nodes.values())
@@ -185,6 +256,7 @@ def _operating_point(figure: Figure, report: RunReport, colours: dict[str, str])
         f"ambient {results.ambient:.1f}", xy=(1.01, results.ambient),
         xycoords=("axes fraction", "data"), color=AMBIENT_COLOUR, va="center", fontsize=8,
     )  # fmt: skip
+    _draw_limits(axes[0], report, colours)
     axes[0].set_ylabel("temperature [degC]")
     axes[0].set_title(
         "Operating point temperatures (bars rise from the ambient)", fontsize=9, loc="left"
@@ -201,21 +273,23 @@ def _operating_point(figure: Figure, report: RunReport, colours: dict[str, str])
         axes[panel].set_ylabel(f"resistance change [{drift_label}]")
         axes[panel].set_title("Resistance drift against the deck's value", fontsize=9, loc="left")
         panel += 1
-    if report.probes:
-        probe_names = [f"V({p})" for p in report.probes]
+    for (ylabel, title), probes in groups.items():
+        names = [p.label for p in probes]
         _bars(
-            axes[panel], probe_names, [results.voltages[p] for p in report.probes],
-            palette(probe_names, "voltage"), ".4g",
+            axes[panel], names, [p.final(results) for p in probes],
+            palette(names, "voltage"), ".4g",
         )  # fmt: skip
-        axes[panel].set_ylabel("voltage [V]")
-        axes[panel].set_title("Deck node voltages", fontsize=9, loc="left")
+        axes[panel].set_ylabel(ylabel)
+        axes[panel].set_title(title, fontsize=9, loc="left")
+        panel += 1
 
 
 def build_figure(report: RunReport) -> Figure:
     """The report's figure, not yet drawn to any file."""
     names = [row.path for row in report.rows] + [node_name(n) for n in report.results.nodes]
     colours = palette(names)
-    panels = 1 + any(r.result.resistance is not None for r in report.rows) + bool(report.probes)
+    panels = 1 + any(r.result.resistance is not None for r in report.rows)
+    panels += len(probe_groups(report.probes))
     figure = Figure(figsize=(8.0, 2.2 + 2.3 * panels), layout="constrained")
     FigureCanvasAgg(figure)
     if report.transient:

@@ -72,6 +72,10 @@ class RunResults:
     node_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
     voltage_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
     ambient_series: FloatArray | None = field(default=None, repr=False)
+    #: Branch currents (A) of the deck's own devices that have one (voltage sources,
+    #: inductors, ...), by device name as ngspice names it (``vamm``, ``v.x1.vs``).
+    currents: dict[str, float] = field(default_factory=dict)
+    current_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
 
     def part(self, path: str) -> PartResult:
         """A part's results by instance path (case-insensitive)."""
@@ -210,14 +214,19 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
     ambient_values = _vector(plot, f"v({AMBIENT_NODE})")
     voltages: dict[str, float] = {}
     voltage_series: dict[str, FloatArray] = {}
+    currents: dict[str, float] = {}
+    current_series: dict[str, FloatArray] = {}
     for name, raw in plot.vectors.items():
-        if not (name.startswith("v(") and name.endswith(")")) or PREFIX in name:
+        if name[:2] not in ("v(", "i(") or not name.endswith(")") or PREFIX in name:
             continue
-        node = name[2:-1]
+        is_voltage = name[0] == "v"
+        finals = voltages if is_voltage else currents
+        series = voltage_series if is_voltage else current_series
+        key = name[2:-1]
         real = np.real(np.asarray(raw)).astype(np.float64)
-        voltages[node] = float(real[-1])
+        finals[key] = float(real[-1])
         if transient:
-            voltage_series[node] = real
+            series[key] = real
     return RunResults(
         analysis=plot.kind,
         ambient=float(ambient_values[-1]),
@@ -228,6 +237,8 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
         node_series=node_series,
         voltage_series=voltage_series,
         ambient_series=ambient_values if transient else None,
+        currents=currents,
+        current_series=current_series,
     )
 
 

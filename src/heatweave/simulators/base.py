@@ -278,6 +278,11 @@ class Session(ABC):
         """Every node voltage of the transient so far, by node name (a copy)."""
 
     @abstractmethod
+    def branch_currents(self) -> dict[str, FloatArray]:
+        """Every branch current of the transient so far (voltage sources, inductors), by
+        device name (a copy)."""
+
+    @abstractmethod
     def stats(self) -> str:
         """The simulator's own statistics of the run (ngspice's ``rusage``)."""
 

@@ -349,18 +349,26 @@ class SharedSession(Session):
 
     def node_voltages(self) -> dict[str, FloatArray]:
         """See :meth:`Session.node_voltages`."""
+        return self._signals(VOLTAGE, "v(")
+
+    def branch_currents(self) -> dict[str, FloatArray]:
+        """See :meth:`Session.branch_currents`."""
+        return self._signals(CURRENT, "i(")
+
+    def _signals(self, kind: str, head: str) -> dict[str, FloatArray]:
+        """The real vectors of type *kind* named ``head...)``, by the name inside."""
         library = self._library
         plot = library.current_plot()
         out: dict[str, FloatArray] = {}
         for raw in library.vector_names(plot):
             found = library.vector(f"{plot}.{raw}")
-            if found is None or _VECTOR_TYPES.get(found[0]) != VOLTAGE:
+            if found is None or _VECTOR_TYPES.get(found[0]) != kind:
                 continue
             if np.iscomplexobj(found[1]):
                 continue
-            name = vector_name(raw, VOLTAGE)
-            if name.startswith("v(") and name.endswith(")"):
-                out[name[2:-1]] = np.asarray(found[1], dtype=np.float64)
+            name = vector_name(raw, kind)
+            if name.startswith(head) and name.endswith(")"):
+                out[name[len(head) : -1]] = np.asarray(found[1], dtype=np.float64)
         return out
 
     def stats(self) -> str:
