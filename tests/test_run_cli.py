@@ -120,7 +120,8 @@ def test_outputs_are_whole_and_only_where_asked(tmp_path: Path) -> None:
     data = json.loads((out / "r.json").read_text())
     assert list(data) == [
         "heatweave_version", "deck", "annotations", "analysis", "analysis_commands",
-        "backend", "method", "ambient", "parts", "nodes", "voltages", "warnings", "cautions",
+        "backend", "method", "ambient", "parts", "nodes", "voltages", "currents", "probes",
+        "warnings", "cautions",
     ]  # fmt: skip
     assert list(data["parts"]) == ["RA", "RB", "DK"]
     assert data["cautions"] == CAUTION_TEXT

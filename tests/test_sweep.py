@@ -793,3 +793,106 @@ def test_check_junit_names_a_corner_without_answer(tmp_path: Path) -> None:
     assert [c.get("name") for c in cases] == ["corner 1 (ambient 25 degC, idrive=0.3) run"]
     error = cases[0].find("error")
     assert error is not None and "runs away" in (error.text or "")
+
+
+# ------------------------------------------------------------------------ the terminal table
+
+# Five 1 kohm legs on 1 V each: P = 1 mW, and with Rth = 1 K/W a 1 mK rise (T = Ta + Rth P;
+# the TCR changes P by 1e-7 relative, far below the printed digits). Worked by hand.
+FIVE_LEGS = "".join(f"V{k} n{k} 0 DC 1\nRLEG_NUMBER_{k} n{k} 0 1k\n" for k in range(5))
+FIVE_ANNOTATION = "schema = 1\n[ambient]\ntemperature = 25.0\n" + "".join(
+    f'[part.RLEG_NUMBER_{k}]\nmodel = "linear"\ntc1_ppm = 100\nrth = 1.0\ncth = 0.001\n'
+    for k in range(5)
+)
+
+
+def test_table_fits_100_columns_and_prints_small_rises(tmp_path: Path) -> None:
+    deck = tmp_path / "legs.cir"
+    deck.write_text(f"five lightly loaded legs\n{FIVE_LEGS}.op\n.end\n")
+    (tmp_path / "legs.thermal.toml").write_text(FIVE_ANNOTATION)
+    result = invoke(str(deck), "--ambient", "-40:85:125", "--probe", "n1", "-j", "1")
+    assert result.exit_code == EXIT_OK, result.output
+    lines = result.stdout.splitlines()
+    assert max(len(x) for x in lines[1:]) <= 100  # the table (line 0 names the deck's path)
+    rows = [x.split() for x in lines if "RLEG_NUMBER_" in x]
+    assert len(rows) == 10  # one row per corner and part
+    rises = [float(r[r.index(next(c for c in r if c.startswith("RLEG"))) + 2]) for r in rows]
+    # 0.001 K, not 0.00; to ngspice's tolerance on the node voltage T (reltol |T| + vntol)
+    ambients = [-40.0] * 5 + [85.0] * 5
+    assert rises == [pytest.approx(1e-3, abs=t_tol(ta)) for ta in ambients]
+    rise_cells = [r[r.index(next(c for c in r if c.startswith("RLEG"))) + 2] for r in rows]
+    assert all(len(cell.lstrip("-0.")) >= 2 for cell in rise_cells)  # digits shown
+    # the probed node voltage on each corner's first row: 1 V across the leg
+    first = next(x for x in lines if "RLEG_NUMBER_0" in x)
+    assert first.split()[-1] == "1"
+
+
+@pytest.mark.parametrize(
+    ("ppm", "text"),
+    [
+        (123.44, "+123.4 ppm"),
+        (-9999.0, "-9999.0 ppm"),
+        (10000.0, "+1.00 %"),
+        (9244279.0, "+924.43 %"),  # a thermistor's drift: percent, not seven-digit ppm
+        (-926101.7, "-92.61 %"),
+        (None, "-"),
+    ],
+)
+def test_drift_text(ppm: float | None, text: str) -> None:
+    from heatweave.sweep.report import drift_text
+
+    assert drift_text(ppm) == text
+
+
+@pytest.mark.parametrize(
+    ("rise", "text"),
+    [(12.594, "12.59"), (1.0, "1.00"), (0.001, "0.001"), (0.0123456, "0.0123"), (0.0, "0.00")],
+)
+def test_rise_text(rise: float, text: str) -> None:
+    from heatweave.sweep.report import rise_text
+
+    assert rise_text(rise) == text
+
+
+def test_caution_follows_the_fail_lines(
+    limit_sweep: tuple[Result, dict[str, Any], Path],
+) -> None:
+    """Table, then its FAIL lines and summary, then the caution: never in between."""
+    result, _data, _junit = limit_sweep
+    lines = result.stderr.splitlines()
+    caution = next(k for k, x in enumerate(lines) if x.startswith("caution:"))
+    fails = [k for k, x in enumerate(lines) if x.startswith("FAIL")]
+    assert fails and max(fails) < caution
+    table_end = max(k for k, x in enumerate(lines) if re.match(r"\s*\d+\s+-?\d+\.\d\d\s+RUP", x))
+    assert table_end < min(fails)
+
+
+def test_plot_shows_the_rise_and_the_allowed_rise() -> None:
+    """Corner panels: rise above ambient (T - Ta of each corner, from the same corner data
+    the JSON holds) and tmax - Ta as the dashed allowed rise; units in brackets."""
+    from heatweave.emit.emitter import load_inputs
+    from heatweave.run.prepare import RunOptions
+    from heatweave.sweep.corners import SweepPlan, run_sweep
+    from heatweave.sweep.executors import make_executor
+    from heatweave.sweep.plot import build_figure
+
+    ambients = (0.0, 50.0, 100.0)
+    inputs = load_inputs(DIVIDER, LIMITS)
+    pool = make_executor("local", 1)
+    try:
+        result = run_sweep(inputs, SweepPlan(ambients, (), 0, None), RunOptions(), pool)
+    finally:
+        pool.close()
+    figure = build_figure(result)
+    rise_axes, drift_axes = figure.axes[:2]
+    assert rise_axes.get_ylabel() == "rise above ambient [K]"
+    assert drift_axes.get_xlabel() == "ambient temperature [degC]"
+    curves = {line.get_label(): line for line in rise_axes.get_lines()}
+    rise = curves["RUP"]
+    assert list(rise.get_xdata()) == list(ambients)
+    for ta, y in zip(ambients, rise.get_ydata(), strict=True):
+        expected = divider_temperature(ta, 12.0) - ta  # brentq, as the corner tests
+        assert y == pytest.approx(expected, abs=t_tol(expected + ta))
+    allowed = curves["RUP: tmax - ambient (allowed rise)"]
+    assert list(allowed.get_ydata()) == [TMAX_UP - ta for ta in ambients]
+    assert allowed.get_linestyle() == "--"

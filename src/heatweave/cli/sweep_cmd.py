@@ -33,6 +33,7 @@ from heatweave.cli.common import (
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.cli.progress import count_progress
+from heatweave.cli.run_cmd import check_probes_early, probe_nodes
 from heatweave.errors import HeatweaveError, UsageError
 from heatweave.reports.junit import Case
 from heatweave.spice.acceptance import refuse_rejected
@@ -128,6 +129,12 @@ def _has_tolerances(annotation: Annotation) -> bool:
     help="With --check: write a JUnit XML report, one test case per corner and limit "
     "(- is stdout).",
 )
+@click.option(
+    "--probe",
+    multiple=True,
+    metavar="NODE",
+    help="A deck node (out, V(out)) whose voltage the table shows per corner (repeatable).",
+)
 @report_options("Write one CSV row per corner and part.")
 @run_control_options("Stop ngspice after this long (each corner).")
 @html_option
@@ -149,6 +156,7 @@ def sweep(
     scheduler: str | None,
     check_limits: bool,
     junit_file: str | None,
+    probe: tuple[str, ...],
     timeout: float | None,
     json_file: str | None,
     csv_file: str | None,
@@ -163,6 +171,7 @@ def sweep(
     --check, violated a limit, and when all failed the status of the first corner's error
     (3, 4, 7, ...).
     """  # fmt: skip
+    from heatweave.reports.model import parse_probe
     from heatweave.run.prepare import RunOptions
     from heatweave.sweep.corners import SweepPlan
     from heatweave.sweep.grid import parse_assignment, parse_range
@@ -192,6 +201,12 @@ def sweep(
         init_file=init_file,
         timeout=timeout,
     )
+    if any(parse_probe(p).kind != "v" for p in probe):
+        raise UsageError("sweep --probe takes node voltages", hint="write --probe NODE")
+    if probe and deck != "-":  # standard input is read once, by the sweep itself
+        from heatweave.emit.emitter import load_inputs
+
+        check_probes_early(probe, load_inputs(deck, annotation_path).index)
     try:
         result = _run(deck, annotation_path, plan, options, check_limits, executor, jobs,
                       scheduler, quiet, {**outputs, "--html": html_file})  # fmt: skip
@@ -204,7 +219,8 @@ def sweep(
         from heatweave.sweep.page import sweep_page
 
         write_html(html_file, lambda: sweep_page(result))
-    _report(result, outputs, junit_file, quiet)
+    probes = probe_nodes(probe, _voltages_of(result)) if result.outcomes and probe else ()
+    _report(result, outputs, junit_file, quiet, probes)
 
 
 def _run(
@@ -246,7 +262,11 @@ def _run(
 
 
 def _report(
-    result: SweepResult, outputs: dict[str, str | None], junit_file: str | None, quiet: bool
+    result: SweepResult,
+    outputs: dict[str, str | None],
+    junit_file: str | None,
+    quiet: bool,
+    probes: tuple[str, ...] = (),
 ) -> None:
     """Warnings, the reports asked for, the table and the limit lines; then exit."""
     from heatweave.files import write_atomic
@@ -270,7 +290,9 @@ def _report(
         _write_junit(junit_file, result.inputs.deck_path, sweep_limits.junit_cases(result))
     stream = sys.stderr if "-" in outputs.values() else sys.stdout
     if not quiet:
-        text = sweep_report.render_table(result, colour=use_colour(stream))
+        text = sweep_report.render_table(
+            result, colour=use_colour(stream), probes=probes, caution=False
+        )
         click.echo(text, file=stream, nl=False)
     elif result.failed:
         for outcome in result.failed:
@@ -286,6 +308,9 @@ def _report(
             if line.startswith("FAIL") and use_colour(target):
                 line = click.style(line[:4], fg="red") + line[4:]
             click.echo(line, file=target)
+    if not quiet:
+        # after the limit lines, so nothing stands between the table and its FAIL lines
+        click.echo("\n".join(sweep_report.caution_lines()), file=stream)
     sys.exit(exit_status(result))
 
 
@@ -300,3 +325,12 @@ def _write_junit(path: str, deck: str, cases: tuple[Case, ...]) -> None:
     from heatweave.reports.junit import Suite, render
 
     write_atomic(path, render([Suite(name=deck, cases=cases)], name="heatweave sweep"))
+
+
+def _voltages_of(result: SweepResult) -> dict[str, float]:
+    """The node voltages of the first corner that ran (every corner has the same nodes)."""
+    for outcome in result.outcomes:
+        if outcome.data is not None:
+            voltages: dict[str, float] = outcome.data["voltages"]
+            return voltages
+    return {}

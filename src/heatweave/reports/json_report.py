@@ -22,7 +22,7 @@ differences in K, resistances in ohm, dissipation in W, voltages in V.
     emitted) or ``cosim`` (the fast path: plain resistors in windows, the thermal network
     advanced exactly between them), and why it was chosen.
 ``ambient``
-    The ambient temperature at the end of the run (degC).
+    The ambient temperature at the end of the run [degC].
 ``parts``
     One object per annotated part, by instance path, in annotation order:
     ``model`` (temperature model, ``null`` for heat-only parts), ``temperature`` (final),
@@ -30,20 +30,20 @@ differences in K, resistances in ohm, dissipation in W, voltages in V.
     ``nominal_resistance`` (the deck's value), ``resistance_change_ppm`` and
     ``resistance_change_percent`` (final, against the deck's value), ``power`` (final, W),
     ``peak_power`` (transients), ``to`` (the thermal node its path ends at),
-    ``ratings`` (``power_rating`` W, ``tmax`` degC, ``derating_knee`` degC,
-    ``local_ambient``: the temperature at the cold end of its thermal path, degC, at the
+    ``ratings`` (``power_rating`` [W], ``tmax`` [degC], ``derating_knee`` [degC],
+    ``local_ambient``: the temperature at the cold end of its thermal path [degC] at the
     instant that decides the power margin; ``allowed_power``: the IEC 60115-1 derated
     rating there, W) and ``margins`` (``temperature``: ``tmax`` minus the hottest
     temperature reached, K; ``power``: allowed minus actual dissipation at that instant, W;
     ``load``: actual over allowed dissipation there, a fraction).  Negative margins mean a
     rating is exceeded; ``check`` judges the same numbers.
 ``nodes``
-    Shared thermal nodes by name: final temperature (degC).
+    Shared thermal nodes by name: final temperature [degC].
 ``voltages``
-    The deck's own node voltages by node name (lower case, as ngspice names them), final (V).
+    The deck's own node voltages by node name (lower case, as ngspice names them), final [V].
 ``currents``
     The branch currents ngspice records for the deck's own devices (voltage sources,
-    inductors) by device name (``vamm``, ``v.x1.vs``), final (A).
+    inductors) by device name (``vamm``, ``v.x1.vs``), final [A].
 ``probes``
     The signals asked for with ``--probe``, by label (``V(out)``, ``I(vamm)``): ``unit``
     (``V`` or ``A``), ``final``, and over a transient ``min`` and ``max`` (``null`` for an

@@ -1,8 +1,10 @@
 """The figure of ``heatweave sweep --plot FILE.png``.
 
 Corners: two panels over the ambient axis (or, when the ambient is held, over the first
-``--param``), part temperature (degC) and resistance drift (ppm), one curve per part and
-parameter corner, named in a legend beside the panels.
+``--param``), each part's temperature rise above the ambient [K] and its resistance drift
+[ppm], one curve per part and parameter corner, named in a legend beside the panels.  A
+part with ``tmax`` gets its allowed rise, ``tmax`` minus the ambient, as a dashed line in
+its colour: where a curve meets it, the part reaches ``tmax``.
 Monte Carlo at one corner: for each part a histogram of its temperature and one of its
 drift over the draws, with the 1st, 50th and 99th percentiles as dashed, solid and dashed
 lines.  Monte Carlo at several ambients: the 1st..99th percentile band and the median
@@ -22,12 +24,17 @@ from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from heatweave.reports.plot import palette
+from heatweave.reports.plot import drift_unit, palette
 from heatweave.sweep.corners import PERCENTILES, SweepResult, corner_ambient, summary
 
 QUANTITIES = (
-    ("temperature", "part temperature (degC)"),
-    ("resistance_change_ppm", "resistance drift vs deck value (ppm)"),
+    ("temperature", "part temperature [degC]"),
+    ("resistance_change_ppm", "resistance drift vs deck value [ppm]"),
+)
+#: The corner panels: the rise replaces the absolute temperature.
+CORNER_QUANTITIES = (
+    ("rise", "rise above ambient [K]"),
+    ("resistance_change_ppm", "resistance drift vs deck value [ppm]"),
 )
 LINES = ("--", "-", "--")  # p1, p50, p99
 BAR_COLOUR = "tab:blue"
@@ -50,17 +57,26 @@ def _x_axis(result: SweepResult) -> str | None:
 def _corner_curves(
     result: SweepResult, x_param: str | None
 ) -> dict[str, list[tuple[float, dict[str, Any]]]]:
-    """(x, part values) per curve name ``PART`` or ``PART, name=value`` (the other params)."""
+    """(x, part values) per curve name ``PART`` or ``PART, name=value`` (the other params);
+    the values gain ``rise`` (temperature minus the corner's ambient, K) and ``rise_limit``
+    (``tmax`` minus that ambient, where the part has a ``tmax``)."""
     curves: dict[str, list[tuple[float, dict[str, Any]]]] = {}
     for outcome in result.outcomes:
         if outcome.data is None:
             continue
         params = dict(outcome.corner.params)
-        x = corner_ambient(result, outcome) if x_param is None else params.pop(x_param)
+        ambient = corner_ambient(result, outcome)
+        x = ambient if x_param is None else params.pop(x_param)
         suffix = _params_label(params)
         for part, values in outcome.data["parts"].items():
             name = f"{part}, {suffix}" if suffix else part
-            curves.setdefault(name, []).append((x, values))
+            temperature, tmax = values.get("temperature"), values["ratings"].get("tmax")
+            extra = {
+                "part": part,
+                "rise": None if temperature is None else temperature - ambient,
+                "rise_limit": None if tmax is None else tmax - ambient,
+            }
+            curves.setdefault(name, []).append((x, {**values, **extra}))
     return curves
 
 
@@ -69,18 +85,32 @@ def _corners(figure: Figure, result: SweepResult) -> None:
     curves = _corner_curves(result, x_param)
     colours = palette(list(curves))
     axes: list[Axes] = [figure.add_subplot(2, 1, k + 1) for k in range(2)]
-    for ax, (key, label) in zip(axes, QUANTITIES, strict=True):
+    drifts = [abs(v["resistance_change_ppm"]) for points in curves.values() for _, v in points
+              if v.get("resistance_change_ppm") is not None]  # fmt: skip
+    per_unit, drift_label = drift_unit(max(drifts, default=0.0))
+    limits_drawn: set[str] = set()
+    for ax, (key, label) in zip(axes, CORNER_QUANTITIES, strict=True):
+        scale = per_unit if key == "resistance_change_ppm" else 1.0
         for name, points in curves.items():
-            pairs = sorted((a, v[key]) for a, v in points if v.get(key) is not None)
+            pairs = sorted((a, v[key] / scale) for a, v in points if v.get(key) is not None)
             if not pairs:
                 continue
             xs, ys = zip(*pairs, strict=True)
             ax.plot(xs, ys, marker="o", markersize=3, color=colours[name], label=name)
-        ax.set_ylabel(label)
+            part = points[0][1]["part"]
+            limits = sorted(
+                {(a, v["rise_limit"]) for a, v in points if v["rise_limit"] is not None}
+            )
+            if key == "rise" and limits and part not in limits_drawn:
+                limits_drawn.add(part)  # one line per part: tmax is the part's, not a corner's
+                lx, ly = zip(*limits, strict=True)
+                ax.plot(lx, ly, ls="--", lw=1.0, color=colours[name],
+                        label=f"{part}: tmax - ambient (allowed rise)")  # fmt: skip
+        ax.set_ylabel(label.replace("[ppm]", f"[{drift_label}]"))
         ax.grid(True, alpha=0.3)
     title = f"{Path(result.inputs.deck_path).name}: {len(result.outcomes)} corners"
     if x_param is None:
-        axes[-1].set_xlabel("ambient temperature (degC)")
+        axes[-1].set_xlabel("ambient temperature [degC]")
     else:
         ambient = result.outcomes[0].data and result.outcomes[0].data["ambient"]
         axes[-1].set_xlabel(f"deck parameter {x_param} (.param value)")
@@ -138,7 +168,7 @@ def _bands(ax: Axes, groups: list[dict[str, Any]], part: str, key: str) -> None:
         )  # fmt: skip
         ax.plot(xs, [f["p50"] for _, f in rows], color=colours[name], marker="o",
                 markersize=3, label=f"{label}: p50")  # fmt: skip
-    ax.set_xlabel("ambient temperature (degC)")
+    ax.set_xlabel("ambient temperature [degC]")
     ax.legend(fontsize="small")
 
 
@@ -165,8 +195,8 @@ def _monte_carlo(figure: Figure, result: SweepResult) -> None:
     )
 
 
-def render_png(result: SweepResult) -> bytes:
-    """The figure as PNG bytes."""
+def build_figure(result: SweepResult) -> Figure:
+    """The sweep's figure, not yet drawn to any file."""
     parts = max(len(result.part_names), 1)
     monte_carlo = bool(result.plan.draws)
     height = 3.2 * parts + 1.0 if monte_carlo else 7.0
@@ -176,6 +206,11 @@ def render_png(result: SweepResult) -> bytes:
         _monte_carlo(figure, result)
     else:
         _corners(figure, result)
+    return figure
+
+
+def render_png(result: SweepResult) -> bytes:
+    """The figure as PNG bytes."""
     buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=100)
+    build_figure(result).savefig(buffer, format="png", dpi=100)
     return buffer.getvalue()

@@ -10,7 +10,7 @@ JSON (``--json FILE``), keys in this order:
     The plan: ``ambients`` (degC; ``[null]`` for the annotation's own), ``params`` (name:
     list of values), ``monte_carlo`` (``{"draws": N, "seed": S}`` or ``null``).
 ``corners``
-    One object per corner in corner order: ``index``, ``ambient`` (degC), ``params``
+    One object per corner in corner order: ``index``, ``ambient`` [degC], ``params``
     (name: value), ``draw`` (Monte Carlo draw number or ``null``), ``drawn`` (part pattern,
     ``@node`` or ``A~B`` path: the drawn values of its toleranced keys), ``status`` (``ok``
     or ``failed``), ``error`` (the message of a failed corner), ``analysis``, ``backend``,
@@ -168,30 +168,63 @@ def _settings(result: SweepResult) -> str:
     return f"{result.inputs.deck_path}: {ran}, {', '.join(what)} ({result.executor} executor)"
 
 
-def _corner_table(result: SweepResult) -> tuple[list[list[str]], list[list[str]], list[bool]]:
+#: Past this many ppm a drift reads better in percent (thermistors drift by tens of %).
+PPM_LIMIT = 10_000
+
+
+def drift_text(ppm: float | None) -> str:
+    """A resistance drift with its unit: ``+123.4 ppm``, or ``-92.44 %`` past 10,000 ppm."""
+    if ppm is None:
+        return "-"
+    if abs(ppm) >= PPM_LIMIT:
+        return f"{ppm / 1e4:+.2f} %"
+    return f"{ppm:+.1f} ppm"
+
+
+def rise_text(rise: float | None) -> str:
+    """A temperature rise (K) with the digits it needs: two decimals from 1 K up, three
+    significant digits below, so a 1 mK self-heating never reads 0.00."""
+    if rise is None:
+        return "-"
+    if abs(rise) >= 1 or rise == 0:
+        return f"{rise:.2f}"
+    return f"{rise:.3g}"
+
+
+def _corner_table(
+    result: SweepResult, probes: tuple[str, ...] = ()
+) -> tuple[list[list[str]], list[list[str]], list[bool]]:
+    """One row per corner and part (the corner's own cells on its first row only), so the
+    table keeps its width however many parts the deck has; probed node voltages at the end
+    of a corner's first row."""
     names = [name for name, _ in result.plan.params]
-    parts = result.part_names
-    header = [["corner", "ambient", *names], ["", "degC", *[""] * len(names)]]
-    for part in parts:
-        header[0] += [f"T {part}", f"dR {part}", f"P {part}"]
-        header[1] += ["degC", "ppm", "W"]
+    probe_heads = [f"V({node})" for node in probes]
+    header = [
+        ["corner", "ambient", *names, "part", "T", "rise", "dR", "P", *probe_heads],
+        ["", "degC", *[""] * len(names), "", "degC", "K", "", "W", *["V"] * len(probes)],
+    ]
     body = []
     for outcome in result.outcomes:
         corner = outcome.corner
-        row = [str(corner.index), f"{corner_ambient(result, outcome):.2f}"]
-        row += [f"{corner.params[n]:.6g}" for n in names]
-        for part in parts:
-            if outcome.data is None:
-                row += ["failed", "", ""]
-                continue
-            values = outcome.data["parts"][part]
-            row += [
-                _num(values["temperature"], ".2f"),
-                _num(values["resistance_change_ppm"], "+.1f"),
-                _num(values["power"], ".4g"),
-            ]
-        body.append(row)
+        ambient = corner_ambient(result, outcome)
+        lead = [str(corner.index), f"{ambient:.2f}", *(f"{corner.params[n]:.6g}" for n in names)]
+        if outcome.data is None:
+            body.append([*lead, "failed", *[""] * (4 + len(probes))])
+            continue
+        voltages = outcome.data["voltages"]
+        for k, (part, values) in enumerate(outcome.data["parts"].items()):
+            temperature = values["temperature"]
+            rise = None if temperature is None else temperature - ambient
+            cells = [
+                part, _num(temperature, ".2f"), rise_text(rise),
+                drift_text(values["resistance_change_ppm"]), _num(values["power"], ".4g"),
+            ]  # fmt: skip
+            volts = [_num(voltages.get(node), ".5g") for node in probes]
+            first = k == 0
+            body.append([*(lead if first else [""] * len(lead)), *cells,
+                         *(volts if first else [""] * len(probes))])  # fmt: skip
     left = [False] * len(header[0])
+    left[2 + len(names)] = True
     return header, body, left
 
 
@@ -211,8 +244,11 @@ def _monte_carlo_table(
         for part, quantities in group["parts"].items():
             for key, values in quantities.items():
                 symbol, unit, spec = units[key]
-                cells = [format(values[k], spec) for k in ("mean", "p1", "p50", "p99")]
-                cells.insert(1, format(values["std"], spec.lstrip("+")))
+                scale = 1.0
+                if unit == "ppm" and max(abs(values["p1"]), abs(values["p99"])) >= PPM_LIMIT:
+                    scale, unit, spec = 1e4, "%", "+.2f"  # thermistors, as in the corner table
+                cells = [format(values[k] / scale, spec) for k in ("mean", "p1", "p50", "p99")]
+                cells.insert(1, format(values["std"] / scale, spec.lstrip("+")))
                 body.append([*lead, str(group["draws"]), part, f"{symbol} {unit}", *cells])
     left = [False] * len(header[0])
     for i in (len(names) + 2, len(names) + 3):
@@ -220,14 +256,17 @@ def _monte_carlo_table(
     return header, body, left
 
 
-def render_table(result: SweepResult, colour: bool = False) -> str:
-    """Settings line, one row per corner (or the Monte Carlo statistics), failures, caution."""
+def render_table(
+    result: SweepResult, colour: bool = False, probes: tuple[str, ...] = (), caution: bool = True
+) -> str:
+    """Settings line, one row per corner and part (or the Monte Carlo statistics), failures,
+    and (with *caution*) the caution line; *probes* are node voltages to show per corner."""
     styles = cell_styles(colour)
     stats = summary(result)
     if result.plan.draws:
         header, body, left = _monte_carlo_table(result, stats)
     else:
-        header, body, left = _corner_table(result)
+        header, body, left = _corner_table(result, probes)
     lines = [_settings(result), ""]
     if body:
         levels = [[""] * len(left) for _ in body]
@@ -238,5 +277,11 @@ def render_table(result: SweepResult, colour: bool = False) -> str:
         first = (outcome.error or "").splitlines()[0]
         where = describe(outcome.corner, corner_ambient(result, outcome))
         lines.append(styles["over"](f"{where} failed: {first}"))
-    lines += ["", *textwrap.wrap(CAUTION_LINE, WIDTH)]
+    if caution:
+        lines += caution_lines()
     return "\n".join(lines) + "\n"
+
+
+def caution_lines() -> list[str]:
+    """A blank line and the caution, wrapped: the last thing a sweep prints."""
+    return ["", *textwrap.wrap(CAUTION_LINE, WIDTH)]
