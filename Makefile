@@ -17,6 +17,8 @@ OUT    := out
 demo: setup
 	@mkdir -p $(OUT)
 	$(BIN)/heatweave run $(DEMO) --json $(OUT)/monitor.json --plot $(OUT)/monitor.png
+	@echo "the heatweave command is $(CURDIR)/$(BIN)/heatweave; to call it as heatweave:"
+	@echo '  export PATH="$(CURDIR)/$(BIN):$$PATH"'
 
 test: setup
 	$(BIN)/ruff check src tests benchmarks

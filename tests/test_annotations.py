@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 import tomllib
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -713,6 +714,25 @@ def test_schema_describes_every_key() -> None:
     assert sorted(models) == sorted(REGISTRY)
 
 
+def test_schema_id_and_defaults_agree_with_the_loader() -> None:
+    """``$id`` is an absolute URI (RFC 3986: a scheme, here the urn: of RFC 8141); each
+    ``default`` is what the loader takes when the key is absent."""
+    doc = schema()
+    assert re.fullmatch(r"urn:heatweave:annotation-schema:\d+", doc["$id"])
+    assert doc["properties"]["start"]["default"] == "cold"
+    part = doc["$defs"]["part"]["properties"]
+    ann = loads(LINEAR + "rth = 60\npower_rating = 0.25\ntmax = 155\n", FILE)
+    (bound,) = ann.parts
+    assert ann.start == doc["properties"]["start"]["default"]
+    assert bound.to == part["to"]["default"] == "ambient"
+    assert bound.derating_knee == part["derating_knee"]["default"] == 70.0
+    assert doc["$defs"]["node"]["properties"]["to"]["default"] == "ambient"
+    # a model key with a default in its group's unit (Callendar-Van Dusen A of IEC 60751)
+    rtd = next(b["then"] for b in doc["$defs"]["part"]["allOf"][:-1]
+               if b["if"]["properties"]["model"]["const"] == "rtd")  # fmt: skip
+    assert rtd["properties"]["a"]["default"] == pytest.approx(3.9083e-3, rel=1e-12)
+
+
 def test_schema_command_prints_json(tmp_path: Path) -> None:
     runner = CliRunner()
     result = runner.invoke(schema_command, [])
@@ -751,6 +771,10 @@ SCHEMA_AGREEMENT = [
     pytest.param(HEAD + '[review]\nmax_drift_growth_ppm = "50"\n', True, id="review string"),
     pytest.param(HEAD + "[review]\nmax_rise_growth = -2\n", False, id="review negative"),
     pytest.param(HEAD + "[review]\nrise = 2\n", False, id="review unknown key"),
+    # the pointer editors read (a TOML key may be quoted; heatweave reads nothing from it)
+    pytest.param('"$schema" = "thermal.schema.json"\n' + HEAD, True, id="$schema key"),
+    pytest.param('"$schema" = 3\n' + HEAD, False, id="$schema not a string"),
+    pytest.param("#:schema ./thermal.schema.json\n" + HEAD, True, id="schema comment"),
 ]
 
 

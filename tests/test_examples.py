@@ -571,3 +571,12 @@ def test_pwm_heater_is_checked_in_its_periodic_steady_state() -> None:
     assert power is not None and peak is not None, result.output
     assert float(power[1]) == pytest.approx(mean_power(expected), rel=1e-4)
     assert float(peak[1]) == pytest.approx(expected, abs=0.01)
+
+
+@pytest.mark.parametrize("note", sorted(DECKS.glob("*/README.md")), ids=lambda p: p.parent.name)
+def test_deck_notes_run_their_own_deck(note: Path) -> None:
+    """A deck's note lists commands for that deck only (a command for another example
+    belongs in that example's note)."""
+    named = re.findall(r"decks/([\w.-]+)/", note.read_text(encoding="utf-8"))
+    assert named, note
+    assert set(named) == {note.parent.name}

@@ -252,3 +252,15 @@ def test_progress_bar_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> None:
         count(4, 4, 1)
     assert "corners" in terminal.text and "1 failed" in terminal.text
     assert "100%" in terminal.text
+
+
+def test_make_demo_prints_where_the_command_is() -> None:
+    """``make demo`` ends by naming the command's folder and the PATH line (make -n)."""
+    done = subprocess.run(
+        ["make", "-n", "-C", str(ROOT), "demo"], capture_output=True, text=True, check=False
+    )
+    assert done.returncode == 0, done.stderr
+    assert f"{ROOT}/.venv/bin/heatweave" in done.stdout
+    assert f'export PATH="{ROOT}/.venv/bin:$PATH"' in done.stdout
+    readme = (ROOT / "README.md").read_text()
+    assert 'export PATH="$PWD/.venv/bin:$PATH"' in readme

@@ -38,6 +38,7 @@ class Field:
     choices: tuple[str, ...] = ()
     # (low, high, why): the span outside which the physics heatweave computes means nothing.
     limits: tuple[float, float, str] | None = None
+    default: str | float | None = None  # the value an absent key has (the schema's default)
 
 
 #: Above this a thermal resistance's conductance (K/W -> W/K) is below ngspice's default gmin
@@ -62,6 +63,9 @@ TREF_LIMITS = (
 START_CHOICES = ("cold", "steady")
 DEFAULT_DERATING_KNEE = 70.0  # degC, IEC 60115-1 convention
 
+#: The top-level key that tells editors where this file's JSON Schema is (heatweave reads
+#: nothing from it); TOML writes it quoted: ``"$schema" = "thermal.schema.json"``.
+SCHEMA_POINTER = "$schema"
 TOP_FIELDS = (
     Field("schema", "integer", "", "version of this file's layout", "1", required=True),
     Field(
@@ -71,6 +75,14 @@ TOP_FIELDS = (
         "initial temperatures: cold (ambient) or steady",
         '"cold"',
         choices=START_CHOICES,
+        default="cold",
+    ),
+    Field(
+        SCHEMA_POINTER,
+        "string",
+        "",
+        "where editors find this file's JSON Schema (heatweave schema -o FILE); not read",
+        '"thermal.schema.json"',
     ),
 )
 AMBIENT_FIELDS = (
@@ -99,8 +111,11 @@ CTH = Field(
     "heat capacity (0 or absent: steady state only)",
     "5.0",
     tolerance=True,
+    default=0.0,
 )
-TO = Field("to", "string", "", "a thermal node, or ambient (the default)", '"board"')
+TO = Field(
+    "to", "string", "", "a thermal node, or ambient (the default)", '"board"', default="ambient"
+)
 NODE_FIELDS = (replace(RTH, required=True), CTH, TO)
 PART_FIELDS = (
     Field(
@@ -132,6 +147,7 @@ PART_FIELDS = (
         "degC",
         "full power up to here, linear to zero at tmax (IEC 60115-1)",
         "70.0",
+        default=DEFAULT_DERATING_KNEE,
     ),
 )
 PATH_FIELDS = (
@@ -172,7 +188,12 @@ def model_fields(specs: Iterable[ParamSpec]) -> tuple[Field, ...]:
                 format_number(spec.default) if spec.default is not None else "1.0"
             )
             kind: Kind = "positive" if spec.positive else "number"
-            fields.append(Field(spec.key, kind, spec.unit, spec.meaning, example, tolerance=True))
+            # a group's default is in the group's unit: the key written in that unit has it
+            default = spec.default if spec.scale == 1 else None
+            fields.append(
+                Field(spec.key, kind, spec.unit, spec.meaning, example, tolerance=True,
+                      default=default)
+            )  # fmt: skip
     return tuple(fields)
 
 

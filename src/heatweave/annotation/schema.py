@@ -21,6 +21,10 @@ from heatweave.tempmodels import REGISTRY
 
 Schema = dict[str, Any]
 
+#: The schema's identifier: a URN (RFC 8141), so it names this layout version without
+#: pretending to be a place to download from; editors load the schema from a file.
+SCHEMA_ID = f"urn:heatweave:annotation-schema:{SCHEMA_VERSION}"
+
 # A SPICE number written as a string ("10k", "1k5"), read like quantities.parse_number; the
 # mantissa's sign and digits carry the range, since a scale factor never changes the sign.
 _EXPONENT_AND_SUFFIX = r"([eE][+-]?\d+)?([A-Za-z_]\w*)?\s*$"
@@ -70,6 +74,8 @@ def _field(spec: Field) -> Schema:
         out = _pairs(spec.kind == "stages")
     unit = f" [{spec.unit}]" if spec.unit and not spec.unit.startswith("[") else ""
     out["description"] = f"{spec.meaning}{unit}"
+    if spec.default is not None:
+        out["default"] = spec.default
     return out
 
 
@@ -135,6 +141,7 @@ def schema() -> Schema:
     )
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "$id": SCHEMA_ID,
         "title": "heatweave annotation file",
         "description": "Temperature models and thermal paths for the parts of a SPICE deck.",
         **top,

@@ -24,6 +24,9 @@ from heatweave.files import write_atomic
 def schema(output: str) -> None:
     """Print the JSON Schema (draft 2020-12) of DECK.thermal.toml files.
 
-    Editors with TOML schema support use it for completion and checks.
+    Editors with TOML schema support use it for completion and checks: write it with
+    -o thermal.schema.json, then name it in the annotation file with the top-level key
+    "$schema" = "thermal.schema.json" (heatweave accepts and ignores that key), or with a
+    first-line comment #:schema ./thermal.schema.json where the editor reads that instead.
     """
     write_atomic(output, json.dumps(annotation_schema(), indent=2) + "\n")
