@@ -14,8 +14,10 @@ import json
 import math
 import re
 import shutil
+import socket
 import xml.etree.ElementTree as ET
 from collections.abc import Iterator
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
@@ -675,6 +677,14 @@ def test_check_junit_has_a_case_per_corner_and_limit(
                 assert float(match[1]) == pytest.approx(value, abs=shown)
     assert int(suite.get("failures", "-1")) == expected_failures > 0
     assert suite.get("errors") == "0"
+    # when and where: ISO 8601 with its UTC offset, the host; each corner's cases share its
+    # run's time, so they are positive and add up to less than the whole sweep took
+    stamp = datetime.fromisoformat(suite.get("timestamp", ""))
+    assert stamp.utcoffset() is not None
+    assert suite.get("hostname") == socket.gethostname()
+    times = [float(c.get("time", "nan")) for c in cases]
+    assert all(t > 0 for t in times)
+    assert sum(times) <= float(suite.get("time", "nan")) * 2  # -j 2: two corners at once
 
 
 @pytest.fixture(scope="module")

@@ -8,6 +8,8 @@ limit.
 from __future__ import annotations
 
 import sys
+import time
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -176,6 +178,7 @@ def sweep(
     from heatweave.sweep.corners import SweepPlan
     from heatweave.sweep.grid import parse_assignment, parse_range
 
+    clock = (time.monotonic(), datetime.now(UTC))
     if seed is not None and draws is None:
         raise UsageError("--seed is for --monte-carlo", hint="add --monte-carlo N")
     if junit_file is not None and not check_limits:
@@ -213,14 +216,14 @@ def sweep(
     except HeatweaveError as err:
         # As with check: a report is still written, so an older one never stands in.
         if junit_file is not None and may_replace_report(junit_file):
-            _write_junit(junit_file, deck, (_run_error(deck, err),))
+            _write_junit(junit_file, deck, (_run_error(deck, err),), clock)
         raise
     if html_file is not None:
         from heatweave.sweep.page import sweep_page
 
         write_html(html_file, lambda: sweep_page(result))
     probes = probe_nodes(probe, _voltages_of(result)) if result.outcomes and probe else ()
-    _report(result, outputs, junit_file, quiet, probes)
+    _report(result, outputs, junit_file, quiet, probes, clock)
 
 
 def _run(
@@ -266,7 +269,8 @@ def _report(
     outputs: dict[str, str | None],
     junit_file: str | None,
     quiet: bool,
-    probes: tuple[str, ...] = (),
+    probes: tuple[str, ...],
+    clock: tuple[float, datetime],
 ) -> None:
     """Warnings, the reports asked for, the table and the limit lines; then exit."""
     from heatweave.files import write_atomic
@@ -287,7 +291,8 @@ def _report(
 
         write_atomic(plot_file, sweep_plot.render_png(result))
     if junit_file is not None:
-        _write_junit(junit_file, result.inputs.deck_path, sweep_limits.junit_cases(result))
+        cases = sweep_limits.junit_cases(result)
+        _write_junit(junit_file, result.inputs.deck_path, cases, clock)
     stream = sys.stderr if "-" in outputs.values() else sys.stdout
     if not quiet:
         text = sweep_report.render_table(
@@ -319,12 +324,19 @@ def _run_error(deck: str, err: HeatweaveError) -> Case:
     return Case("run", f"heatweave.{Path(deck).stem}", error=err.render())
 
 
-def _write_junit(path: str, deck: str, cases: tuple[Case, ...]) -> None:
-    """The sweep's JUnit report: one suite for the deck (``-``: stdout)."""
+def _write_junit(
+    path: str, deck: str, cases: tuple[Case, ...], clock: tuple[float, datetime]
+) -> None:
+    """The sweep's JUnit report: one suite for the deck (``-``: stdout), timed from
+    *clock* (the monotonic and the calendar time the sweep started)."""
     from heatweave.files import write_atomic
     from heatweave.reports.junit import Suite, render
 
-    write_atomic(path, render([Suite(name=deck, cases=cases)], name="heatweave sweep"))
+    started, stamp = clock
+    elapsed = time.monotonic() - started
+
+    suite = Suite(name=deck, cases=cases, time=elapsed, timestamp=stamp)
+    write_atomic(path, render([suite], name="heatweave sweep"))
 
 
 def _voltages_of(result: SweepResult) -> dict[str, float]:

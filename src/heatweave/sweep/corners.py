@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import itertools
 import shutil
+import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
@@ -116,6 +117,7 @@ class CornerOutcome:
     exit_code: int = EXIT_OK
     warnings: tuple[str, ...] = ()
     limits: tuple[LimitResult, ...] | None = None
+    seconds: float = 0.0  # wall-clock time the corner took in its worker
 
     @property
     def ok(self) -> bool:
@@ -269,6 +271,7 @@ def run_corner(job: CornerJob) -> CornerOutcome:
     from heatweave.run.runner import run, run_baseline
 
     inputs = job.inputs
+    started = time.monotonic()
     try:
         outcome = run(
             inputs.deck_path,
@@ -285,10 +288,14 @@ def run_corner(job: CornerJob) -> CornerOutcome:
                 baseline = run_baseline(inputs, job.options, job.annotation)
             limits = evaluate(outcome, job.limits, baseline)
     except HeatweaveError as err:
-        return CornerOutcome(job.corner, None, err.render(), err.exit_code)
+        seconds = time.monotonic() - started
+        return CornerOutcome(job.corner, None, err.render(), err.exit_code, seconds=seconds)
     keys = ("analysis", "backend", "ambient", "parts", "nodes", "voltages")
     data = {key: report[key] for key in keys}
-    return CornerOutcome(job.corner, data, warnings=tuple(report["warnings"]), limits=limits)
+    return CornerOutcome(
+        job.corner, data, warnings=tuple(report["warnings"]), limits=limits,
+        seconds=time.monotonic() - started,
+    )  # fmt: skip
 
 
 # ----------------------------------------------------------------------------- driver

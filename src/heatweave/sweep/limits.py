@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from heatweave.checks.limits import LimitResult
-from heatweave.reports.junit import Case
+from heatweave.reports.junit import Case, shared_time
 from heatweave.sweep.corners import CornerOutcome, SweepResult, corner_ambient, describe
 
 
@@ -101,15 +101,20 @@ def as_dict(result: SweepResult) -> dict[str, Any]:
 
 def junit_cases(result: SweepResult) -> tuple[Case, ...]:
     """One test case per corner and limit (the failure message carries the numbers), and
-    one ``run`` error case per corner that gave no answer, in corner order."""
+    one ``run`` error case per corner that gave no answer, in corner order; a corner's
+    cases share its run's time equally."""
     classname = f"heatweave.{Path(result.inputs.deck_path).stem}"
     cases: list[Case] = []
     for outcome in result.outcomes:
         corner = where(result, outcome)
         if outcome.limits is None:
-            cases.append(Case(f"{corner} run", classname, error=outcome.error or "failed"))
+            failed = Case(f"{corner} run", classname, error=outcome.error or "failed")
+            cases += shared_time((failed,), outcome.seconds)
             continue
-        for item in outcome.limits:
-            failure = None if item.passed else item.message(corner)
-            cases.append(Case(f"{corner} {item.subject} {item.limit}", classname, failure=failure))
+        own = [
+            Case(f"{corner} {item.subject} {item.limit}", classname,
+                 failure=None if item.passed else item.message(corner))
+            for item in outcome.limits
+        ]  # fmt: skip
+        cases += shared_time(own, outcome.seconds)
     return tuple(cases)
