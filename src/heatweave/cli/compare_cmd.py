@@ -23,8 +23,8 @@ from heatweave.cli.common import (
     annotation_for,
     guarded,
     input_files,
-    is_terminal,
     simulation_options,
+    use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.compare.diff import Comparison, Thresholds
@@ -181,8 +181,7 @@ def compare(
         from heatweave.compare.render import render_table
 
         stream = sys.stderr if on_stdout else sys.stdout
-        colour = is_terminal(stream) and "NO_COLOR" not in os.environ
-        click.echo(render_table(comparison, colour=colour), file=stream, nl=False)
+        click.echo(render_table(comparison, colour=use_colour(stream)), file=stream, nl=False)
     if not comparison.passed:
         sys.exit(EXIT_CHECK_FAILED)
 
