@@ -264,3 +264,14 @@ def test_make_demo_prints_where_the_command_is() -> None:
     assert f'export PATH="{ROOT}/.venv/bin:$PATH"' in done.stdout
     readme = (ROOT / "README.md").read_text()
     assert 'export PATH="$PWD/.venv/bin:$PATH"' in readme
+
+
+def test_sweep_table_without_plot_does_not_import_matplotlib() -> None:
+    """The sweep's table and CSV (sweep.report) stay free of the plot extra."""
+    code = (
+        "import sys\nimport heatweave.sweep.report\n"
+        "print('MPL', 'matplotlib' in sys.modules)\n"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          check=False)  # fmt: skip
+    assert "MPL False" in done.stdout, done.stdout + done.stderr

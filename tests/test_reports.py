@@ -360,7 +360,8 @@ def test_table_margins_agree_with_check() -> None:
 
 @pytest.mark.parametrize(
     ("largest_ppm", "unit"),
-    [(0.0, "ppm"), (499.6, "ppm"), (5e4, "ppm"), (926_101.7, "%")],  # shunt vs NTC drifts
+    # shunt vs NTC drifts; % from 10,000 ppm, where the sweep table switches too
+    [(0.0, "ppm"), (499.6, "ppm"), (9_999.9, "ppm"), (1e4, "%"), (926_101.7, "%")],
 )
 def test_drift_axis_unit(largest_ppm: float, unit: str) -> None:
     from heatweave.reports.plot import drift_unit

@@ -24,6 +24,9 @@ from heatweave.run.results import FloatArray, PartResult, RunResults
 from heatweave.run.runner import RunOutcome
 
 PPM = 1e6
+#: From this many ppm drifts are shown in % (plots and the sweep table alike): thermistors
+#: drift by tens of percent, where five- and six-digit ppm figures only get in the way.
+PPM_LIMIT = 10_000
 
 
 @dataclass(frozen=True, slots=True)

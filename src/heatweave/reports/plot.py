@@ -28,7 +28,7 @@ from matplotlib.figure import Figure
 
 from heatweave.annotation import AMBIENT
 from heatweave.annotation.ratings import derating_limit
-from heatweave.reports.model import PartRow, Probe, RunReport
+from heatweave.reports.model import PPM_LIMIT, PartRow, Probe, RunReport
 from heatweave.run.results import FloatArray
 
 AMBIENT_COLOUR = "0.45"
@@ -308,6 +308,7 @@ def render_png(report: RunReport) -> bytes:
 
 
 def drift_unit(largest_ppm: float) -> tuple[float, str]:
-    """ppm for the small drifts of precision parts; % once they pass 5 % (thermistors), where
-    six-digit ppm figures only get in the way.  Returns (ppm per unit, unit)."""
-    return (1e4, "%") if largest_ppm > 5e4 else (1.0, "ppm")
+    """ppm for the small drifts of precision parts; % from 10,000 ppm (thermistors), where
+    five- and six-digit ppm figures only get in the way, as the sweep table switches.
+    Returns (ppm per unit, unit)."""
+    return (1e4, "%") if largest_ppm >= PPM_LIMIT else (1.0, "ppm")

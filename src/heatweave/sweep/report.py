@@ -44,6 +44,7 @@ from heatweave import __version__
 from heatweave.quantities import counted
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.json_report import json_text
+from heatweave.reports.model import PPM_LIMIT
 from heatweave.reports.table import WIDTH, cell_styles, grid
 from heatweave.run.prepare import deck_analyses_of
 from heatweave.sweep.corners import (
@@ -167,9 +168,6 @@ def _settings(result: SweepResult) -> str:
     ran = "; ".join(analyses(result)) or "deck analyses"
     return f"{result.inputs.deck_path}: {ran}, {', '.join(what)} ({result.executor} executor)"
 
-
-#: Past this many ppm a drift reads better in percent (thermistors drift by tens of %).
-PPM_LIMIT = 10_000
 
 
 def drift_text(ppm: float | None) -> str:
