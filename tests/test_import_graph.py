@@ -35,6 +35,9 @@ STAGES = (
     "cli",
 )
 TOP_LEVEL_LIMIT = 8
+#: ``python -m heatweave`` runs this top-level module: the command line's entry point, so it
+#: belongs to the last stage (it imports ``cli`` and nothing imports it).
+ENTRY_POINT = "heatweave.__main__"
 
 
 def module_name(path: Path) -> str:
@@ -78,6 +81,8 @@ GRAPH = {module: sorted(set(imports_of(module))) for module in MODULES}
 
 
 def stage(module: str) -> int:
+    if module == ENTRY_POINT:
+        return STAGES.index("cli")
     parts = module.split(".")
     name = parts[1] if len(parts) > 1 and (PACKAGE / parts[1]).is_dir() else ""
     return STAGES.index(name)
