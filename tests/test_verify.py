@@ -20,9 +20,12 @@ from click.testing import CliRunner
 from scipy.optimize import brentq
 
 from heatweave.cli import main
+from heatweave.emit.emitter import load_inputs
 from heatweave.errors import EXIT_THERMAL_RUNAWAY, ThermalRunawayError
 from heatweave.run import runner
 from heatweave.run.diagnosis import RunawayError
+from heatweave.run.prepare import RunOptions, prepare
+from heatweave.run.runaway import Continuation, power_jacobian
 from heatweave.run.verify import SCAN_STEP, fell_back, solver_tolerances
 
 BACKENDS = ["shared", "batch"]
@@ -263,3 +266,33 @@ def test_a_transient_through_a_non_positive_resistance_is_refused(tmp_path: Path
     deck_path, note = write(tmp_path, deck, NEG_NOTE)
     result = CliRunner().invoke(main, ["run", deck_path, "-a", note, "--method", "full", "-q"])
     assert result.exit_code == EXIT_THERMAL_RUNAWAY, result.output
+
+
+@pytest.mark.parametrize("held", [60.0, 4977.0, 2.355e5])
+def test_runaway_jacobian_at_any_temperature(tmp_path: Path, held: float) -> None:
+    # ngspice sweeps "dc v T-0.1 T+0.1 0.1" in 3 points at 60 degC but in 2 above about
+    # 1000 degC (rounding of the bounds); the Jacobian assumed 3 and raised a numpy
+    # broadcasting ValueError there (issue 14).  Closed form on a current source:
+    # P = I^2 R0 (1 + tc1 (T - 25)), so dP/dT = I^2 R0 tc1.
+    deck, note = write(tmp_path, CUR_DECK.format(i=0.5), CUR_NOTE)
+    inputs = load_inputs(deck, note)
+    options = RunOptions()
+    cont = Continuation(prepare(inputs, options), options, inputs.index)
+    jac = power_jacobian(cont, inputs.index, np.array([held]))
+    assert jac[0, 0] == pytest.approx(0.5**2 * 100.0 * 0.004, rel=1e-6)
+
+
+@pytest.mark.parametrize(("stop", "refused"), [(7.0, False), (12.0, True)])
+def test_dc_sweep_last_point_is_verified(tmp_path: Path, stop: float, refused: bool) -> None:
+    # A .dc sweep of the supply of the negative-tc1 part: up to 7 V (below Vcrit) its last
+    # point is the closed-form state; past Vcrit ngspice's last point does not balance.
+    deck = NEG_DECK.format(v=1.0).replace(".op", f".dc V1 1 {stop:g} 0.5")
+    deck_path, note = write(tmp_path, deck, NEG_NOTE)
+    if refused:
+        with pytest.raises(ThermalRunawayError, match="DC sweep"):
+            runner.run(deck_path, note, runner.RunOptions())
+        return
+    outcome = runner.run(deck_path, note, runner.RunOptions())
+    c = 100.0 * stop**2 / 100.0
+    theta = (1 - math.sqrt(1 - 4 * 0.004 * c)) / (2 * 0.004)
+    assert outcome.results.part("RN").temperature == pytest.approx(25.0 + theta, abs=0.05)

@@ -159,6 +159,13 @@ def verify_run(
         how = "the lowest stable one, where it settles when switched on from cold"
         return resolve(inputs, options, prepared, lowest.temps, why, how)
     why = verdict.reason() if not verdict.ok else ""
+    if results.analysis == "dc" and not verdict.ok:
+        # The continuation and the scan solve the deck at its sources' DC values, not at
+        # the swept value of the last point: no replacement can be found that way.
+        raise NoSteadyStateError(
+            f"the last point of the DC sweep is not a steady state of the circuit: {why}",
+            hint="stop the sweep below that drive, or run .op at the values of interest",
+        )
     if fallback:
         lead = "ngspice's operating point failed gmin and source stepping and fell back to its "
         lead += 'short pseudo-transient ("transient op"), which leaves the thermal nodes short '
