@@ -296,3 +296,13 @@ def test_dc_sweep_last_point_is_verified(tmp_path: Path, stop: float, refused: b
     c = 100.0 * stop**2 / 100.0
     theta = (1 - math.sqrt(1 - 4 * 0.004 * c)) / (2 * 0.004)
     assert outcome.results.part("RN").temperature == pytest.approx(25.0 + theta, abs=0.05)
+
+
+@pytest.mark.parametrize("analysis", [".op", ".tran 1m 10m"])
+def test_heat_only_part_delivering_power_is_warned_of(tmp_path: Path, analysis: str) -> None:
+    # A supply annotated as a heat-only part: V*I into it is -25 V^2 / 100 ohm = -0.25 W.
+    deck = f"heat-only source\nV1 a 0 DC 5\nR1 a 0 100\n{analysis}\n.end\n"
+    deck_path, note = write(tmp_path, deck, "schema = 1\n[part.V1]\nrth = 10\ncth = 1\n")
+    outcome = runner.run(deck_path, note, runner.RunOptions())
+    found = [f for f in outcome.prepared.findings if "negative dissipation" in f.message]
+    assert found and "-0.25 W" in found[0].message

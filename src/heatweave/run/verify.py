@@ -37,7 +37,14 @@ from heatweave.quantities import parse_number
 from heatweave.run.diagnosis import HINT, RunawayError
 from heatweave.run.results import RunResults, extract
 from heatweave.run.runaway import TIGHT, Continuation, add_cards, diagnose, follow
-from heatweave.thermal.balance import ABSTOL_T, RELTOL, Verdict, check_state, thermal_nodes
+from heatweave.thermal.balance import (
+    ABSTOL_T,
+    RELTOL,
+    Verdict,
+    check_state,
+    negative_heat,
+    thermal_nodes,
+)
 from heatweave.thermal.circuit import PartPlan, ThermalCircuit
 
 if TYPE_CHECKING:
@@ -106,6 +113,18 @@ def verdict_of(results: RunResults, circuit: ThermalCircuit, at: int, text: str 
     return check_state(circuit, temps, powers, ambient, accuracy=extra, reltol=reltol)
 
 
+def mean_powers(results: RunResults) -> list[float]:
+    """Each part's dissipation averaged over the whole run (the value of an operating point)."""
+    out = []
+    for part in results.parts:
+        series, time = part.power_series, results.time
+        if series is None or time is None or len(time) < 2 or time[-1] <= time[0]:
+            out.append(part.power)
+        else:
+            out.append(float(np.trapezoid(series, time) / (time[-1] - time[0])))
+    return out
+
+
 def unphysical_series(results: RunResults) -> str | None:
     """Where a transient passes through a resistance at or below zero, in words."""
     for part in results.parts:
@@ -147,7 +166,9 @@ def verify_run(
         )
     at = steady_index(results, circuit)
     if at is None or not circuit.parts:
-        return Verified(sim, results, ())
+        # No steady state to hold to the balance; a heat-only part that delivers power on
+        # average is still worth a word.
+        return Verified(sim, results, tuple(negative_heat(circuit, mean_powers(results))))
     verdict = verdict_of(results, circuit, at, prepared.text)
     fallback = fell_back(sim.log)
     if verdict.ok and not fallback:

@@ -162,19 +162,7 @@ def check_state(
             f"{abs(error[worst]):.4g} K {'above' if error[worst] > 0 else 'below'} the one "
             "its reported powers give"
         )
-    for i, part in enumerate(circuit.parts):
-        if part.model is None and p_parts[i] < -(2 * RELTOL * abs(p_parts[i]) + ABSTOL_P):
-            warnings.append(
-                Finding(
-                    "warning",
-                    f"{part.path} is a heat-only part with a negative dissipation "
-                    f"({p_parts[i]:.4g} W): it delivers power to the circuit, so heatweave "
-                    "cools it by that much",
-                    part.location,
-                    "check the orientation of its terminals (power is V*I into the part), "
-                    "or leave a source out of the annotation",
-                )
-            )
+    warnings.extend(negative_heat(circuit, p_parts))
     if np.all(p_parts >= -ABSTOL_P) and len(labels):
         coldest = int(np.argmin(theta + eps))
         if theta[coldest] + eps[coldest] < 0:
@@ -183,3 +171,22 @@ def check_state(
                 f"({ambient:.4g} degC) although no part dissipates a negative power"
             )
     return Verdict(labels, residual, tolerance, error, tuple(problems), tuple(warnings))
+
+
+def negative_heat(circuit: ThermalCircuit, powers: Sequence[float] | FloatArray) -> list[Finding]:
+    """A warning for each heat-only part whose dissipation (W, per part) is negative."""
+    found = []
+    for part, power in zip(circuit.parts, powers, strict=True):
+        if part.model is None and power < -ABSTOL_P:
+            found.append(
+                Finding(
+                    "warning",
+                    f"{part.path} is a heat-only part with a negative dissipation "
+                    f"({power:.4g} W): it delivers power to the circuit, so heatweave "
+                    "cools it by that much",
+                    part.location,
+                    "check the orientation of its terminals (power is V*I into the part), "
+                    "or leave a source out of the annotation",
+                )
+            )
+    return found
