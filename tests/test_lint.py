@@ -48,7 +48,6 @@ BAD = [
     ("R1 a b {2*x\n", 2, 8, "unbalanced '{'"),
     ("V1 a 0 1\n.model\n", 3, 7, "expected a model name"),
     ("V1 a 0 1\nR1 a 0\n+ {1k\n", 4, 3, "unbalanced '{'"),
-    ("+ stray\nR1 a 0 1\n", 2, 1, "continuation line with no card to continue"),
 ]
 
 
@@ -290,3 +289,14 @@ def test_annotating_an_element_of_an_undecided_branch_is_refused(tmp_path: Path)
     )
     errors = [f for f in lint_file(str(deck)) if f.severity == "error"]
     assert [("branch of an .if block" in f.message) for f in errors] == [True], errors
+
+
+def test_continuation_after_the_title_is_a_warning(tmp_path: Path) -> None:
+    # ngspice 39.3 runs "title / + stray / V1 a 0 1 / R1 a 0 1k / .op" and prints v(a) = 1:
+    # the '+' line joins the title.  Plain lint must pass it; --strict flags it.
+    deck = tmp_path / "orphan.cir"
+    deck.write_text("title\n+ stray\nV1 a 0 1\nR1 a 0 1k\n.op\n.end\n")
+    (finding,) = lint_file(str(deck))
+    assert (finding.severity, finding.location and finding.location.line) == ("warning", 2)
+    assert CliRunner().invoke(lint, [str(deck)]).exit_code == 0
+    assert CliRunner().invoke(lint, ["--strict", str(deck)]).exit_code == 1

@@ -59,6 +59,8 @@ REJECT = {
     "r22_control_eof_models": ("has no .endc, and D1 uses a model", "valid modelname"),
     "r23_func_after_question": ("a .func call right after '?'", "Expression err"),
     "r24_three_inductor_k": ("a K card couples exactly two inductors", "unknown parameter (lt)"),
+    "r25_if_never_closed": (".if is never closed", "Mismatch of .if ... .endif"),
+    "r26_endif_without_if": (".endif without .if", "Mismatch of .if ... .endif"),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

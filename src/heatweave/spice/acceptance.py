@@ -82,7 +82,26 @@ def rejections(index: DeckIndex) -> list[Finding]:
     found.extend(_recursion(index))
     found.extend(duplicates(index))
     found.extend(_couplings(cards))
+    found.extend(_if_blocks(dots))
     return found
+
+
+def _if_blocks(dots: list[Card]) -> Iterator[Finding]:
+    """``.if`` ... ``.endif`` balanced, as ngspice 39 needs ("Mismatch of .if ... .endif
+    statements"; a stray ``.else``/``.endif`` is an "unimplemented control card")."""
+    open_ifs: list[Card] = []
+    for card in dots:
+        name = card.name
+        if name == ".if":
+            open_ifs.append(card)
+        elif name in (".elseif", ".else", ".endif") and not open_ifs:
+            yield _error(card, 0, f"{card.head} without .if: ngspice 39 stops on it",
+                         "remove it, or add the .if it belongs to")  # fmt: skip
+        elif name == ".endif":
+            open_ifs.pop()
+    for card in open_ifs:
+        yield _error(card, 0, ".if is never closed: ngspice 39 reports 'Mismatch of .if "
+                     "... .endif statements'", "add .endif")  # fmt: skip
 
 
 def _couplings(cards: list[Card]) -> Iterator[Finding]:

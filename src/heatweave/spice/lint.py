@@ -29,9 +29,12 @@ def _where(node: Card | ControlBlock) -> Location | None:
     return node.source.location(node.offset) if node.source else None
 
 
-def _structure(body: Iterable[Node], top: bool) -> Iterator[Finding]:
-    """Unclosed blocks, stray closers, orphan continuation lines."""
+def _structure(body: Iterable[Node], titled: bool = False) -> Iterator[Finding]:
+    """Unclosed blocks, stray closers, orphan continuation lines; *titled*: *body* follows
+    a deck's title line."""
+    previous: Node | None = None
     for node in body:
+        before, previous = previous, node
         if isinstance(node, ControlBlock) and not node.closed:
             yield Finding(  # ngspice 39 warns "Missing .endc statement!" and runs it
                 "warning", ".control without .endc runs to the end of the file",
@@ -45,7 +48,7 @@ def _structure(body: Iterable[Node], top: bool) -> Iterator[Finding]:
                     node.header.location(),
                     "add .ends" if node.kind == "subckt" else "add .endl",
                 )
-            yield from _structure(node.body, top=False)
+            yield from _structure(node.body)
         elif isinstance(node, Card):
             name = node.name
             if name in (".ends", ".endl"):
@@ -55,12 +58,23 @@ def _structure(body: Iterable[Node], top: bool) -> Iterator[Finding]:
                     f"remove it, or add the {opener} line it should close",
                 )  # fmt: skip
             elif node.head.startswith("+"):
-                yield Finding(
-                    "error",
-                    "continuation line with no card to continue",
-                    node.location(),
-                    "a '+' line continues the card above it; the title line cannot continue",
-                )
+                yield _orphan(node, before, titled)
+
+
+def _orphan(card: Card, before: Node | None, titled: bool) -> Finding:
+    """A '+' line with no card above it.  ngspice 39.3 joins it to the title line, or
+    drops it after a .control block (both accepted: warnings); in an included file it
+    continues the card before the include card, which then fails (an error)."""
+    hint = "a '+' line continues the card above it"
+    if before is None and titled:
+        return Finding("warning", "continuation line after the title: ngspice 39 reads it "
+                       "as part of the title", card.location(), hint)  # fmt: skip
+    if isinstance(before, ControlBlock):
+        return Finding("warning", "continuation line after a .control block: ngspice 39 "
+                       "ignores it", card.location(), hint)  # fmt: skip
+    return Finding("error", "continuation line with no card to continue", card.location(),
+                   hint + "; at the top of an included file ngspice 39 joins it to the card "
+                   "before the include card")  # fmt: skip
 
 
 def _parse_all(decks: Iterable[Deck], index: DeckIndex) -> Iterator[Finding]:
@@ -148,7 +162,7 @@ def lint_project(project: Project, index: DeckIndex | None = None) -> list[Findi
     index = index or DeckIndex(project)
     findings = list(_parse_all(decks, index))
     for deck in decks:
-        findings.extend(_structure(deck.body, top=True))
+        findings.extend(_structure(deck.body, titled=deck.title is not None))
     globals_ = global_names(index)
     for scope, block in _scopes(index.top):
         findings.extend(_connections(index, scope, block, globals_))
