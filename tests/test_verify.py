@@ -306,3 +306,13 @@ def test_heat_only_part_delivering_power_is_warned_of(tmp_path: Path, analysis: 
     outcome = runner.run(deck_path, note, runner.RunOptions())
     found = [f for f in outcome.prepared.findings if "negative dissipation" in f.message]
     assert found and "-0.25 W" in found[0].message
+
+
+def test_tripped_ptc_state_is_where_a_transient_from_cold_ends(tmp_path: Path) -> None:
+    # A second reference for the recovered operating point: ngspice's own transient from
+    # cold over twelve thermal time constants (Rth Cth = 50 s) of the same deck.
+    deck, note = write(tmp_path, PTC_DECK.format(v=60), PTC_NOTE)
+    steady = runner.run(deck, note, runner.RunOptions()).results.part("RP").temperature
+    options = runner.RunOptions(analyses=("tran 0.5 600",))
+    warm = runner.run(deck, note, options).results.part("RP").temperature
+    assert steady == pytest.approx(warm, abs=0.05)

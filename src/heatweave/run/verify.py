@@ -217,8 +217,8 @@ def recover(
         if stable:
             how = (
                 f"where {part.path} settles when switched on from cold: the branch from cold "
-                f"ends at {100 * diagnosis.drive:.3g} % of the full dissipation (loop gain "
-                f"{diagnosis.loop_gain:.3g}), and {part.path} switches to its steady state at "
+                f"folds at {100 * diagnosis.drive:.3g} % of the full dissipation (its loop "
+                f"gain reaches 1 there), and {part.path} switches to its steady state at "
                 f"{stable[0].temperature:.4g} degC"
             )
             return resolve(inputs, options, prepared, stable[0].temps, why, how)
