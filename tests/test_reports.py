@@ -23,7 +23,7 @@ from matplotlib.patches import Rectangle
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
-from heatweave.annotation.ratings import derated_power, margins, worst_instant
+from heatweave.annotation.ratings import derated_power, margins
 from heatweave.emit.emitter import load_inputs
 from heatweave.reports import RunReport, build_report, csv_report, json_report, plot
 from heatweave.reports.model import parse_probe
@@ -323,21 +323,6 @@ def test_csv_operating_point_is_one_row_without_time() -> None:
         *[f"V({node}) [V]" for node in report.results.voltages],  # no probe: no I() column
     ]  # fmt: skip
     assert float(rows[1][0]) == report.results.part("RA").temperature
-
-
-# (power W over time, local ambient degC over time, index that decides the margin), for a
-# 0.25 W part with the IEC 60115-1 curve 70 -> 155 degC; allowed at 120 degC is
-# 0.25 * 35 / 85 = 0.103 W, worked by hand.
-WORST = [
-    ([0.1, 0.2, 0.15], [25.0, 25.0, 120.0], 2),  # the derated instant binds
-    ([0.1, 0.2, 0.05], [25.0, 25.0, 120.0], 1),  # the power peak binds
-    ([0.3], [25.0], 0),  # an operating point
-]
-
-
-@pytest.mark.parametrize(("power", "local", "index"), WORST)
-def test_worst_instant(power: list[float], local: list[float], index: int) -> None:
-    assert worst_instant(0.25, power, local, 70.0, 155.0) == index
 
 
 def test_table_margins_agree_with_check() -> None:

@@ -9,7 +9,6 @@ Part 1: Generic specification), whose usual knee is 70 degC.  ``run`` prints the
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from dataclasses import dataclass
 
 #: The knee IEC 60115-1 uses when a datasheet names none (degC).
@@ -66,24 +65,6 @@ def margins(
     allowed = derated_power(rating, local_ambient, knee, tmax)
     load = power / allowed if allowed > 0 else (float("inf") if power > 0 else 0.0)
     return Margins(temperature, allowed, allowed - power, load)
-
-
-def worst_instant(
-    rating: float,
-    power: Sequence[float],
-    local_ambient: Sequence[float],
-    knee: float = IEC_60115_KNEE,
-    tmax: float | None = None,
-) -> int:
-    """The index of the point of a run (dissipation and local ambient over time) where the
-    derated rating is closest to being exceeded, or most exceeded: the point that decides
-    the power margin.  An operating point is a run of one point."""
-    if len(power) != len(local_ambient) or not power:
-        raise ValueError("power and local_ambient need the same, non-zero number of points")
-    slack = [
-        derated_power(rating, t, knee, tmax) - p for p, t in zip(power, local_ambient, strict=True)
-    ]
-    return min(range(len(slack)), key=slack.__getitem__)
 
 
 def derating_limit(

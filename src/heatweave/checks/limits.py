@@ -7,8 +7,10 @@ Three kinds of limit are checked, each giving one :class:`LimitResult`:
   derated_power`: full power up to ``derating_knee``, zero at ``tmax``).  The temperature
   the rating is derated at is that of the node the part's thermal path ends on: the ambient
   for a part tied to ambient, the shared node's temperature (its terminal or local ambient,
-  e.g. the board area) for a part sitting on a shared node.  Over a transient the worst
-  instant counts;
+  e.g. the board area) for a part sitting on a shared node.  IEC 60115-1 rates continuous
+  load, so the rating is held against the part's ``power``, the mean dissipation over the
+  last period of the deck's drive (the final value when it is DC), at the local ambient
+  where the run ends; ``tmax`` catches the peak temperature;
 * ``[limit."V(out)"]`` tables on the deck's own nodes: ``min`` and ``max`` on the value
   (every point of a transient), ``max_drift_ppm`` on ``|V_hot / V_base - 1|`` where
   ``V_base`` is the same deck run without self-heating (:func:`heatweave.run.runner.
@@ -29,9 +31,9 @@ import numpy.typing as npt
 
 from heatweave.annotation import Annotation, LimitSpec
 from heatweave.annotation.fields import closest
-from heatweave.annotation.ratings import derated_power, worst_instant
+from heatweave.annotation.ratings import derated_power
 from heatweave.errors import AnnotationError
-from heatweave.run.results import PartResult, RunResults, main_plot
+from heatweave.run.results import PartResult, RunResults, build_part, main_plot, power_meaning
 from heatweave.run.runner import RunOutcome
 from heatweave.settle.periodic import Settled
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
@@ -207,24 +209,24 @@ def _power_limit(part: PartResult, results: RunResults, ambient: FloatArray) -> 
         local, where = results.node_series[plan.to_label], f'node "{plan.to_label}"'
     else:
         local, where = np.array([results.nodes[plan.to_label]]), f'node "{plan.to_label}"'
-    power = part.power_series if part.power_series is not None else np.array([part.power])
-    powers, temps = [float(p) for p in power], [float(t) for t in local]
+    # IEC 60115-1 rates continuous load: the mean dissipation (the result's power), at the
+    # local ambient where the run ends (a settled period: its warmest), as run's report
+    # holds it (heatweave.reports.model).
     settled = results.analysis == SETTLED
-    if settled:  # continuous load: the period's mean, at the warmest local temperature
-        powers, temps = [part.power], [max(temps)]
-        local = np.array(temps)
-    worst = worst_instant(rating, powers, temps, plan.derating_knee, plan.tmax)
-    allowed = derated_power(rating, temps[worst], plan.derating_knee, plan.tmax)
-    at = f"{_num(float(local[worst]))} degC at {where}"
+    at_local = float(np.max(local)) if settled else float(local[-1])
+    allowed = derated_power(rating, at_local, plan.derating_knee, plan.tmax)
+    at = f"{_num(at_local)} degC at {where}"
     if plan.tmax is None:  # no upper category temperature: no curve to derate along
         detail = f"rating {_num(rating)} W, not derated: no tmax given ({at})"
     else:
         detail = f"rating {_num(rating)} W derated for {at}"
     if settled:
         detail = f"mean over the settled period; {detail}, its warmest in the period"
-    elif results.time is not None:
-        detail += " " + _when(results, worst)
-    return LimitResult(part.path, "power_rating", powers[worst], allowed, "W", True, detail)
+    else:
+        if results.time is not None:
+            detail += " " + _when(results, -1)
+        detail += "; " + power_meaning(results)
+    return LimitResult(part.path, "power_rating", part.power, allowed, "W", True, detail)
 
 
 def signal_limits(
@@ -330,14 +332,11 @@ def settled_results(settled: Settled) -> RunResults:
     temps, n = settled.temperatures, len(settled.parts)
     parts = []
     for k, part in enumerate(settled.parts):
-        parts.append(
-            PartResult(
-                path=part.path, model=part.model, temperature=part.temperature,
-                power=part.power, resistance=part.resistance,
-                nominal_resistance=part.nominal_resistance,
-                peak_temperature=part.peak_temperature, peak_power=part.peak_power,
-                temperature_series=temps[:, k], power_series=settled.power[:, k],
-                plan=part.plan,
+        assert part.plan is not None
+        parts.append(  # the one builder, as settle itself built the part
+            build_part(
+                part.plan, temps[:, k], settled.power[:, k], time=settled.time,
+                period=settled.period, temperature_value=part.temperature,
             )
         )  # fmt: skip
     nodes = {label: temps[:, n + j] for j, label in enumerate(settled.nodes)}

@@ -26,6 +26,7 @@ from heatweave.emit.splice import insert_before_end
 from heatweave.emit.temperature import temp_card
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.quantities import counted
+from heatweave.run.drive import deck_drive, source_cards
 from heatweave.run.prepare import (
     ANALYSIS_CARDS,
     RunOptions,
@@ -33,7 +34,13 @@ from heatweave.run.prepare import (
     deck_folder,
     made_safe,
 )
-from heatweave.run.results import PartResult, RunResults, device_name, range_findings
+from heatweave.run.results import (
+    RunResults,
+    build_part,
+    device_name,
+    drive_findings,
+    range_findings,
+)
 from heatweave.run.runner import RunOutcome
 from heatweave.spice.deck import Card, Node
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
@@ -82,10 +89,7 @@ class FastOutcome:
 
 def electrical_time_scale(index: DeckIndex) -> float | None:
     """The slowest time scale of the deck's independent sources (s), or ``None``."""
-    texts = [card.logical().text for card in index.project.deck.cards() if card.is_element]
-    for include in index.project.includes:
-        texts += [card.logical().text for card in include.deck.cards() if card.is_element]
-    return source_time_scale(texts)
+    return source_time_scale(source_cards(index))
 
 
 def _analyses(inputs: Inputs, options: RunOptions) -> tuple[str, ...]:
@@ -202,6 +206,7 @@ def run(
     text, dropped = made_safe(inputs.project.deck.write(), inputs, options, allow=False)
     from pathlib import Path
 
+    period = deck_drive(inputs.index).period
     plan = Plan(
         circuit.parts,
         probes(circuit, inputs.index),
@@ -209,12 +214,14 @@ def run(
         float(circuit.ambient),
         tran,
         tolerance,
+        period,
     )
     folder = Path(options.cwd or deck_folder(inputs))
     trace = cosimulate(plain_deck(text, circuit), folder, plan, options.timeout, options.init_file)
-    results = to_results(trace, circuit, system)
+    results = to_results(trace, circuit, system, period)
     reason = f"co-simulation in {counted(trace.windows, 'window')}"
-    past = range_findings(results)  # a part beyond its model's range, as runner.run warns
+    # A part beyond its model's range, a drive without one period: as runner.run says.
+    past = range_findings(results) + drive_findings(results, inputs.index)
     return FastOutcome(results, "cosim", reason, findings + dropped + past, trace=trace)
 
 
@@ -248,32 +255,31 @@ def probes(circuit: ThermalCircuit, index: DeckIndex) -> list[Probe]:
     return out
 
 
-def to_results(trace: Trace, circuit: ThermalCircuit, system: ThermalSystem) -> RunResults:
+def to_results(
+    trace: Trace, circuit: ThermalCircuit, system: ThermalSystem, period: float | None = None
+) -> RunResults:
     """The co-simulation's record as :class:`RunResults` on its window grid.
 
-    A part's ``power`` is its mean dissipation over the last window (the full deck reports
-    the value at the last time point); its series are per window (see :class:`Trace`).
+    Every key means what it means for the full deck (:func:`heatweave.run.results.
+    build_part`): ``power`` is the mean over the last drive *period* and ``peak_power`` the
+    instantaneous peak, both from ngspice's own time points (:class:`Trace`); the series
+    are per window (the power series: each window's mean).
     """
     n_parts = len(circuit.parts)
     parts = []
     for j, part in enumerate(circuit.parts):
-        temp, power, ohms = trace.temperatures[j], trace.power[j], trace.resistance[j]
-        assert part.model is not None
-        nominal = float(part.model.resistance(getattr(part.model, "tref", 25.0)))
+        samples = None
+        if trace.tail_time.shape[0]:
+            samples = (trace.tail_time, trace.tail_power[j], float(trace.peak_power[j]))
         parts.append(
-            PartResult(
-                path=part.path,
-                model=part.model_name,
-                temperature=float(temp[-1]),
-                power=float(power[-1]),
-                resistance=float(ohms[-1]),
-                nominal_resistance=nominal,
-                peak_temperature=float(temp.max()),
-                peak_power=float(power.max()),
-                temperature_series=temp,
-                power_series=power,
-                resistance_series=ohms,
-                plan=part,
+            build_part(
+                part,
+                trace.temperatures[j],
+                trace.power[j],
+                time=np.asarray(trace.time),
+                resistance=trace.resistance[j],
+                period=period,
+                samples=samples,
             )
         )
     nodes = {
@@ -295,4 +301,5 @@ def to_results(trace: Trace, circuit: ThermalCircuit, system: ThermalSystem) -> 
         voltage_series=dict(trace.voltages),
         currents={name: float(values[-1]) for name, values in trace.currents.items()},
         current_series=dict(trace.currents),
+        period=period,
     )

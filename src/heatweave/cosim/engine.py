@@ -61,6 +61,10 @@ class Trace:
     each time's temperature.  ``voltages`` are every node voltage at the window ends,
     ``currents`` every branch current (voltage sources, inductors) there.
     ``profile`` says where the wall-clock time went (s), ``stats`` is ngspice's ``rusage``.
+    ``tail_time`` and ``tail_power`` (parts x samples) are the instantaneous dissipation at
+    ngspice's own time points over the last drive period (:attr:`Plan.period`; the last
+    point without one), ``peak_power`` each part's instantaneous peak over the run: what
+    :func:`heatweave.run.results.build_part` takes ``power`` and ``peak_power`` from.
     """
 
     time: FloatArray
@@ -72,6 +76,9 @@ class Trace:
     profile: dict[str, float] = field(default_factory=dict)
     stats: str = ""
     currents: dict[str, FloatArray] = field(default_factory=dict)
+    tail_time: FloatArray = field(default_factory=lambda: np.zeros(0), repr=False)
+    tail_power: FloatArray = field(default_factory=lambda: np.zeros((0, 0)), repr=False)
+    peak_power: FloatArray = field(default_factory=lambda: np.zeros(0), repr=False)
 
     @property
     def windows(self) -> int:
@@ -102,6 +109,7 @@ class Plan:
     ambient: float
     tran: Transient
     tolerance: float
+    period: float | None = None  # the drive's period (heatweave.run.drive)
 
 
 def cosimulate(
@@ -139,7 +147,26 @@ class _Loop:
         self.index_a = np.array([row.get(p.node_a, ground) if p.node_a else ground for p in probes])
         self.index_b = np.array([row.get(p.node_b, ground) if p.node_b else ground for p in probes])
         self.held = np.zeros(self.bank.size)
+        self.period = plan.period
+        self.tail_time = np.zeros(0)
+        self.tail_power = np.zeros((self.bank.size, 0))
+        self.peak = np.full(self.bank.size, -np.inf)
         self.clock = _Clock()
+
+    def keep(self, t: FloatArray, squares: FloatArray) -> None:
+        """Record a window's instantaneous dissipation (*squares*: the squared drops at its
+        time points *t*): its peak, and the samples of the last drive period (one sample
+        before the period's start too, to interpolate it)."""
+        power = squares / self.held[:, None]
+        if power.size:
+            self.peak = np.maximum(self.peak, power.max(axis=1))
+        if self.tail_time.shape[0]:  # a window starts at the last one's final sample
+            t = np.concatenate((self.tail_time[:-1], t))
+            power = np.concatenate((self.tail_power[:, :-1], power), axis=1)
+        first = t.shape[0] - 1
+        if self.period is not None:
+            first = max(int(np.searchsorted(t, t[-1] - self.period, side="right")) - 1, 0)
+        self.tail_time, self.tail_power = t[first:].copy(), power[:, first:].copy()
 
     def hold(self, values: FloatArray, threshold: FloatArray | float = ALTER_THRESHOLD) -> None:
         """``alter`` every resistor whose held value moved by more than *threshold*."""
@@ -174,6 +201,7 @@ class _Loop:
             drops = self._drops(start, t.shape[0])
             self.clock.lap("read")
             power, moment = window_power(t, drops, self.held)
+            self.keep(t, drops)  # window_power left the squared drops in *drops*
             step = float(t[-1] - t[0])
             moments = np.zeros(n_parts + 1)
             moments[:n_parts] = moment
@@ -210,6 +238,9 @@ class _Loop:
             dict(self.clock.spent),
             stats,
             currents,
+            self.tail_time,
+            self.tail_power,
+            self.peak,
         )
 
     def _drops(self, start: int, length: int) -> FloatArray:

@@ -26,17 +26,18 @@ differences in K, resistances in ohm, dissipation in W, voltages in V.
 ``parts``
     One object per annotated part, by instance path, in annotation order:
     ``model`` (temperature model, ``null`` for heat-only parts), ``temperature`` (final),
-    ``peak_temperature`` (highest in a transient), ``resistance`` (final, ohm),
-    ``nominal_resistance`` (the deck's value), ``resistance_change_ppm`` and
-    ``resistance_change_percent`` (final, against the deck's value), ``power`` (final, W),
-    ``peak_power`` (transients), ``to`` (the thermal node its path ends at),
+    ``peak_temperature`` (highest in a transient), ``resistance`` (at the final
+    temperature, ohm), ``nominal_resistance`` (the model's value at its reference
+    temperature), ``resistance_change_ppm`` and ``resistance_change_percent`` (final,
+    against the nominal), ``power`` (W, the mean over the last period of the deck's
+    periodic sources, else the final value: :func:`heatweave.run.results.build_part`),
+    ``peak_power`` (instantaneous, transients), ``to`` (the thermal node its path ends at),
     ``ratings`` (``power_rating`` [W], ``tmax`` [degC], ``derating_knee`` [degC],
-    ``local_ambient``: the temperature at the cold end of its thermal path [degC] at the
-    instant that decides the power margin; ``allowed_power``: the IEC 60115-1 derated
-    rating there, W) and ``margins`` (``temperature``: ``tmax`` minus the hottest
-    temperature reached, K; ``power``: allowed minus actual dissipation at that instant, W;
-    ``load``: actual over allowed dissipation there, a fraction).  Negative margins mean a
-    rating is exceeded; ``check`` judges the same numbers.
+    ``local_ambient``: the temperature at the cold end of its thermal path where the run
+    ends [degC]; ``allowed_power``: the IEC 60115-1 derated rating there, W) and ``margins``
+    (``temperature``: ``tmax`` minus the hottest temperature reached, K; ``power``: allowed
+    minus ``power``, W; ``load``: ``power`` over allowed dissipation, a fraction).
+    Negative margins mean a rating is exceeded; ``check`` judges the same numbers.
 ``nodes``
     Shared thermal nodes by name: final temperature [degC].
 ``voltages``

@@ -4,9 +4,9 @@ The table, JSON, CSV and plot writers read a :class:`RunReport`, so a number pri
 terminal is the very number written to the JSON.  Rating margins follow
 :mod:`heatweave.annotation.ratings`, judged as ``check`` judges them: the local ambient
 of a part is the temperature at the cold end of its thermal path (the ambient, or the shared
-node it sits on);
-the power margin is taken at the instant of the run where the derated rating is closest to
-being exceeded; the temperature margin uses the hottest temperature reached.
+node it sits on), where the run ends; the power margin holds the derated rating against
+the part's mean dissipation (``power``, :func:`heatweave.run.results.build_part`); the
+temperature margin uses the hottest temperature reached.
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from heatweave.annotation import AMBIENT
-from heatweave.annotation.ratings import Margins, margins, worst_instant
+from heatweave.annotation.ratings import Margins, margins
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import Finding
 from heatweave.run.prepare import deck_analyses_of
@@ -32,7 +32,7 @@ PPM_LIMIT = 10_000
 @dataclass(frozen=True, slots=True)
 class PartRow:
     """One heated part as reports show it; ``local_ambient`` is the temperature (degC) at the
-    cold end of its thermal path at the instant that decides its power margin."""
+    cold end of its thermal path where the run ends, which its power rating is derated at."""
 
     result: PartResult
     to: str  # the annotation's name of the node its thermal path ends at
@@ -136,28 +136,23 @@ def local_ambient(results: RunResults, label: str, ambient: FloatArray) -> Float
 
 
 def part_row(part: PartResult, results: RunResults, ambient: FloatArray) -> PartRow:
-    """A part's row, its power margin taken at the worst instant of the run (as ``check``
-    judges it, :func:`heatweave.annotation.ratings.worst_instant`)."""
+    """A part's row, its power rating held against its mean dissipation (``power``) at the
+    local ambient where the run ends, as ``check`` holds it (IEC 60115-1 rates continuous
+    load; ``tmax`` is held against the hottest temperature reached)."""
     plan = part.plan
     assert plan is not None
-    local = local_ambient(results, plan.to_label, ambient)
-    power = part.power_series if part.power_series is not None else np.array([part.power])
-    worst = len(power) - 1
-    if plan.power_rating is not None:
-        worst = worst_instant(
-            plan.power_rating, power.tolist(), local.tolist(), plan.derating_knee, plan.tmax
-        )
+    local = float(local_ambient(results, plan.to_label, ambient)[-1])
     row_margins = margins(
         hottest=part.hottest,
-        power=float(power[worst]),
-        local_ambient=float(local[worst]),
+        power=part.power,
+        local_ambient=local,
         rating=plan.power_rating,
         tmax=plan.tmax,
         knee=plan.derating_knee,
     )
     return PartRow(
-        part, plan.to_label, float(local[worst]), plan.power_rating, plan.tmax,
-        plan.derating_knee, row_margins,
+        part, plan.to_label, local, plan.power_rating, plan.tmax, plan.derating_knee,
+        row_margins,
     )  # fmt: skip
 
 

@@ -6,7 +6,14 @@ using the same temperature models the emitted deck evaluates (so R(T) here is R(
 * a part's temperature is its hot-spot node voltage (1 V = 1 degC);
 * a resistor's resistance is its model at that temperature, its dissipation V^2/R;
 * a heat-only part's dissipation is ``sum (V(k) - V(last)) * I(k)`` over its sensed terminals;
-* the change of resistance is against the deck's value (the nominal at ``tref``);
+* the change of resistance is against the model's nominal value, R at its own reference
+  temperature (:attr:`~heatweave.tempmodels.TempModel.nominal_resistance`: the deck's
+  value at ``tref``, or ``r0``/``r25`` where the annotation gives one);
+* :func:`build_part` is the one place every method and command (full deck, co-simulation,
+  settle, sweep, check) turns a part's waveforms into these keys: ``power`` is the mean
+  over the last period of the deck's periodic sources (:mod:`heatweave.run.drive`; the
+  final value when none is periodic), ``peak_power`` the instantaneous peak,
+  ``nominal_resistance`` the model's value at its reference temperature;
 * a temperature outside the range where the part's model is defined
   (:attr:`~heatweave.tempmodels.TempModel.valid_range`) is an extrapolation, and
   :func:`range_findings` says so.
@@ -21,6 +28,7 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.errors import Finding, SimulatorError
+from heatweave.run.drive import Drive, deck_drive, period_note
 from heatweave.simulators import Plot, SimResult
 from heatweave.spice.deck import Block
 from heatweave.spice.hierarchy import DeckIndex, Resolved, global_names, top_level_node
@@ -31,7 +39,10 @@ FloatArray = npt.NDArray[np.float64]
 
 @dataclass(frozen=True, slots=True)
 class PartResult:
-    """One heated part's results; series are ``None`` for an operating point."""
+    """One heated part's results; series are ``None`` for an operating point.
+
+    Built by :func:`build_part` only, so each key means the same for every method.
+    ``valley_temperature`` is the lowest temperature of a settled period (``settle``)."""
 
     path: str
     model: str | None
@@ -45,10 +56,11 @@ class PartResult:
     power_series: FloatArray | None = field(default=None, repr=False)
     resistance_series: FloatArray | None = field(default=None, repr=False)
     plan: PartPlan | None = field(default=None, repr=False, compare=False)
+    valley_temperature: float | None = None
 
     @property
     def resistance_change(self) -> float | None:
-        """Relative change of resistance against the deck's value (final point)."""
+        """Relative change of resistance against the model's nominal value (final point)."""
         if self.resistance is None or not self.nominal_resistance:
             return None
         return self.resistance / self.nominal_resistance - 1.0
@@ -76,6 +88,8 @@ class RunResults:
     #: inductors, ...), by device name as ngspice names it (``vamm``, ``v.x1.vs``).
     currents: dict[str, float] = field(default_factory=dict)
     current_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
+    #: The period ``power`` is the mean over (s); ``None``: the final value.
+    period: float | None = None
 
     def part(self, path: str) -> PartResult:
         """A part's results by instance path (case-insensitive)."""
@@ -83,6 +97,95 @@ class RunResults:
             if part.path.lower() == path.lower():
                 return part
         raise KeyError(path)
+
+
+def period_mean(time: FloatArray, values: FloatArray, period: float | None) -> float:
+    """The mean of *values* over the last *period* seconds of *time* (the whole series
+    when it is shorter; the last value without a period or a span).
+
+    The trapezoid over the simulator's own time points, the window's start interpolated
+    linearly between its two neighbours: the integral of the waveform ngspice computed,
+    never a resampling of it."""
+    if period is None or len(time) < 2 or not time[-1] > time[0]:
+        return float(values[-1])
+    start = float(time[-1]) - period
+    if start <= float(time[0]):
+        t, v = time, values
+    else:
+        k = int(np.searchsorted(time, start, side="right"))
+        t = np.concatenate(([start], time[k:]))
+        v = np.concatenate(([np.interp(start, time, values)], values[k:]))
+    return float(np.trapezoid(v, t) / (t[-1] - t[0]))
+
+
+def build_part(
+    plan: PartPlan,
+    temperature: FloatArray,
+    power: FloatArray,
+    *,
+    time: FloatArray | None = None,
+    resistance: FloatArray | None = None,
+    period: float | None = None,
+    samples: tuple[FloatArray, FloatArray, float] | None = None,
+    temperature_value: float | None = None,
+) -> PartResult:
+    """One part's result from its waveforms: the one definition of every key.
+
+    *temperature*, *power* (and *resistance*, a resistor's series) are series over *time*,
+    or one value each for an operating point.  ``power`` is :func:`period_mean` over
+    *period*, ``peak_power`` the largest instantaneous value; ``temperature`` the final
+    value and ``peak_temperature`` the largest; ``resistance`` the model's value at the
+    reported temperature, ``nominal_resistance`` at its reference temperature.
+
+    *samples* are ``(time, power, peak)`` at the simulator's own time points when *power*
+    is a coarser series (the co-simulation's window means): the mean and the peak come
+    from them.  *temperature_value* replaces the final temperature where the method
+    reports another one (``settle``: the period mean, with ``valley_temperature`` the
+    period's lowest)."""
+    transient = time is not None and len(time) > 1
+    if samples is not None:
+        mean, peak = period_mean(samples[0], samples[1], period), samples[2]
+    elif transient:
+        assert time is not None
+        mean, peak = period_mean(time, power, period), float(np.max(power))
+    else:
+        mean, peak = float(power[-1]), None
+    model = plan.model
+    reported = float(temperature[-1]) if temperature_value is None else temperature_value
+    return PartResult(
+        path=plan.path,
+        model=plan.model_name,
+        temperature=reported,
+        power=mean,
+        resistance=None if model is None else float(model.resistance(reported)),
+        nominal_resistance=None if model is None else model.nominal_resistance,
+        peak_temperature=float(np.max(temperature)) if transient else None,
+        peak_power=peak,
+        temperature_series=temperature if transient else None,
+        power_series=power if transient else None,
+        resistance_series=resistance if transient else None,
+        plan=plan,
+        valley_temperature=float(np.min(temperature)) if temperature_value is not None else None,
+    )
+
+
+def drive_findings(results: RunResults, index: DeckIndex) -> tuple[Finding, ...]:
+    """A note when ``power`` of a transient could not be the mean over one common period
+    of the drive (:func:`heatweave.run.drive.period_note`)."""
+    if results.time is None or results.period is None or len(results.time) < 2:
+        return ()
+    span = float(results.time[-1] - results.time[0])
+    note = period_note(deck_drive(index), span)
+    return () if note is None else (note,)
+
+
+def power_meaning(results: RunResults) -> str:
+    """What ``power`` is for *results*, in words (reports and limit details)."""
+    if results.time is None:
+        return "power at the operating point"
+    if results.period is None:
+        return "power at the end of the transient (no periodic source)"
+    return f"power averaged over the last period, {results.period:.4g} s"
 
 
 def main_plot(sim: SimResult) -> Plot:
@@ -153,11 +256,17 @@ def _owner(definitions: tuple[Block, ...], k: int) -> int:
     return -1
 
 
-def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunResults:
-    """Read a simulation of an emitted deck back into per-part results."""
+def extract(
+    sim: SimResult, circuit: ThermalCircuit, index: DeckIndex, drive: Drive | None = None
+) -> RunResults:
+    """Read a simulation of an emitted deck back into per-part results; *drive* is the
+    deck's (:func:`heatweave.run.drive.deck_drive`, found here when not given)."""
     plot = main_plot(sim)
     transient = plot.kind == "tran"
     time = _vector(plot, "time") if transient and "time" in plot else None
+    period = None
+    if time is not None:
+        period = (drive or deck_drive(index)).period
     globals_ = global_names(index) | {AMBIENT_NODE}
 
     def voltage(node: str) -> FloatArray:
@@ -171,14 +280,11 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
         assert resolved is not None
         temp = _vector(plot, f"v({part.node})")
         nodes = [top_level_node(resolved, n, globals_) for n in part.terminals]
-        resistance = nominal = None
         if part.model is not None:
             r_series = part.model.resistance(temp)
             resistance_series: FloatArray | None = r_series
             drop = voltage(nodes[0]) - voltage(nodes[1])
             power = drop * drop / r_series
-            resistance = float(r_series[-1])
-            nominal = part.nominal_resistance
         else:
             resistance_series = None
             power = np.zeros_like(temp)
@@ -189,19 +295,8 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
                     plot, f"i({sense})"
                 )
         parts.append(
-            PartResult(
-                path=part.path,
-                model=part.model_name,
-                temperature=float(temp[-1]),
-                power=float(power[-1]),
-                resistance=resistance,
-                nominal_resistance=nominal,
-                peak_temperature=float(temp.max()) if transient else None,
-                peak_power=float(power.max()) if transient else None,
-                temperature_series=temp if transient else None,
-                power_series=power if transient else None,
-                resistance_series=resistance_series if transient else None,
-                plan=part,
+            build_part(
+                part, temp, power, time=time, resistance=resistance_series, period=period
             )
         )
     nodes_final: dict[str, float] = {}
@@ -239,6 +334,7 @@ def extract(sim: SimResult, circuit: ThermalCircuit, index: DeckIndex) -> RunRes
         ambient_series=ambient_values if transient else None,
         currents=currents,
         current_series=current_series,
+        period=period,
     )
 
 

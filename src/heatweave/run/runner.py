@@ -21,6 +21,7 @@ from heatweave.errors import (
 from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate
 from heatweave.run.results import (
     RunResults,
+    drive_findings,
     extract,
     implausible,
     outside_range,
@@ -70,7 +71,7 @@ def run(
         # The warnings from emitting still matter (a dropped .control block, say).
         err.findings = (*prepared.findings, *err.findings)
         raise
-    beyond = range_findings(results)
+    beyond = range_findings(results) + drive_findings(results, inputs.index)
     if beyond:
         prepared = replace(prepared, findings=prepared.findings + beyond)
     return RunOutcome(prepared, sim, results)

@@ -43,7 +43,7 @@ import numpy.typing as npt
 from heatweave.emit.emitter import Inputs, load_inputs
 from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, UsageError
 from heatweave.run.prepare import RunOptions
-from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, range_warning
+from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, PartResult, build_part, range_warning
 from heatweave.run.verify import NoSteadyStateError
 from heatweave.settle.electrical import Cycle, Electrical
 from heatweave.settle.sources import DrivePeriod, drive_period, seconds
@@ -120,6 +120,19 @@ class PartSettled:
     resistance: float | None  # at the cycle-mean temperature (ohm)
     nominal_resistance: float | None
     plan: PartPlan | None = field(default=None, repr=False, compare=False)
+
+    @classmethod
+    def of(cls, result: PartResult) -> PartSettled:
+        """The settled view of a result :func:`~heatweave.run.results.build_part` made from
+        the settled period (so ``power``, ``peak_power`` and ``nominal_resistance`` mean
+        what they mean for ``run``)."""
+        assert result.peak_temperature is not None and result.valley_temperature is not None
+        assert result.peak_power is not None
+        return cls(
+            result.path, result.model, result.temperature, result.peak_temperature,
+            result.valley_temperature, result.power, result.peak_power, result.resistance,
+            result.nominal_resistance, result.plan,
+        )  # fmt: skip
 
 
 @dataclass(frozen=True, slots=True)
@@ -371,26 +384,15 @@ def settle(
     cycle, steps = loop.run()
     ripple = periodic(system, cycle.time, cycle.power, ambient)
     verdict = verify_settled(loop, ripple.mean, cycle.mean_power)
-    parts = []
-    for k, plan in enumerate(circuit.parts):
-        model = plan.model
-        mean = float(ripple.mean[k])
-        parts.append(
-            PartSettled(
-                path=plan.path,
-                model=plan.model_name,
-                temperature=mean,
-                peak_temperature=float(ripple.peak[k]),
-                valley_temperature=float(ripple.valley[k]),
-                power=float(cycle.mean_power[k]),
-                peak_power=float(np.max(cycle.power[:, k])),
-                resistance=None if model is None else float(model.resistance(mean)),
-                nominal_resistance=None
-                if model is None
-                else float(model.resistance(getattr(model, "tref", 25.0))),
-                plan=plan,
-            )
+    parts = [
+        PartSettled.of(
+            build_part(
+                plan, ripple.outputs[:, k], cycle.power[:, k], time=cycle.time,
+                period=options.period, temperature_value=float(ripple.mean[k]),
+            )  # the cycle mean is the settled temperature; peak and valley its extremes
         )
+        for k, plan in enumerate(circuit.parts)
+    ]  # fmt: skip
     n = len(circuit.parts)
     labels = [node.label for node in circuit.nodes]
     envelope = None

@@ -142,6 +142,19 @@ class TempModel(ABC):
         """The temperature (degC) at which the deck's value holds: *tref*, else the default."""
         return cls.default_tref if tref is None else tref
 
+    @property
+    def reference_temperature(self) -> float:
+        """The temperature (degC) the model's nominal value belongs to: ``tref`` where the
+        deck's value holds there, else the one the model's own nominal key names (``r0`` of
+        ``rtd``: 0 degC, ``r25``: 25 degC).  Every model answers here, whatever it calls it."""
+        return self.default_tref
+
+    @property
+    def nominal_resistance(self) -> float:
+        """R (ohm) at :attr:`reference_temperature`: the ``nominal_resistance`` every method
+        reports, and what a resistance change is measured against."""
+        return float(self.resistance(self.reference_temperature))
+
     @abstractmethod
     def _resistance(self, t_c: FloatArray) -> FloatArray: ...
 

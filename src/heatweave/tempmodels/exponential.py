@@ -64,6 +64,10 @@ class Exponential(TempModel):
     def _k(self) -> float:
         return self.tce * _LN101
 
+    @property
+    def reference_temperature(self) -> float:
+        return self.tref
+
     def _resistance(self, t_c: FloatArray) -> FloatArray:
         return self.r0 * np.exp(self._k * (t_c - self.tref))
 

@@ -111,6 +111,10 @@ class Polynomial(TempModel):
             tc2=pick(params, cls.params, "tc2") or 0.0,
         )
 
+    @property
+    def reference_temperature(self) -> float:
+        return self.tref
+
     def _resistance(self, t_c: FloatArray) -> FloatArray:
         dt = t_c - self.tref
         return self.r0 * (1.0 + self.tc1 * dt + self.tc2 * dt * dt)

@@ -62,6 +62,10 @@ class NtcBeta(TempModel):
             return cls(r25, 25.0, beta)
         return cls(r_nominal, cls.reference(tref), beta)
 
+    @property
+    def reference_temperature(self) -> float:
+        return self.t_ref
+
     def _resistance(self, t_c: FloatArray) -> FloatArray:
         inv = 1.0 / (t_c + KELVIN_OFFSET) - 1.0 / (self.t_ref + KELVIN_OFFSET)
         return self.r_ref * np.exp(self.beta * inv)

@@ -59,6 +59,7 @@ class NtcSteinhartHart(TempModel):
     a: float
     b: float
     c: float
+    tref: float = 25.0  # degC its nominal value is reported at (the deck's value is unused)
 
     @classmethod
     def from_params(
@@ -68,7 +69,11 @@ class NtcSteinhartHart(TempModel):
         assert a is not None and b is not None and c is not None
         if c < 0:
             raise ValueError("c must be zero or positive for a unique real R(T)")
-        return cls(a, b, c)
+        return cls(a, b, c, cls.reference(tref))
+
+    @property
+    def reference_temperature(self) -> float:
+        return self.tref
 
     def ln_r(self, t_c: FloatArray) -> FloatArray:
         """ln R at *t_c* (degC), the real root of the Steinhart-Hart cubic."""

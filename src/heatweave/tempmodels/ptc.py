@@ -95,6 +95,7 @@ class Ptc(TempModel):
     t_switch: float
     k: float  # natural-log rise per kelvin
     r_max: float
+    tref: float = 25.0  # degC where the nominal belongs: r25's 25, or tref for the deck's value
 
     @classmethod
     def from_params(
@@ -111,13 +112,19 @@ class Ptc(TempModel):
             k = math.log1p(alpha / 100.0)
         r25 = written(params, "r25")
         r_max = written(params, "r_max")
+        at = 25.0
         if r25 is None:
-            r25 = cold_resistance(r_nominal, cls.reference(tref), t_switch, k, r_max)
+            at = cls.reference(tref)
+            r25 = cold_resistance(r_nominal, at, t_switch, k, r_max)
         if r_max is None:
             r_max = DEFAULT_RATIO * r25
         if r_max <= r25:
             raise ValueError(f"r_max ({fmt(r_max)} ohm) must exceed the cold resistance")
-        return cls(r25, t_switch, k, r_max)
+        return cls(r25, t_switch, k, r_max, at)
+
+    @property
+    def reference_temperature(self) -> float:
+        return self.tref
 
     def _rise(self, t_c: FloatArray) -> FloatArray:
         return np.exp(np.clip(self.k * (t_c - self.t_switch), -EXP_CLAMP, EXP_CLAMP))

@@ -64,6 +64,7 @@ class Rtd(TempModel):
     a: float = IEC_A
     b: float = IEC_B
     c: float = IEC_C
+    tref: float = 0.0  # degC where r0's value belongs: 0, or tref when the deck's value holds
 
     @classmethod
     def from_params(
@@ -75,9 +76,14 @@ class Rtd(TempModel):
         assert a is not None and b is not None and c is not None
         shape = cls(1.0, a, b, c)
         r0 = written(params, "r0")
-        if r0 is None:
-            r0 = r_nominal / shape.resistance(cls.reference(tref))
-        return cls(r0, a, b, c)
+        if r0 is not None:
+            return cls(r0, a, b, c)
+        at = cls.reference(tref)
+        return cls(r_nominal / shape.resistance(at), a, b, c, at)
+
+    @property
+    def reference_temperature(self) -> float:
+        return self.tref
 
     def _resistance(self, t_c: FloatArray) -> FloatArray:
         cold: FloatArray = np.minimum(t_c, 0.0)

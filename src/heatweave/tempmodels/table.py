@@ -60,6 +60,7 @@ class Table(TempModel):
 
     temps: tuple[float, ...]
     ohms: tuple[float, ...]
+    tref: float = 25.0  # degC where the deck's value holds (ratio), or its nominal is read
 
     @classmethod
     def from_params(
@@ -78,7 +79,11 @@ class Table(TempModel):
         ohms = tuple(float(p[1]) * scale for p in points)
         if any(r <= 0 for r in ohms):
             raise ValueError("table resistances must be positive")
-        return cls(temps, ohms)
+        return cls(temps, ohms, cls.reference(tref))
+
+    @property
+    def reference_temperature(self) -> float:
+        return self.tref
 
     def _resistance(self, t_c: FloatArray) -> FloatArray:
         return np.interp(t_c, self.temps, self.ohms)
