@@ -14,7 +14,7 @@ from pathlib import Path
 import pytest
 
 from heatweave.errors import UsageError
-from heatweave.settle.sources import drive_period, exact_value
+from heatweave.run.waves import drive_period, exact_value
 from heatweave.spice.hierarchy import DeckIndex, load_project
 
 

@@ -17,7 +17,7 @@ from heatweave.cosim.method import SEPARATION, Transient
 from heatweave.emit.emitter import Inputs, emit_inputs
 from heatweave.errors import HeatweaveError
 from heatweave.run.prepare import RunOptions, deck_analyses_of
-from heatweave.settle.sources import DrivePeriod, drive_period, seconds
+from heatweave.run.waves import DrivePeriod, drive_period, seconds
 from heatweave.thermal.solver import ThermalAssemblyError, assemble
 
 

@@ -26,7 +26,7 @@ from heatweave.emit.splice import insert_before_end
 from heatweave.emit.temperature import temp_card
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.quantities import counted
-from heatweave.run.drive import deck_drive, source_cards
+from heatweave.run.drive import deck_drive
 from heatweave.run.prepare import (
     ANALYSIS_CARDS,
     RunOptions,
@@ -89,7 +89,10 @@ class FastOutcome:
 
 def electrical_time_scale(index: DeckIndex) -> float | None:
     """The slowest time scale of the deck's independent sources (s), or ``None``."""
-    return source_time_scale(source_cards(index))
+    texts = [card.logical().text for card in index.project.deck.cards() if card.is_element]
+    for include in index.project.includes:
+        texts += [card.logical().text for card in include.deck.cards() if card.is_element]
+    return source_time_scale(texts)
 
 
 def _analyses(inputs: Inputs, options: RunOptions) -> tuple[str, ...]:

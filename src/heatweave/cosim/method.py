@@ -8,10 +8,11 @@ and ``"full"`` (the emitted electrothermal deck) otherwise, and says why.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+import re
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
-from heatweave.run.drive import numbers, source_functions
+from heatweave.quantities import parse_number
 from heatweave.thermal.circuit import ThermalCircuit
 from heatweave.thermal.solver import ThermalAssemblyError, assemble
 
@@ -19,6 +20,9 @@ from heatweave.thermal.solver import ThermalAssemblyError, assemble
 #: many times: the temperature ripple at the electrical time scale is then below about
 #: 1/(2 pi SEPARATION) of the rise, and so is the resistance ripple the co-simulation drops.
 SEPARATION = 20.0
+
+_PERIODIC = re.compile(r"\b(sin|pulse|sffm|am)\s*\(([^)]*)\)", re.IGNORECASE)
+
 
 @dataclass(frozen=True, slots=True)
 class Transient:
@@ -37,12 +41,18 @@ class Transient:
         if not words or words[0].lower().lstrip(".") != "tran":
             return None
         uic = any(w.lower() == "uic" for w in words[1:])
-        values = numbers(w for w in words[1:] if w.lower() != "uic")
-        if values is None or not 2 <= len(values) <= 4 or values[0] <= 0 or values[1] <= 0:
+        numbers = _numbers(w for w in words[1:] if w.lower() != "uic")
+        if (
+            numbers is None
+            or len(numbers) < 2
+            or len(numbers) > 4
+            or numbers[0] <= 0
+            or numbers[1] <= 0
+        ):
             return None
-        tstart = values[2] if len(values) > 2 else 0.0
-        tmax = values[3] if len(values) > 3 else None
-        return cls(values[0], values[1], tstart, tmax, uic)
+        tstart = numbers[2] if len(numbers) > 2 else 0.0
+        tmax = numbers[3] if len(numbers) > 3 else None
+        return cls(numbers[0], numbers[1], tstart, tmax, uic)
 
     def command(self) -> str:
         """The ngspice command for this request."""
@@ -62,11 +72,27 @@ def source_time_scale(cards: Sequence[str]) -> float | None:
     ``None`` when no source has a time scale.
     """
     slowest: float | None = None
-    for kind, values in source_functions(cards):
-        scale = _scale(kind, values)
-        if scale is not None and scale > 0:
-            slowest = scale if slowest is None else max(slowest, scale)
+    for text in cards:
+        if text[:1].lower() not in ("v", "i"):
+            continue
+        for match in _PERIODIC.finditer(text):
+            kind = match.group(1).lower()
+            values = _numbers(match.group(2).replace(",", " ").split())
+            scale = _scale(kind, values) if values is not None else None
+            if scale is not None and scale > 0:
+                slowest = scale if slowest is None else max(slowest, scale)
     return slowest
+
+
+def _numbers(words: Iterable[str]) -> list[float] | None:
+    """The words as numbers, or ``None`` if one is not a plain SPICE number."""
+    out = []
+    for word in words:
+        value = parse_number(word)
+        if value is None:
+            return None
+        out.append(value)
+    return out
 
 
 def _scale(kind: str, values: list[float]) -> float | None:

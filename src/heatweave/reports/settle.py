@@ -29,8 +29,8 @@ from heatweave.emit.emitter import Inputs
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.csv_report import TIME_HEADER, render_columns, temperature_header
 from heatweave.reports.table import WIDTH
+from heatweave.run.waves import seconds as seconds  # its home before run/waves
 from heatweave.settle.periodic import Settled, Step
-from heatweave.settle.sources import seconds as seconds  # its home before settle/sources
 
 
 def _number(value: float | None) -> float | None:

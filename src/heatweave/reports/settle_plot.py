@@ -17,8 +17,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from heatweave.reports.plot import node_name, palette, time_scale
+from heatweave.run.waves import seconds
 from heatweave.settle.periodic import Settled
-from heatweave.settle.sources import seconds
 
 
 def _ripple_unit(largest: float) -> tuple[float, str]:

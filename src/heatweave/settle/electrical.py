@@ -26,7 +26,7 @@ from heatweave.errors import ConvergenceError, EmitError, Finding
 from heatweave.quantities import format_number
 from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate
 from heatweave.run.results import RunResults, extract
-from heatweave.settle.sources import seconds
+from heatweave.run.waves import seconds
 from heatweave.thermal.circuit import PREFIX, PartPlan, ThermalCircuit, safe
 
 FloatArray = npt.NDArray[np.float64]

@@ -45,8 +45,8 @@ from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, Usa
 from heatweave.run.prepare import RunOptions
 from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, PartResult, build_part, range_warning
 from heatweave.run.verify import NoSteadyStateError
+from heatweave.run.waves import DrivePeriod, drive_period, seconds
 from heatweave.settle.electrical import Cycle, Electrical
-from heatweave.settle.sources import DrivePeriod, drive_period, seconds
 from heatweave.settle.thermal import periodic
 from heatweave.settle.warmup import Envelope, warm_up
 from heatweave.thermal.balance import Verdict, check_state
@@ -362,7 +362,7 @@ def settle(
 ) -> Settled:
     """The periodic electrothermal steady state of a deck driven with period
     ``options.period``, or the common period of its sources (see the module docstring for
-    the method and :mod:`heatweave.settle.sources` for the period)."""
+    the method and :mod:`heatweave.run.waves` for the period)."""
     check_options(options)
     inputs = inputs or load_inputs(deck_path, annotation_path)
     ambient = _ambient(inputs, options)
@@ -388,7 +388,7 @@ def settle(
         PartSettled.of(
             build_part(
                 plan, ripple.outputs[:, k], cycle.power[:, k], time=cycle.time,
-                period=options.period, temperature_value=float(ripple.mean[k]),
+                period=period, temperature_value=float(ripple.mean[k]),
             )  # the cycle mean is the settled temperature; peak and valley its extremes
         )
         for k, plan in enumerate(circuit.parts)

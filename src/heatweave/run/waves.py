@@ -41,6 +41,8 @@ MAX_RATIO = 1000
 #: multiple of it: the command line's decimal went through a float.
 RATIO_TOL = 1e-9
 
+#: Element letters that can carry a transient function (or ``time``): V, I, A, B, E, F, G, H.
+_DRIVEN = frozenset("VIABEFGH")
 _FUNCTIONS = ("pulse", "sin", "exp", "pwl", "sffm", "am", "trnoise", "trrandom", "external")
 _KEYWORD = re.compile(r"(?<![\w.{])(" + "|".join(_FUNCTIONS) + r")(?![\w])\s*", re.IGNORECASE)
 _TIME = re.compile(r"(?<![\w.])time(?![\w(])", re.IGNORECASE)
@@ -150,7 +152,7 @@ def _arguments(text: str, start: int) -> tuple[list[tuple[str, int]], int]:
     return out, k
 
 
-def _lcm(a: Fraction, b: Fraction) -> Fraction:
+def lcm(a: Fraction, b: Fraction) -> Fraction:
     """The least common multiple of two positive fractions."""
     return Fraction(math.lcm(a.numerator, b.numerator), math.gcd(a.denominator, b.denominator))
 
@@ -211,7 +213,7 @@ def read_wave(path: str, card: Card, params: Mapping[str, float]) -> Wave:
         )
         if carrier is None:
             return _problem(wave, "has no carrier frequency, so ngspice uses 1/TSTOP")
-        period = 1 / carrier if modulation is None else _lcm(1 / carrier, 1 / modulation)
+        period = 1 / carrier if modulation is None else lcm(1 / carrier, 1 / modulation)
         delay = (value(4) if kind == "AM" else None) or Fraction(0)
         return Wave(path, kind, where, period, float(delay))
     return _problem(wave, "does not repeat")
@@ -262,8 +264,10 @@ def deck_waves(index: DeckIndex) -> list[Wave]:
     top = top_params(index)
     waves = []
     for path in index.element_paths():
+        if path.rsplit(".", 1)[-1][:1].upper() not in _DRIVEN:
+            continue  # a resistor, a capacitor...: read without resolving it
         resolved = index.resolve(path)
-        if resolved is None or resolved.card.letter.upper() not in "VIABEFGH":
+        if resolved is None or resolved.card.letter.upper() not in _DRIVEN:
             continue
         params = scope_params(top, resolved) if resolved.instances else top
         waves.append(read_wave(path, resolved.card, params))
@@ -318,7 +322,7 @@ def drive_period(index: DeckIndex, given: float | None) -> DrivePeriod:
     least = Fraction(0)
     for wave in periodic:
         assert wave.period is not None
-        least = wave.period if not least else _lcm(least, wave.period)
+        least = wave.period if not least else lcm(least, wave.period)
         if shortest is not None and least > MAX_RATIO * Fraction(f"{shortest:.15g}"):
             listed = ", ".join(f"{w.describe()} {seconds(float(w.period or 0))}" for w in periodic)
             raise _refuse(
