@@ -14,7 +14,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from heatweave.cosim.method import SEPARATION, Transient
-from heatweave.emit.emitter import Inputs, emit_inputs
+from heatweave.emit.emitter import Inputs, thermal_circuit
 from heatweave.errors import HeatweaveError
 from heatweave.run.prepare import RunOptions, deck_analyses_of
 from heatweave.run.waves import DrivePeriod, drive_period, seconds
@@ -44,7 +44,7 @@ def choose(inputs: Inputs, options: RunOptions) -> Choice:
     at least :data:`SEPARATION` periods; else the run itself, with the reason."""
     if options.analyses:
         return Choice(None, "the analysis given on the command line")
-    own = deck_analyses_of(inputs.project.deck.write())
+    own = deck_analyses_of(inputs.project.deck)
     if len(own) != 1 or Transient.parse(own[0]) is None:
         asked = ", ".join(own) or "no analysis"
         return Choice(None, f"the deck asks for {asked}, not one transient")
@@ -54,8 +54,8 @@ def choose(inputs: Inputs, options: RunOptions) -> Choice:
         drive = drive_period(inputs.index, None)
     except HeatweaveError as err:
         return Choice(None, f"not periodic: {err.message}")
-    circuit = emit_inputs(inputs, ambient=options.ambient).circuit
-    if circuit is None or not circuit.parts:
+    circuit, _findings = thermal_circuit(inputs, ambient=options.ambient)
+    if not circuit.parts:
         return Choice(None, "no heated parts")
     try:
         system = assemble(circuit)

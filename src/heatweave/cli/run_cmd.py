@@ -228,7 +228,7 @@ def _simulate(
             report = build_report(inputs, fast.full, probe_signals(probe, fast.results))
             report = replace(report, method_reason=fast.reason)
         else:
-            own = tuple(deck_analyses_of(inputs.project.deck.write()))
+            own = tuple(deck_analyses_of(inputs.project.deck))
             report = report_of(
                 inputs, fast.results, options.analyses or own, "shared", fast.findings,
                 probe_signals(probe, fast.results), (fast.method, fast.reason),

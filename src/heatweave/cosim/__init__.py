@@ -17,15 +17,19 @@ and falls back to the full deck where the co-simulation would not be accurate.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 
 from heatweave.annotation import Annotation
-from heatweave.emit.emitter import Inputs, emit_inputs, load_inputs
+from heatweave.emit.emitter import Inputs, load_inputs, thermal_circuit
+from heatweave.emit.placement import refuse_unplaced
+from heatweave.emit.sections import folded_files
 from heatweave.emit.splice import insert_before_end
-from heatweave.emit.temperature import temp_card
+from heatweave.emit.temperature import temp_card, temperature_findings
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.quantities import counted
+from heatweave.run import runner
 from heatweave.run.drive import deck_drive
 from heatweave.run.prepare import (
     ANALYSIS_CARDS,
@@ -42,10 +46,9 @@ from heatweave.run.results import (
     range_findings,
 )
 from heatweave.run.runner import RunOutcome
-from heatweave.spice.deck import Card, Node
+from heatweave.spice.deck import Card, Deck, Node
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
-from heatweave.spice.reader import read
 from heatweave.thermal.circuit import AMBIENT_NODE, ThermalCircuit
 from heatweave.thermal.solver import ThermalSystem, assemble
 
@@ -98,15 +101,23 @@ def electrical_time_scale(index: DeckIndex) -> float | None:
 def _analyses(inputs: Inputs, options: RunOptions) -> tuple[str, ...]:
     if options.analyses:
         return tuple(options.analyses)
-    return tuple(a.lstrip(".") for a in deck_analyses_of(inputs.project.deck.write()))
+    return tuple(a.lstrip(".") for a in deck_analyses_of(inputs.project.deck))
 
 
 def _circuit(
     inputs: Inputs, options: RunOptions, annotation: Annotation | None
 ) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
-    emitted = emit_inputs(inputs, annotation=annotation, ambient=options.ambient)
-    assert emitted.circuit is not None
-    return emitted.circuit, emitted.findings
+    """The thermal circuit, built as the emitter builds it but without emitting, and what
+    the user must hear about the plain deck run at its ambient: the circuit's findings and
+    the deck's own temperature settings (:mod:`heatweave.emit.temperature`).  The emitter's
+    notes on its own cards (forms, noise, a closed ``.control`` block) do not apply: the
+    co-simulation writes none of them and drops every ``.control`` block."""
+    circuit, findings = thermal_circuit(inputs, annotation=annotation, ambient=options.ambient)
+    if not circuit.parts:
+        return circuit, findings
+    refuse_unplaced(inputs.index, circuit)  # the decks the full method refuses
+    files = ((deck, low) for deck, low, _title in folded_files(inputs.project))
+    return circuit, findings + tuple(temperature_findings(files, circuit))
 
 
 def run_auto(
@@ -122,7 +133,6 @@ def run_auto(
 
     ``cosim`` forced where it does not apply raises :class:`UsageError` with the reason.
     """
-    from heatweave.run import runner
     if method not in METHODS:
         raise UsageError(f"unknown method {method!r}", hint="choose auto, cosim or full")
     inputs = inputs or load_inputs(deck_path, annotation_path)
@@ -205,10 +215,9 @@ def run(
             hint="use the full method to run the deck as written",
         )
     system = assemble(circuit)
-    # Always dropped (with the warning): the co-simulation issues its own commands.
-    text, dropped = made_safe(inputs.project.deck.write(), inputs, options, allow=False)
-    from pathlib import Path
-
+    # Always dropped (with the warning): the co-simulation issues its own commands.  The
+    # deck as read is made safe and stripped as a tree, and written once.
+    safe = made_safe(inputs.project.deck, inputs, options, allow=False)
     period = deck_drive(inputs.index).period
     plan = Plan(
         circuit.parts,
@@ -220,29 +229,29 @@ def run(
         period,
     )
     folder = Path(options.cwd or deck_folder(inputs))
-    trace = cosimulate(plain_deck(text, circuit), folder, plan, options.timeout, options.init_file)
+    text = plain_deck(safe.deck, circuit).write()
+    trace = cosimulate(text, folder, plan, options.timeout, options.init_file)
     results = to_results(trace, circuit, system, period)
     reason = f"co-simulation in {counted(trace.windows, 'window')}"
     # A part beyond its model's range, a drive without one period: as runner.run says.
     past = range_findings(results) + drive_findings(results, inputs.index)
-    return FastOutcome(results, "cosim", reason, findings + dropped + past, trace=trace)
+    return FastOutcome(results, "cosim", reason, findings + safe.findings + past, trace=trace)
 
 
 #: Cards the co-simulation leaves out: it issues its own transient and needs every node.
 DROPPED_CARDS = ANALYSIS_CARDS | {".save"}
 
 
-def plain_deck(text: str, circuit: ThermalCircuit | None = None) -> str:
-    """The deck without its analysis and ``.save`` cards (see :data:`DROPPED_CARDS`); with
-    *circuit*, ending with ``.temp`` at its ambient, as the emitted deck does
-    (:mod:`heatweave.emit.temperature`)."""
-    deck = read(text)
+def plain_deck(deck: Deck, circuit: ThermalCircuit | None = None) -> Deck:
+    """*deck* without its top-level analysis and ``.save`` cards (see
+    :data:`DROPPED_CARDS`); with *circuit*, ending with ``.temp`` at its ambient, as the
+    emitted deck does (:mod:`heatweave.emit.temperature`)."""
     kept: list[Node] = [
         n for n in deck.body if not (isinstance(n, Card) and n.name in DROPPED_CARDS)
     ]
     if circuit is not None:
         kept = insert_before_end(kept, Card(temp_card(circuit) + "\n"))
-    return deck.with_body(tuple(kept)).write()
+    return deck.with_body(tuple(kept))
 
 
 def probes(circuit: ThermalCircuit, index: DeckIndex) -> list[Probe]:

@@ -24,16 +24,16 @@ comment; the output is deterministic, so diffs of emitted decks stay small.
 
 from __future__ import annotations
 
-import re
 from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
-from heatweave.annotation import Annotation, BoundPart
+from heatweave.annotation import Annotation, BoundPart, bind
 from heatweave.emit.forms import (
     added_nodes,
     resistor_cards,
     step_limit_options,
 )
+from heatweave.emit.placement import placed, refuse_multiplier
 from heatweave.emit.sections import (
     MARK,
     analyses,
@@ -52,7 +52,14 @@ from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 from heatweave.spice.hierarchy import DeckIndex, Project
 from heatweave.spice.netlist import positional_spans, rewrite_nodes
-from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
+from heatweave.thermal.circuit import (
+    AMBIENT_NODE,
+    PREFIX,
+    PartPlan,
+    ThermalCircuit,
+    build_circuit,
+    safe,
+)
 
 
 @dataclass(frozen=True, slots=True)
@@ -88,23 +95,12 @@ class _Rewriter:
         self.copies: dict[str, Block] = {}
         self.stencils = Stencils()
         self.top_cards: list[tuple[Card, PartPlan]] = []  # parts that are top-level cards
-        root = index.project.deck.source
         top: dict[int, PartPlan] = {}
         self.part_at[""] = top
         self.top_in_order = True  # top-level parts come in file order (bind gives deck order)
         last = -1
         for part in circuit.parts:
-            found = part.resolved or index.resolve(part.path)
-            if found is None:
-                raise EmitError(f"part {part.path!r} is not in the deck", part.location)
-            if not found.instances and found.card.source is not root:
-                where = found.card.source.path if found.card.source else "an included file"
-                raise EmitError(
-                    f"{part.path} is defined in an included file ({where})",
-                    part.location,
-                    hint="heatweave leaves included files untouched: move the card into the "
-                    "deck, or into a subcircuit definition (those are specialised in the deck)",
-                )
+            found = placed(index, part)
             if not found.instances:  # a top-level card: the common case
                 card = found.card
                 self.top_cards.append((card, part))
@@ -115,7 +111,7 @@ class _Rewriter:
                 continue
             prefix = ""
             for instance, definition in zip(found.instances, found.definitions, strict=True):
-                _refuse_multiplier(instance, part)
+                refuse_multiplier(instance, part)
                 spelled = f"{prefix}.{instance.head}" if prefix else instance.head
                 self.instance_at.setdefault(prefix.lower(), {})[id(instance)] = spelled
                 prefix = spelled
@@ -304,27 +300,6 @@ class _Rewriter:
         return lines
 
 
-_MULTIPLIER = re.compile(r"(?i)(?<=[\s,)])m\s*=")
-
-
-def _refuse_multiplier(instance: Card, part: PartPlan) -> None:
-    """An ``X`` card with ``m=`` above a part is an error: ngspice pushes the multiplier
-    into the definition's R, C, D, ... but not into behavioural or code-model sources
-    (manual 3.2.1), so the replaced resistor would lose it and the part's thermal network
-    would gain it."""
-    _nodes, _sub, params = x_card_parts(instance)
-    if not any(f.lower() == "m" and params[i + 1 : i + 2] == ["="] for i, f in enumerate(params)):
-        return
-    found = _MULTIPLIER.search(instance.logical().text)
-    raise EmitError(
-        f"{instance.head} multiplies its subcircuit (m=), which holds the annotated part "
-        f"{part.path}",
-        instance.location(found.start() if found else 0),
-        hint="write the multiplier on the resistor card inside (m= there sets its nominal "
-        "value), or place one instance per physical part",
-    )
-
-
 def _ends(card: Card, name: str, eol: str = "\n") -> Card:
     """A ``.ends`` for a copy: named when the original named its definition."""
     fields = card.fields()
@@ -443,6 +418,18 @@ def load_inputs(deck_path: str, annotation_path: str) -> Inputs:
     return Inputs(deck_path, annotation_path, project, index, annotation, bind(annotation, index))
 
 
+def thermal_circuit(
+    inputs: Inputs, *, annotation: Annotation | None = None, ambient: float | None = None
+) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
+    """The thermal circuit of *inputs* and what building it found; *annotation* replaces
+    the file's (a Monte Carlo draw, a corner) and *ambient* overrides its ambient."""
+    bound = inputs.bound if annotation is None else bind(annotation, inputs.index)
+    circuit, findings = build_circuit(annotation or inputs.annotation, bound, inputs.index)
+    if ambient is not None:
+        circuit = replace(circuit, ambient=float(ambient))
+    return circuit, tuple(findings)
+
+
 def emit_inputs(
     inputs: Inputs,
     *,
@@ -454,17 +441,8 @@ def emit_inputs(
     """The emitted deck for *inputs*; *annotation* replaces the file's (a Monte Carlo draw,
     a corner) and *ambient* overrides its ambient temperature.  ``heating=False`` gives
     the same deck with every part held at ambient (see :func:`emit_deck`)."""
-    from heatweave.thermal.circuit import build_circuit
-
     chosen = annotation or inputs.annotation
-    bound = inputs.bound
-    if annotation is not None:
-        from heatweave.annotation import bind
-
-        bound = bind(annotation, inputs.index)
-    circuit, findings = build_circuit(chosen, bound, inputs.index)
-    if ambient is not None:
-        circuit = replace(circuit, ambient=float(ambient))
+    circuit, findings = thermal_circuit(inputs, annotation=annotation, ambient=ambient)
     if not circuit.parts:
         # Nothing heats: the deck is written back unchanged, byte for byte.
         return Emitted(inputs.project.deck.write(), (), findings, circuit)

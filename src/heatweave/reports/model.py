@@ -163,7 +163,7 @@ def build_report(inputs: Inputs, outcome: RunOutcome, probes: tuple[Probe, ...] 
     return report_of(
         inputs,
         outcome.results,
-        prepared.analyses or tuple(deck_analyses_of(prepared.text)),
+        prepared.analyses or tuple(deck_analyses_of(prepared.deck)),
         outcome.sim.backend,
         prepared.findings,
         probes,

@@ -14,9 +14,9 @@ from pathlib import Path
 from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Emitted, Inputs, emit_inputs
 from heatweave.errors import Finding, UsageError
-from heatweave.run.safedeck import safe_deck
+from heatweave.run.safedeck import SafeDeck, safe_deck
 from heatweave.simulators import Progress, SimResult, get_simulator
-from heatweave.spice.deck import Card
+from heatweave.spice.deck import Card, Deck
 from heatweave.spice.reader import read
 
 #: Dot cards that ask ngspice for an analysis (manual 15.3).
@@ -50,7 +50,8 @@ def deck_folder(inputs: Inputs) -> str:
 
 @dataclass(frozen=True, slots=True)
 class Prepared:
-    """An emitted deck made ready to simulate, and the analyses to run on it."""
+    """An emitted deck made ready to simulate (*deck*, written as *text*), and the analyses
+    to run on it."""
 
     emitted: Emitted
     text: str
@@ -58,23 +59,25 @@ class Prepared:
     deck_analyses: bool
     findings: tuple[Finding, ...]
     cwd: str
+    #: The tree *text* was written from (a diagnosis that edits the text keeps it: its
+    #: analyses are the prepared ones).
+    deck: Deck = field(repr=False, compare=False, kw_only=True)
 
 
 def made_safe(
-    text: str, inputs: Inputs, options: RunOptions, allow: bool
-) -> tuple[str, tuple[Finding, ...]]:
-    """*text* as :func:`heatweave.run.safedeck.safe_deck` gives it to ngspice: includes
-    inlined (from ``options.cwd``, fixed by a sweep before its corners go elsewhere, or
-    the deck's folder), ``.control`` blocks and ``*#`` lines taken out unless *allow*, with
-    a warning for each (located in the user's files)."""
+    deck: Deck, inputs: Inputs, options: RunOptions, allow: bool, text: str | None = None
+) -> SafeDeck:
+    """*deck* (*text* when the caller has it written) as
+    :func:`heatweave.run.safedeck.safe_deck` gives it to ngspice: includes inlined (from
+    ``options.cwd``, fixed by a sweep before its corners go elsewhere, or the deck's
+    folder), ``.control`` blocks and ``*#`` lines taken out unless *allow*, with a warning
+    for each (located in the user's files)."""
     folder = options.cwd or deck_folder(inputs)
-    safe = safe_deck(text, inputs.project, folder, allow)
-    return safe.text, safe.findings
+    return safe_deck(deck, inputs.project, folder, allow, text)
 
 
-def deck_analyses_of(text: str) -> list[str]:
+def deck_analyses_of(deck: Deck) -> list[str]:
     """The analysis cards of a deck (top level), as written."""
-    deck = read(text)
     return [
         n.logical().text.strip()
         for n in deck.body
@@ -96,8 +99,10 @@ def prepare(
         ambient=options.ambient,
         heating=heating,
     )
-    text, dropped = made_safe(emitted.text, inputs, options, options.allow_control)
-    own = deck_analyses_of(text)
+    # The one read of the emitted text: the tree is made safe and written once.
+    deck = read(emitted.text, inputs.project.deck.path)
+    safe = made_safe(deck, inputs, options, options.allow_control, emitted.text)
+    own = deck_analyses_of(safe.deck)
     if not options.analyses and not own and not options.allow_control:
         raise UsageError(
             f"{inputs.deck_path} asks for no analysis (.op, .tran, ...)",
@@ -105,11 +110,12 @@ def prepare(
         )
     return Prepared(
         emitted,
-        text,
+        safe.text,
         tuple(options.analyses),
         deck_analyses=not options.analyses,
-        findings=emitted.findings + dropped,
+        findings=emitted.findings + safe.findings,
         cwd=options.cwd or deck_folder(inputs),
+        deck=safe.deck,
     )
 
 

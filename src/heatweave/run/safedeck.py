@@ -24,11 +24,12 @@ import re
 from collections.abc import Iterable
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import TypeVar
 
 from heatweave.errors import DeckStructureError, Finding, Location
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 from heatweave.spice.hierarchy import Project, include_target, library_section, refuse_foreign
-from heatweave.spice.reader import read, read_file
+from heatweave.spice.reader import read_file
 
 MARK = "*hw* "
 #: A line ngspice runs as a command although it looks like a comment (manual 17.5.80).
@@ -42,24 +43,30 @@ ALLOW_HINT = "pass --allow-control to keep them if you trust this deck and every
 
 @dataclass(frozen=True, slots=True)
 class SafeDeck:
-    """The text to simulate and the warnings about what was taken out of it."""
+    """The deck to simulate, its text, and the warnings about what was taken out of it."""
 
+    deck: Deck
     text: str
     findings: tuple[Finding, ...]
 
 
-def safe_deck(text: str, project: Project, folder: str, allow_control: bool) -> SafeDeck:
-    """*text* (the deck to simulate: emitted, or the plain deck) made safe for ngspice.
+def safe_deck(
+    deck: Deck, project: Project, folder: str, allow_control: bool, text: str | None = None
+) -> SafeDeck:
+    """*deck* (the tree to simulate: the emitted deck as read, or the plain deck) made safe
+    for ngspice, as a new tree; *text* is ``deck.write()`` when the caller has it.
 
     *project* is the deck as read, with its includes (their texts are taken from there, so
     a file is read once); *folder* is where the deck's relative include paths start.  With
     *allow_control* the ``.control`` blocks and ``*#`` lines stay (the user trusts the deck);
-    the includes are inlined and a script title replaced all the same.
+    the includes are inlined and a script title replaced all the same.  No text is read
+    here but an included file the project does not hold.
     """
+    if text is None:
+        text = deck.write()
     script_title = _SCRIPT.match(text) is not None
     if not script_title and _LOOK.search(text) is None:  # the common case: one scan
-        return SafeDeck(text, ())
-    deck = read(text, project.deck.path)
+        return SafeDeck(deck, text, ())
     files = {include.path: include.deck for include in project.includes}
     inliner = _Inliner(files, allow_control)
     body = inliner.body(deck.body, Path(folder), (), top=True)
@@ -68,7 +75,7 @@ def safe_deck(text: str, project: Project, folder: str, allow_control: bool) -> 
         title = "heatweave: a title line that asked ngspice to read a script was replaced\n"
     trailer = deck.trailer if allow_control else defuse(deck.trailer)
     safe = replace(deck, title=title, body=tuple(body), trailer=trailer)
-    return SafeDeck(safe.write(), findings(project, allow_control))
+    return SafeDeck(safe, safe.write(), findings(project, allow_control))
 
 
 def defuse(text: str) -> str:
@@ -138,7 +145,31 @@ class _Inliner:
         chosen = deck.body if section is None else library_section(deck, section, where)
         note = Card(f"{MARK}inlined: {card.logical().text}\n", self.card(card).lead)
         inner = self.body(chosen, Path(full).parent, (*chain, full), top=False)
+        if inner:
+            inner[-1] = _line_ended(inner[-1])
         return [note, *inner]
+
+
+def _line_ended(node: Node) -> Node:
+    """*node* ending with a line end: ngspice reads the last line of an included file that
+    does not end with one as a line of its own, so the inlined copy must end it too (else
+    the deck's next card would join it)."""
+    if isinstance(node, Card):
+        return _text_ended(node)
+    if isinstance(node, ControlBlock):
+        return _text_ended(node)
+    if node.end is not None:
+        return replace(node, end=_text_ended(node.end))
+    if node.body:
+        return replace(node, body=(*node.body[:-1], _line_ended(node.body[-1])))
+    return replace(node, header=_text_ended(node.header))
+
+
+_Lines = TypeVar("_Lines", Card, ControlBlock)
+
+
+def _text_ended(node: _Lines) -> _Lines:
+    return node if node.text.endswith("\n") else replace(node, text=node.text + "\n")
 
 
 def findings(project: Project, allow_control: bool) -> tuple[Finding, ...]:

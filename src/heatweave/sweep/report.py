@@ -83,7 +83,7 @@ def analyses(result: SweepResult) -> list[str]:
     """The analyses that ran: the command line's, else the deck's own cards."""
     if result.options.analyses:
         return list(result.options.analyses)
-    return deck_analyses_of(result.inputs.project.deck.write())
+    return deck_analyses_of(result.inputs.project.deck)
 
 
 def as_dict(result: SweepResult) -> dict[str, Any]:
