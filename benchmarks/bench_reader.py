@@ -83,7 +83,8 @@ def stages(deck: Path, annotation: Path) -> list[tuple[str, float]]:
     from heatweave.annotation import bind, load
     from heatweave.emit.emitter import Inputs, emit_inputs
     from heatweave.files import encode
-    from heatweave.spice.hierarchy import DeckIndex, load_project
+    from heatweave.spice.hierarchy import DeckIndex
+    from heatweave.spice.project import load_project
     from heatweave.thermal.circuit import build_circuit
 
     clock = time.process_time

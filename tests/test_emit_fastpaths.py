@@ -25,7 +25,8 @@ from heatweave.emit.emitter import _Rewriter, emit_files
 from heatweave.emit.forms import FORMS
 from heatweave.errors import HeatweaveError
 from heatweave.spice.globmatch import matching_paths
-from heatweave.spice.hierarchy import DeckIndex, load_project
+from heatweave.spice.hierarchy import DeckIndex
+from heatweave.spice.project import load_project
 
 DECK = """\
 stencil test deck

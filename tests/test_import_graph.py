@@ -35,6 +35,7 @@ STAGES = (
     "cli",
 )
 TOP_LEVEL_LIMIT = 8
+MODULE_LINES_LIMIT = 500
 #: ``python -m heatweave`` runs this top-level module: the command line's entry point, so it
 #: belongs to the last stage (it imports ``cli`` and nothing imports it).
 ENTRY_POINT = "heatweave.__main__"
@@ -134,3 +135,9 @@ def test_no_import_from_a_later_stage(module: str) -> None:
 def test_top_level_is_small() -> None:
     top = [p.name for p in PACKAGE.glob("*.py") if p.name != "__init__.py"]
     assert len(top) <= TOP_LEVEL_LIMIT, sorted(top)
+
+
+@pytest.mark.parametrize("module", sorted(MODULES))
+def test_module_size(module: str) -> None:
+    lines = MODULES[module].read_text(encoding="utf-8").count("\n")
+    assert lines <= MODULE_LINES_LIMIT, f"{module}: {lines} lines"

@@ -13,7 +13,8 @@ from pathlib import Path
 
 from heatweave.cli import PROCESS_GC_THRESHOLD
 from heatweave.emit.emitter import emit_files
-from heatweave.spice.hierarchy import DeckIndex, load_project
+from heatweave.spice.hierarchy import DeckIndex
+from heatweave.spice.project import load_project
 
 
 def _state() -> tuple[object, ...]:

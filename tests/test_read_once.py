@@ -26,7 +26,7 @@ from heatweave.run.prepare import RunOptions
 from heatweave.run.runner import run
 from heatweave.run.safedeck import safe_deck
 from heatweave.spice import reader
-from heatweave.spice.hierarchy import load_project
+from heatweave.spice.project import load_project
 
 # A heated divider of our own whose lower leg comes from an included file, with a .control
 # block (dropped, so the safe deck is rebuilt as a tree) and a .temp card the annotation's

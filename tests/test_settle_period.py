@@ -15,7 +15,8 @@ import pytest
 
 from heatweave.errors import UsageError
 from heatweave.run.waves import drive_period, exact_value
-from heatweave.spice.hierarchy import DeckIndex, load_project
+from heatweave.spice.hierarchy import DeckIndex
+from heatweave.spice.project import load_project
 
 
 def index_of(tmp_path: Path, *cards: str) -> DeckIndex:

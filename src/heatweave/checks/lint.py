@@ -9,8 +9,9 @@ from heatweave.annotation import bind, default_path, load
 from heatweave.checks.limits import resolve_limits
 from heatweave.emit.emitter import Inputs, emit_inputs
 from heatweave.errors import Finding, HeatweaveError
-from heatweave.spice.hierarchy import DeckIndex, Project, load_project
+from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.lint import lint_project, order
+from heatweave.spice.project import Project, load_project
 
 
 def annotation_findings(

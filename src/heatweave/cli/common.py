@@ -14,7 +14,7 @@ from heatweave.errors import Finding, HeatweaveError
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
-    from heatweave.spice.hierarchy import Project
+    from heatweave.spice.project import Project
 
 P = ParamSpec("P")
 R = TypeVar("R")

@@ -199,7 +199,7 @@ def _guard_inputs(
     if revision is None or len(sources) != 1:
         refuse_overwrite(outputs, [("a result to compare", source) for source in sources])
         return
-    from heatweave.spice.hierarchy import load_project
+    from heatweave.spice.project import load_project
 
     deck = sources[0]
     refuse_overwrite(outputs, input_files(deck, annotations))

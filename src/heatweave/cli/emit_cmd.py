@@ -30,7 +30,7 @@ def build_emitted(
     *outputs* are known to replace none of the files read (:func:`guard_outputs`)."""
     chosen = Path(annotation) if annotation else default_annotation(deck)
     if chosen is None:
-        from heatweave.spice.hierarchy import load_project
+        from heatweave.spice.project import load_project
 
         project = load_project(deck)
         refuse_overwrite(outputs, input_files(deck, None, project), hint=_HINT)

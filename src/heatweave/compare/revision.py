@@ -19,7 +19,7 @@ from pathlib import Path
 
 from heatweave.errors import UsageError
 from heatweave.spice.deck import Block, Card, Node
-from heatweave.spice.hierarchy import include_target
+from heatweave.spice.project import include_target
 from heatweave.spice.reader import read
 
 #: The longest git may take for one command before heatweave gives up on it (s).

@@ -50,8 +50,9 @@ from heatweave.errors import EmitError, Finding
 from heatweave.quantities import format_number
 from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
-from heatweave.spice.hierarchy import DeckIndex, Project
+from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.netlist import positional_spans, rewrite_nodes
+from heatweave.spice.project import Project
 from heatweave.thermal.circuit import (
     AMBIENT_NODE,
     PREFIX,
@@ -410,7 +411,7 @@ class Inputs:
 def load_inputs(deck_path: str, annotation_path: str) -> Inputs:
     """Read a deck, its includes and its annotation file, and bind the parts."""
     from heatweave.annotation import bind, load
-    from heatweave.spice.hierarchy import load_project
+    from heatweave.spice.project import load_project
 
     project = load_project(deck_path)
     annotation = load(annotation_path, deck_name=deck_path)

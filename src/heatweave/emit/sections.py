@@ -13,7 +13,8 @@ from heatweave.emit.temperature import temp_card
 from heatweave.errors import EmitError, Finding, Location
 from heatweave.quantities import format_number
 from heatweave.spice.deck import ControlBlock, Deck, iter_cards, unprintable
-from heatweave.spice.hierarchy import DeckIndex, Project
+from heatweave.spice.hierarchy import DeckIndex
+from heatweave.spice.project import Project
 from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, ThermalCircuit
 
 MARK = "*hw* "  # marks lines heatweave writes around replaced cards

@@ -28,7 +28,7 @@ from typing import TypeVar
 
 from heatweave.errors import DeckStructureError, Finding, Location
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
-from heatweave.spice.hierarchy import Project, include_target, library_section, refuse_foreign
+from heatweave.spice.project import Project, include_target, library_section, refuse_foreign
 from heatweave.spice.reader import read_file
 
 MARK = "*hw* "

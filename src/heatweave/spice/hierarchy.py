@@ -1,211 +1,25 @@
-"""Includes, libraries, subcircuits and instance paths: what a deck's names refer to.
+"""Subcircuits and instance paths: what a deck's names refer to.
 
-:func:`load_project` reads a deck and follows its ``.include`` and ``.lib FILE SECTION``
-cards (relative to the including file, as ngspice does), so that every element, model and
-subcircuit is known; the files themselves are never changed.  :class:`DeckIndex` indexes
-subcircuit definitions (with their nesting scopes) and instances, so that a path such as
-``X1.X3.R2`` resolves to the card of ``R2`` and the chain of instances that leads to it.
+:class:`DeckIndex` indexes subcircuit definitions (with their nesting scopes) and instances
+of a :class:`~heatweave.spice.project.Project`, so that a path such as ``X1.X3.R2``
+resolves to the card of ``R2`` and the chain of instances that leads to it.
 """
 
 from __future__ import annotations
 
 import operator
-import os
 import re
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import TypeVar
 
-from heatweave.errors import DeckStructureError, Location
 from heatweave.spice import deckparams
 from heatweave.spice.cardparts import subckt_ports, x_card_parts
 from heatweave.spice.conditionals import Place, decide, may_have_conditionals
-from heatweave.spice.deck import _HEAD, Block, Card, Deck, Node, iter_cards, strip_inline_comment
+from heatweave.spice.deck import _HEAD, Block, Card, Node, strip_inline_comment
 from heatweave.spice.expressions import Func
 from heatweave.spice.globmatch import line_numbers, line_starts, matching_heads, matching_paths
-from heatweave.spice.reader import read_file
-
-
-@dataclass(frozen=True, slots=True)
-class Include:
-    """One followed ``.include``/``.lib`` card and what it brought in."""
-
-    card: Card
-    path: str
-    section: str | None
-    deck: Deck
-    body: tuple[Node, ...]
-
-
-@dataclass(frozen=True, slots=True)
-class Project:
-    """A top-level deck and every file it includes, each read once."""
-
-    deck: Deck
-    includes: tuple[Include, ...]
-
-    def include_for(self, card: Card) -> Include | None:
-        """The include that a given ``.include``/``.lib`` card brought in."""
-        for inc in self.includes:
-            if inc.card is card:
-                return inc
-        return None
-
-
-def load_project(path: str) -> Project:
-    """Read *path* and, recursively, every file it includes."""
-    deck = read_file(path)
-    includes: list[Include] = []
-    cache: dict[str, Deck] = {}
-    if deck.source is None or _MAY_INCLUDE.search(deck.source.text):
-        _follow(deck.body, deck.path, ((os.path.abspath(path), None),), includes, cache)
-    return Project(deck, tuple(includes))
-
-
-# A cheap first look: a file without such a line includes nothing.
-# (A literal first character lets the regex engine skip ahead: ~15 ms on 28 MB, where an
-# anchored, case-folded pattern takes ~250 ms.)
-_MAY_INCLUDE = re.compile(r"\.(?:[iI][nN][cC]|[lL][iI][bB])")
-
-
-def include_target(card: Card) -> tuple[str, str | None] | None:
-    """(file name, library section) of an include card, or ``None`` for other cards."""
-    name = card.name
-    if name not in (".include", ".inc", ".lib"):
-        return None
-    fields = card.fields()
-    if len(fields) < 2:
-        return None
-    if name == ".lib" and len(fields) < 3:
-        return None  # a section header inside a library file
-    target = fields[1].strip("\"'")
-    section = fields[2].strip("\"'") if name == ".lib" else None
-    return target, section
-
-
-def _follow(
-    body: tuple[Node, ...],
-    including: str,
-    chain: tuple[tuple[str, str | None], ...],
-    out: list[Include],
-    cache: dict[str, Deck],
-) -> None:
-    for node in body:
-        if isinstance(node, Block):
-            if node.kind == "lib":
-                continue  # sections are followed only when a .lib card names them
-            _follow(node.body, including, chain, out, cache)
-            continue
-        if not isinstance(node, Card):
-            continue
-        target = include_target(node)
-        if target is None:
-            continue
-        name, section = target
-        base = Path(including).parent if including not in ("-", "<deck>") else Path(".")
-        full = (base / os.path.expanduser(name)).resolve()
-        where = node.location()
-        link = (str(full), section.lower() if section is not None else None)
-        if link in chain:  # a section may use another section of its own file (2.8)
-            cycle = " -> ".join(_shown(c) for c in (*chain, link))
-            raise DeckStructureError(
-                f"include cycle: {cycle}",
-                where,
-                hint="remove the include that leads back to a file already being read",
-            )
-        if not full.is_file():
-            raise DeckStructureError(
-                f"included file {name!r} not found (looked for {full})",
-                where,
-                hint="paths are relative to the file that holds the include card"
-                if including not in ("-", "<deck>")
-                else "a deck read from standard input includes relative to the current folder",
-            )
-        key = str(full)
-        deck = cache.get(key)
-        if deck is None:
-            deck = read_file(key, title=False)
-            refuse_foreign(deck, name, where)
-            cache[key] = deck
-        if deck.source is not None and not _MAY_INCLUDE.search(deck.source.text):
-            out.append(
-                Include(
-                    node,
-                    key,
-                    section,
-                    deck,
-                    library_section(deck, section, where) if section is not None else deck.body,
-                )
-            )
-            continue
-        chosen = deck.body
-        if section is not None:
-            chosen = library_section(deck, section, where)
-        out.append(Include(node, key, section, deck, chosen))
-        _follow(chosen, key, (*chain, link), out, cache)
-
-
-def _shown(link: tuple[str, str | None]) -> str:
-    name = os.path.basename(link[0])
-    return name if link[1] is None else f"{name} section {link[1]}"
-
-
-#: How many of an included file's first cards :func:`foreign_reason` looks at.
-_SAMPLE_CARDS = 50
-# A SPICE name: a letter, then no slash and at most one colon (``user:x:0:0:...:/bin/sh``
-# is a line of a password file).
-_SPICE_NAME = re.compile(r"[A-Za-z][^/\\:]*(?::[^/\\:]*)?\Z")
-_CONTROL_BYTES = re.compile(r"[\x00-\x08\x0e-\x1f\x7f]")
-
-
-def foreign_reason(deck: Deck) -> str | None:
-    """Why an included file is plainly not a SPICE file (binary, a key or certificate, lines
-    that are no cards: a password or configuration file), or ``None``.  Looks at the whole
-    text for bytes and keys, and at the first few cards only."""
-    text = deck.source.text if deck.source is not None else deck.write()
-    if len(_CONTROL_BYTES.findall(text, 0, 65536)) > 2:
-        return "it holds control bytes: a binary file"
-    if "-----BEGIN " in text:
-        return "it holds a key or a certificate"
-    for number, card in enumerate(iter_cards(deck.body)):
-        if number >= _SAMPLE_CARDS:
-            break
-        if card.is_dot:
-            continue
-        fields = card.fields()
-        if not _SPICE_NAME.match(card.head) or len(fields) < 3 or fields[1] == "=":
-            return "its lines are not SPICE cards"
-    return None
-
-
-def refuse_foreign(deck: Deck, name: str, where: Location | None) -> None:
-    """Refuse an included file that is not a SPICE file, quoting none of its lines: a deck
-    from elsewhere may name a key or a password file, whose lines an error would show."""
-    reason = foreign_reason(deck)
-    if reason is not None:
-        raise DeckStructureError(
-            f"the included file {name!r} is not a SPICE file ({reason}); heatweave does not "
-            "read it, and shows none of its lines",
-            where,
-            hint="check the path on this card: it should name a SPICE file",
-        )
-
-
-def library_section(deck: Deck, section: str, where: Location | None) -> tuple[Node, ...]:
-    names = []
-    for node in deck.body:
-        if isinstance(node, Block) and node.kind == "lib":
-            names.append(node.label)
-            if node.label.lower() == section.lower():
-                return node.body
-    known = ", ".join(names) or "none"
-    raise DeckStructureError(
-        f"library section {section!r} not found in {deck.path}",
-        where,
-        hint=f"sections in that file: {known}",
-    )
-
+from heatweave.spice.project import Project, include_target
 
 _T = TypeVar("_T")
 _PARAMS = (".param", ".func")

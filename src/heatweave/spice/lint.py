@@ -15,12 +15,8 @@ from heatweave.spice.acceptance import rejections
 from heatweave.spice.cardparts import subckt_ports, x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node
 from heatweave.spice.grammar import syntax_of, unclosed_model
-from heatweave.spice.hierarchy import (
-    DeckIndex,
-    Project,
-    Scope,
-    global_names,
-)
+from heatweave.spice.hierarchy import DeckIndex, Scope, global_names
+from heatweave.spice.project import Project
 
 
 def _where(node: Card | ControlBlock) -> Location | None:

@@ -23,7 +23,8 @@ from heatweave.spice.deck import _FIELD, Card, Node
 from heatweave.spice.element_syntax import DIGITAL_GATES
 from heatweave.spice.expressions import ExprError, Func
 from heatweave.spice.grammar import CardSyntaxError, parse_card
-from heatweave.spice.hierarchy import DeckIndex, Project, Resolved
+from heatweave.spice.hierarchy import DeckIndex, Resolved
+from heatweave.spice.project import Project
 from heatweave.spice.syntax import ElementSyntax
 
 _NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[A-Za-z]*"

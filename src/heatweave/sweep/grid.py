@@ -19,7 +19,8 @@ from heatweave.emit.sections import MARK
 from heatweave.errors import Location, UsageError
 from heatweave.quantities import format_number, parse_number, temperature_problem
 from heatweave.spice.deck import Block, Card, Node
-from heatweave.spice.hierarchy import DeckIndex, Project
+from heatweave.spice.hierarchy import DeckIndex
+from heatweave.spice.project import Project
 
 #: A sweep larger than this is almost certainly a typo in STEP.
 MAX_POINTS = 100_000
