@@ -186,6 +186,7 @@ def test_ambient_profile_says_what_cannot_follow_it(tmp_path: Path) -> None:
         ("77F", "carries a unit or scale factor ('F')"),
         ("300K", "carries a unit or scale factor ('K')"),
         ("-300", "below absolute zero"),
+        ("1e400", "is not a finite temperature"),  # overflows an IEEE 754 double to infinity
         ("warm", "not a "),  # "not a temperature"; sweep: "not a value or a range"
     ],
 )

@@ -165,6 +165,8 @@ def test_table_names_parts_units_and_nodes() -> None:
         (("--op", "--tran", "1m", "1"), "--op and --tran"),
         (("--tran", "1", "1m"), "is not below the stop time"),
         (("--tran", "fast", "1"), "is not a number"),
+        # 1e400 overflows a double (IEEE 754 binary64 tops out near 1.8e308): infinity
+        (("--tran", "1u", "1e400"), "is not a finite number"),
         (("--json", "-", "--csv", "-"), "both write to stdout"),
         (("--probe", "nowhere"), "the deck has no node 'nowhere'"),
         (("--backend", "remote"), "Invalid value for '--backend'"),

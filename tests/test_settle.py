@@ -400,6 +400,10 @@ def test_period_taken_from_the_source_and_said() -> None:
         (["--period", "1m", "--warmup", "1", "--envelope", "1"], "--envelope"),
         (["--period", "1m", "--periods", "1"], "--periods"),
         (["--period", "1m", "--tstep", "2m"], "--tstep"),
+        # 1e400 overflows a double (IEEE 754 binary64 tops out near 1.8e308): infinity
+        (["--period", "1e400"], "is not a finite number"),
+        (["--period", "1m", "--warmup", "1e400"], "is not a finite number"),
+        (["--period", "1m", "--tol", "1e400"], "is not a finite number"),
     ],
 )
 def test_cli_bad_options_exit_2(args: list[str], needle: str) -> None:

@@ -91,6 +91,11 @@ def test_range_grid(text: str, expected: tuple[float, ...]) -> None:
         (("--ambient", "0:10:-1"), "never gets from"),
         (("--ambient", "0:10"), "is not a value or a range"),
         (("--ambient", "hot"), "is not a value or a range"),
+        # 1e400 overflows a double (IEEE 754 binary64 tops out near 1.8e308): infinity
+        (("--ambient", "0:1e400:1"), "is not a finite temperature"),
+        (("--ambient", "1e400"), "is not a finite temperature"),
+        (("--param", "vbridge=1e400"), "is not a finite number"),
+        (("--param", "vbridge=0:1e300:1e-300"), "points"),  # 1e600 steps: overflows
         (("--param", "vbridge"), "is not NAME=START:STOP:STEP"),
         (("--seed", "3"), "--seed is for --monte-carlo"),
         (("--scheduler", "tcp://127.0.0.1:1"), "--scheduler is for --executor dask"),

@@ -10,6 +10,7 @@ scale factors ``T G Meg K mil m u n p f`` are case-insensitive, ``M`` is milli (
 from __future__ import annotations
 
 import functools
+import math
 import re
 
 import click
@@ -93,10 +94,15 @@ class SpiceQuantity(click.ParamType):  # type: ignore[type-arg]
                 param,
                 ctx,
             )
+        if not math.isfinite(number):
+            self.fail(f"{value!r} {NOT_FINITE}", param, ctx)
         if self.positive and number <= 0:
             self.fail(f"{value!r} must be greater than zero", param, ctx)
         return number
 
+
+#: Why a value such as ``1e400`` is refused: it overflows a double to infinity.
+NOT_FINITE = "is not a finite number (it overflows to infinity); write a value below 1e308"
 
 #: 0 K in degC; no temperature lies below it.
 ABSOLUTE_ZERO = -273.15
@@ -119,6 +125,8 @@ def temperature_problem(text: str) -> str | None:
             )
         return f"{text!r} is not a temperature; write a number in degC, e.g. 25 or -40"
     value = float(text)
+    if not math.isfinite(value):
+        return f"{text!r} is not a finite temperature (it overflows to infinity)"
     return below_absolute_zero(value)
 
 

@@ -17,7 +17,7 @@ from dataclasses import replace
 from heatweave.emit.emitter import Inputs
 from heatweave.emit.sections import MARK
 from heatweave.errors import Location, UsageError
-from heatweave.quantities import format_number, parse_number, temperature_problem
+from heatweave.quantities import NOT_FINITE, format_number, parse_number, temperature_problem
 from heatweave.spice.deck import Block, Card, Node
 from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.project import Project
@@ -49,6 +49,9 @@ def parse_range(text: str, what: str, temperature: bool = False) -> tuple[float,
         if problem is not None:
             raise UsageError(f"{what} {text!r}: {problem}", hint=_RANGE_HINT)
     found = [float(n) for n in numbers if n is not None]
+    for piece, value in zip(pieces, found, strict=True):
+        if not math.isfinite(value):
+            raise UsageError(f"{what} {text!r}: {piece!r} {NOT_FINITE}", hint=_RANGE_HINT)
     if len(found) == 1:
         return (found[0],)
     start, stop, step = found
@@ -60,11 +63,15 @@ def parse_range(text: str, what: str, temperature: bool = False) -> tuple[float,
             f"{format_number(start)} to {format_number(stop)}",
             hint="give a step with the sign of STOP - START, e.g. -40:125:5 or 125:-40:-5",
         )
-    count = math.floor((stop - start) / step + 1e-6) + 1
+    steps = (stop - start) / step  # overflows to infinity for 0:1e300:1e-300
+    count = math.floor(steps + 1e-6) + 1 if math.isfinite(steps) else math.inf
     if count > MAX_POINTS:
-        raise UsageError(f"{what} {text!r} has {count} points", hint="choose a larger step")
+        raise UsageError(
+            f"{what} {text!r} has {count} points, more than {MAX_POINTS}",
+            hint="choose a larger step",
+        )
     # 12 significant digits: 0.1 steps give 0.3, not 0.30000000000000004
-    return tuple(float(f"{start + k * step:.12g}") for k in range(count))
+    return tuple(float(f"{start + k * step:.12g}") for k in range(int(count)))
 
 
 def parse_assignment(text: str) -> tuple[str, tuple[float, ...]]:
