@@ -15,6 +15,9 @@ Exit codes are stable and documented in the README:
 5   the ngspice program is not installed
 6   the ngspice shared library is not installed or cannot be loaded
 7   thermal runaway: the electrothermal operating point does not exist
+8   a simulation did not finish within ``--timeout`` and was stopped
+130 interrupted (Ctrl-C, SIGINT); 143: terminated (SIGTERM).  Every ngspice
+    process, worker and temporary folder of the command is ended first
 ==  =====================================================================
 """
 
@@ -30,6 +33,9 @@ EXIT_TIMESTEP_TOO_SMALL = 4
 EXIT_NGSPICE_MISSING = 5
 EXIT_LIBNGSPICE_MISSING = 6
 EXIT_THERMAL_RUNAWAY = 7
+EXIT_TIMEOUT = 8
+EXIT_INTERRUPTED = 130
+EXIT_TERMINATED = 143
 
 
 @dataclass(frozen=True, slots=True)
@@ -143,6 +149,27 @@ class ThermalRunawayError(SimulatorError):
     """The electrothermal operating point does not exist, or temperatures grow without bound."""
 
     exit_code = EXIT_THERMAL_RUNAWAY
+
+
+class SimulationTimeoutError(HeatweaveError):
+    """A simulation ran past its time limit and was stopped (exit status 8).
+
+    Not a :class:`SimulatorError`: code that tries another simulation after a failed one
+    (the runaway diagnosis, say) must not go on once the time is up.
+    """
+
+    exit_code = EXIT_TIMEOUT
+
+    def __init__(
+        self,
+        message: str,
+        location: Location | None = None,
+        hint: str | None = None,
+        limit: float | None = None,
+    ) -> None:
+        super().__init__(message, location, hint)
+        #: The time limit (s) that was exceeded, when one was.
+        self.limit = limit
 
 
 @dataclass(frozen=True, slots=True)

@@ -27,6 +27,7 @@ from heatweave.cli.common import (
     may_replace_report,
     report_findings,
     simulation_options,
+    timeout_option,
     use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
@@ -58,6 +59,7 @@ if TYPE_CHECKING:
 @analysis_options
 @simulation_options
 @html_option
+@timeout_option("the check (its run without self-heating included)")
 @guarded
 def check(
     deck: str,
@@ -72,6 +74,7 @@ def check(
     allow_control: bool,
     html_file: str | None,
     init_file: str | None,
+    timeout: float,
 ) -> None:
     """Run DECK with self-heating and check every limit its annotation file sets.
 
@@ -87,7 +90,7 @@ def check(
     from heatweave.emit.emitter import load_inputs
     from heatweave.errors import HeatweaveError
     from heatweave.run import runner
-    from heatweave.run.prepare import RunOptions
+    from heatweave.run.prepare import RunOptions, with_deadline
     from heatweave.settle.periodic import SettleOptions, settle
 
     check_html_path(html_file)
@@ -102,8 +105,9 @@ def check(
         signals = checks.resolve_limits(inputs.annotation, inputs.index)
         options = RunOptions(
             analyses=analyses_of(op, tran), ambient=ambient, backend=backend,
-            allow_control=allow_control, init_file=init_file,
+            allow_control=allow_control, init_file=init_file, timeout=timeout,
         )  # fmt: skip
+        options = with_deadline(options)  # one limit for every run of the check
         method = choose(inputs, options)
         settled, outcome = None, None
         needed = checks.needs_baseline(signals)
@@ -111,7 +115,7 @@ def check(
             # No period given: settle takes the sources' own and says where it came from.
             settle_options = SettleOptions(
                 ambient=ambient, backend=backend,
-                allow_control=allow_control, baseline=needed,
+                allow_control=allow_control, baseline=needed, timeout=timeout,
             )  # fmt: skip
             settled = settle(deck, chosen, settle_options, inputs=inputs)
             report_findings(list(settled.findings))

@@ -10,7 +10,8 @@ from typing import TYPE_CHECKING, ParamSpec, TypeVar
 
 import click
 
-from heatweave.errors import Finding, HeatweaveError
+from heatweave.errors import EXIT_INTERRUPTED, Finding, HeatweaveError
+from heatweave.processes import Terminated, catch_termination, leave
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
@@ -23,20 +24,26 @@ R = TypeVar("R")
 def guarded(func: Callable[P, R]) -> Callable[P, R]:
     """Turn a :class:`HeatweaveError` into its message on stderr and its exit status.
 
-    Bad input never produces a Python traceback; a genuine bug still does.
+    Bad input never produces a Python traceback; a genuine bug still does.  Ctrl-C exits
+    with 130, SIGTERM with 143 and SIGHUP with 129, after the command's ngspice processes,
+    workers and temporary folders have been ended and removed (:mod:`heatweave.processes`).
     """
 
     @functools.wraps(func)
     def wrapper(*args: P.args, **kwargs: P.kwargs) -> R:
+        catch_termination()
         try:
             return func(*args, **kwargs)
         except HeatweaveError as err:
             report_findings(list(err.findings))
             click.echo(style_severity(err.render(), err.severity), err=True)
-            sys.exit(err.exit_code)
+            leave(err.exit_code)
         except KeyboardInterrupt:
             click.echo("interrupted; no output file was left half written", err=True)
-            sys.exit(130)
+            leave(EXIT_INTERRUPTED)
+        except Terminated as ended:
+            click.echo(f"{ended}; no output file was left half written", err=True)
+            leave(ended.exit_code)
 
     return wrapper
 
@@ -250,21 +257,38 @@ def require_plotting(option: str = "--plot") -> None:
         ) from None
 
 
-def run_control_options(timeout_help: str) -> Callable[[F], F]:
-    """``--timeout SECONDS`` (with *timeout_help*) and ``-q/--quiet``."""
+#: Seconds the simulations of one command (one corner of a sweep) may take by default: far
+#: beyond any deck of a CI gate, yet a stuck one ends with exit status 8 instead of never.
+DEFAULT_TIMEOUT = 600.0
+
+
+def timeout_option(what: str) -> Callable[[F], F]:
+    """``--timeout SECONDS``, the time limit of every simulation *what* runs, together."""
 
     def decorate(func: F) -> F:
         from heatweave.quantities import SpiceQuantity
 
-        func = click.option(
-            "-q", "--quiet", is_flag=True, help="No table and no progress; warnings only."
-        )(func)
         return click.option(
             "--timeout",
             type=SpiceQuantity("s", positive=True),
+            default=DEFAULT_TIMEOUT,
+            show_default=True,
             metavar="SECONDS",
-            help=timeout_help,
+            help=f"Stop ngspice and fail (exit status 8) when the simulations of {what} "
+            "take longer than this in all.",
         )(func)
+
+    return decorate
+
+
+def run_control_options(what: str) -> Callable[[F], F]:
+    """``--timeout SECONDS`` (for the simulations of *what*) and ``-q/--quiet``."""
+
+    def decorate(func: F) -> F:
+        func = click.option(
+            "-q", "--quiet", is_flag=True, help="No table and no progress; warnings only."
+        )(func)
+        return timeout_option(what)(func)
 
     return decorate
 

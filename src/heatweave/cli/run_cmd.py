@@ -151,7 +151,7 @@ def check_probes_early(probes: tuple[str, ...], index: DeckIndex) -> None:
     "between them (fast, where time scales separate); full: the electrothermal deck; "
     "auto: cosim where it is accurate, else full.",
 )
-@run_control_options("Stop ngspice after this long.")
+@run_control_options("the run")
 @html_option
 @guarded
 def run(

@@ -98,7 +98,7 @@ from heatweave.spice.acceptance import refuse_rejected
     metavar="FILE",
     help="Write the limits as a JUnit XML report here (- is stdout); implies --check.",
 )
-@run_control_options("Stop each ngspice run after this long.")
+@run_control_options("the whole settling")
 @html_option
 @guarded
 def settle(

@@ -138,7 +138,7 @@ def _has_tolerances(annotation: Annotation) -> bool:
     help="A deck node (out, V(out)) whose voltage the table shows per corner (repeatable).",
 )
 @report_options("Write one CSV row per corner and part.")
-@run_control_options("Stop ngspice after this long (each corner).")
+@run_control_options("each corner")
 @html_option
 @guarded
 def sweep(
@@ -260,6 +260,9 @@ def _run(
     try:
         with count_progress(not quiet and is_terminal(), "corners") as progress:
             return run_sweep(inputs, plan, options, pool, progress, limits=limits)
+    except BaseException:  # Ctrl-C, SIGTERM: no worker may outlive the command
+        pool.abort()
+        raise
     finally:
         pool.close()
 

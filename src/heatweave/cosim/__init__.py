@@ -37,6 +37,9 @@ from heatweave.run.prepare import (
     deck_analyses_of,
     deck_folder,
     made_safe,
+    time_left,
+    whole_limit,
+    with_deadline,
 )
 from heatweave.run.results import (
     RunResults,
@@ -135,6 +138,7 @@ def run_auto(
     """
     if method not in METHODS:
         raise UsageError(f"unknown method {method!r}", hint="choose auto, cosim or full")
+    options = with_deadline(options)  # one time limit for the whole run, fallback included
     inputs = inputs or load_inputs(deck_path, annotation_path)
     chosen, reason = "full", "asked for the full electrothermal deck"
     prepared = None
@@ -230,7 +234,9 @@ def run(
     )
     folder = Path(options.cwd or deck_folder(inputs))
     text = plain_deck(safe.deck, circuit).write()
-    trace = cosimulate(text, folder, plan, options.timeout, options.init_file)
+    options = with_deadline(options)
+    with whole_limit(options):
+        trace = cosimulate(text, folder, plan, time_left(options), options.init_file)
     results = to_results(trace, circuit, system, period)
     reason = f"co-simulation in {counted(trace.windows, 'window')}"
     # A part beyond its model's range, a drive without one period: as runner.run says.

@@ -8,14 +8,17 @@ itself.  Nothing is written except in a temporary working folder.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import time
+from collections.abc import Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Emitted, Inputs, emit_inputs
-from heatweave.errors import Finding, UsageError
+from heatweave.errors import Finding, SimulationTimeoutError, UsageError
 from heatweave.run.safedeck import SafeDeck, safe_deck
-from heatweave.simulators import Progress, SimResult, get_simulator
+from heatweave.simulators import Progress, SimResult, get_simulator, timed_out
 from heatweave.spice.deck import Card, Deck
 from heatweave.spice.reader import read
 
@@ -33,6 +36,7 @@ class RunOptions:
     ambient: float | None = None
     backend: str = "auto"
     allow_control: bool = False
+    #: Seconds every simulation of one run (or one sweep corner) may take in all.
     timeout: float | None = None
     progress: Progress | None = field(default=None, compare=False)
     #: Folder where ngspice finds files the deck names (default: deck_folder); ngspice itself
@@ -40,6 +44,38 @@ class RunOptions:
     cwd: str | None = None
     #: An ngspice init file to read (by default none is: not the deck folder's, not HOME's).
     init_file: str | None = None
+    #: When the time is up (:func:`time.monotonic`); set from ``timeout`` by
+    #: :func:`with_deadline` when a run starts.
+    deadline: float | None = None
+
+
+def with_deadline(options: RunOptions) -> RunOptions:
+    """*options* with the deadline its timeout sets from now, unless one is set already."""
+    if options.timeout is None or options.deadline is not None:
+        return options
+    return replace(options, deadline=time.monotonic() + options.timeout)
+
+
+@contextmanager
+def whole_limit(options: RunOptions) -> Iterator[None]:
+    """A timeout of the body reported with the whole limit the user gave (the body's
+    simulator saw only the time that was left)."""
+    try:
+        yield
+    except SimulationTimeoutError as err:
+        if err.limit is None:
+            raise
+        raise timed_out(options.timeout) from None
+
+
+def time_left(options: RunOptions) -> float | None:
+    """Seconds left before the deadline (``None``: no limit); raises when none is left."""
+    if options.deadline is None:
+        return options.timeout
+    left = options.deadline - time.monotonic()
+    if left <= 0:
+        raise timed_out(options.timeout)
+    return left
 
 
 def deck_folder(inputs: Inputs) -> str:
@@ -122,12 +158,14 @@ def prepare(
 def simulate(prepared: Prepared, options: RunOptions) -> SimResult:
     """Run ngspice on a prepared deck."""
     simulator = get_simulator(options.backend)
-    return simulator.run(
-        prepared.text,
-        analyses=prepared.analyses,
-        deck_analyses=prepared.deck_analyses,
-        cwd=prepared.cwd,
-        timeout=options.timeout,
-        progress=options.progress,
-        init_file=options.init_file,
-    )
+    with whole_limit(options):
+        return simulator.run(
+            prepared.text,
+            analyses=prepared.analyses,
+            deck_analyses=prepared.deck_analyses,
+            cwd=prepared.cwd,
+            timeout=time_left(options),
+            progress=options.progress,
+            init_file=options.init_file,
+        )
+

@@ -200,7 +200,8 @@ def main_plot(sim: SimResult) -> Plot:
 
         raise SimulatorError(
             "ngspice produced no results",
-            hint="check that the deck's analysis cards are valid (see the log with -v)",
+            hint="check that the deck's analysis cards are valid; "
+            "heatweave emit DECK -o hw.cir, then ngspice -b hw.cir, shows ngspice's own messages",
         )
     return sim.plots[-1]
 

@@ -14,11 +14,12 @@ from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Inputs, load_inputs
 from heatweave.errors import (
     ConvergenceError,
+    SimulationTimeoutError,
     SimulatorError,
     ThermalRunawayError,
     TimestepTooSmallError,
 )
-from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate
+from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate, with_deadline
 from heatweave.run.results import (
     RunResults,
     drive_findings,
@@ -48,7 +49,9 @@ def run(
     inputs: Inputs | None = None,
     annotation: Annotation | None = None,
 ) -> RunOutcome:
-    """Emit, simulate and read back one electrothermal run."""
+    """Emit, simulate and read back one electrothermal run; ``options.timeout`` bounds
+    every simulation of it together (the runaway diagnosis included)."""
+    options = with_deadline(options)
     inputs = inputs or load_inputs(deck_path, annotation_path)
     prepared = prepare(inputs, options, annotation)
     assert prepared.emitted.circuit is not None
@@ -67,7 +70,7 @@ def run(
         verified = verify_run(inputs, options, prepared, sim, results)
         sim, results = verified.sim, verified.results
         prepared = replace(prepared, findings=prepared.findings + verified.findings)
-    except SimulatorError as err:
+    except (SimulatorError, SimulationTimeoutError) as err:
         # The warnings from emitting still matter (a dropped .control block, say).
         err.findings = (*prepared.findings, *err.findings)
         raise
@@ -110,7 +113,7 @@ def run_baseline(
 
     Drift limits compare against this run, so a drift is what self-heating alone causes.
     """
-    quiet = replace(options, progress=None)
+    quiet = with_deadline(replace(options, progress=None))
     prepared = prepare(inputs, quiet, annotation, heating=False)
     sim = simulate(prepared, quiet)
     assert prepared.emitted.circuit is not None

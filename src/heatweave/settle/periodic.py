@@ -42,7 +42,7 @@ import numpy.typing as npt
 
 from heatweave.emit.emitter import Inputs, load_inputs
 from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, UsageError
-from heatweave.run.prepare import RunOptions
+from heatweave.run.prepare import RunOptions, with_deadline
 from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, PartResult, build_part, range_warning
 from heatweave.run.verify import NoSteadyStateError
 from heatweave.run.waves import DrivePeriod, drive_period, seconds
@@ -375,8 +375,9 @@ def settle(
         )
     # Every source's period sampled finely, however many of them the period holds.
     tstep = options.tstep or min(period / 400.0, (drive.shortest or period) / 100.0)
+    run_options = with_deadline(options.run_options())  # one limit for every period run
     electrical = Electrical(
-        inputs, options.run_options(), period, tstep, options.wave_tol, drive.start
+        inputs, run_options, period, tstep, options.wave_tol, drive.start
     )
     circuit = electrical.circuit
     system = assemble(circuit)

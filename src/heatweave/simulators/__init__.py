@@ -14,7 +14,7 @@ import os
 
 from heatweave.errors import LibngspiceMissingError, UsageError
 
-from .base import Plot, Progress, Session, SimResult, Simulator
+from .base import Plot, Progress, Session, SimResult, Simulator, timed_out
 from .batch import BatchSimulator
 from .shared import SharedSimulator
 
@@ -30,18 +30,20 @@ __all__ = [
     "SimResult",
     "Simulator",
     "get_simulator",
+    "timed_out",
 ]
 
 
 def get_simulator(
     name: str = "auto",
     *,
-    executable: str = "ngspice",
+    executable: str | None = None,
     library: str | os.PathLike[str] | None = None,
 ) -> Simulator:
     """The back end called *name*: ``"shared"``, ``"batch"`` or ``"auto"``.
 
-    ``executable`` is the ngspice program for the batch back end, ``library`` the libngspice
+    ``executable`` is the ngspice program for the batch back end (default:
+    ``HEATWEAVE_NGSPICE``, then ``ngspice`` on the PATH), ``library`` the libngspice
     path for the shared one (default: ``HEATWEAVE_LIBNGSPICE``, then the usual places).
     ``"shared"`` loads the library at once, so a missing one is reported here.
     """

@@ -24,7 +24,7 @@ from typing import ClassVar
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.errors import SimulatorError, UsageError
+from heatweave.errors import SimulationTimeoutError, UsageError
 
 from .naming import vector_name
 
@@ -137,11 +137,12 @@ def command_script(analyses: Sequence[str], deck_analyses: bool, save: Sequence[
     return script
 
 
-def timed_out(timeout: float | None) -> SimulatorError:
+def timed_out(timeout: float | None) -> SimulationTimeoutError:
     """The error for a run stopped after *timeout* seconds (same wording in every back end)."""
-    return SimulatorError(
-        f"ngspice did not finish within {timeout:g} s and was stopped",
-        hint="give a longer timeout, or a shorter or coarser analysis",
+    return SimulationTimeoutError(
+        f"ngspice did not finish within {timeout or 0:.3g} s and was stopped",
+        hint="give a longer --timeout, or a shorter or coarser analysis",
+        limit=timeout,
     )
 
 

@@ -22,6 +22,7 @@ import numpy as np
 
 from heatweave import files
 from heatweave.errors import NgspiceMissingError, UsageError
+from heatweave.processes import die_with_parent
 
 from . import diagnose
 from .base import (
@@ -42,7 +43,10 @@ DECK_NAME = "heatweave-deck.cir"
 RAW_NAME = "heatweave-out.raw"
 LOG_NAME = "heatweave-out.log"
 ALL_ECHO = "v(all)"
-MISSING_HINT = "install it with 'apt-get install ngspice', or give the path to the program"
+ENV_PROGRAM = "HEATWEAVE_NGSPICE"
+MISSING_HINT = (
+    f"install it with 'apt-get install ngspice', or set {ENV_PROGRAM} to the program's path"
+)
 
 
 def control_block(script: Sequence[str], raw_path: Path, filetype: str) -> str:
@@ -87,14 +91,15 @@ def in_run_order(written: Sequence[Plot]) -> tuple[Plot, ...]:
 
 
 class BatchSimulator(Simulator):
-    """Runs ``ngspice -b``; *executable* is the program's name or path."""
+    """Runs ``ngspice -b``; *executable* is the program's name or path (default:
+    ``HEATWEAVE_NGSPICE``, else ``ngspice`` on the PATH)."""
 
     name: ClassVar[str] = "batch"
 
-    def __init__(self, executable: str = "ngspice", filetype: str = "binary") -> None:
+    def __init__(self, executable: str | None = None, filetype: str = "binary") -> None:
         if filetype not in ("binary", "ascii"):
             raise ValueError(f"filetype must be 'binary' or 'ascii', not {filetype!r}")
-        self.executable = executable
+        self.executable = executable or os.environ.get(ENV_PROGRAM) or "ngspice"
         self.filetype = filetype
 
     def program(self) -> str:
@@ -153,6 +158,9 @@ class BatchSimulator(Simulator):
                     stderr=subprocess.PIPE,
                     timeout=timeout,
                     check=False,
+                    # ngspice stays in this command's process group; a SIGKILL of this
+                    # process, which no handler sees, still ends it.
+                    preexec_fn=die_with_parent,
                 )
             except subprocess.TimeoutExpired as exc:
                 raise timed_out(timeout) from exc

@@ -25,12 +25,12 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.errors import LibngspiceMissingError
+from heatweave.errors import LibngspiceMissingError, SimulationTimeoutError
 
 #: How often (s) a wait for the background thread wakes to look at the clock and signals.
 POLL = 0.02
 #: How long (s) a halted background thread may take to stop before it is given up on.
-HALT_GRACE = 5.0
+HALT_GRACE = 2.0
 
 _ENCODING = "utf-8"
 
@@ -93,6 +93,8 @@ class Library:
         self.log: list[str] = []
         self.progress: Callable[[float], None] | None = None
         self.exited: int | None = None
+        #: True once a background run would not stop: the library cannot be used again.
+        self.stuck = False
         self._ended = threading.Event()
         # ctypes callbacks must stay referenced as long as ngspice may call them.
         self._callbacks = (
@@ -176,6 +178,7 @@ class Library:
         ngspice takes the deck as complete only at an ``.end`` line (a file needs none); a
         second ``.end`` after the deck's own is harmless.
         """
+        self.usable()
         encoded = [line.encode(_ENCODING, "surrogateescape") for line in lines]
         encoded.append(b".end")
         array = (ctypes.c_char_p * (len(encoded) + 1))(*encoded, None)
@@ -185,8 +188,17 @@ class Library:
         """True while ngspice's background thread runs (``ngSpice_running``)."""
         return bool(self._lib.ngSpice_running())
 
+    def usable(self) -> None:
+        """Raise when an earlier run would not stop: ngspice is still busy with it."""
+        if self.stuck:
+            raise SimulationTimeoutError(
+                "ngspice is still busy with a run it would not stop, so no other can start",
+                hint="give the run a longer --timeout, or run each deck in its own process",
+            )
+
     def start(self, command: str) -> None:
         """Run *command* in ngspice's background thread (``bg_`` prefix); see :meth:`wait`."""
+        self.usable()
         self._ended.clear()
         self.command("bg_" + command)
 
@@ -214,13 +226,18 @@ class Library:
                 return True
 
     def halt(self) -> bool:
-        """Stop the background thread (``bg_halt``); ``False`` if it would not stop."""
+        """Stop the background thread (``bg_halt``); ``False`` if it would not stop
+        within :data:`HALT_GRACE` (some loops inside ngspice never look at the request):
+        the library is then marked :attr:`stuck`."""
+        if self.stuck:
+            return False
         if not self.running():
             return True
         self.command("bg_halt")
         end = time.monotonic() + HALT_GRACE
         while self.running():
             if time.monotonic() > end:
+                self.stuck = True
                 return False
             time.sleep(POLL)
         return True
@@ -230,8 +247,10 @@ class Library:
         self.command(f"alter {device} = {float(value)!r}")
 
     def reset(self) -> None:
-        """Forget every circuit and plot, so that the next deck starts from nothing."""
-        self.halt()
+        """Forget every circuit and plot, so that the next deck starts from nothing (a
+        stuck library is left alone: :meth:`usable` refuses its next run)."""
+        if not self.halt():
+            return
         self.command("destroy all")
         self.command("remcirc")
 
@@ -318,3 +337,10 @@ def open_library(path: str) -> Library:
         library = Library(path)
         _OPEN[key] = library
         return library
+
+
+def busy() -> bool:
+    """True when a library of this process runs a thread that would not stop; the
+    process should then end with :func:`os._exit`, since C's exit handlers would run
+    beside it."""
+    return any(library.stuck for library in _OPEN.values())

@@ -188,7 +188,8 @@ def _finish(library: Library, command: str, deadline: float | None, timeout: flo
         status, library.exited = library.exited, None
         raise SimulatorError(
             f"ngspice stopped itself (exit status {status})",
-            hint="run the deck with --backend batch -v to see ngspice's own messages",
+            hint="heatweave emit DECK -o hw.cir, then ngspice -b hw.cir, shows ngspice's "
+            "own messages",
         )
 
 

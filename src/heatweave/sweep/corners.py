@@ -38,7 +38,7 @@ from heatweave.annotation import Annotation, sample
 from heatweave.checks.limits import LimitResult, Signal
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import EXIT_CHECK_FAILED, EXIT_OK, HeatweaveError
-from heatweave.run.prepare import RunOptions, deck_folder
+from heatweave.run.prepare import RunOptions, deck_folder, with_deadline
 from heatweave.sweep.executors import Executor
 from heatweave.sweep.grid import check_params, with_params
 
@@ -272,11 +272,12 @@ def run_corner(job: CornerJob) -> CornerOutcome:
 
     inputs = job.inputs
     started = time.monotonic()
+    options = with_deadline(job.options)  # the corner's limit starts when the corner does
     try:
         outcome = run(
             inputs.deck_path,
             inputs.annotation_path,
-            job.options,
+            options,
             inputs=inputs,
             annotation=job.annotation,
         )
@@ -285,7 +286,7 @@ def run_corner(job: CornerJob) -> CornerOutcome:
         if job.limits is not None:
             baseline = None
             if needs_baseline(job.limits):
-                baseline = run_baseline(inputs, job.options, job.annotation)
+                baseline = run_baseline(inputs, options, job.annotation)
             limits = evaluate(outcome, job.limits, baseline)
     except HeatweaveError as err:
         seconds = time.monotonic() - started

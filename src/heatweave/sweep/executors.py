@@ -18,11 +18,17 @@ from __future__ import annotations
 
 import importlib
 import os
+import select
+import signal
+import threading
+import time
 from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from types import FrameType
 from typing import Any, Protocol, TypeVar
 
 from heatweave.errors import UsageError
+from heatweave.processes import Terminated, catch_termination
 
 J = TypeVar("J")
 R = TypeVar("R")
@@ -42,6 +48,10 @@ class Executor(Protocol):
 
     def close(self) -> None:
         """Release workers, pools and clusters this executor started."""
+        ...
+
+    def abort(self) -> None:
+        """End every worker now, running jobs included (on Ctrl-C or SIGTERM)."""
         ...
 
 
@@ -66,11 +76,69 @@ class SerialExecutor:
     def close(self) -> None:
         return None
 
+    def abort(self) -> None:
+        return None
 
-def _one_thread_each() -> None:
-    """ngspice is built with OpenMP: parallel workers each get one thread, so that N
-    workers use N cores rather than fighting over them (Dask's nanny does the same)."""
+
+#: True while a worker process runs a job (see :func:`_end_worker`).
+_IN_JOB = False
+
+
+def _end_worker(signum: int, frame: FrameType | None) -> None:
+    """A worker asked to end: inside a job, unwind it (ngspice killed, its folder removed)
+    and exit in :func:`_call`; between jobs, exit at once."""
+    if _IN_JOB:
+        raise Terminated(signum)
+    os._exit(128 + signum)
+
+
+def _start_worker(command: int) -> None:
+    """Set a worker process up.  ngspice is built with OpenMP: each worker gets one
+    thread, so that N workers use N cores rather than fighting over them (Dask's nanny
+    does the same).  The worker ends on SIGTERM, SIGHUP and SIGINT, which the command
+    coordinates, and when the *command* process dies, even by SIGKILL (a worker's parent
+    is the fork server, which lives as long as its workers do)."""
     os.environ.setdefault("OMP_NUM_THREADS", "1")
+    catch_termination(_end_worker)
+    signal.signal(signal.SIGINT, _end_worker)
+    threading.Thread(target=_watch, args=(command,), daemon=True).start()
+
+
+def _watch(pid: int) -> None:
+    """SIGTERM to this worker once process *pid* has ended."""
+    try:
+        handle = os.pidfd_open(pid)
+    except (AttributeError, OSError):  # not Linux 5.3+: poll the pid instead
+        handle = None
+    while True:
+        if handle is not None:
+            if select.select([handle], [], [], None)[0]:
+                break
+        else:
+            time.sleep(0.5)
+            try:
+                os.kill(pid, 0)
+            except ProcessLookupError:
+                break
+            except PermissionError:
+                pass
+    os.kill(os.getpid(), signal.SIGTERM)
+
+
+def _call(func: Callable[[J], R], job: J) -> R:
+    """*func(job)* in a worker, leaving the process when a signal ended the job."""
+    global _IN_JOB
+    _IN_JOB = True
+    try:
+        return func(job)
+    except Terminated as ended:
+        os._exit(ended.exit_code)
+    finally:
+        _IN_JOB = False
+
+
+#: Seconds workers have to clean up after SIGTERM before they are killed.
+ABORT_GRACE = 5.0
 
 
 class ProcessExecutor:
@@ -86,12 +154,15 @@ class ProcessExecutor:
         context = multiprocessing.get_context("forkserver")
         context.set_forkserver_preload(list(preload))
         self._pool = ProcessPoolExecutor(
-            max_workers=workers, mp_context=context, initializer=_one_thread_each
+            max_workers=workers,
+            mp_context=context,
+            initializer=_start_worker,
+            initargs=(os.getpid(),),
         )
 
     def run(self, func: Callable[[J], R], jobs: Sequence[J]) -> Iterator[tuple[int, R]]:
         pending: dict[Future[R], int] = {
-            self._pool.submit(func, job): position for position, job in enumerate(jobs)
+            self._pool.submit(_call, func, job): position for position, job in enumerate(jobs)
         }
         try:
             while pending:
@@ -104,6 +175,20 @@ class ProcessExecutor:
 
     def close(self) -> None:
         self._pool.shutdown(wait=True, cancel_futures=True)
+
+    def abort(self) -> None:
+        """SIGTERM to every worker (each unwinds its job and exits), SIGKILL to any still
+        running after :data:`ABORT_GRACE` seconds."""
+        workers = list(getattr(self._pool, "_processes", {}).values())
+        for worker in workers:
+            worker.terminate()
+        deadline = time.monotonic() + ABORT_GRACE
+        for worker in workers:
+            worker.join(max(deadline - time.monotonic(), 0.0))
+            if worker.is_alive():
+                worker.kill()
+                worker.join(1.0)
+        self._pool.shutdown(wait=False, cancel_futures=True)
 
 
 class DaskExecutor:
@@ -149,6 +234,9 @@ class DaskExecutor:
                 yield positions[future.key], result
         finally:
             self._client.cancel(futures)
+
+    def abort(self) -> None:
+        self.close()
 
     def close(self) -> None:
         client = getattr(self, "_client", None)

@@ -1,0 +1,81 @@
+"""Ending cleanly: signals become exceptions, child processes die with their parent.
+
+A command that is interrupted (Ctrl-C), terminated (SIGTERM, SIGHUP) or killed must leave
+no ngspice process, worker or temporary folder behind:
+
+* :func:`catch_termination` turns SIGTERM and SIGHUP into :class:`Terminated` in the main
+  thread, as Python already turns SIGINT into :class:`KeyboardInterrupt`; the exception
+  unwinds through every ``finally`` (ngspice halted or killed, folders removed);
+* :func:`die_with_parent` (Linux) asks the kernel to signal a process when its parent
+  dies, so that a SIGKILL of the command, which no handler sees, still ends its children;
+* :func:`leave` exits with the status, without running C exit handlers beside an ngspice
+  thread that would not stop.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import ctypes
+import ctypes.util
+import os
+import signal
+import sys
+import threading
+from collections.abc import Callable
+from types import FrameType
+from typing import NoReturn
+
+#: ``prctl`` option asking for a signal when the parent dies (linux/prctl.h).
+_PR_SET_PDEATHSIG = 1
+#: The signals a command ends on, besides SIGINT.
+ENDING = (signal.SIGTERM, signal.SIGHUP)
+
+
+class Terminated(BaseException):
+    """The process was asked to end by *signum* (a BaseException, like KeyboardInterrupt,
+    so that no ``except Exception`` stops it)."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(f"terminated by signal {signum}")
+        self.signum = signum
+
+    @property
+    def exit_code(self) -> int:
+        """The shell's convention: 128 plus the signal number (143 for SIGTERM)."""
+        return 128 + self.signum
+
+
+def _raise(signum: int, frame: FrameType | None) -> None:
+    raise Terminated(signum)
+
+
+def catch_termination(handler: Callable[[int, FrameType | None], None] = _raise) -> None:
+    """SIGTERM and SIGHUP call *handler* (default: raise :class:`Terminated`); only the
+    main thread can install handlers, elsewhere this does nothing."""
+    if threading.current_thread() is not threading.main_thread():
+        return
+    for signum in ENDING:
+        signal.signal(signum, handler)
+
+
+def die_with_parent(signum: int = signal.SIGKILL) -> None:
+    """Have the kernel send *signum* to this process when its parent dies (Linux
+    ``PR_SET_PDEATHSIG``; elsewhere nothing).  Safe as a ``preexec_fn``."""
+    if not sys.platform.startswith("linux"):
+        return
+    libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6", use_errno=True)
+    libc.prctl(_PR_SET_PDEATHSIG, signum, 0, 0, 0)
+
+
+def leave(code: int) -> NoReturn:
+    """Exit with *code*.  When a simulator thread of this process would not stop (see
+    :func:`heatweave.simulators.libngspice.busy`), the streams are flushed and the process
+    ends at once, since C's exit handlers would run beside that thread."""
+    engine = sys.modules.get("heatweave.simulators.libngspice")
+    busy = getattr(engine, "busy", None)
+    if busy is not None and busy():
+        for stream in (sys.stdout, sys.stderr):
+            with contextlib.suppress(OSError, ValueError):
+                stream.flush()
+        os._exit(code)
+    sys.exit(code)

@@ -1,0 +1,250 @@
+"""Signals to long-running commands: real signals to real ``heatweave`` processes.
+
+Each command runs in a session of its own with a private ``TMPDIR`` and a marker in its
+environment (inherited by every worker and ngspice process it starts).  After the signal
+the test waits for the command to exit and then checks, from ``/proc``, that no process
+carrying the marker is left, and that ``TMPDIR`` holds nothing heatweave made.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import time
+import uuid
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+
+import pytest
+
+from heatweave.errors import EXIT_INTERRUPTED, EXIT_TIMEOUT
+
+pytestmark = [
+    pytest.mark.ngspice,
+    pytest.mark.skipif(not Path("/proc/self/environ").exists(), reason="needs /proc"),
+]
+
+HEATWEAVE = Path(sys.executable).with_name("heatweave")
+
+# A transient far longer than any test waits: 50 s of a 1 kHz drive at 1 us steps.
+SLOW_DECK = """slow self-heated divider: a transient that takes minutes to simulate
+V1 in 0 SIN(0 14.142 1k)
+R1 in out 100
+R2 out 0 100
+.tran 1u 50 0 1u
+.end
+"""
+ANNOTATION = """schema = 1
+
+[ambient]
+temperature = 25.0
+
+[part.R1]
+model = "linear"
+tc1 = 0.004
+rth = 50.0
+cth = 0.002
+"""
+
+
+@dataclass
+class Command:
+    process: subprocess.Popen[bytes]
+    marker: str
+    tmpdir: Path
+
+    def marked(self) -> list[tuple[int, str]]:
+        """(pid, name) of every live process carrying this command's marker."""
+        found = []
+        needle = f"HW_SIGNAL_TEST={self.marker}".encode()
+        for entry in Path("/proc").iterdir():
+            if not entry.name.isdigit():
+                continue
+            try:
+                if needle in (entry / "environ").read_bytes():
+                    status = (entry / "stat").read_text()
+                    if ") Z" not in status:  # a zombie is gone, only not yet reaped
+                        found.append((int(entry.name), (entry / "comm").read_text().strip()))
+            except OSError:
+                continue
+        return found
+
+    def wait_for(self, name: str, timeout: float = 60.0) -> None:
+        """Wait until a process called *name* runs under this command."""
+        end = time.monotonic() + timeout
+        while time.monotonic() < end:
+            if any(comm == name for _, comm in self.marked()):
+                return
+            assert self.process.poll() is None, self.process.communicate()
+            time.sleep(0.2)
+        pytest.fail(f"no {name} process appeared")
+
+    def left_over(self, within: float = 15.0) -> list[tuple[int, str]]:
+        """Processes still alive *within* seconds (none is the expected answer)."""
+        end = time.monotonic() + within
+        while True:
+            alive = [(pid, comm) for pid, comm in self.marked() if pid != self.process.pid]
+            if not alive or time.monotonic() > end:
+                return alive
+            time.sleep(0.2)
+
+    def files(self, *, multiprocessing: bool = True) -> list[str]:
+        names = sorted(p.name for p in self.tmpdir.iterdir())
+        return [n for n in names if multiprocessing or not n.startswith("pymp-")]
+
+
+@pytest.fixture
+def start(tmp_path: Path) -> Iterator[object]:
+    deck = tmp_path / "slow.cir"
+    deck.write_text(SLOW_DECK)
+    (tmp_path / "slow.thermal.toml").write_text(ANNOTATION)
+    started: list[Command] = []
+
+    def launch(*args: str) -> Command:
+        tmpdir = tmp_path / f"tmp{len(started)}"
+        tmpdir.mkdir()
+        marker = uuid.uuid4().hex
+        env = {**os.environ, "HW_SIGNAL_TEST": marker, "TMPDIR": str(tmpdir)}
+        process = subprocess.Popen(
+            [str(HEATWEAVE), *args, str(deck), *(["-q"] if args[0] != "check" else [])],
+            cwd=tmp_path,
+            env=env,
+            stdin=subprocess.DEVNULL,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            start_new_session=True,  # a process group of its own, as a shell job has
+        )
+        command = Command(process, marker, tmpdir)
+        started.append(command)
+        return command
+
+    yield launch
+    for command in started:  # never leave a stray process behind a failed test
+        for pid, _ in command.marked():
+            os.kill(pid, signal.SIGKILL)
+        command.process.wait()
+
+
+def finish(command: Command, timeout: float = 30.0) -> tuple[int, str]:
+    _, err = command.process.communicate(timeout=timeout)
+    return command.process.returncode, err.decode(errors="replace")
+
+
+needs_program = pytest.mark.skipif(shutil.which("ngspice") is None, reason="no ngspice")
+
+CASES = [
+    # (command line, process to wait for, signal, to the whole group, exit status)
+    pytest.param(["sweep", "--ambient", "20:40:10", "-j", "2", "--backend", "batch"],
+                 "ngspice", signal.SIGTERM, False, 143, marks=needs_program, id="sweep-term"),
+    pytest.param(["sweep", "--ambient", "20:40:10", "-j", "2", "--backend", "batch"],
+                 "ngspice", signal.SIGINT, True, EXIT_INTERRUPTED, marks=needs_program,
+                 id="sweep-ctrl-c"),
+    pytest.param(["run", "--backend", "batch", "--method", "full"], "ngspice", signal.SIGTERM,
+                 False, 143, marks=needs_program, id="run-batch-term"),
+    pytest.param(["run", "--backend", "batch", "--method", "full"], "ngspice", signal.SIGINT,
+                 True, EXIT_INTERRUPTED, marks=needs_program, id="run-batch-ctrl-c"),
+    pytest.param(["run", "--backend", "shared", "--method", "full"], None, signal.SIGINT, True,
+                 EXIT_INTERRUPTED, id="run-shared-ctrl-c"),
+    pytest.param(["run", "--method", "cosim"], None, signal.SIGINT, True, EXIT_INTERRUPTED,
+                 id="run-cosim-ctrl-c"),
+    pytest.param(["run", "--method", "cosim"], None, signal.SIGTERM, False, 143,
+                 id="run-cosim-term"),
+    pytest.param(["settle", "--period", "1m", "--tstep", "1n"], None, signal.SIGINT, True,
+                 EXIT_INTERRUPTED, id="settle-ctrl-c"),
+]  # fmt: skip
+
+
+@pytest.mark.parametrize(("args", "wait_for", "signum", "group", "status"), CASES)
+def test_signal_ends_everything(
+    start, args: list[str], wait_for: str | None, signum: int, group: bool, status: int
+) -> None:  # type: ignore[no-untyped-def]
+    command = start(*args)
+    if wait_for:
+        command.wait_for(wait_for)
+    else:
+        time.sleep(4.0)  # the shared library runs in the command's own process
+        assert command.process.poll() is None, finish(command)
+    sent = time.monotonic()
+    if group:  # Ctrl-C at a terminal reaches every process of the foreground group
+        os.killpg(command.process.pid, signum)
+    else:
+        command.process.send_signal(signum)
+    code, err = finish(command)
+    assert time.monotonic() - sent < 15, "the command took too long to end"
+    assert code == status, err
+    assert "Traceback" not in err
+    assert command.left_over() == []
+    assert command.files() == []
+
+
+@needs_program
+def test_sigkill_of_a_sweep_ends_its_workers_and_ngspice(start) -> None:  # type: ignore[no-untyped-def]
+    command = start("sweep", "--ambient", "20:40:10", "-j", "2", "--backend", "batch")
+    command.wait_for("ngspice")
+    command.process.kill()  # no handler sees this: the children must notice themselves
+    command.process.wait()
+    assert command.left_over() == []
+    # Each worker removed its own ngspice folder; only Python's multiprocessing folder
+    # of the killed command stays (nothing runs in the killed process to remove it).
+    assert command.files(multiprocessing=False) == []
+
+
+@needs_program
+def test_sigkill_of_a_batch_run_ends_ngspice(start) -> None:  # type: ignore[no-untyped-def]
+    command = start("run", "--backend", "batch", "--method", "full")
+    command.wait_for("ngspice")
+    command.process.kill()
+    command.process.wait()
+    assert command.left_over() == []
+
+
+@pytest.mark.parametrize(
+    "args",
+    [
+        pytest.param(["run", "--method", "cosim"], id="cosim"),
+        pytest.param(["run", "--method", "full", "--backend", "shared"], id="full-shared"),
+        pytest.param(["run", "--method", "full", "--backend", "batch"], marks=needs_program,
+                     id="full-batch"),
+        pytest.param(["check"], id="check"),
+        pytest.param(["settle", "--period", "1m", "--tstep", "1n"], id="settle"),
+        pytest.param(["sweep", "--ambient", "20:30:10", "-j", "2"], id="sweep"),
+    ],
+)  # fmt: skip
+def test_timeout_ends_every_command(start, args: list[str]) -> None:  # type: ignore[no-untyped-def]
+    command = start(*args, "--timeout", "3")
+    began = time.monotonic()
+    code, err = finish(command, timeout=60)
+    took = time.monotonic() - began
+    # Start-up (imports, emitting) plus 3 s of simulation plus the halt: well under 20 s.
+    assert took < 20, err
+    # A sweep whose every corner failed exits with the first corner's status.
+    assert code == EXIT_TIMEOUT, err
+    assert "did not finish within 3 s" in err
+    assert "Traceback" not in err
+    assert command.left_over() == []
+    assert command.files() == []
+
+
+CHECK_FIXTURES = Path(__file__).parent / "fixtures" / "check"
+
+
+@pytest.mark.parametrize("backend", ["shared", pytest.param("batch", marks=needs_program)])
+def test_ambient_below_absolute_zero_ends_by_the_timeout(backend: str) -> None:
+    # An NTC at -300 degC kept ngspice (and the runaway diagnosis after it) busy for
+    # twelve minutes (issue 14).  Whatever ngspice does there, the run ends by its time
+    # limit: the shared library's loop ignores the halt request, so the process leaves
+    # without waiting for it.
+    deck = CHECK_FIXTURES / "ntc_supply.cir"
+    began = time.monotonic()
+    done = subprocess.run(
+        [str(HEATWEAVE), "run", str(deck), "--ambient=-300", "--backend", backend,
+         "--timeout", "3", "-q"],
+        capture_output=True, text=True, timeout=120, check=False,
+    )  # fmt: skip
+    assert time.monotonic() - began < 20, done.stderr
+    assert done.returncode == EXIT_TIMEOUT, done.stderr
+    assert "did not finish within 3 s" in done.stderr
