@@ -21,7 +21,8 @@ import os
 import signal
 import sys
 import threading
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from types import FrameType
 from typing import NoReturn
 
@@ -45,22 +46,57 @@ class Terminated(BaseException):
         return 128 + self.signum
 
 
+def ignore_further() -> None:
+    """Ignore SIGINT, SIGTERM and SIGHUP from now on: the process is ending, and a second
+    signal must not cut its clean-up short (a pool's manager, say, signals its workers
+    again)."""
+    for signum in (signal.SIGINT, *ENDING):
+        # A handler that does nothing, not SIG_IGN: a signal already on its way would
+        # otherwise raise "ignored due to race condition" in the middle of the clean-up.
+        signal.signal(signum, _nothing)
+
+
+def _nothing(signum: int, frame: FrameType | None) -> None:
+    return None
+
+
 def _raise(signum: int, frame: FrameType | None) -> None:
+    ignore_further()
+    if signum == signal.SIGINT:
+        raise KeyboardInterrupt
     raise Terminated(signum)
 
 
 def catch_termination(handler: Callable[[int, FrameType | None], None] = _raise) -> None:
-    """SIGTERM and SIGHUP call *handler* (default: raise :class:`Terminated`); only the
-    main thread can install handlers, elsewhere this does nothing."""
+    """SIGINT, SIGTERM and SIGHUP call *handler* (default: raise :class:`KeyboardInterrupt`
+    or :class:`Terminated`, once); only the main thread can install handlers, elsewhere this
+    does nothing.  An ignored SIGINT (a job started with ``nohup`` or ``&``) stays ignored."""
     if threading.current_thread() is not threading.main_thread():
         return
     for signum in ENDING:
         signal.signal(signum, handler)
+    if signal.getsignal(signal.SIGINT) is not signal.SIG_IGN:
+        signal.signal(signal.SIGINT, handler)
+
+
+@contextmanager
+def signals_deferred() -> Iterator[None]:
+    """Hold SIGINT, SIGTERM and SIGHUP back while the body runs (a child process being
+    started, a temporary folder being made and recorded), so that the exception they
+    raise comes before or after it, never half-way.  A held signal arrives at the end."""
+    held = {signal.SIGINT, *ENDING}
+    signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_UNBLOCK, held)
 
 
 def die_with_parent(signum: int = signal.SIGKILL) -> None:
     """Have the kernel send *signum* to this process when its parent dies (Linux
-    ``PR_SET_PDEATHSIG``; elsewhere nothing).  Safe as a ``preexec_fn``."""
+    ``PR_SET_PDEATHSIG``; elsewhere nothing), and take the signals
+    :func:`signals_deferred` held back from the parent.  Safe as a ``preexec_fn``."""
+    signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT, *ENDING})
     if not sys.platform.startswith("linux"):
         return
     libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6", use_errno=True)

@@ -24,6 +24,7 @@ from heatweave.cli.common import (
     guarded,
     input_files,
     simulation_options,
+    timeout_option,
     use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
@@ -77,12 +78,7 @@ def _output_options(func: click.decorators.FC) -> click.decorators.FC:
 @html_option
 @analysis_options
 @simulation_options
-@click.option(
-    "--timeout",
-    type=SpiceQuantity("s", positive=True),
-    metavar="SECONDS",
-    help="Stop each ngspice run after this long.",
-)
+@timeout_option("each side of the comparison")
 @click.option("-q", "--quiet", is_flag=True, help="No table; the gate's verdict only.")
 @guarded
 def compare(

@@ -25,6 +25,7 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.errors import SimulationTimeoutError, UsageError
+from heatweave.processes import signals_deferred
 
 from .naming import vector_name
 
@@ -154,11 +155,14 @@ def working_folder(workdir: str | os.PathLike[str] | None) -> Iterator[Path]:
         path.mkdir(parents=True, exist_ok=True)
         yield path
         return
-    path = Path(tempfile.mkdtemp(prefix="heatweave-sim-"))
+    made: list[Path] = []
     try:
-        yield path
+        with signals_deferred():  # a signal must not fall between making and recording
+            made.append(Path(tempfile.mkdtemp(prefix="heatweave-sim-")))
+        yield made[0]
     finally:
-        shutil.rmtree(path, ignore_errors=True)
+        for path in made:
+            shutil.rmtree(path, ignore_errors=True)
 
 
 #: The name ngspice looks for in its working folder at start-up (manual 16.6).

@@ -22,7 +22,7 @@ import numpy as np
 
 from heatweave import files
 from heatweave.errors import NgspiceMissingError, UsageError
-from heatweave.processes import die_with_parent
+from heatweave.processes import die_with_parent, signals_deferred
 
 from . import diagnose
 from .base import (
@@ -90,6 +90,45 @@ def in_run_order(written: Sequence[Plot]) -> tuple[Plot, ...]:
     return tuple(replace(plot, name=name) for plot, name in zip(ordered, names, strict=True))
 
 
+def _run_program(
+    command: list[str], cwd: Path, env: dict[str, str], timeout: float | None
+) -> bytes:
+    """Run ngspice to its end and return what it wrote to standard error.
+
+    ngspice stays in this command's process group and dies with it, even by SIGKILL
+    (:func:`die_with_parent`); on a timeout, Ctrl-C or SIGTERM it is killed and waited for
+    before the caller's working folder is removed.
+    """
+    process = None
+    try:
+        with signals_deferred():  # ngspice must be recorded before a signal can strike
+            process = subprocess.Popen(
+                command,
+                cwd=cwd,
+                env=env,
+                stdin=subprocess.DEVNULL,
+                stdout=subprocess.DEVNULL,
+                stderr=subprocess.PIPE,
+                preexec_fn=die_with_parent,
+            )
+        _, stderr = process.communicate(timeout=timeout)
+        return stderr
+    except subprocess.TimeoutExpired as exc:
+        raise timed_out(timeout) from exc
+    except OSError as exc:
+        raise NgspiceMissingError(
+            f"the ngspice program {command[0]!r} could not be started: {exc}",
+            hint=MISSING_HINT,
+        ) from exc
+    finally:
+        if process is not None and process.poll() is None:
+            process.kill()
+        if process is not None:
+            process.wait()
+            if process.stderr is not None:
+                process.stderr.close()
+
+
 class BatchSimulator(Simulator):
     """Runs ``ngspice -b``; *executable* is the program's name or path (default:
     ``HEATWEAVE_NGSPICE``, else ``ngspice`` on the PATH)."""
@@ -148,30 +187,10 @@ class BatchSimulator(Simulator):
             place_init_file(init_file, folder)
             environment = private_environment(folder, cwd)
             command = [program, "-b", "-o", str(log_path), str(deck_path)]
-            try:
-                finished = subprocess.run(
-                    command,
-                    cwd=folder,
-                    env=environment,
-                    stdin=subprocess.DEVNULL,
-                    stdout=subprocess.DEVNULL,
-                    stderr=subprocess.PIPE,
-                    timeout=timeout,
-                    check=False,
-                    # ngspice stays in this command's process group; a SIGKILL of this
-                    # process, which no handler sees, still ends it.
-                    preexec_fn=die_with_parent,
-                )
-            except subprocess.TimeoutExpired as exc:
-                raise timed_out(timeout) from exc
-            except OSError as exc:
-                raise NgspiceMissingError(
-                    f"the ngspice program {program!r} could not be started: {exc}",
-                    hint=MISSING_HINT,
-                ) from exc
+            stderr = _run_program(command, folder, environment, timeout)
             log = files.decode(log_path.read_bytes()) if log_path.exists() else ""
             # A few messages go to standard error even with -o; they belong to the log too.
-            stray = files.decode(finished.stderr).strip()
+            stray = files.decode(stderr).strip()
             if stray:
                 log = f"{log.rstrip()}\n{stray}\n"
             lines = diagnose.log_lines(log)

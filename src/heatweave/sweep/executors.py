@@ -28,7 +28,7 @@ from types import FrameType
 from typing import Any, Protocol, TypeVar
 
 from heatweave.errors import UsageError
-from heatweave.processes import Terminated, catch_termination
+from heatweave.processes import Terminated, catch_termination, ignore_further
 
 J = TypeVar("J")
 R = TypeVar("R")
@@ -87,6 +87,7 @@ _IN_JOB = False
 def _end_worker(signum: int, frame: FrameType | None) -> None:
     """A worker asked to end: inside a job, unwind it (ngspice killed, its folder removed)
     and exit in :func:`_call`; between jobs, exit at once."""
+    ignore_further()
     if _IN_JOB:
         raise Terminated(signum)
     os._exit(128 + signum)
@@ -100,7 +101,6 @@ def _start_worker(command: int) -> None:
     is the fork server, which lives as long as its workers do)."""
     os.environ.setdefault("OMP_NUM_THREADS", "1")
     catch_termination(_end_worker)
-    signal.signal(signal.SIGINT, _end_worker)
     threading.Thread(target=_watch, args=(command,), daemon=True).start()
 
 
