@@ -254,6 +254,24 @@ def test_progress_bar_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> None:
     assert "100%" in terminal.text
 
 
+@pytest.mark.ngspice
+def test_run_finishes_its_bar_before_it_writes_a_line(monkeypatch: pytest.MonkeyPatch) -> None:
+    """On a terminal the method line starts a line of its own, after the bar has ended
+    (common practice for terminal progress: the bar's line is finished first)."""
+    from heatweave.cli import run_cmd
+
+    terminal = Terminal()
+    monkeypatch.setattr(run_cmd, "is_terminal", lambda stream=None: True)
+    monkeypatch.setattr(sys, "stderr", terminal)
+    deck, notes = str(CHECK / "divider.cir"), str(CHECK / "board.thermal.toml")
+    main.main(["run", deck, "-a", notes, "--op", "-q"], standalone_mode=False)
+    assert terminal.text == ""  # -q: no bar, no method line
+    main.main(["run", deck, "-a", notes, "--op"], standalone_mode=False)
+    assert "100%" in terminal.text
+    before, found, _after = terminal.text.partition("method: ")
+    assert found and before.endswith("\n"), repr(terminal.text)
+
+
 def test_make_demo_prints_where_the_command_is() -> None:
     """``make demo`` ends by naming the command's folder and the PATH line (make -n)."""
     done = subprocess.run(

@@ -27,7 +27,7 @@ from heatweave.cli.common import (
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.cli.progress import fraction_progress
-from heatweave.errors import UsageError
+from heatweave.errors import Finding, UsageError
 from heatweave.spice.acceptance import refuse_rejected
 
 if TYPE_CHECKING:
@@ -195,7 +195,13 @@ def run(
             analyses=analyses, ambient=ambient, backend=backend, allow_control=allow_control,
             init_file=init_file, timeout=timeout, progress=progress,
         )  # fmt: skip
-        report = _simulate(deck, annotation_path, inputs, options, method, probe, quiet)
+        report, findings, method_line = _simulate(
+            deck, annotation_path, inputs, options, method, probe
+        )
+    # after the bar has finished its line, so no message starts on the bar's line
+    report_findings(findings)
+    if method_line is not None and not quiet:
+        click.echo(method_line, err=True)
     _write_reports(report, inputs, outputs, quiet)
 
 
@@ -206,36 +212,32 @@ def _simulate(
     options: RunOptions,
     method: str,
     probe: tuple[str, ...],
-    quiet: bool,
-) -> RunReport:
-    """Run the deck by *method* and build its report."""
+) -> tuple[RunReport, list[Finding], str | None]:
+    """Run the deck by *method*: its report, the findings to print and the method line
+    (``None`` for an explicit ``--method full``)."""
     from heatweave.reports import build_report
     from heatweave.run.runner import run as run_deck
 
     if method == "full":
         outcome = run_deck(deck, annotation_path, options, inputs=inputs)
-        report_findings(list(outcome.prepared.findings))
         report = build_report(inputs, outcome, probe_signals(probe, outcome.results))
         report = replace(report, method_reason="asked for the full electrothermal deck")
-    else:
-        from heatweave.cosim import run_auto
-        from heatweave.reports.model import report_of
-        from heatweave.run.prepare import deck_analyses_of
+        return report, list(outcome.prepared.findings), None
+    from heatweave.cosim import run_auto
+    from heatweave.reports.model import report_of
+    from heatweave.run.prepare import deck_analyses_of
 
-        fast = run_auto(deck, annotation_path, options, method=method, inputs=inputs)
-        report_findings(list(fast.findings))
-        if fast.full is not None:
-            report = build_report(inputs, fast.full, probe_signals(probe, fast.results))
-            report = replace(report, method_reason=fast.reason)
-        else:
-            own = tuple(deck_analyses_of(inputs.project.deck))
-            report = report_of(
-                inputs, fast.results, options.analyses or own, "shared", fast.findings,
-                probe_signals(probe, fast.results), (fast.method, fast.reason),
-            )  # fmt: skip
-        if not quiet:
-            click.echo(f"method: {fast.method} ({fast.reason})", err=True)
-    return report
+    fast = run_auto(deck, annotation_path, options, method=method, inputs=inputs)
+    if fast.full is not None:
+        report = build_report(inputs, fast.full, probe_signals(probe, fast.results))
+        report = replace(report, method_reason=fast.reason)
+    else:
+        own = tuple(deck_analyses_of(inputs.project.deck))
+        report = report_of(
+            inputs, fast.results, options.analyses or own, "shared", fast.findings,
+            probe_signals(probe, fast.results), (fast.method, fast.reason),
+        )  # fmt: skip
+    return report, list(fast.findings), f"method: {fast.method} ({fast.reason})"
 
 
 def _write_reports(
