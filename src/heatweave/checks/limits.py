@@ -33,7 +33,7 @@ from heatweave.annotation import Annotation, LimitSpec
 from heatweave.annotation.fields import closest
 from heatweave.annotation.ratings import derated_power
 from heatweave.errors import AnnotationError
-from heatweave.run.results import PartResult, RunResults, build_part, main_plot, power_meaning
+from heatweave.run.results import PartResult, RunResults, build_part, power_meaning
 from heatweave.run.runner import RunOutcome
 from heatweave.settle.periodic import Settled
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
@@ -297,9 +297,12 @@ def _drift(
 
 
 def ambient_series(outcome: RunOutcome) -> FloatArray:
-    """The ambient temperature over the run (from the ambient source's node)."""
-    plot = main_plot(outcome.sim)
-    return np.real(np.asarray(plot[f"v({AMBIENT_NODE})"])).astype(np.float64)
+    """The ambient temperature over the run (as the results read it: the ambient source's
+    node, or the circuit's ambient where no part is annotated)."""
+    results = outcome.results
+    if results.ambient_series is not None:
+        return results.ambient_series
+    return np.array([results.ambient], dtype=np.float64)
 
 
 def evaluate(

@@ -56,7 +56,7 @@ def choose(inputs: Inputs, options: RunOptions) -> Choice:
         return Choice(None, f"not periodic: {err.message}")
     circuit, _findings = thermal_circuit(inputs, ambient=options.ambient)
     if not circuit.parts:
-        return Choice(None, "no heated parts")
+        return Choice(None, "no annotated parts")
     try:
         system = assemble(circuit)
     except ThermalAssemblyError as err:

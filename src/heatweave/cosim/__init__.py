@@ -25,8 +25,7 @@ from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Inputs, load_inputs, thermal_circuit
 from heatweave.emit.placement import refuse_unplaced
 from heatweave.emit.sections import folded_files
-from heatweave.emit.splice import insert_before_end
-from heatweave.emit.temperature import temp_card, temperature_findings
+from heatweave.emit.temperature import temperature_findings, with_temp
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.quantities import counted
 from heatweave.run import runner
@@ -255,9 +254,8 @@ def plain_deck(deck: Deck, circuit: ThermalCircuit | None = None) -> Deck:
     kept: list[Node] = [
         n for n in deck.body if not (isinstance(n, Card) and n.name in DROPPED_CARDS)
     ]
-    if circuit is not None:
-        kept = insert_before_end(kept, Card(temp_card(circuit) + "\n"))
-    return deck.with_body(tuple(kept))
+    plain = deck.with_body(tuple(kept))
+    return plain if circuit is None else with_temp(plain, circuit)
 
 
 def probes(circuit: ThermalCircuit, index: DeckIndex) -> list[Probe]:

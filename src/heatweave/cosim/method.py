@@ -136,7 +136,7 @@ def choose_method(
     if heat_only:
         return "full", f"heat-only parts ({', '.join(heat_only[:3])}) need the full deck"
     if not circuit.parts:
-        return "full", "no heated parts"
+        return "full", "no annotated parts"
     if isinstance(circuit.ambient, tuple):
         return "full", "the ambient profile is not supported by the co-simulation"
     if circuit.start != "cold":

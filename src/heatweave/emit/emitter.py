@@ -45,7 +45,7 @@ from heatweave.emit.sections import (
 )
 from heatweave.emit.splice import end_position, insert_before_end, line_ending, spliced
 from heatweave.emit.stencil import Made, Stencils
-from heatweave.emit.temperature import temperature_findings
+from heatweave.emit.temperature import no_parts_note, temperature_findings, with_temp
 from heatweave.errors import EmitError, Finding
 from heatweave.quantities import format_number
 from heatweave.spice.cardparts import x_card_parts
@@ -445,8 +445,11 @@ def emit_inputs(
     chosen = annotation or inputs.annotation
     circuit, findings = thermal_circuit(inputs, annotation=annotation, ambient=ambient)
     if not circuit.parts:
-        # Nothing heats: the deck is written back unchanged, byte for byte.
-        return Emitted(inputs.project.deck.write(), (), findings, circuit)
+        # Nothing heats: the deck as written, at the ambient like every run (emit.temperature).
+        files = ((d, low) for d, low, _title in folded_files(inputs.project))
+        notes = (no_parts_note(circuit), *temperature_findings(files, circuit))
+        text = with_temp(inputs.project.deck, circuit).write()
+        return Emitted(text, (), findings + notes, circuit)
     deck_text = inputs.project.deck.write()  # not the file's text: a sweep rewrites .param cards
     head = header(
         _basename(inputs.deck_path), deck_text, _basename(inputs.annotation_path), chosen.text

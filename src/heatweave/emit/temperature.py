@@ -19,6 +19,7 @@ from __future__ import annotations
 import re
 from collections.abc import Iterable
 
+from heatweave.emit.splice import insert_before_end, line_ending
 from heatweave.errors import Finding
 from heatweave.quantities import format_number, parse_number
 from heatweave.spice.deck import Card, Deck, iter_cards
@@ -40,6 +41,27 @@ def circuit_temperature(circuit: ThermalCircuit) -> float:
 def temp_card(circuit: ThermalCircuit) -> str:
     """The ``.temp`` line that sets the circuit temperature to the run's ambient."""
     return f".temp {format_number(circuit_temperature(circuit))}"
+
+
+def with_temp(deck: Deck, circuit: ThermalCircuit) -> Deck:
+    """*deck* ending with :func:`temp_card` before its ``.end``: the plain deck a run with
+    no thermal network (no annotated part, or the co-simulation's) hands ngspice."""
+    eol = line_ending(deck)
+    body = insert_before_end(list(deck.body), Card(temp_card(circuit) + eol), eol)
+    return deck.with_body(tuple(body))
+
+
+def no_parts_note(circuit: ThermalCircuit) -> Finding:
+    """What a run of an annotation file that annotates no part does, said plainly."""
+    return Finding(
+        "note",
+        "no annotated parts: the annotation file names no part of the deck, so nothing heats; "
+        "the deck runs as written with the whole circuit at the ambient, "
+        f"{format_number(circuit_temperature(circuit))} degC, and only its node values and "
+        "currents are reported",
+        None,
+        "add a [part.NAME] table for each element whose self-heating you want to see",
+    )
 
 
 def temperature_findings(

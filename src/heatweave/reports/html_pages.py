@@ -163,7 +163,7 @@ def rating_limits(data: Mapping[str, Any]) -> list[dict[str, Any]]:
 def method_line(report: RunReport) -> str:
     """What ran and how: deck, analyses, back end, method and why, ambient."""
     analyses = "; ".join(report.analyses) or report.results.analysis
-    how = "co-simulation" if report.method == "cosim" else "electrothermal deck"
+    how = report.simulated
     why = f": {report.method_reason}" if report.method_reason else ""
     return (
         f"{report.deck}: {analyses}; ngspice, {report.backend} back end, {how}{why}; "

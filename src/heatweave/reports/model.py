@@ -125,6 +125,14 @@ class RunReport:
     def transient(self) -> bool:
         return is_transient(self.results)
 
+    @property
+    def simulated(self) -> str:
+        """What ngspice ran: the co-simulation, the electrothermal deck, or (no annotated
+        part) the plain deck at the ambient."""
+        if self.method == "cosim":
+            return "co-simulation"
+        return "electrothermal deck" if self.results.parts else "plain deck at the ambient"
+
 
 def local_ambient(results: RunResults, label: str, ambient: FloatArray) -> FloatArray:
     """The temperature at the cold end of a part's thermal path over the run: the ambient,

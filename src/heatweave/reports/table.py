@@ -125,7 +125,7 @@ def grid(
 
 def _settings(report: RunReport) -> str:
     analyses = "; ".join(report.analyses) or report.results.analysis
-    how = "co-simulation" if report.method == "cosim" else "electrothermal deck"
+    how = report.simulated
     return (
         f"{report.deck}: {analyses} (ngspice, {report.backend} back end, {how}), "
         f"ambient {report.results.ambient:.2f} degC"

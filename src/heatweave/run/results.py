@@ -302,12 +302,13 @@ def extract(
         )
     nodes_final: dict[str, float] = {}
     node_series: dict[str, FloatArray] = {}
+    ambient_values = ambient_of(plot, circuit, time)
     for shared in circuit.nodes:
-        values = _vector(plot, f"v({shared.node})")
+        # Without a part nothing heats a shared node, and none is emitted: it is the ambient.
+        values = _vector(plot, f"v({shared.node})") if circuit.parts else ambient_values
         nodes_final[shared.label] = float(values[-1])
         if transient:
             node_series[shared.label] = values
-    ambient_values = _vector(plot, f"v({AMBIENT_NODE})")
     voltages: dict[str, float] = {}
     voltage_series: dict[str, FloatArray] = {}
     currents: dict[str, float] = {}
@@ -337,6 +338,19 @@ def extract(
         current_series=current_series,
         period=period,
     )
+
+
+def ambient_of(plot: Plot, circuit: ThermalCircuit, time: FloatArray | None) -> FloatArray:
+    """The ambient over the run: its source's node, or for a deck without a thermal network
+    (no annotated part) the circuit's ambient itself, at each time point of a transient."""
+    if circuit.parts or f"v({AMBIENT_NODE})" in plot:
+        return _vector(plot, f"v({AMBIENT_NODE})")
+    if isinstance(circuit.ambient, tuple):
+        times, values = zip(*circuit.ambient, strict=True)
+        at = time if time is not None else np.zeros(1)
+        profile = np.interp(at, np.asarray(times, float), np.asarray(values, float))
+        return np.asarray(profile, dtype=np.float64)
+    return np.full(len(time) if time is not None else 1, float(circuit.ambient))
 
 
 def outside_range(part: PartResult) -> tuple[float, float] | None:

@@ -365,6 +365,14 @@ def settle(
     the method and :mod:`heatweave.run.waves` for the period)."""
     check_options(options)
     inputs = inputs or load_inputs(deck_path, annotation_path)
+    if not inputs.bound:
+        raise UsageError(
+            f"no annotated parts: {inputs.annotation_path} names no part of the deck, so "
+            "there is no temperature to settle (settle finds the annotated parts' periodic "
+            "steady state)",
+            hint="add a [part.NAME] table for each element whose self-heating you want, or "
+            "use run to see the deck's node values at the ambient",
+        )
     ambient = _ambient(inputs, options)
     drive = drive_period(inputs.index, options.period)
     period = drive.period

@@ -210,13 +210,17 @@ def _corner_table(
             body.append([*lead, "failed", *[""] * (4 + len(probes))])
             continue
         voltages = outcome.data["voltages"]
-        for k, (part, values) in enumerate(outcome.data["parts"].items()):
-            temperature = values["temperature"]
-            rise = None if temperature is None else temperature - ambient
-            cells = [
-                part, _num(temperature, ".2f"), rise_text(rise),
-                drift_text(values["resistance_change_ppm"]), _num(values["power"], ".4g"),
-            ]  # fmt: skip
+        # A corner without annotated parts still ran: one row for its probed voltages.
+        rows = list(outcome.data["parts"].items()) or [("-", None)]
+        for k, (part, values) in enumerate(rows):
+            cells = [part, "-", "-", "-", "-"]
+            if values is not None:
+                temperature = values["temperature"]
+                rise = None if temperature is None else temperature - ambient
+                cells = [
+                    part, _num(temperature, ".2f"), rise_text(rise),
+                    drift_text(values["resistance_change_ppm"]), _num(values["power"], ".4g"),
+                ]  # fmt: skip
             volts = [_num(voltages.get(node), ".5g") for node in probes]
             first = k == 0
             body.append([*(lead if first else [""] * len(lead)), *cells,
