@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import os
 import signal
+import stat
 import sys
 import tempfile
 import threading
@@ -37,7 +38,40 @@ def read_text(path: str | os.PathLike[str]) -> str:
     """A deck or include file as lossless text; ``-`` reads standard input."""
     if str(path) == "-":
         return decode(sys.stdin.buffer.read())
-    return decode(Path(path).read_bytes())
+    return decode(read_bytes(path))
+
+
+def read_bytes(path: str | os.PathLike[str]) -> bytes:
+    """The bytes of the regular file *path*.
+
+    Anything else (a device such as ``/dev/zero`` that never ends, a pipe that may never be
+    written to) is refused before a byte is read: opened without blocking, checked, closed.
+    """
+    fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+    try:
+        mode = os.fstat(fd).st_mode
+        if stat.S_ISDIR(mode):
+            raise IsADirectoryError(f"{path} is a folder")
+        if not stat.S_ISREG(mode):
+            raise UsageError(
+                f"cannot read {path}: it is not a regular file ({_kind(mode)})",
+                hint="save the input to a file, or pipe it through standard input as -",
+            )
+        os.set_blocking(fd, True)
+        with os.fdopen(fd, "rb", closefd=False) as handle:
+            return handle.read()
+    finally:
+        os.close(fd)
+
+
+def _kind(mode: int) -> str:
+    if stat.S_ISFIFO(mode):
+        return "a pipe"
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "a device"
+    if stat.S_ISSOCK(mode):
+        return "a socket"
+    return "not a file"
 
 
 def write_atomic(path: str | os.PathLike[str], data: bytes | str) -> None:

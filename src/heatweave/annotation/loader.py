@@ -7,6 +7,7 @@ import itertools
 import tomllib
 from pathlib import Path
 
+from heatweave import files
 from heatweave.annotation.fields import (
     AMBIENT_FIELDS,
     DEFAULT_DERATING_KNEE,
@@ -76,7 +77,7 @@ def load(path: str | Path, deck_name: str | None = None) -> Annotation:
     """Read and validate an annotation file on its own (no deck needed)."""
     file = str(path)
     try:
-        data = Path(path).read_bytes()
+        data = files.read_bytes(path)
     except OSError as err:
         raise AnnotationError(
             f"cannot read the annotation file {file}: {err.strerror or err}",

@@ -1,0 +1,66 @@
+"""Inputs a hostile colleague or a misconfigured CI job hands heatweave, and what must happen.
+
+Every case runs the command as a user does (its own process, with a time limit), so a
+command that blocks or spins fails the test instead of hanging the suite.
+"""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+DECK = "divider\nV1 in 0 DC 10\nRTOP in out 1k\nRBOT out 0 1k\n.op\n.end\n"
+NOTES = 'schema = 1\n[part.RTOP]\nmodel = "linear"\ntc1 = 0.003\nrth = 60.0\ncth = 0.02\n'
+
+
+def heatweave(args: list[str], cwd: Path, timeout: float = 60) -> subprocess.CompletedProcess[str]:
+    """The command in its own process; a command still running after *timeout* fails."""
+    return subprocess.run(
+        [sys.executable, "-m", "heatweave", *args],
+        cwd=cwd, capture_output=True, text=True, timeout=timeout, check=False,
+    )  # fmt: skip
+
+
+def special_file(kind: str, folder: Path) -> str:
+    """A path that is no regular file: a device that never ends, a pipe nobody writes to."""
+    if kind == "device":
+        return "/dev/zero"
+    fifo = folder / "pipe"
+    os.mkfifo(fifo)
+    return str(fifo)
+
+
+# (command line with {x} for the special file, what it reads there, exit status). Each reads
+# the special file as an input; a regular file there would be read to its end (common
+# practice: a tool refuses what it cannot read to an end instead of blocking or filling
+# memory). lint reports an unreadable deck as one of its findings (status 1), the other
+# commands as unusable input (2).
+SPECIAL_INPUTS = [
+    (["lint", "{x}"], "a deck", 1),
+    (["emit", "{x}", "-a", "d.thermal.toml"], "a deck", 2),
+    (["run", "{x}", "-a", "d.thermal.toml"], "a deck", 2),
+    (["lint", "d.cir", "-a", "{x}"], "an annotation file", 1),
+    (["run", "d.cir", "-a", "{x}"], "an annotation file", 2),
+    (["emit", "d.cir", "--check", "{x}"], "a committed emitted deck", 2),
+    (["network", "fit", "{x}", "--stages", "1"], "a Zth table", 2),
+]
+
+
+@pytest.mark.parametrize("kind", ["device", "fifo"])
+@pytest.mark.parametrize(
+    ("args", "what", "status"), SPECIAL_INPUTS, ids=[" ".join(c[0]) for c in SPECIAL_INPUTS]
+)
+def test_an_input_that_is_no_regular_file_is_refused(
+    tmp_path: Path, kind: str, args: list[str], what: str, status: int
+) -> None:
+    (tmp_path / "d.cir").write_text(DECK)
+    (tmp_path / "d.thermal.toml").write_text(NOTES)
+    special = special_file(kind, tmp_path)
+    result = heatweave([a.replace("{x}", special) for a in args], tmp_path, timeout=30)
+    assert result.returncode == status, (what, result.stdout, result.stderr)
+    assert "not a regular file" in result.stdout + result.stderr, (what, result.stderr)
+    assert "Traceback" not in result.stderr
