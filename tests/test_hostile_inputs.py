@@ -6,6 +6,7 @@ command that blocks or spins fails the test instead of hanging the suite.
 
 from __future__ import annotations
 
+import json
 import os
 import subprocess
 import sys
@@ -64,3 +65,32 @@ def test_an_input_that_is_no_regular_file_is_refused(
     assert result.returncode == status, (what, result.stdout, result.stderr)
     assert "not a regular file" in result.stdout + result.stderr, (what, result.stderr)
     assert "Traceback" not in result.stderr
+
+
+LIBRARY = ".lib sec1\nRLIB a b 1k\n.endl sec1\n.lib sec2\n.lib 'parts.lib' sec1\n.endl sec2\n"
+LIB_DECK = "divider\nV1 in 0 DC 5\nR1 in a 1k\n.lib parts.lib sec2\nRB b 0 1k\n.op\n.end\n"
+LIB_NOTES = 'schema = 1\n[part.R1]\nmodel = "linear"\ntc1_ppm = 100\nrth = 50\ncth = 0.1\n'
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("backend", ["shared", "batch"])
+def test_a_library_section_using_another_section_of_its_file_runs(
+    tmp_path: Path, backend: str
+) -> None:
+    """A section that uses another section of its own file is library practice (manual 2.8)
+    and no cycle: stock ngspice 39 loads it, lint passes it, and run simulates it with the
+    section's resistor in the circuit."""
+    (tmp_path / "parts.lib").write_text(LIBRARY)
+    (tmp_path / "d.cir").write_text(LIB_DECK)
+    (tmp_path / "d.thermal.toml").write_text(LIB_NOTES)
+    plain = subprocess.run(
+        ["ngspice", "-b", "d.cir"], cwd=tmp_path, capture_output=True, text=True, timeout=60
+    )
+    assert plain.returncode == 0 and "error" not in plain.stdout.lower() + plain.stderr.lower()
+    assert heatweave(["lint", "d.cir"], tmp_path).returncode == 0
+    result = heatweave(["run", "d.cir", "--backend", backend, "--json", "-"], tmp_path)
+    assert result.returncode == 0, result.stderr
+    # Hand calculation: 5 V across R1 + RLIB + RB = 3 kOhm, P(R1) = (5/3000)^2 * 1000 W; the
+    # self-heating (50 K/W * 2.8 mW = 0.14 K at 100 ppm/K) moves it by 1.4e-5 only.
+    power = json.loads(result.stdout)["parts"]["R1"]["power"]
+    assert power == pytest.approx((5 / 3000) ** 2 * 1000, rel=1e-4)

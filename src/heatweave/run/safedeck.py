@@ -85,6 +85,10 @@ def defuse(text: str) -> str:
     return _HASH_LINE.sub(r"\1* #", text)
 
 
+#: A file being inlined and its section (``None`` for the whole file).
+_Link = tuple[str, str | None]
+
+
 class _Inliner:
     """Inlines includes and drops command lines, one body at a time; new nodes only."""
 
@@ -93,7 +97,7 @@ class _Inliner:
         self.allow = allow_control
 
     def body(
-        self, nodes: Iterable[Node], folder: Path, chain: tuple[str, ...], *, top: bool
+        self, nodes: Iterable[Node], folder: Path, chain: tuple[_Link, ...], *, top: bool
     ) -> list[Node]:
         out: list[Node] = []
         for node in nodes:
@@ -122,15 +126,19 @@ class _Inliner:
             return card
         return replace(card, lead=defuse(card.lead), text=defuse(card.text))
 
-    def inline(self, card: Card, folder: Path, chain: tuple[str, ...]) -> list[Node]:
+    def inline(self, card: Card, folder: Path, chain: tuple[_Link, ...]) -> list[Node]:
         """The include *card* as a comment, then the body it brings in, made safe."""
         target = include_target(card)
         assert target is not None
         name, section = target
         full = str((folder / os.path.expanduser(name)).resolve())
         where = card.location()
-        if full in chain:
-            raise DeckStructureError(f"include cycle through {full}", where)
+        # A .lib section may use another section of its own file (manual 2.8): only the
+        # same file and section again is a cycle.
+        link = (full, section.lower() if section is not None else None)
+        if link in chain:
+            shown = full if section is None else f"{full} section {section}"
+            raise DeckStructureError(f"include cycle through {shown}", where)
         deck = self.files.get(full)
         if deck is None:
             if not Path(full).is_file():
@@ -144,7 +152,7 @@ class _Inliner:
             self.files[full] = deck
         chosen = deck.body if section is None else library_section(deck, section, where)
         note = Card(f"{MARK}inlined: {card.logical().text}\n", self.card(card).lead)
-        inner = self.body(chosen, Path(full).parent, (*chain, full), top=False)
+        inner = self.body(chosen, Path(full).parent, (*chain, link), top=False)
         if inner:
             inner[-1] = _line_ended(inner[-1])
         return [note, *inner]
