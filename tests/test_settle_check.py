@@ -93,6 +93,9 @@ def test_settle_check_gates_the_same_deck(tmp_path: Path, ambient: float, passes
             "--junit", str(junit), "-q"]  # fmt: skip
     result = CliRunner().invoke(main, args)
     assert result.exit_code == (0 if passes else EXIT_CHECK_FAILED), result.output
+    # -q as check's: nothing on stdout, only the violated limits on stderr, no summary
+    assert result.stdout == ""
+    assert [x[:4] for x in result.stderr.splitlines()] == ([] if passes else ["FAIL"])
     data = json.loads(report.read_text())
     limits = {(item["subject"], item["limit"]): item for item in data["limits"]}
     power = limits[("RLOAD", "power_rating")]

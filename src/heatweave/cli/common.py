@@ -286,7 +286,11 @@ def run_control_options(what: str) -> Callable[[F], F]:
 
     def decorate(func: F) -> F:
         func = click.option(
-            "-q", "--quiet", is_flag=True, help="No table and no progress; warnings only."
+            "-q",
+            "--quiet",
+            is_flag=True,
+            help="No table and no progress: warnings only (and, with --check, the violated "
+            "limits).",
         )(func)
         return timeout_option(what)(func)
 

@@ -186,4 +186,6 @@ def settle(
     if not quiet:
         click.echo(render_table(settled), file=stream, nl=False)
     if found is not None:
-        report_limits(deck, found, junit_file, time.monotonic() - started, stream=stream)
+        report_limits(
+            deck, found, junit_file, time.monotonic() - started, stream=stream, quiet=quiet
+        )
