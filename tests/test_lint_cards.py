@@ -46,6 +46,14 @@ def ngspice(deck: Path, timeout: float = 20) -> tuple[int | None, str, int | Non
     return done.returncode, done.stdout + done.stderr, points
 
 
+def accepted(output: str) -> bool:
+    """ngspice 39 accepted the deck: a ``Circuit:`` line and no line with "error"."""
+    lines = output.lower().splitlines()
+    return any(line.startswith("circuit:") for line in lines) and not any(
+        "error" in line for line in lines
+    )
+
+
 def findings(deck: Path) -> list[tuple[int, int, str, str]]:
     return [
         (f.location.line, f.location.column, f.severity, f.message)
@@ -75,8 +83,9 @@ REJECTED = [
      "15.3.10", ("rejects", "TSTART is invalid, must be less than TSTOP")),
     (".tran 1u 1m 0 -1u", 15, "error", ".tran tmax must not be negative, not -1u", "15.3.10",
      ("rejects", "Timestep too small")),
-    (".ac dec 10 1", 13, "error", ".ac is missing fstop, the stop frequency", "15.3.1",
-     ("points", 0)),
+    (".ac dec 10 1", 13, "warning",
+     ".ac is missing fstop, the stop frequency: ngspice 39 runs it and computes no points",
+     "15.3.1", ("points", 0)),
     (".ac dec 10", 11, "error", ".ac is missing fstart, the start frequency", "15.3.1",
      ("rejects", "AC startfreq <= 0")),
     (".ac", 4, "error", ".ac is missing the sweep type (dec, oct or lin)", "15.3.1",
@@ -90,7 +99,7 @@ REJECTED = [
      ("rejects", "Frequency of < 0 is invalid for AC start")),
     (".ac dec 10 1 -1", 14, "error", ".ac fstop must be greater than zero, not -1", "15.3.1",
      ("rejects", "Frequency of < 0 is invalid for AC stop")),
-    (".ac dec 10 1k 1", 15, "error",
+    (".ac dec 10 1k 1", 15, "warning",
      ".ac fstop 1 is below fstart 1k: ngspice 39 computes no points", "15.3.1",
      ("points", 0)),
     (".ac dec 0 1 1k", 9, "warning", ".ac points must be at least 1, not 0", "15.3.1",
@@ -98,7 +107,7 @@ REJECTED = [
     (".dc V1 0 1", 11, "error", ".dc is missing vincr, the step", "15.3.2", ("hangs", None)),
     (".dc V1 0 1 0", 12, "error", ".dc vincr must not be zero: ngspice 39 never finishes",
      "15.3.2", ("hangs", None)),
-    (".dc V1 0 1 -0.1", 12, "error",
+    (".dc V1 0 1 -0.1", 12, "warning",
      ".dc vincr -0.1 leads away from vstop 1: ngspice 39 computes no points", "15.3.2",
      ("points", 0)),
     (".dc V1 0 1 0.1 V2 0 1", 22, "error", ".dc is missing incr2, the step", "15.3.2",
@@ -115,7 +124,7 @@ REJECTED = [
      "15.3.4", ("rejects", "Number of steps for noise measurement has to be larger than 0")),
     (".noise v(out) V1 lin 10 0 1k", 25, "error", ".noise fstart must be greater than zero, not 0",
      "15.3.4", ("rejects", "Frequency of 0 is invalid")),
-    (".noise v(out) V1 dec 10 1k 1", 28, "error",
+    (".noise v(out) V1 dec 10 1k 1", 28, "warning",
      ".noise fstop 1 is below fstart 1k: ngspice 39 computes no points", "15.3.4",
      ("points", 0)),
 ]  # fmt: skip
@@ -143,6 +152,7 @@ def test_analysis_card_rules(
         assert status != 0 and str(detail) in output, output
     elif kind == "points":
         assert status == 0 and points == detail, (status, points)
+        assert accepted(output), output  # it loads and runs: lint warns, never errs (issue 17)
     else:
         assert status is None, "ngspice finished"
     assert findings(deck) == [(LINE, column, severity, message)]
@@ -257,3 +267,42 @@ def test_annotation_file_with_several_decks_is_a_usage_error(tmp_path: Path) -> 
     assert "hint: lint that deck on its own" in result.output
     assert CliRunner().invoke(lint, [str(one), "-a", str(notes)]).exit_code == 0
     assert CliRunner().invoke(lint, [str(one), str(two)]).exit_code == 0
+
+
+# The rows ngspice 39 runs to no points: a warning for plain lint (exit 0), an error under
+# --strict, and a located refusal (exit 2) from every command that would run that analysis.
+EMPTY = [row for row in REJECTED if row[5] == ("points", 0)]
+EMPTY_IDS = [row[0] for row in EMPTY]
+
+
+@pytest.mark.parametrize("row", EMPTY, ids=EMPTY_IDS)
+def test_lint_exit_status_follows_ngspice(tmp_path: Path, row: tuple[object, ...]) -> None:
+    card = str(row[0])
+    deck = tmp_path / "probe.cir"
+    deck.write_text(ANALYSIS_DECK + card + "\n.end\n")
+    assert CliRunner().invoke(lint, [str(deck)]).exit_code == 0
+    strict = CliRunner().invoke(lint, [str(deck), "--strict"])
+    assert strict.exit_code == 1 and str(row[3]) in strict.output
+
+
+@pytest.mark.parametrize("command", ["run", "check", "sweep"])
+@pytest.mark.parametrize("row", EMPTY, ids=EMPTY_IDS)
+def test_simulating_commands_refuse_an_analysis_computing_nothing(
+    tmp_path: Path, row: tuple[object, ...], command: str
+) -> None:
+    from heatweave.cli import main
+
+    card, column, message = str(row[0]), int(str(row[1])), str(row[3])
+    deck = tmp_path / "probe.cir"
+    deck.write_text(ANALYSIS_DECK + card + "\n.end\n")
+    (tmp_path / "probe.thermal.toml").write_text(
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1_ppm = 100\nrth = 50\ncth = 0.01\n'
+    )
+    extra = ["--ambient", "25:50:25"] if command == "sweep" else []
+    result = CliRunner().invoke(main, [command, str(deck), *extra])
+    assert result.exit_code == 2, result.output
+    assert f"probe.cir:{LINE}:{column}: error: {message}" in result.output
+    assert card in result.output  # the source line is shown
+    # The same deck with its analysis replaced on the command line runs.
+    replaced = CliRunner().invoke(main, [command, str(deck), *extra, "--op"])
+    assert replaced.exit_code == 0, replaced.output

@@ -101,7 +101,8 @@ def check(
     try:
         inputs = load_inputs(deck, chosen)
         guard_outputs(outputs, inputs)
-        refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
+        # What ngspice 39 would refuse, and a deck analysis that would run to no points.
+        refuse_rejected(inputs.index, own_analyses=not analyses_of(op, tran))
         signals = checks.resolve_limits(inputs.annotation, inputs.index)
         options = RunOptions(
             analyses=analyses_of(op, tran), ambient=ambient, backend=backend,

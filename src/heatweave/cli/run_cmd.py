@@ -188,7 +188,8 @@ def run(
     check_outputs(outputs, deck, annotation_path)
     inputs = load_inputs(deck, annotation_path)
     guard_outputs(outputs, inputs)
-    refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
+    # What ngspice 39 would refuse, and a deck analysis that would run to no points: exit 2.
+    refuse_rejected(inputs.index, own_analyses=not analyses)
     check_probes_early(probe, inputs.index)
     with fraction_progress(not quiet and is_terminal(), "simulating") as progress:
         options = RunOptions(

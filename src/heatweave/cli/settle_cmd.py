@@ -147,7 +147,9 @@ def settle(
     try:
         inputs = load_inputs(deck, annotation_path)
         guard_outputs(outputs, inputs)
-        refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
+        # What ngspice 39 would refuse (exit 2); settle runs its own transient, never the
+        # deck's analysis cards, so one that computes no points does not stop it.
+        refuse_rejected(inputs.index, own_analyses=False)
         # Limit tables naming nodes the deck lacks are refused before simulating.
         signals = limits.resolve_limits(inputs.annotation, inputs.index) if check else ()
 

@@ -247,7 +247,8 @@ def _run(
 
     inputs = load_inputs(deck, annotation_path)
     guard_outputs(outputs, inputs)
-    refuse_rejected(inputs.index)  # what ngspice 39 would refuse: exit 2 before it runs
+    # What ngspice 39 would refuse, and a deck analysis that would run to no points: exit 2.
+    refuse_rejected(inputs.index, own_analyses=not options.analyses)
     limits = resolve_limits(inputs.annotation, inputs.index) if check_limits else None
     if plan.draws and not _has_tolerances(inputs.annotation):
         message = (

@@ -12,6 +12,7 @@ all; ``run``, ``check``, ``settle`` and ``sweep`` refuse the deck with the first
 
 from __future__ import annotations
 
+import itertools
 import re
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
@@ -36,6 +37,7 @@ from heatweave.spice.expressions import (
 )
 from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Scope
+from heatweave.spice.lint_cards import empty_analyses
 from heatweave.spice.syntax import (
     Call,
     DotSyntax,
@@ -114,9 +116,11 @@ def _couplings(cards: list[Card]) -> Iterator[Finding]:
                 yield Finding("error", err.message, err.location, err.hint)
 
 
-def refuse_rejected(index: DeckIndex) -> None:
-    """Raise the first of :func:`rejections` (exit 2) before anything is simulated."""
-    for finding in rejections(index):
+def refuse_rejected(index: DeckIndex, *, own_analyses: bool = True) -> None:
+    """Raise the first of :func:`rejections` (exit 2) before anything is simulated, then,
+    when the deck's own analyses will run (*own_analyses*), the first that computes nothing."""
+    empty = empty_analyses(_read_cards(index)) if own_analyses else iter(())
+    for finding in itertools.chain(rejections(index), empty):
         raise DeckStructureError(finding.message, finding.location, finding.hint)
 
 

@@ -4,17 +4,20 @@ finishes, runs with no points, or quietly replaces by a default.
 Analysis cards (manual 15.3): ``.tran``, ``.ac``, ``.dc`` and ``.noise`` need their sweep
 values, and some of those must be positive.  Resistors (3.3.1): a card without a value, or
 with the value 0, becomes 1 mOhm.  Each rule names what ngspice 39.3 itself does with such a
-card; values written as expressions (``{tend}``) are not evaluated here.  Only ``lint`` runs
-these rules; the emitter never imports this module.
+card; values written as expressions (``{tend}``) are not evaluated here.  ``lint`` runs
+these rules; the simulating commands refuse an analysis ngspice would run to no points
+(:func:`empty_analyses`, through :func:`heatweave.spice.acceptance.refuse_rejected`).
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
 
+from heatweave.errors import DeckSyntaxError, Finding
 from heatweave.spice.deck import Card
 from heatweave.spice.element_syntax import FORMS as ELEMENT_FORMS
+from heatweave.spice.grammar import syntax_of
 from heatweave.spice.syntax import (
     Call,
     CardSyntax,
@@ -34,6 +37,9 @@ class Problem:
     severity: str
     message: str
     hint: str
+    #: ngspice 39 loads and runs the analysis but computes no points: lint warns (issue 17:
+    #: plain lint passes a deck ngspice runs), the simulating commands refuse it.
+    empty: bool = False
 
 
 # General forms, after the manual's sections (15.3.10, 15.3.1, 15.3.2, 15.3.4).
@@ -63,6 +69,10 @@ class _Reader:
 
     def add(self, offset: int, message: str, severity: str = "error", hint: str = "") -> None:
         self.problems.append(Problem(offset, severity, message, hint or self.hint))
+
+    def empty(self, offset: int, message: str, hint: str = "") -> None:
+        """An analysis ngspice 39 runs to no points (a warning; see :attr:`Problem.empty`)."""
+        self.problems.append(Problem(offset, "warning", message, hint or self.hint, True))
 
     def field(self, i: int, what: str) -> Field | None:
         """Slot *i*, or ``None`` (reported once) when the card ends before it."""
@@ -151,13 +161,17 @@ def _frequencies(r: _Reader, first: int, strict: bool) -> None:
     elif fstart == 0 and (strict or kind != "lin"):
         sweep = "" if strict else f" for a {kind} sweep"
         r.add(r.offset(first + 2), f"{r.card} fstart must be greater than zero{sweep}, not 0")
+    if not strict and len(r.args) == first + 3 and r.complete:
+        r.empty(r.end, f"{r.card} is missing fstop, the stop frequency: ngspice 39 runs it "
+                "and computes no points")  # fmt: skip
+        return
     fstop = r.number(first + 3, "fstop", "the stop frequency")
     if fstop is None:
         return
     if fstop < 0 or (strict and fstop == 0):
         r.positive(first + 3, "fstop", fstop)
     elif fstart is not None and fstop < fstart:
-        r.add(
+        r.empty(
             r.offset(first + 3),
             f"{r.card} fstop {r.text(first + 3)} is below fstart {r.text(first + 2)}: "
             "ngspice 39 computes no points",
@@ -202,7 +216,7 @@ def _dc(r: _Reader) -> None:
         if incr == 0:
             r.add(r.offset(base + 3), f".dc {step} must not be zero: ngspice 39 never finishes")
         elif incr is not None and _leads_away(start, stop, incr):
-            r.add(
+            r.empty(
                 r.offset(base + 3),
                 f".dc {step} {r.text(base + 3)} leads away from {last} {r.text(base + 2)}: "
                 "ngspice 39 computes no points",
@@ -295,3 +309,21 @@ def card_problems(syntax: CardSyntax, text: str, model_of: ModelLookup) -> list[
     if isinstance(syntax, ElementSyntax) and syntax.letter == "r":
         return _resistor(syntax, len(text.rstrip()), model_of)
     return []
+
+
+def empty_analyses(cards: Iterable[Card]) -> Iterator[Finding]:
+    """Each analysis card among *cards* that ngspice 39 runs to no points, as a located
+    error: a command that would simulate it computes nothing, so it refuses the deck."""
+    for card in cards:
+        if card.name not in (".ac", ".dc", ".noise"):
+            continue
+        try:
+            syntax = syntax_of(card)
+        except DeckSyntaxError:
+            continue  # the grammar's finding; lint reports it
+        if not isinstance(syntax, DotSyntax):
+            continue
+        for problem in _analysis(syntax, card.logical().text):
+            if problem.empty:
+                yield Finding("error", problem.message, card.location(problem.offset),
+                              problem.hint)  # fmt: skip
