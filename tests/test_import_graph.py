@@ -141,3 +141,53 @@ def test_top_level_is_small() -> None:
 def test_module_size(module: str) -> None:
     lines = MODULES[module].read_text(encoding="utf-8").count("\n")
     assert lines <= MODULE_LINES_LIMIT, f"{module}: {lines} lines"
+
+
+REASON = "# numpy and scipy load here, when the command runs, not for --help"
+
+
+def _import_runs(body: list[ast.stmt]) -> Iterator[list[ast.Import | ast.ImportFrom]]:
+    """Runs of consecutive import statements in one block of statements."""
+    run: list[ast.Import | ast.ImportFrom] = []
+    for stmt in body:
+        if isinstance(stmt, ast.Import | ast.ImportFrom):
+            run.append(stmt)
+            continue
+        if run:
+            yield run
+        run = []
+    if run:
+        yield run
+
+
+def _imported(node: ast.Import | ast.ImportFrom) -> str:
+    if isinstance(node, ast.ImportFrom):
+        return node.module or ""
+    return node.names[0].name
+
+
+@pytest.mark.parametrize("module", sorted(MODULES))
+def test_function_level_imports_have_a_reason(module: str) -> None:
+    """An import inside a function is either a third-party one with its reason on the line,
+    or, in cli/ only, heatweave modules that pull numpy and scipy in, under the one comment
+    that says so; anything else belongs at the top of the module (issue 13)."""
+    lines = MODULES[module].read_text(encoding="utf-8").split("\n")
+    wrong = []
+    for func in ast.walk(ast.parse("\n".join(lines))):
+        if not isinstance(func, ast.FunctionDef | ast.AsyncFunctionDef):
+            continue
+        blocks = [getattr(n, f) for n in ast.walk(func) for f in ("body", "orelse", "finalbody")
+                  if isinstance(getattr(n, f, None), list)]  # fmt: skip
+        for block in blocks:
+            for run in _import_runs(block):
+                above = lines[run[0].lineno - 2].strip()
+                for node in run:
+                    name = _imported(node)
+                    if name.startswith("heatweave"):
+                        if not module.startswith("heatweave.cli") or above != REASON:
+                            wrong.append(f"{node.lineno}: {name}")
+                    elif not (
+                        "#" in lines[node.lineno - 1] or above.startswith("#") or above == "try:"
+                    ):
+                        wrong.append(f"{node.lineno}: {name} (no reason given)")
+    assert wrong == []

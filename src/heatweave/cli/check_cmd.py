@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, TextIO
 
 import click
 
+from heatweave.checks import limits as checks
 from heatweave.cli.common import (
     analyses_of,
     analysis_options,
@@ -31,8 +32,10 @@ from heatweave.cli.common import (
     use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
-from heatweave.errors import EXIT_CHECK_FAILED
+from heatweave.errors import EXIT_CHECK_FAILED, HeatweaveError
+from heatweave.files import write_atomic
 from heatweave.reports.junit import Case, Suite, render, shared_time
+from heatweave.run import runner
 from heatweave.spice.acceptance import refuse_rejected
 
 if TYPE_CHECKING:
@@ -85,11 +88,9 @@ def check(
     its periodic steady state (as settle finds it) instead of its own short transient; the
     method line says which.
     """
-    from heatweave.checks import limits as checks
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.checks.periodic import choose
     from heatweave.emit.emitter import load_inputs
-    from heatweave.errors import HeatweaveError
-    from heatweave.run import runner
     from heatweave.run.prepare import RunOptions, with_deadline
     from heatweave.settle.periodic import SettleOptions, settle
 
@@ -133,24 +134,26 @@ def check(
             failed = junit_case(deck, "run", error=err.render(), seconds=elapsed)
             write_junit(junit_file, deck, (failed,), elapsed, stamp)
         if json_file is not None and may_replace_report(json_file):
-            from heatweave.files import write_atomic
+            # numpy and scipy load here, when the command runs, not for --help
             from heatweave.reports import check_report
 
             write_atomic(json_file, check_report.render_error(deck, chosen, err))
         raise
     if html_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports import html_pages
 
         if settled is not None:
             write_html(html_file, lambda: html_pages.settle_page(settled, inputs, found, "check"))
         else:
+            # numpy and scipy load here, when the command runs, not for --help
             from heatweave.reports.model import build_report
 
             assert outcome is not None
             report = build_report(inputs, outcome)
             write_html(html_file, lambda: html_pages.run_page(report, inputs, found, "check"))
     if json_file is not None:
-        from heatweave.files import write_atomic
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports import check_report
 
         sha256 = inputs.annotation.sha256
@@ -170,6 +173,7 @@ def report_limits(
     and the summary (on *stream*, else stdout, or stderr when the JUnit report or another
     report, *to_stdout*, goes to stdout; with *quiet* only the violated limits, on stderr),
     the JUnit report (started at *stamp*), and exit status 1 on a violation."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.checks.limits import summary
 
     # With a report on stdout, the lines go to stderr so that stdout stays XML or JSON.
@@ -218,7 +222,6 @@ def write_junit(
 ) -> None:  # fmt: skip
     """The JUnit report of one deck's check (``-``: stdout), the suite started at *stamp*
     (default: now)."""
-    from heatweave.files import write_atomic
 
     suite = Suite(name=deck, cases=cases, time=elapsed, timestamp=stamp)
     write_atomic(path, render([suite]))

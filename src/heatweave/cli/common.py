@@ -6,12 +6,15 @@ import functools
 import os
 import sys
 from collections.abc import Callable
+from pathlib import Path
 from typing import TYPE_CHECKING, ParamSpec, TypeVar
 
 import click
 
-from heatweave.errors import EXIT_INTERRUPTED, Finding, HeatweaveError
+from heatweave.errors import EXIT_INTERRUPTED, Finding, HeatweaveError, UsageError
+from heatweave.files import refuse_overwrite
 from heatweave.processes import Terminated, catch_termination, leave
+from heatweave.quantities import SpiceQuantity, Temperature, format_number
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
@@ -139,7 +142,6 @@ def init_file_option(func: F) -> F:
 
 def simulation_options(func: F) -> F:
     """``--ambient``, ``--backend``, ``--allow-control`` and ``--init-file``."""
-    from heatweave.quantities import Temperature
 
     func = init_file_option(func)
     func = click.option(
@@ -166,7 +168,6 @@ def simulation_options(func: F) -> F:
 
 def analysis_options(func: F) -> F:
     """``--op`` and ``--tran TSTEP TSTOP`` (SPICE quantities); see :func:`analyses_of`."""
-    from heatweave.quantities import SpiceQuantity
 
     func = click.option(
         "--tran",
@@ -181,8 +182,6 @@ def analysis_options(func: F) -> F:
 
 def analyses_of(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
     """The analyses asked for on the command line (none: the deck's own cards)."""
-    from heatweave.errors import UsageError
-    from heatweave.quantities import format_number
 
     if op and tran is not None:
         raise UsageError(
@@ -206,10 +205,9 @@ def analyses_of(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
 
 def annotation_for(deck: str, annotations: str | None) -> str:
     """The annotation file to use: the one given, else ``DECK.thermal.toml`` beside the deck."""
-    from pathlib import Path
 
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.annotation import default_path
-    from heatweave.errors import UsageError
 
     if annotations:
         return annotations
@@ -246,7 +244,6 @@ def report_options(csv_help: str, *, plot: bool = True) -> Callable[[F], F]:
 
 def require_plotting(option: str = "--plot") -> None:
     """Refuse *option* before anything runs when matplotlib (the ``plot`` extra) is missing."""
-    from heatweave.errors import UsageError
 
     try:
         import matplotlib  # noqa: F401
@@ -266,8 +263,6 @@ def timeout_option(what: str) -> Callable[[F], F]:
     """``--timeout SECONDS``, the time limit of every simulation *what* runs, together."""
 
     def decorate(func: F) -> F:
-        from heatweave.quantities import SpiceQuantity
-
         return click.option(
             "--timeout",
             type=SpiceQuantity("s", positive=True),
@@ -302,8 +297,6 @@ def check_outputs(
 ) -> None:
     """At most one output on stdout, and none of them the deck or its annotation file (the
     files it includes are checked by :func:`guard_outputs` once they are known)."""
-    from heatweave.errors import UsageError
-    from heatweave.files import refuse_overwrite
 
     on_stdout = [name for name, path in outputs.items() if path == "-"]
     if len(on_stdout) > 1:
@@ -316,7 +309,6 @@ def check_outputs(
 
 def guard_outputs(outputs: dict[str, str | None], inputs: Inputs) -> None:
     """Refuse outputs that are the deck, its annotation file or any file it includes."""
-    from heatweave.files import refuse_overwrite
 
     found = input_files(inputs.deck_path, inputs.annotation_path, inputs.project)
     refuse_overwrite(outputs, found)
@@ -326,7 +318,6 @@ def may_replace_report(path: str) -> bool:
     """True when *path* is stdout, absent, or an earlier XML or heatweave JSON report.  A
     report written on the way out of a failure (when the files a deck includes may not all
     be known yet) goes only to such a path, never over a file that could be an input."""
-    from pathlib import Path
 
     if path == "-" or not Path(path).exists():
         return True

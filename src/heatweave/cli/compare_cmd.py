@@ -28,11 +28,15 @@ from heatweave.cli.common import (
     use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
+from heatweave.compare import render
 from heatweave.compare.diff import Comparison, Thresholds
 from heatweave.compare.diff import compare as compare_sides
+from heatweave.compare.revision import checkout
 from heatweave.compare.snapshot import read_result, snapshot_of
 from heatweave.errors import EXIT_CHECK_FAILED, HeatweaveError, UsageError
+from heatweave.files import refuse_overwrite, write_atomic
 from heatweave.quantities import SpiceQuantity
+from heatweave.spice.project import load_project
 
 if TYPE_CHECKING:
     from heatweave.compare.execute import Side
@@ -112,7 +116,6 @@ def compare(
     and change; per limit, whether its verdict changed; worst changes first.  Exit 1 when
     the gate is crossed.
     """
-    from heatweave.compare.diff import Thresholds
 
     started = time.monotonic()
     outputs = {
@@ -174,6 +177,7 @@ def compare(
     comparison = compare_sides(old_snap, new_snap, options.over(from_file))
     _write_outputs(comparison, outputs, sides, (old_data, new_data), time.monotonic() - started)
     if not quiet:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.compare.render import render_table
 
         stream = sys.stderr if on_stdout else sys.stdout
@@ -190,12 +194,10 @@ def _guard_inputs(
 ) -> None:
     """Refuse, before anything runs, an output that is an input: the deck, its annotation
     file and every file it includes (``--against``), or a saved result."""
-    from heatweave.files import refuse_overwrite
 
     if revision is None or len(sources) != 1:
         refuse_overwrite(outputs, [("a result to compare", source) for source in sources])
         return
-    from heatweave.spice.project import load_project
 
     deck = sources[0]
     refuse_overwrite(outputs, input_files(deck, annotations))
@@ -204,6 +206,7 @@ def _guard_inputs(
 
 
 def _file_thresholds(path: str | None) -> Thresholds:
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.annotation import load
 
     if path is None:
@@ -228,8 +231,8 @@ def _run_revisions(
     init_file: str | None = None,
 ) -> tuple[Side, Side]:
     """Run DECK as it was at *revision* and as it is, with the same options."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.compare.execute import run_side
-    from heatweave.compare.revision import checkout
     from heatweave.run.prepare import RunOptions
 
     chosen = annotation_for(deck, annotations)
@@ -279,8 +282,6 @@ def _write_outputs(
     data: tuple[dict[str, Any], dict[str, Any]],
     elapsed: float,
 ) -> None:
-    from heatweave.compare import render
-    from heatweave.files import write_atomic
 
     writers: dict[str, Callable[[], str]] = {
         "--markdown": lambda: render.render_markdown(comparison),
@@ -293,6 +294,7 @@ def _write_outputs(
         path = outputs[name]
         if path is not None:
             write_atomic(path, write())
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.compare.page import comparison_page, curves_of_data
 
     curves = (

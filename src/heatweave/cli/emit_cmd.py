@@ -12,11 +12,13 @@ from heatweave.cli.common import guarded, input_files, report_findings
 from heatweave.emit.forms import FORMS
 from heatweave.errors import EXIT_CHECK_FAILED, UsageError
 from heatweave.files import encode, read_text, refuse_overwrite, same_file, write_atomic
+from heatweave.spice.project import load_project
 
 
 def default_annotation(deck: str) -> Path | None:
     """``DECK.thermal.toml`` beside the deck (``amp.thermal.toml`` for ``amp.cir``), or
     ``None`` when there is none."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.annotation import default_path
 
     candidate = default_path(deck)
@@ -30,11 +32,11 @@ def build_emitted(
     *outputs* are known to replace none of the files read (:func:`guard_outputs`)."""
     chosen = Path(annotation) if annotation else default_annotation(deck)
     if chosen is None:
-        from heatweave.spice.project import load_project
 
         project = load_project(deck)
         refuse_overwrite(outputs, input_files(deck, None, project), hint=_HINT)
         return project.deck.write()
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.emit.emitter import emit_inputs, load_inputs
 
     inputs = load_inputs(deck, str(chosen))
@@ -100,6 +102,7 @@ def emit(
     outputs: dict[str, str | None] = {} if in_place or check_file is not None else {"-o": output}
     text = build_emitted(deck, annotations, form=form, outputs=outputs)
     if check_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.emit.sections import stale_reason
 
         try:

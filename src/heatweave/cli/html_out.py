@@ -8,6 +8,7 @@ from typing import TYPE_CHECKING, TypeVar
 import click
 
 from heatweave.errors import UsageError
+from heatweave.files import write_atomic
 
 if TYPE_CHECKING:
     from heatweave.reports.html import Page
@@ -38,7 +39,7 @@ def write_html(path: str | None, build: Callable[[], Page]) -> None:
     """Build the page only when asked for, and write it atomically."""
     if path is None:
         return
-    from heatweave.files import write_atomic
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.html import render_page
 
     write_atomic(path, render_page(build()))

@@ -62,6 +62,7 @@ def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool, str
 def _decks(files: tuple[str, ...]) -> list[str]:
     """*files* with each annotation file replaced by the deck beside it (when there is
     one), each deck once, in the order given."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.annotation.loader import deck_beside, is_annotation_file
 
     found: dict[str, None] = {}
@@ -73,6 +74,7 @@ def _decks(files: tuple[str, ...]) -> list[str]:
 
 def _findings(file: str, annotations: str | None) -> list[Finding]:
     """Lint a deck; an annotation file with no deck beside it is validated on its own."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.annotation.loader import is_annotation_file, load
     from heatweave.checks.lint import lint_file
 

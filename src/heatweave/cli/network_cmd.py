@@ -122,10 +122,11 @@ def _invariants(source: NetworkForm, converted: NetworkForm) -> tuple[str, ...]:
 
 
 def _plot(data: ZthData, keep: np.ndarray, result: FitResult, target: str) -> bytes:
+    # matplotlib loads only when a plot is asked for: the plot extra may be absent
     import matplotlib
 
     matplotlib.use("Agg")
-    from matplotlib.figure import Figure
+    from matplotlib.figure import Figure  # after choosing the backend that draws to memory
 
     figure = Figure(figsize=(7, 4.5), layout="constrained")
     axes = figure.add_subplot()

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import difflib
 import sys
 from collections.abc import Collection
 from dataclasses import replace
@@ -27,8 +28,11 @@ from heatweave.cli.common import (
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.cli.progress import fraction_progress
-from heatweave.errors import Finding, UsageError
+from heatweave.errors import Finding, HeatweaveError, UsageError
+from heatweave.files import write_atomic
 from heatweave.spice.acceptance import refuse_rejected
+from heatweave.spice.hierarchy import global_names, top_level_node
+from heatweave.spice.netlist import card_nodes
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
@@ -41,6 +45,7 @@ if TYPE_CHECKING:
 def probe_nodes(probes: tuple[str, ...], known: Collection[str]) -> tuple[str, ...]:
     """The node voltages among ``--probe`` names (``out`` or ``V(out)``) as node names, each
     checked against the *known* node names (lower case, as ngspice names them)."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.model import parse_probe
 
     found = []
@@ -60,6 +65,7 @@ def probe_nodes(probes: tuple[str, ...], known: Collection[str]) -> tuple[str, .
 def probe_signals(probes: tuple[str, ...], results: RunResults) -> tuple[Probe, ...]:
     """``--probe`` names as signals of the finished run: node voltages (``out``,
     ``V(out)``) and branch currents (``I(vamm)``), each checked against its vectors."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.model import parse_probe
 
     probe_nodes(probes, results.voltages)
@@ -84,7 +90,6 @@ LISTED = 12
 
 def nodes_hint(name: str, known: Collection[str]) -> str:
     """The nodes whose names are close to *name*, else the deck's nodes (the first few)."""
-    import difflib
 
     close = difflib.get_close_matches(name, sorted(known), n=4, cutoff=0.6)
     if close:
@@ -99,9 +104,6 @@ def deck_nodes(index: DeckIndex) -> frozenset[str] | None:
     """Every node of the circuit as ngspice names it (``out``, ``x1.mid``), ground aside;
     ``None`` when some element's terminals cannot be told from its card (an XSPICE ``A``
     card, say), so that only the simulation's own vectors can say which nodes exist."""
-    from heatweave.errors import HeatweaveError
-    from heatweave.spice.hierarchy import global_names, top_level_node
-    from heatweave.spice.netlist import card_nodes
 
     globals_ = global_names(index)
     found: set[str] = set()
@@ -122,6 +124,7 @@ def check_probes_early(probes: tuple[str, ...], index: DeckIndex) -> None:
 
     Device-internal nodes (``q1#collector``) exist only in the simulation; they are left
     to the check against its vectors."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.model import parse_probe
 
     wanted = tuple(p for p in probes if "#" not in p and parse_probe(p).kind == "v")
@@ -176,6 +179,7 @@ def run(
 
     The summary table goes to stdout (to stderr when a report is written to stdout).
     """  # fmt: skip
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.emit.emitter import load_inputs
     from heatweave.run.prepare import RunOptions
 
@@ -216,6 +220,7 @@ def _simulate(
 ) -> tuple[RunReport, list[Finding], str | None]:
     """Run the deck by *method*: its report, the findings to print and the method line
     (``None`` for an explicit ``--method full``)."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports import build_report
     from heatweave.run.runner import run as run_deck
 
@@ -224,6 +229,7 @@ def _simulate(
         report = build_report(inputs, outcome, probe_signals(probe, outcome.results))
         report = replace(report, method_reason="asked for the full electrothermal deck")
         return report, list(outcome.prepared.findings), None
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.cosim import run_auto
     from heatweave.reports.model import report_of
     from heatweave.run.prepare import deck_analyses_of
@@ -245,27 +251,31 @@ def _write_reports(
     report: RunReport, inputs: Inputs, outputs: dict[str, str | None], quiet: bool
 ) -> None:
     """The files asked for, then the table (on stderr when a file went to stdout)."""
-    from heatweave.files import write_atomic
 
     json_file, csv_file, plot_file = outputs["--json"], outputs["--csv"], outputs["--plot"]
     html_file = outputs["--html"]
     if json_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports import json_report
 
         write_atomic(json_file, json_report.render(report))
     if csv_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports import csv_report
 
         write_atomic(csv_file, csv_report.render(report))
     if plot_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports import plot
 
         write_atomic(plot_file, plot.render_png(report))
     if html_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports.html_pages import run_page
 
         write_html(html_file, lambda: run_page(report, inputs))
     if not quiet:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports import table
 
         to_stderr = "-" in outputs.values()

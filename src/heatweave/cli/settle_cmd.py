@@ -7,6 +7,7 @@ import time
 
 import click
 
+from heatweave.checks import limits
 from heatweave.cli.common import (
     annotation_for,
     check_outputs,
@@ -21,7 +22,8 @@ from heatweave.cli.common import (
     simulation_options,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
-from heatweave.errors import Finding, UsageError
+from heatweave.errors import Finding, HeatweaveError, UsageError
+from heatweave.files import write_atomic
 from heatweave.quantities import SpiceQuantity
 from heatweave.spice.acceptance import refuse_rejected
 
@@ -121,11 +123,9 @@ def settle(
     against its mean dissipation, and each [limit] table against the settled period.
     Exit status 1 reports a violated limit, 7 thermal runaway.
     """
-    from heatweave.checks import limits
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.cli.check_cmd import junit_case, report_limits, write_junit
     from heatweave.emit.emitter import load_inputs
-    from heatweave.errors import HeatweaveError
-    from heatweave.files import write_atomic
     from heatweave.reports.settle import progress_line, render_csv, render_json, render_table
     from heatweave.settle.periodic import SettleOptions, Step
     from heatweave.settle.periodic import settle as settle_deck
@@ -177,10 +177,12 @@ def settle(
     if csv_file is not None:
         write_atomic(csv_file, render_csv(settled))
     if plot_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports.settle_plot import render_png
 
         write_atomic(plot_file, render_png(settled, deck))
     if html_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.reports.html_pages import settle_page
 
         write_html(html_file, lambda: settle_page(settled, inputs, found))

@@ -37,8 +37,13 @@ from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.cli.progress import count_progress
 from heatweave.cli.run_cmd import check_probes_early, probe_nodes
 from heatweave.errors import HeatweaveError, UsageError
+from heatweave.files import write_atomic
 from heatweave.reports.junit import Case
 from heatweave.spice.acceptance import refuse_rejected
+from heatweave.sweep import limits as sweep_limits
+from heatweave.sweep import plot as sweep_plot
+from heatweave.sweep import report as sweep_report
+from heatweave.sweep.executors import make_executor
 
 if TYPE_CHECKING:
     from heatweave.annotation import Annotation
@@ -173,6 +178,7 @@ def sweep(
     --check, violated a limit, and when all failed the status of the first corner's error
     (3, 4, 7, ...).
     """  # fmt: skip
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.model import parse_probe
     from heatweave.run.prepare import RunOptions
     from heatweave.sweep.corners import SweepPlan
@@ -207,6 +213,7 @@ def sweep(
     if any(parse_probe(p).kind != "v" for p in probe):
         raise UsageError("sweep --probe takes node voltages", hint="write --probe NODE")
     if probe and deck != "-":  # standard input is read once, by the sweep itself
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.emit.emitter import load_inputs
 
         check_probes_early(probe, load_inputs(deck, annotation_path).index)
@@ -219,6 +226,7 @@ def sweep(
             _write_junit(junit_file, deck, (_run_error(deck, err),), clock)
         raise
     if html_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
         from heatweave.sweep.page import sweep_page
 
         write_html(html_file, lambda: sweep_page(result))
@@ -240,10 +248,10 @@ def _run(
 ) -> SweepResult:
     """Load the inputs, refuse *outputs* that would replace one, resolve the limits (bad
     ones are exit 2 before any corner runs) and run every corner."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.checks.limits import resolve_limits
     from heatweave.emit.emitter import load_inputs
     from heatweave.sweep.corners import run_sweep
-    from heatweave.sweep.executors import make_executor
 
     inputs = load_inputs(deck, annotation_path)
     guard_outputs(outputs, inputs)
@@ -277,9 +285,7 @@ def _report(
     clock: tuple[float, datetime],
 ) -> None:
     """Warnings, the reports asked for, the table and the limit lines; then exit."""
-    from heatweave.files import write_atomic
-    from heatweave.sweep import limits as sweep_limits
-    from heatweave.sweep import report as sweep_report
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.sweep.corners import corner_ambient, describe, exit_status
 
     # Warnings every corner repeats (a dropped .control block) are printed once.
@@ -291,7 +297,6 @@ def _report(
     if csv_file is not None:
         write_atomic(csv_file, sweep_report.render_csv(result))
     if plot_file is not None:
-        from heatweave.sweep import plot as sweep_plot
 
         write_atomic(plot_file, sweep_plot.render_png(result))
     if junit_file is not None:
@@ -333,7 +338,7 @@ def _write_junit(
 ) -> None:
     """The sweep's JUnit report: one suite for the deck (``-``: stdout), timed from
     *clock* (the monotonic and the calendar time the sweep started)."""
-    from heatweave.files import write_atomic
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.junit import Suite, render
 
     started, stamp = clock

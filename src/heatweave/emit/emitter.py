@@ -26,8 +26,9 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 
-from heatweave.annotation import Annotation, BoundPart, bind
+from heatweave.annotation import Annotation, BoundPart, bind, load
 from heatweave.emit.forms import (
     added_nodes,
     resistor_cards,
@@ -52,7 +53,7 @@ from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.netlist import positional_spans, rewrite_nodes
-from heatweave.spice.project import Project
+from heatweave.spice.project import Project, load_project
 from heatweave.thermal.circuit import (
     AMBIENT_NODE,
     PREFIX,
@@ -410,8 +411,6 @@ class Inputs:
 
 def load_inputs(deck_path: str, annotation_path: str) -> Inputs:
     """Read a deck, its includes and its annotation file, and bind the parts."""
-    from heatweave.annotation import bind, load
-    from heatweave.spice.project import load_project
 
     project = load_project(deck_path)
     annotation = load(annotation_path, deck_name=deck_path)
@@ -466,6 +465,5 @@ def emit_files(deck_path: str, annotation_path: str, *, form: str = "reference")
 
 
 def _basename(path: str) -> str:
-    from pathlib import Path
 
     return Path(path).name

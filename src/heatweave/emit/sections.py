@@ -11,6 +11,7 @@ from heatweave import __version__
 from heatweave.emit.forms import TRTOL_NOTE, preamble, shared_nodes
 from heatweave.emit.temperature import temp_card
 from heatweave.errors import EmitError, Finding, Location
+from heatweave.files import encode
 from heatweave.quantities import format_number
 from heatweave.spice.deck import ControlBlock, Deck, iter_cards, unprintable
 from heatweave.spice.hierarchy import DeckIndex
@@ -22,7 +23,6 @@ MARK = "*hw* "  # marks lines heatweave writes around replaced cards
 
 def sha256(text: str) -> str:
     """Hex SHA-256 of a text as heatweave reads files (lossless UTF-8)."""
-    from heatweave.files import encode
 
     return hashlib.sha256(encode(text)).hexdigest()
 

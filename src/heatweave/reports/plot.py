@@ -42,7 +42,7 @@ def palette(names: Sequence[str], family: str = "thermal") -> dict[str, str]:
     """One colour per curve name, stable across panels.  Thermal curves (parts, nodes) use
     matplotlib's tab10/tab20 cycle; voltages use Dark2, so a voltage never wears a part's
     colour."""
-    import matplotlib
+    import matplotlib  # loads only when a figure is drawn: the plot extra may be absent
 
     name = "Dark2" if family != "thermal" else ("tab10" if len(names) <= 10 else "tab20")
     cmap = matplotlib.colormaps[name]

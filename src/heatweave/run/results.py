@@ -196,7 +196,6 @@ def main_plot(sim: SimResult) -> Plot:
         if found:
             return found[-1]
     if not sim.plots:
-        from heatweave.errors import SimulatorError
 
         raise SimulatorError(
             "ngspice produced no results",

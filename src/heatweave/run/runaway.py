@@ -52,7 +52,11 @@ import numpy.typing as npt
 
 from heatweave.errors import SimulatorError, ThermalRunawayError
 from heatweave.run.diagnosis import HINT, Diagnosis, RunawayError
+from heatweave.run.prepare import simulate
+from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE
 from heatweave.run.sources import single_source
+from heatweave.spice.hierarchy import global_names, top_level_node
+from heatweave.spice.netlist import card_nodes
 from heatweave.thermal.balance import check_state, conductances, thermal_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
 
@@ -114,7 +118,6 @@ class Continuation:
 
     def simulate(self, text: str, analyses: tuple[str, ...] | None = None) -> SimResult:
         """ngspice on *text*, with *analyses* instead of the prepared ones when given."""
-        from heatweave.run.prepare import simulate
 
         prepared = replace(self.prepared, text=text)
         if analyses is not None:
@@ -266,7 +269,6 @@ def follow(cont: Continuation) -> BranchEnd | None:
         return range_end(cont, drive, temps, *outside)
     reached = k is None and drive[-1] >= 1.0 - 1e-9
     if reached:
-        from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE
 
         if float(np.max(temps[:, -1])) <= IMPLAUSIBLE_TEMPERATURE:
             return BranchEnd(1.0, temps[:, -1], False, temps[:, -1])
@@ -312,8 +314,6 @@ def driving_point(circuit: ThermalCircuit) -> tuple[list[str], FloatArray]:
 
 def terminals(part: PartPlan, index: DeckIndex) -> tuple[str, str]:
     """The two top-level node names of a resistor part, as ngspice names them."""
-    from heatweave.spice.hierarchy import global_names, top_level_node
-    from heatweave.spice.netlist import card_nodes
 
     resolved = index.resolve(part.path)
     assert resolved is not None
@@ -386,7 +386,6 @@ def diagnose(cont: Continuation, index: DeckIndex, end: BranchEnd) -> Diagnosis 
 
 def growth(results: RunResults) -> str | None:
     """When and where a transient's temperatures left physical values, in words."""
-    from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE
 
     if results.time is None:
         return None

@@ -28,8 +28,11 @@ from heatweave.run.results import (
     outside_range,
     range_findings,
 )
+from heatweave.run.runaway import explain
 from heatweave.run.verify import verify_run
 from heatweave.simulators import SimResult
+from heatweave.simulators.diagnose import overflowed
+from heatweave.thermal.circuit import PREFIX
 
 
 @dataclass(frozen=True, slots=True)
@@ -84,8 +87,6 @@ def suspect(results: RunResults, sim: SimResult) -> bool:
     """True when a run may have landed off the physical branch: an implausible result, a
     part outside its model's range, or a heatweave source that overflowed on the way
     (ngspice then gave up its first attempts and may have found a far, spurious root)."""
-    from heatweave.simulators.diagnose import overflowed
-    from heatweave.thermal.circuit import PREFIX
 
     if implausible(results) or any(outside_range(part) for part in results.parts):
         return True
@@ -101,7 +102,6 @@ def explain_runaway(
 ) -> ThermalRunawayError | None:
     """A thermal-runaway error naming the part, its loop gain and the drive level, when
     that is what went wrong; ``None`` when the failure has another cause."""
-    from heatweave.run.runaway import explain
 
     return explain(inputs, options, prepared, failure, results)
 

@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, cast
 
 from heatweave.errors import DeckSyntaxError
+from heatweave.spice.cardbuild import BuildError, ToSyntax, use_text
 from heatweave.spice.deck import Card
 from heatweave.spice.syntax import Call, CardSyntax, Token, Value
 
@@ -55,9 +56,7 @@ def grammar_dir() -> Path:
 @functools.cache
 def parser() -> Lark:
     """The LALR parser, built once per process."""
-    from lark import Lark
-
-    from heatweave.spice.cardbuild import ToSyntax
+    from lark import Lark  # lark loads on the first parse: importing this module stays cheap
 
     folder = grammar_dir()
     return Lark.open(
@@ -77,9 +76,7 @@ def parse_card(text: str) -> CardSyntax:
     Raises :class:`CardSyntaxError` with the offset of the problem in *text*.  Results are
     immutable, so the same card text (lint, then the emitter) is parsed only once.
     """
-    from lark import UnexpectedInput
-
-    from heatweave.spice.cardbuild import BuildError, use_text
+    from lark import UnexpectedInput  # lark is loaded by now (see above): no cost here
 
     use_text(text)
     try:
@@ -122,7 +119,7 @@ _AFTER_KEYWORD: dict[str, tuple[str, str]] = {
 
 def _describe(exc: UnexpectedInput, text: str) -> CardSyntaxError:
     """Turn lark's exception into plain words at the right offset."""
-    from lark import UnexpectedCharacters, UnexpectedToken
+    from lark import UnexpectedCharacters, UnexpectedToken  # loaded with the parser
 
     if isinstance(exc, UnexpectedCharacters):
         return _bad_character(exc.pos_in_stream or 0, text)

@@ -16,6 +16,8 @@ from heatweave.spice.cardparts import subckt_ports, x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node
 from heatweave.spice.grammar import syntax_of, unclosed_model
 from heatweave.spice.hierarchy import DeckIndex, Scope, global_names
+from heatweave.spice.lint_cards import card_problems
+from heatweave.spice.netlist import card_nodes
 from heatweave.spice.project import Project
 
 
@@ -75,7 +77,6 @@ def _orphan(card: Card, before: Node | None, titled: bool) -> Finding:
 
 def _parse_all(decks: Iterable[Deck], index: DeckIndex) -> Iterator[Finding]:
     """The grammar on every card, then the card rules of :mod:`heatweave.spice.lint_cards`."""
-    from heatweave.spice.lint_cards import card_problems
 
     def model_of(name: str) -> Card | None:
         return index.models.get(name)
@@ -113,7 +114,6 @@ def _connections(
 ) -> Iterator[Finding]:
     """Unknown subcircuits, nodes with a single connection (ground and
     ``.global`` nodes aside: one net everywhere, connected in other scopes too)."""
-    from heatweave.spice.netlist import card_nodes
 
     counts: Counter[str] = Counter()
     first: dict[str, Card] = {}

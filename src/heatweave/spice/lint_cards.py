@@ -17,13 +17,14 @@ from dataclasses import dataclass
 from heatweave.errors import DeckSyntaxError, Finding
 from heatweave.spice.deck import Card
 from heatweave.spice.element_syntax import FORMS as ELEMENT_FORMS
-from heatweave.spice.grammar import syntax_of
+from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
 from heatweave.spice.syntax import (
     Call,
     CardSyntax,
     DotSyntax,
     ElementSyntax,
     Field,
+    ModelSyntax,
     Value,
     ValueKind,
 )
@@ -288,8 +289,6 @@ def _resistor(syntax: ElementSyntax, end: int, model_of: ModelLookup) -> list[Pr
 
 def _model_sets_value(card: Card | None) -> bool:
     """True when *card* (a ``.model``) gives a resistance, or is unknown (not judged here)."""
-    from heatweave.spice.grammar import CardSyntaxError, parse_card
-    from heatweave.spice.syntax import ModelSyntax
 
     if card is None:
         return True

@@ -18,6 +18,7 @@ from __future__ import annotations
 import re
 
 from heatweave.errors import DeckStructureError
+from heatweave.files import read_text
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 
 _BLANKS = " \t"
@@ -138,7 +139,6 @@ def read_file(path: str, *, title: bool = True) -> Deck:
 def read_deck_text(path: str) -> str:
     """A deck's text as :func:`heatweave.files.read_text` gives it, with an unreadable
     file reported as a :class:`DeckStructureError` rather than an OS error."""
-    from heatweave.files import read_text
 
     try:
         return read_text(path)

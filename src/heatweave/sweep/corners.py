@@ -35,10 +35,13 @@ from typing import Any
 import numpy as np
 
 from heatweave.annotation import Annotation, sample
-from heatweave.checks.limits import LimitResult, Signal
+from heatweave.checks.limits import LimitResult, Signal, evaluate, needs_baseline
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import EXIT_CHECK_FAILED, EXIT_OK, HeatweaveError
+from heatweave.reports import build_report
+from heatweave.reports.json_report import as_dict
 from heatweave.run.prepare import RunOptions, deck_folder, with_deadline
+from heatweave.run.runner import run, run_baseline
 from heatweave.sweep.executors import Executor
 from heatweave.sweep.grid import check_params, with_params
 
@@ -265,10 +268,6 @@ def jobs_for(
 def run_corner(job: CornerJob) -> CornerOutcome:
     """Run one corner (in a worker process) and reduce it to report data; check its limits
     when the job has some to check (with the corner's baseline for a drift limit)."""
-    from heatweave.checks.limits import evaluate, needs_baseline
-    from heatweave.reports import build_report
-    from heatweave.reports.json_report import as_dict
-    from heatweave.run.runner import run, run_baseline
 
     inputs = job.inputs
     started = time.monotonic()

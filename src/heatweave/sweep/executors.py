@@ -17,6 +17,7 @@ corners always run in separate processes (each worker process loads its own libr
 from __future__ import annotations
 
 import importlib
+import multiprocessing
 import os
 import select
 import signal
@@ -148,8 +149,6 @@ class ProcessExecutor:
     name = "local"
 
     def __init__(self, workers: int, preload: Sequence[str] = ()) -> None:
-        import multiprocessing
-
         self.workers = workers
         context = multiprocessing.get_context("forkserver")
         context.set_forkserver_preload(list(preload))

@@ -14,8 +14,10 @@ import math
 import re
 from dataclasses import replace
 
+from heatweave.annotation import bind
 from heatweave.emit.emitter import Inputs
 from heatweave.emit.sections import MARK
+from heatweave.emit.splice import insert_before_end
 from heatweave.errors import Location, UsageError
 from heatweave.quantities import NOT_FINITE, format_number, parse_number, temperature_problem
 from heatweave.spice.deck import Block, Card, Node
@@ -188,8 +190,6 @@ def with_params(inputs: Inputs, values: dict[str, float]) -> Inputs:
     in deck order, wherever it is used (checked against ngspice 39)."""
     if not values:
         return inputs
-    from heatweave.annotation import bind
-    from heatweave.emit.splice import insert_before_end
 
     deck = inputs.project.deck
     top = top_level_params(inputs)

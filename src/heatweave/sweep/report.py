@@ -47,6 +47,7 @@ from heatweave.reports.json_report import json_text
 from heatweave.reports.model import PPM_LIMIT
 from heatweave.reports.table import WIDTH, cell_styles, grid
 from heatweave.run.prepare import deck_analyses_of
+from heatweave.sweep import limits as sweep_limits
 from heatweave.sweep.corners import (
     PERCENTILES,
     CornerOutcome,
@@ -106,7 +107,6 @@ def as_dict(result: SweepResult) -> dict[str, Any]:
         "failed": [o.corner.index for o in result.failed],
     }
     if result.checked:
-        from heatweave.sweep import limits as sweep_limits
         out["check"] = sweep_limits.as_dict(result)
     out["cautions"] = CAUTION_TEXT
     return out

@@ -22,6 +22,14 @@ from heatweave.errors import AnnotationError, EmitError, Finding, Location
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
 from heatweave.spice.grammar import syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Resolved
+from heatweave.spice.netlist import (
+    card_nodes,
+    resistor_value,
+    scope_params,
+    simple_resistor,
+    top_funcs,
+    top_params,
+)
 from heatweave.tempmodels.base import TempModel
 
 PREFIX = "hw_"
@@ -140,14 +148,6 @@ def build_circuit(
 ) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
     """The thermal circuit of a bound annotation, with each resistor's model built from
     the deck's nominal value; also the warnings about card parameters set aside."""
-    from heatweave.spice.netlist import (
-        card_nodes,
-        resistor_value,
-        scope_params,
-        simple_resistor,
-        top_funcs,
-        top_params,
-    )
 
     findings: list[Finding] = list(annotation.warnings)
     params = top_params(index)

@@ -27,6 +27,9 @@ from dataclasses import dataclass, field
 import numpy as np
 import numpy.typing as npt
 import scipy.linalg
+from scipy.sparse import csc_matrix, csr_matrix
+from scipy.sparse.csgraph import connected_components
+from scipy.sparse.linalg import splu
 
 from heatweave.errors import InputError
 from heatweave.thermal.circuit import AMBIENT_NODE, ThermalCircuit
@@ -235,9 +238,6 @@ def _floating(circuit: ThermalCircuit, which: npt.NDArray[np.intp]) -> ThermalAs
 
 def components(a: FloatArray) -> list[npt.NDArray[np.intp]]:
     """The states of each independent block of *a* (parts that share no heat path)."""
-    from scipy.sparse import csr_matrix
-    from scipy.sparse.csgraph import connected_components
-
     if a.size == 0:
         return []
     count, labels = connected_components(csr_matrix(a != 0), directed=False)
@@ -247,9 +247,6 @@ def components(a: FloatArray) -> list[npt.NDArray[np.intp]]:
 def solve(a: FloatArray, rhs: FloatArray) -> FloatArray:
     """``a^-1 rhs`` by sparse LU (thermal networks are sparse); raises ``LinAlgError``
     when *a* is singular."""
-    from scipy.sparse import csc_matrix
-    from scipy.sparse.linalg import splu
-
     try:
         lu = splu(csc_matrix(a))
     except RuntimeError as exc:  # "Factor is exactly singular"
