@@ -78,3 +78,41 @@ def test_run_machinery(
     rendered = caught.value.render()
     for word in words:
         assert word in rendered
+
+
+# --- included files that are not regular files, endless standard input (issue 14) -------
+# (decks and annotation files that are devices or pipes: tests/test_hostile_inputs.py)
+
+DIVIDER = FIXTURES / "divider.cir"
+NOTE = FIXTURES / "divider.thermal.toml"
+
+
+@pytest.mark.parametrize(
+    ("command", "status"),
+    [("lint", 1), ("emit", EXIT_BAD_INPUT), ("run", EXIT_BAD_INPUT), ("check", EXIT_BAD_INPUT)],
+)
+@pytest.mark.parametrize("include", ["/dev/zero", "FIFO", "FOLDER"])
+def test_an_include_that_is_no_regular_file_is_refused_at_its_card(
+    tmp_path: Path, command: str, status: int, include: str
+) -> None:
+    import os
+
+    special = {"FIFO": tmp_path / "pipe.lib", "FOLDER": tmp_path}.get(include, Path(include))
+    if include == "FIFO":
+        os.mkfifo(special)  # nobody writes: reading it would wait for ever
+    deck = tmp_path / "deck.cir"
+    deck.write_text(DIVIDER.read_text().replace("\n", f"\n.include {special}\n", 1))
+    result = CliRunner().invoke(main, [command, str(deck), "-a", str(NOTE)])
+    assert result.exit_code == status, result.output
+    assert f"{deck}:2:1: error: included file" in result.output  # FILE:LINE of the card
+    assert "is not a regular file" in result.output
+    assert "Traceback" not in result.output
+
+
+def test_endless_standard_input_is_refused(monkeypatch: pytest.MonkeyPatch) -> None:
+    from heatweave import files
+
+    monkeypatch.setattr(files, "MAX_INPUT_BYTES", 1000)
+    result = CliRunner().invoke(main, ["emit", "-", "-a", str(NOTE)], input="* x\n" * 1000)
+    assert result.exit_code == EXIT_BAD_INPUT, result.output
+    assert "more than 1000 bytes" in result.output

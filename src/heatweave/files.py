@@ -17,6 +17,7 @@ import threading
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
+from typing import BinaryIO
 
 from heatweave.errors import UsageError
 
@@ -37,7 +38,7 @@ def encode(text: str) -> bytes:
 def read_text(path: str | os.PathLike[str]) -> str:
     """A deck or include file as lossless text; ``-`` reads standard input."""
     if str(path) == "-":
-        return decode(sys.stdin.buffer.read())
+        return decode(_at_most(sys.stdin.buffer, path))
     return decode(read_bytes(path))
 
 
@@ -59,9 +60,25 @@ def read_bytes(path: str | os.PathLike[str]) -> bytes:
             )
         os.set_blocking(fd, True)
         with os.fdopen(fd, "rb", closefd=False) as handle:
-            return handle.read()
+            return _at_most(handle, path)
     finally:
         os.close(fd)
+
+
+#: The most heatweave reads from one input (a 1,000,000-card deck is about 30 MiB), so that
+#: an endless standard input or a runaway generated file fills no memory.
+MAX_INPUT_BYTES = 1 << 30
+
+
+def _at_most(handle: BinaryIO, path: str | os.PathLike[str]) -> bytes:
+    """All of *handle*, refused when it holds more than :data:`MAX_INPUT_BYTES`."""
+    data = handle.read(MAX_INPUT_BYTES + 1)
+    if len(data) > MAX_INPUT_BYTES:
+        raise UsageError(
+            f"cannot read {path}: it holds more than {MAX_INPUT_BYTES} bytes",
+            hint="split it into files of their own (a deck can .include them)",
+        )
+    return data
 
 
 def _kind(mode: int) -> str:

@@ -141,6 +141,12 @@ class _Inliner:
             raise DeckStructureError(f"include cycle through {shown}", where)
         deck = self.files.get(full)
         if deck is None:
+            if Path(full).exists() and not Path(full).is_file():
+                raise DeckStructureError(
+                    f"included file {name!r} is not a regular file ({full})",
+                    where,
+                    hint="include a SPICE file; a folder, device or pipe is not read",
+                )
             if not Path(full).is_file():
                 raise DeckStructureError(
                     f"included file {name!r} not found (looked for {full})",

@@ -102,6 +102,12 @@ def _follow(
                 where,
                 hint="remove the include that leads back to a file already being read",
             )
+        if full.exists() and not full.is_file():
+            raise DeckStructureError(
+                f"included file {name!r} is not a regular file ({full})",
+                where,
+                hint="include a SPICE file; a folder, device or pipe is not read",
+            )
         if not full.is_file():
             raise DeckStructureError(
                 f"included file {name!r} not found (looked for {full})",
