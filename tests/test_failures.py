@@ -116,3 +116,39 @@ def test_endless_standard_input_is_refused(monkeypatch: pytest.MonkeyPatch) -> N
     result = CliRunner().invoke(main, ["emit", "-", "-a", str(NOTE)], input="* x\n" * 1000)
     assert result.exit_code == EXIT_BAD_INPUT, result.output
     assert "more than 1000 bytes" in result.output
+
+
+# --- ngspice's complaint pointed at the user's card (issue 14) -------------------------------
+# ngspice 39's words for these cards, observed: "Error on line 3 or its substitute:" /
+# "r1 a 0 1k junk=3" / "unknown parameter (junk)"; inside a subcircuit "Error on line:" /
+# "r.x1.rs a 0 2k bogus=1".  The emitted deck's line numbers are not the user's.
+
+REJECTED = [
+    ("bad\nV1 a 0 1\nR1 a 0 1k junk=3\nR2 a 0 1k\n.op\n.end\n", None, 3, "junk"),
+    ("bad\nV1 a 0 1\nR2 a 0 1k\n.subckt sub p q\nRS p q 2k bogus=1\n.ends\nX1 a 0 sub\n.op\n"
+     ".end\n", None, 5, "bogus"),
+    ("bad\nV1 a 0 1\nR2 a 0 1k\n.include parts.inc\n.op\n.end\n",
+     "* parts\nRP a 0 3k\nRQ a 0 4k tc9=1\n", 3, "tc9"),
+]  # fmt: skip
+
+
+@pytest.mark.parametrize("backend", ["shared", "batch"])
+@pytest.mark.parametrize(("deck", "include", "line", "parameter"), REJECTED)
+def test_ngspice_rejection_names_the_users_file_and_line(
+    tmp_path: Path, backend: str, deck: str, include: str | None, line: int, parameter: str
+) -> None:
+    (tmp_path / "d.cir").write_text(deck)
+    (tmp_path / "d.thermal.toml").write_text(
+        'schema = 1\n[part.R2]\nmodel = "linear"\ntc1 = 0.004\nrth = 50.0\ncth = 0.002\n'
+    )
+    where = tmp_path / "d.cir"
+    if include is not None:
+        where = tmp_path / "parts.inc"
+        where.write_text(include)
+    result = CliRunner().invoke(main, ["run", str(tmp_path / "d.cir"), "--backend", backend])
+    assert result.exit_code == EXIT_SIMULATION_FAILED, result.output
+    assert (
+        f"{where}:{line}:1: error: ngspice rejects this card: unknown parameter ({parameter})"
+        in result.output
+    )
+    assert "Traceback" not in result.output

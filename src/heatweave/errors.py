@@ -121,6 +121,10 @@ class SimulatorError(HeatweaveError):
     """The simulator ran but gave no usable answer."""
 
     exit_code = EXIT_SIMULATION_FAILED
+    #: The card ngspice quoted as the one it rejects (as it wrote it: lower case, names of
+    #: subcircuit elements expanded), and why; ``None`` when it named none.
+    card: str | None = None
+    reason: str | None = None
 
 
 class ConvergenceError(SimulatorError):

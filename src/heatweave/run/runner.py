@@ -19,6 +19,7 @@ from heatweave.errors import (
     ThermalRunawayError,
     TimestepTooSmallError,
 )
+from heatweave.run.locate import locate
 from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate, with_deadline
 from heatweave.run.results import (
     RunResults,
@@ -76,6 +77,8 @@ def run(
     except (SimulatorError, SimulationTimeoutError) as err:
         # The warnings from emitting still matter (a dropped .control block, say).
         err.findings = (*prepared.findings, *err.findings)
+        if isinstance(err, SimulatorError):
+            locate(err, inputs.project)  # the user's FILE:LINE, not the emitted deck's
         raise
     beyond = range_findings(results) + drive_findings(results, inputs.index)
     if beyond:

@@ -40,7 +40,9 @@ _FATAL = re.compile(
     re.IGNORECASE,
 )
 # ngspice 39 follows this line with the card it rejects and then the reason, each on a line.
-_REJECTED = re.compile(r"^error on line \d+ or its substitute:$", re.IGNORECASE)
+# Inside a subcircuit the line says only "Error on line:" and the card's name is expanded
+# (``r.x1.rs``).
+_REJECTED = re.compile(r"^error on line(?: \d+ or its substitute)?:$", re.IGNORECASE)
 # Lines with "error" that do not stop the run: failed or noisy .meas statements.
 _HARMLESS = re.compile(r"^\s*error: measure|\.meas(ure)?\b.*failed!|^\s*\.meas", re.IGNORECASE)
 _OVERFLOW = re.compile(r"^\s*error:\s*(?P<args>.+?)\s+out of range for\s+(?P<op>\S+)", re.I)
@@ -86,11 +88,27 @@ def failure(lines: Sequence[str]) -> SimulatorError | None:
     if converge and any(_CONVERGENCE.search(line) for line in fatal):
         quoted = _best(converge)
         return ConvergenceError(f"ngspice did not converge: {quoted}", hint=CONVERGENCE_HINT)
-    return SimulatorError(
+    error = SimulatorError(
         "ngspice could not simulate the deck: " + " | ".join(fatal[:_MAX_QUOTED]),
         hint="fix the card ngspice quotes (it writes it in lower case); "
         "'heatweave lint DECK' checks the syntax of every card",
     )
+    error.card, error.reason = _rejected(lines)
+    return error
+
+
+def _rejected(lines: Sequence[str]) -> tuple[str | None, str | None]:
+    """The first card ngspice rejected and its reason, from the two lines that follow its
+    "Error on line" line (``None, None`` when it quoted none)."""
+    for k, line in enumerate(lines):
+        if _REJECTED.match(line.strip()):
+            follow = [text.strip() for text in lines[k + 1 : k + 3] if text.strip()]
+            if follow and not _REJECTED.match(follow[0]):
+                reason = follow[1] if len(follow) > 1 else None
+                if reason is not None and reason.lower().startswith("simulation interrupted"):
+                    reason = None
+                return follow[0], reason
+    return None, None
 
 
 def _fatal_lines(lines: Sequence[str]) -> list[str]:
