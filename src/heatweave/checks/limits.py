@@ -296,10 +296,9 @@ def _drift(
     )  # fmt: skip
 
 
-def ambient_series(outcome: RunOutcome) -> FloatArray:
+def ambient_series(results: RunResults) -> FloatArray:
     """The ambient temperature over the run (as the results read it: the ambient source's
     node, or the circuit's ambient where no part is annotated)."""
-    results = outcome.results
     if results.ambient_series is not None:
         return results.ambient_series
     return np.array([results.ambient], dtype=np.float64)
@@ -309,10 +308,29 @@ def evaluate(
     outcome: RunOutcome, signals: Sequence[Signal], baseline: RunOutcome | None = None
 ) -> tuple[LimitResult, ...]:
     """Every limit of a run: part limits first (deck order), then signal limits."""
-    results = outcome.results
-    found = part_limits(results, ambient_series(outcome))
-    found += signal_limits(signals, results, baseline.results if baseline else None)
+    return evaluate_results(outcome.results, signals, baseline.results if baseline else None)
+
+
+def evaluate_results(
+    results: RunResults, signals: Sequence[Signal], baseline: RunResults | None = None
+) -> tuple[LimitResult, ...]:
+    """:func:`evaluate` on results however they were found (the co-simulation's too)."""
+    found = part_limits(results, ambient_series(results))
+    found += signal_limits(signals, results, baseline)
     return tuple(found)
+
+
+def refuse_window_ends(signals: Sequence[Signal]) -> None:
+    """The co-simulation keeps node voltages at the ends of its windows only, so a signal
+    limit (its extremes, its drift over time) cannot be held to it: refused at the table."""
+    if signals:
+        spec = signals[0].spec
+        raise AnnotationError(
+            f'[limit."{spec.signal}"] needs the signal at every time point, and the '
+            "co-simulation keeps node voltages only at the ends of its windows",
+            spec.location,
+            "check it with --method full, or auto",
+        )
 
 
 def needs_baseline(signals: Sequence[Signal]) -> bool:

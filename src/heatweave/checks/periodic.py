@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 from heatweave.cosim.method import SEPARATION, Transient
 from heatweave.emit.emitter import Inputs, thermal_circuit
-from heatweave.errors import HeatweaveError
+from heatweave.errors import HeatweaveError, UsageError
 from heatweave.run.prepare import RunOptions, deck_analyses_of
 from heatweave.run.waves import DrivePeriod, drive_period, seconds
 from heatweave.thermal.solver import ThermalAssemblyError, assemble
@@ -23,13 +23,21 @@ from heatweave.thermal.solver import ThermalAssemblyError, assemble
 
 @dataclass(frozen=True, slots=True)
 class Choice:
-    """The state to check: ``drive`` set for the periodic steady state; ``reason`` says why."""
+    """The state to check: ``drive`` set for the periodic steady state, ``method`` what runs
+    otherwise (``full``: the deck's own run; ``cosim``: that run co-simulated); ``reason``
+    says why."""
 
     drive: DrivePeriod | None
     reason: str
+    method: str = "full"
+    forced: bool = False
 
     def line(self) -> str:
         """``method: ...`` for the report."""
+        if self.method == "cosim":
+            return f"method: co-simulation of the run itself, {self.reason}"
+        if self.drive is None and self.forced:
+            return f"method: the run itself (full electrothermal deck): {self.reason}"
         if self.drive is None:
             return f"method: the run itself, not its periodic steady state: {self.reason}"
         return (
@@ -38,10 +46,23 @@ class Choice:
         )
 
 
-def choose(inputs: Inputs, options: RunOptions) -> Choice:
-    """The periodic steady state when the run would be the deck's own single transient, the
-    deck's sources share a period, the ambient is fixed and every thermal time constant is
-    at least :data:`SEPARATION` periods; else the run itself, with the reason."""
+def choose(inputs: Inputs, options: RunOptions, method: str = "auto") -> Choice:
+    """*method* when forced (``settle`` refused, located at the source, for a deck whose
+    sources do not repeat); for ``auto`` the periodic steady state when the run would be the
+    deck's own single transient, the deck's sources share a period, the ambient is fixed and
+    every thermal time constant is at least :data:`SEPARATION` periods; else the run itself,
+    with the reason."""
+    asked = f"asked for with --method {method}"
+    if method in ("full", "cosim"):
+        return Choice(None, asked, method, forced=True)
+    if method == "settle":
+        if options.analyses:
+            raise UsageError(
+                "--method settle checks the periodic steady state, which settle finds with "
+                "transients of its own: --op and --tran do not apply",
+                hint="leave out --op/--tran, or check that analysis with --method full",
+            )
+        return Choice(drive_period(inputs.index, None), asked, "settle", forced=True)
     if options.analyses:
         return Choice(None, "the analysis given on the command line")
     own = deck_analyses_of(inputs.project.deck)

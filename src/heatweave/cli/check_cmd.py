@@ -10,6 +10,7 @@ from __future__ import annotations
 import sys
 import time
 from collections.abc import Sequence
+from dataclasses import replace
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, TextIO
@@ -40,6 +41,7 @@ from heatweave.spice.acceptance import refuse_rejected
 
 if TYPE_CHECKING:
     from heatweave.checks.limits import LimitResult
+    from heatweave.emit.emitter import Inputs
 
 
 @click.command()
@@ -59,6 +61,17 @@ if TYPE_CHECKING:
 @click.option(
     "-q", "--quiet", is_flag=True, help="Only the violated limits (on stderr); no summary."
 )
+@click.option(
+    "--method",
+    "method_name",
+    type=click.Choice(("auto", "full", "cosim", "settle")),
+    default="auto",
+    show_default=True,
+    help="What to hold to the limits: full: the deck's own run (the electrothermal deck); "
+    "cosim: that run co-simulated (where it applies, as run --method cosim); settle: the "
+    "periodic steady state (as settle finds it); auto: settle a periodic deck whose thermal "
+    "time constants are long against its period, else full.",
+)
 @analysis_options
 @simulation_options
 @html_option
@@ -70,6 +83,7 @@ def check(
     junit_file: str | None,
     json_file: str | None,
     quiet: bool,
+    method_name: str,
     op: bool,
     tran: tuple[float, float] | None,
     ambient: float | None,
@@ -85,8 +99,8 @@ def check(
     IEC 60115-1 at the temperature of the node its path ends on, and each [limit."V(node)"]
     table (min, max, and max_drift_ppm against the same deck without self-heating).  A
     periodic deck whose thermal time constants are long against its period is checked in
-    its periodic steady state (as settle finds it) instead of its own short transient; the
-    method line says which.
+    its periodic steady state (as settle finds it) instead of its own short transient
+    (--method forces the choice); the method line says what ran.
     """
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.checks.periodic import choose
@@ -110,8 +124,8 @@ def check(
             allow_control=allow_control, init_file=init_file, timeout=timeout,
         )  # fmt: skip
         options = with_deadline(options)  # one limit for every run of the check
-        method = choose(inputs, options)
-        settled, outcome = None, None
+        method = choose(inputs, options, method_name)
+        settled, outcome, fast = None, None, None
         needed = checks.needs_baseline(signals)
         if method.drive is not None:
             # No period given: settle takes the sources' own and says where it came from.
@@ -122,6 +136,18 @@ def check(
             settled = settle(deck, chosen, settle_options, inputs=inputs)
             report_findings(list(settled.findings))
             found = checks.evaluate_settled(settled, signals)
+        elif method.method == "cosim":
+            from heatweave.cosim import run_auto
+
+            checks.refuse_window_ends(signals)
+            # The same refusals as run --method cosim, where the co-simulation does not apply.
+            fast = run_auto(deck, chosen, options, method="cosim", inputs=inputs)
+            report_findings(list(fast.findings))
+            method = replace(method, reason=f"{method.reason} ({fast.reason})")
+            baseline = runner.run_baseline(inputs, options) if needed else None
+            found = checks.evaluate_results(
+                fast.results, signals, baseline.results if baseline else None
+            )
         else:
             outcome = runner.run(deck, chosen, options, inputs=inputs)
             report_findings(list(outcome.prepared.findings))
@@ -147,10 +173,16 @@ def check(
             write_html(html_file, lambda: html_pages.settle_page(settled, inputs, found, "check"))
         else:
             # numpy and scipy load here, when the command runs, not for --help
-            from heatweave.reports.model import build_report
+            from heatweave.reports.model import build_report, report_of
 
-            assert outcome is not None
-            report = build_report(inputs, outcome)
+            if fast is not None:
+                report = report_of(
+                    inputs, fast.results, options.analyses or own_analyses(inputs), "shared",
+                    fast.findings, (), (fast.method, fast.reason),
+                )  # fmt: skip
+            else:
+                assert outcome is not None
+                report = build_report(inputs, outcome)
             write_html(html_file, lambda: html_pages.run_page(report, inputs, found, "check"))
     if json_file is not None:
         # numpy and scipy load here, when the command runs, not for --help
@@ -225,3 +257,10 @@ def write_junit(
 
     suite = Suite(name=deck, cases=cases, time=elapsed, timestamp=stamp)
     write_atomic(path, render([suite]))
+
+
+def own_analyses(inputs: Inputs) -> tuple[str, ...]:
+    """The deck's own analysis cards, as written."""
+    from heatweave.run.prepare import deck_analyses_of
+
+    return tuple(deck_analyses_of(inputs.project.deck))
