@@ -137,6 +137,7 @@ def check(
             report_findings(list(settled.findings))
             found = checks.evaluate_settled(settled, signals)
         elif method.method == "cosim":
+            # numpy and scipy load here, when the command runs, not for --help
             from heatweave.cosim import run_auto
 
             checks.refuse_window_ends(signals)
@@ -261,6 +262,7 @@ def write_junit(
 
 def own_analyses(inputs: Inputs) -> tuple[str, ...]:
     """The deck's own analysis cards, as written."""
+    # numpy and scipy load here, when the command runs, not for --help
     from heatweave.run.prepare import deck_analyses_of
 
     return tuple(deck_analyses_of(inputs.project.deck))
