@@ -117,6 +117,21 @@ def test_settle_check_gates_the_same_deck(tmp_path: Path, ambient: float, passes
     assert data["period"] == PER and data["period_from"].startswith("taken from VPWM's PULSE")
 
 
+def test_sweep_check_refuses_to_gate_a_periodic_deck_on_its_cold_transient() -> None:
+    """check holds this deck in its periodic steady state (RLOAD 36 K above ambient, the
+    closed form above); each corner's own 200 us transient from cold is a few mK above it.
+    sweep --check does not settle corners, so it refuses in words rather than pass a
+    settled temperature past tmax; with --tran given it gates that transient, as check does.
+    """
+    result = CliRunner().invoke(main, ["sweep", DECK, "--ambient", "85", "--check"])
+    assert result.exit_code == EXIT_BAD_INPUT, result.output
+    assert "periodic steady state" in result.output and "Traceback" not in result.output
+    assert f"heatweave check {DECK} --ambient" in result.output
+    asked = ["sweep", DECK, "--ambient", "85", "--check", "--tran", "10n", "200u", "-q"]
+    result = CliRunner().invoke(main, asked)
+    assert result.exit_code == 0, result.output
+
+
 def test_check_keeps_the_transient_asked_for() -> None:
     """--tran asks for the cold four-period transient itself: checked as it is, and said."""
     result = CliRunner().invoke(main, ["check", DECK, "--tran", "10n", "200u"])

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import sys
 import time
+from dataclasses import replace
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -47,6 +48,7 @@ from heatweave.sweep.executors import make_executor
 
 if TYPE_CHECKING:
     from heatweave.annotation import Annotation
+    from heatweave.emit.emitter import Inputs
     from heatweave.run.prepare import RunOptions
     from heatweave.sweep.corners import SweepPlan, SweepResult
 
@@ -234,6 +236,30 @@ def sweep(
     _report(result, outputs, junit_file, quiet, probes, clock)
 
 
+def _refuse_unsettled_check(
+    deck: str, inputs: Inputs, plan: SweepPlan, options: RunOptions
+) -> None:
+    """``check`` holds a periodic deck with long thermal time constants in its periodic
+    steady state; the sweep's corners run the deck's own transient, a few periods from cold.
+    Gating that would pass limits the settled board breaks, so ``--check`` refuses it."""
+    # numpy and scipy load here, when the command runs, not for --help
+    from heatweave.checks.periodic import choose
+
+    ambient = plan.ambients[0]
+    chosen = choose(inputs, replace(options, ambient=ambient))
+    if chosen.drive is None:
+        return
+    at = "" if ambient is None else f" --ambient {ambient:g}"
+    raise UsageError(
+        "sweep --check would hold each corner to its limits on the deck's own transient, a "
+        "few periods from cold, while check holds this periodic deck in its periodic steady "
+        f"state ({chosen.drive.describe()}; {chosen.reason}); the sweep does not settle "
+        "its corners",
+        hint=f"gate each corner with 'heatweave check {deck}{at}' (or settle --check), or "
+        "give --tran TSTEP TSTOP to gate the transient itself",
+    )
+
+
 def _run(
     deck: str,
     annotation_path: str,
@@ -258,6 +284,8 @@ def _run(
     # What ngspice 39 would refuse, and a deck analysis that would run to no points: exit 2.
     refuse_rejected(inputs.index, own_analyses=not options.analyses)
     limits = resolve_limits(inputs.annotation, inputs.index) if check_limits else None
+    if limits is not None:
+        _refuse_unsettled_check(deck, inputs, plan, options)
     if plan.draws and not _has_tolerances(inputs.annotation):
         message = (
             f"warning: {inputs.annotation_path} gives no tolerance: every Monte Carlo draw is "
