@@ -152,3 +152,46 @@ def test_ngspice_rejection_names_the_users_file_and_line(
         in result.output
     )
     assert "Traceback" not in result.output
+
+
+# --- names outside ASCII (issue 14: a non-ASCII node name gave "please report") ----------
+
+UMLAUT = "utf\nV1 eingäng 0 10\nR1 eingäng aus 1k\nR2 aus 0 1k\n.op\n.end\n"
+UMLAUT_NOTE = 'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0.004\nrth = 50.0\ncth = 0.002\n'
+
+
+@pytest.mark.skipif(__import__("shutil").which("ngspice") is None, reason="no ngspice")
+def test_ngspice_39_reads_non_ascii_bytes_as_underscores(tmp_path: Path) -> None:
+    # The reason for the refusal below, checked against stock ngspice: the UTF-8 umlaut's
+    # two bytes each become '_' (two nodes eingäng and eingöng would be one).
+    import subprocess
+
+    deck = tmp_path / "utf.cir"
+    deck.write_text(UMLAUT.replace(".op\n", ".op\n.print op v(eing__ng)\n"), encoding="utf-8")
+    done = subprocess.run(["ngspice", "-b", str(deck)], capture_output=True, text=True,
+                          errors="replace", timeout=60, check=False)  # fmt: skip
+    assert "eing__ng" in done.stdout
+    assert "1.000000e+01" in done.stdout.split("eing__ng")[-1]  # V1 = 10 V on it
+
+
+@pytest.mark.parametrize(("command", "status"), [("run", EXIT_BAD_INPUT), ("lint", 1)])
+def test_a_non_ascii_name_is_refused_at_its_card(
+    tmp_path: Path, command: str, status: int
+) -> None:
+    deck = tmp_path / "utf.cir"
+    deck.write_text(UMLAUT, encoding="utf-8")
+    (tmp_path / "utf.thermal.toml").write_text(UMLAUT_NOTE)
+    result = CliRunner().invoke(main, [command, str(deck)])
+    assert result.exit_code == status, result.output
+    assert f"{deck}:2:8: error: 'eingäng' holds characters outside ASCII" in result.output
+    assert "'eing__ng'" in result.output
+    assert "please report" not in result.output
+
+
+def test_non_ascii_comments_are_fine(tmp_path: Path) -> None:
+    deck = tmp_path / "c.cir"
+    deck.write_text("c\n* Widerstände\nV1 a 0 10 ; für\nR1 a b 1k\nR2 b 0 1k $ größe\n.op\n"
+                    ".end\n", encoding="utf-8")  # fmt: skip
+    (tmp_path / "c.thermal.toml").write_text(UMLAUT_NOTE)
+    result = CliRunner().invoke(main, ["run", str(deck), "-q"])
+    assert result.exit_code == 0, result.output

@@ -19,6 +19,7 @@ from dataclasses import dataclass
 
 from heatweave.errors import DeckStructureError, DeckSyntaxError, Finding
 from heatweave.spice import deckparams
+from heatweave.spice.ascii import non_ascii
 from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.conditionals import condition_text, exclusive
 from heatweave.spice.deck import Block, Card, ControlBlock, iter_cards
@@ -85,6 +86,7 @@ def rejections(index: DeckIndex) -> list[Finding]:
     found.extend(duplicates(index))
     found.extend(_couplings(cards))
     found.extend(_if_blocks(dots))
+    found.extend(non_ascii(cards))
     return found
 
 
