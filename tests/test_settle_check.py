@@ -18,8 +18,10 @@ the knee (70 degC), linear to zero at tmax (155 degC).
 from __future__ import annotations
 
 import json
+import os
 import re
 import shutil
+import subprocess
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
@@ -130,6 +132,27 @@ def test_sweep_check_refuses_to_gate_a_periodic_deck_on_its_cold_transient() -> 
     asked = ["sweep", DECK, "--ambient", "85", "--check", "--tran", "10n", "200u", "-q"]
     result = CliRunner().invoke(main, asked)
     assert result.exit_code == 0, result.output
+
+
+def test_compare_refuses_to_gate_a_periodic_deck_on_its_cold_transient(tmp_path: Path) -> None:
+    """rth 10 -> 20 K/W moves the settled RLOAD by 36 K (the closed form above) but its
+    200 us cold transient by a fraction of a mK: compare --against refuses in words, as
+    sweep --check does, instead of showing a change of +0.000 K."""
+    env = {**os.environ, "GIT_AUTHOR_NAME": "t", "GIT_AUTHOR_EMAIL": "t@example.invalid",
+           "GIT_COMMITTER_NAME": "t", "GIT_COMMITTER_EMAIL": "t@example.invalid"}  # fmt: skip
+    for name in ("pwm_load.cir", "pwm_load.thermal.toml"):
+        shutil.copy(FIXTURES / name, tmp_path / name)
+    for args in (["init", "-q"], ["add", "-A"], ["commit", "-qm", "first"]):
+        subprocess.run(["git", *args], cwd=tmp_path, env=env, check=True, capture_output=True)
+    notes = tmp_path / "pwm_load.thermal.toml"
+    notes.write_text(notes.read_text().replace("rth = 10.0", "rth = 20.0"))
+    deck = str(tmp_path / "pwm_load.cir")
+    result = CliRunner().invoke(main, ["compare", deck, "--against", "HEAD"])
+    assert result.exit_code == EXIT_BAD_INPUT, result.output
+    assert "periodic steady state" in result.output and "Traceback" not in result.output
+    assert "settle" in result.output and "--json" in result.output
+    asked = ["compare", deck, "--against", "HEAD", "--tran", "10n", "200u"]
+    assert CliRunner().invoke(main, asked).exit_code == 0
 
 
 def test_check_keeps_the_transient_asked_for() -> None:

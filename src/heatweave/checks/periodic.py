@@ -93,3 +93,18 @@ def choose(inputs: Inputs, options: RunOptions, method: str = "auto") -> Choice:
             f"periods; settling needs {SEPARATION:g}",
         )  # fmt: skip
     return Choice(drive, f"fastest thermal time constant {fastest:.3g} s = {periods} periods")
+
+
+def refuse_unsettled(inputs: Inputs, options: RunOptions, what: str, instead: str) -> None:
+    """Refuse to gate the deck's own transient (for *what*, e.g. ``sweep --check``) where
+    ``check`` would hold the deck in its periodic steady state: that transient is a few
+    periods from cold and passes limits the settled board breaks.  *instead* is the hint."""
+    chosen = choose(inputs, options)
+    if chosen.drive is None:
+        return
+    raise UsageError(
+        f"{what} would hold the deck's own transient, a few periods from cold, to the limits, "
+        "while check holds this periodic deck in its periodic steady state "
+        f"({chosen.drive.describe()}; {chosen.reason})",
+        hint=f"{instead}, or give --tran TSTEP TSTOP to gate the transient itself",
+    )

@@ -239,25 +239,16 @@ def sweep(
 def _refuse_unsettled_check(
     deck: str, inputs: Inputs, plan: SweepPlan, options: RunOptions
 ) -> None:
-    """``check`` holds a periodic deck with long thermal time constants in its periodic
-    steady state; the sweep's corners run the deck's own transient, a few periods from cold.
-    Gating that would pass limits the settled board breaks, so ``--check`` refuses it."""
+    """The sweep does not settle its corners: ``--check`` refuses a deck ``check`` settles."""
     # numpy and scipy load here, when the command runs, not for --help
-    from heatweave.checks.periodic import choose
+    from heatweave.checks.periodic import refuse_unsettled
 
     ambient = plan.ambients[0]
-    chosen = choose(inputs, replace(options, ambient=ambient))
-    if chosen.drive is None:
-        return
     at = "" if ambient is None else f" --ambient {ambient:g}"
-    raise UsageError(
-        "sweep --check would hold each corner to its limits on the deck's own transient, a "
-        "few periods from cold, while check holds this periodic deck in its periodic steady "
-        f"state ({chosen.drive.describe()}; {chosen.reason}); the sweep does not settle "
-        "its corners",
-        hint=f"gate each corner with 'heatweave check {deck}{at}' (or settle --check), or "
-        "give --tran TSTEP TSTOP to gate the transient itself",
-    )
+    refuse_unsettled(
+        inputs, replace(options, ambient=ambient), "sweep --check (its corners are not settled)",
+        f"gate each corner with 'heatweave check {deck}{at}' (or settle --check)",
+    )  # fmt: skip
 
 
 def _run(

@@ -11,6 +11,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from heatweave.checks import limits as checks
+from heatweave.checks.periodic import refuse_unsettled
 from heatweave.emit.emitter import load_inputs
 from heatweave.reports import json_report
 from heatweave.reports.inputs import InputFile, input_files
@@ -34,6 +35,11 @@ def run_side(label: str, deck: str, annotations: str, options: RunOptions) -> Si
     """Run *deck* with *annotations* under *options* and check its limits."""
     inputs = load_inputs(deck, annotations)
     signals = checks.resolve_limits(inputs.annotation, inputs.index)
+    refuse_unsettled(
+        inputs, options, "compare --against (it runs each revision, it does not settle it)",
+        "settle each revision with 'heatweave settle DECK --json FILE' and compare the two "
+        "results (heatweave compare OLD.json NEW.json)",
+    )  # fmt: skip
     outcome = runner.run(deck, annotations, options, inputs=inputs)
     baseline = runner.run_baseline(inputs, options) if checks.needs_baseline(signals) else None
     limits = checks.evaluate(outcome, signals, baseline)
