@@ -46,6 +46,27 @@ def test_refuses_to_overwrite_its_input(tmp_path: Path) -> None:
     assert sorted(p.name for p in tmp_path.iterdir()) == ["divider.cir", "divider.thermal.toml"]
 
 
+@pytest.mark.parametrize("notes", ["divider.thermal.toml", "empty"])
+@pytest.mark.parametrize("command", ["emit", "run", "check"])
+def test_an_emitted_deck_is_not_taken_for_a_source_deck(
+    tmp_path: Path, command: str, notes: str
+) -> None:
+    """After emit --in-place the deck holds heatweave's own cards: fed back, its parts read
+    as missing, or (with no part annotated) its ambient source as the ambient.  Refused at
+    the header line that says what the file is."""
+    for name in ("divider.cir", "divider.thermal.toml"):
+        shutil.copy(FIXTURES / name, tmp_path / name)
+    deck = tmp_path / "divider.cir"
+    assert invoke("emit", str(deck), "--in-place")[0] == 0
+    annotation = tmp_path / "divider.thermal.toml"
+    if notes == "empty":
+        annotation.write_text("schema = 1\n[ambient]\ntemperature = 40.0\n")
+    code, _out, err = invoke(command, str(deck), "-a", str(annotation))
+    assert code == 2, err
+    assert f"{deck}:2:1: error: " in err and "electrothermal deck heatweave wrote" in err
+    assert "Traceback" not in err
+
+
 def test_check_reports_stale_and_which_input(tmp_path: Path) -> None:
     for name in ("divider.cir", "divider.thermal.toml"):
         shutil.copy(FIXTURES / name, tmp_path / name)

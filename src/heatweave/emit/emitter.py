@@ -36,6 +36,7 @@ from heatweave.emit.forms import (
 )
 from heatweave.emit.placement import placed, refuse_multiplier
 from heatweave.emit.sections import (
+    EMITTED_HEADER,
     MARK,
     analyses,
     analysis_findings,
@@ -47,7 +48,7 @@ from heatweave.emit.sections import (
 from heatweave.emit.splice import end_position, insert_before_end, line_ending, spliced
 from heatweave.emit.stencil import Made, Stencils
 from heatweave.emit.temperature import no_parts_note, temperature_findings, with_temp
-from heatweave.errors import EmitError, Finding
+from heatweave.errors import EmitError, Finding, InputError, Location
 from heatweave.quantities import format_number
 from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
@@ -413,9 +414,28 @@ def load_inputs(deck_path: str, annotation_path: str) -> Inputs:
     """Read a deck, its includes and its annotation file, and bind the parts."""
 
     project = load_project(deck_path)
+    refuse_emitted(project.deck)
     annotation = load(annotation_path, deck_name=deck_path)
     index = DeckIndex(project)
     return Inputs(deck_path, annotation_path, project, index, annotation, bind(annotation, index))
+
+
+def refuse_emitted(deck: Deck) -> None:
+    """A deck heatweave emitted is no source deck: its parts are already replaced by their
+    self-heating cards and it carries its own thermal network and ambient source."""
+    text = deck.source.text if deck.source is not None else ""
+    start = text.find("\n") + 1
+    if start == 0 or not text.startswith(EMITTED_HEADER, start):
+        return
+    end = text.find("\n", start)
+    line = text[start : end if end >= 0 else len(text)].rstrip("\r")
+    raise InputError(
+        f"{deck.path} is an electrothermal deck heatweave wrote, not a source deck: its "
+        "annotated parts are already replaced and it holds its own thermal network",
+        Location(deck.path, 2, 1, line),
+        hint="give the source deck named on its next line (after emit --in-place, restore "
+        "it from version control)",
+    )
 
 
 def thermal_circuit(

@@ -20,6 +20,9 @@ from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, ThermalCircuit
 
 MARK = "*hw* "  # marks lines heatweave writes around replaced cards
 
+#: How every emitted deck's second line begins (after the source deck's title).
+EMITTED_HEADER = "* electrothermal deck written by heatweave"
+
 
 def sha256(text: str) -> str:
     """Hex SHA-256 of a text as heatweave reads files (lossless UTF-8)."""
@@ -41,7 +44,7 @@ def header(deck_name: str, deck_text: str, annotation_name: str, annotation_text
                 "on one line",
             )
     lines = [
-        f"* electrothermal deck written by heatweave {__version__}; edit the sources, not this",
+        f"{EMITTED_HEADER} {__version__}; edit the sources, not this",
         f"* source deck: {deck_name} sha256 {sha256(deck_text)}",
         f"* annotations: {annotation_name} sha256 {sha256(annotation_text)}",
         "* units: thermal node voltages are temperatures, 1 V = 1 degC (1 K of rise);",
