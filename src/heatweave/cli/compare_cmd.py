@@ -294,6 +294,8 @@ def _write_outputs(
         path = outputs[name]
         if path is not None:
             write_atomic(path, write())
+    if outputs["--html"] is None:
+        return  # the page draws with matplotlib, the plot extra
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.compare.page import comparison_page, curves_of_data
 

@@ -7,6 +7,7 @@ from typing import TYPE_CHECKING, TypeVar
 
 import click
 
+from heatweave.cli.common import require_plotting
 from heatweave.errors import UsageError
 from heatweave.files import write_atomic
 
@@ -28,11 +29,14 @@ def html_option(func: F) -> F:
 
 
 def check_html_path(path: str | None) -> None:
-    """A page goes to a file: a browser cannot open stdout."""
+    """A page goes to a file (a browser cannot open stdout), and its figures are drawn with
+    matplotlib: both refused before anything runs."""
     if path == "-":
         raise UsageError(
             "--html writes a page to a file", hint="give it a file name, e.g. --html page.html"
         )
+    if path is not None:
+        require_plotting("--html")
 
 
 def write_html(path: str | None, build: Callable[[], Page]) -> None:

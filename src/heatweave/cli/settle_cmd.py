@@ -18,6 +18,7 @@ from heatweave.cli.common import (
     may_replace_report,
     report_findings,
     report_options,
+    require_plotting,
     run_control_options,
     simulation_options,
 )
@@ -140,6 +141,8 @@ def settle(
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file,
                "--html": html_file}  # fmt: skip
     check_html_path(html_file)
+    if plot_file is not None:
+        require_plotting()
     check = check or junit_file is not None
     started = time.monotonic()
     annotation_path = annotation_for(deck, annotations)

@@ -42,7 +42,6 @@ from heatweave.files import write_atomic
 from heatweave.reports.junit import Case
 from heatweave.spice.acceptance import refuse_rejected
 from heatweave.sweep import limits as sweep_limits
-from heatweave.sweep import plot as sweep_plot
 from heatweave.sweep import report as sweep_report
 from heatweave.sweep.executors import make_executor
 
@@ -316,6 +315,8 @@ def _report(
     if csv_file is not None:
         write_atomic(csv_file, sweep_report.render_csv(result))
     if plot_file is not None:
+        # numpy and scipy load here, when the command runs, not for --help
+        from heatweave.sweep import plot as sweep_plot  # matplotlib: the plot extra
 
         write_atomic(plot_file, sweep_plot.render_png(result))
     if junit_file is not None:
