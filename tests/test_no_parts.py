@@ -167,3 +167,19 @@ def test_emit_ends_with_the_ambient(tmp_path: Path) -> None:
     text = out.read_text()
     assert text.startswith(DECK.format(analysis=".op").replace(".end\n", ""))
     assert text.splitlines()[-2:] == [".temp 60", ".end"]
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_a_deck_node_named_like_the_ambient_source_is_not_the_ambient(tmp_path: Path) -> None:
+    """Nothing is emitted without a part, so a node of the deck's own that happens to bear
+    the ambient source's name (hw_amb, at 3.3 V here) is not the ambient: the ambient
+    reported is the annotation's 40 degC, as the note says (it read 3.30 degC)."""
+    deck = "a node named like heatweave's ambient\nV1 hw_amb 0 DC 3.3\nR1 hw_amb 0 1k\n.op\n.end\n"
+    path = write(tmp_path, deck, ONLY_AMBIENT.format(ambient=40.0))
+    out = tmp_path / "r.json"
+    result = CliRunner().invoke(main, ["run", path, "--json", str(out)])
+    assert result.exit_code == 0, result.output
+    data = json.loads(out.read_text())
+    assert data["ambient"] == 40.0
+    assert "ambient 40.00 degC" in result.output

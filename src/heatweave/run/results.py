@@ -342,8 +342,9 @@ def extract(
 def ambient_of(plot: Plot, circuit: ThermalCircuit, time: FloatArray | None) -> FloatArray:
     """The ambient over the run: its source's node, or for a deck without a thermal network
     (no annotated part) the circuit's ambient itself, at each time point of a transient."""
-    if circuit.parts or f"v({AMBIENT_NODE})" in plot:
+    if circuit.parts:
         return _vector(plot, f"v({AMBIENT_NODE})")
+    # No part: nothing was emitted, so a node of that name is the deck's own, not the ambient
     if isinstance(circuit.ambient, tuple):
         times, values = zip(*circuit.ambient, strict=True)
         at = time if time is not None else np.zeros(1)
