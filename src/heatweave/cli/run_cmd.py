@@ -65,15 +65,23 @@ def probe_nodes(probes: tuple[str, ...], known: Collection[str]) -> tuple[str, .
 def probe_signals(probes: tuple[str, ...], results: RunResults) -> tuple[Probe, ...]:
     """``--probe`` names as signals of the finished run: node voltages (``out``,
     ``V(out)``) and branch currents (``I(vamm)``), each checked against its vectors."""
+    return known_signals(probes, results.voltages, results.currents)
+
+
+def known_signals(
+    probes: tuple[str, ...], voltages: Collection[str], currents: Collection[str]
+) -> tuple[Probe, ...]:
+    """``--probe`` names as signals, each checked against the node *voltages* and branch
+    *currents* a run recorded (lower case, as ngspice names them)."""
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.model import parse_probe
 
-    probe_nodes(probes, results.voltages)
+    probe_nodes(probes, voltages)
     found = []
     for text in probes:
         probe = parse_probe(text)
-        if not probe.known(results):
-            every = sorted(results.currents)
+        if probe.kind == "i" and probe.name not in currents:
+            every = sorted(currents)
             raise UsageError(
                 f"--probe {text}: ngspice recorded no branch current of {probe.name!r}",
                 hint="ngspice records the current of voltage sources and inductors only; put "

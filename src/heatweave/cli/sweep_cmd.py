@@ -36,7 +36,7 @@ from heatweave.cli.common import (
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
 from heatweave.cli.progress import count_progress
-from heatweave.cli.run_cmd import check_probes_early, probe_nodes
+from heatweave.cli.run_cmd import check_probes_early, known_signals
 from heatweave.errors import HeatweaveError, UsageError
 from heatweave.files import write_atomic
 from heatweave.reports.junit import Case
@@ -48,6 +48,7 @@ from heatweave.sweep.executors import make_executor
 if TYPE_CHECKING:
     from heatweave.annotation import Annotation
     from heatweave.emit.emitter import Inputs
+    from heatweave.reports.model import Probe
     from heatweave.run.prepare import RunOptions
     from heatweave.sweep.corners import SweepPlan, SweepResult
 
@@ -140,8 +141,9 @@ def _has_tolerances(annotation: Annotation) -> bool:
 @click.option(
     "--probe",
     multiple=True,
-    metavar="NODE",
-    help="A deck node (out, V(out)) whose voltage the table shows per corner (repeatable).",
+    metavar="SIGNAL",
+    help="A node voltage (out, V(out)) or a branch current (I(vamm): voltage sources and "
+    "inductors) shown per corner in the table and written to the CSV and JSON (repeatable).",
 )
 @report_options("Write one CSV row per corner and part.")
 @run_control_options("each corner")
@@ -211,8 +213,7 @@ def sweep(
         init_file=init_file,
         timeout=timeout,
     )
-    if any(parse_probe(p).kind != "v" for p in probe):
-        raise UsageError("sweep --probe takes node voltages", hint="write --probe NODE")
+    probes = tuple(dict.fromkeys(parse_probe(p) for p in probe))
     if probe and deck != "-":  # standard input is read once, by the sweep itself
         # numpy and scipy load here, when the command runs, not for --help
         from heatweave.emit.emitter import load_inputs
@@ -220,19 +221,21 @@ def sweep(
         check_probes_early(probe, load_inputs(deck, annotation_path).index)
     try:
         result = _run(deck, annotation_path, plan, options, check_limits, executor, jobs,
-                      scheduler, quiet, {**outputs, "--html": html_file})  # fmt: skip
+                      scheduler, quiet, {**outputs, "--html": html_file}, probes)  # fmt: skip
     except HeatweaveError as err:
         # As with check: a report is still written, so an older one never stands in.
         if junit_file is not None and may_replace_report(junit_file):
             _write_junit(junit_file, deck, (_run_error(deck, err),), clock)
         raise
+    ran = next((o.data for o in result.outcomes if o.data is not None), None)
+    if ran is not None and probe:  # every corner has the same nodes and devices
+        known_signals(probe, ran["voltages"], ran["currents"])
     if html_file is not None:
         # numpy and scipy load here, when the command runs, not for --help
         from heatweave.sweep.page import sweep_page
 
         write_html(html_file, lambda: sweep_page(result))
-    probes = probe_nodes(probe, _voltages_of(result)) if result.outcomes and probe else ()
-    _report(result, outputs, junit_file, quiet, probes, clock)
+    _report(result, outputs, junit_file, quiet, clock)
 
 
 def _refuse_unsettled_check(
@@ -261,6 +264,7 @@ def _run(
     scheduler: str | None,
     quiet: bool,
     outputs: dict[str, str | None],
+    probes: tuple[Probe, ...],
 ) -> SweepResult:
     """Load the inputs, refuse *outputs* that would replace one, resolve the limits (bad
     ones are exit 2 before any corner runs) and run every corner."""
@@ -286,7 +290,7 @@ def _run(
     pool = make_executor(executor, jobs, scheduler, preload=WORKER_MODULES)
     try:
         with count_progress(not quiet and is_terminal(), "corners") as progress:
-            return run_sweep(inputs, plan, options, pool, progress, limits=limits)
+            return run_sweep(inputs, plan, options, pool, progress, limits=limits, probes=probes)
     except BaseException:  # Ctrl-C, SIGTERM: no worker may outlive the command
         pool.abort()
         raise
@@ -299,7 +303,6 @@ def _report(
     outputs: dict[str, str | None],
     junit_file: str | None,
     quiet: bool,
-    probes: tuple[str, ...],
     clock: tuple[float, datetime],
 ) -> None:
     """Warnings, the reports asked for, the table and the limit lines; then exit."""
@@ -325,7 +328,7 @@ def _report(
     stream = sys.stderr if "-" in outputs.values() else sys.stdout
     if not quiet:
         text = sweep_report.render_table(
-            result, colour=use_colour(stream), probes=probes, caution=False
+            result, colour=use_colour(stream), caution=False
         )
         click.echo(text, file=stream, nl=False)
     elif result.failed:
@@ -368,10 +371,3 @@ def _write_junit(
     write_atomic(path, render([suite], name="heatweave sweep"))
 
 
-def _voltages_of(result: SweepResult) -> dict[str, float]:
-    """The node voltages of the first corner that ran (every corner has the same nodes)."""
-    for outcome in result.outcomes:
-        if outcome.data is not None:
-            voltages: dict[str, float] = outcome.data["voltages"]
-            return voltages
-    return {}

@@ -40,6 +40,7 @@ from heatweave.emit.emitter import Inputs
 from heatweave.errors import EXIT_CHECK_FAILED, EXIT_OK, HeatweaveError
 from heatweave.reports import build_report
 from heatweave.reports.json_report import as_dict
+from heatweave.reports.model import Probe
 from heatweave.run.prepare import RunOptions, deck_folder, with_deadline
 from heatweave.run.runner import run, run_baseline
 from heatweave.sweep.executors import Executor
@@ -103,6 +104,8 @@ class CornerJob:
     options: RunOptions
     #: The signal limits to check the corner against (``None``: no checking at all).
     limits: tuple[Signal, ...] | None = None
+    #: ``--probe`` signals (node voltages, branch currents) to report, as ``run`` does.
+    probes: tuple[Probe, ...] = ()
 
 
 @dataclass(frozen=True, slots=True)
@@ -231,9 +234,11 @@ def jobs_for(
     plan: SweepPlan,
     options: RunOptions,
     limits: tuple[Signal, ...] | None = None,
+    probes: tuple[Probe, ...] = (),
 ) -> list[CornerJob]:
     """Every corner of *plan* as a job, numbered in corner order; with *limits* (the
-    resolved signal limits, possibly none) every job also checks the annotation's limits."""
+    resolved signal limits, possibly none) every job also checks the annotation's limits;
+    each reports *probes*."""
     check_params(inputs, [name for name, _ in plan.params])
     annotations: list[tuple[int | None, Annotation | None]] = [(None, None)]
     if plan.draws:
@@ -257,7 +262,7 @@ def jobs_for(
             for ambient in plan.ambients:
                 corner = Corner(len(jobs), ambient, values, draw, recorded)
                 run_options = replace(quiet, ambient=ambient)
-                job = CornerJob(corner, corner_inputs, annotation, run_options, limits)
+                job = CornerJob(corner, corner_inputs, annotation, run_options, limits, probes)
                 jobs.append(job)
     return jobs
 
@@ -280,7 +285,9 @@ def run_corner(job: CornerJob) -> CornerOutcome:
             inputs=inputs,
             annotation=job.annotation,
         )
-        report = as_dict(build_report(inputs, outcome))
+        # A probe the run lacks is left out here and refused once, by the command.
+        probes = tuple(p for p in job.probes if p.known(outcome.results))
+        report = as_dict(build_report(inputs, outcome, probes))
         limits = None
         if job.limits is not None:
             baseline = None
@@ -290,7 +297,7 @@ def run_corner(job: CornerJob) -> CornerOutcome:
     except HeatweaveError as err:
         seconds = time.monotonic() - started
         return CornerOutcome(job.corner, None, err.render(), err.exit_code, seconds=seconds)
-    keys = ("analysis", "backend", "ambient", "parts", "nodes", "voltages")
+    keys = ("analysis", "backend", "ambient", "parts", "nodes", "voltages", "currents", "probes")
     data = {key: report[key] for key in keys}
     return CornerOutcome(
         job.corner, data, warnings=tuple(report["warnings"]), limits=limits,
@@ -309,13 +316,14 @@ def run_sweep(
     progress: Callable[[int, int, int], None] | None = None,
     worker: Callable[[CornerJob], CornerOutcome] = run_corner,
     limits: tuple[Signal, ...] | None = None,
+    probes: tuple[Probe, ...] = (),
 ) -> SweepResult:
     """Run every corner of *plan* on *executor*; *progress* hears (done, total, failed)
     after each corner.  Results come back in corner order whatever order they finish in.
     With *limits* (:func:`heatweave.checks.limits.resolve_limits`, possibly empty) every corner is
-    also held to the annotation's limits."""
+    also held to the annotation's limits.  Each corner reports *probes* as ``run`` does."""
     plan = seed_of(plan)
-    jobs = jobs_for(inputs, plan, options, limits)
+    jobs = jobs_for(inputs, plan, options, limits, probes)
     outcomes: list[CornerOutcome | None] = [None] * len(jobs)
     failed = 0
     for done, (position, outcome) in enumerate(executor.run(worker, jobs), start=1):

@@ -73,6 +73,8 @@ def _corner(result: SweepResult, outcome: CornerOutcome) -> dict[str, Any]:
         "parts": data.get("parts", {}),
         "nodes": data.get("nodes", {}),
         "voltages": data.get("voltages", {}),
+        "currents": data.get("currents", {}),
+        "probes": data.get("probes", {}),
     }
     if result.checked:
         limits = outcome.limits
@@ -126,14 +128,29 @@ CSV_PART_COLUMNS = (
 )
 
 
+def probe_columns(result: SweepResult) -> list[tuple[str, str]]:
+    """``(label, unit)`` of each ``--probe`` signal, as the corners that ran report them."""
+    for outcome in result.outcomes:
+        if outcome.data is not None:
+            return [(label, p["unit"]) for label, p in outcome.data.get("probes", {}).items()]
+    return []
+
+
+def _probe_finals(outcome: CornerOutcome, columns: list[tuple[str, str]]) -> list[float | None]:
+    probes = (outcome.data or {}).get("probes", {})
+    return [probes[label]["final"] if label in probes else None for label, _unit in columns]
+
+
 def render_csv(result: SweepResult) -> str:
-    """One row per corner and part; a failed corner gives one row with its error."""
+    """One row per corner and part (each with the corner's ``--probe`` values, so a row
+    stands alone); a failed corner gives one row with its error."""
     names = [name for name, _ in result.plan.params]
+    columns = probe_columns(result)
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(
         ["corner", "draw", "ambient [degC]", *names, "part", *(h for _, h in CSV_PART_COLUMNS),
-         "status", "error"]
+         *(f"{label} [{unit}]" for label, unit in columns), "status", "error"]
     )  # fmt: skip
     for outcome in result.outcomes:
         corner = outcome.corner
@@ -144,12 +161,13 @@ def render_csv(result: SweepResult) -> str:
             *(repr(corner.params[n]) for n in names),
         ]
         if outcome.data is None:
-            blanks = [""] * (1 + len(CSV_PART_COLUMNS))
+            blanks = [""] * (1 + len(CSV_PART_COLUMNS) + len(columns))
             writer.writerow([*lead, *blanks, "failed", (outcome.error or "").splitlines()[0]])
             continue
+        probed = ["" if v is None else repr(v) for v in _probe_finals(outcome, columns)]
         for part, values in outcome.data["parts"].items():
             cells = ["" if values[k] is None else repr(values[k]) for k, _ in CSV_PART_COLUMNS]
-            writer.writerow([*lead, part, *cells, "ok", ""])
+            writer.writerow([*lead, part, *cells, *probed, "ok", ""])
     return buffer.getvalue()
 
 
@@ -189,17 +207,16 @@ def rise_text(rise: float | None) -> str:
     return f"{rise:.3g}"
 
 
-def _corner_table(
-    result: SweepResult, probes: tuple[str, ...] = ()
-) -> tuple[list[list[str]], list[list[str]], list[bool]]:
+def _corner_table(result: SweepResult) -> tuple[list[list[str]], list[list[str]], list[bool]]:
     """One row per corner and part (the corner's own cells on its first row only), so the
-    table keeps its width however many parts the deck has; probed node voltages at the end
-    of a corner's first row."""
+    table keeps its width however many parts the deck has; the ``--probe`` signals at the
+    end of a corner's first row."""
     names = [name for name, _ in result.plan.params]
-    probe_heads = [f"V({node})" for node in probes]
+    columns = probe_columns(result)
+    probes = [label for label, _unit in columns]
     header = [
-        ["corner", "ambient", *names, "part", "T", "rise", "dR", "P", *probe_heads],
-        ["", "degC", *[""] * len(names), "", "degC", "K", "", "W", *["V"] * len(probes)],
+        ["corner", "ambient", *names, "part", "T", "rise", "dR", "P", *probes],
+        ["", "degC", *[""] * len(names), "", "degC", "K", "", "W", *(u for _, u in columns)],
     ]
     body = []
     for outcome in result.outcomes:
@@ -209,7 +226,6 @@ def _corner_table(
         if outcome.data is None:
             body.append([*lead, "failed", *[""] * (4 + len(probes))])
             continue
-        voltages = outcome.data["voltages"]
         # A corner without annotated parts still ran: one row for its probed voltages.
         rows = list(outcome.data["parts"].items()) or [("-", None)]
         for k, (part, values) in enumerate(rows):
@@ -221,7 +237,7 @@ def _corner_table(
                     part, _num(temperature, ".2f"), rise_text(rise),
                     drift_text(values["resistance_change_ppm"]), _num(values["power"], ".4g"),
                 ]  # fmt: skip
-            volts = [_num(voltages.get(node), ".5g") for node in probes]
+            volts = [_num(value, ".5g") for value in _probe_finals(outcome, columns)]
             first = k == 0
             body.append([*(lead if first else [""] * len(lead)), *cells,
                          *(volts if first else [""] * len(probes))])  # fmt: skip
@@ -258,17 +274,15 @@ def _monte_carlo_table(
     return header, body, left
 
 
-def render_table(
-    result: SweepResult, colour: bool = False, probes: tuple[str, ...] = (), caution: bool = True
-) -> str:
-    """Settings line, one row per corner and part (or the Monte Carlo statistics), failures,
-    and (with *caution*) the caution line; *probes* are node voltages to show per corner."""
+def render_table(result: SweepResult, colour: bool = False, caution: bool = True) -> str:
+    """Settings line, one row per corner and part (or the Monte Carlo statistics) with each
+    corner's ``--probe`` signals, failures, and (with *caution*) the caution line."""
     styles = cell_styles(colour)
     stats = summary(result)
     if result.plan.draws:
         header, body, left = _monte_carlo_table(result, stats)
     else:
-        header, body, left = _corner_table(result, probes)
+        header, body, left = _corner_table(result)
     lines = [_settings(result), ""]
     if body:
         levels = [[""] * len(left) for _ in body]
