@@ -449,6 +449,52 @@ def test_monte_carlo_table_and_plot(tmp_path: Path) -> None:
     assert png.read_bytes().startswith(PNG_SIGNATURE)
 
 
+@pytest.mark.parametrize("ambients", [(25.0,), (25.0, 85.0)], ids=["histograms", "bands"])
+def test_monte_carlo_plot_shows_the_rise(tmp_path: Path, ambients: tuple[float, ...]) -> None:
+    """Monte Carlo panels show the rise above ambient as the corner panels do: the draws'
+    T - Ta and their 1/50/99 percentiles (numpy's, of the same corner data the JSON holds),
+    and over ambient the allowed rise tmax - Ta dashed."""
+    from heatweave.emit.emitter import load_inputs
+    from heatweave.run.prepare import RunOptions
+    from heatweave.sweep.corners import SweepPlan, run_sweep
+    from heatweave.sweep.executors import make_executor
+    from heatweave.sweep.plot import build_figure
+
+    annotation = tmp_path / "divider.thermal.toml"
+    annotation.write_text(Path(MC_ANNOTATION).read_text() + "tmax = 110.0\n")
+    inputs = load_inputs(DIVIDER, str(annotation))
+    pool = make_executor("local", 1)
+    try:
+        result = run_sweep(inputs, SweepPlan(ambients, (), 12, 5), RunOptions(), pool)
+    finally:
+        pool.close()
+    rises = {
+        ta: [o.data["parts"]["RUP"]["temperature"] - ta for o in result.outcomes
+             if o.data is not None and o.corner.ambient == ta]
+        for ta in ambients
+    }  # fmt: skip
+    assert all(len(values) == 12 and min(values) > 1.0 for values in rises.values())
+    rise_axes, drift_axes = build_figure(result).axes[:2]
+    # drifts of 4 to 30 % (3500 ppm/K over 12 to 87 K): in % past 10,000 ppm, as the table
+    drift_label = drift_axes.get_xlabel() if len(ambients) == 1 else drift_axes.get_ylabel()
+    assert drift_label == "RUP: resistance drift vs deck value [%]"
+    wanted = [float(np.percentile(rises[ambients[0]], p)) for p in (1, 50, 99)]
+    if len(ambients) == 1:
+        assert rise_axes.get_xlabel() == "RUP: rise above ambient [K]"
+        marks = [line.get_xdata()[0] for line in rise_axes.get_lines()]
+        assert marks == pytest.approx(wanted, rel=1e-12)
+        bars = [patch.get_x() for patch in rise_axes.patches]
+        assert min(bars) == pytest.approx(min(rises[25.0]), rel=1e-12)
+        return
+    assert rise_axes.get_ylabel() == "RUP: rise above ambient [K]"
+    curves = {line.get_label(): line for line in rise_axes.get_lines()}
+    median = [float(np.percentile(rises[ta], 50)) for ta in ambients]
+    assert list(curves["RUP: p50"].get_ydata()) == pytest.approx(median, rel=1e-12)
+    allowed = curves["RUP: tmax - ambient (allowed rise)"]
+    assert list(allowed.get_ydata()) == [110.0 - ta for ta in ambients]
+    assert allowed.get_linestyle() == "--"
+
+
 def test_dask_without_scheduler_starts_and_stops_its_own_cluster() -> None:
     pytest.importorskip("distributed")
     data = sweep_json(HEATER, "--param", "vheat=4:8:4", "--executor", "dask", "-j", "1")

@@ -5,11 +5,13 @@ Corners: two panels over the ambient axis (or, when the ambient is held, over th
 [ppm], one curve per part and parameter corner, named in a legend beside the panels.  A
 part with ``tmax`` gets its allowed rise, ``tmax`` minus the ambient, as a dashed line in
 its colour: where a curve meets it, the part reaches ``tmax``.
-Monte Carlo at one corner: for each part a histogram of its temperature and one of its
-drift over the draws, with the 1st, 50th and 99th percentiles as dashed, solid and dashed
-lines.  Monte Carlo at several ambients: the 1st..99th percentile band and the median
-against ambient, one band per parameter corner, so the spread a tolerance causes reads
-directly at every ambient.
+Monte Carlo at one corner: for each part a histogram of its rise above the ambient and one
+of its drift over the draws, with the 1st, 50th and 99th percentiles as dashed, solid and
+dashed lines.  Monte Carlo at several ambients: the 1st..99th percentile band and the median
+of the rise against ambient, one band per parameter corner, with the allowed rise (``tmax``
+minus the ambient) dashed as in the corner panels, so the spread a tolerance causes reads
+directly at every ambient.  A group's ambient is one value, so the percentiles of the rise
+are those of the temperature less that ambient.
 
 Built on matplotlib's object interface with the Agg canvas (no window, no pyplot state).
 """
@@ -27,12 +29,8 @@ from matplotlib.figure import Figure
 from heatweave.reports.plot import drift_unit, palette
 from heatweave.sweep.corners import PERCENTILES, SweepResult, corner_ambient, summary
 
+#: The panels of corners and of Monte Carlo: the rise replaces the absolute temperature.
 QUANTITIES = (
-    ("temperature", "part temperature [degC]"),
-    ("resistance_change_ppm", "resistance drift vs deck value [ppm]"),
-)
-#: The corner panels: the rise replaces the absolute temperature.
-CORNER_QUANTITIES = (
     ("rise", "rise above ambient [K]"),
     ("resistance_change_ppm", "resistance drift vs deck value [ppm]"),
 )
@@ -89,7 +87,7 @@ def _corners(figure: Figure, result: SweepResult) -> None:
               if v.get("resistance_change_ppm") is not None]  # fmt: skip
     per_unit, drift_label = drift_unit(max(drifts, default=0.0))
     limits_drawn: set[str] = set()
-    for ax, (key, label) in zip(axes, CORNER_QUANTITIES, strict=True):
+    for ax, (key, label) in zip(axes, QUANTITIES, strict=True):
         scale = per_unit if key == "resistance_change_ppm" else 1.0
         for name, points in curves.items():
             pairs = sorted((a, v[key] / scale) for a, v in points if v.get(key) is not None)
@@ -128,14 +126,30 @@ def _group_label(group: dict[str, Any]) -> str:
     return f"{label}, {extra}" if extra else label
 
 
-def _histograms(ax: Axes, result: SweepResult, group: dict[str, Any], part: str, key: str) -> None:
+def _figures(
+    group: dict[str, Any], part: str, key: str, scale: float = 1.0
+) -> dict[str, float] | None:
+    """The group's percentiles of *key* over *scale*; of the rise, those of the temperature
+    less the group's ambient."""
+    by = float(group["ambient"]) if key == "rise" else 0.0
+    figures = group["parts"][part].get("temperature" if key == "rise" else key)
+    if figures is None:
+        return None
+    return {f"p{p:g}": (figures[f"p{p:g}"] - by) / scale for p in PERCENTILES}
+
+
+def _histograms(
+    ax: Axes, result: SweepResult, group: dict[str, Any], part: str, key: str, scale: float
+) -> None:
+    source = "temperature" if key == "rise" else key
     values = [
-        o.data["parts"][part][key]
+        (o.data["parts"][part][source] - (corner_ambient(result, o) if key == "rise" else 0.0))
+        / scale
         for o in result.outcomes
-        if o.data is not None and o.data["parts"][part].get(key) is not None
+        if o.data is not None and o.data["parts"][part].get(source) is not None
     ]
     ax.hist(values, bins="auto", color=BAR_COLOUR, alpha=0.7)
-    figures = group["parts"][part].get(key)
+    figures = _figures(group, part, key, scale)
     if figures is None:
         return
     for p, style in zip(PERCENTILES, LINES, strict=True):
@@ -148,16 +162,19 @@ def _histograms(ax: Axes, result: SweepResult, group: dict[str, Any], part: str,
     ax.set_ylabel("draws")
 
 
-def _bands(ax: Axes, groups: list[dict[str, Any]], part: str, key: str) -> None:
-    """p1..p99 band and p50 line against ambient, one per parameter corner."""
+def _bands(
+    ax: Axes, groups: list[dict[str, Any]], part: str, key: str, tmax: float | None,
+    scale: float,
+) -> None:  # fmt: skip
+    """p1..p99 band and p50 line against ambient, one per parameter corner; for the rise,
+    the allowed rise ``tmax`` minus the ambient dashed, as in the corner panels."""
     by_params: dict[str, list[dict[str, Any]]] = {}
     for group in groups:
         by_params.setdefault(_params_label(group["params"]), []).append(group)
     colours = palette(list(by_params))
     for name, members in by_params.items():
-        rows = sorted(
-            (g["ambient"], g["parts"][part][key]) for g in members if key in g["parts"][part]
-        )
+        found = ((g["ambient"], _figures(g, part, key, scale)) for g in members)
+        rows = sorted((a, f) for a, f in found if f is not None)
         if not rows:
             continue
         xs = [a for a, _ in rows]
@@ -168,22 +185,42 @@ def _bands(ax: Axes, groups: list[dict[str, Any]], part: str, key: str) -> None:
         )  # fmt: skip
         ax.plot(xs, [f["p50"] for _, f in rows], color=colours[name], marker="o",
                 markersize=3, label=f"{label}: p50")  # fmt: skip
+    if key == "rise" and tmax is not None:
+        ambients = sorted({float(g["ambient"]) for g in groups})
+        ax.plot(ambients, [tmax - a for a in ambients], ls="--", lw=1.0, color=LINE_COLOUR,
+                label=f"{part}: tmax - ambient (allowed rise)")  # fmt: skip
     ax.set_xlabel("ambient temperature [degC]")
     ax.legend(fontsize="small")
+
+
+def _tmax(result: SweepResult, part: str) -> float | None:
+    """The part's ``tmax`` as the corners report it (the nominal one of the annotation)."""
+    for outcome in result.outcomes:
+        if outcome.data is not None:
+            tmax: float | None = outcome.data["parts"][part]["ratings"].get("tmax")
+            return tmax
+    return None
 
 
 def _monte_carlo(figure: Figure, result: SweepResult) -> None:
     """Histograms when the draws ran at one corner; percentile bands over ambient else."""
     groups = summary(result)["groups"]
     parts = result.part_names
+    drifts = [
+        abs(v) for o in result.outcomes if o.data is not None
+        for p in o.data["parts"].values() if (v := p.get("resistance_change_ppm"))
+    ]  # fmt: skip
+    per_unit, drift_label = drift_unit(max(drifts, default=0.0))  # % as the corner panels
     for row, part in enumerate(parts):
         for col, (key, label) in enumerate(QUANTITIES):
             ax = figure.add_subplot(len(parts), 2, 2 * row + col + 1)
+            scale = per_unit if key == "resistance_change_ppm" else 1.0
+            label = label.replace("[ppm]", f"[{drift_label}]")
             if len(groups) == 1:
-                _histograms(ax, result, groups[0], part, key)
+                _histograms(ax, result, groups[0], part, key, scale)
                 ax.set_xlabel(f"{part}: {label}")
             else:
-                _bands(ax, groups, part, key)
+                _bands(ax, groups, part, key, _tmax(result, part), scale)
                 ax.set_ylabel(f"{part}: {label}")
             ax.grid(True, alpha=0.3)
     where = ""
