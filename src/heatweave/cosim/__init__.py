@@ -23,7 +23,7 @@ import numpy as np
 
 from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Inputs, load_inputs, thermal_circuit
-from heatweave.emit.placement import refuse_unplaced
+from heatweave.emit.placement import refuse_reserved, refuse_unplaced
 from heatweave.emit.sections import folded_files
 from heatweave.emit.temperature import temperature_findings, with_temp
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
@@ -118,7 +118,9 @@ def _circuit(
     if not circuit.parts:
         return circuit, findings
     refuse_unplaced(inputs.index, circuit)  # the decks the full method refuses
-    files = ((deck, low) for deck, low, _title in folded_files(inputs.project))
+    folded = folded_files(inputs.project)
+    refuse_reserved(inputs.index, circuit, folded)  # and those using the names it adds
+    files = ((deck, low) for deck, low, _title in folded)
     return circuit, findings + tuple(temperature_findings(files, circuit))
 
 

@@ -34,13 +34,12 @@ from heatweave.emit.forms import (
     resistor_cards,
     step_limit_options,
 )
-from heatweave.emit.placement import placed, refuse_multiplier
+from heatweave.emit.placement import placed, refuse_multiplier, refuse_reserved
 from heatweave.emit.sections import (
     EMITTED_HEADER,
     MARK,
     analyses,
     analysis_findings,
-    check_names,
     folded_files,
     header,
     thermal_section,
@@ -382,9 +381,7 @@ def emit_deck(
         # The copies go before .end with the section: the shared library reads no further.
         body = insert_before_end(body, Card(copies + section.text, section.lead), eol)
         text = replace(deck, title=title + head, body=tuple(body)).write()
-    check_names(
-        index, [*rewriter.added, AMBIENT_NODE, *(n.node for n in circuit.nodes)], folded
-    )
+    refuse_reserved(index, circuit, folded, form, heating)
     last = deck.body[-1] if deck.body else None
     if isinstance(last, ControlBlock) and not last.closed:
         # ngspice 39 drops every .model card of a deck whose .control block has no .endc

@@ -8,11 +8,13 @@ from __future__ import annotations
 
 import re
 
+from heatweave.emit.forms import added_nodes
+from heatweave.emit.sections import check_names
 from heatweave.errors import EmitError
 from heatweave.spice.cardparts import x_card_parts
-from heatweave.spice.deck import Card
+from heatweave.spice.deck import Card, Deck
 from heatweave.spice.hierarchy import DeckIndex, Resolved
-from heatweave.thermal.circuit import PartPlan, ThermalCircuit
+from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit
 
 
 def placed(index: DeckIndex, part: PartPlan) -> Resolved:
@@ -60,3 +62,34 @@ def refuse_multiplier(instance: Card, part: PartPlan) -> None:
         hint="write the multiplier on the resistor card inside (m= there sets its nominal "
         "value), or place one instance per physical part",
     )
+
+
+def reserved_nodes(circuit: ThermalCircuit, form: str, heating: bool = True) -> list[str]:
+    """Every node name the electrothermal deck of *circuit* adds (written in *form*): the
+    ambient source's, the shared nodes, and per part its hot spot, its network's inner
+    nodes, and its form's nodes (a resistor) or current-sense nodes (a heat-only part)."""
+    names = [AMBIENT_NODE, *(node.node for node in circuit.nodes)]
+    for part in circuit.parts:
+        if part.model is not None:
+            names.extend(added_nodes(form, part.name, part.model, heating))
+        else:
+            names.extend(f"{PREFIX}s_{part.name}_{k}" for k in range(1, len(part.terminals)))
+        net = part.network.elements(f"{PREFIX}{part.name}_", part.node, part.to, "0")
+        names.extend((part.node, *net.nodes))
+    return names
+
+
+def refuse_reserved(
+    index: DeckIndex,
+    circuit: ThermalCircuit,
+    folded: list[tuple[Deck, str, bool]],
+    form: str = "reference",
+    heating: bool = True,
+) -> None:
+    """An error for a deck that already uses a name the electrothermal deck adds, whatever
+    method runs it: the co-simulation writes none of them but refuses the same decks, so a
+    deck's answer never depends on the method.  *folded* is each file's deck and its text in
+    lower case (:func:`heatweave.emit.sections.folded_files`); a deck without the reserved
+    marker anywhere costs one search of it."""
+    if any(PREFIX in low for _deck, low, _title in folded):
+        check_names(index, reserved_nodes(circuit, form, heating), folded)
