@@ -94,3 +94,29 @@ def test_a_library_section_using_another_section_of_its_file_runs(
     # self-heating (50 K/W * 2.8 mW = 0.14 K at 100 ppm/K) moves it by 1.4e-5 only.
     power = json.loads(result.stdout)["parts"]["R1"]["power"]
     assert power == pytest.approx((5 / 3000) ** 2 * 1000, rel=1e-4)
+
+
+# Two [node] names of the annotation file that are one node name in the deck: ngspice reads
+# names without regard to case (manual 2.1.1), and heatweave writes a name's other
+# characters as "_". Each pair would be two nodes in the file and one in the emitted deck.
+COLLIDING_NODES = [("Board", "board"), ("bo ard", "bo_ard"), ("b\u00f6ard", "b_ard")]
+
+
+@pytest.mark.parametrize(("first", "second"), COLLIDING_NODES)
+@pytest.mark.parametrize(("command", "status"), [("lint", 1), ("emit", 2), ("run", 2)])
+def test_two_nodes_that_are_one_in_the_deck_are_refused(
+    tmp_path: Path, first: str, second: str, command: str, status: int
+) -> None:
+    (tmp_path / "d.cir").write_text(DECK)
+    (tmp_path / "d.thermal.toml").write_text(
+        f'schema = 1\n[node."{first}"]\nrth = 10\ncth = 1\n[node."{second}"]\nrth = 1000\n'
+        f'cth = 1\n[part.RTOP]\nmodel = "linear"\ntc1 = 0.003\nrth = 60.0\ncth = 0.02\n'
+        f'to = "{first}"\n[part.RBOT]\nmodel = "linear"\ntc1 = 0.003\nrth = 60.0\ncth = 0.02\n'
+        f'to = "{second}"\n',
+        encoding="utf-8",
+    )
+    result = heatweave([command, "d.cir"], tmp_path)
+    assert result.returncode == status, (result.stdout, result.stderr)
+    # Located at the second node's table header, naming the first.
+    assert "d.thermal.toml:5:" in result.stdout + result.stderr, result.stdout + result.stderr
+    assert first in result.stdout + result.stderr

@@ -217,6 +217,7 @@ def build_circuit(
                 terminals, found,
             )
         )  # fmt: skip
+    _check_distinct_nodes(annotation)
     nodes = tuple(SharedNode(n.name, n.rth, n.cth, node_of(n.to), n.to) for n in annotation.nodes)
     couplings = tuple(
         Coupling(node_of(p.between[0]), node_of(p.between[1]), p.rth, p.between)
@@ -229,6 +230,23 @@ def build_circuit(
         _check_steady_start(index)
     circuit = ThermalCircuit(ambient, nodes, tuple(parts), couplings, annotation.start)
     return circuit, tuple(findings)
+
+
+def _check_distinct_nodes(annotation: Annotation) -> None:
+    """Two ``[node]`` names that are one node in the deck (ngspice ignores case; other
+    characters than letters, digits and ``_`` are written as ``_``) would merge two nodes."""
+    seen: dict[str, str] = {}
+    for node in annotation.nodes:
+        spice = shared_node(node.name)
+        first = seen.setdefault(spice, node.name)
+        if first != node.name:
+            raise AnnotationError(
+                f"node {node.name!r} and node {first!r} would be one node in the deck "
+                f"({spice}): ngspice reads names without regard to case, and heatweave "
+                "writes characters other than letters, digits and '_' as '_'",
+                node.location,
+                "rename one of them so that the names differ in letters or digits",
+            )
 
 
 def _check_steady_start(index: DeckIndex) -> None:
