@@ -120,3 +120,43 @@ def test_two_nodes_that_are_one_in_the_deck_are_refused(
     # Located at the second node's table header, naming the first.
     assert "d.thermal.toml:5:" in result.stdout + result.stderr, result.stdout + result.stderr
     assert first in result.stdout + result.stderr
+
+
+PATH_DECK = """two paths, one name
+.subckt inner a b
+R3 a b 1k
+.ends
+.subckt outer a b
+X2 a b inner
+.ends
+V1 in 0 DC 5
+X1 in 0 outer
+X1_X2 in 0 inner
+.op
+.end
+"""
+PATH_NOTES = """schema = 1
+[part."X1.X2.R3"]
+model = "linear"
+tc1_ppm = 100
+rth = 50
+cth = 0.1
+[part."X1_X2.R3"]
+model = "linear"
+tc1_ppm = 100
+rth = 500
+cth = 0.1
+"""
+
+
+@pytest.mark.parametrize(("command", "status"), [("lint", 1), ("emit", 2), ("run", 2)])
+def test_two_parts_whose_paths_are_one_name_are_refused(
+    tmp_path: Path, command: str, status: int
+) -> None:
+    """X1.X2.R3 and X1_X2.R3 are two resistors (stock ngspice loads the deck) that would
+    share one hot-spot node; run found no verified state (exit 7), emit wrote one node."""
+    (tmp_path / "d.cir").write_text(PATH_DECK)
+    (tmp_path / "d.thermal.toml").write_text(PATH_NOTES)
+    result = heatweave([command, "d.cir"], tmp_path)
+    assert result.returncode == status, (result.stdout, result.stderr)
+    assert "d.thermal.toml:7:" in result.stdout + result.stderr, result.stdout + result.stderr

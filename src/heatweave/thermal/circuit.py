@@ -218,6 +218,7 @@ def build_circuit(
             )
         )  # fmt: skip
     _check_distinct_nodes(annotation)
+    _check_distinct_parts(parts)
     nodes = tuple(SharedNode(n.name, n.rth, n.cth, node_of(n.to), n.to) for n in annotation.nodes)
     couplings = tuple(
         Coupling(node_of(p.between[0]), node_of(p.between[1]), p.rth, p.between)
@@ -246,6 +247,22 @@ def _check_distinct_nodes(annotation: Annotation) -> None:
                 "writes characters other than letters, digits and '_' as '_'",
                 node.location,
                 "rename one of them so that the names differ in letters or digits",
+            )
+
+
+def _check_distinct_parts(parts: list[PartPlan]) -> None:
+    """Two parts whose instance paths are one name in the deck (``X1.X2.R3`` and
+    ``X1_X2.R3``) would share a hot spot and the names of their added cards."""
+    seen: dict[str, str] = {}
+    for part in parts:
+        first = seen.setdefault(part.node, part.path)
+        if first != part.path:
+            raise AnnotationError(
+                f"parts {first} and {part.path} would share one hot-spot node ({part.node}): "
+                "heatweave writes the '.' of an instance path as '_'",
+                part.location,
+                "rename the subcircuit instance whose name holds '_' where the other path "
+                "has a '.'",
             )
 
 
