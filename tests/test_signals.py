@@ -280,3 +280,18 @@ def test_a_run_ngspice_will_not_halt_still_ends_the_command() -> None:
     lines = done.stdout.splitlines()
     assert lines[0] == "ngspice did not finish within 1 s and was stopped"
     assert lines[1].startswith("ngspice is still busy with a run it would not stop")
+
+
+def test_a_command_run_in_process_leaves_the_signal_handlers_alone() -> None:
+    # The command line installs its own handlers while it runs (above); a program that
+    # runs it in process (a test, a wrapper) gets its own back.
+    from click.testing import CliRunner
+
+    from heatweave.cli import main
+
+    watched = (signal.SIGINT, signal.SIGTERM, signal.SIGHUP)
+    before = [signal.getsignal(s) for s in watched]
+    deck = Path(__file__).parent / "fixtures" / "check" / "divider.cir"
+    result = CliRunner().invoke(main, ["lint", str(deck)])
+    assert result.exit_code in (0, 1), result.output
+    assert [signal.getsignal(s) for s in watched] == before

@@ -67,16 +67,29 @@ def _raise(signum: int, frame: FrameType | None) -> None:
     raise Terminated(signum)
 
 
-def catch_termination(handler: Callable[[int, FrameType | None], None] = _raise) -> None:
+Handlers = dict[int, Callable[[int, FrameType | None], object] | int | None]
+
+
+def catch_termination(handler: Callable[[int, FrameType | None], None] = _raise) -> Handlers:
     """SIGINT, SIGTERM and SIGHUP call *handler* (default: raise :class:`KeyboardInterrupt`
     or :class:`Terminated`, once); only the main thread can install handlers, elsewhere this
-    does nothing.  An ignored SIGINT (a job started with ``nohup`` or ``&``) stays ignored."""
+    does nothing.  An ignored SIGINT (a job started with ``nohup`` or ``&``) stays ignored.
+    Returns the handlers replaced, for :func:`restore`."""
     if threading.current_thread() is not threading.main_thread():
-        return
-    for signum in ENDING:
+        return {}
+    previous: Handlers = {}
+    for signum in (*ENDING, signal.SIGINT):
+        if signum == signal.SIGINT and signal.getsignal(signum) is signal.SIG_IGN:
+            continue
+        previous[signum] = signal.signal(signum, handler)
+    return previous
+
+
+def restore(previous: Handlers) -> None:
+    """Put back the handlers :func:`catch_termination` replaced (a command run inside
+    another program leaves its handlers as it found them)."""
+    for signum, handler in previous.items():
         signal.signal(signum, handler)
-    if signal.getsignal(signal.SIGINT) is not signal.SIG_IGN:
-        signal.signal(signal.SIGINT, handler)
 
 
 @contextmanager

@@ -13,7 +13,7 @@ import click
 
 from heatweave.errors import EXIT_INTERRUPTED, Finding, HeatweaveError, UsageError
 from heatweave.files import refuse_overwrite
-from heatweave.processes import Terminated, catch_termination, leave
+from heatweave.processes import Terminated, catch_termination, leave, restore
 from heatweave.quantities import SpiceQuantity, Temperature, format_number
 
 if TYPE_CHECKING:
@@ -34,7 +34,7 @@ def guarded(func: Callable[P, R]) -> Callable[P, R]:
 
     @functools.wraps(func)
     def wrapper(*args: P.args, **kwargs: P.kwargs) -> R:
-        catch_termination()
+        previous = catch_termination()
         try:
             return func(*args, **kwargs)
         except HeatweaveError as err:
@@ -47,6 +47,8 @@ def guarded(func: Callable[P, R]) -> Callable[P, R]:
         except Terminated as ended:
             click.echo(f"{ended}; no output file was left half written", err=True)
             leave(ended.exit_code)
+        finally:
+            restore(previous)
 
     return wrapper
 
