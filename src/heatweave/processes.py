@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import contextlib
 import ctypes
-import ctypes.util
 import os
 import signal
 import sys
@@ -107,13 +106,27 @@ def signals_deferred() -> Iterator[None]:
 
 def die_with_parent(signum: int = signal.SIGKILL) -> None:
     """Have the kernel send *signum* to this process when its parent dies (Linux
-    ``PR_SET_PDEATHSIG``; elsewhere nothing), and take the signals
-    :func:`signals_deferred` held back from the parent.  Safe as a ``preexec_fn``."""
-    signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT, *ENDING})
+    ``PR_SET_PDEATHSIG``; elsewhere nothing).  Safe as a ``preexec_fn``: it starts no
+    process and loads nothing (the C library was bound at import).  A child started under
+    :func:`signals_deferred` keeps SIGINT, SIGTERM and SIGHUP held back (no Python code may
+    run in it between fork and exec); heatweave ends its ngspice with SIGKILL."""
+    if _PRCTL is not None:
+        _PRCTL(_PR_SET_PDEATHSIG, signum, 0, 0, 0)
+
+
+def _prctl() -> Callable[..., int] | None:
+    """libc's ``prctl``, bound once in the parent (``ctypes.CDLL(None)``: the symbols the
+    process already has), or ``None`` off Linux."""
     if not sys.platform.startswith("linux"):
-        return
-    libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6", use_errno=True)
-    libc.prctl(_PR_SET_PDEATHSIG, signum, 0, 0, 0)
+        return None
+    try:
+        function: Callable[..., int] = ctypes.CDLL(None, use_errno=True).prctl
+    except (OSError, AttributeError):
+        return None
+    return function
+
+
+_PRCTL = _prctl()
 
 
 def leave(code: int) -> NoReturn:

@@ -106,7 +106,9 @@ def _start_worker(command: int) -> None:
 
 
 def _watch(pid: int) -> None:
-    """SIGTERM to this worker once process *pid* has ended."""
+    """SIGTERM to this worker once process *pid* has ended.  The thread takes no signal
+    itself: they go to the main thread, which holds them back while it starts ngspice."""
+    signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT, signal.SIGTERM, signal.SIGHUP})
     try:
         handle = os.pidfd_open(pid)
     except (AttributeError, OSError):  # not Linux 5.3+: poll the pid instead
