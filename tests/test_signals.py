@@ -295,3 +295,14 @@ def test_a_command_run_in_process_leaves_the_signal_handlers_alone() -> None:
     result = CliRunner().invoke(main, ["lint", str(deck)])
     assert result.exit_code in (0, 1), result.output
     assert [signal.getsignal(s) for s in watched] == before
+
+
+def test_a_timeout_below_a_second_explains_the_scale_factor(tmp_path: Path) -> None:
+    # "--timeout 1m" is one millisecond in SPICE notation, not a minute (1u: surely too short).
+    deck = Path(__file__).parent / "fixtures" / "check" / "divider.cir"
+    done = subprocess.run(
+        [str(HEATWEAVE), "run", str(deck), "-q", "--timeout", "1u"],
+        capture_output=True, text=True, timeout=60, check=False,
+    )  # fmt: skip
+    assert done.returncode == EXIT_TIMEOUT, done.stderr
+    assert "within 1e-06 s" in done.stderr and "1m is a millisecond" in done.stderr

@@ -142,7 +142,12 @@ def timed_out(timeout: float | None) -> SimulationTimeoutError:
     """The error for a run stopped after *timeout* seconds (same wording in every back end)."""
     return SimulationTimeoutError(
         f"ngspice did not finish within {timeout or 0:.3g} s and was stopped",
-        hint="give a longer --timeout, or a shorter or coarser analysis",
+        hint="give a longer --timeout, or a shorter or coarser analysis"
+        + (
+            " (SPICE scale factors: 1m is a millisecond; write 60 for a minute)"
+            if timeout is not None and timeout < 1.0
+            else ""
+        ),
         limit=timeout,
     )
 
