@@ -105,6 +105,8 @@ def test_settle_refuses_a_deck_that_does_not_repeat() -> None:
     code, output = check(DIVIDER, "-a", DIVIDER_NOTES, "--method", "settle")
     assert code == EXIT_BAD_INPUT
     assert "no periodic source" in output
+    assert "--period" not in output  # check has no such option to suggest
+    assert "check its own run with --method full" in output
 
 
 def test_settle_refuses_an_analysis_given() -> None:

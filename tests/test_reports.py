@@ -334,7 +334,8 @@ def test_table_margins_agree_with_check() -> None:
     outcome = run(path, annotation, inputs=inputs)
     report = build_report(inputs, outcome)
     judged = {
-        (r.subject, r.limit): r for r in part_limits(outcome.results, ambient_series(outcome.results))
+        (r.subject, r.limit): r
+        for r in part_limits(outcome.results, ambient_series(outcome.results))
     }
     for row in report.rows:
         if row.power_rating is not None:

@@ -62,7 +62,15 @@ def choose(inputs: Inputs, options: RunOptions, method: str = "auto") -> Choice:
                 "transients of its own: --op and --tran do not apply",
                 hint="leave out --op/--tran, or check that analysis with --method full",
             )
-        return Choice(drive_period(inputs.index, None), asked, "settle", forced=True)
+        try:
+            drive = drive_period(inputs.index, None)
+        except UsageError as err:
+            # check takes the period from the deck's sources only: no --period to suggest.
+            raise UsageError(
+                err.message, err.location, "check --method settle needs a deck whose sources "
+                "repeat; check its own run with --method full",
+            ) from None
+        return Choice(drive, asked, "settle", forced=True)
     if options.analyses:
         return Choice(None, "the analysis given on the command line")
     own = deck_analyses_of(inputs.project.deck)
