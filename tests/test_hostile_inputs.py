@@ -160,3 +160,39 @@ def test_two_parts_whose_paths_are_one_name_are_refused(
     result = heatweave([command, "d.cir"], tmp_path)
     assert result.returncode == status, (result.stdout, result.stderr)
     assert "d.thermal.toml:7:" in result.stdout + result.stderr, result.stdout + result.stderr
+
+
+# An annotated resistor's card with a name after its value: ngspice 39 reads the name as
+# the card's model and refuses the card when no .model defines it ("unknown parameter");
+# heatweave read the value alone and reported a 2 ohm resistor for "{big}k". (card lines,
+# the annotated part, whether stock ngspice 39 loads the deck: checked in the test.)
+MODEL_CARDS = [
+    ("R1 in a {big}k", "R1", False),
+    ("R1 in a {big} k", "R1", False),
+    ("R1 in a 2k nosuch", "R1", False),
+    ("R1 in a 2k rmod\n.model rmod R(tc1=0)", "R1", True),
+    ("R1 in a 2k RMOD\n.model rmod R(tc1=0)", "R1", True),
+    (".subckt leg p q\nRL p q 2k lmod\n.model lmod R(tc1=0)\n.ends\nX1 in a leg", "X1.RL", True),
+]
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize(("cards", "part", "accepted"), MODEL_CARDS)
+def test_an_annotated_resistor_naming_an_undefined_model_is_refused(
+    tmp_path: Path, cards: str, part: str, accepted: bool
+) -> None:
+    deck = f"model names\n.param big=2\nV1 in 0 DC 5\n{cards}\nR2 a 0 2k\n.op\n.end\n"
+    (tmp_path / "d.cir").write_text(deck)
+    (tmp_path / "d.thermal.toml").write_text(
+        f'schema = 1\n[part."{part}"]\nmodel = "linear"\ntc1_ppm = 100\nrth = 50\ncth = 0.1\n'
+    )
+    plain = subprocess.run(
+        ["ngspice", "-b", "d.cir"], cwd=tmp_path, capture_output=True, text=True, timeout=60
+    )
+    refused = "unknown parameter" in plain.stdout + plain.stderr
+    assert refused is not accepted, plain.stdout + plain.stderr
+    for command in ("emit", "run"):
+        result = heatweave([command, "d.cir"], tmp_path)
+        assert result.returncode == (0 if accepted else 2), (command, result.stderr)
+        if not accepted:
+            assert "d.cir:4:" in result.stderr and "no .model card defines" in result.stderr

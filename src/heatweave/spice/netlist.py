@@ -148,6 +148,7 @@ class ResistorValue:
 
     ohms: float
     notes: tuple[str, ...]
+    model: tuple[str, int] | None = None  # the model name on the card, its logical offset
 
 
 @functools.lru_cache(maxsize=4096)  # a large deck repeats its values many times over
@@ -225,7 +226,7 @@ def resistor_value(
             hint="an annotated resistor needs a finite, nonzero resistance: check its value, "
             "m= and scale=",
         )
-    return ResistorValue(ohms, tuple(notes))
+    return ResistorValue(ohms, tuple(notes), positional[1] if len(positional) > 1 else None)
 
 
 #: Where a ``key=value`` pair starts, which ends the unbraced expression before it.

@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from heatweave.annotation import AMBIENT, Annotation, BoundPart, NetworkSpec, PartSpec
 from heatweave.errors import AnnotationError, EmitError, Finding, Location
 from heatweave.networks import NetworkError, NetworkForm, from_annotation
+from heatweave.spice.deck import Card
 from heatweave.spice.grammar import syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Resolved
 from heatweave.spice.netlist import (
@@ -199,6 +200,8 @@ def build_circuit(
                     scoped[chain] = scope_params(params, found, funcs)
                 seen = scoped[chain]
             value = resistor_value(card, seen, simple, funcs)
+            if value.model is not None and value.model[0].lower() not in index.models:
+                _refuse_unknown_model(card, value.model)
             if value.notes:
                 findings.extend(
                     Finding("warning", f"{item.element}: {note}", found.card.location())
@@ -231,6 +234,19 @@ def build_circuit(
         _check_steady_start(index)
     circuit = ThermalCircuit(ambient, nodes, tuple(parts), couplings, annotation.start)
     return circuit, tuple(findings)
+
+
+def _refuse_unknown_model(card: Card, model: tuple[str, int]) -> None:
+    """An annotated resistor naming a model no ``.model`` defines: ngspice 39 refuses the
+    card ("unknown parameter"), so the value heatweave reads would be no circuit's."""
+    name, at = model
+    raise EmitError(
+        f"{card.head} names the model {name!r}, which no .model card defines: ngspice 39 "
+        f"refuses the card ('unknown parameter ({name.lower()})')",
+        card.location(at),
+        "a scale factor after a brace expression goes inside it ({2*1k}, not {2}k); or "
+        f"define the model (.model {name} R)",
+    )
 
 
 def _check_distinct_nodes(annotation: Annotation) -> None:
