@@ -441,9 +441,7 @@ def thermal_circuit(
     """The thermal circuit of *inputs* and what building it found; *annotation* replaces
     the file's (a Monte Carlo draw, a corner) and *ambient* overrides its ambient."""
     bound = inputs.bound if annotation is None else bind(annotation, inputs.index)
-    circuit, findings = build_circuit(annotation or inputs.annotation, bound, inputs.index)
-    if ambient is not None:
-        circuit = replace(circuit, ambient=float(ambient))
+    circuit, findings = build_circuit(annotation or inputs.annotation, bound, inputs.index, ambient)
     return circuit, tuple(findings)
 
 

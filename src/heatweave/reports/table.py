@@ -36,8 +36,17 @@ class Column:
     level: Callable[[PartRow], str] = lambda row: ""  # "", "near", "over"
 
 
+#: Past this magnitude a fixed-point column would print a string of meaningless digits
+#: (an NTC far below its range changes by 1e15 %); such values print in e-notation.
+FIXED_LIMIT = 1e6
+
+
 def _num(value: float | None, spec: str) -> str:
-    return "-" if value is None else format(value, spec)
+    if value is None:
+        return "-"
+    if abs(value) >= FIXED_LIMIT and spec.endswith("f"):
+        return format(value, "+.4g" if spec.startswith("+") else ".4g")
+    return format(value, spec)
 
 
 def _margin_level(margin: float | None, scale: float | None) -> str:

@@ -191,8 +191,11 @@ class TempModel(ABC):
 
 
 def _apply(func: object, t_c: float | FloatArray) -> float | FloatArray:
+    """*func* at *t_c*; past a float's range it gives inf or nan, which the caller judges
+    (a state with such a value is never reported), so numpy is not let to print about it."""
     assert callable(func)
-    result: FloatArray = func(np.asarray(t_c, dtype=np.float64))
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        result: FloatArray = func(np.asarray(t_c, dtype=np.float64))
     if np.ndim(t_c) == 0:
         return float(result)
     return result

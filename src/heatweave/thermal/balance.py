@@ -137,8 +137,10 @@ def check_state(
         model = circuit.parts[members[0]].model
         assert model is not None
         at = t[members]
-        ohms = np.asarray(model.resistance(at), dtype=float)
-        negative = [members[k] for k in np.flatnonzero(~(ohms > 0))]
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            ohms = np.asarray(model.resistance(at), dtype=float)
+        # not above zero, or past every float (an NTC near absolute zero): no physical value
+        negative = [members[k] for k in np.flatnonzero(~((ohms > 0) & np.isfinite(ohms)))]
         for i in negative[:3]:
             part = circuit.parts[i]
             problems.append(
@@ -147,7 +149,8 @@ def check_state(
                 "model has no physical value there"
             )
         safe = np.where(ohms > 0, ohms, np.inf)
-        slope[members] = np.abs(p_parts[members] * np.asarray(model.slope(at))) / safe
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            slope[members] = np.abs(p_parts[members] * np.asarray(model.slope(at))) / safe
     tolerance = abs(g) @ eps + slope * eps + 2 * reltol * np.abs(injected) + ABSTOL_P
     try:
         error = np.asarray(splu(csc_matrix(g)).solve(residual)) if len(labels) else residual

@@ -145,12 +145,17 @@ class ThermalCircuit:
 
 
 def build_circuit(
-    annotation: Annotation, bound: tuple[BoundPart, ...], index: DeckIndex
+    annotation: Annotation,
+    bound: tuple[BoundPart, ...],
+    index: DeckIndex,
+    ambient: float | None = None,
 ) -> tuple[ThermalCircuit, tuple[Finding, ...]]:
     """The thermal circuit of a bound annotation, with each resistor's model built from
-    the deck's nominal value; also the warnings about card parameters set aside."""
+    the deck's nominal value; also the warnings about card parameters set aside.
+    *ambient* (degC) overrides the annotation's; every model must hold there too."""
 
     findings: list[Finding] = list(annotation.warnings)
+    ambients = _ambients(annotation, ambient)
     params = top_params(index)
     funcs = top_funcs(index)
 
@@ -212,7 +217,7 @@ def build_circuit(
             model = models.get(key)
             if model is None:  # parts of one table with equal values share their model
                 model = models[key] = spec.temp_model(nominal)
-                _check_model(model, spec, item.element, _ambients(annotation))
+                _check_model(model, spec, item.element, ambients)
         parts.append(
             PartPlan(
                 item.element, spec.model, model, network, to_node, spec.to,
@@ -227,12 +232,14 @@ def build_circuit(
         Coupling(node_of(p.between[0]), node_of(p.between[1]), p.rth, p.between)
         for p in annotation.paths
     )
-    ambient: float | tuple[tuple[float, float], ...] = annotation.ambient.temperature
-    if annotation.ambient.profile is not None:
-        ambient = tuple(annotation.ambient.profile)
+    held: float | tuple[tuple[float, float], ...] = annotation.ambient.temperature
+    if ambient is not None:
+        held = float(ambient)
+    elif annotation.ambient.profile is not None:
+        held = tuple(annotation.ambient.profile)
     if annotation.start == "steady":
         _check_steady_start(index)
-    circuit = ThermalCircuit(ambient, nodes, tuple(parts), couplings, annotation.start)
+    circuit = ThermalCircuit(held, nodes, tuple(parts), couplings, annotation.start)
     return circuit, tuple(findings)
 
 
@@ -308,8 +315,10 @@ def _network_data(spec: NetworkSpec) -> object:
     return spec.stages
 
 
-def _ambients(annotation: Annotation) -> tuple[float, ...]:
-    """Every ambient temperature the annotation sets (degC)."""
+def _ambients(annotation: Annotation, ambient: float | None) -> tuple[float, ...]:
+    """Every ambient temperature the run sets (degC): the override, else the annotation's."""
+    if ambient is not None:
+        return (ambient,)
     if annotation.ambient.profile is not None:
         return tuple(t for _, t in annotation.ambient.profile)
     return (annotation.ambient.temperature,)
