@@ -61,6 +61,23 @@ REJECT = {
     "r24_three_inductor_k": ("a K card couples exactly two inductors", "unknown parameter (lt)"),
     "r25_if_never_closed": (".if is never closed", "Mismatch of .if ... .endif"),
     "r26_endif_without_if": (".endif without .if", "Mismatch of .if ... .endif"),
+    "r27_subckt_too_many_nodes": (
+        "connects 3 node(s) to subcircuit leg of 2 port(s)",
+        "Too many parameters for subcircuit type",
+    ),
+    "r28_subckt_too_few_nodes": (
+        "connects 1 node(s) to subcircuit leg of 2 port(s)",
+        "Too few parameters for subcircuit type",
+    ),
+    "r29_undefined_diode_model": ("no .model card defines one", "could not find a valid modelname"),
+    "r30_undefined_resistor_model": (
+        "names the model 'nosuch', which no .model card defines",
+        "unknown parameter (nosuch)",
+    ),
+    "r31_undefined_func": (
+        "calls the function 'foo', which no .func defines",
+        "Cannot compute substitute",
+    ),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

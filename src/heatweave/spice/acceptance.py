@@ -6,7 +6,8 @@ defines ("Undefined parameter") or one that depends on itself ("circular paramet
 dependency"), a subcircuit that instantiates itself ("unknown subckt" after a thousand
 levels), ``nan``/``inf`` or a brace expression without a finite value ("unknown parameter"),
 an unbalanced parenthesis in a brace expression ("Closing ')' not found"), a deck with no
-circuit, and two elements of one name ("device already exists").  ``lint`` reports them
+circuit, and two elements of one name ("device already exists"); undefined models,
+functions and subcircuit node counts are in :mod:`heatweave.spice.references`.  ``lint`` reports them
 all; ``run``, ``check``, ``settle`` and ``sweep`` refuse the deck with the first one.
 """
 
@@ -39,6 +40,7 @@ from heatweave.spice.expressions import (
 from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Scope
 from heatweave.spice.lint_cards import empty_analyses
+from heatweave.spice.references import reference_errors, undefined_call
 from heatweave.spice.syntax import (
     Call,
     DotSyntax,
@@ -82,6 +84,7 @@ def rejections(index: DeckIndex) -> list[Finding]:
     found.extend(_open_control(index, cards))
     found.extend(_unknown_dot_cards(dots))
     found.extend(_parameters(index, cards, dots))
+    found.extend(reference_errors(index, _defined_names(index, dots)))
     found.extend(_recursion(index))
     found.extend(duplicates(index))
     found.extend(_couplings(cards))
@@ -334,8 +337,12 @@ def _parameters(index: DeckIndex, cards: list[Card], dots: list[Card]) -> Iterat
         used = names_used(expr.text)
         if calls & RUNTIME_CALLS or any(n in RUNTIME_NAMES for n, _ in used):
             continue  # a run-time expression (behavioural values): not evaluated here
-        if calls - BUILTIN_FUNCTIONS - set(funcs) - defined:
-            continue  # a function heatweave does not know: ngspice may
+        unknown = calls - BUILTIN_FUNCTIONS - set(funcs) - defined
+        if unknown:  # a function heatweave does not know: ngspice may, unless no .func has it
+            call = undefined_call(card, expr.text, expr.offset, unknown, funcs)
+            if call is not None:
+                yield call
+            continue
         missing = next(((n, at) for n, at in used if n not in defined), None)
         if missing is not None:
             name, at = missing

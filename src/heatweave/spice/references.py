@@ -1,0 +1,135 @@
+"""Names a card uses that nothing in the deck defines, which ngspice 39 refuses (issue 14).
+
+Held against ngspice 39.3 (``tests/conformance/reject`` r27 to r31): an ``X`` card with more
+or fewer nodes than its subcircuit has ports ("Too many/Too few parameters for subcircuit
+type"), a D, J, Q or M card naming no model a ``.model`` card defines ("could not find a
+valid modelname"), a resistor with a name after its value that no ``.model`` defines
+("unknown parameter"), and a brace expression calling a function no ``.func`` defines
+("Cannot compute substitute").  Each check only refuses what is certainly undefined: a name
+in braces, a model name a binned ``.model`` (``name.1``) extends, or a parameter name passes.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterator, Mapping
+
+from heatweave.errors import DeckSyntaxError, Finding
+from heatweave.spice.cardparts import subckt_ports, x_card_parts
+from heatweave.spice.deck import Card
+from heatweave.spice.grammar import syntax_of
+from heatweave.spice.hierarchy import DeckIndex, Scope
+from heatweave.spice.syntax import ElementSyntax, Value, ValueKind
+
+# Letters whose element needs a .model card in ngspice 39 (no built-in default model).
+_NEEDS_MODEL = frozenset("DJQM")
+# Functions ngspice 39's expression parsers know beyond heatweave's evaluator (not refused).
+_OTHER_FUNCTIONS = frozenset({
+    "sqr", "re", "im", "db", "ph", "mag", "u", "u2", "uramp", "ddt", "sdt", "table", "tbl",
+    "if", "rand", "fabs", "atan2", "hypot", "exp10", "sign", "round", "trunc", "mod",
+})  # fmt: skip
+
+
+def reference_errors(index: DeckIndex, defined: set[str]) -> Iterator[Finding]:
+    """Subcircuit node counts, undefined device and resistor models (*defined*: the deck's
+    parameter and ``.func`` names)."""
+    models = set(index.models)
+    for scope in _all_scopes(index.top):
+        for card in scope.cards:
+            letter = card.letter
+            if letter == "X":
+                yield from _ports(index, scope, card)
+            elif letter in _NEEDS_MODEL or letter == "R":
+                yield from _model(card, models, defined)
+
+
+def _all_scopes(scope: Scope) -> Iterator[Scope]:
+    yield scope
+    for inner in scope.scopes.values():
+        yield from _all_scopes(inner)
+
+
+def _ports(index: DeckIndex, scope: Scope, card: Card) -> Iterator[Finding]:
+    nodes, sub, _params = x_card_parts(card)
+    found = index.lookup_subckt(sub, scope)
+    if found is None or "{" in sub:
+        return  # an unknown subcircuit: lint's connection check reports it
+    ports = subckt_ports(found[0])
+    if len(nodes) == len(ports):
+        return
+    many = "many" if len(nodes) > len(ports) else "few"
+    yield Finding(
+        "error",
+        f"{card.head} connects {len(nodes)} node(s) to subcircuit {sub} of {len(ports)} "
+        f"port(s): ngspice 39 stops with 'Too {many} parameters for subcircuit type'",
+        card.location(),
+        f"write one node for each port of .subckt {sub} ({' '.join(ports) or 'none'})",
+    )
+
+
+def _known(name: str, models: set[str]) -> bool:
+    low = name.lower()
+    return low in models or any(m.startswith(low + ".") for m in models)
+
+
+def _model(card: Card, models: set[str], defined: set[str]) -> Iterator[Finding]:
+    try:
+        syntax = syntax_of(card)
+    except DeckSyntaxError:
+        return  # lint reports the grammar
+    if not isinstance(syntax, ElementSyntax):
+        return
+    words = [f for f in syntax.positional if isinstance(f, Value)]
+    if syntax.letter == "r":
+        # R n+ n- value name: the name after a value is the card's model (manual 3.3.1)
+        names = [w for k, w in enumerate(words) if k > 0 and w.kind is ValueKind.NAME]
+        if not words or words[0].kind is ValueKind.NAME or not names:
+            return
+        name = names[0]
+        if _known(name.text, models) or name.key in defined:
+            return
+        yield Finding(
+            "error", f"{syntax.name.text} names the model {name.text!r}, which no .model card "
+            f"defines: ngspice 39 refuses the card ('unknown parameter ({name.key})')",
+            card.location(name.offset),
+            f"define the model (.model {name.text} R), or remove the name",
+        )  # fmt: skip
+        return
+    nodes = {n.offset for n in syntax.nodes}
+    candidates = [w for w in words if w.offset not in nodes and w.kind is ValueKind.NAME]
+    if any(_known(t.text, models) for t in (*syntax.nodes, *candidates)):
+        return  # Q and M take a model among their optional nodes
+    if any(w.kind in (ValueKind.BRACE, ValueKind.QUOTED) for w in words):
+        return
+    where = candidates[0].offset if candidates else (syntax.nodes[-1].end if syntax.nodes else 0)
+    said = f"the model {candidates[0].text!r}" if candidates else "no model"
+    yield Finding(
+        "error", f"{syntax.name.text} names {said}, and no .model card defines one: ngspice 39 "
+        "stops with 'could not find a valid modelname'",
+        card.location(where),
+        f"a {card.letter} element needs a model: define it with .model, or include the file "
+        "that does",
+    )  # fmt: skip
+
+
+_CALL = re.compile(r"([A-Za-z_][\w.]*)\s*\(")
+
+
+def undefined_call(
+    card: Card, text: str, offset: int, unknown: set[str], funcs: Mapping[str, object]
+) -> Finding | None:
+    """A call in the expression *text* (at *offset*) of a R, C or L value to a function no
+    ``.func`` defines and ngspice does not know."""
+    if card.letter not in "RCL" or unknown & _OTHER_FUNCTIONS:
+        return None
+    for match in _CALL.finditer(text):
+        name = match.group(1).lower()
+        if name in unknown and name not in funcs:
+            return Finding(
+                "error", f"{card.head} calls the function {match.group(1)!r}, which no .func "
+                "defines: ngspice 39 stops with 'Cannot compute substitute'",
+                card.location(offset + match.start(1)),
+                f"define it with .func {match.group(1)}(...) = {{...}} (manual 2.10), or check "
+                "the spelling",
+            )  # fmt: skip
+    return None
