@@ -7,8 +7,8 @@ dependency"), a subcircuit that instantiates itself ("unknown subckt" after a th
 levels), ``nan``/``inf`` or a brace expression without a finite value ("unknown parameter"),
 an unbalanced parenthesis in a brace expression ("Closing ')' not found"), a deck with no
 circuit, and two elements of one name ("device already exists"); undefined models,
-functions and subcircuit node counts are in :mod:`heatweave.spice.references`.  ``lint`` reports them
-all; ``run``, ``check``, ``settle`` and ``sweep`` refuse the deck with the first one.
+functions and subcircuit node counts are in :mod:`heatweave.spice.references`.  ``lint``
+reports them all; ``run``, ``check``, ``settle`` and ``sweep`` refuse the deck with the first one.
 """
 
 from __future__ import annotations

@@ -73,6 +73,11 @@ def _known(name: str, models: set[str]) -> bool:
 
 
 def _model(card: Card, models: set[str], defined: set[str]) -> Iterator[Finding]:
+    fields = card.fields()
+    if card.letter == "R" and (len(fields) < 5 or "=" in fields[4]):
+        return  # no word after the value: the common card, read without the grammar
+    if card.letter != "R" and any(_known(f, models) for f in fields[1:]):
+        return  # a defined model among its words (the grammar is not loaded for it)
     try:
         syntax = syntax_of(card)
     except DeckSyntaxError:
