@@ -33,7 +33,13 @@ from heatweave.annotation import Annotation, LimitSpec
 from heatweave.annotation.fields import closest
 from heatweave.annotation.ratings import derated_power
 from heatweave.errors import AnnotationError
-from heatweave.run.results import PartResult, RunResults, build_part, power_meaning
+from heatweave.run.results import (
+    SETTLED,
+    PartResult,
+    RunResults,
+    power_meaning,
+    rated_ambient,
+)
 from heatweave.run.runner import RunOutcome
 from heatweave.settle.periodic import Settled
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
@@ -44,9 +50,6 @@ FloatArray = npt.NDArray[np.float64]
 
 #: Baseline points below this share of the baseline's peak magnitude are left out of drift.
 DRIFT_FLOOR = 1e-6
-#: ``RunResults.analysis`` of a settled period (:func:`settled_results`): power ratings are
-#: held against the period's mean dissipation, times are read from the period's start.
-SETTLED = "settled period"
 #: A value this close to its bound, relatively, is on it: a few units in the last place of a
 #: double (2.2e-16 relative), far below any simulator's tolerance (reltol 1e-3 by default).
 ROUND_OFF = 1e-12
@@ -203,17 +206,11 @@ def _power_limit(part: PartResult, results: RunResults, ambient: FloatArray) -> 
     plan = part.plan
     assert plan is not None and plan.power_rating is not None
     rating = plan.power_rating
-    if plan.to == AMBIENT_NODE:
-        local, where = ambient, "ambient"
-    elif results.time is not None:
-        local, where = results.node_series[plan.to_label], f'node "{plan.to_label}"'
-    else:
-        local, where = np.array([results.nodes[plan.to_label]]), f'node "{plan.to_label}"'
+    where = "ambient" if plan.to == AMBIENT_NODE else f'node "{plan.to_label}"'
     # IEC 60115-1 rates continuous load: the mean dissipation (the result's power), at the
-    # local ambient where the run ends (a settled period: its warmest), as run's report
-    # holds it (heatweave.reports.model).
+    # local ambient every report derates at (heatweave.run.results.rated_ambient).
     settled = results.analysis == SETTLED
-    at_local = float(np.max(local)) if settled else float(local[-1])
+    at_local = rated_ambient(results, plan.to_label, ambient)
     allowed = derated_power(rating, at_local, plan.derating_knee, plan.tmax)
     at = f"{_num(at_local)} degC at {where}"
     if plan.tmax is None:  # no upper category temperature: no curve to derate along
@@ -345,35 +342,13 @@ def summary(results: Sequence[LimitResult]) -> str:
     return f"{len(results)} {noun} checked, {failed} violated"
 
 
-def settled_results(settled: Settled) -> RunResults:
-    """A settled period (:func:`heatweave.settle.periodic.settle`) as the results of a run
-    over that one period, so that every limit is read as for any run."""
-    assert settled.time is not None and settled.power is not None
-    assert settled.temperatures is not None
-    temps, n = settled.temperatures, len(settled.parts)
-    parts = []
-    for k, part in enumerate(settled.parts):
-        assert part.plan is not None
-        parts.append(  # the one builder, as settle itself built the part
-            build_part(
-                part.plan, temps[:, k], settled.power[:, k], time=settled.time,
-                period=settled.period, temperature_value=part.temperature,
-            )
-        )  # fmt: skip
-    nodes = {label: temps[:, n + j] for j, label in enumerate(settled.nodes)}
-    return RunResults(
-        SETTLED, settled.ambient, tuple(parts), dict(settled.nodes), dict(settled.voltages),
-        settled.time, nodes, dict(settled.voltage_series),
-    )  # fmt: skip
-
-
 def evaluate_settled(settled: Settled, signals: Sequence[Signal]) -> tuple[LimitResult, ...]:
     """Every limit over a settled period, as :func:`evaluate` reads a run: ``tmax`` against
     the peak temperature within the period, ``power_rating`` against the period's mean
     dissipation (continuous load, IEC 60115-1) derated at the warmest temperature of the
     part's local ambient within the period, signal limits on every point of the period
     and drifts against the same period without self-heating (``settled.baseline``)."""
-    results = settled_results(settled)
+    results = settled.as_results()
     baseline = None
     if settled.baseline is not None:
         time, voltages = settled.baseline

@@ -213,7 +213,7 @@ def run(
         )
     # after the bar has finished its line, so no message starts on the bar's line
     report_findings(findings)
-    if method_line is not None and not quiet:
+    if not quiet:
         click.echo(method_line, err=True)
     _write_reports(report, inputs, outputs, quiet)
 
@@ -225,9 +225,9 @@ def _simulate(
     options: RunOptions,
     method: str,
     probe: tuple[str, ...],
-) -> tuple[RunReport, list[Finding], str | None]:
+) -> tuple[RunReport, list[Finding], str]:
     """Run the deck by *method*: its report, the findings to print and the method line
-    (``None`` for an explicit ``--method full``)."""
+    (``method: NAME (why)``, whichever method ran)."""
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports import build_report
     from heatweave.run.runner import run as run_deck
@@ -235,8 +235,9 @@ def _simulate(
     if method == "full":
         outcome = run_deck(deck, annotation_path, options, inputs=inputs)
         report = build_report(inputs, outcome, probe_signals(probe, outcome.results))
-        report = replace(report, method_reason="asked for the full electrothermal deck")
-        return report, list(outcome.prepared.findings), None
+        why = "asked for the full electrothermal deck"
+        report = replace(report, method_reason=why)
+        return report, list(outcome.prepared.findings), f"method: full ({why})"
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.cosim import run_auto
     from heatweave.reports.model import report_of

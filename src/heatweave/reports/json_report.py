@@ -73,7 +73,8 @@ def _number(value: float | None) -> float | None:
     return float(value)
 
 
-def _part(row: PartRow) -> dict[str, Any]:
+def part_dict(row: PartRow) -> dict[str, Any]:
+    """A part's keys, as ``run``, ``settle`` and every ``sweep`` corner write them."""
     result = row.result
     change = result.resistance_change
     return {
@@ -125,7 +126,7 @@ def as_dict(report: RunReport) -> dict[str, Any]:
         "backend": report.backend,
         "method": {"name": report.method, "reason": report.method_reason},
         "ambient": _number(results.ambient),
-        "parts": {row.path: _part(row) for row in report.rows},
+        "parts": {row.path: part_dict(row) for row in report.rows},
         "nodes": {label: _number(value) for label, value in results.nodes.items()},
         "voltages": {node: _number(value) for node, value in results.voltages.items()},
         "currents": {name: _number(value) for name, value in results.currents.items()},

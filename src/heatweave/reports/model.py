@@ -4,9 +4,10 @@ The table, JSON, CSV and plot writers read a :class:`RunReport`, so a number pri
 terminal is the very number written to the JSON.  Rating margins follow
 :mod:`heatweave.annotation.ratings`, judged as ``check`` judges them: the local ambient
 of a part is the temperature at the cold end of its thermal path (the ambient, or the shared
-node it sits on), where the run ends; the power margin holds the derated rating against
-the part's mean dissipation (``power``, :func:`heatweave.run.results.build_part`); the
-temperature margin uses the hottest temperature reached.
+node it sits on), where the run ends (over a settled period: its warmest,
+:func:`heatweave.run.results.rated_ambient`); the power margin holds the derated rating
+against the part's mean dissipation (``power``, :func:`heatweave.run.results.build_part`);
+the temperature margin uses the hottest temperature reached.
 """
 
 from __future__ import annotations
@@ -15,12 +16,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from heatweave.annotation import AMBIENT
 from heatweave.annotation.ratings import Margins, margins
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import Finding
 from heatweave.run.prepare import deck_analyses_of
-from heatweave.run.results import FloatArray, PartResult, RunResults
+from heatweave.run.results import FloatArray, PartResult, RunResults, rated_ambient
 from heatweave.run.runner import RunOutcome
 
 PPM = 1e6
@@ -134,22 +134,14 @@ class RunReport:
         return "electrothermal deck" if self.results.parts else "plain deck at the ambient"
 
 
-def local_ambient(results: RunResults, label: str, ambient: FloatArray) -> FloatArray:
-    """The temperature at the cold end of a part's thermal path over the run: the ambient,
-    or the shared node *label*; one value for an operating point."""
-    if label == AMBIENT:
-        return ambient
-    series = results.node_series.get(label)
-    return series if series is not None else np.array([results.nodes[label]])
-
-
 def part_row(part: PartResult, results: RunResults, ambient: FloatArray) -> PartRow:
     """A part's row, its power rating held against its mean dissipation (``power``) at the
-    local ambient where the run ends, as ``check`` holds it (IEC 60115-1 rates continuous
-    load; ``tmax`` is held against the hottest temperature reached)."""
+    local ambient :func:`~heatweave.run.results.rated_ambient` gives (where the run ends; a
+    settled period's warmest), as ``check`` holds it (IEC 60115-1 rates continuous load;
+    ``tmax`` is held against the hottest temperature reached)."""
     plan = part.plan
     assert plan is not None
-    local = float(local_ambient(results, plan.to_label, ambient)[-1])
+    local = rated_ambient(results, plan.to_label, ambient)
     row_margins = margins(
         hottest=part.hottest,
         power=part.power,

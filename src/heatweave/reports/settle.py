@@ -3,11 +3,15 @@
 The CSV and the table's caution follow ``run``'s (:mod:`heatweave.reports.csv_report`,
 :mod:`heatweave.reports.table`).
 
-JSON keys follow ``run``'s report where the meaning is the same (``parts.NAME.temperature``,
-``.peak_temperature``, ``.power``, ``.resistance``, ``nodes.NAME``), read over the settled
-period: ``temperature`` is the cycle mean, ``peak_temperature`` and ``valley_temperature``
-the extremes within the period, ``power`` the cycle-mean dissipation and ``resistance``
-the resistance at the cycle-mean temperature.  Added: ``period``, ``period_from`` (the
+Each part carries every key of ``run``'s report, written by the same function
+(:func:`heatweave.reports.json_report.part_dict` on :func:`heatweave.reports.model.part_row`
+of :meth:`~heatweave.settle.periodic.Settled.as_results`), read over the settled period:
+``temperature`` is the cycle mean, ``peak_temperature`` the highest within the period,
+``power`` the cycle-mean dissipation, ``resistance`` the resistance at the cycle-mean
+temperature, ``ratings.local_ambient`` the warmest local ambient within the period, and the
+margins are the ones ``settle --check`` judges; added after ``peak_temperature``:
+``valley_temperature`` (the lowest within the period) and ``ripple`` (peak minus valley,
+K).  Added at the top level: ``period``, ``period_from`` (the
 sources it was taken from, or ``--period``), ``periods`` (electrical
 periods simulated per iteration), ``iterations``, ``final_change`` (K), ``loop_gain``,
 ``history`` (one object per iteration), ``node_extremes``, ``envelope`` (the warm-up
@@ -23,12 +27,16 @@ import textwrap
 from collections.abc import Sequence
 from typing import Any
 
+import numpy as np
+
 from heatweave import __version__
 from heatweave.checks.limits import LimitResult
 from heatweave.emit.emitter import Inputs
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.csv_report import TIME_HEADER, render_columns, temperature_header
-from heatweave.reports.table import WIDTH
+from heatweave.reports.json_report import part_dict
+from heatweave.reports.model import PPM, PartRow, part_row
+from heatweave.reports.table import WIDTH, number
 from heatweave.run.waves import seconds as seconds  # its home before run/waves
 from heatweave.settle.periodic import Settled, Step
 
@@ -40,24 +48,39 @@ def _number(value: float | None) -> float | None:
     return float(value)
 
 
+def rows(settled: Settled) -> tuple[PartRow, ...]:
+    """Each part's row as ``run``'s reports have it, over the settled period: the margins
+    ``settle --check`` judges (:func:`heatweave.reports.model.part_row`)."""
+    results = settled.as_results()
+    assert results.time is not None
+    ambient = np.full(len(results.time), settled.ambient)
+    return tuple(part_row(part, results, ambient) for part in results.parts)
+
+
+def _ripple(row: PartRow) -> float | None:
+    part = row.result
+    if part.peak_temperature is None or part.valley_temperature is None:
+        return None
+    return part.peak_temperature - part.valley_temperature
+
+
+def _part(row: PartRow) -> dict[str, Any]:
+    """``run``'s keys (:func:`~heatweave.reports.json_report.part_dict`), with the period's
+    valley and ripple after its peak."""
+    out: dict[str, Any] = {}
+    for key, value in part_dict(row).items():
+        out[key] = value
+        if key == "peak_temperature":
+            out["valley_temperature"] = _number(row.result.valley_temperature)
+            out["ripple"] = _number(_ripple(row))
+    return out
+
+
 def as_dict(
     settled: Settled, inputs: Inputs, limits: Sequence[LimitResult] | None = None
 ) -> dict[str, Any]:
     """The report as plain data, keys in a fixed order; ``limits`` with ``--check``."""
-    parts = {
-        part.path: {
-            "model": part.model,
-            "temperature": _number(part.temperature),
-            "peak_temperature": _number(part.peak_temperature),
-            "valley_temperature": _number(part.valley_temperature),
-            "ripple": _number(part.peak_temperature - part.valley_temperature),
-            "resistance": _number(part.resistance),
-            "nominal_resistance": _number(part.nominal_resistance),
-            "power": _number(part.power),
-            "peak_power": _number(part.peak_power),
-        }
-        for part in settled.parts
-    }
+    parts = {row.path: _part(row) for row in rows(settled)}
     envelope = None
     if settled.envelope is not None:
         env = settled.envelope
@@ -147,31 +170,38 @@ def render_table(settled: Settled) -> str:
     if settled.drive is not None:
         lines += textwrap.wrap(f"period: {settled.drive.describe()}", WIDTH)
     lines.append("")
-    head = ("part", "mean", "peak", "valley", "ripple", "mean power", "resistance")
-    units = ("", "degC", "degC", "degC", "K", "W", "ohm")
-    rows: list[tuple[str, ...]] = [head, units]
-    for part in settled.parts:
-        rows.append(
+    head = ("part", "mean", "peak", "valley", "ripple", "dR", "mean power", "resistance",
+            "P allowed", "P margin", "to Tmax")  # fmt: skip
+    units = ("", "degC", "degC", "degC", "K", "ppm", "W", "ohm", "W", "W", "K")
+    table: list[tuple[str, ...]] = [head, units]
+    for row in rows(settled):
+        part = row.result
+        ppm = None if part.resistance_change is None else part.resistance_change * PPM
+        table.append(
             (
                 part.path,
-                f"{part.temperature:.2f}",
-                f"{part.peak_temperature:.2f}",
-                f"{part.valley_temperature:.2f}",
-                f"{part.peak_temperature - part.valley_temperature:.3f}",
-                f"{part.power:.4g}",
-                "-" if part.resistance is None else f"{part.resistance:.5g}",
+                number(part.temperature, ".2f"),
+                number(part.peak_temperature, ".2f"),
+                number(part.valley_temperature, ".2f"),
+                number(_ripple(row), ".3f"),
+                number(ppm, "+.1f"),
+                number(part.power, ".4g"),
+                number(part.resistance, ".5g"),
+                number(row.margins.allowed, ".4g"),
+                number(row.margins.power, ".4g"),
+                number(row.margins.temperature, ".1f"),
             )
         )
     for label, mean in settled.nodes.items():
         peak, valley = settled.node_peaks[label], settled.node_valleys[label]
-        rows.append(
+        table.append(
             (f"[{label}]", f"{mean:.2f}", f"{peak:.2f}", f"{valley:.2f}",
-             f"{peak - valley:.3f}", "", "")
+             f"{peak - valley:.3f}", *("",) * 6)
         )  # fmt: skip
-    widths = [max(len(row[k]) for row in rows) for k in range(len(head))]
-    for row in rows:
-        cells = [row[0].ljust(widths[0])]
-        cells += [cell.rjust(widths[k]) for k, cell in enumerate(row) if k]
+    widths = [max(len(row[k]) for row in table) for k in range(len(head))]
+    for cells_of in table:
+        cells = [cells_of[0].ljust(widths[0])]
+        cells += [cell.rjust(widths[k]) for k, cell in enumerate(cells_of) if k]
         lines.append("  ".join(cells).rstrip())
     lines += ["", *textwrap.wrap(CAUTION_LINE, WIDTH)]
     return "\n".join(lines) + "\n"

@@ -41,7 +41,8 @@ class Column:
 FIXED_LIMIT = 1e6
 
 
-def _num(value: float | None, spec: str) -> str:
+def number(value: float | None, spec: str) -> str:
+    """A table cell: ``-`` for no value, e-notation past :data:`FIXED_LIMIT` in a fixed column."""
     if value is None:
         return "-"
     if abs(value) >= FIXED_LIMIT and spec.endswith("f"):
@@ -83,14 +84,14 @@ def _percent(row: PartRow) -> float | None:
 COLUMNS: tuple[Column, ...] = (
     Column("part", "", lambda r: r.path, left=True),
     Column("model", "", lambda r: r.result.model or "heat only", left=True),
-    Column("T final", "degC", lambda r: _num(r.result.temperature, ".2f")),
-    Column("T peak", "degC", lambda r: _num(_peak(r), ".2f")),
-    Column("dR", "%", lambda r: _num(_percent(r), "+.4f")),
-    Column("dR", "ppm", lambda r: _num(r.change_ppm, "+.1f")),
-    Column("P", "W", lambda r: _num(r.result.power, ".4g")),
-    Column("P allowed", "W", lambda r: _num(r.margins.allowed, ".4g")),
-    Column("P margin", "W", lambda r: _num(r.margins.power, ".4g"), level=_load_level),
-    Column("to Tmax", "K", lambda r: _num(r.margins.temperature, ".1f"), level=_temp_level),
+    Column("T final", "degC", lambda r: number(r.result.temperature, ".2f")),
+    Column("T peak", "degC", lambda r: number(_peak(r), ".2f")),
+    Column("dR", "%", lambda r: number(_percent(r), "+.4f")),
+    Column("dR", "ppm", lambda r: number(r.change_ppm, "+.1f")),
+    Column("P", "W", lambda r: number(r.result.power, ".4g")),
+    Column("P allowed", "W", lambda r: number(r.margins.allowed, ".4g")),
+    Column("P margin", "W", lambda r: number(r.margins.power, ".4g"), level=_load_level),
+    Column("to Tmax", "K", lambda r: number(r.margins.temperature, ".1f"), level=_temp_level),
 )
 
 

@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import numpy.typing as npt
 
+from heatweave.annotation import AMBIENT
 from heatweave.errors import Finding, SimulatorError
 from heatweave.run.drive import Drive, deck_drive, period_note
 from heatweave.simulators import Plot, SimResult
@@ -169,6 +170,28 @@ def build_part(
     )
 
 
+#: ``RunResults.analysis`` of a settled period (``settle``, and ``check`` on a periodic deck):
+#: times are read from the period's start, a rating is derated at the period's warmest local
+#: ambient.
+SETTLED = "settled period"
+
+
+def local_ambient(results: RunResults, label: str, ambient: FloatArray) -> FloatArray:
+    """The temperature at the cold end of a part's thermal path over the run: *ambient*
+    (its series), or the shared node *label*'s; one value for an operating point."""
+    if label == AMBIENT:
+        return ambient
+    series = results.node_series.get(label)
+    return series if series is not None else np.array([results.nodes[label]])
+
+
+def rated_ambient(results: RunResults, label: str, ambient: FloatArray) -> float:
+    """The local ambient a part's power rating is derated at, the one value every report
+    and ``check`` use: where the run ends, or over a settled period its warmest."""
+    local = local_ambient(results, label, ambient)
+    return float(np.max(local)) if results.analysis == SETTLED else float(local[-1])
+
+
 def drive_findings(results: RunResults, index: DeckIndex) -> tuple[Finding, ...]:
     """A note when ``power`` of a transient could not be the mean over one common period
     of the drive (:func:`heatweave.run.drive.period_note`)."""
@@ -196,7 +219,6 @@ def main_plot(sim: SimResult) -> Plot:
         if found:
             return found[-1]
     if not sim.plots:
-
         raise SimulatorError(
             "ngspice produced no results",
             hint="check that the deck's analysis cards are valid; "
@@ -295,9 +317,7 @@ def extract(
                     plot, f"i({sense})"
                 )
         parts.append(
-            build_part(
-                part, temp, power, time=time, resistance=resistance_series, period=period
-            )
+            build_part(part, temp, power, time=time, resistance=resistance_series, period=period)
         )
     nodes_final: dict[str, float] = {}
     node_series: dict[str, FloatArray] = {}

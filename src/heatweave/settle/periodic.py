@@ -43,14 +43,20 @@ import numpy.typing as npt
 from heatweave.emit.emitter import Inputs, load_inputs
 from heatweave.errors import ConvergenceError, Finding, ThermalRunawayError, UsageError
 from heatweave.run.prepare import RunOptions, with_deadline
-from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, PartResult, build_part, range_warning
+from heatweave.run.results import (
+    IMPLAUSIBLE_TEMPERATURE,
+    SETTLED,
+    PartResult,
+    RunResults,
+    build_part,
+    range_warning,
+)
 from heatweave.run.verify import NoSteadyStateError
 from heatweave.run.waves import DrivePeriod, drive_period, seconds
 from heatweave.settle.electrical import Cycle, Electrical
 from heatweave.settle.thermal import periodic
 from heatweave.settle.warmup import Envelope, warm_up
 from heatweave.thermal.balance import Verdict, check_state
-from heatweave.thermal.circuit import PartPlan
 from heatweave.thermal.solver import ThermalSystem, assemble
 
 FloatArray = npt.NDArray[np.float64]
@@ -107,41 +113,17 @@ class SettleOptions:
 
 
 @dataclass(frozen=True, slots=True)
-class PartSettled:
-    """One part in the settled periodic state."""
-
-    path: str
-    model: str | None
-    temperature: float  # cycle mean (degC)
-    peak_temperature: float
-    valley_temperature: float
-    power: float  # cycle mean (W)
-    peak_power: float
-    resistance: float | None  # at the cycle-mean temperature (ohm)
-    nominal_resistance: float | None
-    plan: PartPlan | None = field(default=None, repr=False, compare=False)
-
-    @classmethod
-    def of(cls, result: PartResult) -> PartSettled:
-        """The settled view of a result :func:`~heatweave.run.results.build_part` made from
-        the settled period (so ``power``, ``peak_power`` and ``nominal_resistance`` mean
-        what they mean for ``run``)."""
-        assert result.peak_temperature is not None and result.valley_temperature is not None
-        assert result.peak_power is not None
-        return cls(
-            result.path, result.model, result.temperature, result.peak_temperature,
-            result.valley_temperature, result.power, result.peak_power, result.resistance,
-            result.nominal_resistance, result.plan,
-        )  # fmt: skip
-
-
-@dataclass(frozen=True, slots=True)
 class Settled:
-    """The result of :func:`settle`; ``drive`` says where the period comes from."""
+    """The result of :func:`settle`; ``drive`` says where the period comes from.
+
+    ``parts`` are :func:`~heatweave.run.results.build_part`'s results over the settled period,
+    so every key means what it means for ``run``: ``temperature`` is the period mean,
+    ``peak_temperature`` and ``valley_temperature`` the period's extremes, ``power`` the
+    period-mean dissipation, ``resistance`` the model's value at the mean temperature."""
 
     period: float
     ambient: float
-    parts: tuple[PartSettled, ...]
+    parts: tuple[PartResult, ...]
     nodes: dict[str, float]
     node_peaks: dict[str, float]
     node_valleys: dict[str, float]
@@ -165,6 +147,18 @@ class Settled:
     #: With ``SettleOptions.baseline``: the period without self-heating, its times from the
     #: period's start and node voltages.
     baseline: tuple[FloatArray, dict[str, FloatArray]] | None = field(default=None, repr=False)
+
+    def as_results(self) -> RunResults:
+        """The settled period as the results of a run over that one period (analysis
+        :data:`~heatweave.run.results.SETTLED`, times from the period's start), so reports
+        and limits read it as any run."""
+        assert self.time is not None and self.temperatures is not None
+        n = len(self.parts)
+        node_series = {label: self.temperatures[:, n + j] for j, label in enumerate(self.nodes)}
+        return RunResults(
+            SETTLED, self.ambient, self.parts, dict(self.nodes), dict(self.voltages),
+            self.time, node_series, dict(self.voltage_series), period=self.period,
+        )  # fmt: skip
 
 
 def _ambient(inputs: Inputs, options: SettleOptions) -> float:
@@ -384,9 +378,7 @@ def settle(
     # Every source's period sampled finely, however many of them the period holds.
     tstep = options.tstep or min(period / 400.0, (drive.shortest or period) / 100.0)
     run_options = with_deadline(options.run_options())  # one limit for every period run
-    electrical = Electrical(
-        inputs, run_options, period, tstep, options.wave_tol, drive.start
-    )
+    electrical = Electrical(inputs, run_options, period, tstep, options.wave_tol, drive.start)
     circuit = electrical.circuit
     system = assemble(circuit)
     loop = _Loop(electrical, system, ambient, options)
@@ -394,12 +386,10 @@ def settle(
     ripple = periodic(system, cycle.time, cycle.power, ambient)
     verdict = verify_settled(loop, ripple.mean, cycle.mean_power)
     parts = [
-        PartSettled.of(
-            build_part(
-                plan, ripple.outputs[:, k], cycle.power[:, k], time=cycle.time,
-                period=period, temperature_value=float(ripple.mean[k]),
-            )  # the cycle mean is the settled temperature; peak and valley its extremes
-        )
+        build_part(
+            plan, ripple.outputs[:, k], cycle.power[:, k], time=cycle.time - cycle.time[0],
+            period=period, temperature_value=float(ripple.mean[k]),
+        )  # the cycle mean is the settled temperature; peak and valley its extremes
         for k, plan in enumerate(circuit.parts)
     ]  # fmt: skip
     n = len(circuit.parts)
@@ -456,16 +446,16 @@ def verify_settled(loop: _Loop, mean: FloatArray, power: FloatArray) -> Verdict:
     return verdict
 
 
-def range_warnings(parts: list[PartSettled]) -> list[Finding]:
+def range_warnings(parts: list[PartResult]) -> list[Finding]:
     """A warning for each part whose settled period leaves its model's range."""
     found = []
     for part in parts:
         model = part.plan.model if part.plan is not None else None
         span = model.valid_range if model is not None else None
-        if part.plan is None or span is None:
+        if part.plan is None or span is None or part.valley_temperature is None:
             continue
-        if part.peak_temperature > span.high:
-            found.append(range_warning(part.plan, part.peak_temperature, span.high))
+        if part.hottest > span.high:
+            found.append(range_warning(part.plan, part.hottest, span.high))
         elif part.valley_temperature < span.low:
             found.append(range_warning(part.plan, part.valley_temperature, span.low))
     return found
