@@ -147,7 +147,6 @@ def part_keys(data: dict[str, Any], prefix: str = "parts.NAME.") -> set[str]:
 
 
 @pytest.mark.ngspice
-@pytest.mark.slow
 @pytest.mark.parametrize("command", ["run", "settle", "sweep"])
 def test_readme_lists_every_key_written(
     written: dict[str, list[dict[str, Any]]], command: str
@@ -170,7 +169,6 @@ def test_readme_lists_every_key_written(
 
 
 @pytest.mark.ngspice
-@pytest.mark.slow
 def test_settle_parts_carry_every_part_key(written: dict[str, list[dict[str, Any]]]) -> None:
     part = readme_keys("part")
     assert part_keys(written["settle"][0]) == part
