@@ -25,7 +25,7 @@ from heatweave.errors import EXIT_THERMAL_RUNAWAY, ThermalRunawayError
 from heatweave.run import runner
 from heatweave.run.diagnosis import RunawayError
 from heatweave.run.prepare import RunOptions, prepare
-from heatweave.run.runaway import Continuation, power_jacobian
+from heatweave.run.runaway import DRIVE_TOL, Continuation, power_jacobian
 from heatweave.run.verify import SCAN_STEP, fell_back, solver_tolerances
 
 BACKENDS = ["shared", "batch"]
@@ -177,7 +177,7 @@ def test_positive_tcr_on_current_source_runs_away(tmp_path: Path, gain: float) -
     err = caught.value
     assert isinstance(err, RunawayError) and err.diagnosis is not None
     assert err.diagnosis.source is not None
-    assert err.diagnosis.source[1] == pytest.approx(I_CRIT, rel=0.02)
+    assert err.diagnosis.source[1] == pytest.approx(I_CRIT, rel=DRIVE_TOL / 2)
 
 
 @pytest.mark.parametrize("command", [["run"], ["check"], ["sweep", "--check", "--ambient", "25"]])

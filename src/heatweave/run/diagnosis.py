@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from heatweave.errors import Location, ThermalRunawayError
+from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE
 
 HINT = (
     "lower the drive, give the part a lower thermal resistance (more copper, a heat sink), "
@@ -38,6 +39,13 @@ class Diagnosis:
             f"the full dissipation ({self.part} at {self.temperature:.4g} degC) and the "
             "solution vanished beyond it"
         )
+        if self.temperature > IMPLAUSIBLE_TEMPERATURE:
+            # A pole, not a fold: the loop gain stays up as the part heats.
+            text = (
+                f"loop gain Rth*dP/dT reached {self.loop_gain:.3g} at {100 * self.drive:.3g} "
+                f"% of the full dissipation, where {self.part}'s steady temperature grows "
+                f"without bound ({self.temperature:.4g} degC at the last point followed)"
+            )
         if abs(self.circuit_gain - self.loop_gain) > 0.02:
             text += f" (loop gain of the whole circuit {self.circuit_gain:.3g})"
         return text + self._source_clause()

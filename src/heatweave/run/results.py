@@ -432,3 +432,28 @@ def implausible(results: RunResults) -> bool:
         if series is not None and not bool(np.all(series > 0)):
             return True
     return False
+
+
+def growth(results: RunResults) -> str | None:
+    """When and where a transient's temperatures left physical values, in words."""
+
+    if results.time is None:
+        return None
+    first: tuple[float, str] | None = None
+    for part in results.parts:
+        series = part.temperature_series
+        if series is None:
+            continue
+        bad = np.flatnonzero(~np.isfinite(series) | (series > IMPLAUSIBLE_TEMPERATURE))
+        if bad.size == 0:
+            continue
+        at = float(results.time[bad[0]])
+        text = f"{part.path} passed {IMPLAUSIBLE_TEMPERATURE:g} degC at t = {at:.4g} s"
+        tmax = part.plan.tmax if part.plan is not None else None
+        over = np.flatnonzero(series > tmax) if tmax is not None else np.array([], dtype=int)
+        if over.size:
+            passed = f"{float(results.time[over[0]]):.4g}"
+            text += f" (its tmax {tmax:g} degC at t = {passed} s)"
+        if first is None or at < first[0]:
+            first = (at, text)
+    return first[1] if first else None

@@ -16,8 +16,11 @@ Method (continuation in a drive parameter):
    :data:`JUMP_FLOOR`).  Near a fold steps grow like ``1/sqrt(lambda* - lambda)``, a factor
    of about 2.4 between the last two points at most; a jump to a far branch is far larger.
 3. The last interval is swept again in :data:`FINE_STEPS` steps, starting on the branch
-   (``.nodeset`` of the thermal nodes at the last good point), so the drive is known to
-   ``0.01 / FINE_STEPS``.
+   (``.nodeset`` of the thermal nodes at the last good point), and again around the last
+   point on the branch, until the drive is known to :data:`DRIVE_TOL` of itself.  Before
+   a pole (a loop gain that stays up as the part heats: a positive TCR on a current source)
+   the temperature grows like ``1/(lambda* - lambda)``, so fast that a coarse point still on
+   the branch looks like a jump; where the fine sweep passes it, the branch goes on.
 4. At the last good point each part's loop gain is ``lambda * Z_ii * dP_i/dT_i``: ``Z`` the
    driving-point thermal resistances of the steady-state thermal network (own path, shared
    nodes, couplings), ``dP/dT`` by central differences of two ngspice solutions with the
@@ -53,7 +56,7 @@ import numpy.typing as npt
 from heatweave.errors import SimulatorError, ThermalRunawayError
 from heatweave.run.diagnosis import HINT, Diagnosis, RunawayError
 from heatweave.run.prepare import simulate
-from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE
+from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, growth
 from heatweave.run.sources import single_source
 from heatweave.spice.hierarchy import global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
@@ -75,6 +78,10 @@ FINE_STEPS = 100
 JUMP_RATIO = 4.0
 JUMP_FLOOR = 0.25  # K: smaller steps are never taken for a jump
 FD_STEP = 0.1  # K
+# The branch end (a fold, a pole) is located to this share of its drive: refinement goes
+# on, FINE_STEPS at a time, at most MAX_LEVELS deep.
+DRIVE_TOL = 1e-3
+MAX_LEVELS = 6
 # Near a fold the power balance is flat, so ngspice's default tolerances (reltol 1e-3)
 # accept points slightly past it; the diagnosis decks solve tighter.
 TIGHT = ".options reltol=1e-6 vntol=1e-9 abstol=1e-15"
@@ -257,10 +264,25 @@ def range_end(cont: Continuation, drive: FloatArray, temps: FloatArray, k: int,
 def follow(cont: Continuation) -> BranchEnd | None:
     """Follow the steady state from no dissipation to full; ``None`` when even the
     unheated circuit has no solution (the failure is electrical, not thermal)."""
+    lo: float = 0.0
+    start: FloatArray | None = None
+    while True:
+        found = segment(cont, lo, start)
+        if not isinstance(found, tuple):
+            return found
+        lo, start = found  # a coarse step was taken for a jump but is on the branch
+
+
+def segment(
+    cont: Continuation, lo: float, start: FloatArray | None
+) -> BranchEnd | tuple[float, FloatArray] | None:
+    """Coarse sweep from drive *lo* (thermal temperatures *start*), then :func:`edge` where
+    the branch is lost; ``(drive, temperatures)`` to go on from when that refinement finds
+    the coarse point taken for a jump on the branch after all."""
     step = 1.0 / COARSE_STEPS
-    plot = cont.converged(0.0, step, COARSE_STEPS, None)
+    plot = cont.converged(lo, step, max(round((1.0 - lo) / step), 1), start)
     if plot is None:
-        return None
+        return None if start is None else BranchEnd(lo, start, True, None)
     temps = cont.temperatures(plot)
     drive = np.real(np.asarray(plot.scale_values)).astype(float)
     k = first_off(cont, plot, temps)
@@ -269,28 +291,52 @@ def follow(cont: Continuation) -> BranchEnd | None:
         return range_end(cont, drive, temps, *outside)
     reached = k is None and drive[-1] >= 1.0 - 1e-9
     if reached:
-
         if float(np.max(temps[:, -1])) <= IMPLAUSIBLE_TEMPERATURE:
             return BranchEnd(1.0, temps[:, -1], False, temps[:, -1])
         k = 1  # smooth but implausible: look for a fold inside the first step
     last = (k if k is not None else temps.shape[1]) - 1
     if last < 0:
-        return None
+        return None if start is None else BranchEnd(lo, start, True, None)
     # Start one coarse step early: the first fine step has no step before it to compare.
     back = max(last - 1, 0)
-    fine = step / FINE_STEPS
-    count = (last - back + 1) * FINE_STEPS
-    refined = cont.converged(float(drive[back]), fine, count, temps[:, back])
-    if refined is None:
-        return BranchEnd(float(drive[last]), temps[:, last], True, None)
-    ftemps = cont.temperatures(refined)
-    fdrive = np.real(np.asarray(refined.scale_values)).astype(float)
-    j = first_off(cont, refined, ftemps)
-    if j is None and reached:
+    found = edge(cont, float(drive[back]), temps[:, back], (last - back + 1) * step)
+    if reached and (isinstance(found, tuple) or not found.lost):
         return BranchEnd(1.0, temps[:, -1], False, temps[:, -1])
-    end = (j if j is not None else ftemps.shape[1]) - 1
-    end = last_on_branch(ftemps, max(end, 0))
-    return BranchEnd(float(fdrive[end]), ftemps[:, end], True, None)
+    return found
+
+
+def edge(
+    cont: Continuation, lo: float, start: FloatArray, span: float
+) -> BranchEnd | tuple[float, FloatArray]:
+    """Where the branch is lost in the drive interval *span* from *lo*: swept again in
+    :data:`FINE_STEPS` steps, and again around the last point on the branch, until the
+    step is within :data:`DRIVE_TOL` of the drive there.
+
+    Before a fold the temperature steps grow like ``1/sqrt(lambda* - lambda)``; before a
+    pole (a loop gain that does not fall as the part heats, such as a positive TCR on a
+    current source, where the temperature grows like ``1/(lambda* - lambda)``) they grow
+    so fast that a coarse point still on the branch looks like a jump.  When the fine sweep
+    passes the whole interval on the branch, the end of the interval is returned to go on
+    from."""
+    for _ in range(MAX_LEVELS):
+        fine = span / FINE_STEPS
+        refined = cont.converged(lo, fine, FINE_STEPS, start)
+        if refined is None:
+            return BranchEnd(lo, start, True, None)
+        ftemps = cont.temperatures(refined)
+        fdrive = np.real(np.asarray(refined.scale_values)).astype(float)
+        j = first_off(cont, refined, ftemps)
+        if j is None and fdrive[-1] >= lo + span * (1 - 1e-9):
+            if fdrive[-1] >= 1.0 - 1e-9:
+                return BranchEnd(1.0, ftemps[:, -1], False, ftemps[:, -1])
+            return float(fdrive[-1]), ftemps[:, -1]
+        end = last_on_branch(ftemps, max((j if j is not None else ftemps.shape[1]) - 1, 0))
+        at = float(fdrive[end])
+        if not at > 0 or 2 * fine <= DRIVE_TOL * at:
+            return BranchEnd(at, ftemps[:, end], True, None)
+        back = max(end - 1, 0)
+        lo, start, span = float(fdrive[back]), ftemps[:, back], (end - back + 1) * fine
+    return BranchEnd(lo, start, True, None)
 
 
 def last_on_branch(temps: FloatArray, end: int) -> int:
@@ -382,31 +428,6 @@ def diagnose(cont: Continuation, index: DeckIndex, end: BranchEnd) -> Diagnosis 
         scaled = (source[0], source[1] * math.sqrt(end.drive), source[1])
     return Diagnosis(parts[top].path, float(own[top]), circuit_gain, end.drive, temperature,
                      scaled, model_range)  # fmt: skip
-
-
-def growth(results: RunResults) -> str | None:
-    """When and where a transient's temperatures left physical values, in words."""
-
-    if results.time is None:
-        return None
-    first: tuple[float, str] | None = None
-    for part in results.parts:
-        series = part.temperature_series
-        if series is None:
-            continue
-        bad = np.flatnonzero(~np.isfinite(series) | (series > IMPLAUSIBLE_TEMPERATURE))
-        if bad.size == 0:
-            continue
-        at = float(results.time[bad[0]])
-        text = f"{part.path} passed {IMPLAUSIBLE_TEMPERATURE:g} degC at t = {at:.4g} s"
-        tmax = part.plan.tmax if part.plan is not None else None
-        over = np.flatnonzero(series > tmax) if tmax is not None else np.array([], dtype=int)
-        if over.size:
-            passed = f"{float(results.time[over[0]]):.4g}"
-            text += f" (its tmax {tmax:g} degC at t = {passed} s)"
-        if first is None or at < first[0]:
-            first = (at, text)
-    return first[1] if first else None
 
 
 def explain(
