@@ -26,7 +26,8 @@ from heatweave.run import runner
 from heatweave.run.diagnosis import RunawayError
 from heatweave.run.prepare import RunOptions, prepare
 from heatweave.run.runaway import DRIVE_TOL, Continuation, power_jacobian
-from heatweave.run.verify import SCAN_STEP, fell_back, solver_tolerances
+from heatweave.run.states import SCAN_STEP
+from heatweave.run.verify import fell_back, solver_tolerances
 
 BACKENDS = ["shared", "batch"]
 

@@ -46,11 +46,13 @@ from heatweave.sweep import report as sweep_report
 from heatweave.sweep.executors import make_executor
 
 if TYPE_CHECKING:
+    from collections.abc import Sequence
+
     from heatweave.annotation import Annotation
     from heatweave.emit.emitter import Inputs
     from heatweave.reports.model import Probe
     from heatweave.run.prepare import RunOptions
-    from heatweave.sweep.corners import SweepPlan, SweepResult
+    from heatweave.sweep.corners import CornerOutcome, SweepPlan, SweepResult
 
 #: What every worker imports: loaded once by the fork server, then shared by the workers.
 WORKER_MODULES = (
@@ -309,9 +311,10 @@ def _report(
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.sweep.corners import corner_ambient, describe, exit_status
 
-    # Warnings every corner repeats (a dropped .control block) are printed once.
-    for text in dict.fromkeys(w for o in result.outcomes for w in o.warnings):
-        click.echo(style_severity(text, "warning"), err=True)
+    # Warnings every corner repeats (a dropped .control block) are printed once; one only
+    # some corners give (their own steady states) is printed for each, naming it.
+    for text, owners in corner_warnings(result.outcomes):
+        click.echo(style_severity(f"{owners}: {text}" if owners else text, "warning"), err=True)
     json_file, csv_file, plot_file = outputs["--json"], outputs["--csv"], outputs["--plot"]
     if json_file is not None:
         write_atomic(json_file, sweep_report.render_json(result))
@@ -371,3 +374,15 @@ def _write_junit(
     write_atomic(path, render([suite], name="heatweave sweep"))
 
 
+def corner_warnings(outcomes: Sequence[CornerOutcome]) -> list[tuple[str, str]]:
+    """Each distinct warning with the corners that give it (``""`` when every corner that
+    ran does), in order of first appearance."""
+    ran = {o.corner.index for o in outcomes if o.ok}
+    found: dict[str, dict[int, None]] = {}
+    for outcome in outcomes:
+        for text in outcome.warnings:
+            found.setdefault(text, {})[outcome.corner.index] = None
+    return [
+        (text, "" if ran <= owners.keys() else "corner " + ", ".join(map(str, owners)))
+        for text, owners in found.items()
+    ]

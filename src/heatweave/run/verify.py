@@ -20,8 +20,8 @@ A state that fails is never the answer.  :func:`recover` looks for the circuit's
 3. otherwise no steady state exists and the error says why, with the loop gain.
 
 The state found is solved again by ngspice from that point (``.nodeset``) and verified once
-more.  For ``ptc`` parts (whose resistance switches) every verified state is also scanned:
-when a second stable state exists, a warning names both and says which one is reported.
+more.  Every verified operating point is also scanned for other stable states
+(:mod:`heatweave.run.states`): a warning names them and says which one is reported and why.
 """
 
 from __future__ import annotations
@@ -37,6 +37,8 @@ from heatweave.quantities import parse_number
 from heatweave.run.diagnosis import HINT, RunawayError
 from heatweave.run.results import RunResults, extract
 from heatweave.run.runaway import TIGHT, Continuation, add_cards, diagnose, follow
+from heatweave.run.states import HINT as STATES_HINT
+from heatweave.run.states import scan, statement
 from heatweave.thermal.balance import (
     ABSTOL_T,
     RELTOL,
@@ -45,7 +47,7 @@ from heatweave.thermal.balance import (
     negative_heat,
     thermal_nodes,
 )
-from heatweave.thermal.circuit import PartPlan, ThermalCircuit
+from heatweave.thermal.circuit import ThermalCircuit
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
@@ -56,9 +58,6 @@ if TYPE_CHECKING:
 _FALLBACK = re.compile(r"transient op started", re.IGNORECASE)
 _OPTIONS = re.compile(r"^[ \t]*\.options?\b(.*)$", re.IGNORECASE | re.MULTILINE)
 _SETTING = re.compile(r"\b(reltol|vntol)\s*=\s*(\S+)", re.IGNORECASE)
-SCAN_STEP = 0.5  # K between held temperatures
-SCAN_TOP = 1000.0  # degC: heatweave.run.runner.IMPLAUSIBLE_TEMPERATURE
-SWITCHING = frozenset({"ptc"})
 
 
 class NoSteadyStateError(ThermalRunawayError):
@@ -172,13 +171,10 @@ def verify_run(
     verdict = verdict_of(results, circuit, at, prepared.text)
     fallback = fell_back(sim.log)
     if verdict.ok and not fallback:
-        notes, lowest = multiple(options, prepared, results)
-        if lowest is None:
-            return Verified(sim, results, verdict.warnings + notes)
-        why = "ngspice's operating point landed on another of its stable states"
-        why += f" ({notes[0].message})"
-        how = "the lowest stable one, where it settles when switched on from cold"
-        return resolve(inputs, options, prepared, lowest.temps, why, how)
+        said = statement(options, prepared, results)
+        if said.instead is None:
+            return Verified(sim, results, verdict.warnings + said.findings)
+        return resolve(inputs, options, prepared, said.instead, said.why, said.how, True)
     why = verdict.reason() if not verdict.ok else ""
     if results.analysis == "dc" and not verdict.ok:
         # The continuation and the scan solve the deck at its sources' DC values, not at
@@ -212,8 +208,7 @@ def recover(
         return resolve(inputs, options, prepared, end.full, why, how)
     if diagnosis is not None:
         part = next(p for p in circuit.parts if p.path == diagnosis.part)
-        states = scan(prepared, options, part)
-        stable = [s for s in states if s.stable]
+        stable = scan(prepared, options, part).stable
         if stable:
             how = (
                 f"where {part.path} settles when switched on from cold: the branch from cold "
@@ -234,9 +229,10 @@ def recover(
 
 def resolve(
     inputs: Inputs, options: RunOptions, prepared: Prepared, temps: FloatArray, why: str,
-    how: str,
+    how: str, chosen: bool = False,
 ) -> Verified:  # fmt: skip
-    """ngspice's solution started from thermal temperatures *temps*, verified."""
+    """ngspice's solution started from thermal temperatures *temps*, verified; *chosen*
+    when it was picked among several stable states (the reason says so already)."""
     circuit = prepared.emitted.circuit
     assert circuit is not None
     sets = " ".join(f"V({n})={t:.12g}" for n, t in zip(thermal_nodes(circuit), temps, strict=True))
@@ -258,90 +254,12 @@ def resolve(
         None,
         "a transient from cold (--tran) shows how the circuit gets there",
     )
-    return Verified(sim, results, (note, *verdict.warnings))
-
-
-@dataclass(frozen=True, slots=True)
-class State:
-    """A steady state found by :func:`scan`: the held part's temperature, every thermal
-    node's there, and whether it is stable (a surplus of heat below it, a deficit above)."""
-
-    temperature: float
-    temps: FloatArray
-    stable: bool
-
-
-def scan(prepared: Prepared, options: RunOptions, part: PartPlan) -> list[State]:
-    """The steady states with *part* held at each temperature from the ambient up to where
-    its model (or any other part's resistance) stops being physical, every other part free."""
-    circuit = prepared.emitted.circuit
-    assert circuit is not None and part.model is not None
-    low = float(circuit.ambient_at_start)
-    high = SCAN_TOP
-    found = part.model.valid_range
-    if found is not None:
-        low, high = max(low, found.low), min(high, found.high)
-    if high <= low + SCAN_STEP:
-        return []
-    text = add_cards(prepared.text, [f"Vhw_hold {part.node} 0 DC {low:.12g}", TIGHT])
-    steps = f"dc vhw_hold {low:.12g} {high:.12g} {SCAN_STEP:.12g}"
-    try:
-        sim = Continuation(prepared, options).simulate(text, (steps,))
-    except SimulatorError:
-        return []
-    plot = [p for p in sim.plots if p.kind == "dc"][-1]
-    held = np.real(np.asarray(plot.scale_values)).astype(float)
-    temps = np.array([held if n == part.node else np.real(np.asarray(plot[f"v({n})"]))
-                      for n in thermal_nodes(circuit)], dtype=float)  # fmt: skip
-    # Heat the holding source takes out of the node: the surplus there.
-    surplus = np.real(np.asarray(plot["i(vhw_hold)"])).astype(float)
-    valid = np.isfinite(surplus) & np.all(np.isfinite(temps), axis=0)
-    for i, other in enumerate(circuit.parts):
-        if other.model is not None:
-            valid &= np.asarray(other.model.resistance(temps[i]), dtype=float) > 0
-    end = int(np.argmin(valid)) if not valid.all() else len(valid)
-    states = []
-    for k in range(1, end):
-        a, b = surplus[k - 1], surplus[k]
-        if a == 0 or np.sign(a) == np.sign(b):
-            continue
-        share = a / (a - b)
-        at = temps[:, k - 1] + share * (temps[:, k] - temps[:, k - 1])
-        states.append(State(float(at[circuit.parts.index(part)]), at, bool(a > 0)))
-    return states
-
-
-def multiple(
-    options: RunOptions, prepared: Prepared, results: RunResults
-) -> tuple[tuple[Finding, ...], State | None]:
-    """A warning for each switching part (:data:`SWITCHING`) with more than one stable
-    steady state (which exist, which one is reported and why), and the lowest of them when
-    the reported state is another one (it is then replaced: a start from cold lands low)."""
-    circuit = prepared.emitted.circuit
-    assert circuit is not None
-    if results.analysis != "op":
-        return (), None
-    found = []
-    for part in circuit.parts:
-        if part.model_name not in SWITCHING:
-            continue
-        stable = [s for s in scan(prepared, options, part) if s.stable]
-        if len(stable) < 2:
-            continue
-        reported = results.part(part.path).temperature
-        listed = ", ".join(f"{s.temperature:.4g} degC" for s in stable)
-        nearest = min(stable, key=lambda s: abs(s.temperature - reported))
-        text = f"{part.path} has {len(stable)} stable steady states ({listed})"
-        if nearest is not stable[0]:
-            return (Finding("warning", text, part.location),), stable[0]
-        found.append(
-            Finding(
-                "warning",
-                f"{text}; the one reported, {reported:.4g} degC, is the lowest, where it "
-                "settles when switched on from cold",
-                part.location,
-                "a transient from cold (--tran) shows which one the circuit reaches; a "
-                "disturbance (a surge, a hot start) can move it to a higher one",
-            )
-        )
-    return tuple(found), None
+    if chosen:
+        return Verified(sim, results, (note, *verdict.warnings))
+    # A state recovered otherwise may have others beside it: said as for any other.
+    said = statement(options, prepared, results, f"the state {how}")
+    notes = said.findings
+    if said.instead is not None:
+        notes += (Finding("warning", f"{said.text}; the one reported is the state {how}", None,
+                          STATES_HINT),)  # fmt: skip
+    return Verified(sim, results, (note, *verdict.warnings, *notes))
