@@ -20,6 +20,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
@@ -28,7 +29,7 @@ from scipy.optimize import brentq, fsolve
 
 from heatweave.cli import main
 from heatweave.run import runner
-from heatweave.run.states import SCAN_STEP
+from heatweave.run.states import NGSPICE, SCAN_STEP, State, Statement, pair
 
 KELVIN = 273.15
 TA = 25.0
@@ -155,17 +156,35 @@ def test_one_part_lists_every_stable_state(tmp_path: Path, case: str, backend: s
     assert "is the lowest" in message
 
 
-def test_negative_tc1_across_a_supply_has_one_stable_state(tmp_path: Path) -> None:
-    # Straight across 7 V (below Vcrit = sqrt(R0 / (4 |tc1| Rth)) = 7.9 V) the balance has two
-    # roots, the upper unstable: one state, no warning.
-    deck, note = write(
-        tmp_path, "across\nV1 rail 0 DC 7\nRN rail 0 100\n.op\n.end\n", NEG_NOTE
-    )
+def fed(resistance: Curve, amps: float) -> Curve:
+    """Heat surplus of a part R(T) on a current source, Rth 100 K/W."""
+    return lambda t: amps**2 * resistance(t) - (t - TA) / 100.0
 
-    found = roots(loaded(neg_r, 7.0, 0.0), TA, 274.99)
-    assert [ok for _, ok in found] == [True, False]
+
+# (deck, annotation, surplus, part, top of the reference's range, stable flags of its roots)
+ONE_STATE = {
+    # Straight across 7 V (below Vcrit = sqrt(R0 / (4 |tc1| Rth)) = 7.9 V): two roots, the
+    # upper unstable.
+    "negative-tc1-across-a-supply": (
+        "across\nV1 rail 0 DC 7\nRN rail 0 100\n.op\n.end\n", NEG_NOTE,
+        loaded(neg_r, 7.0, 0.0), "RN", 274.99, [True, False],
+    ),
+    # Its dissipation falls as it heats: one root.
+    "ntc-on-a-current-source": (
+        "ntc fed\nI1 0 top DC 10m\nRT top 0 1000\n.op\n.end\n", NTC_NOTE,
+        fed(ntc_r, 0.01), "RT", 400.0, [True],
+    ),
+}  # fmt: skip
+
+
+@pytest.mark.parametrize("case", sorted(ONE_STATE))
+def test_one_stable_state_is_not_called_several(tmp_path: Path, case: str) -> None:
+    deck_text, note_text, surplus, name, top, flags = ONE_STATE[case]
+    found = roots(surplus, TA, top)  # brentq
+    assert [ok for _, ok in found] == flags
+    deck, note = write(tmp_path, deck_text, note_text)
     outcome = runner.run(deck, note, runner.RunOptions())
-    assert outcome.results.part("RN").temperature == pytest.approx(found[0][0], abs=0.02)
+    assert outcome.results.part(name).temperature == pytest.approx(found[0][0], abs=0.02)
     assert not [f for f in outcome.prepared.findings if "steady states" in f.message]
 
 
@@ -328,3 +347,35 @@ def test_every_command_says_so(tmp_path: Path, command: list[str]) -> None:
     if command[0] == "sweep":
         # Each corner's states differ with its ambient: the line names its corner.
         assert sorted(line.split(":")[0] for line in lines) == ["corner 0", "corner 1"]
+
+
+# --- which of two parts' states is reported ------------------------------------------------
+
+
+def fake_results(temps: dict[str, float]) -> object:
+    """The one thing pair() reads of a run: each part's temperature."""
+    return SimpleNamespace(part=lambda name: SimpleNamespace(temperature=temps[name]))
+
+
+def states_of(*pairs: tuple[float, float]) -> list[State]:
+    return [State(p, np.array(p), True) for p in pairs]
+
+
+def test_pair_replaces_a_state_above_the_lowest() -> None:
+    parts = [SimpleNamespace(path=n, location=None) for n in ("RP", "RQ")]
+    found = states_of((72.6, 72.6), (85.5, 124.3), (124.3, 85.5))
+    said = pair(fake_results({"RP": 124.3, "RQ": 85.5}), parts, found, NGSPICE)
+    assert said.instead is not None and list(said.instead) == [72.6, 72.6]
+    assert "lowest in both" in said.how and "3 stable steady states together" in said.why
+    kept = pair(fake_results({"RP": 72.6, "RQ": 72.6}), parts, found, NGSPICE)
+    assert kept.instead is None and "is the lowest in both" in kept.findings[0].message
+
+
+def test_pair_without_a_lowest_keeps_the_reported_state() -> None:
+    parts = [SimpleNamespace(path=n, location=None) for n in ("RP", "RQ")]
+    found = states_of((87.5, 87.5), (121.8, 26.4), (26.4, 121.8))
+    said = pair(fake_results({"RP": 121.8, "RQ": 26.4}), parts, found, NGSPICE)
+    assert said.instead is None
+    assert "none is the lowest in both" in said.findings[0].message
+    one = pair(fake_results({"RP": 87.5, "RQ": 87.5}), parts, found[:1], NGSPICE)
+    assert one == Statement()
