@@ -28,8 +28,10 @@ from click.testing import CliRunner
 from scipy.optimize import brentq, fsolve
 
 from heatweave.cli import main
+from heatweave.emit.emitter import load_inputs
 from heatweave.run import runner
-from heatweave.run.states import NGSPICE, SCAN_STEP, State, Statement, pair
+from heatweave.run.prepare import RunOptions, prepare
+from heatweave.run.states import NGSPICE, SCAN_STEP, State, Statement, pair, scan
 
 KELVIN = 273.15
 TA = 25.0
@@ -296,6 +298,18 @@ def test_two_parts_are_scanned_together(
     else:
         assert "none is the lowest in both" in message
         assert any(reported == pytest.approx(s, abs=0.05) for s in stable)
+
+
+def test_holding_one_part_alone_misses_a_state_of_the_pair(tmp_path: Path) -> None:
+    # Why two parts are held together: with RQ free, the sweep holding RP follows RQ's cold
+    # branch and never sees the state where RQ has tripped (and the other way round).
+    stable = sorted((a, b) for a, b, ok in series_states() if ok)
+    deck, note = write(tmp_path, SERIES_DECK, SERIES_NOTE)
+    inputs = load_inputs(deck, note)
+    prepared = prepare(inputs, RunOptions())
+    assert prepared.emitted.circuit is not None
+    for part in prepared.emitted.circuit.parts:
+        assert 0 < len(scan(prepared, RunOptions(), part).stable) < len(stable)
 
 
 # --- three or more -------------------------------------------------------------------------
