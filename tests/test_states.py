@@ -29,7 +29,7 @@ from scipy.optimize import brentq, fsolve
 
 from heatweave.cli import main
 from heatweave.emit.emitter import load_inputs
-from heatweave.run import runner
+from heatweave.run import runner, verify
 from heatweave.run.prepare import RunOptions, prepare
 from heatweave.run.states import NGSPICE, SCAN_STEP, State, Statement, pair, scan
 
@@ -393,3 +393,19 @@ def test_pair_without_a_lowest_keeps_the_reported_state() -> None:
     assert "none is the lowest in both" in said.findings[0].message
     one = pair(fake_results({"RP": 87.5, "RQ": 87.5}), parts, found[:1], NGSPICE)
     assert one == Statement()
+
+
+def test_a_chosen_state_is_solved_again_and_said(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # When the scan picks another stable state than ngspice's (here forced: the tripped one
+    # of the PTC deck, brentq's upper stable root), ngspice solves from it and the reader is
+    # told which states exist and why that one is reported.
+    upper = [t for t, ok in roots(loaded(ptc_r, 30.0, 100.0), TA, 400.0) if ok][-1]
+    said = Statement((), np.array([upper]), "RP has 2 stable steady states", "the upper one")
+    monkeypatch.setattr(verify, "statement", lambda *args: said)
+    deck, note = write(tmp_path, PTC_DECK, PTC_NOTE)
+    outcome = runner.run(deck, note, runner.RunOptions())
+    assert outcome.results.part("RP").temperature == pytest.approx(upper, abs=0.05)
+    message = warning(outcome.prepared.findings, "RP has 2 stable steady states")
+    assert message.endswith("heatweave reports instead the upper one, which balances")

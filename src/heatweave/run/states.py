@@ -318,6 +318,9 @@ class Statement:
 
 
 NGSPICE = "ngspice's operating point, verified"
+# Cooperative systems (heating one part never cools another) rise monotonically from cold
+# to their lowest steady state; two PTCs in series are not one.
+FROM_COLD = "(where a start from cold settles whenever heating either part only warms the other)"
 HINT = (
     "a transient from cold (--tran) shows which one the circuit reaches; a disturbance "
     "(a surge, a hot start) can move it to another"
@@ -389,10 +392,10 @@ def pair(
     nearest = min(stable, key=lambda s: float(np.max(np.abs(np.subtract(s.held, reported)))))
     if lowest and nearest is not lowest[0]:
         why = f"ngspice's operating point landed on another of their stable states ({text})"
-        how = "the lowest in both parts, where they settle when switched on from cold"
+        how = f"the lowest in both parts {FROM_COLD}"
         return Statement((), lowest[0].temps, why, how, text)
     if lowest:
-        tail = "is the lowest in both, where they settle when switched on from cold"
+        tail = f"is the lowest in both {FROM_COLD}"
     else:
         tail = (
             f"is {source}; none is the lowest in both parts, so which one a "

@@ -247,6 +247,11 @@ def resolve(
             f"({verdict.reason() or 'ngspice fell back to its transient op again'})",
             hint="run a transient from cold (--tran) to see where the temperatures go",
         )
+    if chosen:
+        # One of several stable states, picked for the reason *how*: *why* lists them.
+        note = Finding("warning", f"{why}; heatweave reports instead {how}, which balances",
+                       None, STATES_HINT)  # fmt: skip
+        return Verified(sim, results, (note, *verdict.warnings))
     note = Finding(
         "warning",
         f"the steady state ngspice returned was not the circuit's ({why}); heatweave "
@@ -254,8 +259,6 @@ def resolve(
         None,
         "a transient from cold (--tran) shows how the circuit gets there",
     )
-    if chosen:
-        return Verified(sim, results, (note, *verdict.warnings))
     # A state recovered otherwise may have others beside it: said as for any other.
     said = statement(options, prepared, results, f"the state {how}")
     notes = said.findings
