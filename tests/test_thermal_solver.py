@@ -74,23 +74,6 @@ def test_advance_matches_solve_ivp(use_modal: bool, h: float) -> None:
     np.testing.assert_allclose(got, want, rtol=1e-8, atol=1e-8)
 
 
-@pytest.mark.parametrize("h", [2e-3, 2e-4])
-def test_moment_term_makes_the_ramp_error_second_order(h: float) -> None:
-    # A power ramp inside the step: the exact answer by solve_ivp; with the first-order
-    # term the error must fall below h / tau_min of the mean-power advance's error.
-    system = assemble(MIXED)
-    prop = Propagator(system)
-    z0 = system.rest_state(AMBIENT)
-    base = system.inputs([0.3, 1.2, 0.05], AMBIENT)
-    slope = system.inputs([200.0, -100.0, 50.0], 0.0)
-    exact = ivp(system.a, system.b, z0, lambda s: base + slope * (s - h / 2), h)
-    moment = slope * -(h**3) / 12  # int_0^h (h - s)(s - h/2) ds = -h^3/12
-    plain_error = np.abs(prop.advance(z0, base, h) - exact).max()
-    corrected_error = np.abs(prop.advance(z0, base, h, moment) - exact).max()
-    assert plain_error > 1e-6
-    assert corrected_error < h / system.time_constants[0] * plain_error
-
-
 def test_steady_state_against_hand_conductance_matrix() -> None:
     # Two single-stage parts on a board node: nodal analysis written out by hand,
     # G T = P + G_amb T_amb, solved with numpy.linalg.solve.

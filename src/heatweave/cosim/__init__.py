@@ -46,13 +46,14 @@ from heatweave.run.results import (
     device_name,
     drive_findings,
     range_findings,
+    start_findings,
 )
 from heatweave.run.runner import RunOutcome
 from heatweave.spice.deck import Card, Deck, Node
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, ThermalCircuit
-from heatweave.thermal.solver import ThermalSystem, assemble
+from heatweave.thermal.solver import Propagator, ThermalSystem, assemble
 
 from .engine import Plan, Probe, StrongFeedback, Trace, cosimulate
 from .method import SEPARATION, Transient, choose_method, source_time_scale
@@ -220,6 +221,11 @@ def run(
             hint="use the full method to run the deck as written",
         )
     system = assemble(circuit)
+    if Propagator(system).modes is None:
+        raise UsageError(
+            "the co-simulation needs the thermal network's modes, which are ill-conditioned",
+            hint="use the full method for this run",
+        )
     # Always dropped (with the warning): the co-simulation issues its own commands.  The
     # deck as read is made safe and stripped as a tree, and written once.
     safe = made_safe(inputs.project.deck, inputs, options, allow=False)
@@ -242,6 +248,7 @@ def run(
     reason = f"co-simulation in {counted(trace.windows, 'window')}"
     # A part beyond its model's range, a drive without one period: as runner.run says.
     past = range_findings(results) + drive_findings(results, inputs.index)
+    past += start_findings(trace.first_time, analyses)
     return FastOutcome(results, "cosim", reason, findings + safe.findings + past, trace=trace)
 
 
@@ -280,8 +287,9 @@ def to_results(
 
     Every key means what it means for the full deck (:func:`heatweave.run.results.
     build_part`): ``power`` is the mean over the last drive *period* and ``peak_power`` the
-    instantaneous peak, both from ngspice's own time points (:class:`Trace`); the series
-    are per window (the power series: each window's mean).
+    instantaneous peak, both from ngspice's own time points (:class:`Trace`), as is
+    ``peak_temperature``; the series are per window (the power series: each window's
+    mean), and each signal's ``extremes`` are over ngspice's own time points.
     """
     n_parts = len(circuit.parts)
     parts = []
@@ -289,6 +297,7 @@ def to_results(
         samples = None
         if trace.tail_time.shape[0]:
             samples = (trace.tail_time, trace.tail_power[j], float(trace.peak_power[j]))
+        hottest = float(trace.peak_temperature[j]) if trace.peak_temperature.size else None
         parts.append(
             build_part(
                 part,
@@ -298,6 +307,7 @@ def to_results(
                 resistance=trace.resistance[j],
                 period=period,
                 samples=samples,
+                temperature_peak=hottest,
             )
         )
     nodes = {
@@ -320,4 +330,5 @@ def to_results(
         currents={name: float(values[-1]) for name, values in trace.currents.items()},
         current_series=dict(trace.currents),
         period=period,
+        extremes=dict(trace.extremes),
     )

@@ -3,10 +3,13 @@
 One transient runs in libngspice, paused at every window boundary (``stop when time >``
 the boundary; ngspice pauses at its first accepted time point past it, which becomes the
 boundary).  While it is paused, the loop reads the new samples of the resistor terminals,
-takes each resistor's mean dissipation over the window, advances the thermal network
-exactly, sets every resistance to its value at the predicted mid-window temperature of the
-next window (``alter``), and lets ngspice ``resume``.  A resumed transient continues from
-its own state, so the electrical solution is never restarted or approximated.
+takes each resistor's dissipation at every one of ngspice's time points in the window,
+advances the thermal network exactly for it (:class:`heatweave.thermal.sampled.
+SampledResponse`, which also gives every temperature at those points, so the peaks are
+the instantaneous ones), sets every resistance to its value at the predicted mid-window
+temperature of the next window (``alter``), and lets ngspice ``resume``.  A resumed
+transient continues from its own state, so the electrical solution is never restarted or
+approximated.
 """
 
 from __future__ import annotations
@@ -21,6 +24,7 @@ import numpy.typing as npt
 
 from heatweave.simulators import Session, SharedSimulator
 from heatweave.thermal.circuit import PartPlan
+from heatweave.thermal.sampled import SampledResponse
 from heatweave.thermal.solver import Propagator, ThermalSystem
 
 from .bank import ModelBank
@@ -65,6 +69,11 @@ class Trace:
     ngspice's own time points over the last drive period (:attr:`Plan.period`; the last
     point without one), ``peak_power`` each part's instantaneous peak over the run: what
     :func:`heatweave.run.results.build_part` takes ``power`` and ``peak_power`` from.
+    ``peak_temperature`` is each output's highest temperature at any of ngspice's time
+    points (not only at window ends), ``first_time`` ngspice's first time point (above 0
+    when a ``uic`` transient leaves t = 0 out), ``extremes`` every node voltage's and
+    branch current's ``(min, max)`` over all of ngspice's time points (``v(out)``,
+    ``i(vamm)``).
     """
 
     time: FloatArray
@@ -79,6 +88,9 @@ class Trace:
     tail_time: FloatArray = field(default_factory=lambda: np.zeros(0), repr=False)
     tail_power: FloatArray = field(default_factory=lambda: np.zeros((0, 0)), repr=False)
     peak_power: FloatArray = field(default_factory=lambda: np.zeros(0), repr=False)
+    peak_temperature: FloatArray = field(default_factory=lambda: np.zeros(0), repr=False)
+    first_time: float = 0.0
+    extremes: dict[str, tuple[float, float]] = field(default_factory=dict, repr=False)
 
     @property
     def windows(self) -> int:
@@ -138,7 +150,7 @@ class _Loop:
         self.system = system
         self.ambient = plan.ambient
         self.tran = tran
-        self.propagator = Propagator(system)
+        self.response = SampledResponse(Propagator(system))  # ValueError: no modes
         tau_min = float(system.time_constants[0])
         self.rule = WindowRule(plan.tolerance, tau_min, min_window=tran.tstep)
         self.nodes = sorted({n for p in probes for n in (p.node_a, p.node_b) if n is not None})
@@ -151,13 +163,13 @@ class _Loop:
         self.tail_time = np.zeros(0)
         self.tail_power = np.zeros((self.bank.size, 0))
         self.peak = np.full(self.bank.size, -np.inf)
+        self.hottest = np.full(len(system.outputs), -np.inf)
         self.clock = _Clock()
 
-    def keep(self, t: FloatArray, squares: FloatArray) -> None:
-        """Record a window's instantaneous dissipation (*squares*: the squared drops at its
-        time points *t*): its peak, and the samples of the last drive period (one sample
-        before the period's start too, to interpolate it)."""
-        power = squares / self.held[:, None]
+    def keep(self, t: FloatArray, power: FloatArray) -> None:
+        """Record a window's instantaneous dissipation (*power* at its time points *t*):
+        its peak, and the samples of the last drive period (one sample before the period's
+        start too, to interpolate it)."""
         if power.size:
             self.peak = np.maximum(self.peak, power.max(axis=1))
         if self.tail_time.shape[0]:  # a window starts at the last one's final sample
@@ -187,6 +199,8 @@ class _Loop:
         temps = system.temperatures(z, system.inputs(power, self.ambient))
         self.hold(bank.resistance(temps[:n_parts]))
         times, rows, powers, ohms = [0.0], [temps], [power], [bank.resistance(temps[:n_parts])]
+        self.hottest = temps.copy()
+        first = None
         ends = [0]
         h, start, now = self.rule.first(), 0, 0.0
         gain = system.dc_gain[:n_parts, :n_parts]
@@ -198,16 +212,18 @@ class _Loop:
             t = self.tail("time", start)
             if t.shape[0] < 2:
                 break
+            first = float(t[0]) if first is None else first
             drops = self._drops(start, t.shape[0])
             self.clock.lap("read")
-            power, moment = window_power(t, drops, self.held)
-            self.keep(t, drops)  # window_power left the squared drops in *drops*
+            power = window_power(t, drops, self.held)
+            samples = drops / self.held[:, None]  # window_power left the squared drops
+            self.keep(t, samples)
             step = float(t[-1] - t[0])
-            moments = np.zeros(n_parts + 1)
-            moments[:n_parts] = moment
             u = system.inputs(power, self.ambient)
-            z = self.propagator.advance(z, u, step, moments)
-            temps = system.temperatures(z, u)
+            inputs = np.vstack((samples, np.full((1, t.shape[0]), self.ambient)))
+            z, at_samples = self.response.run(z, t, inputs)
+            self.hottest = np.maximum(self.hottest, at_samples.max(axis=1))
+            temps = at_samples[:, -1]
             now, start = float(t[-1]), start + t.shape[0] - 1
             times.append(now)
             ends.append(start)
@@ -225,7 +241,7 @@ class _Loop:
             self.clock.lap("thermal")
             self.hold(bank.resistance(mid), self.rule.alter_threshold(gain, power))
         powers[0] = powers[1] if len(powers) > 1 else powers[0]
-        voltages, currents = self._signals(np.array(ends))
+        voltages, currents, extremes = self._signals(np.array(ends))
         self.clock.lap("read")
         stats = self._stats()
         return Trace(
@@ -241,6 +257,9 @@ class _Loop:
             self.tail_time,
             self.tail_power,
             self.peak,
+            self.hottest,
+            0.0 if first is None else first,
+            extremes,
         )
 
     def _drops(self, start: int, length: int) -> FloatArray:
@@ -252,15 +271,20 @@ class _Loop:
 
     def _signals(
         self, ends: npt.NDArray[np.intp]
-    ) -> tuple[dict[str, FloatArray], dict[str, FloatArray]]:
-        """Every node voltage and branch current of the transient at the window ends."""
+    ) -> tuple[dict[str, FloatArray], dict[str, FloatArray], dict[str, tuple[float, float]]]:
+        """Every node voltage and branch current of the transient at the window ends, and
+        each one's ``(min, max)`` over every time point (keys ``v(NAME)``, ``i(NAME)``)."""
         found: tuple[dict[str, FloatArray], dict[str, FloatArray]] = ({}, {})
-        for table, out in zip(
-            (self.session.node_voltages(), self.session.branch_currents()), found, strict=True
-        ):
+        extremes: dict[str, tuple[float, float]] = {}
+        for kind, table, out in zip(
+            "vi", (self.session.node_voltages(), self.session.branch_currents()), found,
+            strict=True,
+        ):  # fmt: skip
             for name, values in table.items():
                 out[name] = values[np.minimum(ends, values.shape[0] - 1)].copy()
-        return found
+                if values.shape[0]:
+                    extremes[f"{kind}({name})"] = (float(values.min()), float(values.max()))
+        return found[0], found[1], extremes
 
     def _stats(self) -> str:
         return self.session.stats()

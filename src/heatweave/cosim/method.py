@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 from heatweave.quantities import parse_number
 from heatweave.thermal.circuit import ThermalCircuit
-from heatweave.thermal.solver import ThermalAssemblyError, assemble
+from heatweave.thermal.solver import Propagator, ThermalAssemblyError, assemble
 
 #: The fastest thermal time constant must exceed the slowest electrical time scale this
 #: many times: the temperature ripple at the electrical time scale is then below about
@@ -147,6 +147,11 @@ def choose_method(
         return "full", f"the thermal network could not be assembled: {err.message}"
     if system.has_feedthrough:
         return "full", "a part or node without heat capacity follows its power instantly"
+    if Propagator(system).modes is None:
+        return "full", (
+            "the thermal network's modes are too ill-conditioned for the co-simulation's "
+            "exact solution between ngspice's time points"
+        )
     tau_min = float(system.time_constants[0])
     scale = electrical if electrical is not None else 10.0 * tran.tstep
     what = "the slowest source period" if electrical is not None else "ten transient steps"

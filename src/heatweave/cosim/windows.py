@@ -1,9 +1,9 @@
 """The window rule of the co-simulation, and the mean power of a window.
 
 Over a window of length ``h`` every resistance is held at one value; the thermal network
-is advanced exactly with the window's mean power plus the first-order term of the power's
-variation inside the window (:class:`heatweave.thermal.solver.Propagator`).  Two errors
-remain, and the rule bounds both:
+is advanced exactly for the power at ngspice's own time points inside the window, straight
+lines between them (:class:`heatweave.thermal.sampled.SampledResponse`).  The error left is
+that of holding R, and the rule bounds it:
 
 1. Holding R.  R is held at its value at the predicted mid-window temperature
    ``T + (h/2) dT/dt``.  Over the window R moves by ``|dR_j/R_j| = r_j h`` with
@@ -17,8 +17,8 @@ remain, and the rule bounds both:
    amplifies an error by up to ``1 / (1 - g)`` with the loop gain
    ``g = max_i sum_j Z_ij(0) P_j |d ln R_j/dT|`` (g >= 1 is thermal runaway).  The rule
    keeps ``max_i E_i / (1 - g) <= tolerance``.
-2. Power varying inside the window.  The first-order term is included; the remainder is
-   below ``h / (2 tau_min)`` of it, so windows stay below ``MAX_FRACTION * tau_min``.
+2. Windows stay below ``MAX_FRACTION * tau_min``, so that the prediction of the next
+   window's mid-point temperature (first order in ``h``) stays close.
 
 Windows also grow at most :data:`GROWTH` times per window (the prediction uses the last
 window's power) and the first window is ``FIRST_FRACTION * tau_min`` long (its power is
@@ -96,25 +96,19 @@ def loop_gain(gain: FloatArray, power: FloatArray, log_slope: FloatArray) -> flo
     return float(np.max(gain @ (power * np.abs(log_slope))))
 
 
-def window_power(
-    time: FloatArray, drops: FloatArray, resistance: FloatArray
-) -> tuple[FloatArray, FloatArray]:
-    """Mean dissipation (W) of each resistor over a window and its first moment.
+def window_power(time: FloatArray, drops: FloatArray, resistance: FloatArray) -> FloatArray:
+    """Mean dissipation (W) of each resistor over a window (trapezoidal rule).
 
     *time* are the window's time points (first = window start), *drops* the voltage across
-    each resistor there (one row per resistor; overwritten), *resistance* the held values.  Returns
-    ``(mean, m1)`` with ``m1 = int (t_end - t) (P(t) - mean) dt`` (trapezoidal rule).
+    each resistor there (one row per resistor; squared in place), *resistance* the held
+    values.
     """
     h = float(time[-1] - time[0])
     squares = np.square(drops, out=drops)  # the caller's drops are not needed afterwards
     if h <= 0 or time.shape[0] < 2:
-        return squares[:, -1] / resistance, np.zeros(squares.shape[0])
+        return np.asarray(squares[:, -1] / resistance)
     dt = np.diff(time)
-    weights = np.zeros((time.shape[0], 2))
-    weights[:-1, 0] += dt / 2
-    weights[1:, 0] += dt / 2
-    weights[:, 1] = weights[:, 0] * (time[-1] - time)
-    integrals = squares @ weights / resistance[:, None]
-    mean = integrals[:, 0] / h
-    moment = integrals[:, 1] - mean * h * h / 2
-    return np.asarray(mean), np.asarray(moment)
+    weights = np.zeros(time.shape[0])
+    weights[:-1] += dt / 2
+    weights[1:] += dt / 2
+    return np.asarray(squares @ weights / resistance / h)

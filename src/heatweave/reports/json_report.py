@@ -47,8 +47,8 @@ differences in K, resistances in ohm, dissipation in W, voltages in V.
     inductors) by device name (``vamm``, ``v.x1.vs``), final [A].
 ``probes``
     The signals asked for with ``--probe``, by label (``V(out)``, ``I(vamm)``): ``unit``
-    (``V`` or ``A``), ``final``, and over a transient ``min`` and ``max`` (``null`` for an
-    operating point).
+    (``V`` or ``A``), ``final``, and over a transient ``min`` and ``max`` over every time
+    point ngspice computed, the co-simulation's included (``null`` for an operating point).
 ``warnings``
     The warnings of the run, as printed on stderr.
 ``cautions``
@@ -104,13 +104,13 @@ def part_dict(row: PartRow) -> dict[str, Any]:
 
 
 def _probe(probe: Probe, report: RunReport) -> dict[str, Any]:
-    values = probe.series(report.results)
+    low, high = probe.extremes(report.results)
     spread = report.transient
     return {
         "unit": probe.unit,
         "final": _number(probe.final(report.results)),
-        "min": _number(float(values.min())) if spread else None,
-        "max": _number(float(values.max())) if spread else None,
+        "min": _number(low) if spread else None,
+        "max": _number(high) if spread else None,
     }
 
 

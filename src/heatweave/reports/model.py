@@ -86,6 +86,15 @@ class Probe:
         values = table.get(self.name)
         return values if values is not None else np.array([self.final(results)])
 
+    def extremes(self, results: RunResults) -> tuple[float, float]:
+        """``(min, max)`` over every time point the simulator computed (the series may be
+        coarser: the co-simulation keeps window ends only)."""
+        found = results.extremes.get(f"{self.kind}({self.name})")
+        if found is not None:
+            return found
+        values = self.series(results)
+        return float(values.min()), float(values.max())
+
     def known(self, results: RunResults) -> bool:
         return self.name in (results.voltages if self.kind == "v" else results.currents)
 

@@ -22,6 +22,7 @@ using the same temperature models the emitted deck evaluates (so R(T) here is R(
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -91,6 +92,9 @@ class RunResults:
     current_series: dict[str, FloatArray] = field(default_factory=dict, repr=False)
     #: The period ``power`` is the mean over (s); ``None``: the final value.
     period: float | None = None
+    #: ``(min, max)`` of signals (``v(out)``, ``i(vamm)``) over every time point of the
+    #: simulator where the series above are coarser (the co-simulation's window ends).
+    extremes: dict[str, tuple[float, float]] = field(default_factory=dict, repr=False)
 
     def part(self, path: str) -> PartResult:
         """A part's results by instance path (case-insensitive)."""
@@ -129,6 +133,7 @@ def build_part(
     period: float | None = None,
     samples: tuple[FloatArray, FloatArray, float] | None = None,
     temperature_value: float | None = None,
+    temperature_peak: float | None = None,
 ) -> PartResult:
     """One part's result from its waveforms: the one definition of every key.
 
@@ -140,9 +145,10 @@ def build_part(
 
     *samples* are ``(time, power, peak)`` at the simulator's own time points when *power*
     is a coarser series (the co-simulation's window means): the mean and the peak come
-    from them.  *temperature_value* replaces the final temperature where the method
-    reports another one (``settle``: the period mean, with ``valley_temperature`` the
-    period's lowest)."""
+    from them; *temperature_peak* is then the highest temperature at those time points
+    (the co-simulation's *temperature* holds its window ends only).  *temperature_value*
+    replaces the final temperature where the method reports another one (``settle``: the
+    period mean, with ``valley_temperature`` the period's lowest)."""
     transient = time is not None and len(time) > 1
     if samples is not None:
         mean, peak = period_mean(samples[0], samples[1], period), samples[2]
@@ -160,7 +166,7 @@ def build_part(
         power=mean,
         resistance=None if model is None else float(model.resistance(reported)),
         nominal_resistance=None if model is None else model.nominal_resistance,
-        peak_temperature=float(np.max(temperature)) if transient else None,
+        peak_temperature=_peak(temperature, temperature_peak) if transient else None,
         peak_power=peak,
         temperature_series=temperature if transient else None,
         power_series=power if transient else None,
@@ -192,6 +198,12 @@ def rated_ambient(results: RunResults, label: str, ambient: FloatArray) -> float
     return float(np.max(local)) if results.analysis == SETTLED else float(local[-1])
 
 
+def _peak(series: FloatArray, peak: float | None) -> float:
+    """The highest of *series* and of *peak*, the peak between its points where known."""
+    top = float(np.max(series))
+    return top if peak is None else max(top, float(peak))
+
+
 def drive_findings(results: RunResults, index: DeckIndex) -> tuple[Finding, ...]:
     """A note when ``power`` of a transient could not be the mean over one common period
     of the drive (:func:`heatweave.run.drive.period_note`)."""
@@ -200,6 +212,35 @@ def drive_findings(results: RunResults, index: DeckIndex) -> tuple[Finding, ...]
     span = float(results.time[-1] - results.time[0])
     note = period_note(deck_drive(index), span)
     return () if note is None else (note,)
+
+
+def start_findings(first: float | None, analyses: Sequence[str]) -> tuple[Finding, ...]:
+    """A warning when a transient's results start after t = 0 (*first*, s): its peaks miss
+    the initial instant.  ngspice 39 leaves t = 0 out of a ``.tran ... uic`` run (it
+    computes no operating point there), and the instant it leaves out is where an inrush
+    into an uncharged capacitor is largest; it cannot be computed from the first point."""
+    if first is None or not first > 0.0:
+        return ()
+    uic = any("uic" in text.lower().split() for text in analyses)
+    why, hint = "the transient saves its results from there", "run the transient from 0"
+    if uic:
+        why = "ngspice 39 leaves t = 0 out of a `.tran ... uic` run"
+        hint = (
+            "for the inrush peak, work out the initial instant by hand (with uic every "
+            "capacitor starts at its IC, 0 V unless given), or drop uic where the operating "
+            "point is the start wanted"
+        )
+    return (
+        Finding(
+            "warning",
+            f"the transient's first time point is {first:.4g} s, not 0 ({why}): peak_power "
+            f"is the largest dissipation from {first:.4g} s on and misses the initial "
+            "instant, where an inrush into an uncharged capacitor is largest (V^2/R through "
+            "the resistor); peak_temperature misses only the starting temperatures",
+            None,
+            hint,
+        ),
+    )
 
 
 def power_meaning(results: RunResults) -> str:

@@ -20,7 +20,14 @@ from heatweave.errors import (
     TimestepTooSmallError,
 )
 from heatweave.run.locate import locate
-from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate, with_deadline
+from heatweave.run.prepare import (
+    Prepared,
+    RunOptions,
+    deck_analyses_of,
+    prepare,
+    simulate,
+    with_deadline,
+)
 from heatweave.run.results import (
     RunResults,
     drive_findings,
@@ -28,6 +35,7 @@ from heatweave.run.results import (
     implausible,
     outside_range,
     range_findings,
+    start_findings,
 )
 from heatweave.run.runaway import explain
 from heatweave.run.verify import verify_run
@@ -81,6 +89,9 @@ def run(
             locate(err, inputs.project)  # the user's FILE:LINE, not the emitted deck's
         raise
     beyond = range_findings(results) + drive_findings(results, inputs.index)
+    if results.time is not None and len(results.time):
+        analyses = prepared.analyses or tuple(deck_analyses_of(prepared.deck))
+        beyond += start_findings(float(results.time[0]), analyses)
     if beyond:
         prepared = replace(prepared, findings=prepared.findings + beyond)
     return RunOutcome(prepared, sim, results)

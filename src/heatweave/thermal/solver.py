@@ -271,11 +271,8 @@ class Propagator:
     """Exact advance of a :class:`ThermalSystem` over steps with constant input.
 
     ``advance(z, u, h)`` returns ``z(t + h)`` for ``dz/dt = A z + B u`` with ``u`` held.
-    The optional ``moment`` adds the first-order effect of the input varying inside the
-    step around its mean: for ``u(s) = u + du(s)`` with ``du`` of zero mean,
-    ``int_0^h e^{A(h-s)} B du(s) ds = A B m1 + ...`` with ``m1 = int_0^h (h - s) du(s) ds``
-    (``moment``); the rest is second order, about ``h / (2 tau_min)`` of the first-order
-    term.  ``use_modal=False`` always takes the matrix exponential.
+    ``use_modal=False`` always takes the matrix exponential.  An input varying inside a
+    step: :class:`heatweave.thermal.sampled.SampledResponse` on :attr:`modes`.
     """
 
     system: ThermalSystem
@@ -306,23 +303,25 @@ class Propagator:
         """True when steps go through the eigen-decomposition."""
         return self._modal is not None
 
-    def advance(
-        self, z: FloatArray, u: FloatArray, h: float, moment: FloatArray | None = None
-    ) -> FloatArray:
+    @property
+    def modes(self) -> tuple[FloatArray, FloatArray, FloatArray] | None:
+        """``(rates, V, V^-1)`` with ``A = V diag(rates) V^-1``, or ``None`` when the
+        decomposition is not used (complex or ill-conditioned)."""
+        return self._modal
+
+    def advance(self, z: FloatArray, u: FloatArray, h: float) -> FloatArray:
         """The state after *h* seconds with input *u* held (see the class docstring)."""
         system = self.system
         if system.size == 0:
             return z
         forcing = system.b @ u
-        # First-order effect of the input's variation inside the step (class docstring).
-        forcing_m = system.a @ (system.b @ moment) if moment is not None else 0.0
         if self._modal is not None:
             rates, vectors, inverse = self._modal
             w = inverse @ z
             w = np.exp(rates * h) * w + h * phi1(rates * h) * (inverse @ forcing)
-            return np.asarray(vectors @ w + forcing_m)
+            return np.asarray(vectors @ w)
         step, gain = self._exact(h)
-        return np.asarray(step @ z + gain @ forcing + forcing_m)
+        return np.asarray(step @ z + gain @ forcing)
 
     def _exact(self, h: float) -> tuple[FloatArray, FloatArray]:
         """``(e^{Ah}, int_0^h e^{As} ds)`` through the augmented matrix exponential."""

@@ -1,0 +1,120 @@
+"""The thermal network's response to sampled power, against independent references.
+
+References:
+
+* a first-order low-pass driven by a sine: the periodic steady state of
+  ``C dT/dt = P0 + Pa sin(w t) - (T - Ta) / R`` swings by ``Pa R / sqrt(1 + (w tau)^2)``
+  about ``Ta + P0 R`` with ``tau = R C`` (the amplitude response of a single-pole RC
+  low-pass, e.g. Incropera, Fundamentals of Heat and Mass Transfer, ch. 5.7, periodic
+  heating; common practice in circuit theory);
+* the ramp response of the same network, ``T - Ta = k R (t - tau (1 - e^{-t/tau}))`` for
+  ``P = k t`` (Laplace transform of ``k / s^2`` through ``R / (1 + s tau)``; common practice);
+* scipy.integrate.solve_ivp (Radau, tight tolerances) on the assembled ODE of a mixed
+  network (Cauer, Foster, shared nodes, a coupling) under the piecewise-linear input.
+"""
+
+from __future__ import annotations
+
+import math
+from fractions import Fraction
+
+import numpy as np
+import pytest
+import scipy.integrate
+
+from heatweave.networks import Single
+from heatweave.thermal.sampled import SampledResponse, step_weights
+from heatweave.thermal.solver import Propagator, assemble
+from test_thermal_solver import AMBIENT, MIXED, circuit, part
+
+RTH, CTH = 50.0, 6e-4
+TAU = RTH * CTH
+
+
+def single() -> SampledResponse:
+    return SampledResponse(Propagator(assemble(circuit([part("R1", Single(RTH, CTH))], []))))
+
+
+def inputs(power: np.ndarray) -> np.ndarray:
+    return np.vstack([power, np.full(power.shape, AMBIENT)])
+
+
+def test_sine_ripple_is_the_first_order_low_pass_amplitude() -> None:
+    response = single()
+    w = 2 * np.pi * 2e3
+    p0 = pa = 0.5
+    t = np.linspace(0.0, 20 * TAU, 400_001)  # 1.5 us steps: 333 per period
+    z = np.array([AMBIENT])
+    _, temps = response.run(z, t, inputs(p0 + pa * np.sin(w * t)))
+    settled = t > 19 * TAU  # the start's exp(-19) is 1.4e-7 K
+    amplitude = pa * RTH / np.sqrt(1 + (w * TAU) ** 2)
+    # Straight lines between samples lose (w dt)^2 / 12 of a sine's amplitude, and a
+    # sample misses the crest by up to (w dt / 2)^2 / 2 of it: second order in w dt.
+    dt = float(t[1] - t[0])
+    tol = amplitude * (w * dt) ** 2 / 4 + 2e-7
+    assert tol < 1e-4 * amplitude
+    assert temps[0, settled].max() == pytest.approx(AMBIENT + p0 * RTH + amplitude, abs=tol)
+    assert temps[0, settled].min() == pytest.approx(AMBIENT + p0 * RTH - amplitude, abs=tol)
+
+
+@pytest.mark.parametrize("steps", [3, 40, 1000])
+def test_ramp_is_exact_for_any_sampling(steps: int) -> None:
+    # A ramp is a straight line between any two samples: the response is exact, however
+    # few and uneven the samples, up to round-off.
+    response = single()
+    k = 3.0
+    t = np.sort(
+        np.concatenate(([0.0, 2 * TAU], np.random.default_rng(1).uniform(0, 2 * TAU, steps)))
+    )
+    _, temps = response.run(np.array([AMBIENT]), t, inputs(k * t))
+    want = AMBIENT + k * RTH * (t - TAU * (1 - np.exp(-t / TAU)))
+    np.testing.assert_allclose(temps[0], want, rtol=1e-12, atol=1e-12)
+
+
+def test_long_stretches_do_not_overflow() -> None:
+    # 2000 time constants in one call, and one step of 1000: split into stretches.
+    response = single()
+    t = np.concatenate((np.linspace(0.0, 1000 * TAU, 5001), [2000 * TAU]))
+    z, temps = response.run(np.array([AMBIENT]), t, inputs(np.full(t.shape, 0.2)))
+    assert np.all(np.isfinite(temps))
+    assert temps[0, -1] == pytest.approx(AMBIENT + 0.2 * RTH, rel=1e-12)
+    assert z[0] == pytest.approx(temps[0, -1], rel=1e-12)
+
+
+def test_mixed_network_matches_solve_ivp() -> None:
+    system = assemble(MIXED)
+    response = SampledResponse(Propagator(system))
+    t = np.sort(np.random.default_rng(2).uniform(0.0, 0.5, 60))
+    t[0] = 0.0
+    rng = np.random.default_rng(3)
+    power = rng.uniform(0.0, 2.0, (3, t.shape[0]))
+    u = np.vstack([power, np.full(t.shape, AMBIENT)])
+    z0 = system.rest_state(AMBIENT)
+    z_end, temps = response.run(z0, t, u)
+    z = z0
+    for k in range(1, t.shape[0]):  # one smooth stretch of input at a time
+        slope = (u[:, k] - u[:, k - 1]) / (t[k] - t[k - 1])
+        sol = scipy.integrate.solve_ivp(
+            lambda s, y, k=k, slope=slope: system.a @ y + system.b @ (u[:, k - 1] + slope * s),
+            (0.0, t[k] - t[k - 1]), z, method="Radau", rtol=1e-11, atol=1e-12,
+        )  # fmt: skip
+        z = sol.y[:, -1]
+        np.testing.assert_allclose(temps[:, k], system.temperatures(z, u[:, k]), atol=1e-7)
+    np.testing.assert_allclose(z_end, z, atol=1e-7)
+
+
+@pytest.mark.parametrize("scale", [1e-9, 1e-4, 1e-2, 0.049, 0.05, 0.5, 3.0, 700.0])
+def test_step_weights_meet_their_formulas(scale: float) -> None:
+    # phi1 = (e^x - 1)/x, phi2 = (e^x - 1 - x)/x^2, evaluated in extended precision with
+    # Python's fractions of the exponential series as the reference near 0.
+    x = -scale * np.array([0.3, 0.99, 1.0])
+    first, second = step_weights(x)
+    for k, value in enumerate(x):
+        v = Fraction(float(value))
+        if scale < 1:  # the exponential series, exactly in fractions
+            em1 = sum((v**j / math.factorial(j) for j in range(1, 80)), Fraction(0))
+        else:  # no cancellation left: extended precision suffices
+            em1 = Fraction(float(np.expm1(np.longdouble(value))))
+        two = (em1 - v) / (v * v)
+        assert second[k] == pytest.approx(float(two), rel=1e-13)
+        assert first[k] == pytest.approx(float(em1 / v - two), rel=1e-13)
