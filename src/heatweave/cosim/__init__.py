@@ -29,7 +29,7 @@ from heatweave.emit.temperature import temperature_findings, with_temp
 from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.quantities import counted
 from heatweave.run import runner
-from heatweave.run.drive import deck_drive
+from heatweave.run.drive import deck_drive, start_findings
 from heatweave.run.prepare import (
     ANALYSIS_CARDS,
     RunOptions,
@@ -46,7 +46,6 @@ from heatweave.run.results import (
     device_name,
     drive_findings,
     range_findings,
-    start_findings,
 )
 from heatweave.run.runner import RunOutcome
 from heatweave.spice.deck import Card, Deck, Node

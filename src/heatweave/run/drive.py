@@ -8,10 +8,13 @@ common period, looked for up to :data:`~heatweave.run.waves.MAX_RATIO` times the
 shortest.  Unlike ``settle``, a run never refuses a drive: without a common period the
 slowest is used, and :func:`period_note` says so, as it does for a source heatweave cannot
 read (a ``B`` source using ``time``) or a transient shorter than the period.
+:func:`start_findings` says when the saved transient starts after t = 0, so its peaks miss
+the start (``uic``, ``tstart``).
 """
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 
@@ -86,3 +89,37 @@ def period_note(found: Drive, span: float | None) -> Finding | None:
             "run the transient for at least one period",
         )
     return None
+
+
+def start_findings(first: float | None, analyses: Sequence[str]) -> tuple[Finding, ...]:
+    """A warning when a transient's results start after t = 0 (*first*, s): its peaks miss
+    what came before.  ngspice 39 leaves t = 0 out of a ``.tran ... uic`` run (it computes
+    no operating point there), and the instant it leaves out is where an inrush into an
+    uncharged capacitor is largest; it cannot be computed from the first point."""
+    if first is None or not first > 0.0:
+        return ()
+    at = f"the transient's first time point is {first:.4g} s, not 0"
+    if any("uic" in text.lower().split() for text in analyses):
+        return (
+            Finding(
+                "warning",
+                f"{at} (ngspice 39 leaves t = 0 out of a `.tran ... uic` run): peak_power is "
+                f"the largest dissipation from {first:.4g} s on and misses the initial "
+                "instant, where an inrush into an uncharged capacitor is largest (V^2/R "
+                "through the resistor); peak_temperature misses only the starting "
+                "temperatures",
+                None,
+                "for the inrush peak, work out the initial instant by hand (with uic every "
+                "capacitor starts at its IC, 0 V unless given), or drop uic where the "
+                "operating point is the start wanted",
+            ),
+        )
+    return (
+        Finding(
+            "warning",
+            f"{at} (the transient saves its results from there): peak_power and "
+            f"peak_temperature are the peaks from {first:.4g} s on, not over the whole run",
+            None,
+            "give the transient no tstart to see the whole run",
+        ),
+    )

@@ -19,6 +19,7 @@ from heatweave.errors import (
     ThermalRunawayError,
     TimestepTooSmallError,
 )
+from heatweave.run.drive import start_findings
 from heatweave.run.locate import locate
 from heatweave.run.prepare import (
     Prepared,
@@ -35,7 +36,6 @@ from heatweave.run.results import (
     implausible,
     outside_range,
     range_findings,
-    start_findings,
 )
 from heatweave.run.runaway import explain
 from heatweave.run.verify import verify_run
