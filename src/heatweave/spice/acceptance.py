@@ -460,7 +460,7 @@ def _recursion(index: DeckIndex) -> Iterator[Finding]:
 def duplicates(index: DeckIndex) -> Iterator[Finding]:
     """Two elements of one name in one (sub)circuit; names in different branches of one
     undecided ``.if`` do not clash (2.13)."""
-    for scope in _all_scopes(index.top):
+    for scope in index.top.walk():
         lows = "\n".join(scope.heads).lower().split("\n") if scope.heads else []
         if len(set(lows)) == len(lows):
             continue  # every name once: the common case, one pass in C
@@ -483,8 +483,3 @@ def duplicates(index: DeckIndex) -> Iterator[Finding]:
                     "ngspice 39 stops with 'device already exists'",
                 )
 
-
-def _all_scopes(scope: Scope) -> Iterator[Scope]:
-    yield scope
-    for inner in scope.scopes.values():
-        yield from _all_scopes(inner)

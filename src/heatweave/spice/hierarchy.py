@@ -103,6 +103,12 @@ class Scope:
             self._heads.append(tuple(_first_fields(self.cards)))
         return self._heads[0]
 
+    def walk(self) -> Iterator[Scope]:
+        """This scope and every definition's scope inside it, depth first."""
+        yield self
+        for inner in self.scopes.values():
+            yield from inner.walk()
+
     def card(self, name: str) -> Card | None:
         """The card named *name* (lower case); the first one of that name wins.  The table
         is built on first use: binding a glob needs the names, not the table."""

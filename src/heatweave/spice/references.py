@@ -34,7 +34,7 @@ def reference_errors(index: DeckIndex, defined: set[str]) -> Iterator[Finding]:
     """Subcircuit node counts, undefined device and resistor models (*defined*: the deck's
     parameter and ``.func`` names)."""
     models = set(index.models)
-    for scope in _all_scopes(index.top):
+    for scope in index.top.walk():
         for card in scope.cards:
             letter = card.letter
             if letter == "X":
@@ -42,11 +42,6 @@ def reference_errors(index: DeckIndex, defined: set[str]) -> Iterator[Finding]:
             elif letter in _NEEDS_MODEL or letter == "R":
                 yield from _model(card, models, defined)
 
-
-def _all_scopes(scope: Scope) -> Iterator[Scope]:
-    yield scope
-    for inner in scope.scopes.values():
-        yield from _all_scopes(inner)
 
 
 def _ports(index: DeckIndex, scope: Scope, card: Card) -> Iterator[Finding]:
