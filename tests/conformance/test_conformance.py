@@ -78,6 +78,14 @@ REJECT = {
         "calls the function 'foo', which no .func defines",
         "Cannot compute substitute",
     ),
+    "r32_undefined_code_model": (
+        "names the code model 'nosuchgain', which no .model card defines",
+        "MIF-ERROR - unable to find definition of model nosuchgain",
+    ),
+    "r33_undefined_mesfet_model": (
+        "Z1 names the model 'nomes', and no .model card defines one",
+        "Unable to find definition of model nomes",
+    ),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

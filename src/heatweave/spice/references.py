@@ -1,9 +1,11 @@
 """Names a card uses that nothing in the deck defines, which ngspice 39 refuses (issue 14).
 
-Held against ngspice 39.3 (``tests/conformance/reject`` r27 to r31): an ``X`` card with more
+Held against ngspice 39.3 (``tests/conformance/reject`` r27 to r33): an ``X`` card with more
 or fewer nodes than its subcircuit has ports ("Too many/Too few parameters for subcircuit
 type"), a D, J, Q or M card naming no model a ``.model`` card defines ("could not find a
-valid modelname"), a resistor with a name after its value that no ``.model`` defines
+valid modelname"), a Z card doing so ("Unable to find definition of model", r33), an A card
+whose last word names no model ("MIF-ERROR - unable to find definition of model", r32), a
+resistor with a name after its value that no ``.model`` defines
 ("unknown parameter"), and a brace expression calling a function no ``.func`` defines
 ("Cannot compute substitute").  Each check only refuses what is certainly undefined: a name
 in braces, a model name a binned ``.model`` (``name.1``) extends, or a parameter name passes.
@@ -21,8 +23,11 @@ from heatweave.spice.grammar import syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Scope
 from heatweave.spice.syntax import ElementSyntax, Value, ValueKind
 
-# Letters whose element needs a .model card in ngspice 39 (no built-in default model).
-_NEEDS_MODEL = frozenset("DJQM")
+# Letters whose element needs a .model card in ngspice 39 (no built-in default model); an
+# A card (XSPICE code model) too, read apart: its model is its last word (manual 12.2).
+_NEEDS_MODEL = frozenset("DJQMZ")
+_REFUSAL = {"Z": "Unable to find definition of model"}  # ngspice 39's words where they differ
+_NAME = re.compile(r"[A-Za-z_][\w.$-]*\Z")
 # Functions ngspice 39's expression parsers know beyond heatweave's evaluator (not refused).
 _OTHER_FUNCTIONS = frozenset({
     "sqr", "re", "im", "db", "ph", "mag", "u", "u2", "uramp", "ddt", "sdt", "table", "tbl",
@@ -41,6 +46,8 @@ def reference_errors(index: DeckIndex, defined: set[str]) -> Iterator[Finding]:
                 yield from _ports(index, scope, card)
             elif letter in _NEEDS_MODEL or letter == "R":
                 yield from _model(card, models, defined)
+            elif letter == "A":
+                yield from _code_model(card, models)
 
 
 
@@ -103,12 +110,29 @@ def _model(card: Card, models: set[str], defined: set[str]) -> Iterator[Finding]
         return
     where = candidates[0].offset if candidates else (syntax.nodes[-1].end if syntax.nodes else 0)
     said = f"the model {candidates[0].text!r}" if candidates else "no model"
+    words = _REFUSAL.get(card.letter, "could not find a valid modelname")
     yield Finding(
         "error", f"{syntax.name.text} names {said}, and no .model card defines one: ngspice 39 "
-        "stops with 'could not find a valid modelname'",
+        f"stops with '{words}'",
         card.location(where),
         f"a {card.letter} element needs a model: define it with .model, or include the file "
         "that does",
+    )  # fmt: skip
+
+
+def _code_model(card: Card, models: set[str]) -> Iterator[Finding]:
+    """An A card whose last word, its model, no ``.model`` card defines: ngspice 39 stops
+    with 'MIF-ERROR - unable to find definition of model' (conformance r32)."""
+    logical = card.logical().text
+    fields = card.fields()
+    name = fields[-1] if len(fields) > 1 else ""
+    if not _NAME.match(name) or _known(name, models):
+        return  # a bracket, a brace or a quoted word last: not a plain model name
+    yield Finding(
+        "error", f"{card.head} names the code model {name!r}, which no .model card defines: "
+        "ngspice 39 stops with 'unable to find definition of model'",
+        card.location(logical.rfind(name)),
+        f"define it (.model {name} <code model>(...)), or include the file that does",
     )  # fmt: skip
 
 
