@@ -110,10 +110,10 @@ def _model(card: Card, models: set[str], defined: set[str]) -> Iterator[Finding]
         return
     where = candidates[0].offset if candidates else (syntax.nodes[-1].end if syntax.nodes else 0)
     said = f"the model {candidates[0].text!r}" if candidates else "no model"
-    words = _REFUSAL.get(card.letter, "could not find a valid modelname")
+    refusal = _REFUSAL.get(card.letter, "could not find a valid modelname")
     yield Finding(
         "error", f"{syntax.name.text} names {said}, and no .model card defines one: ngspice 39 "
-        f"stops with '{words}'",
+        f"stops with '{refusal}'",
         card.location(where),
         f"a {card.letter} element needs a model: define it with .model, or include the file "
         "that does",
