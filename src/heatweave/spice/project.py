@@ -10,8 +10,9 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
-from heatweave.errors import DeckStructureError, Location
+from heatweave.errors import DeckStructureError, HeatweaveError, Location
 from heatweave.spice.deck import Block, Card, Deck, Node, iter_cards
+from heatweave.spice.grammar import syntax_of
 from heatweave.spice.reader import read_file
 
 
@@ -153,10 +154,23 @@ _SPICE_NAME = re.compile(r"[A-Za-z][^/\\:]*(?::[^/\\:]*)?\Z")
 _CONTROL_BYTES = re.compile(r"[\x00-\x08\x0e-\x1f\x7f]")
 
 
+#: Name suffixes that mark a file as SPICE (netlists, include and model library files).
+SPICE_SUFFIXES = (".cir", ".ckt", ".sp", ".spi", ".spice", ".net", ".inc", ".lib", ".mod",
+                  ".mdl", ".model", ".models", ".sub", ".subckt")  # fmt: skip
+# Dot cards that define something: what a model or subcircuit file holds, and no key,
+# password or configuration file does.
+_DEFINING = frozenset({".model", ".subckt", ".param", ".func", ".lib", ".include", ".inc"})
+
+
 def foreign_reason(deck: Deck) -> str | None:
-    """Why an included file is plainly not a SPICE file (binary, a key or certificate, lines
-    that are no cards: a password or configuration file), or ``None``.  Looks at the whole
-    text for bytes and keys, and at the first few cards only."""
+    """Why an included file is not proven to be a SPICE file, or ``None`` when it is.
+
+    Plainly foreign (binary, a key or certificate, lines that are no cards: a password or
+    configuration file) whatever its name; and without a SPICE suffix (:data:`SPICE_SUFFIXES`)
+    a file must prove itself: every card parses and one defines a model, subcircuit,
+    parameter or function.  Looking card-like is no proof: a netrc line (``machine HOST
+    login USER password SECRET``) parses as a MOSFET card, and errors about it would show it.
+    """
     text = deck.source.text if deck.source is not None else deck.write()
     if len(_CONTROL_BYTES.findall(text, 0, 65536)) > 2:
         return "it holds control bytes: a binary file"
@@ -170,6 +184,27 @@ def foreign_reason(deck: Deck) -> str | None:
         fields = card.fields()
         if not _SPICE_NAME.match(card.head) or len(fields) < 3 or fields[1] == "=":
             return "its lines are not SPICE cards"
+    if deck.path.lower().endswith(SPICE_SUFFIXES):
+        return None
+    return _unproven(deck)
+
+
+def _unproven(deck: Deck) -> str | None:
+    """Why a file without a SPICE suffix is not proven SPICE by its cards, or ``None``."""
+    cards = 0
+    defining = False
+    for card in iter_cards(deck.body):
+        try:
+            syntax_of(card)
+        except HeatweaveError:
+            return "its name has no SPICE suffix and not every line of it is a SPICE card"
+        cards += 1
+        defining = defining or card.name in _DEFINING
+    if cards and not defining:
+        return (
+            "its name has no SPICE suffix and it defines no model, subcircuit, parameter or "
+            "function"
+        )
     return None
 
 
@@ -182,7 +217,9 @@ def refuse_foreign(deck: Deck, name: str, where: Location | None) -> None:
             f"the included file {name!r} is not a SPICE file ({reason}); heatweave does not "
             "read it, and shows none of its lines",
             where,
-            hint="check the path on this card: it should name a SPICE file",
+            hint="check the path on this card; a SPICE file's name ends in "
+            f"{', '.join(SPICE_SUFFIXES[:8])} ... (or its cards define a model, a subcircuit "
+            "or a parameter)",
         )
 
 
