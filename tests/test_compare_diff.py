@@ -186,3 +186,55 @@ def test_results_of_two_commands_are_not_compared(tmp_path: Path) -> None:
     settle.write_text(json.dumps({**OLD, "analysis": "settle"}))
     result = CliRunner().invoke(main, ["compare", str(run), str(settle)])
     assert result.exit_code == 2 and "is a run result" in result.output
+
+
+def _saved(tmp_path: Path, name: str, data: dict[str, Any]) -> str:
+    path = tmp_path / name
+    path.write_text(json.dumps(data))
+    return str(path)
+
+
+def _sweep(deck: str, ambient: float) -> dict[str, Any]:
+    corner = {"index": 0, "ambient": ambient, "params": {}, "draw": None, "status": "ok",
+              "parts": {"R1": run_part(ambient + 20.0, 0.0, 0.2, 100.0)}}  # fmt: skip
+    return {"deck": deck, "corners": [corner]}
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "words"),
+    [
+        # two designs by their file names (the folder is no part of a design's name)
+        (OLD, {**NEW, "deck": "other/amplifier.cir"}, "of board.cir and "),
+        # one file name, but no part in common: two designs that share a name
+        (OLD, run_result({"Q7": run_part(40.0, 0.0, 0.1, 115.0)}), "have no part in common"),
+    ],
+)
+def test_results_of_two_decks_are_refused_unless_asked(
+    tmp_path: Path, old: dict[str, Any], new: dict[str, Any], words: str
+) -> None:
+    paths = [_saved(tmp_path, "old.json", old), _saved(tmp_path, "new.json", new)]
+    refused = CliRunner().invoke(main, ["compare", *paths])
+    assert refused.exit_code == 2, refused.output
+    assert words in refused.output and "--different-decks" in refused.output
+    assert "R1" not in refused.output  # no table of a comparison that means nothing
+    allowed = CliRunner().invoke(main, ["compare", *paths, "--different-decks", "--json", "-"])
+    assert allowed.exit_code == 0, allowed.output
+    assert "warning: " in allowed.stderr and words in allowed.stderr
+    assert json.loads(allowed.stdout)["new"]["deck"] == new["deck"]
+
+
+@pytest.mark.parametrize(
+    ("old", "new"),
+    [
+        (OLD, {**NEW, "deck": "/ci/checkout/boards/board.cir"}),  # another folder, one deck
+        (OLD, {**NEW, "deck": "-"}),  # standard input has no name to hold
+        (_sweep("board.cir", 25.0), _sweep("board.cir", 85.0)),  # other corners, same parts
+    ],
+)
+def test_results_of_one_deck_are_compared(
+    tmp_path: Path, old: dict[str, Any], new: dict[str, Any]
+) -> None:
+    paths = [_saved(tmp_path, "old.json", old), _saved(tmp_path, "new.json", new)]
+    result = CliRunner().invoke(main, ["compare", *paths, "-q"])
+    assert result.exit_code == 0, result.output
+    assert "warning" not in result.output

@@ -32,7 +32,7 @@ from heatweave.compare import render
 from heatweave.compare.diff import Comparison, Thresholds
 from heatweave.compare.diff import compare as compare_sides
 from heatweave.compare.revision import checkout
-from heatweave.compare.snapshot import read_result, snapshot_of
+from heatweave.compare.snapshot import Snapshot, other_deck, read_result, snapshot_of
 from heatweave.errors import EXIT_CHECK_FAILED, HeatweaveError, UsageError
 from heatweave.files import refuse_overwrite, write_atomic
 from heatweave.quantities import SpiceQuantity
@@ -83,6 +83,12 @@ def _output_options(func: click.decorators.FC) -> click.decorators.FC:
 @analysis_options
 @simulation_options
 @timeout_option("each side of the comparison")
+@click.option(
+    "--different-decks",
+    is_flag=True,
+    help="With two saved results: compare them even when they come from different decks "
+    "(parts are then paired by name alone), with a warning, instead of refusing.",
+)
 @click.option("-q", "--quiet", is_flag=True, help="No table; the gate's verdict only.")
 @guarded
 def compare(
@@ -103,6 +109,7 @@ def compare(
     allow_control: bool,
     init_file: str | None,
     timeout: float | None,
+    different_decks: bool,
     quiet: bool,
 ) -> None:
     """Compare DECK now with DECK at git revision REV, or two saved results.
@@ -174,6 +181,8 @@ def compare(
             f"{labels[0]} is a {old_snap.kind} result and {labels[1]} a {new_snap.kind} result",
             hint="compare results of the same command",
         )
+    if revision is None:
+        _hold_one_deck(old_snap, new_snap, different_decks)
     comparison = compare_sides(old_snap, new_snap, options.over(from_file))
     _write_outputs(comparison, outputs, sides, (old_data, new_data), time.monotonic() - started)
     if not quiet:
@@ -184,6 +193,26 @@ def compare(
         click.echo(render_table(comparison, colour=use_colour(stream)), file=stream, nl=False)
     if not comparison.passed:
         sys.exit(EXIT_CHECK_FAILED)
+
+
+def _hold_one_deck(old: Snapshot, new: Snapshot, allowed: bool) -> None:
+    """Refuse two saved results of different decks (exit 2), or warn of them when
+    *allowed*: their differences are no change to one design."""
+    reason = other_deck(old, new)
+    if reason is None:
+        return
+    if not allowed:
+        raise UsageError(
+            f"{reason}: they are not two versions of one deck, so their differences are no "
+            "change to a design",
+            hint="compare two results of one deck; --different-decks compares them anyway, "
+            "pairing parts by name",
+        )
+    click.echo(
+        f"warning: {reason}; compared anyway (--different-decks): parts are paired by name "
+        "alone, and a difference is no change to one design",
+        err=True,
+    )
 
 
 def _guard_inputs(

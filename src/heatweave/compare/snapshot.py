@@ -17,7 +17,7 @@ import json
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
-from pathlib import Path
+from pathlib import Path, PurePath
 from typing import Any
 
 from heatweave.errors import Location, UsageError
@@ -208,6 +208,28 @@ def snapshot_of(data: Mapping[str, Any], label: str) -> Snapshot:
         limits=limits,
         warnings=tuple(str(w) for w in data.get("warnings") or []),
     )
+
+
+def other_deck(old: Snapshot, new: Snapshot) -> str | None:
+    """Why *old* and *new* are results of two different decks, or ``None``.
+
+    Revisions of one design keep the deck's file name (its folder may differ: two
+    checkouts, two working folders); results of different file names, or with parts and
+    none in common, are two designs, whose changes mean nothing.  A deck read from
+    standard input (``-``) has no name to hold.
+    """
+    names = [PurePath(side.deck).name for side in (old, new)]
+    if "-" not in names and "" not in names and names[0] != names[1]:
+        return f"{old.label} is a result of {names[0]} and {new.label} of {names[1]}"
+    if old.parts and new.parts and not _designs(old) & _designs(new):
+        return f"{old.label} and {new.label} have no part in common"
+    return None
+
+
+def _designs(side: Snapshot) -> set[str]:
+    """The parts of *side* without a sweep's corner (``R1 @ 85 degC`` is ``R1``): a sweep
+    over other corners still holds the same parts."""
+    return {name.split(" @ ", 1)[0] for name in side.parts}
 
 
 def read_result(path: str) -> dict[str, Any]:
