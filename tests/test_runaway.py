@@ -178,12 +178,14 @@ def test_first_jump(columns: list[float], expected: int | None) -> None:
 def test_driven_text_scales_every_injected_power() -> None:
     text = (
         "title\nBhw_r1 a b I = V(a,b)/(R)\nBhw_p_r1 0 hw_t_r1 I = V(a,b)*V(a,b)/(R)\n"
-        "Bhw_p_x1_r2 0 hw_t_x1_r2 I = (V(c)-V(d))*I(Vhw_s_x1_r2_1)\n.end\n"
+        "Bhw_p_x1_r2 0 hw_t_x1_r2 I = (V(c)-V(d))*I(Vhw_s_x1_r2_1)\n"
+        "Bhw_p_mine 0 out I = 1m\n.end\n"  # the deck's own source, named alike
     )
-    out = driven_text(text)
+    out = driven_text(text, ["Bhw_p_r1", "Bhw_p_x1_r2"])
     assert "Bhw_p_r1 0 hw_t_r1 I = V(hw_drive)*(V(a,b)*V(a,b)/(R))" in out
     assert "I = V(hw_drive)*((V(c)-V(d))*I(Vhw_s_x1_r2_1))" in out
     assert "Bhw_r1 a b I = V(a,b)/(R)\n" in out  # the electrical source is left alone
+    assert "Bhw_p_mine 0 out I = 1m\n" in out
     assert out.index("Vhw_drive hw_drive 0 DC 0") < out.index(".end")
 
 

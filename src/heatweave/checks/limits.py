@@ -44,7 +44,7 @@ from heatweave.run.runner import RunOutcome
 from heatweave.settle.periodic import Settled
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
-from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX
+from heatweave.thermal.circuit import AMBIENT_NODE
 
 FloatArray = npt.NDArray[np.float64]
 
@@ -151,7 +151,7 @@ def deck_nodes(index: DeckIndex) -> set[str]:
             continue
         for node in card_nodes(resolved.card, index):
             found.add(top_level_node(resolved, node, globals_))
-    return {n for n in found if PREFIX not in n}
+    return found  # the plain deck's: a node named like heatweave's (thw_1) is the user's
 
 
 def resolve_limits(annotation: Annotation, index: DeckIndex) -> tuple[Signal, ...]:

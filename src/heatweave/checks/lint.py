@@ -8,6 +8,9 @@ from pathlib import Path
 from heatweave.annotation import bind, default_path, load
 from heatweave.checks.limits import resolve_limits
 from heatweave.emit.emitter import Inputs, emit_inputs
+from heatweave.emit.forms import FORMS
+from heatweave.emit.placement import refuse_reserved
+from heatweave.emit.sections import folded_files
 from heatweave.errors import Finding, HeatweaveError
 from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.lint import lint_project, order
@@ -26,7 +29,12 @@ def annotation_findings(
         bound = bind(loaded, index)
         resolve_limits(loaded, index)
         inputs = Inputs(str(project.deck.path), annotation, project, index, loaded, bound)
-        found.extend(emit_inputs(inputs).findings)
+        emitted = emit_inputs(inputs)
+        found.extend(emitted.findings)
+        if emitted.circuit is not None:  # names the other forms add (emit writes switch)
+            folded = folded_files(project)
+            for form in FORMS:
+                refuse_reserved(index, emitted.circuit, folded, form)
     except HeatweaveError as err:
         error = Finding("error", err.message, err.location, err.hint)
         seen = {(f.location, f.message) for f in known}

@@ -43,13 +43,12 @@ from heatweave.run.prepare import (
 from heatweave.run.results import (
     RunResults,
     build_part,
-    device_name,
     drive_findings,
     range_findings,
 )
 from heatweave.run.runner import RunOutcome
 from heatweave.spice.deck import Card, Deck, Node
-from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
+from heatweave.spice.hierarchy import DeckIndex, device_name, global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, ThermalCircuit
 from heatweave.thermal.solver import Propagator, ThermalSystem, assemble

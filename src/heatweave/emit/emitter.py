@@ -34,6 +34,7 @@ from heatweave.emit.forms import (
     resistor_cards,
     step_limit_options,
 )
+from heatweave.emit.names import copy_name
 from heatweave.emit.placement import placed, refuse_multiplier, refuse_reserved
 from heatweave.emit.sections import (
     EMITTED_HEADER,
@@ -60,7 +61,6 @@ from heatweave.thermal.circuit import (
     PartPlan,
     ThermalCircuit,
     build_circuit,
-    safe,
 )
 
 
@@ -73,6 +73,8 @@ class Emitted:
     findings: tuple[Finding, ...] = ()
     circuit: ThermalCircuit | None = None
     probes: dict[str, str] = field(default_factory=dict)
+    form: str = "reference"  # how its resistors are written (:mod:`heatweave.emit.forms`)
+    heating: bool = True  # False: every part held at ambient
 
 
 class _Rewriter:
@@ -310,11 +312,6 @@ def _ends(card: Card, name: str, eol: str = "\n") -> Card:
     return Card(card.text if card.text.endswith("\n") else card.text + eol)
 
 
-def copy_name(subckt: str, path: str) -> str:
-    """The name of the copy of *subckt* specialised for instance path *path*."""
-    return f"{subckt}__{PREFIX}{safe(path)}"
-
-
 def describe(part: PartPlan) -> str:
     """One line saying how a part is modelled, for the comment above its cards."""
     net = part.network
@@ -392,7 +389,9 @@ def emit_deck(
             "end of the file, where ngspice 39 ends it", last.source.location(last.offset)
             if last.source is not None else None,
         ))  # fmt: skip
-    return Emitted(text, tuple(rewriter.added), tuple(rewriter.findings), circuit)
+    return Emitted(
+        text, tuple(rewriter.added), tuple(rewriter.findings), circuit, form=form, heating=heating
+    )
 
 
 @dataclass(frozen=True, slots=True)

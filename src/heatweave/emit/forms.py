@@ -171,6 +171,11 @@ class CardForm(ABC):
         """The node names the cards add (the hot node is the caller's)."""
         return ()
 
+    def branches(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
+        """The elements of the cards that ngspice gives a branch current (a voltage source,
+        a code model driving a voltage output), whose currents a plot holds."""
+        return ()
+
     def handles(self, model: TempModel) -> bool:
         """False when this form writes the reference cards for *model*."""
         return True
@@ -334,6 +339,9 @@ class Divider(CardForm):
     def nodes(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
         return (f"{PREFIX}q_{name}",) if heating and self.handles(model) else ()
 
+    def branches(self, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
+        return (f"A{PREFIX}q_{name}",) if heating and self.handles(model) else ()  # %v(square)
+
 
 _REGISTRY: dict[str, CardForm] = {form.name: form for form in (Reference(), Switch(), Divider())}
 
@@ -407,6 +415,11 @@ def step_limit_options(
 def added_nodes(form: str, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
     """The nodes :func:`resistor_cards` adds for one part (for the name-collision check)."""
     return get_form(form).nodes(name, model, heating)
+
+
+def added_branches(form: str, name: str, model: TempModel, heating: bool) -> tuple[str, ...]:
+    """The elements :func:`resistor_cards` adds that carry a branch current."""
+    return get_form(form).branches(name, model, heating)
 
 
 def shared_nodes(

@@ -8,13 +8,12 @@ from __future__ import annotations
 
 import re
 
-from heatweave.emit.forms import added_nodes
-from heatweave.emit.sections import check_names
+from heatweave.emit.names import added_names, check_names, reserved
 from heatweave.errors import EmitError
 from heatweave.spice.cardparts import x_card_parts
 from heatweave.spice.deck import Card, Deck
 from heatweave.spice.hierarchy import DeckIndex, Resolved
-from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit
+from heatweave.thermal.circuit import PREFIX, PartPlan, ThermalCircuit
 
 
 def placed(index: DeckIndex, part: PartPlan) -> Resolved:
@@ -68,15 +67,8 @@ def reserved_nodes(circuit: ThermalCircuit, form: str, heating: bool = True) -> 
     """Every node name the electrothermal deck of *circuit* adds (written in *form*): the
     ambient source's, the shared nodes, and per part its hot spot, its network's inner
     nodes, and its form's nodes (a resistor) or current-sense nodes (a heat-only part)."""
-    names = [AMBIENT_NODE, *(node.node for node in circuit.nodes)]
-    for part in circuit.parts:
-        if part.model is not None:
-            names.extend(added_nodes(form, part.name, part.model, heating))
-        else:
-            names.extend(f"{PREFIX}s_{part.name}_{k}" for k in range(1, len(part.terminals)))
-        net = part.network.elements(f"{PREFIX}{part.name}_", part.node, part.to, "0")
-        names.extend((part.node, *net.nodes))
-    return names
+    names = added_names(circuit, form, heating)
+    return [*names.global_nodes, *names.local_nodes()]
 
 
 def refuse_reserved(
@@ -92,4 +84,4 @@ def refuse_reserved(
     lower case (:func:`heatweave.emit.sections.folded_files`); a deck without the reserved
     marker anywhere costs one search of it."""
     if any(PREFIX in low for _deck, low, _title in folded):
-        check_names(index, reserved_nodes(circuit, form, heating), folded)
+        check_names(reserved(index, circuit, form, heating), folded)

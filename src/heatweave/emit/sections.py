@@ -14,7 +14,6 @@ from heatweave.errors import EmitError, Finding, Location
 from heatweave.files import encode
 from heatweave.quantities import format_number
 from heatweave.spice.deck import ControlBlock, Deck, iter_cards, unprintable
-from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.project import Project
 from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, ThermalCircuit
 
@@ -162,35 +161,6 @@ def folded_files(project: Project, written: str | None = None) -> list[tuple[Dec
         text = deck.write() if deck.source is None else deck.source.text
         out.append((deck, text.lower(), False))
     return out
-
-
-def check_names(
-    index: DeckIndex,
-    added: list[str],
-    folded: list[tuple[Deck, str, bool]] | None = None,
-) -> None:
-    """Every added name must be new: a collision is an error, never a silent rename.
-
-    Only cards whose text holds the reserved prefix can collide, so the files are searched
-    for it first (in *folded*, each deck's text in lower case, when the caller has it);
-    the field-level check runs on those cards alone.
-    """
-    if folded is None:
-        folded = folded_files(index.project)
-    wanted: set[str] | None = None
-    for card in (c for deck, low, _t in folded if PREFIX in low for c in deck.cards()):
-        if PREFIX not in card.text.lower():
-            continue
-        if wanted is None:
-            wanted = {name.lower() for name in added}
-        for field_text in card.fields():
-            low = field_text.lower()
-            if PREFIX in low and (low in wanted or low[1:] in wanted):
-                raise EmitError(
-                    f"the deck already uses the name {field_text!r}, which heatweave reserves",
-                    card.location(),
-                    hint=f"rename it: names containing {PREFIX!r} are heatweave's",
-                )
 
 
 # The analyses XSPICE code models do not implement (ngspice manual 1.2: "the Code Model

@@ -28,11 +28,17 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.annotation import AMBIENT
+from heatweave.emit.emitter import Emitted
+from heatweave.emit.names import added_names, own_vectors
 from heatweave.errors import Finding, SimulatorError
 from heatweave.run.drive import Drive, deck_drive, period_note
 from heatweave.simulators import Plot, SimResult
-from heatweave.spice.deck import Block
-from heatweave.spice.hierarchy import DeckIndex, Resolved, global_names, top_level_node
+from heatweave.spice.hierarchy import (
+    DeckIndex,
+    device_name,
+    global_names,
+    top_level_node,
+)
 from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCircuit, safe
 
 FloatArray = npt.NDArray[np.float64]
@@ -249,51 +255,15 @@ def _vector(plot: Plot, name: str) -> FloatArray:
         ) from None
 
 
-def device_name(resolved: Resolved, name: str) -> str:
-    """ngspice's name of device *name* placed beside the element at *resolved*:
-    ``vx`` at the top level, ``v.x1.x3.vx`` inside instances.
-
-    A definition nested in another one is expanded inside that one's body before the
-    instances around it, and each expansion of a device puts its letter before the
-    instance name: ``v.x1.v.xl.vx`` for ``XL`` of a cell defined inside ``X1``'s
-    definition (ngspice 39, checked with ``show``)."""
-    instances = resolved.instances
-    if not instances:
-        return name.lower()
-    names = [card.name for card in instances]
-    definitions = resolved.definitions
-    owner = [_owner(definitions, k) for k in range(len(definitions))]
-    device, letter, last = name.lower(), name[0].lower(), len(names)
-    if all(o < 0 for o in owner):
-        return f"{letter}.{'.'.join(names)}.{device}"
-
-    def expand(scope: int) -> tuple[int, str]:
-        # In the body of instance *scope*'s definition (-1: the top level) once it has
-        # expanded the instances it owns: the first card of the path left unexpanded
-        # (``last``: the device itself) and its name there.
-        k = scope + 1
-        current = names[k] if k < last else device
-        while k < last and owner[k] == scope:
-            k, inner = expand(k)
-            current = f"{letter}.{current}.{inner}" if k == last else f"{current}.{inner}"
-        return k, current
-
-    return expand(-1)[1]
-
-
-def _owner(definitions: tuple[Block, ...], k: int) -> int:
-    """The index of the definition whose body holds definition *k* (-1: the top level)."""
-    for j in range(k - 1, -1, -1):
-        if any(node is definitions[k] for node in definitions[j].body):
-            return j
-    return -1
-
-
 def extract(
-    sim: SimResult, circuit: ThermalCircuit, index: DeckIndex, drive: Drive | None = None
+    sim: SimResult, emitted: Emitted, index: DeckIndex, drive: Drive | None = None
 ) -> RunResults:
-    """Read a simulation of an emitted deck back into per-part results; *drive* is the
-    deck's (:func:`heatweave.run.drive.deck_drive`, found here when not given)."""
+    """Read a simulation of an *emitted* deck back into per-part results; *drive* is the
+    deck's (:func:`heatweave.run.drive.deck_drive`, found here when not given).  The node
+    voltages and branch currents are the deck's own: every vector but those of the names
+    the emitter added (:func:`heatweave.emit.names.own_vectors`)."""
+    circuit = emitted.circuit
+    assert circuit is not None
     plot = main_plot(sim)
     transient = plot.kind == "tran"
     time = _vector(plot, "time") if transient and "time" in plot else None
@@ -343,8 +313,9 @@ def extract(
     voltage_series: dict[str, FloatArray] = {}
     currents: dict[str, float] = {}
     current_series: dict[str, FloatArray] = {}
+    added = own_vectors(index, added_names(circuit, emitted.form, emitted.heating))
     for name, raw in plot.vectors.items():
-        if name[:2] not in ("v(", "i(") or not name.endswith(")") or PREFIX in name:
+        if name[:2] not in ("v(", "i(") or not name.endswith(")") or name in added:
             continue
         is_voltage = name[0] == "v"
         finals = voltages if is_voltage else currents

@@ -47,12 +47,15 @@ from __future__ import annotations
 
 import math
 import re
+from collections.abc import Iterable
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
 import numpy.typing as npt
 
+from heatweave.emit.names import DRIVE_NODE, fix_source, power_source
+from heatweave.emit.names import DRIVE_SOURCE as DRIVE_SOURCE_CARD
 from heatweave.errors import SimulatorError, ThermalRunawayError
 from heatweave.run.diagnosis import HINT, Diagnosis, RunawayError
 from heatweave.run.prepare import simulate
@@ -72,7 +75,7 @@ if TYPE_CHECKING:
 
 FloatArray = npt.NDArray[np.float64]
 
-DRIVE_SOURCE = "vhw_drive"
+DRIVE_SOURCE = DRIVE_SOURCE_CARD.lower()
 COARSE_STEPS = 100
 FINE_STEPS = 100
 JUMP_RATIO = 4.0
@@ -85,14 +88,23 @@ MAX_LEVELS = 6
 # Near a fold the power balance is flat, so ngspice's default tolerances (reltol 1e-3)
 # accept points slightly past it; the diagnosis decks solve tighter.
 TIGHT = ".options reltol=1e-6 vntol=1e-9 abstol=1e-15"
-_POWER_LINE = re.compile(r"^(Bhw_p_\S+\s+0\s+\S+\s+I\s*=\s*)(.+)$", re.IGNORECASE | re.MULTILINE)
+_POWER_LINE = re.compile(r"^(\S+\s+0\s+\S+\s+I\s*=\s*)(.+)$", re.IGNORECASE | re.MULTILINE)
 _END_LINE = re.compile(r"^\.end\s*$", re.IGNORECASE | re.MULTILINE)
 
 
-def driven_text(text: str) -> str:
-    """The emitted deck with every injected dissipation scaled by ``V(hw_drive)``."""
-    scaled = _POWER_LINE.sub(lambda m: f"{m[1]}V(hw_drive)*({m[2].rstrip()})", text)
-    return add_cards(scaled, ["Vhw_drive hw_drive 0 DC 0", ".global hw_drive", TIGHT])
+def driven_text(text: str, sources: Iterable[str]) -> str:
+    """The emitted deck with every injected dissipation (the heat sources named *sources*,
+    :func:`heatweave.emit.names.power_source`) scaled by ``V(hw_drive)``; a deck's own
+    source of a like name is left alone."""
+    named = {name.lower() for name in sources}
+
+    def scaled(m: re.Match[str]) -> str:
+        if m[1].split(maxsplit=1)[0].lower() not in named:
+            return m[0]
+        return f"{m[1]}V({DRIVE_NODE})*({m[2].rstrip()})"
+
+    drive = f"{DRIVE_SOURCE_CARD} {DRIVE_NODE} 0 DC 0"
+    return add_cards(_POWER_LINE.sub(scaled, text), [drive, f".global {DRIVE_NODE}", TIGHT])
 
 
 def add_cards(text: str, cards: list[str]) -> str:
@@ -116,7 +128,7 @@ class Continuation:
         self.prepared = prepared
         self.options = replace(options, progress=None)
         self.circuit = prepared.emitted.circuit
-        self.text = driven_text(prepared.text)
+        self.text = driven_text(prepared.text, map(power_source, self.circuit.parts))
         self.nodes = thermal_nodes(self.circuit)
 
     def run(self, text: str, analyses: tuple[str, ...]) -> tuple[Plot, ...]:
@@ -379,9 +391,9 @@ def power_jacobian(cont: Continuation, index: DeckIndex, temps: FloatArray) -> F
     """``dP_i/dT_j`` (W/K) of the resistor parts with all part temperatures held fixed."""
     parts = [p for p in cont.circuit.parts if p.model is not None]
     fixed = {p.node: float(t) for p, t in zip(cont.circuit.parts, temps, strict=False)}
-    cards = [f"Vhw_fix_{k} {p.node} 0 DC {fixed[p.node]:.12g}" for k, p in enumerate(parts)]
+    cards = [f"{fix_source(k)} {p.node} 0 DC {fixed[p.node]:.12g}" for k, p in enumerate(parts)]
     analyses = tuple(
-        f"dc vhw_fix_{k} {fixed[p.node] - FD_STEP:.12g} {fixed[p.node] + FD_STEP:.12g} "
+        f"dc {fix_source(k).lower()} {fixed[p.node] - FD_STEP:.12g} {fixed[p.node] + FD_STEP:.12g} "
         f"{FD_STEP:.12g}"
         for k, p in enumerate(parts)
     )

@@ -74,7 +74,7 @@ def run(
             # No electrothermal solution: find out whether self-heating ran away.
             explained = explain_runaway(inputs, options, prepared, failure, None)
             raise (explained or failure) from None
-        results = extract(sim, prepared.emitted.circuit, inputs.index)
+        results = extract(sim, prepared.emitted, inputs.index)
         if suspect(results, sim):
             explained = explain_runaway(inputs, options, prepared, None, results)
             if explained is not None:
@@ -131,6 +131,6 @@ def run_baseline(
     prepared = prepare(inputs, quiet, annotation, heating=False)
     sim = simulate(prepared, quiet)
     assert prepared.emitted.circuit is not None
-    return RunOutcome(prepared, sim, extract(sim, prepared.emitted.circuit, inputs.index))
+    return RunOutcome(prepared, sim, extract(sim, prepared.emitted, inputs.index))
 
 

@@ -238,7 +238,7 @@ def resolve(
     sets = " ".join(f"V({n})={t:.12g}" for n, t in zip(thermal_nodes(circuit), temps, strict=True))
     text = add_cards(prepared.text, [f".nodeset {sets}", TIGHT])
     sim = Continuation(prepared, options).simulate(text)
-    results = extract(sim, circuit, inputs.index)
+    results = extract(sim, prepared.emitted, inputs.index)
     at = steady_index(results, circuit)
     verdict = verdict_of(results, circuit, at if at is not None else -1, prepared.text)
     if not verdict.ok or fell_back(sim.log):

@@ -22,6 +22,7 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.emit.emitter import Inputs
+from heatweave.emit.names import held_resistor
 from heatweave.errors import ConvergenceError, EmitError, Finding
 from heatweave.quantities import format_number
 from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate
@@ -37,11 +38,9 @@ def fixed_resistor_deck(text: str, parts: Sequence[PartPlan], temps: Sequence[fl
     for part, temp in zip(parts, temps, strict=True):
         assert part.model is not None
         name = f"{PREFIX}{safe(part.path)}"
-        held = f"R{PREFIX}fix_{safe(part.path)}"
+        held = held_resistor(part)  # a deck using the name is refused when emitted
         pattern = re.compile(rf"^B{re.escape(name)}[ \t]+(\S+)[ \t]+(\S+)[ \t]+I[ \t]*=.*$", re.M)
         value = format_number(float(part.model.resistance(float(temp))))
-        if re.search(rf"\b{held}\b", text, re.I):
-            raise EmitError(f"the deck already uses the name {held!r}, which settle reserves")
         text, count = pattern.subn(rf"{held} \g<1> \g<2> {value}", text, count=1)
         if count != 1:
             raise EmitError(f"cannot find the behavioural source of {part.path} to hold it fixed")
@@ -147,7 +146,7 @@ class Electrical:
         text = fixed_resistor_deck(self.base.text, self.resistors, temps)
         prepared = replace(self.base, text=text, analyses=(self._analysis(periods),))
         sim = simulate(prepared, self.options)
-        return extract(sim, self.circuit, self.inputs.index)
+        return extract(sim, self.base.emitted, self.inputs.index)
 
     def cycle(self, temps: Sequence[float], periods: int, max_periods: int) -> Cycle:
         """The last period at *temps*, simulating more periods (doubling, up to

@@ -339,3 +339,43 @@ def top_level_node(resolved: Resolved, node: str, globals_: set[str]) -> str:
             path = ".".join(card.name for card in resolved.instances[: depth + 1])
             return f"{path}.{name}"
     return name
+
+
+def device_name(resolved: Resolved, name: str) -> str:
+    """ngspice's name of device *name* placed beside the element at *resolved*:
+    ``vx`` at the top level, ``v.x1.x3.vx`` inside instances.
+
+    A definition nested in another one is expanded inside that one's body before the
+    instances around it, and each expansion of a device puts its letter before the
+    instance name: ``v.x1.v.xl.vx`` for ``XL`` of a cell defined inside ``X1``'s
+    definition (ngspice 39, checked with ``show``)."""
+    instances = resolved.instances
+    if not instances:
+        return name.lower()
+    names = [card.name for card in instances]
+    definitions = resolved.definitions
+    owner = [_owner(definitions, k) for k in range(len(definitions))]
+    device, letter, last = name.lower(), name[0].lower(), len(names)
+    if all(o < 0 for o in owner):
+        return f"{letter}.{'.'.join(names)}.{device}"
+
+    def expand(scope: int) -> tuple[int, str]:
+        # In the body of instance *scope*'s definition (-1: the top level) once it has
+        # expanded the instances it owns: the first card of the path left unexpanded
+        # (``last``: the device itself) and its name there.
+        k = scope + 1
+        current = names[k] if k < last else device
+        while k < last and owner[k] == scope:
+            k, inner = expand(k)
+            current = f"{letter}.{current}.{inner}" if k == last else f"{current}.{inner}"
+        return k, current
+
+    return expand(-1)[1]
+
+
+def _owner(definitions: tuple[Block, ...], k: int) -> int:
+    """The index of the definition whose body holds definition *k* (-1: the top level)."""
+    for j in range(k - 1, -1, -1):
+        if any(node is definitions[k] for node in definitions[j].body):
+            return j
+    return -1
