@@ -227,6 +227,7 @@ def test_results_of_two_decks_are_refused_unless_asked(
     ("old", "new"),
     [
         (OLD, {**NEW, "deck": "/ci/checkout/boards/board.cir"}),  # another folder, one deck
+        (OLD, {**NEW, "deck": "C:\\ci\\boards\\board.cir"}),  # written on another system
         (OLD, {**NEW, "deck": "-"}),  # standard input has no name to hold
         (_sweep("board.cir", 25.0), _sweep("board.cir", 85.0)),  # other corners, same parts
     ],

@@ -17,7 +17,7 @@ import json
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
-from pathlib import Path, PurePath
+from pathlib import Path, PureWindowsPath
 from typing import Any
 
 from heatweave.errors import Location, UsageError
@@ -218,7 +218,8 @@ def other_deck(old: Snapshot, new: Snapshot) -> str | None:
     none in common, are two designs, whose changes mean nothing.  A deck read from
     standard input (``-``) has no name to hold.
     """
-    names = [PurePath(side.deck).name for side in (old, new)]
+    # The name after the last "/" or "\\": a result may have been written on either system.
+    names = [PureWindowsPath(side.deck).name for side in (old, new)]
     if "-" not in names and "" not in names and names[0] != names[1]:
         return f"{old.label} is a result of {names[0]} and {new.label} of {names[1]}"
     if old.parts and new.parts and not _designs(old) & _designs(new):
