@@ -78,6 +78,16 @@ def vectors(text: str) -> set[str]:
     return {n for n in sim.plots[-1].vectors if n[:2] in ("v(", "i(")}
 
 
+def plain_full_own(deck: Path, form: str) -> tuple[set[str], set[str], frozenset[str]]:
+    """ngspice's vectors of *deck* and of its emitted deck in *form*, and heatweave's list."""
+    inputs = load_inputs(str(deck), str(deck.with_suffix(".thermal.toml")))
+    circuit, _ = thermal_circuit(inputs)
+    emitted = emit_deck(inputs.project, inputs.index, circuit, header("a", "", "b", ""),
+                        form=form)  # fmt: skip
+    own = own_vectors(inputs.index, added_names(circuit, emitted.form, emitted.heating))
+    return vectors(deck.read_text()), vectors(emitted.text), own
+
+
 @pytest.fixture
 def deck(tmp_path: Path) -> Path:
     path = tmp_path / "alike.cir"
@@ -90,14 +100,48 @@ def deck(tmp_path: Path) -> Path:
 def test_own_vectors_are_exactly_what_the_emitted_deck_adds(deck: Path, form: str) -> None:
     """ngspice on the plain deck and on the emitted one: the vectors only the emitted deck
     has are exactly heatweave's list, and none of the deck's own is among them."""
-    inputs = load_inputs(str(deck), str(deck.with_suffix(".thermal.toml")))
-    circuit, _ = thermal_circuit(inputs)
-    emitted = emit_deck(inputs.project, inputs.index, circuit, header("a", "", "b", ""),
-                        form=form)  # fmt: skip
-    plain, full = vectors(DECK), vectors(emitted.text)
-    own = own_vectors(inputs.index, added_names(circuit, emitted.form, emitted.heating))
+    plain, full, own = plain_full_own(deck, form)
     assert full - plain == own
     assert {"v(thw_1)", "v(x1.hw_out)", "i(vthw)", "i(v.x1.vhw_meter)"} <= plain - own
+
+
+# Two levels of instances: X1's definition holds XI of a cell defined inside it, whose
+# diode (heat only) and resistor are annotated; the cell has a node hw_in of its own.
+NESTED = """nested cells
+V1 in 0 DC 3
+X1 in 0 outer
+.subckt outer p n
+XI p mid cell
+RO mid n 500
+.subckt cell a b
+RC a hw_in 200
+Vhw_probe hw_in c 0
+DC c b dmod
+.ends
+.ends
+.model dmod D
+.op
+.end
+"""
+NESTED_NOTES = """schema = 1
+[part."X1.XI.RC"]
+model = "linear"
+tc1 = 0.003
+rth = 90.0
+[part."X1.XI.DC"]
+rth = 120.0
+"""
+
+
+@pytest.mark.parametrize("form", list(FORMS))
+def test_own_vectors_of_nested_instances(tmp_path: Path, form: str) -> None:
+    deck = tmp_path / "nested.cir"
+    deck.write_text(NESTED)
+    (tmp_path / "nested.thermal.toml").write_text(NESTED_NOTES)
+    plain, full, own = plain_full_own(deck, form)
+    assert full - plain == own
+    # ngspice names a source of a cell defined inside another's definition v.x1.v.xi.NAME
+    assert {"v(x1.xi.hw_in)", "i(v.x1.v.xi.vhw_probe)"} <= plain - own
 
 
 def test_run_reports_every_vector_of_the_deck_and_no_other(deck: Path) -> None:

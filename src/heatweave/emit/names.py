@@ -94,9 +94,10 @@ def added_names(circuit: ThermalCircuit, form: str, heating: bool) -> AddedNames
     tref = shared_nodes(form, models, heating)
     global_nodes = [AMBIENT_NODE, *(node.node for node in circuit.nodes), *tref]
     parts = []
+    inner = _InnerNodes()
     for part in circuit.parts:
-        net = part.network.elements(f"{PREFIX}{part.name}_", part.node, part.to, "0")
-        global_nodes.extend((part.node, *net.nodes))
+        global_nodes.append(part.node)
+        global_nodes.extend(inner(part))
         if part.model is not None:
             local = added_nodes(form, part.name, part.model, heating)
             branches = added_branches(form, part.name, part.model, heating)
@@ -110,16 +111,39 @@ def added_names(circuit: ThermalCircuit, form: str, heating: bool) -> AddedNames
                       tuple(parts))  # fmt: skip
 
 
+class _InnerNodes:
+    """A part's network's inner nodes (``prefix + suffix``, :class:`~heatweave.networks.
+    base.Realisation`), the suffixes realised once per network object: parts of one table
+    share theirs."""
+
+    def __init__(self) -> None:
+        self.suffixes: dict[int, tuple[str, ...]] = {}
+
+    def __call__(self, part: PartPlan) -> list[str]:
+        found = self.suffixes.get(id(part.network))
+        if found is None:
+            nodes = part.network.elements("\0", "\1", "\2", "0").nodes
+            found = self.suffixes[id(part.network)] = tuple(n[1:] for n in nodes)
+        prefix = f"{PREFIX}{part.name}_"
+        return [prefix + suffix for suffix in found]
+
+
 def own_vectors(index: DeckIndex, names: AddedNames) -> frozenset[str]:
     """The vectors of heatweave's own nodes and sources in a plot of the emitted deck,
     named as :mod:`heatweave.simulators.naming` names them (``v(x1.hw_x_x1_r4)``)."""
-    globals_ = global_names(index) | {n.lower() for n in names.global_nodes}
     found = {f"v({n.lower()})" for n in names.global_nodes}
     found.update(f"i({s.lower()})" for s in names.global_sources)
+    globals_: set[str] | None = None
     for entry in names.parts:
         resolved = entry.part.resolved or index.resolve(entry.part.path)
         if resolved is None:
             continue
+        if not resolved.instances:  # a top-level card: its names are the plot's
+            found.update(f"v({n.lower()})" for n in entry.nodes)
+            found.update(f"i({s.lower()})" for s in entry.sources)
+            continue
+        if globals_ is None:
+            globals_ = global_names(index) | {n.lower() for n in names.global_nodes}
         found.update(f"v({top_level_node(resolved, n, globals_)})" for n in entry.nodes)
         found.update(f"i({device_name(resolved, s)})" for s in entry.sources)
     return frozenset(found)
