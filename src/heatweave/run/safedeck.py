@@ -26,12 +26,12 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TypeVar
 
+from heatweave.emit.sections import MARK
 from heatweave.errors import DeckStructureError, Finding, Location
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 from heatweave.spice.project import Project, include_target, library_section, refuse_foreign
 from heatweave.spice.reader import read_file
 
-MARK = "*hw* "
 #: A line ngspice runs as a command although it looks like a comment (manual 17.5.80).
 _HASH_LINE = re.compile(r"(?m)^([ \t]*)\*#")
 _SCRIPT_TITLE = "*ng_script"
