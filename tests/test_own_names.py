@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import json
 import shutil
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -22,6 +23,9 @@ from heatweave.emit.emitter import emit_deck, header, load_inputs, thermal_circu
 from heatweave.emit.forms import FORMS
 from heatweave.emit.names import added_names, own_vectors, reserved
 from heatweave.errors import EXIT_BAD_INPUT
+from heatweave.run import runner
+from heatweave.run.prepare import RunOptions, prepare, simulate, with_deadline
+from heatweave.run.results import extract
 from heatweave.simulators import get_simulator
 from heatweave.spice.reader import read
 
@@ -225,3 +229,41 @@ def test_a_limit_on_a_look_alike_node_is_checked(tmp_path: Path) -> None:
     result = CliRunner().invoke(main, ["check", str(path), "--op"])
     assert result.exit_code == 0, result.output
     assert "2 limits checked, 0 violated" in result.output
+
+
+# An RTD (IEC 60751 model) inside a cell, driven at 50 mA: a plausible run.  At 1 A stock
+# ngspice 39's gmin stepping overflows in its heat source and names it so (checked by hand
+# with ngspice -b on the emitted deck): "Error: -1.13002e+200, 2 out of range for ^" then
+# "    in line b.x1.bhw_p_x1_rpt".
+RTD_CELL = """rtd inside a cell
+IEXC 0 top DC 50m
+RLEAD1 top hi 0.4
+X1 hi lo probe
+RLEAD2 lo 0 0.4
+.subckt probe a b
+RPT a b 100
+.ends
+.op
+.end
+"""
+RTD_NOTES = 'schema = 1\n[part."X1.RPT"]\nmodel = "rtd"\nrth = 250.0\ncth = 0.2\n'
+
+
+@pytest.mark.parametrize(("device", "suspected"), [
+    ("b.x1.bhw_p_x1_rpt", True),  # heatweave's heat source, as ngspice names it in X1
+    ("b.x1.bthw_p_x1_rpt", False),  # a deck's own source that merely looks alike
+])  # fmt: skip
+def test_an_overflow_is_heatweaves_only_in_its_own_sources(
+    tmp_path: Path, device: str, suspected: bool
+) -> None:
+    (tmp_path / "cell.cir").write_text(RTD_CELL)
+    (tmp_path / "cell.thermal.toml").write_text(RTD_NOTES)
+    inputs = load_inputs(str(tmp_path / "cell.cir"), str(tmp_path / "cell.thermal.toml"))
+    options = with_deadline(RunOptions(backend="batch"))
+    prepared = prepare(inputs, options)
+    sim = simulate(prepared, options)
+    results = extract(sim, prepared.emitted, inputs.index)
+    assert not runner.suspect(results, sim, prepared, inputs)  # plausible, nothing overflowed
+    overflow = "Error: -1.13002e+200, 2 out of range for ^\n    in line " + device + "\n"
+    logged = replace(sim, log=overflow + sim.log)
+    assert runner.suspect(results, logged, prepared, inputs) is suspected

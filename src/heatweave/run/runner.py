@@ -12,6 +12,7 @@ from dataclasses import dataclass, replace
 
 from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Inputs, load_inputs
+from heatweave.emit.names import reserved
 from heatweave.errors import (
     ConvergenceError,
     SimulationTimeoutError,
@@ -41,7 +42,6 @@ from heatweave.run.runaway import explain
 from heatweave.run.verify import verify_run
 from heatweave.simulators import SimResult
 from heatweave.simulators.diagnose import overflowed
-from heatweave.thermal.circuit import PREFIX
 
 
 @dataclass(frozen=True, slots=True)
@@ -75,7 +75,7 @@ def run(
             explained = explain_runaway(inputs, options, prepared, failure, None)
             raise (explained or failure) from None
         results = extract(sim, prepared.emitted, inputs.index)
-        if suspect(results, sim):
+        if suspect(results, sim, prepared, inputs):
             explained = explain_runaway(inputs, options, prepared, None, results)
             if explained is not None:
                 raise explained
@@ -97,14 +97,22 @@ def run(
     return RunOutcome(prepared, sim, results)
 
 
-def suspect(results: RunResults, sim: SimResult) -> bool:
+def suspect(results: RunResults, sim: SimResult, prepared: Prepared, inputs: Inputs) -> bool:
     """True when a run may have landed off the physical branch: an implausible result, a
     part outside its model's range, or a heatweave source that overflowed on the way
-    (ngspice then gave up its first attempts and may have found a far, spurious root)."""
+    (ngspice then gave up its first attempts and may have found a far, spurious root).
+    heatweave's sources are known by name (:func:`heatweave.emit.names.reserved`; ngspice
+    writes a source inside instances as ``b.x1.bhw_p_x1_r4``), never by a pattern."""
 
     if implausible(results) or any(outside_range(part) for part in results.parts):
         return True
-    return any(PREFIX in device for device in overflowed(sim.log))
+    devices = overflowed(sim.log)
+    if not devices:
+        return False
+    circuit, emitted = prepared.emitted.circuit, prepared.emitted
+    assert circuit is not None
+    own = reserved(inputs.index, circuit, emitted.form, emitted.heating).elements
+    return any(device.rsplit(".", 1)[-1] in own for device in devices)
 
 
 def explain_runaway(
