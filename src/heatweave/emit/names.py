@@ -106,7 +106,7 @@ def added_names(circuit: ThermalCircuit, form: str, heating: bool) -> AddedNames
             sensed = range(1, len(part.terminals))
             nodes = tuple(f"{PREFIX}s_{part.name}_{k}" for k in sensed)
             parts.append(PartNames(part, nodes, tuple(f"V{n}" for n in nodes)))
-    sources = [f"V{AMBIENT_NODE}", *_heads(c for c in preamble(form, models, heating))]
+    sources = [f"V{AMBIENT_NODE}", *_heads(preamble(form, models, heating))]
     return AddedNames(tuple(global_nodes), tuple(s for s in sources if s[:1] in "Vv"),
                       tuple(parts))  # fmt: skip
 
