@@ -186,6 +186,8 @@ COLLISIONS = [
     ("Rz z hw_n_board 1k", "hw_n_board", "a node"),  # the shared node
     ("Rz z hw_s_d1_1 1k", "hw_s_d1_1", "a node"),  # the diode's sensed terminal
     ("Rz hw_drive 0 1k", "hw_drive", "a node"),  # the runaway continuation's drive
+    ("Rz hw_hs1 0 1k", "hw_hs1", "a node"),  # the state scan's index of its second part
+    ("Vhw_hold0 z 0 0", "Vhw_hold0", "an element"),  # the state scan's holding source
     ("Bhw_p_r1 z 0 I = 1m", "Bhw_p_r1", "an element"),  # the resistor's heat source
     ("Rhw_r1_1 z 0 1k", "Rhw_r1_1", "an element"),  # its thermal resistance
     ("Vhw_amb z 0 1", "Vhw_amb", "an element"),  # the ambient source

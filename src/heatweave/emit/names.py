@@ -38,8 +38,27 @@ from heatweave.thermal.circuit import AMBIENT_NODE, PREFIX, PartPlan, ThermalCir
 #: The runaway continuation's drive: a node, its source (``run.runaway``).
 DRIVE_NODE = f"{PREFIX}drive"
 DRIVE_SOURCE = f"V{PREFIX}drive"
-#: The source the steady-state scan holds a hot spot with (``run.verify``).
-HOLD_SOURCE = f"V{PREFIX}hold"
+#: How many parts the steady-state scan (``run.states``) holds at once, at most.
+HELD_AT_ONCE = 2
+
+
+@dataclass(frozen=True, slots=True)
+class Hold:
+    """The names with which the steady-state scan holds its *k*-th part: a source on the
+    hot spot, a behavioural source giving the temperature from a swept index, the index's
+    source, and their two nodes."""
+
+    source: str
+    value: str
+    index: str
+    between: str
+    swept: str
+
+
+def hold(k: int) -> Hold:
+    """The names of the *k*-th held part (``k < HELD_AT_ONCE``)."""
+    return Hold(f"V{PREFIX}hold{k}", f"B{PREFIX}hold{k}", f"V{PREFIX}hs{k}", f"{PREFIX}hx{k}",
+                f"{PREFIX}hs{k}")  # fmt: skip
 
 
 def fix_source(k: int) -> str:
@@ -163,8 +182,11 @@ def reserved(
 ) -> Reserved:
     """The names the electrothermal deck of *circuit* (and a run's diagnosis decks) add."""
     names = added_names(circuit, form, heating)
+    holds = [hold(k) for k in range(HELD_AT_ONCE)]
     nodes = {*names.global_nodes, *names.local_nodes(), DRIVE_NODE}
-    elements = {DRIVE_SOURCE, HOLD_SOURCE, *names.global_sources}
+    nodes.update(n for h in holds for n in (h.between, h.swept))
+    elements = {DRIVE_SOURCE, *names.global_sources}
+    elements.update(e for h in holds for e in (h.source, h.value, h.index))
     elements.update(fix_source(k) for k in range(len(circuit.parts)))
     models = [p.model for p in circuit.parts if p.model is not None]
     section = thermal_section(circuit, [], False, form, [], heating).splitlines()

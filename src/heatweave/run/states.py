@@ -38,6 +38,7 @@ import numpy as np
 import numpy.typing as npt
 from scipy import ndimage
 
+from heatweave.emit.names import HELD_AT_ONCE, hold
 from heatweave.errors import Finding, SimulatorError
 from heatweave.run.runaway import TIGHT, Continuation, add_cards
 from heatweave.thermal.balance import thermal_nodes
@@ -150,18 +151,21 @@ def held_sweep(
     points); ``None`` when ngspice fails."""
     circuit = prepared.emitted.circuit
     assert circuit is not None
+    if len(parts) > HELD_AT_ONCE:  # their names are reserved for so many (emit.names)
+        raise ValueError(f"at most {HELD_AT_ONCE} parts are held at once")
     cards, steps = [], []
     for k, (part, values) in enumerate(zip(parts, axes, strict=True)):
         pairs = [f"{i},{t:.12g}" for i, t in enumerate(values)]
         table = "".join(
             f"\n+ {', '.join(pairs[j : j + 8])}," for j in range(0, len(pairs), 8)
         ).rstrip(",")
+        held = hold(k)
         cards += [
-            f"Vhw_hold{k} {part.node} hw_hx{k} DC 0",
-            f"Bhw_hold{k} hw_hx{k} 0 V = pwl(V(hw_hs{k}),{table})",
-            f"Vhw_hs{k} hw_hs{k} 0 DC 0",
+            f"{held.source} {part.node} {held.between} DC 0",
+            f"{held.value} {held.between} 0 V = pwl(V({held.swept}),{table})",
+            f"{held.index} {held.swept} 0 DC 0",
         ]
-        steps.append(f"vhw_hs{k} 0 {len(values) - 1} 1")
+        steps.append(f"{held.index.lower()} 0 {len(values) - 1} 1")
     try:
         sim = Continuation(prepared, options).simulate(
             add_cards(prepared.text, [*cards, TIGHT]), (f"dc {' '.join(steps)}",)
@@ -172,8 +176,8 @@ def held_sweep(
     temps = np.array([np.real(np.asarray(plot[f"v({n})"])) for n in thermal_nodes(circuit)],
                      dtype=float)  # fmt: skip
     # Heat the holding source takes out of the node: the surplus there.
-    surplus = np.array([np.real(np.asarray(plot[f"i(vhw_hold{k})"])) for k in range(len(parts))],
-                       dtype=float)  # fmt: skip
+    surplus = np.array([np.real(np.asarray(plot[f"i({hold(k).source.lower()})"]))
+                        for k in range(len(parts))], dtype=float)  # fmt: skip
     if temps.shape[1] != int(np.prod([len(a) for a in axes])):
         return None
     return temps, surplus
