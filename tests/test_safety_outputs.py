@@ -43,6 +43,7 @@ COMMANDS: dict[str, tuple[list[str], list[str], list[str]]] = {
     "run --csv": (["run"], SIMULATING, ["--csv"]),
     "run --plot": (["run"], SIMULATING, ["--plot"]),
     "check --junit": (["check"], SIMULATING, ["--junit"]),
+    "check --json": (["check"], SIMULATING, ["--json"]),
     "settle --json": (["settle"], [*SIMULATING, "--period", "1m"], ["--json"]),
     "settle --csv": (["settle"], [*SIMULATING, "--period", "1m", "--warmup", "10m"], ["--csv"]),
     "sweep --json": (["sweep"], [*SIMULATING, "-j", "1"], ["--json"]),
@@ -125,6 +126,25 @@ def test_every_output_option_refuses_every_input(
     assert result.exit_code == 2, result.output
     assert "never overwrites" in result.output
     assert "Traceback" not in result.output
+    assert snapshot(project) == before
+    assert not (project / "MARKER").exists()
+
+
+@pytest.mark.parametrize("spelling", ["relative", "dotdot", "symlink", "hardlink"])
+@pytest.mark.parametrize("option", [name for name in COMMANDS if not name.startswith("emit")])
+def test_every_output_option_refuses_the_init_file(
+    project: Path, option: str, spelling: str
+) -> None:
+    """The file ``--init-file`` names is an input too: no output may replace it."""
+    command, extra, words = COMMANDS[option]
+    (project / "my.init").write_text("* an ngspice init file of the user's\n")
+    path = SPELLINGS[spelling](project, "my.init")
+    before = snapshot(project)
+    result = CliRunner().invoke(
+        main, [*command, "d.cir", *extra, "--init-file", "my.init", *words, path]
+    )
+    assert result.exit_code == 2, result.output
+    assert "never overwrites" in result.output
     assert snapshot(project) == before
     assert not (project / "MARKER").exists()
 

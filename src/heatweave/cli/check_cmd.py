@@ -111,7 +111,7 @@ def check(
     check_html_path(html_file)
     chosen = annotation_for(deck, annotations)
     outputs = {"--junit": junit_file, "--json": json_file, "--html": html_file}
-    check_outputs(outputs, deck, chosen)
+    check_outputs(outputs, deck, chosen, init_file)
     started, stamp = time.monotonic(), datetime.now(UTC)
     try:
         inputs = load_inputs(deck, chosen)

@@ -295,10 +295,14 @@ def run_control_options(what: str) -> Callable[[F], F]:
 
 
 def check_outputs(
-    outputs: dict[str, str | None], deck: str, annotation: str | None = None
+    outputs: dict[str, str | None],
+    deck: str,
+    annotation: str | None = None,
+    init_file: str | None = None,
 ) -> None:
-    """At most one output on stdout, and none of them the deck or its annotation file (the
-    files it includes are checked by :func:`guard_outputs` once they are known)."""
+    """At most one output on stdout, and none of them the deck, its annotation file or the
+    ``--init-file`` (the files it includes are checked by :func:`guard_outputs` once they
+    are known)."""
 
     on_stdout = [name for name, path in outputs.items() if path == "-"]
     if len(on_stdout) > 1:
@@ -306,7 +310,12 @@ def check_outputs(
             f"{' and '.join(on_stdout)} both write to stdout",
             hint="send at most one of them to -; give the others file names",
         )
-    refuse_overwrite(outputs, input_files(deck, annotation))
+    refuse_overwrite(outputs, [*input_files(deck, annotation), *init_input(init_file)])
+
+
+def init_input(init_file: str | None) -> list[tuple[str, str]]:
+    """The ``--init-file`` as an input of the output guard (none when not given)."""
+    return [] if init_file is None else [("the init file", init_file)]
 
 
 def guard_outputs(outputs: dict[str, str | None], inputs: Inputs) -> None:

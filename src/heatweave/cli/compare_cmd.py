@@ -22,6 +22,7 @@ from heatweave.cli.common import (
     analysis_options,
     annotation_for,
     guarded,
+    init_input,
     input_files,
     simulation_options,
     timeout_option,
@@ -137,7 +138,7 @@ def compare(
         raise UsageError(
             f"{' and '.join(on_stdout)} both write to stdout", hint="send at most one to -"
         )
-    _guard_inputs(outputs, sources, annotations, revision)
+    _guard_inputs(outputs, sources, annotations, revision, init_file)
     options = Thresholds(max_rise_growth, max_drift_growth, max_margin_loss)
     sides = None
     if revision is not None:
@@ -220,16 +221,18 @@ def _guard_inputs(
     sources: tuple[str, ...],
     annotations: str | None,
     revision: str | None,
+    init_file: str | None,
 ) -> None:
     """Refuse, before anything runs, an output that is an input: the deck, its annotation
-    file and every file it includes (``--against``), or a saved result."""
+    file and every file it includes (``--against``) or the ``--init-file``, or a saved
+    result."""
 
     if revision is None or len(sources) != 1:
         refuse_overwrite(outputs, [("a result to compare", source) for source in sources])
         return
 
     deck = sources[0]
-    refuse_overwrite(outputs, input_files(deck, annotations))
+    refuse_overwrite(outputs, [*input_files(deck, annotations), *init_input(init_file)])
     chosen = annotation_for(deck, annotations)
     refuse_overwrite(outputs, input_files(deck, chosen, load_project(deck)))
 

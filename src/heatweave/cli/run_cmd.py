@@ -197,7 +197,7 @@ def run(
     if plot_file is not None:
         require_plotting()
     annotation_path = annotation_for(deck, annotations)
-    check_outputs(outputs, deck, annotation_path)
+    check_outputs(outputs, deck, annotation_path, init_file)
     inputs = load_inputs(deck, annotation_path)
     guard_outputs(outputs, inputs)
     # What ngspice 39 would refuse, and a deck analysis that would run to no points: exit 2.

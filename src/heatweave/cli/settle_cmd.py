@@ -146,7 +146,7 @@ def settle(
     check = check or junit_file is not None
     started = time.monotonic()
     annotation_path = annotation_for(deck, annotations)
-    check_outputs(outputs, deck, annotation_path)
+    check_outputs(outputs, deck, annotation_path, init_file)
     try:
         inputs = load_inputs(deck, annotation_path)
         guard_outputs(outputs, inputs)

@@ -197,7 +197,7 @@ def sweep(
     check_html_path(html_file)
     outputs = {"--json": json_file, "--csv": csv_file, "--plot": plot_file, "--junit": junit_file}
     annotation_path = annotation_for(deck, annotations)
-    check_outputs({**outputs, "--html": html_file}, deck, annotation_path)
+    check_outputs({**outputs, "--html": html_file}, deck, annotation_path, init_file)
     if plot_file is not None:
         require_plotting()
     ambients: tuple[float | None, ...] = (None,)
