@@ -132,6 +132,23 @@ def test_include_resolved_against_cwd(simulator: Simulator) -> None:
     assert op["v(mid)"][0] == pytest.approx(2.0, rel=1e-9)
 
 
+@pytest.mark.parametrize(
+    "folder", ["Jo's decks", 'the "old" decks', "decks (v2)", "back`quote", "new\nline", "$HOME"]
+)
+def test_include_resolved_in_a_folder_of_any_name(
+    simulator: Simulator, tmp_path: Path, folder: str
+) -> None:
+    """ngspice reads ``NGSPICE_INPUT_DIR`` as ``set sourcepath = ( DIR )``, so a quote, a
+    back quote, a parenthesis, a blank or a newline in the deck's folder stopped the batch
+    back end ("bad set form"): both back ends must find the deck's files there."""
+    where = tmp_path / folder
+    where.mkdir()
+    shutil.copytree(FIXTURES / "inc", where / "inc")
+    op = simulator.run(deck("uses_include.cir"), cwd=where).plot("op")
+    # 6 V over 2k + 1k: mid = 6 * 1k / 3k (voltage divider rule).
+    assert op["v(mid)"][0] == pytest.approx(2.0, rel=1e-9)
+
+
 def test_include_missing_without_cwd(simulator: Simulator) -> None:
     with pytest.raises(SimulatorError):
         simulator.run(deck("uses_include.cir"))

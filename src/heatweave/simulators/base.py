@@ -191,8 +191,27 @@ def private_environment(
     home.mkdir(exist_ok=True)
     env["HOME"] = str(home)
     if input_dir is not None:
-        env[INPUT_VARIABLE] = str(input_dir)
+        env[INPUT_VARIABLE] = input_folder(folder, input_dir)
     return env
+
+
+#: What ngspice cannot read in ``NGSPICE_INPUT_DIR``: the program makes it the command
+#: ``set sourcepath = ( ... )``, which splits at blanks, ends at a parenthesis or a newline,
+#: and reads quotes, back quotes and ``$`` itself ("bad set form" for a folder ``Jo's``).
+_UNREADABLE_FOLDER = re.compile(r"[\s()'\"`$;\\]|[^\x20-\x7e]")
+INPUT_LINK = "input"
+
+
+def input_folder(folder: Path, input_dir: str | os.PathLike[str]) -> str:
+    """*input_dir* as ngspice can read it: as it is, or, when its path holds a character
+    ngspice cannot take, a symbolic link to it inside the private *folder*."""
+    where = os.path.abspath(input_dir)
+    if not _UNREADABLE_FOLDER.search(where):
+        return where
+    link = folder / INPUT_LINK
+    if not link.is_symlink():
+        link.symlink_to(where, target_is_directory=True)
+    return str(link)
 
 
 def place_init_file(init_file: str | os.PathLike[str] | None, folder: Path) -> Path | None:

@@ -46,6 +46,7 @@ from .base import (
     Simulator,
     check_analysis,
     command_script,
+    input_folder,
     place_init_file,
     private_environment,
     timed_out,
@@ -157,7 +158,7 @@ def prepare_library(
     """Point the library at *input_dir* for files the deck names (``sourcepath``, which
     the library reads where the program reads ``NGSPICE_INPUT_DIR``; manual 19.4.1.3), or
     at the private *folder*, and ``source`` the *init_file* the user asked for."""
-    where = str(input_dir if input_dir is not None else folder)
+    where = str(folder) if input_dir is None else input_folder(folder, input_dir)
     if not any(ch.isspace() or ch in "()" for ch in where):
         library.command(f"setcs sourcepath = ( {where} )")
     init = place_init_file(init_file, folder)
