@@ -24,13 +24,13 @@ import re
 from collections.abc import Iterable
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import TypeVar
 
 from heatweave.emit.sections import MARK
 from heatweave.errors import DeckStructureError, Finding, Location
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 from heatweave.spice.project import Project, include_target, library_section, refuse_foreign
 from heatweave.spice.reader import read_file
+from heatweave.spice.transform import line_ended
 
 #: A line ngspice runs as a command although it looks like a comment (manual 17.5.80).
 _HASH_LINE = re.compile(r"(?m)^([ \t]*)\*#")
@@ -160,30 +160,11 @@ class _Inliner:
         note = Card(f"{MARK}inlined: {card.logical().text}\n", self.card(card).lead)
         inner = self.body(chosen, Path(full).parent, (*chain, link), top=False)
         if inner:
-            inner[-1] = _line_ended(inner[-1])
+            # ngspice reads the last line of an included file that does not end with a
+            # line end as a line of its own: the inlined copy must end it too (else the
+            # deck's next card would join it).
+            inner[-1] = line_ended(inner[-1])
         return [note, *inner]
-
-
-def _line_ended(node: Node) -> Node:
-    """*node* ending with a line end: ngspice reads the last line of an included file that
-    does not end with one as a line of its own, so the inlined copy must end it too (else
-    the deck's next card would join it)."""
-    if isinstance(node, Card):
-        return _text_ended(node)
-    if isinstance(node, ControlBlock):
-        return _text_ended(node)
-    if node.end is not None:
-        return replace(node, end=_text_ended(node.end))
-    if node.body:
-        return replace(node, body=(*node.body[:-1], _line_ended(node.body[-1])))
-    return replace(node, header=_text_ended(node.header))
-
-
-_Lines = TypeVar("_Lines", Card, ControlBlock)
-
-
-def _text_ended(node: _Lines) -> _Lines:
-    return node if node.text.endswith("\n") else replace(node, text=node.text + "\n")
 
 
 def findings(project: Project, allow_control: bool) -> tuple[Finding, ...]:
