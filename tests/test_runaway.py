@@ -22,11 +22,14 @@ from heatweave.errors import EXIT_THERMAL_RUNAWAY, ThermalRunawayError
 from heatweave.run import runner
 from heatweave.run.diagnosis import RunawayError
 from heatweave.run.runaway import (
-    driven_text,
+    TIGHT,
+    driven_deck,
     driving_point,
     first_jump,
     last_on_branch,
 )
+from heatweave.simulators import get_simulator
+from heatweave.spice.reader import read
 from heatweave.thermal.circuit import build_circuit
 
 KELVIN = 273.15
@@ -175,18 +178,65 @@ def test_first_jump(columns: list[float], expected: int | None) -> None:
     assert first_jump(np.array([columns])) == expected
 
 
-def test_driven_text_scales_every_injected_power() -> None:
+# The drive's own cards, before .end (names from emit/names.py).
+DRIVE_CARDS = f"Vhw_drive hw_drive 0 DC 0\n.global hw_drive\n{TIGHT}\n"
+
+
+@pytest.mark.parametrize(
+    ("text", "want"),
+    [
+        # a top-level part: its heat source scaled, its electrical source left alone, and a
+        # deck's own source named alike (not in the list) untouched
+        (
+            "title\nBhw_r1 a b I = V(a,b)/(R)\nBhw_p_r1 0 hw_t_r1 I = V(a,b)*V(a,b)/(R)\n"
+            "Bhw_p_mine 0 out I = 1m\n.end\n",
+            "title\nBhw_r1 a b I = V(a,b)/(R)\n"
+            "Bhw_p_r1 0 hw_t_r1 I = V(hw_drive)*(V(a,b)*V(a,b)/(R))\n"
+            f"Bhw_p_mine 0 out I = 1m\n{DRIVE_CARDS}.end\n",
+        ),
+        # a part inside a subcircuit copy; comments above it and above .end kept in place,
+        # CRLF kept, an unknown dot card untouched
+        (
+            "title\r\n.subckt cell__hw_x1 p q\r\n* heat\r\n"
+            "Bhw_p_x1_r2 0 hw_t_x1_r2 I = (V(c)-V(d))*I(Vhw_s_x1_r2_1)\r\n.ends\r\n"
+            ".frob 1 {2}\r\n* bye\r\n.end\r\n",
+            "title\r\n.subckt cell__hw_x1 p q\r\n* heat\r\n"
+            "Bhw_p_x1_r2 0 hw_t_x1_r2 I = V(hw_drive)*((V(c)-V(d))*I(Vhw_s_x1_r2_1))\r\n"
+            f".ends\r\n.frob 1 {{2}}\r\n{DRIVE_CARDS}* bye\r\n.end\r\n",
+        ),
+        # the name in any case, as ngspice compares names
+        (
+            "t\nBHW_P_R1 0 hw_t_r1 i=1m\n.end\n",
+            f"t\nBHW_P_R1 0 hw_t_r1 i=V(hw_drive)*(1m)\n{DRIVE_CARDS}.end\n",
+        ),
+    ],
+)
+def test_driven_deck_scales_every_injected_power(text: str, want: str) -> None:
+    deck = read(text)
+    out = driven_deck(deck, ["Bhw_p_r1", "Bhw_p_x1_r2"])
+    assert out.write() == want
+    assert deck.write() == text  # the prepared deck is not changed
+
+
+@pytest.mark.ngspice
+def test_driven_deck_scales_the_heat_by_the_drive() -> None:
+    """ngspice on a driven deck: R1 = 100 ohm across 2 V dissipates 2^2/100 = 40 mW (Joule),
+    into a 50 K/W path: the hot node rises drive * 2 K.  The part inside a subcircuit (10 V
+    across 100 ohm: 1 W into 5 K/W) reads the global drive node: drive * 5 K."""
     text = (
-        "title\nBhw_r1 a b I = V(a,b)/(R)\nBhw_p_r1 0 hw_t_r1 I = V(a,b)*V(a,b)/(R)\n"
-        "Bhw_p_x1_r2 0 hw_t_x1_r2 I = (V(c)-V(d))*I(Vhw_s_x1_r2_1)\n"
-        "Bhw_p_mine 0 out I = 1m\n.end\n"  # the deck's own source, named alike
+        "driven\nV1 a 0 2\nR1 a 0 100\nBhw_p_r1 0 t1 I = V(a)*V(a)/100\nRth1 t1 0 50\n"
+        ".subckt cell p\nRx p 0 100\nBhw_p_x1_rx 0 t2 I = V(p)*V(p)/100\nRth2 t2 0 5\n.ends\n"
+        "V2 b 0 10\nX1 b cell\n.op\n.end\n"
     )
-    out = driven_text(text, ["Bhw_p_r1", "Bhw_p_x1_r2"])
-    assert "Bhw_p_r1 0 hw_t_r1 I = V(hw_drive)*(V(a,b)*V(a,b)/(R))" in out
-    assert "I = V(hw_drive)*((V(c)-V(d))*I(Vhw_s_x1_r2_1))" in out
-    assert "Bhw_r1 a b I = V(a,b)/(R)\n" in out  # the electrical source is left alone
-    assert "Bhw_p_mine 0 out I = 1m\n" in out
-    assert out.index("Vhw_drive hw_drive 0 DC 0") < out.index(".end")
+    deck = driven_deck(read(text), ["Bhw_p_r1", "Bhw_p_x1_rx"])
+    sim = get_simulator("batch").run(
+        deck.write(), analyses=("dc vhw_drive 0 1 0.25",), deck_analyses=False
+    )
+    plot = sim.plots[-1]
+    drive = np.real(np.asarray(plot.scale_values))
+    assert drive == pytest.approx([0, 0.25, 0.5, 0.75, 1])
+    assert np.real(np.asarray(plot["v(t1)"])) == pytest.approx(2 * drive, abs=1e-9)
+    assert np.real(np.asarray(plot["v(x1.t2)"])) == pytest.approx(5 * drive, abs=1e-9)
 
 
 def test_driving_point_resistances(tmp_path: Path) -> None:

@@ -95,8 +95,8 @@ class Prepared:
     deck_analyses: bool
     findings: tuple[Finding, ...]
     cwd: str
-    #: The tree *text* was written from (a diagnosis that edits the text keeps it: its
-    #: analyses are the prepared ones).
+    #: The tree *text* was written from; a diagnosis deck is a transform of this tree,
+    #: written once for its simulation (:func:`heatweave.run.runaway.simulate_deck`).
     deck: Deck = field(repr=False, compare=False, kw_only=True)
 
 

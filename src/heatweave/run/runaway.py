@@ -46,7 +46,6 @@ turn non-finite is reported with the part and the time it passed that (and its `
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Iterable
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
@@ -61,8 +60,12 @@ from heatweave.run.diagnosis import HINT, Diagnosis, RunawayError
 from heatweave.run.prepare import simulate
 from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, growth
 from heatweave.run.sources import single_source
+from heatweave.spice.deck import Card, Deck
+from heatweave.spice.grammar import parse_card
 from heatweave.spice.hierarchy import global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
+from heatweave.spice.syntax import ElementSyntax
+from heatweave.spice.transform import insert_before_end, map_cards, new_cards
 from heatweave.thermal.balance import check_state, conductances, thermal_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
 
@@ -88,33 +91,40 @@ MAX_LEVELS = 6
 # Near a fold the power balance is flat, so ngspice's default tolerances (reltol 1e-3)
 # accept points slightly past it; the diagnosis decks solve tighter.
 TIGHT = ".options reltol=1e-6 vntol=1e-9 abstol=1e-15"
-_POWER_LINE = re.compile(r"^(\S+\s+0\s+\S+\s+I\s*=\s*)(.+)$", re.IGNORECASE | re.MULTILINE)
-_END_LINE = re.compile(r"^\.end\s*$", re.IGNORECASE | re.MULTILINE)
 
 
-def driven_text(text: str, sources: Iterable[str]) -> str:
+def driven_deck(deck: Deck, sources: Iterable[str]) -> Deck:
     """The emitted deck with every injected dissipation (the heat sources named *sources*,
-    :func:`heatweave.emit.names.power_source`) scaled by ``V(hw_drive)``; a deck's own
-    source of a like name is left alone."""
-    named = {name.lower() for name in sources}
-
-    def scaled(m: re.Match[str]) -> str:
-        if m[1].split(maxsplit=1)[0].lower() not in named:
-            return m[0]
-        return f"{m[1]}V({DRIVE_NODE})*({m[2].rstrip()})"
-
+    :func:`heatweave.emit.names.power_source`, at any depth) scaled by ``V(hw_drive)``, and
+    the drive's source, its node made global and :data:`TIGHT` before ``.end``; every other
+    card (a deck's own source of a like name too) as it was."""
+    named = frozenset(name.lower() for name in sources)
+    scaled = map_cards(deck, lambda card: _driven(card) if card.name in named else card)
     drive = f"{DRIVE_SOURCE_CARD} {DRIVE_NODE} 0 DC 0"
-    return add_cards(_POWER_LINE.sub(scaled, text), [drive, f".global {DRIVE_NODE}", TIGHT])
+    return insert_before_end(scaled, new_cards([drive, f".global {DRIVE_NODE}", TIGHT]))
 
 
-def add_cards(text: str, cards: list[str]) -> str:
-    """*text* with *cards* placed before its last ``.end`` (or at the end)."""
-    block = "".join(card + "\n" for card in cards)
-    ends = list(_END_LINE.finditer(text))
-    if not ends:
-        return text + ("" if text.endswith("\n") else "\n") + block
-    at = ends[-1].start()
-    return text[:at] + block + text[at:]
+def _driven(card: Card) -> Card:
+    """Heat source *card* (``Bhw_p_r1 0 hw_t_r1 I = <expr>``, written by the emitter) as
+    ``... I = V(hw_drive)*(<expr>)``."""
+    text = card.logical().text
+    syntax = parse_card(text)
+    current = syntax.param("i") if isinstance(syntax, ElementSyntax) else None
+    assert current is not None, f"not a heat source of heatweave's: {text}"
+    at, end = current.value.offset, current.value.end
+    scaled = f"{text[:at]}V({DRIVE_NODE})*({text[at:end]}){text[end:]}"
+    return card.with_text(scaled + ("\r\n" if card.text.endswith("\r\n") else "\n"))
+
+
+def simulate_deck(
+    prepared: Prepared, options: RunOptions, deck: Deck, analyses: tuple[str, ...] | None = None
+) -> SimResult:
+    """ngspice on a diagnosis *deck* (a transform of ``prepared.deck``, written here once),
+    with *analyses* instead of the prepared ones when given, without a progress bar."""
+    diagnosis = replace(prepared, text=deck.write(), deck=deck)
+    if analyses is not None:
+        diagnosis = replace(diagnosis, analyses=analyses, deck_analyses=False)
+    return simulate(diagnosis, replace(options, progress=None))
 
 
 class Continuation:
@@ -126,31 +136,24 @@ class Continuation:
         assert prepared.emitted.circuit is not None
         self.index = index  # with it, every sweep point is held to the heat balance
         self.prepared = prepared
-        self.options = replace(options, progress=None)
+        self.options = options
         self.circuit = prepared.emitted.circuit
-        self.text = driven_text(prepared.text, map(power_source, self.circuit.parts))
+        self.deck = driven_deck(prepared.deck, map(power_source, self.circuit.parts))
         self.nodes = thermal_nodes(self.circuit)
 
-    def run(self, text: str, analyses: tuple[str, ...]) -> tuple[Plot, ...]:
-        sim = self.simulate(text, analyses)
+    def run(self, deck: Deck, analyses: tuple[str, ...]) -> tuple[Plot, ...]:
+        """The DC sweeps of ngspice on *deck* with *analyses*."""
+        sim = simulate_deck(self.prepared, self.options, deck, analyses)
         return tuple(p for p in sim.plots if p.kind == "dc")
-
-    def simulate(self, text: str, analyses: tuple[str, ...] | None = None) -> SimResult:
-        """ngspice on *text*, with *analyses* instead of the prepared ones when given."""
-
-        prepared = replace(self.prepared, text=text)
-        if analyses is not None:
-            prepared = replace(prepared, analyses=analyses, deck_analyses=False)
-        return simulate(prepared, self.options)
 
     def sweep(self, lo: float, step: float, count: int, start: FloatArray | None) -> Plot:
         """Drive from *lo* in *count* steps of *step*, from thermal temperatures *start*."""
-        text = self.text
+        deck = self.deck
         if start is not None:
             sets = " ".join(f"V({n})={t:.12g}" for n, t in zip(self.nodes, start, strict=True))
-            text = add_cards(text, [f".nodeset {sets}"])
+            deck = insert_before_end(deck, new_cards([f".nodeset {sets}"]))
         hi = lo + count * step
-        return self.run(text, (f"dc {DRIVE_SOURCE} {lo:.12g} {hi:.12g} {step:.12g}",))[-1]
+        return self.run(deck, (f"dc {DRIVE_SOURCE} {lo:.12g} {hi:.12g} {step:.12g}",))[-1]
 
     def converged(
         self, lo: float, step: float, count: int, start: FloatArray | None
@@ -397,7 +400,7 @@ def power_jacobian(cont: Continuation, index: DeckIndex, temps: FloatArray) -> F
         f"{FD_STEP:.12g}"
         for k, p in enumerate(parts)
     )
-    plots = cont.run(add_cards(cont.text, cards), analyses)
+    plots = cont.run(insert_before_end(cont.deck, new_cards(cards)), analyses)
     nodes = [terminals(p, index) for p in parts]
     jac = np.zeros((len(parts), len(parts)))
     for j, plot in enumerate(plots):

@@ -40,7 +40,8 @@ from scipy import ndimage
 
 from heatweave.emit.names import HELD_AT_ONCE, hold
 from heatweave.errors import Finding, SimulatorError
-from heatweave.run.runaway import TIGHT, Continuation, add_cards
+from heatweave.run.runaway import TIGHT, simulate_deck
+from heatweave.spice.transform import insert_before_end, new_cards
 from heatweave.thermal.balance import thermal_nodes
 
 if TYPE_CHECKING:
@@ -167,9 +168,8 @@ def held_sweep(
         ]
         steps.append(f"{held.index.lower()} 0 {len(values) - 1} 1")
     try:
-        sim = Continuation(prepared, options).simulate(
-            add_cards(prepared.text, [*cards, TIGHT]), (f"dc {' '.join(steps)}",)
-        )
+        deck = insert_before_end(prepared.deck, new_cards([*cards, TIGHT]))
+        sim = simulate_deck(prepared, options, deck, (f"dc {' '.join(steps)}",))
     except SimulatorError:
         return None
     plot: Plot = [p for p in sim.plots if p.kind == "dc"][-1]

@@ -36,9 +36,10 @@ from heatweave.errors import Finding, SimulatorError, ThermalRunawayError
 from heatweave.quantities import parse_number
 from heatweave.run.diagnosis import HINT, RunawayError
 from heatweave.run.results import RunResults, extract
-from heatweave.run.runaway import TIGHT, Continuation, add_cards, diagnose, follow
+from heatweave.run.runaway import TIGHT, Continuation, diagnose, follow, simulate_deck
 from heatweave.run.states import HINT as STATES_HINT
 from heatweave.run.states import scan, statement
+from heatweave.spice.transform import insert_before_end, new_cards
 from heatweave.thermal.balance import (
     ABSTOL_T,
     RELTOL,
@@ -236,8 +237,8 @@ def resolve(
     circuit = prepared.emitted.circuit
     assert circuit is not None
     sets = " ".join(f"V({n})={t:.12g}" for n, t in zip(thermal_nodes(circuit), temps, strict=True))
-    text = add_cards(prepared.text, [f".nodeset {sets}", TIGHT])
-    sim = Continuation(prepared, options).simulate(text)
+    deck = insert_before_end(prepared.deck, new_cards([f".nodeset {sets}", TIGHT]))
+    sim = simulate_deck(prepared, options, deck)
     results = extract(sim, prepared.emitted, inputs.index)
     at = steady_index(results, circuit)
     verdict = verdict_of(results, circuit, at if at is not None else -1, prepared.text)
