@@ -16,7 +16,7 @@ import sys
 import time
 import uuid
 from collections.abc import Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import pytest
@@ -40,6 +40,8 @@ R2 out 0 100
 """
 # check would settle a periodic deck instead; this one ramps.
 RAMP_DECK = SLOW_DECK.replace("SIN(0 14.142 1k)", "PWL(0 0 50 14)")
+# A transient of a second or so per corner here: a sweep of four corners ends in seconds.
+BRIEF_DECK = SLOW_DECK.replace(".tran 1u 50 0 1u", ".tran 1u 0.1 0 1u")
 ANNOTATION = """schema = 1
 
 [ambient]
@@ -58,6 +60,7 @@ class Command:
     process: subprocess.Popen[bytes]
     marker: str
     tmpdir: Path
+    seen: dict[str, set[int]] = field(default_factory=dict)
 
     def marked(self) -> list[tuple[int, str]]:
         """(pid, name) of every live process carrying this command's marker."""
@@ -94,25 +97,43 @@ class Command:
                 return alive
             time.sleep(0.2)
 
-    def files(self, *, multiprocessing: bool = True) -> list[str]:
+    def started(self, needle: str) -> set[int]:
+        """Pids of this command's processes, dead or alive, whose command line holds *needle*
+        (gathered while :meth:`wait_until` polls)."""
+        for pid, _ in self.marked():
+            try:
+                if needle.encode() in Path(f"/proc/{pid}/cmdline").read_bytes():
+                    self.seen.setdefault(needle, set()).add(pid)
+            except OSError:
+                continue
+        return self.seen.get(needle, set())
+
+    def wait_until(self, needle: str, count: int, timeout: float = 90.0) -> None:
+        """Wait until *count* processes with *needle* in their command line have started."""
+        end = time.monotonic() + timeout
+        while len(self.started(needle)) < count:
+            assert time.monotonic() < end, f"fewer than {count} {needle} processes appeared"
+            assert self.process.poll() is None, self.process.communicate()
+            time.sleep(0.05)
+
+    def files(self) -> list[str]:
         """What is left in the command's TMPDIR (a folder with its contents)."""
         found = []
         for path in sorted(self.tmpdir.iterdir()):
-            if multiprocessing or not path.name.startswith("pymp-"):
-                inner = sorted(q.name for q in path.iterdir()) if path.is_dir() else []
-                found.append(f"{path.name} {inner}" if inner else path.name)
+            inner = sorted(q.name for q in path.iterdir()) if path.is_dir() else []
+            found.append(f"{path.name} {inner}" if inner else path.name)
         return found
 
 
 @pytest.fixture
 def start(tmp_path: Path) -> Iterator[object]:
-    for name, text in (("slow", SLOW_DECK), ("ramp", RAMP_DECK)):
+    for name, text in (("slow", SLOW_DECK), ("ramp", RAMP_DECK), ("brief", BRIEF_DECK)):
         (tmp_path / f"{name}.cir").write_text(text)
         (tmp_path / f"{name}.thermal.toml").write_text(ANNOTATION)
     started: list[Command] = []
 
-    def launch(*args: str) -> Command:
-        deck, quiet = ("ramp.cir", []) if args[0] == "check" else ("slow.cir", ["-q"])
+    def launch(*args: str, deck: str = "slow.cir") -> Command:
+        deck, quiet = ("ramp.cir", []) if args[0] == "check" else (deck, ["-q"])
         tmpdir = tmp_path / f"tmp{len(started)}"
         tmpdir.mkdir()
         marker = uuid.uuid4().hex
@@ -196,9 +217,9 @@ def test_sigkill_of_a_sweep_ends_its_workers_and_ngspice(start) -> None:  # type
     command.process.kill()  # no handler sees this: the children must notice themselves
     command.process.wait()
     assert command.left_over() == []
-    # Each worker removed its own ngspice folder; only Python's multiprocessing folder
-    # of the killed command stays (nothing runs in the killed process to remove it).
-    assert command.files(multiprocessing=False) == []
+    # Each worker removed its own ngspice folder, and the first to notice the command
+    # gone removed the command's multiprocessing folder (pymp-*, issue 14).
+    assert command.files() == []
 
 
 @needs_program
@@ -306,3 +327,50 @@ def test_a_timeout_below_a_second_explains_the_scale_factor(tmp_path: Path) -> N
     )  # fmt: skip
     assert done.returncode == EXIT_TIMEOUT, done.stderr
     assert "within 1e-06 s" in done.stderr and "1m is a millisecond" in done.stderr
+
+
+#: When the signal comes in a two-worker sweep of four corners: (deck, what has started).
+MOMENTS = {
+    # the fork server importing the worker modules, or starting the first workers
+    "fork-server": ("slow.cir", "forkserver", 1),
+    "workers": ("slow.cir", "forkserver", 2),
+    # both workers inside ngspice
+    "mid-run": ("slow.cir", "heatweave-deck.cir", 2),
+    # the last of the four corners started: the first ones have finished and reported
+    "last-corner": ("brief.cir", "heatweave-deck.cir", 4),
+}
+
+
+@pytest.mark.slow
+@needs_program
+@pytest.mark.parametrize("attempt", range(3))
+@pytest.mark.parametrize("moment", MOMENTS)
+@pytest.mark.parametrize(
+    ("signum", "group", "status"),
+    [
+        pytest.param(signal.SIGINT, True, EXIT_INTERRUPTED, id="ctrl-c"),
+        pytest.param(signal.SIGTERM, False, 143, id="term"),
+    ],
+)
+def test_a_signal_to_a_sweep_prints_no_traceback(
+    start, moment: str, signum: int, group: bool, status: int, attempt: int
+) -> None:  # type: ignore[no-untyped-def]
+    # Issue 14: on Python 3.11 the pool's manager thread, finding its workers gone, set an
+    # error on jobs the sweep had already cancelled and printed an InvalidStateError
+    # traceback; a Ctrl-C during the fork server's imports printed theirs; a worker half
+    # started when the command left printed a FileNotFoundError traceback.
+    deck, needle, count = MOMENTS[moment]
+    command = start("sweep", "--ambient", "20:50:10", "-j", "2", deck=deck)
+    command.wait_until(needle, count)
+    time.sleep(0.1 * attempt)  # a little later each time
+    assert command.process.poll() is None, finish(command)
+    if group:
+        os.killpg(command.process.pid, signum)
+    else:
+        command.process.send_signal(signum)
+    code, err = finish(command)
+    assert "Traceback" not in err, err
+    assert "Error" not in err, err
+    assert code == status, err
+    assert command.left_over() == []
+    assert command.files() == [], err

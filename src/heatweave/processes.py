@@ -76,11 +76,18 @@ def catch_termination(handler: Callable[[int, FrameType | None], None] = _raise)
     Returns the handlers replaced, for :func:`restore`."""
     if threading.current_thread() is not threading.main_thread():
         return {}
+
+    def deferrable(signum: int, frame: FrameType | None) -> None:
+        if _held is not None:  # the main thread is inside signals_deferred(): later
+            _held.append(signum)
+            return
+        handler(signum, frame)
+
     previous: Handlers = {}
     for signum in (*ENDING, signal.SIGINT):
         if signum == signal.SIGINT and signal.getsignal(signum) is signal.SIG_IGN:
             continue
-        previous[signum] = signal.signal(signum, handler)
+        previous[signum] = signal.signal(signum, deferrable)
     return previous
 
 
@@ -91,17 +98,36 @@ def restore(previous: Handlers) -> None:
         signal.signal(signum, handler)
 
 
+#: Signals that reached a :func:`catch_termination` handler while the main thread was
+#: inside :func:`signals_deferred` (``None`` outside it).
+_held: list[int] | None = None
+
+
 @contextmanager
 def signals_deferred() -> Iterator[None]:
     """Hold SIGINT, SIGTERM and SIGHUP back while the body runs (a child process being
     started, a temporary folder being made and recorded), so that the exception they
-    raise comes before or after it, never half-way.  A held signal arrives at the end."""
-    held = {signal.SIGINT, *ENDING}
-    signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    raise comes before or after it, never half-way.  A held signal arrives at the end.
+
+    The thread's signal mask holds them back from this thread and from the processes it
+    starts; but the kernel hands a signal sent to the process to any thread that does not
+    block it (a numerical library's), and Python then runs the handler in the main thread
+    at once.  The handlers :func:`catch_termination` installs therefore keep such a signal
+    for the end of the outermost block in the main thread."""
+    global _held
+    blocked = {signal.SIGINT, *ENDING}
+    outermost = _held is None and threading.current_thread() is threading.main_thread()
+    if outermost:
+        _held = []
+    signal.pthread_sigmask(signal.SIG_BLOCK, blocked)
     try:
         yield
     finally:
-        signal.pthread_sigmask(signal.SIG_UNBLOCK, held)
+        signal.pthread_sigmask(signal.SIG_UNBLOCK, blocked)
+        if outermost:
+            held, _held = _held or [], None
+            if held:
+                signal.raise_signal(held[0])  # to the handler in place now
 
 
 def die_with_parent(signum: int = signal.SIGKILL) -> None:

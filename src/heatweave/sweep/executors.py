@@ -18,8 +18,12 @@ from __future__ import annotations
 
 import importlib
 import multiprocessing
+import multiprocessing.forkserver
+import multiprocessing.resource_tracker
+import multiprocessing.util
 import os
 import select
+import shutil
 import signal
 import threading
 import time
@@ -29,7 +33,13 @@ from types import FrameType
 from typing import Any, Protocol, TypeVar
 
 from heatweave.errors import UsageError
-from heatweave.processes import Terminated, catch_termination, ignore_further
+from heatweave.processes import (
+    ENDING,
+    Terminated,
+    catch_termination,
+    ignore_further,
+    signals_deferred,
+)
 
 J = TypeVar("J")
 R = TypeVar("R")
@@ -81,6 +91,9 @@ class SerialExecutor:
         return None
 
 
+#: The signals a command ends on, held back in the fork server for its whole life.
+_HELD = {signal.SIGINT, *ENDING}
+
 #: True while a worker process runs a job (see :func:`_end_worker`).
 _IN_JOB = False
 
@@ -94,19 +107,24 @@ def _end_worker(signum: int, frame: FrameType | None) -> None:
     os._exit(128 + signum)
 
 
-def _start_worker(command: int) -> None:
+def _start_worker(command: int, folder: str) -> None:
     """Set a worker process up.  ngspice is built with OpenMP: each worker gets one
     thread, so that N workers use N cores rather than fighting over them (Dask's nanny
     does the same).  The worker ends on SIGTERM, SIGHUP and SIGINT, which the command
     coordinates, and when the *command* process dies, even by SIGKILL (a worker's parent
-    is the fork server, which lives as long as its workers do)."""
+    is the fork server, which lives as long as its workers do); then it removes the
+    command's multiprocessing *folder*, which the killed command could not."""
     os.environ.setdefault("OMP_NUM_THREADS", "1")
     catch_termination(_end_worker)
-    threading.Thread(target=_watch, args=(command,), daemon=True).start()
+    threading.Thread(target=_watch, args=(command, folder), daemon=True).start()
+    # Born with the signals held back (see ProcessExecutor): from here on they end it.
+    signal.pthread_sigmask(signal.SIG_UNBLOCK, _HELD)
 
 
-def _watch(pid: int) -> None:
-    """SIGTERM to this worker once process *pid* has ended.  The thread takes no signal
+def _watch(pid: int, folder: str) -> None:
+    """SIGTERM to this worker once process *pid* has ended, after removing *folder*.  The
+    command only ends before its workers when it was killed (it ends them first
+    otherwise), so the folder it named is stale then.  The thread takes no signal
     itself: they go to the main thread, which holds them back while it starts ngspice."""
     signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT, signal.SIGTERM, signal.SIGHUP})
     try:
@@ -125,6 +143,7 @@ def _watch(pid: int) -> None:
                 break
             except PermissionError:
                 pass
+    shutil.rmtree(folder, ignore_errors=True)  # another worker may be at it too
     os.kill(os.getpid(), signal.SIGTERM)
 
 
@@ -154,33 +173,52 @@ class ProcessExecutor:
         self.workers = workers
         context = multiprocessing.get_context("forkserver")
         context.set_forkserver_preload(list(preload))
+        # The fork server starts with SIGINT, SIGTERM and SIGHUP held back, and keeps them
+        # so: a Ctrl-C to the whole group during its imports would print their traceback.
+        # It ends when this process does (its end of a pipe closes).  Workers inherit the
+        # held signals until _start_worker has its handlers in place.  The resource
+        # tracker starts first: starting it unblocks SIGINT and SIGTERM on its way out.
+        multiprocessing.resource_tracker.ensure_running()
+        with signals_deferred():
+            multiprocessing.forkserver.ensure_running()
+        # The folder the fork server's socket lives in (removed at a normal exit).
+        folder = multiprocessing.util.get_temp_dir()
+        self._aborted = False
         self._pool = ProcessPoolExecutor(
             max_workers=workers,
             mp_context=context,
             initializer=_start_worker,
-            initargs=(os.getpid(),),
+            initargs=(os.getpid(), folder),
         )
 
     def run(self, func: Callable[[J], R], jobs: Sequence[J]) -> Iterator[tuple[int, R]]:
-        pending: dict[Future[R], int] = {
-            self._pool.submit(_call, func, job): position for position, job in enumerate(jobs)
-        }
-        try:
-            while pending:
-                done, _ = wait(pending, return_when=FIRST_COMPLETED)
-                for future in done:
-                    yield pending.pop(future), future.result()
-        finally:
-            for future in pending:
-                future.cancel()
+        # Submitting starts the workers: a signal waits until every one is recorded, so
+        # abort() ends them all (one half started would outlive the command and fail).
+        with signals_deferred():
+            pending: dict[Future[R], int] = {
+                self._pool.submit(_call, func, job): position for position, job in enumerate(jobs)
+            }
+        # Jobs left when the caller stops early are dropped by close() or abort().
+        while pending:
+            done, _ = wait(pending, return_when=FIRST_COMPLETED)
+            for future in done:
+                yield pending.pop(future), future.result()
 
     def close(self) -> None:
-        self._pool.shutdown(wait=True, cancel_futures=True)
+        """Wait for the pool to end; after :meth:`abort`, only as long as it takes."""
+        self._pool.shutdown(wait=not self._aborted, cancel_futures=True)
 
     def abort(self) -> None:
         """SIGTERM to every worker (each unwinds its job and exits), SIGKILL to any still
-        running after :data:`ABORT_GRACE` seconds."""
-        workers = list(getattr(self._pool, "_processes", {}).values())
+        running after :data:`ABORT_GRACE` seconds.
+
+        Queued jobs are dropped by the pool's own manager thread (``shutdown`` with
+        ``cancel_futures``), never cancelled from here: Python 3.11's manager, finding a
+        worker gone, sets an error on every job it still holds and raises
+        ``InvalidStateError`` (a traceback on stderr) for one already cancelled."""
+        self._aborted = True
+        workers = list((getattr(self._pool, "_processes", None) or {}).values())
+        self._pool.shutdown(wait=False, cancel_futures=True)
         for worker in workers:
             worker.terminate()
         deadline = time.monotonic() + ABORT_GRACE
@@ -189,7 +227,9 @@ class ProcessExecutor:
             if worker.is_alive():
                 worker.kill()
                 worker.join(1.0)
-        self._pool.shutdown(wait=False, cancel_futures=True)
+        manager = getattr(self._pool, "_executor_manager_thread", None)
+        if manager is not None:  # it notices the workers are gone and ends
+            manager.join(max(deadline - time.monotonic(), 1.0))
 
 
 class DaskExecutor:
