@@ -374,3 +374,34 @@ def test_a_signal_to_a_sweep_prints_no_traceback(
     assert code == status, err
     assert command.left_over() == []
     assert command.files() == [], err
+
+
+EARLY = """
+import signal, sys
+import click
+from heatweave import cli
+
+convert = click.Choice.convert
+signum = getattr(signal, sys.argv[1])
+
+def convert_then_signal(self, value, param, ctx):
+    signal.raise_signal(signum)  # while the options are read
+    return convert(self, value, param, ctx)
+
+click.Choice.convert = convert_then_signal
+sys.argv = ["heatweave", "--color", "never", "lint", "missing.cir"]
+cli.entry()
+"""
+
+
+@pytest.mark.parametrize(("name", "status"), [("SIGINT", 130), ("SIGTERM", 143), ("SIGHUP", 129)])
+def test_a_signal_while_the_options_are_read_exits_with_its_status(name: str, status: int) -> None:
+    # Before a command's own handlers are in place, Ctrl-C gave click's "Aborted!" and
+    # status 1 (a failed check, to CI), SIGTERM ended the process with no message.
+    done = subprocess.run(
+        [sys.executable, "-c", EARLY, name], capture_output=True, text=True, timeout=60,
+        check=False,
+    )  # fmt: skip
+    assert done.returncode == status, done.stderr
+    assert "Aborted" not in done.stderr and "Traceback" not in done.stderr, done.stderr
+    assert done.stderr.startswith("interrupted" if name == "SIGINT" else "terminated")

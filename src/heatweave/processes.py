@@ -20,6 +20,7 @@ import os
 import signal
 import sys
 import threading
+import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from types import FrameType
@@ -111,9 +112,11 @@ def signals_deferred() -> Iterator[None]:
 
     The thread's signal mask holds them back from this thread and from the processes it
     starts; but the kernel hands a signal sent to the process to any thread that does not
-    block it (a numerical library's), and Python then runs the handler in the main thread
-    at once.  The handlers :func:`catch_termination` installs therefore keep such a signal
-    for the end of the outermost block in the main thread."""
+    block it (a numerical library's).  Python then runs the handler in the main thread when
+    that thread next takes the interpreter lock, which may be inside the block: the
+    handlers :func:`catch_termination` installs keep such a signal for the end of the
+    outermost block in the main thread.  A brief sleep at the end takes the lock again, so
+    that the handler runs then, not after the next long wait (a child's output, say)."""
     global _held
     blocked = {signal.SIGINT, *ENDING}
     outermost = _held is None and threading.current_thread() is threading.main_thread()
@@ -124,6 +127,7 @@ def signals_deferred() -> Iterator[None]:
         yield
     finally:
         signal.pthread_sigmask(signal.SIG_UNBLOCK, blocked)
+        time.sleep(0)  # lets go of the interpreter lock: a pending handler runs on return
         if outermost:
             held, _held = _held or [], None
             if held:

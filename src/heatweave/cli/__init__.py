@@ -8,12 +8,15 @@ from __future__ import annotations
 
 import gc
 import importlib
+import signal
+from types import FrameType
 from typing import Any
 
 import click
 
 from heatweave import __version__
 from heatweave.cli.common import COLOUR_KEY, COLOUR_MODES
+from heatweave.processes import catch_termination, ignore_further
 
 #: The command line's own collector threshold (young generation, then the two older ones).
 #: Reading a large deck makes millions of small objects with no reference cycle among them;
@@ -76,7 +79,19 @@ def main(ctx: click.Context, colour: str) -> None:
         ctx.color = colour == "always"
 
 
+def _leave_early(signum: int, frame: FrameType | None) -> None:
+    """A signal before the command's own handlers are in place (options being read,
+    the command being imported): nothing has started, so leave at once with the shell's
+    status, not with click's "Aborted!" and status 1."""
+    ignore_further()
+    click.echo("interrupted" if signum == signal.SIGINT else f"terminated by signal {signum}",
+               err=True)  # fmt: skip
+    raise SystemExit(128 + signum)
+
+
 def entry() -> None:
-    """The installed ``heatweave`` command: the process's collector setting, then :func:`main`."""
+    """The installed ``heatweave`` command: the process's collector setting and signal
+    handlers (each command puts its own in place while it runs), then :func:`main`."""
     gc.set_threshold(*PROCESS_GC_THRESHOLD)
+    catch_termination(_leave_early)
     main()

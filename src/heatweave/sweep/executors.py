@@ -159,6 +159,9 @@ def _call(func: Callable[[J], R], job: J) -> R:
         _IN_JOB = False
 
 
+#: Seconds the command sleeps at most while waiting for a job (a signal waits this long).
+WAKE_EVERY = 0.25
+
 #: Seconds workers have to clean up after SIGTERM before they are killed.
 ABORT_GRACE = 5.0
 
@@ -200,7 +203,9 @@ class ProcessExecutor:
             }
         # Jobs left when the caller stops early are dropped by close() or abort().
         while pending:
-            done, _ = wait(pending, return_when=FIRST_COMPLETED)
+            # A signal the kernel hands to another thread (a BLAS thread) does not wake a
+            # main thread asleep in a lock: its handler runs when the wait times out.
+            done, _ = wait(pending, timeout=WAKE_EVERY, return_when=FIRST_COMPLETED)
             for future in done:
                 yield pending.pop(future), future.result()
 
