@@ -29,7 +29,7 @@ from heatweave.annotation import (
     schema,
 )
 from heatweave.cli.schema_cmd import schema as schema_command
-from heatweave.errors import AnnotationError
+from heatweave.errors import AnnotationError, UnreadableInputError
 from heatweave.spice.globmatch import matching_paths
 from heatweave.tempmodels import REGISTRY
 
@@ -529,7 +529,7 @@ def test_bad_file(
 
 
 def test_missing_file(tmp_path: Path) -> None:
-    with pytest.raises(AnnotationError) as caught:
+    with pytest.raises(UnreadableInputError) as caught:
         load(tmp_path / "amp.thermal.toml", deck_name="amp.cir")
     assert caught.value.message.startswith("cannot read the annotation file")
     assert caught.value.hint == "create it beside the deck (e.g. amp.thermal.toml)"

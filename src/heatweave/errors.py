@@ -97,6 +97,11 @@ class InputError(HeatweaveError):
     """The user's input cannot be used as it is (exit status 2)."""
 
 
+class UnreadableInputError(InputError):
+    """An input named on the command line (a deck, an annotation file, a result) cannot be
+    read at all: missing, a folder, no permission, no regular file, too large."""
+
+
 class DeckSyntaxError(InputError):
     """A card of the deck does not follow ngspice's syntax."""
 

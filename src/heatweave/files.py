@@ -8,6 +8,7 @@ so an interrupted run never leaves half a file behind.
 
 from __future__ import annotations
 
+import errno
 import os
 import signal
 import stat
@@ -19,7 +20,7 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import BinaryIO
 
-from heatweave.errors import UsageError
+from heatweave.errors import UnreadableInputError, UsageError
 
 ENCODING = "utf-8"
 ERRORS = "surrogateescape"
@@ -42,6 +43,18 @@ def read_text(path: str | os.PathLike[str]) -> str:
     return decode(read_bytes(path))
 
 
+def read_input(path: str | os.PathLike[str]) -> str:
+    """:func:`read_text` of an input named on the command line, any OS error (no such
+    file, no permission, a folder) reported as :class:`UnreadableInputError`."""
+    try:
+        return read_text(path)
+    except OSError as err:
+        raise UnreadableInputError(
+            f"cannot read {path}: {err.strerror or err}",
+            hint="check the path and that the file may be read",
+        ) from None
+
+
 def read_bytes(path: str | os.PathLike[str]) -> bytes:
     """The bytes of the regular file *path*.
 
@@ -52,9 +65,9 @@ def read_bytes(path: str | os.PathLike[str]) -> bytes:
     try:
         mode = os.fstat(fd).st_mode
         if stat.S_ISDIR(mode):
-            raise IsADirectoryError(f"{path} is a folder")
+            raise IsADirectoryError(errno.EISDIR, "it is a folder", str(path))
         if not stat.S_ISREG(mode):
-            raise UsageError(
+            raise UnreadableInputError(
                 f"cannot read {path}: it is not a regular file ({_kind(mode)})",
                 hint="save the input to a file, or pipe it through standard input as -",
             )
@@ -74,7 +87,7 @@ def _at_most(handle: BinaryIO, path: str | os.PathLike[str]) -> bytes:
     """All of *handle*, refused when it holds more than :data:`MAX_INPUT_BYTES`."""
     data = handle.read(MAX_INPUT_BYTES + 1)
     if len(data) > MAX_INPUT_BYTES:
-        raise UsageError(
+        raise UnreadableInputError(
             f"cannot read {path}: it holds more than {MAX_INPUT_BYTES} bytes",
             hint="split it into files of their own (a deck can .include them)",
         )

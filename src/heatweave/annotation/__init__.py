@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from heatweave.annotation.binding import DeckCatalog, bind
 from heatweave.annotation.fields import Distribution
-from heatweave.annotation.loader import default_path, load, loads
+from heatweave.annotation.loader import annotation_beside, default_path, load, loads
 from heatweave.annotation.sampling import sample
 from heatweave.annotation.schema import schema
 from heatweave.annotation.types import (
@@ -47,6 +47,7 @@ __all__ = [
     "PartSpec",
     "PathSpec",
     "ReviewSpec",
+    "annotation_beside",
     "bind",
     "default_path",
     "load",

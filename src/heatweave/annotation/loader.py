@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import itertools
+import os
 import tomllib
 from pathlib import Path
 
@@ -33,7 +34,7 @@ from heatweave.annotation.types import (
     PathSpec,
     ReviewSpec,
 )
-from heatweave.errors import AnnotationError, Location
+from heatweave.errors import AnnotationError, Location, UnreadableInputError
 from heatweave.quantities import ABSOLUTE_ZERO, below_absolute_zero
 from heatweave.spice.deck import unprintable
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
@@ -54,6 +55,16 @@ def default_path(deck: str | Path) -> Path:
     """``DECK.thermal.toml`` beside *deck* (``amp.cir`` -> ``amp.thermal.toml``)."""
     deck = Path(deck)
     return deck.with_name(f"{deck.stem}{ANNOTATION_SUFFIX}")
+
+
+def annotation_beside(deck: str | Path) -> Path | None:
+    """``DECK.thermal.toml`` beside *deck* when anything is there (a folder or a broken
+    link too, which reading then refuses, rather than taking the deck as unannotated);
+    ``None`` when nothing is, or for standard input."""
+    if str(deck) == "-":
+        return None
+    candidate = default_path(deck)
+    return candidate if os.path.lexists(candidate) else None
 
 
 def is_annotation_file(path: str | Path) -> bool:
@@ -79,10 +90,13 @@ def load(path: str | Path, deck_name: str | None = None) -> Annotation:
     try:
         data = files.read_bytes(path)
     except OSError as err:
-        raise AnnotationError(
+        missing = isinstance(err, FileNotFoundError)
+        raise UnreadableInputError(
             f"cannot read the annotation file {file}: {err.strerror or err}",
             None,
-            f"create it beside the deck (e.g. {default_path(deck_name or 'deck.cir').name})",
+            f"create it beside the deck (e.g. {default_path(deck_name or 'deck.cir').name})"
+            if missing
+            else "it must be a file you may read: check its permissions, or name the file",
         ) from None
     try:
         text = data.decode("utf-8")

@@ -3,15 +3,13 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
-from heatweave.annotation import bind, default_path, load
+from heatweave.annotation import annotation_beside, bind, load
 from heatweave.checks.limits import resolve_limits
 from heatweave.emit.emitter import Inputs, emit_inputs
 from heatweave.emit.forms import FORMS
 from heatweave.emit.placement import refuse_reserved
 from heatweave.emit.sections import folded_files
-from heatweave.errors import Finding, HeatweaveError
+from heatweave.errors import Finding, HeatweaveError, UnreadableInputError
 from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.lint import lint_project, order
 from heatweave.spice.project import Project, load_project
@@ -35,6 +33,8 @@ def annotation_findings(
             folded = folded_files(project)
             for form in FORMS:
                 refuse_reserved(index, emitted.circuit, folded, form)
+    except UnreadableInputError:
+        raise  # no finding in the file: it cannot be used at all (exit 2, as elsewhere)
     except HeatweaveError as err:
         error = Finding("error", err.message, err.location, err.hint)
         seen = {(f.location, f.message) for f in known}
@@ -45,14 +45,17 @@ def annotation_findings(
 
 def lint_file(path: str, annotation: str | None = None) -> list[Finding]:
     """Lint a deck on disk and its annotation file (the one beside it unless named); an
-    unreadable deck or include is itself a finding."""
+    unreadable include is a finding at its include card.  A deck or annotation file that
+    cannot be read at all raises :class:`UnreadableInputError` (exit 2, as elsewhere)."""
     try:
         project = load_project(path)
+    except UnreadableInputError:
+        raise
     except HeatweaveError as err:
         return [Finding("error", err.message, err.location, err.hint)]
     if annotation is None:
-        candidate = default_path(path)
-        annotation = str(candidate) if Path(candidate).is_file() else None
+        beside = annotation_beside(path)
+        annotation = str(beside) if beside is not None else None
     index = DeckIndex(project)
     findings = lint_project(project, index)
     if annotation is not None:

@@ -209,7 +209,7 @@ def annotation_for(deck: str, annotations: str | None) -> str:
     """The annotation file to use: the one given, else ``DECK.thermal.toml`` beside the deck."""
 
     # numpy and scipy load here, when the command runs, not for --help
-    from heatweave.annotation import default_path
+    from heatweave.annotation import annotation_beside, default_path
 
     if annotations:
         return annotations
@@ -218,12 +218,12 @@ def annotation_for(deck: str, annotations: str | None) -> str:
             "a deck read from standard input (-) has no annotation file beside it",
             hint="name the annotation file with -a FILE, e.g. - -a amp.thermal.toml",
         )
-    candidate = default_path(deck)
-    if Path(candidate).is_file():
-        return str(candidate)
+    found = annotation_beside(deck)
+    if found is not None:  # a folder or broken link there is refused when read
+        return str(found)
     raise UsageError(
         f"no annotation file for {deck}",
-        hint=f"write {candidate} beside the deck, or name one with -a FILE",
+        hint=f"write {default_path(deck)} beside the deck, or name one with -a FILE",
     )
 
 

@@ -10,19 +10,18 @@ import click
 
 from heatweave.cli.common import guarded, input_files, report_findings
 from heatweave.emit.forms import FORMS
-from heatweave.errors import EXIT_CHECK_FAILED, UsageError
+from heatweave.errors import EXIT_CHECK_FAILED, UnreadableInputError, UsageError
 from heatweave.files import encode, read_text, refuse_overwrite, same_file, write_atomic
 from heatweave.spice.project import load_project
 
 
 def default_annotation(deck: str) -> Path | None:
     """``DECK.thermal.toml`` beside the deck (``amp.thermal.toml`` for ``amp.cir``), or
-    ``None`` when there is none."""
+    ``None`` when there is none (a folder there is refused when read)."""
     # numpy and scipy load here, when the command runs, not for --help
-    from heatweave.annotation import default_path
+    from heatweave.annotation import annotation_beside
 
-    candidate = default_path(deck)
-    return candidate if deck != "-" and candidate.is_file() else None
+    return annotation_beside(deck)
 
 
 def build_emitted(
@@ -110,6 +109,10 @@ def emit(
         except FileNotFoundError as err:
             raise UsageError(
                 f"{check_file} does not exist", hint="emit it first with -o " + check_file
+            ) from err
+        except OSError as err:  # a path through a file, say
+            raise UnreadableInputError(
+                f"cannot read {check_file}: {err.strerror or err}", hint="check the path"
             ) from err
         if committed != text:
             click.echo(f"{check_file}: stale: {stale_reason(committed, text)}", err=True)

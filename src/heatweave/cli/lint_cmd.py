@@ -7,7 +7,14 @@ import sys
 import click
 
 from heatweave.cli.common import guarded, style_severity
-from heatweave.errors import EXIT_CHECK_FAILED, Finding, HeatweaveError, UsageError
+from heatweave.errors import (
+    EXIT_BAD_INPUT,
+    EXIT_CHECK_FAILED,
+    Finding,
+    HeatweaveError,
+    UnreadableInputError,
+    UsageError,
+)
 
 
 @click.command()
@@ -35,9 +42,10 @@ def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool, str
     file given as a DECK (NAME.thermal.toml, as a pre-commit hook passes it) checks the
     deck beside it (NAME.cir, .sp, .spi, .spice or .ckt), or the file alone when there is
     none.  Prints one finding a line as FILE:LINE:COL: error|warning: message, and exits
-    with status 1 when there is any error (with --strict, any warning too; 2 for unusable
-    options).  Errors are what ngspice 39 refuses or what would make heatweave's output
-    wrong; a deck ngspice runs gives warnings at most.
+    with status 1 when there is any error (with --strict, any warning too); 2 for unusable
+    options or a deck or annotation file that cannot be read.  Errors are what ngspice 39
+    refuses or what would make heatweave's output wrong; a deck ngspice runs gives
+    warnings at most.
     """
 
     if annotations is not None and len(decks) > 1:
@@ -48,13 +56,22 @@ def lint(decks: tuple[str, ...], annotations: str | None, no_warnings: bool, str
             "-a so that each deck is checked with its own DECK.thermal.toml",
         )
     errors = 0
+    unreadable = 0
     for deck in _decks(decks):
-        for finding in _findings(deck, annotations):
+        try:
+            found = _findings(deck, annotations)
+        except UnreadableInputError as err:  # the other decks are still linted
+            click.echo(style_severity(err.render(), err.severity), err=True)
+            unreadable += 1
+            continue
+        for finding in found:
             if finding.severity == "error" or strict:
                 errors += 1
             if finding.severity != "error" and no_warnings:
                 continue
             click.echo(style_severity(finding.render(), finding.severity))
+    if unreadable:  # unusable input, as for every command
+        sys.exit(EXIT_BAD_INPUT)
     if errors:
         sys.exit(EXIT_CHECK_FAILED)
 
@@ -81,6 +98,8 @@ def _findings(file: str, annotations: str | None) -> list[Finding]:
     if annotations is None and is_annotation_file(file):
         try:
             load(file)
+        except UnreadableInputError:
+            raise
         except HeatweaveError as err:
             return [*err.findings, Finding("error", err.message, err.location, err.hint)]
         return []

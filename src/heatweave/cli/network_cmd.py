@@ -9,7 +9,7 @@ import numpy as np
 
 from heatweave.cli.common import guarded, require_plotting
 from heatweave.errors import UsageError
-from heatweave.files import read_text, refuse_overwrite, write_atomic
+from heatweave.files import read_input, refuse_overwrite, write_atomic
 from heatweave.networks import Foster, NetworkError, NetworkForm, to_cauer, to_foster
 from heatweave.networks.fit import FitResult, fit_foster
 from heatweave.networks.textio import ZthData, network_toml, read_network_toml, read_zth_csv
@@ -54,7 +54,7 @@ def fit_command(
     check_outputs({"-o": output, "--plot": plot_file}, [("the Zth data", zth_file)])
     if plot_file is not None:
         require_plotting()
-    data = read_zth_csv(read_text(zth_file), _shown(zth_file))
+    data = read_zth_csv(read_input(zth_file), _shown(zth_file))
     keep = np.ones(data.t.size, dtype=bool)
     if t_min is not None:
         keep &= data.t >= t_min
@@ -94,7 +94,7 @@ def convert_command(network_file: str, target: str, part: str | None, output: st
     networks have the same Zth at every frequency; the invariants are printed as comments.
     """
     check_outputs({"-o": output}, [("the network file", network_file)])
-    source = read_network_toml(read_text(network_file), _shown(network_file), part)
+    source = read_network_toml(read_input(network_file), _shown(network_file), part)
     converted = to_cauer(source) if target == "cauer" else to_foster(source)
     write_atomic(output, network_toml(converted, _invariants(source, converted)))
 

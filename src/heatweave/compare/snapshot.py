@@ -17,10 +17,11 @@ import json
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
-from pathlib import Path, PureWindowsPath
+from pathlib import PureWindowsPath
 from typing import Any
 
-from heatweave.errors import Location, UsageError
+from heatweave import files
+from heatweave.errors import Location, UnreadableInputError, UsageError
 
 PPM = 1e6
 
@@ -235,10 +236,10 @@ def _designs(side: Snapshot) -> set[str]:
 
 def read_result(path: str) -> dict[str, Any]:
     """A saved ``run``/``settle``/``sweep`` JSON result, or a refusal in words."""
-    try:
-        text = Path(path).read_text(encoding="utf-8")
+    try:  # a pipe or device is refused, not waited on or read to no end
+        text = files.read_bytes(path).decode("utf-8")
     except (OSError, UnicodeDecodeError) as err:
-        raise UsageError(
+        raise UnreadableInputError(
             f"cannot read the result {path}: {getattr(err, 'strerror', None) or err}",
             hint="give the JSON file a run, settle or sweep wrote with --json",
         ) from None

@@ -10,7 +10,7 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
-from heatweave.errors import DeckStructureError, HeatweaveError, Location
+from heatweave.errors import DeckStructureError, HeatweaveError, Location, UnreadableInputError
 from heatweave.spice.deck import Block, Card, Deck, Node, iter_cards
 from heatweave.spice.grammar import syntax_of
 from heatweave.spice.reader import read_file
@@ -120,7 +120,10 @@ def _follow(
         key = str(full)
         deck = cache.get(key)
         if deck is None:
-            deck = read_file(key, title=False)
+            try:
+                deck = read_file(key, title=False)
+            except UnreadableInputError as err:  # located at the card that names it
+                raise DeckStructureError(err.message, where, hint=err.hint) from None
             refuse_foreign(deck, name, where)
             cache[key] = deck
         if deck.source is not None and not _MAY_INCLUDE.search(deck.source.text):

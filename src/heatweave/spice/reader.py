@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import re
 
-from heatweave.errors import DeckStructureError
+from heatweave.errors import UnreadableInputError
 from heatweave.files import read_text
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
 
@@ -138,19 +138,23 @@ def read_file(path: str, *, title: bool = True) -> Deck:
 
 def read_deck_text(path: str) -> str:
     """A deck's text as :func:`heatweave.files.read_text` gives it, with an unreadable
-    file reported as a :class:`DeckStructureError` rather than an OS error."""
+    file reported as an :class:`UnreadableInputError` rather than an OS error."""
 
     try:
         return read_text(path)
     except FileNotFoundError as err:
-        raise DeckStructureError(
+        raise UnreadableInputError(
             f"cannot read {path}: no such file", hint="check the path and the current folder"
         ) from err
     except IsADirectoryError as err:
-        raise DeckStructureError(
+        raise UnreadableInputError(
             f"cannot read {path}: it is a folder", hint="name the deck file itself"
         ) from err
     except PermissionError as err:
-        raise DeckStructureError(
+        raise UnreadableInputError(
             f"cannot read {path}: permission denied", hint="check the file's permissions"
+        ) from err
+    except OSError as err:  # a path through a file (ENOTDIR), a name too long, ...
+        raise UnreadableInputError(
+            f"cannot read {path}: {err.strerror or err}", hint="check the path"
         ) from err
