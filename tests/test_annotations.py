@@ -214,6 +214,24 @@ BAD = [
         "TOML syntax: expected ']' at the end of a table declaration",
         TOML_HINT,
     ),
+    # A comment may hold U+2028 (and a quoted key U+0085): characters of their line in
+    # TOML, line breaks to str.splitlines, which shifted every position after them.
+    (
+        "syntax-after-a-line-separator",
+        HEAD + "# one\u2028two, \u0085three\n[part.R1\nrth = 1\n",
+        3,
+        9,
+        "TOML syntax: expected ']' at the end of a table declaration",
+        TOML_HINT,
+    ),
+    (
+        "value-after-a-line-separator",
+        HEAD + '# one\u2028two\n[part.R1]\nmodel = "linear"\ntc1_ppm = 50\nrth = -3\n',
+        6,
+        7,
+        "rth must be a positive number in K/W, not -3",
+        "for example rth = 30.0",
+    ),
     (
         "rth-abc",
         LINEAR + 'rth = "abc"\n',
@@ -523,7 +541,7 @@ def test_bad_file(
     err = caught.value
     assert err.location is not None
     assert (err.location.file, err.location.line, err.location.column) == (str(path), line, column)
-    assert err.location.source_line == text.splitlines()[line - 1]
+    assert err.location.source_line == text.split("\n")[line - 1]  # lines as TOML counts
     assert (err.message, err.hint) == (message, hint)
     assert err.exit_code == 2
 

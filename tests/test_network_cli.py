@@ -164,6 +164,15 @@ def test_convert_of_a_steady_only_stage_names_the_file(tmp_path: Path) -> None:
     assert code == 2 and f"{notes}:1:1:" in err and "cth = 0" in err and "hint:" in err
 
 
+def test_convert_locates_a_value_after_a_line_separator(tmp_path: Path) -> None:
+    # TOML reads U+2028 in a comment as a character of its line; splitting lines at it put
+    # the error a line too low (issue 14).
+    notes = tmp_path / "sep.toml"
+    notes.write_text("# one\u2028two\nfoster = [[1.0, -2.0]]\n")
+    code, _, err = _run("convert", str(notes), "--to", "cauer")
+    assert code == 2 and f"{notes}:2:1:" in err and "tau of foster stage 1" in err, err
+
+
 def test_convert_says_when_no_part_has_a_network(tmp_path: Path) -> None:
     notes = tmp_path / "bare.toml"
     notes.write_text('schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0\n')

@@ -18,6 +18,7 @@ from __future__ import annotations
 import os
 import subprocess
 import sys
+import unicodedata
 from pathlib import Path
 
 import pytest
@@ -198,6 +199,11 @@ INJECTED = [
     ("part-bell", '[part."RTOP\\u0007"]\nrth = 60.0\n', "2:7"),
     ("bidi", '[node."board\\u202e"]\nrth = 5.0\n', "2:7"),
     ("limit", '[limit."V(out)\\r.control"]\nmax = 1.0\n', "2:8"),
+    # Written as they are, not escaped: TOML reads U+0085 and U+2028 as characters of the
+    # line, Python's splitlines as line breaks, which put the error at 1:1 (issue 14).
+    ("part-raw-nel", '[part."RTOP\u0085"]\nmodel = "linear"\ntc1 = 0.003\nrth = 60.0\n', "2:7"),
+    ("node-raw-line-separator", '[node."board\u2028x"]\nrth = 5.0\n', "2:7"),
+    ("after-a-separator", '# one\u2028two\n[part."RTOP\\u0007"]\nrth = 60.0\n', "3:7"),
 ]  # fmt: skip
 
 
@@ -217,6 +223,9 @@ def test_names_that_inject_lines_are_refused_where_they_stand(
     assert "no deck name may hold" in result.output
     assert "Traceback" not in result.output
     assert not marker.exists()
+    # The excerpt of the line shows such a character as "?", never as it is.
+    shown = [c for c in result.output if c not in "\n\t"]
+    assert not [c for c in shown if unicodedata.category(c) in ("Cc", "Cf", "Zl", "Zp")]
 
 
 def test_a_deck_file_name_with_a_newline_is_refused(tmp_path: Path) -> None:

@@ -23,6 +23,7 @@ Exit codes are stable and documented in the README:
 
 from __future__ import annotations
 
+import unicodedata
 from dataclasses import dataclass
 
 EXIT_OK = 0
@@ -36,6 +37,11 @@ EXIT_THERMAL_RUNAWAY = 7
 EXIT_TIMEOUT = 8
 EXIT_INTERRUPTED = 130
 EXIT_TERMINATED = 143
+
+
+#: Unicode categories an excerpt never prints: control and format characters, line and
+#: paragraph separators.
+_HIDDEN = ("Cc", "Cf", "Zl", "Zp")
 
 
 @dataclass(frozen=True, slots=True)
@@ -55,7 +61,13 @@ class Location:
         """The source line with a caret under the column, or an empty string."""
         if self.source_line is None:
             return ""
-        text = self.source_line.rstrip("\r\n")
+        # A control or format character or a line separator (what a refused name may hold)
+        # is shown as "?": printed as it is, it would move, clear or split the terminal's
+        # line.  One character for one keeps the caret under the column.
+        text = "".join(
+            "?" if ch != "\t" and unicodedata.category(ch) in _HIDDEN else ch
+            for ch in self.source_line.rstrip("\r\n")
+        )
         # Tabs before the column are kept so the caret lines up in a terminal.
         lead = "".join(ch if ch == "\t" else " " for ch in text[: max(self.column - 1, 0)])
         return f"    {text}\n    {lead}^"

@@ -121,6 +121,16 @@ def _skip_value(lines: list[str], row: int, col: int) -> int:
     return len(lines) - 1
 
 
+def toml_lines(text: str) -> list[str]:
+    """*text*'s lines as TOML (and ``tomllib``'s line numbers) count them: only LF or CR LF
+    ends a line.  ``str.splitlines`` also breaks at U+0085, U+2028, U+2029, VT, FF and the
+    file separators, which a quoted key may hold: every position after one was off."""
+    lines = text.split("\n")
+    if lines[-1] == "":
+        lines.pop()
+    return [line.removesuffix("\r") for line in lines]
+
+
 @dataclass(slots=True)
 class Locator:
     """Key paths of one TOML text mapped to their positions."""
@@ -131,7 +141,7 @@ class Locator:
     spots: dict[KeyPath, Spot] = field(init=False)
 
     def __post_init__(self) -> None:
-        self.lines = self.text.splitlines()
+        self.lines = toml_lines(self.text)
         self.spots = {}
         self._scan()
 
@@ -202,7 +212,7 @@ class Locator:
 def syntax_error(err: tomllib.TOMLDecodeError, file: str, text: str) -> AnnotationError:
     """A ``tomllib`` error as an :class:`AnnotationError` pointing at its line and column."""
     message = str(err)
-    lines = text.splitlines()
+    lines = toml_lines(text)
     m = _POSITION.search(message)
     if m is not None:
         line, column = int(m.group(1)), int(m.group(2))

@@ -18,7 +18,7 @@ from heatweave.networks.convert import to_foster
 from heatweave.networks.foster import Foster
 from heatweave.networks.single import Single
 from heatweave.quantities import parse_number
-from heatweave.tomlspots import syntax_error
+from heatweave.tomlspots import syntax_error, toml_lines
 
 
 class DataFileError(InputError):
@@ -100,7 +100,7 @@ def read_zth_csv(text: str, filename: str) -> ZthData:
 
 
 def _line_of(text: str, pattern: str, after: int = 0) -> int | None:
-    lines = text.splitlines()
+    lines = toml_lines(text)
     for index in range(after, len(lines)):
         if re.match(pattern, lines[index]):
             return index + 1
@@ -110,7 +110,7 @@ def _line_of(text: str, pattern: str, after: int = 0) -> int | None:
 def _where(text: str, filename: str, line: int | None) -> Location | None:
     if line is None:
         return None
-    lines = text.splitlines()
+    lines = toml_lines(text)
     return Location(filename, line, 1, lines[line - 1] if line <= len(lines) else None)
 
 
