@@ -157,6 +157,30 @@ def lcm(a: Fraction, b: Fraction) -> Fraction:
     return Fraction(math.lcm(a.numerator, b.numerator), math.gcd(a.denominator, b.denominator))
 
 
+def transient_function(
+    card: Card,
+) -> tuple[str, Location | None, list[tuple[str, int]], int] | None:
+    """A ``V``/``I`` card's transient function: its kind (``PULSE``), where its keyword is,
+    its arguments with their offsets, and the offset after them; ``None`` for a DC source."""
+    text = card.logical().text
+    # Skip the name and the two nodes before looking for a function keyword.
+    fields = re.match(r"\s*\S+\s+\S+\s+\S+", text)
+    body = fields.end() if fields else len(text)
+    hit = _KEYWORD.search(text, body)
+    if hit is None:
+        return None
+    args, end = _arguments(text, hit.end())
+    return hit[1].upper(), card.location(hit.start()), args, end
+
+
+def pwl_options(card: Card, end: int) -> dict[str, tuple[str, int]]:
+    """A ``PWL``'s ``r=`` and ``td=`` after its points (from offset *end*), by lower-case
+    name, each with the offset it is read at."""
+    text = card.logical().text
+    found = re.finditer(r"\b(r|td)\s*=\s*(\S+)", text[end:], re.IGNORECASE)
+    return {m[1].lower(): (m[2], end + m.start(2)) for m in found}
+
+
 def read_wave(path: str, card: Card, params: Mapping[str, float]) -> Wave:
     """The drive of one element (see the module docstring)."""
     text = card.logical().text
@@ -172,15 +196,10 @@ def read_wave(path: str, card: Card, params: Mapping[str, float]) -> Wave:
                     unknown="its value is an expression of time")  # fmt: skip
     if letter not in "VI":
         return Wave(path, "element", None)
-    # Skip the name and the two nodes before looking for a function keyword.
-    fields = re.match(r"\s*\S+\s+\S+\s+\S+", text)
-    body = fields.end() if fields else len(text)
-    hit = _KEYWORD.search(text, body)
-    if hit is None:
+    function = transient_function(card)
+    if function is None:
         return Wave(path, "DC", None)
-    kind = hit[1].upper()
-    where = card.location(hit.start())
-    args, end = _arguments(text, hit.end())
+    kind, where, args, end = function
 
     def value(k: int) -> Fraction | None:
         if k >= len(args):
@@ -205,7 +224,7 @@ def read_wave(path: str, card: Card, params: Mapping[str, float]) -> Wave:
             return _problem(wave, "is damped (THETA is not 0), so it does not repeat")
         return Wave(path, kind, where, 1 / freq, float(delay))
     if kind == "PWL":
-        return _pwl(wave, args, text[end:], params, card)
+        return _pwl(wave, args, pwl_options(card, end), params, card)
     if kind in ("SFFM", "AM"):
         # SFFM(VO VA FC MDI FS ...), AM(VA VO MF FC TD ...): carrier, then modulation.
         carrier, modulation = (
@@ -239,18 +258,17 @@ def _pulse(wave: Wave, values: list[Fraction | None]) -> Wave:
     return Wave(wave.path, wave.kind, wave.location, per, delay)
 
 
-def _pwl(wave: Wave, args: list[tuple[str, int]], rest: str,
+def _pwl(wave: Wave, args: list[tuple[str, int]], options: dict[str, tuple[str, int]],
          params: Mapping[str, float], card: Card) -> Wave:  # fmt: skip
     """``PWL(...) r=R td=TD`` (manual 4.1.4)."""
-    options = dict(
-        (m[1].lower(), m[2]) for m in re.finditer(r"\b(r|td)\s*=\s*(\S+)", rest, re.IGNORECASE)
-    )
-    offset = len(card.logical().text) - len(rest)
     times = [exact_value(w, params, card, at) for w, at in args[0::2]]
     if not times:
         return _problem(wave, "has no points")
-    delay = exact_value(options["td"], params, card, offset) if "td" in options else Fraction(0)
-    repeat = exact_value(options["r"], params, card, offset) if "r" in options else Fraction(-1)
+    delay, repeat = Fraction(0), Fraction(-1)
+    if "td" in options:
+        delay = exact_value(options["td"][0], params, card, options["td"][1])
+    if "r" in options:
+        repeat = exact_value(options["r"][0], params, card, options["r"][1])
     last = times[-1]
     if repeat < 0:  # held at its last value after the last point
         return Wave(wave.path, wave.kind, wave.location, start=float(last + delay))

@@ -289,10 +289,12 @@ class Session(ABC):
     :meth:`alter` element values, :meth:`advance` again (ngspice's ``resume``)."""
 
     @abstractmethod
-    def advance(self, tran: str, until: float | None) -> None:
+    def advance(self, tran: str, until: float | None, land: Sequence[float] = ()) -> None:
         """Run the transient *tran* (``tran TSTEP TSTOP``; the first call starts it, later
         ones resume it) until the first accepted time point past *until*, or to its end
-        when *until* is ``None``.  Raises the simulator's error, or a timeout."""
+        when *until* is ``None``, placing a time point on each instant of *land* (after
+        the current time).
+        Raises the simulator's error, or a timeout."""
 
     @abstractmethod
     def alter(self, device: str, value: float) -> None:

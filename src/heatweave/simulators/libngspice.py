@@ -4,7 +4,8 @@ shared library"; ``sharedspice.h``), through :mod:`ctypes`.
 Only what heatweave uses is bound: ``ngSpice_Init`` with the callbacks for output
 (``SendChar``), status (``SendStat``), exit requests (``ControlledExit``) and the background
 thread (``BGThreadRunning``); ``ngSpice_Command``, ``ngSpice_Circ``, ``ngSpice_running``,
-``ngSpice_CurPlot``, ``ngSpice_AllPlots``, ``ngSpice_AllVecs`` and ``ngGet_Vec_Info``.  No
+``ngSpice_CurPlot``, ``ngSpice_AllPlots``, ``ngSpice_AllVecs``, ``ngGet_Vec_Info`` and
+``ngSpice_SetBkpt``.  No
 data callbacks are registered (``SendData``/``SendInitData`` are NULL), so ngspice does not
 call into Python at every time step.
 
@@ -134,6 +135,8 @@ class Library:
         lib.ngSpice_AllVecs.argtypes = [ctypes.c_char_p]
         lib.ngGet_Vec_Info.restype = ctypes.POINTER(_VectorInfo)
         lib.ngGet_Vec_Info.argtypes = [ctypes.c_char_p]
+        lib.ngSpice_SetBkpt.restype = ctypes.c_bool
+        lib.ngSpice_SetBkpt.argtypes = [ctypes.c_double]
 
     # --- callbacks (called from ngspice, possibly in its background thread) -----------
 
@@ -245,6 +248,12 @@ class Library:
     def alter(self, device: str, value: float) -> None:
         """Set an element's value between two parts of a paused transient (``alter``)."""
         self.command(f"alter {device} = {float(value)!r}")
+
+    def breakpoint(self, time: float) -> bool:
+        """Make a paused transient land on *time* (``ngSpice_SetBkpt``, manual 19.6.2.2: a
+        time after the current one, set while the background thread is not running);
+        ``False`` when ngspice refused it."""
+        return bool(self._lib.ngSpice_SetBkpt(float(time)))
 
     def reset(self) -> None:
         """Forget every circuit and plot, so that the next deck starts from nothing (a

@@ -326,12 +326,16 @@ class SharedSession(Session):
         self._timeout = timeout
         self._started = False
 
-    def advance(self, tran: str, until: float | None) -> None:
-        """See :meth:`Session.advance`."""
+    def advance(self, tran: str, until: float | None, land: Sequence[float] = ()) -> None:
+        """See :meth:`Session.advance`; *land* goes to ngspice's breakpoint table
+        (``ngSpice_SetBkpt``).  Before the start ngspice keeps them aside and adds them when
+        the transient starts (manual 19.6.2.2)."""
         library = self._library
         library.command("delete all")
         if until is not None:
             library.command(f"stop when time > {until!r}")
+        for instant in land:
+            library.breakpoint(instant)
         command = "resume" if self._started else check_analysis(tran)
         self._started = True
         _finish(library, command, self._deadline, self._timeout)
