@@ -30,6 +30,7 @@ from heatweave.errors import Finding, LibngspiceMissingError, UsageError
 from heatweave.quantities import counted
 from heatweave.run import runner
 from heatweave.run.drive import deck_drive, start_findings
+from heatweave.run.edges import SourceCorners, deck_corners
 from heatweave.run.prepare import (
     ANALYSIS_CARDS,
     RunOptions,
@@ -53,7 +54,7 @@ from heatweave.spice.netlist import card_nodes
 from heatweave.thermal.circuit import AMBIENT_NODE, ThermalCircuit
 from heatweave.thermal.solver import Propagator, ThermalSystem, assemble
 
-from .engine import Plan, Probe, StrongFeedback, Trace, cosimulate
+from .engine import MissedCorner, Plan, Probe, StrongFeedback, Trace, cosimulate
 from .method import SEPARATION, Transient, choose_method, source_time_scale
 from .windows import MAX_LOOP_GAIN
 
@@ -97,6 +98,23 @@ def electrical_time_scale(index: DeckIndex) -> float | None:
     for include in index.project.includes:
         texts += [card.logical().text for card in include.deck.cards() if card.is_element]
     return source_time_scale(texts)
+
+
+def source_corners(inputs: Inputs, options: RunOptions) -> SourceCorners:
+    """The corners of the deck's PULSE and PWL sources over its transient (none without
+    one): the co-simulation makes ngspice land on each after every resume."""
+    analyses = _analyses(inputs, options)
+    tran = Transient.parse(analyses[0]) if len(analyses) == 1 else None
+    if tran is None:
+        return SourceCorners(())
+    return deck_corners(inputs.index, tran.tstep, tran.tstop)
+
+
+def _unreadable(sources: tuple[str, ...]) -> str:
+    return (
+        f"heatweave cannot read the corners of {sources[0]}; without them ngspice 39 may step "
+        "across the source's edges after the co-simulation pauses and resumes it"
+    )
 
 
 def _analyses(inputs: Inputs, options: RunOptions) -> tuple[str, ...]:
@@ -151,6 +169,10 @@ def run_auto(
             chosen, reason = "full", ".control blocks are kept, so the deck runs as written"
         if chosen == "cosim" and options.backend == "batch":
             chosen, reason = "full", "the co-simulation needs the ngspice shared library"
+        if chosen == "cosim":
+            unreadable = source_corners(inputs, options).unreadable
+            if unreadable:
+                chosen, reason = "full", _unreadable(unreadable)
         if method == "cosim" and chosen != "cosim":
             raise UsageError(
                 f"the co-simulation does not apply: {reason}", hint="use --method full"
@@ -165,6 +187,14 @@ def run_auto(
             if method == "cosim":
                 raise
             reason = "the ngspice shared library is missing, so the full deck ran"
+        except MissedCorner as missed:
+            if method == "cosim":
+                raise UsageError(
+                    f"the co-simulation cannot vouch for its result: {missed}; from there on "
+                    "ngspice 39 no longer places time points on that source's edges",
+                    hint="use --method full (or auto, which falls back to it)",
+                ) from None
+            reason = f"{missed}, so the full deck ran"
         except StrongFeedback as strong:
             if method == "cosim":
                 # A runaway is one whatever the method: the full deck's diagnosis says so
@@ -218,6 +248,12 @@ def run(
             "the co-simulation cannot keep .control blocks: it drives the transient itself",
             hint="use the full method to run the deck as written",
         )
+    corners = source_corners(inputs, options)
+    if corners.unreadable:
+        raise UsageError(
+            f"the co-simulation does not apply: {_unreadable(corners.unreadable)}",
+            hint="write the source's numbers so heatweave can read them, or use --method full",
+        )
     system = assemble(circuit)
     if Propagator(system).modes is None:
         raise UsageError(
@@ -236,6 +272,7 @@ def run(
         tran,
         tolerance,
         period,
+        corners,
     )
     folder = Path(options.cwd or deck_folder(inputs))
     text = plain_deck(safe.deck, circuit).write()

@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import numpy.typing as npt
 
+from heatweave.run.edges import SourceCorners
 from heatweave.simulators import Session, SharedSimulator
 from heatweave.thermal.circuit import PartPlan
 from heatweave.thermal.sampled import SampledResponse
@@ -35,6 +36,23 @@ FloatArray = npt.NDArray[np.float64]
 
 #: An alter is skipped when the resistance moved by less than this fraction since the last.
 ALTER_THRESHOLD = 1e-9
+
+
+#: A corner counts as landed on when a time point is this close, as a fraction of ngspice's
+#: largest step (ngspice merges breakpoints 1e-10 of its largest step apart).
+LANDING = 1e-9
+
+
+class MissedCorner(Exception):
+    """ngspice stepped across a corner of a PULSE or PWL source after a resume."""
+
+    def __init__(self, source: str, time: float, before: float, after: float) -> None:
+        super().__init__(
+            f"ngspice stepped across {source} corner at {time:.6g} s (time points "
+            f"{before:.6g} s and {after:.6g} s) after the co-simulation resumed it"
+        )
+        self.source = source
+        self.time = time
 
 
 class StrongFeedback(Exception):
@@ -122,6 +140,7 @@ class Plan:
     tran: Transient
     tolerance: float
     period: float | None = None  # the drive's period (heatweave.run.drive)
+    corners: SourceCorners | None = None  # the PULSE/PWL corners ngspice must land on
 
 
 def cosimulate(
@@ -160,6 +179,8 @@ class _Loop:
         self.index_b = np.array([row.get(p.node_b, ground) if p.node_b else ground for p in probes])
         self.held = np.zeros(self.bank.size)
         self.period = plan.period
+        self.corners = plan.corners
+        self.max_step = tran.tmax or min(tran.tstep, (tran.tstop - tran.tstart) / 50)
         self.tail_time = np.zeros(0)
         self.tail_power = np.zeros((self.bank.size, 0))
         self.peak = np.full(self.bank.size, -np.inf)
@@ -179,6 +200,29 @@ class _Loop:
         if self.period is not None:
             first = max(int(np.searchsorted(t, t[-1] - self.period, side="right")) - 1, 0)
         self.tail_time, self.tail_power = t[first:].copy(), power[:, first:].copy()
+
+    def landing(self, now: float, until: float | None) -> FloatArray:
+        """The corners the next part of the transient must land on: those after *now* up to
+        where it may pause (one step past *until*)."""
+        if self.corners is None:
+            return np.zeros(0)
+        high = self.tran.tstop if until is None else min(until + self.max_step, self.tran.tstop)
+        return self.corners.between(now + LANDING * self.max_step, high)[0]
+
+    def landed(self, t: FloatArray) -> None:
+        """Raise :class:`MissedCorner` when a corner inside the window of time points *t*
+        has no time point on it: ngspice then steps straight across a source's edge."""
+        if self.corners is None:
+            return
+        times, owners = self.corners.between(float(t[0]), float(t[-1]))
+        if not times.shape[0]:
+            return
+        at = np.clip(np.searchsorted(t, times), 1, t.shape[0] - 1)
+        gap = np.minimum(np.abs(t[at] - times), np.abs(t[at - 1] - times))
+        missed = np.flatnonzero(gap > LANDING * self.max_step)
+        if missed.shape[0]:
+            k = int(missed[0])
+            raise MissedCorner(owners[k], float(times[k]), float(t[at[k] - 1]), float(t[at[k]]))
 
     def hold(self, values: FloatArray, threshold: FloatArray | float = ALTER_THRESHOLD) -> None:
         """``alter`` every resistor whose held value moved by more than *threshold*."""
@@ -207,11 +251,12 @@ class _Loop:
         while now < self.tran.tstop * (1 - 1e-12):
             target = now + h
             until = target if target < self.tran.tstop * (1 - 1e-9) else None
-            self.session.advance(self.tran.command(), until)
+            self.session.advance(self.tran.command(), until, self.landing(now, until).tolist())
             self.clock.lap("ngspice")
             t = self.tail("time", start)
             if t.shape[0] < 2:
                 break
+            self.landed(t)
             first = float(t[0]) if first is None else first
             drops = self._drops(start, t.shape[0])
             self.clock.lap("read")
