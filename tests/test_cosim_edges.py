@@ -131,6 +131,14 @@ def test_deck_corners(
     assert times * 1e6 == pytest.approx(expected, abs=1e-9)
 
 
+def test_first_corners_of_several_sources() -> None:
+    found = SourceCorners((Corners("A", (0.0, 1.0), 0.0, 10.0), Corners("B", (2.0,), 5.0),
+                           Corners("C", (0.0, 3.0), 4.0, 10.0, 2)))  # fmt: skip
+    # A: 0 1 10 11 20 21 ...; B: 7; C: 4 7 14 17 (two pulses)
+    assert found.first(0.5, 6).tolist() == [1, 4, 7, 7, 10, 11]
+    assert found.first(17.0, 3).tolist() == [20, 21, 30]
+
+
 def test_corners_in_a_subcircuit_and_a_stretch(tmp_path: Path) -> None:
     deck = """nested
 .subckt gate out
@@ -250,6 +258,20 @@ def test_pwm_temperature_cosim_against_full_and_exact(
     full_t = pwm_runs["full"].results.parts[0].temperature
     assert cosim_t == pytest.approx(full_t, abs=TARGET_K)
     assert cosim_t == pytest.approx(exact, abs=TARGET_K / 2)
+
+
+@pytest.mark.ngspice
+def test_a_crowded_window_ends_at_its_last_handed_corner(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """With at most three corners a window (MAX_LANDING, 4096 in use), windows end at the
+    third corner ahead: 20 ms of a 1 kHz PWM (80 corners) takes at least 27 windows, and
+    no corner is missed."""
+    monkeypatch.setattr(engine, "MAX_LANDING", 3)
+    deck, toml = write(tmp_path, PWM.replace(".tran 2u 0.2", ".tran 2u 20m"))
+    outcome = cosim.run_auto(deck, toml, RunOptions(), method="cosim")
+    assert outcome.trace is not None and outcome.trace.windows >= 27
+    assert outcome.results.parts[0].power == pytest.approx(MEAN_POWER, rel=2e-4)
 
 
 @pytest.mark.ngspice

@@ -43,6 +43,13 @@ ALTER_THRESHOLD = 1e-9
 LANDING = 1e-9
 
 
+#: At most this many corners are handed to ngspice per window (each insertion into its
+#: breakpoint table costs the table's length): a window that would hold more ends at the
+#: last of them.  Handing over only the next one or two does not do: ngspice 39 does not
+#: always carry on a PULSE's breakpoints from one it was given, and never a repeating PWL's.
+MAX_LANDING = 4096
+
+
 class MissedCorner(Exception):
     """ngspice stepped across a corner of a PULSE or PWL source after a resume."""
 
@@ -209,6 +216,16 @@ class _Loop:
         high = self.tran.tstop if until is None else min(until + self.max_step, self.tran.tstop)
         return self.corners.between(now + LANDING * self.max_step, high)[0]
 
+    def end_before_crowding(self, now: float, target: float) -> float:
+        """*target*, or earlier: the :data:`MAX_LANDING`-th corner after *now*, so that no
+        window holds more corners than are handed to ngspice."""
+        if self.corners is None:
+            return target
+        ahead = self.corners.first(now + LANDING * self.max_step, MAX_LANDING)
+        if ahead.shape[0] < MAX_LANDING:
+            return target
+        return min(target, max(float(ahead[-1]), now + self.tran.tstep))
+
     def landed(self, t: FloatArray) -> None:
         """Raise :class:`MissedCorner` when a corner inside the window of time points *t*
         has no time point on it: ngspice then steps straight across a source's edge."""
@@ -249,7 +266,7 @@ class _Loop:
         h, start, now = self.rule.first(), 0, 0.0
         gain = system.dc_gain[:n_parts, :n_parts]
         while now < self.tran.tstop * (1 - 1e-12):
-            target = now + h
+            target = self.end_before_crowding(now, now + h)
             until = target if target < self.tran.tstop * (1 - 1e-9) else None
             self.session.advance(self.tran.command(), until, self.landing(now, until).tolist())
             self.clock.lap("ngspice")

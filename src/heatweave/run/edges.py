@@ -60,6 +60,13 @@ class Corners:
             times = (self.start + k[:, None] * self.period + offsets[None, :]).ravel()
         return np.sort(times[(times > low) & (times <= high)])
 
+    def first(self, low: float, count: int) -> FloatArray:
+        """The first *count* corners after *low* (fewer where the source has no more)."""
+        if self.period is None or self.period <= 0:
+            return self.between(low, math.inf)[:count]
+        periods = count // len(self.offsets) + 2
+        return self.between(low, max(low, self.start) + periods * self.period)[:count]
+
 
 @dataclass(frozen=True, slots=True)
 class SourceCorners:
@@ -68,6 +75,11 @@ class SourceCorners:
 
     corners: tuple[Corners, ...]
     unreadable: tuple[str, ...] = ()
+
+    def first(self, low: float, count: int) -> FloatArray:
+        """The first *count* corners after *low* of all sources together, sorted."""
+        found = [item.first(low, count) for item in self.corners]
+        return np.sort(np.concatenate(found))[:count] if found else np.zeros(0)
 
     def between(self, low: float, high: float) -> tuple[FloatArray, tuple[str, ...]]:
         """The corners in ``(low, high]``, sorted, and the source of each."""
