@@ -306,3 +306,37 @@ def test_unreadable_corners_fall_back_or_are_refused(tmp_path: Path) -> None:
         cosim.run_auto(deck, toml, RunOptions(), method="cosim")
     with pytest.raises(EmitError, match="agauss"):
         cosim.run_auto(deck, toml, RunOptions(), method="auto")
+
+
+PWL_DECK = """repeating PWL heater drive: 10 us up to 5 V, 190 us flat, 3 us down, off to 400 us
+V1 a 0 PWL(0 0 10u 5 200u 5 203u 0 400u 0) r=0
+RH a 0 10
+.tran 2u 0.1
+.end
+"""
+
+
+def pwl_power(t: float) -> float:
+    volts = 5 * t / 10e-6 if t < 10e-6 else 5.0 if t < 200e-6 else (
+        5 * (1 - (t - 200e-6) / 3e-6) if t < 203e-6 else 0.0)  # fmt: skip
+    return volts**2 / OHMS
+
+
+@pytest.mark.ngspice
+@pytest.mark.slow
+def test_repeating_pwl_against_its_closed_form(tmp_path: Path) -> None:
+    """ngspice 39 sets no breakpoint on a repeating PWL's corners by itself (its own time
+    points step across the 3 us fall, test_every_corner_is_landed_on_after_each_resume);
+    the co-simulation hands them over, so its power is the trapezoid pulse's (ramps a third
+    of their top, 1.21458 W) and its temperature the exact first-order response."""
+    deck, toml = write(tmp_path, PWL_DECK)
+    outcome = cosim.run_auto(deck, toml, RunOptions(), method="cosim")
+    (part,) = outcome.results.parts
+    per, tau, corners = 400e-6, RTH * CTH, [10e-6, 200e-6, 203e-6]
+    mean = (25 / OHMS * 190e-6 + 25 / OHMS * 13e-6 / 3) / per
+    assert part.power == pytest.approx(mean, rel=1e-3)
+    one, _ = scipy.integrate.quad(lambda s: pwl_power(s) * np.exp(-(per - s) / tau), 0, per,
+                                  points=corners, limit=200, epsabs=1e-15)  # fmt: skip
+    a, n = np.exp(-per / tau), round(0.1 / per)
+    exact = AMBIENT + one / CTH * (1 - a**n) / (1 - a)
+    assert part.temperature == pytest.approx(exact, abs=TARGET_K / 2)
