@@ -8,11 +8,12 @@ and ``"full"`` (the emitted electrothermal deck) otherwise, and says why.
 
 from __future__ import annotations
 
-import re
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 from heatweave.quantities import parse_number
+from heatweave.spice.grammar import CardSyntaxError, parse_card
+from heatweave.spice.syntax import Call, ElementSyntax, Value
 from heatweave.thermal.circuit import ThermalCircuit
 from heatweave.thermal.solver import Propagator, ThermalAssemblyError, assemble
 
@@ -21,7 +22,7 @@ from heatweave.thermal.solver import Propagator, ThermalAssemblyError, assemble
 #: 1/(2 pi SEPARATION) of the rise, and so is the resistance ripple the co-simulation drops.
 SEPARATION = 20.0
 
-_PERIODIC = re.compile(r"\b(sin|pulse|sffm|am)\s*\(([^)]*)\)", re.IGNORECASE)
+_PERIODIC = frozenset({"sin", "pulse", "sffm", "am"})
 
 
 @dataclass(frozen=True, slots=True)
@@ -67,21 +68,36 @@ class Transient:
 def source_time_scale(cards: Sequence[str]) -> float | None:
     """The slowest period of the deck's periodic or pulsed independent sources (s).
 
-    Reads ``SIN(vo va freq ...)`` (period 1/freq), ``PULSE(v1 v2 td tr tf pw per)`` (its
+    *cards* are logical card texts; each V and I card's transient function is read with
+    the grammar (:meth:`heatweave.spice.syntax.ElementSyntax.source`):
+    ``SIN(vo va freq ...)`` (period 1/freq), ``PULSE(v1 v2 td tr tf pw per)`` (its
     period, else rise + width + fall), ``SFFM``/``AM`` (the slowest frequency given).
+    A function with a value that is not a plain number (``{expr}``) is not read.
     ``None`` when no source has a time scale.
     """
     slowest: float | None = None
     for text in cards:
         if text[:1].lower() not in ("v", "i"):
             continue
-        for match in _PERIODIC.finditer(text):
-            kind = match.group(1).lower()
-            values = _numbers(match.group(2).replace(",", " ").split())
-            scale = _scale(kind, values) if values is not None else None
-            if scale is not None and scale > 0:
-                slowest = scale if slowest is None else max(slowest, scale)
+        function = _function(text)
+        if function is None or function.name.key not in _PERIODIC:
+            continue
+        values = [a.number if isinstance(a, Value) else None for a in function.args]
+        numbers = [v for v in values if v is not None]
+        scale = _scale(function.name.key, numbers) if len(numbers) == len(values) else None
+        if scale is not None and scale > 0:
+            slowest = scale if slowest is None else max(slowest, scale)
     return slowest
+
+
+def _function(text: str) -> Call | None:
+    """The transient function of source card *text*; ``None`` without one, or for a card
+    the grammar does not read (lint reports it)."""
+    try:
+        syntax = parse_card(text)
+    except CardSyntaxError:
+        return None
+    return syntax.source().function if isinstance(syntax, ElementSyntax) else None
 
 
 def _numbers(words: Iterable[str]) -> list[float] | None:
