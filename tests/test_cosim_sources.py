@@ -25,6 +25,12 @@ from heatweave.cosim.method import source_time_scale
         ("V1 in 0 PULSE(0 {vhi} 0 1u 1u 10u 20u)", None),
         ("V1 in 0 {sin(2)}", None),  # a brace expression, not a transient function
         ("V1 in 0 PULSE(0 5 0 1u 1u 10u 20u", None),  # unclosed: not read (lint says why)
+        # SFFM(vo va fc mdi fs): the slower of fc and fs; mdi 5 is an index, not 5 Hz
+        # (manual 4.1.5: SFFM(VO VA FC MDI FS PHASEC PHASES))
+        ("V2 mod 0 SFFM(0 2 50k 3 2k)", 0.5e-3),
+        # AM(va vo mf fc td): the slower of mf and fc; td 1 s is a delay (manual 4.1.6:
+        # AM(VA VO MF FC TD PHASES))
+        ("V1 in 0 AM(1 0 100 10k 1)", 10e-3),
     ],
 )
 def test_source_layouts(card: str, want: float | None) -> None:

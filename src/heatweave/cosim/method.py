@@ -118,8 +118,14 @@ def _scale(kind: str, values: list[float]) -> float | None:
         if len(values) >= 7 and values[6] > 0:
             return values[6]
         return sum(values[3:6]) or None
-    freqs = [v for v in values[2:] if v > 0]
+    # SFFM(vo va fc mdi fs ...) and AM(va vo mf fc td ...): only these words are
+    # frequencies (ngspice manual, independent sources); mdi is an index, td a delay.
+    at = _FREQUENCY_WORDS.get(kind, ())
+    freqs = [values[i] for i in at if i < len(values) and values[i] > 0]
     return 1.0 / min(freqs) if freqs else None
+
+
+_FREQUENCY_WORDS: dict[str, tuple[int, ...]] = {"sffm": (2, 4), "am": (2, 3)}
 
 
 def choose_method(
