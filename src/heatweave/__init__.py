@@ -1,11 +1,11 @@
 """heatweave: self-heating for plain SPICE decks.
 
-The pipeline, in the order data flows: ``grammar`` (lark grammar of a card) ->
-``reader`` (lossless text to deck model) -> ``deck`` (immutable node types) ->
-``hierarchy`` (includes, subcircuits, instance paths) -> ``annotations`` (TOML file) ->
-``tempmodels`` (R as a function of T) -> ``networks`` (Foster/Cauer thermal ladders) ->
-``emitter`` (electrothermal deck) -> ``simulators`` (ngspice back ends) ->
-``results`` / ``reports`` / ``checks`` -> ``cli``.
+The subpackages are the pipeline, in the order data flows (a stage imports only earlier
+ones): ``spice`` (lossless reader, deck tree, includes, lint) -> ``tempmodels`` (R as a
+function of T) -> ``networks`` (Foster and Cauer thermal ladders) -> ``annotation`` (the
+TOML file beside the deck) -> ``thermal`` (the thermal circuit, heat balance) -> ``emit``
+(the electrothermal deck) -> ``simulators`` (ngspice back ends) -> ``run`` -> ``cosim`` ->
+``settle`` -> ``checks`` -> ``reports`` -> ``sweep`` -> ``compare`` -> ``cli``.
 """
 
 __version__ = "0.1.0"
