@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import os
 import signal
+import stat
 import subprocess
 import sys
 import time
@@ -20,6 +21,8 @@ import pytest
 from click.testing import CliRunner
 
 from heatweave.cli import main
+from heatweave.errors import UsageError
+from heatweave.files import refuse_overwrite, write_atomic
 
 DECK = """output guard deck
 .include parts.inc
@@ -248,3 +251,53 @@ def test_sigterm_during_an_atomic_write_leaves_no_temporary_file(tmp_path: Path)
     time.sleep(0.05)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out.cir"]
     assert target.read_text() == "old\n"
+
+
+def test_an_output_that_is_a_named_pipe_is_written_into_not_replaced(tmp_path: Path) -> None:
+    """``--json FIFO`` (like ``--json /dev/null`` or ``/dev/stdout``) names something that is
+    no regular file: renaming a temporary file over it replaced the pipe (as root, the
+    device node /dev/null) with a regular file.  It must stay what it is and get the data,
+    as a shell's ``> FIFO`` does (POSIX open(2) on a FIFO: the writer meets the reader)."""
+    pipe = tmp_path / "results.fifo"
+    os.mkfifo(pipe)
+    reader = os.open(pipe, os.O_RDONLY | os.O_NONBLOCK)  # a reader waits: open(2) for writing
+    try:
+        write_atomic(pipe, '{"heatweave_version": "x"}\n')
+        received = os.read(reader, 4096)
+    finally:
+        os.close(reader)
+    assert stat.S_ISFIFO(os.lstat(pipe).st_mode)
+    assert received == b'{"heatweave_version": "x"}\n'
+    assert [p.name for p in tmp_path.iterdir()] == ["results.fifo"]  # no temporary left
+
+
+@pytest.mark.parametrize("spelling", ["/proc/self/fd/{fd}", "/dev/fd/{fd}"])
+def test_an_output_spelled_as_a_descriptor_writes_through_it(
+    tmp_path: Path, spelling: str
+) -> None:
+    """``--json /dev/stdout >> log.txt``: the path is the shell's descriptor, not a file to
+    replace; renaming over what it resolves to swapped log.txt for a new file (its earlier
+    lines lost, and whatever heatweave printed on stdout after that went to the old one).
+    The report goes after what is there, as with ``--json -``."""
+    log = tmp_path / "log.txt"
+    log.write_text("earlier line\n")
+    inode = log.stat().st_ino
+    fd = os.open(log, os.O_WRONLY | os.O_APPEND)
+    try:
+        write_atomic(spelling.format(fd=fd), "report\n")
+    finally:
+        os.close(fd)
+    assert log.stat().st_ino == inode
+    assert log.read_text() == "earlier line\nreport\n"  # after what the descriptor wrote
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["log.txt"]
+
+
+def test_two_outputs_into_one_pipe_are_allowed(tmp_path: Path) -> None:
+    """Two outputs into one device or pipe (``--json /dev/null --csv /dev/null``) lose
+    nothing, unlike two onto one file (checked on a named pipe: nothing is written)."""
+    pipe, plain = tmp_path / "both.fifo", tmp_path / "both.txt"
+    os.mkfifo(pipe)
+    refuse_overwrite({"--json": str(pipe), "--csv": str(pipe)}, [])
+    plain.write_text("")
+    with pytest.raises(UsageError, match="both write to"):
+        refuse_overwrite({"--json": str(plain), "--csv": str(plain)}, [])

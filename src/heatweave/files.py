@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import errno
 import os
+import re
 import signal
 import stat
 import sys
@@ -110,13 +111,25 @@ def write_atomic(path: str | os.PathLike[str], data: bytes | str) -> None:
     ``-`` writes to standard output.  Text is encoded with :func:`encode`.  A symlink is
     written through (the link stays, its target is replaced); the file keeps its mode.
     SIGTERM or SIGHUP during the write removes the temporary file before the signal takes
-    its course (see :func:`_signals_raise`).
+    its course (see :func:`_signals_raise`).  What is no regular file (``/dev/null``, a
+    named pipe) or is a descriptor spelt as a path (``/dev/stdout``, ``/dev/fd/3``) is
+    written into, after what it holds: renaming over it would replace a device node or
+    the shell's redirection with a file.
     """
     payload = encode(data) if isinstance(data, str) else data
     if str(path) == "-":
         sys.stdout.buffer.write(payload)
         sys.stdout.buffer.flush()
         return
+    where = _written_into(path)
+    if where is not None:
+        _write_into(path, where, payload)
+        return
+    if os.path.exists(path) and not (os.path.isfile(path) or os.path.isdir(path)):
+        raise UsageError(
+            f"cannot write {path}: it is a block device or a socket, not a file",
+            hint="name a file",
+        )
     target = Path(os.path.realpath(path)) if os.path.islink(path) else Path(path)
     folder = target.parent if str(target.parent) else Path(".")
     if target.is_dir():
@@ -149,6 +162,49 @@ def write_atomic(path: str | os.PathLike[str], data: bytes | str) -> None:
         except BaseException:
             Path(tmp).unlink(missing_ok=True)
             raise
+
+
+def _written_into(path: str | os.PathLike[str]) -> int | str | None:
+    """Where to write *path* in place of replacing it: the descriptor number when it names
+    one of this process's descriptors (``/dev/stdout`` -> ``/proc/self/fd/1``), the path
+    for a character device, a named pipe or another process's descriptor, else ``None``."""
+    hop = os.path.abspath(path)
+    for _ in range(40):  # the kernel's own limit on symlinks followed
+        found = _DESCRIPTORS.match(os.path.realpath(os.path.dirname(hop)))
+        if found:
+            own = found["pid"] in ("self", "thread-self", str(os.getpid()))
+            name = os.path.basename(hop)
+            return int(name) if own and name.isdigit() else str(path)
+        if not os.path.islink(hop):
+            break
+        hop = os.path.abspath(os.path.join(os.path.dirname(hop), os.readlink(hop)))
+    try:
+        mode = os.stat(path).st_mode
+    except OSError:
+        return None
+    return str(path) if stat.S_ISCHR(mode) or stat.S_ISFIFO(mode) else None
+
+
+#: A process's descriptor folder, where ``/dev/fd`` and ``/dev/stdout`` lead on Linux.
+_DESCRIPTORS = re.compile(r"/proc/(?P<pid>self|thread-self|\d+)(?:/task/\d+)?/fd\Z")
+
+
+def _write_into(path: str | os.PathLike[str], where: int | str, payload: bytes) -> None:
+    """Write *payload* into descriptor *where* (sharing its offset, so it lands after what
+    was printed there, as ``-`` does) or into the device or pipe at path *where*."""
+    sys.stdout.flush()
+    try:
+        if isinstance(where, int):
+            view = memoryview(payload)
+            while view:
+                view = view[os.write(where, view) :]
+            return
+        with open(where, "ab") as handle:
+            handle.write(payload)
+    except OSError as err:
+        raise UsageError(
+            f"cannot write {path}: {err.strerror or err}", hint="choose another output"
+        ) from None
 
 
 class _Stopped(BaseException):
@@ -217,7 +273,8 @@ def refuse_overwrite(
 
     *outputs* maps each output option (``--json``) to its path, ``None`` when not given and
     ``-`` for stdout; *inputs* lists (what it is, path) for the deck, its annotation file and
-    every file it includes.  Two outputs naming one file are refused too: one would be lost.
+    every file it includes.  Two outputs naming one file are refused too: one would be lost
+    (a device, a pipe or a descriptor such as ``/dev/null`` takes both).
     """
     named = [(option, path) for option, path in outputs.items() if path not in (None, "-")]
     for option, path in named:
@@ -231,7 +288,7 @@ def refuse_overwrite(
     for k, (option, path) in enumerate(named):
         for other, second in named[k + 1 :]:
             assert path is not None and second is not None
-            if same_file(path, second):
+            if same_file(path, second) and _written_into(path) is None:
                 raise UsageError(
                     f"{option} and {other} both write to {path}",
                     hint="give each output a file of its own",
