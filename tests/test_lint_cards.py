@@ -306,3 +306,39 @@ def test_simulating_commands_refuse_an_analysis_computing_nothing(
     # The same deck with its analysis replaced on the command line runs.
     replaced = CliRunner().invoke(main, [command, str(deck), *extra, "--op"])
     assert replaced.exit_code == 0, replaced.output
+
+
+@pytest.mark.parametrize(
+    ("function", "high", "warned"),
+    [
+        ("PULSE(0 1 0 0.5m 0.5m 0 1m)", True, True),  # a triangle written with PW 0
+        ("pulse(0 1 0 0.5m 0.5m 0.0 1m 0)", True, True),
+        ("PULSE(0 1 0 0.5m 0.5m 1n 1m)", False, False),  # a triangle with a tiny PW
+        ("PULSE(0 1 0 1u 1u 0)", True, True),  # a single spike written with PW 0
+        ("PULSE(0 1 0 1u 1u)", True, False),  # PW left out: TSTOP, as the manual says
+    ],
+)
+def test_pulse_width_zero_is_the_default(
+    tmp_path: Path, function: str, high: bool, warned: bool
+) -> None:
+    """Manual 4.1.1: PW defaults to TSTOP, and ngspice 39 takes a PW of 0 as not given: the
+    source rises once and stays at V2 (run here: 0.7 ms into the second period of a 1 ms
+    triangle it still reads V2).  lint warns at a PW written as 0."""
+    deck = tmp_path / "pulse.cir"
+    deck.write_text(
+        "pulse width\n"
+        f"I1 0 a {function}\n"
+        "R1 a 0 10\n"
+        ".tran 10u 5m\n"
+        ".control\nrun\nmeas tran late find v(a) at=1.7m\n.endc\n.end\n"
+    )
+    _, output, _ = ngspice(deck)
+    late = re.search(r"late\s*=\s*(\S+)", output)
+    assert late is not None, output
+    assert (abs(float(late[1]) - 10.0) < 1e-6) == high  # V2 = 1 A into 10 ohm
+    warnings = [f for f in findings(deck) if f[2] == "warning" and "PW" in f[3]]
+    if warned:
+        column = len("I1 0 a ") + len(" ".join(function.split()[:5])) + 2
+        assert [(w[0], w[1]) for w in warnings] == [(2, column)], warnings
+    else:
+        assert warnings == []

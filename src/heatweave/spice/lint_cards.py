@@ -307,7 +307,26 @@ def card_problems(syntax: CardSyntax, text: str, model_of: ModelLookup) -> list[
         return _analysis(syntax, text)
     if isinstance(syntax, ElementSyntax) and syntax.letter == "r":
         return _resistor(syntax, len(text.rstrip()), model_of)
+    if isinstance(syntax, ElementSyntax) and syntax.letter in ("v", "i"):
+        return _pulse_width(syntax)
     return []
+
+
+def _pulse_width(syntax: ElementSyntax) -> list[Problem]:
+    """4.1.1: PW defaults to TSTOP, and ngspice 39 reads a PW of 0 as not given, so the
+    source rises once and stays at V2: a triangle or a spike written with PW 0 is not one."""
+    function = syntax.source().function
+    if function is None or function.name.key != "pulse" or len(function.args) < 6:
+        return []
+    width = function.args[5]
+    if not (isinstance(width, Value) and width.number == 0):
+        return []
+    return [Problem(
+        width.offset, "warning",
+        f"{syntax.name.text}'s PULSE has PW 0, which ngspice 39 reads as its default, TSTOP: "
+        "the source rises once and stays at V2",
+        "for a triangle or a spike write a tiny width, e.g. 1p (manual 4.1.1)",
+    )]  # fmt: skip
 
 
 def empty_analyses(cards: Iterable[Card]) -> Iterator[Finding]:
