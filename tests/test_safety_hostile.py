@@ -233,10 +233,12 @@ def test_a_deck_file_name_with_a_newline_is_refused(tmp_path: Path) -> None:
     deck.write_text("divider\nV1 in 0 DC 5\nRTOP in out 1k\nRBOT out 0 1k\n.op\n.end\n")
     notes = tmp_path / "n.thermal.toml"
     notes.write_text(NOTES)
-    for command in ("emit", "run"):
+    for command in ("emit", "run", "check", "sweep"):
         result = CliRunner().invoke(main, [command, str(deck), "-a", str(notes)])
         assert result.exit_code == 2 and "U+000A" in result.output, result.output
         assert "Traceback" not in result.output
+        # refused before anything names the deck: no line of output shows it raw
+        assert ".control" not in result.stdout.replace("\\n.control", ""), result.stdout
 
 
 # --------------------------------------------------------------------------- foreign files

@@ -272,10 +272,11 @@ def _run(
     ones are exit 2 before any corner runs) and run every corner."""
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.checks.limits import resolve_limits
-    from heatweave.emit.emitter import load_inputs
+    from heatweave.emit.emitter import load_inputs, refuse_unwritable_inputs
     from heatweave.sweep.corners import run_sweep
 
     inputs = load_inputs(deck, annotation_path)
+    refuse_unwritable_inputs(inputs)  # before the header line names the deck
     guard_outputs(outputs, inputs)
     # What ngspice 39 would refuse, and a deck analysis that would run to no points: exit 2.
     refuse_rejected(inputs.index, own_analyses=not options.analyses)

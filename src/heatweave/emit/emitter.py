@@ -43,6 +43,7 @@ from heatweave.emit.sections import (
     analysis_findings,
     folded_files,
     header,
+    refuse_unwritable_names,
     thermal_section,
 )
 from heatweave.emit.splice import end_position, insert_before_end, line_ending, spliced
@@ -478,6 +479,11 @@ def emit_files(deck_path: str, annotation_path: str, *, form: str = "reference")
     return emit_inputs(load_inputs(deck_path, annotation_path), form=form)
 
 
-def _basename(path: str) -> str:
+def refuse_unwritable_inputs(inputs: Inputs) -> None:
+    """Refuse now, before a command prints anything, the file names every emitted deck of
+    *inputs* would refuse (:func:`heatweave.emit.sections.refuse_unwritable_names`)."""
+    refuse_unwritable_names(_basename(inputs.deck_path), _basename(inputs.annotation_path))
 
+
+def _basename(path: str) -> str:
     return Path(path).name

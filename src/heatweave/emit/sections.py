@@ -32,16 +32,8 @@ def sha256(text: str) -> str:
 def header(deck_name: str, deck_text: str, annotation_name: str, annotation_text: str) -> str:
     """The comment block after the title: sources, their hashes, the unit convention.
 
-    The two file names are written into the deck: one holding a newline or another control
-    character is refused, since ngspice would read what follows it as a card."""
-    for what, name in (("deck", deck_name), ("annotation file", annotation_name)):
-        bad = unprintable(name)
-        if bad is not None:
-            raise EmitError(
-                f"the {what}'s file name {name!r} holds the character {bad}",
-                hint="rename the file: names written into the deck must be printable, "
-                "on one line",
-            )
+    The two file names are written into the deck (:func:`refuse_unwritable_names`)."""
+    refuse_unwritable_names(deck_name, annotation_name)
     lines = [
         f"{EMITTED_HEADER} {__version__}; edit the sources, not this",
         f"* source deck: {deck_name} sha256 {sha256(deck_text)}",
@@ -51,6 +43,19 @@ def header(deck_name: str, deck_text: str, annotation_name: str, annotation_text
         "*        thermal resistors 1 ohm = 1 K/W; thermal capacitors 1 F = 1 J/K",
     ]
     return "".join(line + "\n" for line in lines)
+
+
+def refuse_unwritable_names(deck_name: str, annotation_name: str) -> None:
+    """Refuse a deck or annotation file name that holds a newline or another control
+    character: written into the deck, ngspice would read what follows it as a card."""
+    for what, name in (("deck", deck_name), ("annotation file", annotation_name)):
+        bad = unprintable(name)
+        if bad is not None:
+            raise EmitError(
+                f"the {what}'s file name {name!r} holds the character {bad}",
+                hint="rename the file: names written into the deck must be printable, "
+                "on one line",
+            )
 
 
 def stale_reason(committed: str, fresh: str) -> str:
