@@ -218,7 +218,14 @@ class Switch(CardForm):
             return lines
         share = _shared(model) if heating else None
         if share is not None:
-            # I = V(a,x)/Rc through Rc + (R(T) - Rc); the dissipation V(a,b) * I.
+            # I = V(a,x)/Rc through Rc + (R(T) - Rc); the dissipation V(a,b) * I.  For tc1 < 0
+            # Rc is -R0, a negative fixed resistor, on purpose: only the sum Rc + switch is a
+            # branch of the circuit, and it is R(T) exactly (the switch is R(T) + R0, still a
+            # line in T); Rc's own sign never reaches the user.  Checked with stock ngspice 39
+            # against the reference form (tc1 = -0.004, 150 K/W: hot-spot temperature and
+            # V/I equal to 7 digits over a pulsed 24 s transient and a reversed-polarity .op,
+            # 83.92899 degC, as brentq on T = Ta + Rth P(T) gives) and by the STEEP cases of
+            # tests/test_emitforms.py.
             x, switch = f"{PREFIX}x_{name}", self._switch_name(self._rest(model))
             product = _product_name(share)
             return [
