@@ -23,6 +23,7 @@ Exit codes are stable and documented in the README:
 
 from __future__ import annotations
 
+import os
 import unicodedata
 from dataclasses import dataclass
 
@@ -52,6 +53,15 @@ class Location:
     line: int
     column: int = 1
     source_line: str | None = None
+    #: A line of a file not proven to be SPICE (an included file without a SPICE name suffix
+    #: that defines nothing: it may be a key or password file that happens to read as
+    #: cards).  Its text is never kept, and a message located here is not shown either
+    #: unless it is :class:`Plain` (see :func:`shown`).
+    withheld: bool = False
+
+    def __post_init__(self) -> None:
+        if self.withheld and self.source_line is not None:
+            object.__setattr__(self, "source_line", None)
 
     def prefix(self) -> str:
         """``FILE:LINE:COL`` as compilers print it."""
@@ -73,8 +83,63 @@ class Location:
         return f"    {text}\n    {lead}^"
 
 
+class Plain(str):
+    """A message made of heatweave's own words only, quoting nothing of the user's files
+    (``Plain("dropped a .control block ...")``): shown even at a withheld line."""
+
+    __slots__ = ()
+
+
+class _Said(Plain):
+    """A message :func:`shown` has already made fit for a withheld line."""
+
+    __slots__ = ()
+
+
+#: Why a withheld line and its message are not shown (see :attr:`Location.withheld`).
+NOT_SHOWN = "the line is not shown because {name} is not proven to be a SPICE file"
+WITHHELD_HINT = (
+    "open the file at this line; an included file of SPICE cards is shown in full when its "
+    "name ends in a SPICE suffix (.inc, .cir, .lib ...)"
+)
+_WITHHELD_LEAD = {
+    "error": "an error in this line",
+    "warning": "a warning about this line",
+    "note": "a note about this line",
+}
+
+
+def shown(severity: str, message: str, location: Location | None) -> str:
+    """*message* as it may be shown at *location*: unchanged, or at a withheld line only
+    what says nothing of the line (a :class:`Plain` message, and why the line is not shown).
+
+    The one place that decides this: every :class:`HeatweaveError` and :class:`Finding`
+    goes through it, so no caller can show a withheld line by forgetting to check."""
+    if location is None or not location.withheld or isinstance(message, _Said):
+        return message
+    name = os.path.basename(location.file)
+    if isinstance(message, Plain):
+        return _Said(f"{message} ({NOT_SHOWN.format(name=name)})")
+    lead = _WITHHELD_LEAD.get(severity, "a message about this line")
+    return _Said(
+        f"{lead}: the line and what this message would quote from it are not shown because "
+        f"{name} is not proven to be a SPICE file (it could be a key or password file that "
+        "reads as cards)"
+    )
+
+
+def shown_hint(hint: str | None, location: Location | None) -> str | None:
+    """*hint* as it may be shown at *location* (see :func:`shown`)."""
+    if location is None or not location.withheld or isinstance(hint, Plain):
+        return hint
+    return WITHHELD_HINT
+
+
 class HeatweaveError(Exception):
-    """Base of every error heatweave reports to a user."""
+    """Base of every error heatweave reports to a user.
+
+    :attr:`message` and :attr:`hint` read through :func:`shown`: at a withheld location
+    (:attr:`Location.withheld`) they say nothing of the line, however they were built."""
 
     exit_code: int = EXIT_BAD_INPUT
     severity: str = "error"
@@ -83,11 +148,29 @@ class HeatweaveError(Exception):
         self, message: str, location: Location | None = None, hint: str | None = None
     ) -> None:
         super().__init__(message)
-        self.message = message
+        self._message = message
         self.location = location
-        self.hint = hint
+        self._hint = hint
         # Warnings gathered before the error, printed ahead of it.
         self.findings: tuple[Finding, ...] = ()
+
+    @property
+    def message(self) -> str:
+        """What went wrong, as it may be shown at :attr:`location`."""
+        return shown(self.severity, self._message, self.location)
+
+    @message.setter
+    def message(self, value: str) -> None:
+        self._message = value
+
+    @property
+    def hint(self) -> str | None:
+        """A fix to try, as it may be shown at :attr:`location`."""
+        return shown_hint(self._hint, self.location)
+
+    @hint.setter
+    def hint(self, value: str | None) -> None:
+        self._hint = value
 
     def render(self) -> str:
         """The full message: ``FILE:LINE:COL: error: ...``, the source excerpt, the hint."""
@@ -201,6 +284,11 @@ class Finding:
     message: str
     location: Location | None = None
     hint: str | None = None
+
+    def __post_init__(self) -> None:
+        # At a withheld line the message and hint say nothing of it (see :func:`shown`).
+        object.__setattr__(self, "message", shown(self.severity, self.message, self.location))
+        object.__setattr__(self, "hint", shown_hint(self.hint, self.location))
 
     def render(self) -> str:
         """One line ``FILE:LINE:COL: severity: message`` plus hint, as lint prints it."""

@@ -26,11 +26,12 @@ from heatweave.emit.emitter import Inputs, load_inputs, thermal_circuit
 from heatweave.emit.placement import refuse_reserved, refuse_unplaced
 from heatweave.emit.sections import folded_files
 from heatweave.emit.temperature import temperature_findings, with_temp
-from heatweave.errors import Finding, LibngspiceMissingError, UsageError
+from heatweave.errors import Finding, LibngspiceMissingError, SimulatorError, UsageError
 from heatweave.quantities import counted
 from heatweave.run import runner
 from heatweave.run.drive import deck_drive, start_findings
 from heatweave.run.edges import SourceCorners, deck_corners
+from heatweave.run.locate import locate
 from heatweave.run.prepare import (
     ANALYSIS_CARDS,
     RunOptions,
@@ -278,7 +279,10 @@ def run(
     text = plain_deck(safe.deck, circuit).write()
     options = with_deadline(options)
     with whole_limit(options):
-        trace = cosimulate(text, folder, plan, time_left(options), options.init_file)
+        try:
+            trace = cosimulate(text, folder, plan, time_left(options), options.init_file)
+        except SimulatorError as err:
+            raise locate(err, inputs.project) from None
     results = to_results(trace, circuit, system, period)
     reason = f"co-simulation in {counted(trace.windows, 'window')}"
     # A part beyond its model's range, a drive without one period: as runner.run says.

@@ -5,30 +5,83 @@ inside subcircuits expanded (``r.x1.rs``), from the emitted deck whose line numb
 the user's.  The card is found again in the deck and its included files, by its text or,
 failing that, by its element name when exactly one card has it; the error then carries
 that card's FILE:LINE and source line instead of ngspice's text alone.
+
+ngspice's text is never passed on when it may quote a file not proven to be SPICE
+(:func:`heatweave.spice.project.proven`): a card found there gets a withheld location
+(FILE:LINE, no text), and a message that names any word of such a file is replaced.
 """
 
 from __future__ import annotations
 
-from heatweave.errors import SimulatorError
-from heatweave.spice.deck import Card
+import os
+import re
+
+from heatweave.errors import Plain, SimulatorError
+from heatweave.spice.deck import Card, Deck
 from heatweave.spice.project import Project
+
+# How ngspice and heatweave split a card into words (blanks, , = ( ) quotes braces, and the
+# dots of expanded names such as r.x1.rs).
+_WORDS = re.compile(r"[^\s,=(){}'\".]+")
+# Runs of letters and digits inside a word (hunter2 in hunter2-x), which a message may show
+# without the rest.
+_PIECES = re.compile(r"[^\W_]{4,}")
 
 
 def locate(error: SimulatorError, project: Project) -> SimulatorError:
-    """*error* with the location of the card ngspice rejected, when it can be told."""
-    if error.card is None or error.location is not None:
-        return error
-    card = find_card(error.card, project)
-    where = None if card is None else card.location()
-    if where is None:
-        return error
-    error.location = where
-    reason = f": {error.reason}" if error.reason else ""
-    error.message = f"ngspice rejects this card{reason}"
-    error.hint = (
-        "fix the card as ngspice 39 reads it; 'heatweave lint DECK' checks every card"
-    )
+    """*error* with the location of the card ngspice rejected, when it can be told; with
+    nothing of a file not proven SPICE in it whatever it quotes."""
+    if error.card is not None and error.location is None:
+        card = find_card(error.card, project)
+        where = None if card is None else card.location()
+        if where is not None:
+            error.location = where
+            if where.withheld:  # its reason may quote the card: say only that it failed
+                error.message = Plain("ngspice rejects this card")
+            else:
+                reason = f": {error.reason}" if error.reason else ""
+                error.message = f"ngspice rejects this card{reason}"
+            error.hint = Plain(
+                "fix the card as ngspice 39 reads it; 'heatweave lint DECK' checks every card"
+            )
+    if error.location is None or not error.location.withheld:
+        withhold(error, project)
     return error
+
+
+def withhold(error: SimulatorError, project: Project) -> None:
+    """Replace what *error* says when it names a word of an included file not proven SPICE
+    (ngspice's text may quote a line of a password file that reads as cards)."""
+    hidden = [inc for inc in project.includes if not _quotable(inc.deck)]
+    if not hidden:
+        return
+    # Words of four characters or more (shorter ones hide nothing: a node 0, a value 1k),
+    # less those the deck's quotable files hold too (shown there anyway).
+    words: set[str] = set()
+    for inc in hidden:
+        text = inc.deck.write().lower()
+        words.update(w for w in _WORDS.findall(text) if len(w) > 3)
+        words.update(_PIECES.findall(text))
+    for deck in (project.deck, *(inc.deck for inc in project.includes if _quotable(inc.deck))):
+        words.difference_update(_WORDS.findall(deck.write().lower()))
+    said = " ".join(t for t in (error.message, error.hint or "", error.card or "",
+                                error.reason or "") if t).lower()  # fmt: skip
+    if not any(w in said for w in words):
+        return
+    names = ", ".join(sorted({os.path.basename(inc.path) for inc in hidden}))
+    error.message = Plain(
+        "ngspice could not simulate the deck; its message is not shown because it may quote "
+        f"a line of {names}, an included file not proven to be SPICE"
+    )
+    error.hint = Plain(
+        "run 'heatweave lint DECK'; an included file of SPICE cards is shown in full when its "
+        "name ends in a SPICE suffix (.inc, .cir, .lib ...)"
+    )
+    error.card = error.reason = None
+
+
+def _quotable(deck: Deck) -> bool:
+    return deck.source is None or deck.source.quotable
 
 
 def find_card(quoted: str, project: Project) -> Card | None:

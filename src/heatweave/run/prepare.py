@@ -16,10 +16,12 @@ from pathlib import Path
 
 from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Emitted, Inputs, emit_inputs
-from heatweave.errors import Finding, SimulationTimeoutError, UsageError
+from heatweave.errors import Finding, SimulationTimeoutError, SimulatorError, UsageError
+from heatweave.run.locate import locate
 from heatweave.run.safedeck import SafeDeck, safe_deck
 from heatweave.simulators import Progress, SimResult, get_simulator, timed_out
 from heatweave.spice.deck import Card, Deck
+from heatweave.spice.project import Project
 from heatweave.spice.reader import read
 
 #: Dot cards that ask ngspice for an analysis (manual 15.3).
@@ -98,6 +100,9 @@ class Prepared:
     #: The tree *text* was written from; a diagnosis deck is a transform of this tree,
     #: written once for its simulation (:func:`heatweave.run.runaway.simulate_deck`).
     deck: Deck = field(repr=False, compare=False, kw_only=True)
+    #: The user's deck and includes, to point ngspice's complaints back at their cards
+    #: (:func:`heatweave.run.locate.locate`).
+    project: Project | None = field(default=None, repr=False, compare=False, kw_only=True)
 
 
 def made_safe(
@@ -152,6 +157,7 @@ def prepare(
         findings=emitted.findings + safe.findings,
         cwd=options.cwd or deck_folder(inputs),
         deck=safe.deck,
+        project=inputs.project,
     )
 
 
@@ -159,13 +165,21 @@ def simulate(prepared: Prepared, options: RunOptions) -> SimResult:
     """Run ngspice on a prepared deck."""
     simulator = get_simulator(options.backend)
     with whole_limit(options):
-        return simulator.run(
-            prepared.text,
-            analyses=prepared.analyses,
-            deck_analyses=prepared.deck_analyses,
-            cwd=prepared.cwd,
-            timeout=time_left(options),
-            progress=options.progress,
-            init_file=options.init_file,
-        )
+        try:
+            return simulator.run(
+                prepared.text,
+                analyses=prepared.analyses,
+                deck_analyses=prepared.deck_analyses,
+                cwd=prepared.cwd,
+                timeout=time_left(options),
+                progress=options.progress,
+                init_file=options.init_file,
+            )
+        except SimulatorError as err:
+            # Every simulation of a prepared deck (runs, baselines, diagnoses, settling)
+            # ends here: ngspice's text is pointed at the user's card, never passed on
+            # when it may quote a file not proven SPICE.
+            if prepared.project is not None:
+                locate(err, prepared.project)
+            raise
 

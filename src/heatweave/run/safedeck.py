@@ -26,10 +26,9 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from heatweave.emit.sections import MARK
-from heatweave.errors import DeckStructureError, Finding, Location
+from heatweave.errors import DeckStructureError, Finding, Location, Plain
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node, SourceFile
-from heatweave.spice.project import Project, include_target, library_section, refuse_foreign
-from heatweave.spice.reader import read_file
+from heatweave.spice.project import Project, include_target, library_section, read_include
 from heatweave.spice.transform import line_ended
 
 #: A line ngspice runs as a command although it looks like a comment (manual 17.5.80).
@@ -153,8 +152,7 @@ class _Inliner:
                     where,
                     hint="paths are relative to the file that holds the include card",
                 )
-            deck = read_file(full, title=False)
-            refuse_foreign(deck, name, where)
+            deck = read_include(full, name, where)
             self.files[full] = deck
         chosen = deck.body if section is None else library_section(deck, section, where)
         note = Card(f"{MARK}inlined: {card.logical().text}\n", self.card(card).lead)
@@ -193,10 +191,10 @@ def findings(project: Project, allow_control: bool) -> tuple[Finding, ...]:
             if isinstance(node, ControlBlock):
                 _add(found, Finding(
                     "warning",
-                    "dropped a .control block: its commands could run anything on this "
-                    "machine, so heatweave drives the analyses itself",
+                    Plain("dropped a .control block: its commands could run anything on this "
+                          "machine, so heatweave drives the analyses itself"),
                     _at(node.source, node.offset),
-                    ALLOW_HINT,
+                    Plain(ALLOW_HINT),
                 ))  # fmt: skip
             else:
                 for offset in _hash_lines(node.lead):
@@ -247,10 +245,10 @@ def _at(source: SourceFile | None, offset: int) -> Location | None:
 def _hash_finding(where: Location | None) -> Finding:
     return Finding(
         "warning",
-        "a line starting with *# is a command to ngspice, not a comment: heatweave turned "
-        "it into a comment",
+        Plain("a line starting with *# is a command to ngspice, not a comment: heatweave "
+              "turned it into a comment"),
         where,
-        ALLOW_HINT,
+        Plain(ALLOW_HINT),
     )
 
 

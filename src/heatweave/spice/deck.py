@@ -42,11 +42,16 @@ def unprintable(name: str) -> str | None:
 
 @dataclass(frozen=True, slots=True, eq=False)
 class SourceFile:
-    """A file as read: its name for messages and its full text, for line numbers."""
+    """A file as read: its name for messages and its full text, for line numbers.
+
+    ``quotable`` is False for an included file not proven to be SPICE
+    (:func:`heatweave.spice.project.read_include`): its locations are withheld
+    (:attr:`heatweave.errors.Location.withheld`), so no message shows its lines."""
 
     path: str
     text: str
     _newlines: list[int] = field(default_factory=list, repr=False)
+    quotable: bool = True
 
     def position(self, offset: int) -> tuple[int, int]:
         """1-based (line, column) of a character offset in the file."""
@@ -67,6 +72,8 @@ class SourceFile:
     def location(self, offset: int) -> Location:
         """A :class:`Location` for a character offset, with the source line."""
         line, column = self.position(offset)
+        if not self.quotable:
+            return Location(self.path, line, column, withheld=True)
         return Location(self.path, line, column, self.line_text(line))
 
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections import Counter
 from collections.abc import Iterable, Iterator
 
-from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location
+from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location, Plain
 from heatweave.spice.acceptance import rejections
 from heatweave.spice.cardparts import subckt_ports, x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node
@@ -35,8 +35,8 @@ def _structure(body: Iterable[Node], titled: bool = False) -> Iterator[Finding]:
         before, previous = previous, node
         if isinstance(node, ControlBlock) and not node.closed:
             yield Finding(  # ngspice 39 warns "Missing .endc statement!" and runs it
-                "warning", ".control without .endc runs to the end of the file",
-                _where(node), "close the block with .endc",
+                "warning", Plain(".control without .endc runs to the end of the file"),
+                _where(node), Plain("close the block with .endc"),
             )  # fmt: skip
         elif isinstance(node, Block):
             if node.end is None:
@@ -65,14 +65,14 @@ def _orphan(card: Card, before: Node | None, titled: bool) -> Finding:
     continues the card before the include card, which then fails (an error)."""
     hint = "a '+' line continues the card above it"
     if before is None and titled:
-        return Finding("warning", "continuation line after the title: ngspice 39 reads it "
-                       "as part of the title", card.location(), hint)  # fmt: skip
+        return Finding("warning", Plain("continuation line after the title: ngspice 39 reads "
+                       "it as part of the title"), card.location(), Plain(hint))  # fmt: skip
     if isinstance(before, ControlBlock):
-        return Finding("warning", "continuation line after a .control block: ngspice 39 "
-                       "ignores it", card.location(), hint)  # fmt: skip
-    return Finding("error", "continuation line with no card to continue", card.location(),
-                   hint + "; at the top of an included file ngspice 39 joins it to the card "
-                   "before the include card")  # fmt: skip
+        return Finding("warning", Plain("continuation line after a .control block: ngspice 39 "
+                       "ignores it"), card.location(), Plain(hint))  # fmt: skip
+    return Finding("error", Plain("continuation line with no card to continue"),
+                   card.location(), Plain(hint + "; at the top of an included file ngspice 39 "
+                   "joins it to the card before the include card"))  # fmt: skip
 
 
 def _parse_all(decks: Iterable[Deck], index: DeckIndex) -> Iterator[Finding]:
@@ -164,7 +164,8 @@ def lint_project(project: Project, index: DeckIndex | None = None) -> list[Findi
         findings.extend(_connections(index, scope, block, globals_))
     seen = {(f.location, f.message) for f in findings}  # the grammar may have said it
     findings.extend(f for f in rejections(index) if (f.location, f.message) not in seen)
-    return sorted(findings, key=order)
+    # Findings at a withheld line all read alike (heatweave.errors.shown): say each once.
+    return sorted(dict.fromkeys(findings), key=order)
 
 
 def order(finding: Finding) -> tuple[str, int, int]:

@@ -1,6 +1,7 @@
 """A deck and every file it includes: ``.include`` and ``.lib FILE SECTION`` followed
 relative to the including file, as ngspice does; the files themselves are never changed.
-A file that is not SPICE (a key, a password file, binary) is refused without quoting it.
+A file that is plainly not SPICE (a key, a password file, binary) is refused without quoting
+it; one not proven SPICE is read, but no message shows its lines.
 """
 
 from __future__ import annotations
@@ -13,7 +14,7 @@ from pathlib import Path
 from heatweave.errors import DeckStructureError, HeatweaveError, Location, UnreadableInputError
 from heatweave.spice.deck import Block, Card, Deck, Node, iter_cards
 from heatweave.spice.grammar import syntax_of
-from heatweave.spice.reader import read_file
+from heatweave.spice.reader import read, read_file
 
 
 @dataclass(frozen=True, slots=True)
@@ -120,11 +121,7 @@ def _follow(
         key = str(full)
         deck = cache.get(key)
         if deck is None:
-            try:
-                deck = read_file(key, title=False)
-            except UnreadableInputError as err:  # located at the card that names it
-                raise DeckStructureError(err.message, where, hint=err.hint) from None
-            refuse_foreign(deck, name, where)
+            deck = read_include(key, name, where)
             cache[key] = deck
         if deck.source is not None and not _MAY_INCLUDE.search(deck.source.text):
             out.append(
@@ -166,14 +163,10 @@ _DEFINING = frozenset({".model", ".subckt", ".param", ".func", ".lib", ".include
 
 
 def foreign_reason(deck: Deck) -> str | None:
-    """Why an included file is not proven to be a SPICE file, or ``None`` when it is.
-
-    Plainly foreign (binary, a key or certificate, lines that are no cards: a password or
-    configuration file) whatever its name; and without a SPICE suffix (:data:`SPICE_SUFFIXES`)
-    a file must prove itself: every card parses and one defines a model, subcircuit,
-    parameter or function.  Looking card-like is no proof: a netrc line (``machine HOST
-    login USER password SECRET``) parses as a MOSFET card, and errors about it would show it.
-    """
+    """Why an included file is plainly not a SPICE file, or ``None``: binary, a key or a
+    certificate, lines that are no cards (a password or configuration file); and, for a file
+    whose name has no SPICE suffix (:data:`SPICE_SUFFIXES`), a line that does not parse as
+    a card.  Looks at the whole text for bytes and keys, and at the first few cards."""
     text = deck.source.text if deck.source is not None else deck.write()
     if len(_CONTROL_BYTES.findall(text, 0, 65536)) > 2:
         return "it holds control bytes: a binary file"
@@ -187,42 +180,60 @@ def foreign_reason(deck: Deck) -> str | None:
         fields = card.fields()
         if not _SPICE_NAME.match(card.head) or len(fields) < 3 or fields[1] == "=":
             return "its lines are not SPICE cards"
-    if deck.path.lower().endswith(SPICE_SUFFIXES):
+    if has_spice_suffix(deck.path):
         return None
-    return _unproven(deck)
-
-
-def _unproven(deck: Deck) -> str | None:
-    """Why a file without a SPICE suffix is not proven SPICE by its cards, or ``None``."""
-    cards = 0
-    defining = False
     for card in iter_cards(deck.body):
         try:
             syntax_of(card)
         except HeatweaveError:
             return "its name has no SPICE suffix and not every line of it is a SPICE card"
-        cards += 1
-        defining = defining or card.name in _DEFINING
-    if cards and not defining:
-        return (
-            "its name has no SPICE suffix and it defines no model, subcircuit, parameter or "
-            "function"
-        )
     return None
 
 
+def has_spice_suffix(path: str) -> bool:
+    """True when a file's name ends in one of :data:`SPICE_SUFFIXES`."""
+    return path.lower().endswith(SPICE_SUFFIXES)
+
+
+def proven(deck: Deck) -> bool:
+    """True when an included file that is not plainly foreign (:func:`foreign_reason`) is
+    proven to be SPICE: its name has a SPICE suffix, or a card of it defines a model,
+    subcircuit, parameter or function (no key, password or configuration file does).
+
+    Looking card-like is no proof: a netrc line (``machine HOST login USER password
+    SECRET``) parses as a MOSFET card.  A file not proven is read all the same (ngspice
+    reads it: element cards in ``parasitics.txt``), but its lines are never shown
+    (:attr:`heatweave.spice.deck.SourceFile.quotable`)."""
+    if has_spice_suffix(deck.path):
+        return True
+    return any(card.name in _DEFINING for card in iter_cards(deck.body))
+
+
+def read_include(path: str, name: str, where: Location | None) -> Deck:
+    """The included file *path* (spelled *name* on the card at *where*), read: refused when
+    plainly foreign (:func:`refuse_foreign`), its lines withheld from every message when not
+    proven SPICE (:func:`proven`)."""
+    try:
+        deck = read_file(path, title=False)
+    except UnreadableInputError as err:  # located at the card that names it
+        raise DeckStructureError(err.message, where, hint=err.hint) from None
+    refuse_foreign(deck, name, where)
+    if proven(deck) or deck.source is None:
+        return deck
+    return read(deck.source.text, path, title=False, quotable=False)
+
+
 def refuse_foreign(deck: Deck, name: str, where: Location | None) -> None:
-    """Refuse an included file that is not a SPICE file, quoting none of its lines: a deck
-    from elsewhere may name a key or a password file, whose lines an error would show."""
+    """Refuse an included file that is plainly not a SPICE file, quoting none of its lines:
+    a deck from elsewhere may name a key or a password file, whose lines an error would
+    show."""
     reason = foreign_reason(deck)
     if reason is not None:
         raise DeckStructureError(
             f"the included file {name!r} is not a SPICE file ({reason}); heatweave does not "
             "read it, and shows none of its lines",
             where,
-            hint="check the path on this card; a SPICE file's name ends in "
-            f"{', '.join(SPICE_SUFFIXES[:8])} ... (or its cards define a model, a subcircuit "
-            "or a parameter)",
+            hint="check the path on this card: it should name a file of SPICE cards",
         )
 
 

@@ -35,17 +35,18 @@ _CARD = re.compile(
 )
 
 
-def read(text: str, path: str = "<deck>", *, title: bool = True) -> Deck:
-    """Read a deck (``title=True``) or an included file (``title=False``).
+def read(text: str, path: str = "<deck>", *, title: bool = True, quotable: bool = True) -> Deck:
+    """Read a deck (``title=True``) or an included file (``title=False``); ``quotable=False``
+    for a file whose lines no message may show (:attr:`SourceFile.quotable`).
 
     Never fails on ngspice-acceptable input; structural problems that ngspice would also
     reject (``.ends`` without ``.subckt``) are kept as plain cards and reported by ``lint``.
     """
-    return _read(text, path, title)
+    return _read(text, path, title, quotable)
 
 
-def _read(text: str, path: str, title: bool) -> Deck:
-    source = SourceFile(path, text)
+def _read(text: str, path: str, title: bool, quotable: bool = True) -> Deck:
+    source = SourceFile(path, text, quotable=quotable)
     pos = 0
     title_text: str | None = None
     if title and text:
