@@ -71,6 +71,14 @@ def power_source(part: PartPlan) -> str:
     return f"B{PREFIX}p_{part.name}"
 
 
+def current_source(part: PartPlan) -> str:
+    """The behavioural source carrying resistor *part*'s current in the reference form
+    (``Bhw_<name> a b I = V(a,b)/(R(T))``): the first card that form writes for it."""
+    assert part.model is not None
+    cards = resistor_cards("reference", part.name, "a", "b", part.node, part.model, False)
+    return _heads(cards)[0]
+
+
 def held_resistor(part: PartPlan) -> str:
     """The plain resistor ``settle`` writes for *part* at a fixed temperature."""
     return f"R{PREFIX}fix_{safe(part.path)}"
@@ -177,9 +185,7 @@ class Reserved:
     definitions: frozenset[str]  # .model names and subcircuit copies
 
 
-def reserved(
-    index: DeckIndex, circuit: ThermalCircuit, form: str, heating: bool
-) -> Reserved:
+def reserved(index: DeckIndex, circuit: ThermalCircuit, form: str, heating: bool) -> Reserved:
     """The names the electrothermal deck of *circuit* (and a run's diagnosis decks) add."""
     names = added_names(circuit, form, heating)
     holds = [hold(k) for k in range(HELD_AT_ONCE)]

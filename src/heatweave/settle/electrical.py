@@ -14,7 +14,6 @@ iteration of every time step.
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 
@@ -22,29 +21,50 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.emit.emitter import Inputs
-from heatweave.emit.names import held_resistor
+from heatweave.emit.names import current_source, held_resistor
 from heatweave.errors import ConvergenceError, EmitError, Finding
 from heatweave.quantities import format_number
 from heatweave.run.prepare import Prepared, RunOptions, prepare, simulate
 from heatweave.run.results import RunResults, extract
 from heatweave.run.waves import seconds
-from heatweave.thermal.circuit import PREFIX, PartPlan, ThermalCircuit, safe
+from heatweave.spice.deck import Card, Deck
+from heatweave.spice.grammar import parse_card
+from heatweave.spice.syntax import ElementSyntax
+from heatweave.spice.transform import map_cards
+from heatweave.thermal.circuit import PartPlan, ThermalCircuit
 
 FloatArray = npt.NDArray[np.float64]
 
 
-def fixed_resistor_deck(text: str, parts: Sequence[PartPlan], temps: Sequence[float]) -> str:
-    """*text* (a no-heating emitted deck) with each resistor part a plain R card at R(T)."""
+def fixed_resistor_deck(deck: Deck, parts: Sequence[PartPlan], temps: Sequence[float]) -> Deck:
+    """*deck* (a no-heating emitted deck's tree) with each resistor part's current source
+    (:func:`heatweave.emit.names.current_source`, at any depth) a plain R card at R(T)
+    between the same two nodes; every other card as it was.  Raises :class:`EmitError`
+    when a part's source is not in the deck exactly once."""
+    held: dict[str, tuple[PartPlan, str]] = {}
     for part, temp in zip(parts, temps, strict=True):
         assert part.model is not None
-        name = f"{PREFIX}{safe(part.path)}"
-        held = held_resistor(part)  # a deck using the name is refused when emitted
-        pattern = re.compile(rf"^B{re.escape(name)}[ \t]+(\S+)[ \t]+(\S+)[ \t]+I[ \t]*=.*$", re.M)
         value = format_number(float(part.model.resistance(float(temp))))
-        text, count = pattern.subn(rf"{held} \g<1> \g<2> {value}", text, count=1)
-        if count != 1:
+        held[current_source(part).lower()] = (part, value)
+    found: list[str] = []
+
+    def fix(card: Card) -> Card:
+        entry = held.get(card.name)
+        if entry is None:
+            return card
+        found.append(card.name)
+        syntax = parse_card(card.logical().text)
+        assert isinstance(syntax, ElementSyntax) and len(syntax.nodes) == 2, card.text
+        a, b = (node.text for node in syntax.nodes)
+        eol = "\r\n" if card.text.endswith("\r\n") else "\n"
+        # a deck using the held name is refused when emitted (emit.names.reserved)
+        return card.with_text(f"{held_resistor(entry[0])} {a} {b} {entry[1]}{eol}")
+
+    fixed = map_cards(deck, fix)
+    for name, (part, _value) in held.items():
+        if found.count(name) != 1:
             raise EmitError(f"cannot find the behavioural source of {part.path} to hold it fixed")
-    return text
+    return fixed
 
 
 def window(time: FloatArray, values: FloatArray, t0: float, t1: float) -> tuple[FloatArray, ...]:
@@ -143,8 +163,9 @@ class Electrical:
 
     def simulate(self, temps: Sequence[float], periods: int) -> RunResults:
         """One transient of *periods* periods with resistor parts at *temps* (degC)."""
-        text = fixed_resistor_deck(self.base.text, self.resistors, temps)
-        prepared = replace(self.base, text=text, analyses=(self._analysis(periods),))
+        deck = fixed_resistor_deck(self.base.deck, self.resistors, temps)
+        analyses = (self._analysis(periods),)
+        prepared = replace(self.base, text=deck.write(), deck=deck, analyses=analyses)
         sim = simulate(prepared, self.options)
         return extract(sim, self.base.emitted, self.inputs.index)
 
