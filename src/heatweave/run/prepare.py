@@ -98,7 +98,7 @@ class Prepared:
     findings: tuple[Finding, ...]
     cwd: str
     #: The tree *text* was written from; a diagnosis deck is a transform of this tree,
-    #: written once for its simulation (:func:`heatweave.run.runaway.simulate_deck`).
+    #: written once for its simulation (:func:`heatweave.run.diagnosis_decks.simulate_deck`).
     deck: Deck = field(repr=False, compare=False, kw_only=True)
     #: The user's deck and includes, to point ngspice's complaints back at their cards
     #: (:func:`heatweave.run.locate.locate`).

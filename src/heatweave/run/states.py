@@ -40,7 +40,7 @@ from scipy import ndimage
 
 from heatweave.emit.names import HELD_AT_ONCE, hold
 from heatweave.errors import Finding, SimulatorError
-from heatweave.run.runaway import TIGHT, simulate_deck
+from heatweave.run.diagnosis_decks import TIGHT, simulate_deck
 from heatweave.spice.transform import insert_before_end, new_cards
 from heatweave.thermal.balance import thermal_nodes
 
@@ -376,9 +376,7 @@ def single(
     return Statement((finding,))
 
 
-def pair(
-    results: RunResults, parts: list[PartPlan], found: list[State], source: str
-) -> Statement:
+def pair(results: RunResults, parts: list[PartPlan], found: list[State], source: str) -> Statement:
     """Two parts: their stable states together; ngspice's verified operating point is
     reported, and the warning says whether it is the lowest in both."""
     stable = [s for s in found if s.stable]

@@ -35,8 +35,9 @@ import numpy as np
 from heatweave.errors import Finding, SimulatorError, ThermalRunawayError
 from heatweave.quantities import parse_number
 from heatweave.run.diagnosis import HINT, RunawayError
+from heatweave.run.diagnosis_decks import TIGHT, simulate_deck
 from heatweave.run.results import RunResults, extract
-from heatweave.run.runaway import TIGHT, Continuation, diagnose, follow, simulate_deck
+from heatweave.run.runaway import Continuation, diagnose, follow
 from heatweave.run.states import HINT as STATES_HINT
 from heatweave.run.states import scan, statement
 from heatweave.spice.transform import insert_before_end, new_cards
