@@ -33,13 +33,16 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from heatweave.errors import Finding, SimulatorError, ThermalRunawayError
-from heatweave.quantities import parse_number
 from heatweave.run.diagnosis import HINT, RunawayError
 from heatweave.run.diagnosis_decks import TIGHT, simulate_deck
 from heatweave.run.results import RunResults, extract
 from heatweave.run.runaway import Continuation, diagnose, follow
 from heatweave.run.states import HINT as STATES_HINT
 from heatweave.run.states import scan, statement
+from heatweave.spice.deck import Deck
+from heatweave.spice.options import option_settings
+from heatweave.spice.reader import read
+from heatweave.spice.syntax import Value
 from heatweave.spice.transform import insert_before_end, new_cards
 from heatweave.thermal.balance import (
     ABSTOL_T,
@@ -58,8 +61,6 @@ if TYPE_CHECKING:
     from heatweave.simulators import SimResult
 
 _FALLBACK = re.compile(r"transient op started", re.IGNORECASE)
-_OPTIONS = re.compile(r"^[ \t]*\.options?\b(.*)$", re.IGNORECASE | re.MULTILINE)
-_SETTING = re.compile(r"\b(reltol|vntol)\s*=\s*(\S+)", re.IGNORECASE)
 
 
 class NoSteadyStateError(ThermalRunawayError):
@@ -81,25 +82,34 @@ def steady_index(results: RunResults, circuit: ThermalCircuit) -> int | None:
     return None
 
 
-def solver_tolerances(text: str) -> tuple[float, float]:
-    """``(reltol, extra)`` for :func:`check_state`: the deck's ``.options reltol`` where it is
-    looser than ngspice's default, and how far its ``vntol`` (V = K) exceeds the default."""
+def solver_tolerances(deck: Deck | str | None) -> tuple[float, float]:
+    """``(reltol, extra)`` for :func:`check_state`: the deck's ``reltol`` where it is looser
+    than ngspice's default, and how far its ``vntol`` (V = K) exceeds the default.
+
+    *deck* is the tree ngspice was given (includes inlined), or a deck's text; its options
+    cards are read as ngspice reads them (:func:`heatweave.spice.options.option_settings`).
+    A value that is not a plain number (``{expr}``) is not read: the balance then holds
+    ngspice's default, the tighter one."""
+    if isinstance(deck, str):
+        deck = read(deck)
     reltol, vntol = RELTOL, ABSTOL_T
-    for line in _OPTIONS.findall(text):
-        for key, value in _SETTING.findall(line):
-            number = parse_number(value)
-            if number is None or not number > 0:
-                continue
-            if key.lower() == "reltol":
-                reltol = max(reltol, number)
-            else:
-                vntol = max(vntol, number)
+    for _card, setting in option_settings(deck) if deck is not None else ():
+        key = setting.key.key
+        number = setting.value.number if isinstance(setting.value, Value) else None
+        if key not in ("reltol", "vntol") or number is None or not number > 0:
+            continue
+        if key == "reltol":
+            reltol = max(reltol, number)
+        else:
+            vntol = max(vntol, number)
     return reltol, vntol - ABSTOL_T
 
 
-def verdict_of(results: RunResults, circuit: ThermalCircuit, at: int, text: str = "") -> Verdict:
+def verdict_of(
+    results: RunResults, circuit: ThermalCircuit, at: int, deck: Deck | None = None
+) -> Verdict:
     """:func:`check_state` on point *at* of *results* (every path verifies through it), to
-    the tolerances of the deck *text* ran with."""
+    the tolerances of the *deck* ngspice ran (ngspice's defaults without one)."""
     by_label = {p.path: p for p in results.parts}
 
     def pick(final: float, series: FloatArray | None) -> float:
@@ -110,7 +120,7 @@ def verdict_of(results: RunResults, circuit: ThermalCircuit, at: int, text: str 
     temps += [pick(results.nodes[n.label], results.node_series.get(n.label)) for n in circuit.nodes]
     powers = [pick(by_label[p.path].power, by_label[p.path].power_series) for p in circuit.parts]
     ambient = pick(results.ambient, results.ambient_series)
-    reltol, extra = solver_tolerances(text)
+    reltol, extra = solver_tolerances(deck)
     return check_state(circuit, temps, powers, ambient, accuracy=extra, reltol=reltol)
 
 
@@ -170,7 +180,7 @@ def verify_run(
         # No steady state to hold to the balance; a heat-only part that delivers power on
         # average is still worth a word.
         return Verified(sim, results, tuple(negative_heat(circuit, mean_powers(results))))
-    verdict = verdict_of(results, circuit, at, prepared.text)
+    verdict = verdict_of(results, circuit, at, prepared.deck)
     fallback = fell_back(sim.log)
     if verdict.ok and not fallback:
         said = statement(options, prepared, results)
@@ -242,7 +252,7 @@ def resolve(
     sim = simulate_deck(prepared, options, deck)
     results = extract(sim, prepared.emitted, inputs.index)
     at = steady_index(results, circuit)
-    verdict = verdict_of(results, circuit, at if at is not None else -1, prepared.text)
+    verdict = verdict_of(results, circuit, at if at is not None else -1, prepared.deck)
     if not verdict.ok or fell_back(sim.log):
         raise NoSteadyStateError(
             f"no verified steady state: {why}; the state {how} does not hold either "
