@@ -75,6 +75,27 @@ def test_fit_bad_rows_are_located(name: str, where: str, words: str) -> None:
     assert "Traceback" not in err
 
 
+@pytest.mark.parametrize(
+    ("text", "where"),
+    [
+        # U+2028, U+0085 and a form feed are characters of their line to the csv module
+        # (and to an editor counting LF); str.splitlines broke there and every later
+        # position was a line too low
+        ("# one\u2028two\u0085three\n1m, 0.1\n2m, x\n", "3:5:"),
+        ("t, zth\f\n1m, 0.1\u2028\n2m, x\n", "3:5:"),
+        # a field holding one: the row is read whole, the error on its own line
+        ("1m,\u2028 0.1\n2m, -1\n", "2:5:"),
+        # CR LF and a lone CR end a line, as for the csv module
+        ("# crlf\r\n1m, 0.1\r2m, x\r\n", "3:5:"),
+    ],
+)
+def test_fit_counts_lines_as_the_csv_module_does(tmp_path: Path, text: str, where: str) -> None:
+    data = tmp_path / "sep.csv"
+    data.write_bytes(text.encode())
+    code, _, err = _run("fit", str(data), "-n", "1")
+    assert code == 2 and f"{data}:{where}" in err, err
+
+
 TOO_FEW = [
     # (options, words of the message): 2 stages need 5 points
     ((), "4 data points are too few for 2 Foster stages"),

@@ -44,6 +44,19 @@ def _fields(text: str) -> list[tuple[int, str]]:
     return out
 
 
+def csv_lines(text: str) -> list[str]:
+    """*text*'s lines as the csv module counts them (and an editor counting LF): LF, CR LF
+    or a lone CR ends a line.  ``str.splitlines`` also breaks at U+0085, U+2028, U+2029,
+    VT, FF and the file separators, and every position after one was a line off."""
+    lines = _LINE_END.split(text)
+    if lines[-1] == "":
+        lines.pop()
+    return lines
+
+
+_LINE_END = re.compile(r"\r\n|\r|\n")
+
+
 def read_zth_csv(text: str, filename: str) -> ZthData:
     """Two columns, time (s) and Zth (K/W); an optional header row; ``#`` starts a comment.
 
@@ -55,7 +68,7 @@ def read_zth_csv(text: str, filename: str) -> ZthData:
     lines: list[int] = []
     seen_row = False
     previous = ""
-    for number, raw in enumerate(text.splitlines(), start=1):
+    for number, raw in enumerate(csv_lines(text), start=1):
         content = raw.split("#", 1)[0]
         if not content.strip():
             continue
