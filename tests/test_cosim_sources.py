@@ -21,6 +21,9 @@ from heatweave.cosim.method import source_time_scale
         ("V1 in 0 SIN(0 1 2k) DC 2", 0.5e-3),  # the DC value after the function
         ("V1 in 0 PULSE (0 5 0 1u 1u 10u 20u)", 20e-6),  # a blank before the parenthesis
         ("i1 0 a pulse(0 1m 0 1n 1n 5u 40u)", 40e-6),  # lower case, a current source
+        # no parentheses at all (ngspice 39 runs these: checked with stock ngspice)
+        ("V1 in 0 PULSE 0 5 0 1u 1u 10u 20u", 20e-6),
+        ("V1 in 0 DC 1 SIN 0 1 1k AC 1", 1e-3),
         # a value the grammar does not read as a number: no time scale from it
         ("V1 in 0 PULSE(0 {vhi} 0 1u 1u 10u 20u)", None),
         ("V1 in 0 {sin(2)}", None),  # a brace expression, not a transient function

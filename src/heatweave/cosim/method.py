@@ -97,7 +97,7 @@ def _function(text: str) -> Call | None:
         syntax = parse_card(text)
     except CardSyntaxError:
         return None
-    return syntax.source().function if isinstance(syntax, ElementSyntax) else None
+    return syntax.source(text).function if isinstance(syntax, ElementSyntax) else None
 
 
 def _numbers(words: Iterable[str]) -> list[float] | None:

@@ -24,8 +24,8 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.errors import HeatweaveError
-from heatweave.run.waves import exact_value, pwl_options, transient_function
+from heatweave.errors import HeatweaveError, Location
+from heatweave.run.waves import exact_value, transient_function
 from heatweave.spice.deck import Card
 from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.netlist import scope_params, top_params
@@ -102,9 +102,9 @@ def card_corners(
     """The corners of one ``V``/``I`` card's ``PULSE`` or ``PWL`` (none for others).
     Raises :class:`HeatweaveError` when a number cannot be read."""
     function = transient_function(card)
-    if function is None or function[0] not in ("PULSE", "PWL"):
+    if function is None or function.kind not in ("PULSE", "PWL"):
         return []
-    kind, _where_at, args, end = function
+    kind, args, options = function.kind, function.args, function.options
 
     def value(k: int) -> float | None:
         if k >= len(args):
@@ -125,7 +125,6 @@ def card_corners(
     times = [float(exact_value(w, params, card, at)) for w, at in args[0::2]]
     if not times:
         return []
-    options = pwl_options(card, end)
     delay = 0.0
     if "td" in options:
         delay = float(exact_value(options["td"][0], params, card, options["td"][1]))
@@ -155,8 +154,17 @@ def deck_corners(index: DeckIndex, tstep: float, tstop: float) -> SourceCorners:
         try:
             corners += card_corners(path, resolved.card, params, tstep, tstop)
         except HeatweaveError as err:
-            function = transient_function(resolved.card)
-            kind, where = (function[0], function[1]) if function else ("source", None)
+            kind, where = _kind(resolved.card)
             at = f" ({where.file}:{where.line})" if where else ""
             unreadable.append(f"{path}'s {kind}{at}: {err.message}")
     return SourceCorners(tuple(corners), tuple(unreadable))
+
+
+def _kind(card: Card) -> tuple[str, Location | None]:
+    """The kind of *card*'s function (``PULSE``) and where its keyword is; ``source``
+    where it cannot be read."""
+    try:
+        function = transient_function(card)
+    except HeatweaveError:
+        return "source", None
+    return (function.kind, function.location) if function is not None else ("source", None)

@@ -1,8 +1,11 @@
 """The drive period of a deck, read from its independent sources (``settle``, ``check``).
 
 A periodic steady state exists only for a period with which every source repeats.  Each
-``V``/``I`` source's transient function is read as ngspice 39 reads it (manual 4.1;
-defaults there: a parameter omitted or zero takes its default):
+``V``/``I`` source's transient function is read by the grammar
+(:meth:`heatweave.spice.syntax.ElementSyntax.source`, the one reader of source functions:
+the co-simulation's time scale and the corners of :mod:`heatweave.run.edges` use it too)
+and taken as ngspice 39 takes it (manual 4.1; defaults there: a parameter omitted or zero
+takes its default):
 
 * ``PULSE(V1 V2 TD TR TF PW PER NP)``: period ``PER``; ``PER`` omitted or zero defaults to
   the transient's stop time, so the source gives one pulse and is not periodic; ``NP`` > 0
@@ -31,8 +34,10 @@ from fractions import Fraction
 
 from heatweave.errors import HeatweaveError, Location, UsageError
 from heatweave.spice.deck import Card
+from heatweave.spice.grammar import CardSyntaxError, parse_card
 from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.netlist import evaluate, scope_params, top_params
+from heatweave.spice.syntax import ElementSyntax, Token
 
 #: The least common period may be at most this many times the shortest source period;
 #: beyond, the sources are taken as incommensurate (each period would hold too many).
@@ -43,8 +48,6 @@ RATIO_TOL = 1e-9
 
 #: Element letters that can carry a transient function (or ``time``): V, I, A, B, E, F, G, H.
 _DRIVEN = frozenset("VIABEFGH")
-_FUNCTIONS = ("pulse", "sin", "exp", "pwl", "sffm", "am", "trnoise", "trrandom", "external")
-_KEYWORD = re.compile(r"(?<![\w.{])(" + "|".join(_FUNCTIONS) + r")(?![\w])\s*", re.IGNORECASE)
 _TIME = re.compile(r"(?<![\w.])time(?![\w(])", re.IGNORECASE)
 _EXACT = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)([A-Za-z_]\w*)?\s*$")
 _SCALES = (
@@ -121,64 +124,45 @@ def exact_value(text: str, params: Mapping[str, float], card: Card, at: int) -> 
     return Fraction(f"{evaluate(text, params, card, at):.15g}")
 
 
-def _arguments(text: str, start: int) -> tuple[list[tuple[str, int]], int]:
-    """The arguments after a function keyword at *start*: in parentheses, or bare words up
-    to the end; each with its offset.  Braces and parentheses nest."""
-    out: list[tuple[str, int]] = []
-    k, depth, word, at = start, 0, "", start
-    closing = text[k : k + 1] == "("
-    if closing:
-        k += 1
-    while k < len(text):
-        ch = text[k]
-        if ch in "({":
-            depth += 1
-        elif ch in ")}":
-            if depth == 0 and ch == ")" and closing:
-                k += 1
-                break
-            depth -= 1
-        if depth == 0 and (ch.isspace() or ch == ","):
-            if word:
-                out.append((word, at))
-            word = ""
-        else:
-            if not word:
-                at = k
-            word += ch
-        k += 1
-    if word:
-        out.append((word, at))
-    return out, k
-
-
 def lcm(a: Fraction, b: Fraction) -> Fraction:
     """The least common multiple of two positive fractions."""
     return Fraction(math.lcm(a.numerator, b.numerator), math.gcd(a.denominator, b.denominator))
 
 
-def transient_function(
-    card: Card,
-) -> tuple[str, Location | None, list[tuple[str, int]], int] | None:
-    """A ``V``/``I`` card's transient function: its kind (``PULSE``), where its keyword is,
-    its arguments with their offsets, and the offset after them; ``None`` for a DC source."""
+@dataclass(frozen=True, slots=True)
+class SourceFunction:
+    """A ``V``/``I`` card's transient function as the grammar reads it
+    (:meth:`heatweave.spice.syntax.ElementSyntax.source`): its kind (``PULSE``), where its
+    keyword is, its arguments and a ``PWL``'s ``r=`` and ``td=``, each with the offset in
+    the card's logical text it is read at."""
+
+    kind: str
+    location: Location | None
+    args: tuple[tuple[str, int], ...]
+    options: dict[str, tuple[str, int]]
+
+
+def transient_function(card: Card) -> SourceFunction | None:
+    """A ``V``/``I`` card's transient function; ``None`` for a DC source.  Raises
+    :class:`UsageError` (at the card) for a card the grammar cannot read."""
     text = card.logical().text
-    # Skip the name and the two nodes before looking for a function keyword.
-    fields = re.match(r"\s*\S+\s+\S+\s+\S+", text)
-    body = fields.end() if fields else len(text)
-    hit = _KEYWORD.search(text, body)
-    if hit is None:
+    try:
+        syntax = parse_card(text)
+    except CardSyntaxError as err:
+        raise UsageError(f"cannot read the source: {err.message}", card.location(err.offset),
+                         err.hint) from None  # fmt: skip
+    if not isinstance(syntax, ElementSyntax):
         return None
-    args, end = _arguments(text, hit.end())
-    return hit[1].upper(), card.location(hit.start()), args, end
-
-
-def pwl_options(card: Card, end: int) -> dict[str, tuple[str, int]]:
-    """A ``PWL``'s ``r=`` and ``td=`` after its points (from offset *end*), by lower-case
-    name, each with the offset it is read at."""
-    text = card.logical().text
-    found = re.finditer(r"\b(r|td)\s*=\s*(\S+)", text[end:], re.IGNORECASE)
-    return {m[1].lower(): (m[2], end + m.start(2)) for m in found}
+    function = syntax.source(text).function
+    if function is None:
+        return None
+    args = tuple((arg.text, arg.offset) for arg in function.args if isinstance(arg, Token))
+    # r= and td= after the parentheses or inside them; a later one wins, as in ngspice.
+    options = {p.key.key: (p.value.text, p.value.offset)
+               for p in (*function.params, *syntax.params)
+               if p.key.key in ("r", "td") and isinstance(p.value, Token)}  # fmt: skip
+    where = card.location(function.offset)
+    return SourceFunction(function.name.text.upper(), where, args, options)
 
 
 def read_wave(path: str, card: Card, params: Mapping[str, float]) -> Wave:
@@ -199,7 +183,7 @@ def read_wave(path: str, card: Card, params: Mapping[str, float]) -> Wave:
     function = transient_function(card)
     if function is None:
         return Wave(path, "DC", None)
-    kind, where, args, end = function
+    kind, where, args = function.kind, function.location, function.args
 
     def value(k: int) -> Fraction | None:
         if k >= len(args):
@@ -224,7 +208,7 @@ def read_wave(path: str, card: Card, params: Mapping[str, float]) -> Wave:
             return _problem(wave, "is damped (THETA is not 0), so it does not repeat")
         return Wave(path, kind, where, 1 / freq, float(delay))
     if kind == "PWL":
-        return _pwl(wave, args, pwl_options(card, end), params, card)
+        return _pwl(wave, args, function.options, params, card)
     if kind in ("SFFM", "AM"):
         # SFFM(VO VA FC MDI FS ...), AM(VA VO MF FC TD ...): carrier, then modulation.
         carrier, modulation = (
@@ -258,7 +242,7 @@ def _pulse(wave: Wave, values: list[Fraction | None]) -> Wave:
     return Wave(wave.path, wave.kind, wave.location, per, delay)
 
 
-def _pwl(wave: Wave, args: list[tuple[str, int]], options: dict[str, tuple[str, int]],
+def _pwl(wave: Wave, args: tuple[tuple[str, int], ...], options: dict[str, tuple[str, int]],
          params: Mapping[str, float], card: Card) -> Wave:  # fmt: skip
     """``PWL(...) r=R td=TD`` (manual 4.1.4)."""
     times = [exact_value(w, params, card, at) for w, at in args[0::2]]

@@ -159,9 +159,11 @@ class ElementSyntax:
         """The last ``key=`` pair (case-insensitive), as ngspice lets a later one win."""
         return last_param(self.params, key)
 
-    def source(self) -> SourceParts:
-        """The parts of an independent source's value (manual 4.1), for V and I cards."""
-        return SourceParts.of(self.positional)
+    def source(self, text: str | None = None) -> SourceParts:
+        """The parts of an independent source's value (manual 4.1), for V and I cards.
+        With the card's logical *text*, a function written without parentheses
+        (``PULSE 0 1 0 1n 1n 5u 10u``, ``EXTERNAL``: ngspice 39 reads them) is read too."""
+        return SourceParts.of(self.positional, text)
 
     def split_nodes(self, model_names: Container[str]) -> ElementSyntax:
         """Decide Q/M node counts from the deck's (lower-case) model names.
@@ -190,6 +192,8 @@ class ElementSyntax:
 TRANSIENT_FUNCTIONS = frozenset(
     {"pulse", "sin", "exp", "pwl", "sffm", "am", "trnoise", "trrandom"}
 )  # manual 4.1.1-4.1.9
+#: A source whose value the program driving ngspice's shared library sets (manual 4.1.10).
+EXTERNAL = "external"
 
 
 @dataclass(frozen=True, slots=True)
@@ -203,14 +207,28 @@ class SourceParts:
     distof2: tuple[Field, ...] = ()
 
     @classmethod
-    def of(cls, fields: tuple[Field, ...]) -> SourceParts:
-        """Read the positional fields of a V or I card."""
+    def of(cls, fields: tuple[Field, ...], text: str | None = None) -> SourceParts:
+        """Read the positional fields of a V or I card; with the card's logical *text*, a
+        function keyword without parentheses takes the values after it as its arguments
+        (up to the next keyword), its :class:`Call` spanning them as written."""
         parts: dict[str, list[Field]] = {"dc": [], "ac": [], "distof1": [], "distof2": []}
         function: Call | None = None
         current = "dc"
-        for field in fields:
+        k = 0
+        while k < len(fields):
+            field = fields[k]
+            k += 1
             if isinstance(field, Call) and field.name.key in TRANSIENT_FUNCTIONS:
                 function = field
+                current = ""
+            elif text is not None and isinstance(field, Value) and field.key in _BARE:
+                args: list[Field] = []
+                while k < len(fields) and _is_argument(fields[k]):
+                    args.append(fields[k])
+                    k += 1
+                end = args[-1].end if args else field.end
+                name = Token(field.text, field.offset)
+                function = Call(text[field.offset : end], field.offset, name, tuple(args), ())
                 current = ""
             elif isinstance(field, Value) and field.key in parts:
                 current = field.key
@@ -222,6 +240,14 @@ class SourceParts:
         return cls(
             dc, tuple(parts["ac"]), function, tuple(parts["distof1"]), tuple(parts["distof2"])
         )
+
+
+_BARE = TRANSIENT_FUNCTIONS | {EXTERNAL}
+
+
+def _is_argument(field: Field) -> bool:
+    """A value a bare function keyword takes: anything but a keyword (``ac``, ``dc``)."""
+    return isinstance(field, Value) and field.kind is not ValueKind.NAME
 
 
 _NODE_KINDS = (ValueKind.NAME, ValueKind.NUMBER, ValueKind.EXPRESSION)
