@@ -35,6 +35,7 @@ def card_of(line: str) -> Card:
         ("V1 a 0 PWL(0 0 1m 1 2m 0) r=0 td=5m", Fraction(2, 1000), 5e-3),
         ("V1 a 0 PWL(0 0 1m 1 2m 0) td=5m r=1m", Fraction(1, 1000), 6e-3),
         ("V1 a 0 PWL(0 0 1m 1 2m 0)\n+ r=0", Fraction(2, 1000), 0.0),  # continuation line
+        ("V1 a 0 PWL(0 0 1m 1 2m 0 r=0)", Fraction(2, 1000), 0.0),  # inside: ngspice repeats
         ("V1 a 0 DC 3", None, 0.0),
     ],
 )
