@@ -10,9 +10,12 @@ layouts without parentheses were run with stock ngspice 39.
 from __future__ import annotations
 
 from fractions import Fraction
+from pathlib import Path
 
 import pytest
+from click.testing import CliRunner
 
+from heatweave.cli import main
 from heatweave.errors import UsageError
 from heatweave.run.waves import read_wave, transient_function
 from heatweave.spice.deck import Card
@@ -60,7 +63,32 @@ def test_sources_that_do_not_repeat_are_located(line: str, kind: str, column: in
     assert wave.location is not None and (wave.location.line, wave.location.column) == (2, column)
 
 
-def test_a_card_the_grammar_cannot_read_is_a_located_error() -> None:
+def test_a_card_the_grammar_cannot_read_is_located_and_unknown() -> None:
+    # An unclosed parenthesis: ngspice 39 runs it, the grammar (and lint) refuse it.  The
+    # reader says so at the card; a run then takes the source as one it cannot read (its
+    # power note says so), settle asks for --period.
+    card = card_of("V1 a 0 PULSE(0 5 0 1u 1u 10u 20u")
     with pytest.raises(UsageError, match="cannot read the source") as caught:
-        transient_function(card_of("V1 a 0 PULSE(0 5 0 1u 1u 10u 20u"))
+        transient_function(card)
     assert caught.value.location is not None and caught.value.location.line == 2
+    wave = read_wave("V1", card, {})
+    assert wave.unknown is not None and "unbalanced" in wave.unknown
+    assert wave.location is not None and wave.location.line == 2
+
+
+@pytest.mark.ngspice
+def test_a_run_says_when_power_is_not_a_periods_mean(tmp_path: Path) -> None:
+    # The same card in a transient: ngspice runs it; heatweave cannot read its period, so
+    # power is the final value, and the run says so (it said nothing when no source at all
+    # could be read).
+    (tmp_path / "u.cir").write_text(
+        "unclosed\nV1 a 0 PULSE(0 10 0 1u 1u 499u 1m\nR1 a 0 100\n.tran 1u 3m\n.end\n"
+    )
+    (tmp_path / "u.thermal.toml").write_text(
+        'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0.004\nrth = 50.0\ncth = 0.5\n'
+    )
+    args = ["run", str(tmp_path / "u.cir"), "-a", str(tmp_path / "u.thermal.toml")]
+    result = CliRunner().invoke(main, [*args, "--method", "full"])
+    assert result.exit_code == 0, result.output
+    assert f"cannot tell whether V1's source ({tmp_path / 'u.cir'}:2) repeats" in result.output
+    assert "power is the final value" in result.output

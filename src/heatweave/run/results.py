@@ -212,10 +212,13 @@ def _peak(series: FloatArray, peak: float | None) -> float:
 def drive_findings(results: RunResults, index: DeckIndex) -> tuple[Finding, ...]:
     """A note when ``power`` of a transient could not be the mean over one common period
     of the drive (:func:`heatweave.run.drive.period_note`)."""
-    if results.time is None or results.period is None or len(results.time) < 2:
+    if results.time is None or len(results.time) < 2:
         return ()
+    found = deck_drive(index)
+    if results.period is None and not found.unknown:
+        return ()  # a source it cannot read is said even where power is the final value
     span = float(results.time[-1] - results.time[0])
-    note = period_note(deck_drive(index), span)
+    note = period_note(found, span)
     return () if note is None else (note,)
 
 

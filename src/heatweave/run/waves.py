@@ -180,7 +180,10 @@ def read_wave(path: str, card: Card, params: Mapping[str, float]) -> Wave:
                     unknown="its value is an expression of time")  # fmt: skip
     if letter not in "VI":
         return Wave(path, "element", None)
-    function = transient_function(card)
+    try:
+        function = transient_function(card)
+    except UsageError as err:  # lint reports the card; a run takes it as unreadable
+        return Wave(path, "source", err.location, unknown=err.message)
     if function is None:
         return Wave(path, "DC", None)
     kind, where, args = function.kind, function.location, function.args
