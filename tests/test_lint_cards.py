@@ -316,6 +316,8 @@ def test_simulating_commands_refuse_an_analysis_computing_nothing(
         ("PULSE(0 1 0 0.5m 0.5m 1n 1m)", False, False),  # a triangle with a tiny PW
         ("PULSE(0 1 0 1u 1u 0)", True, True),  # a single spike written with PW 0
         ("PULSE(0 1 0 1u 1u)", True, False),  # PW left out: TSTOP, as the manual says
+        ("PULSE 0 1 0 0.5m 0.5m 0 1m", True, True),  # no parentheses: ngspice 39 runs it
+        ("pulse 0 1 0 0.5m 0.5m 1n 1m", False, False),
     ],
 )
 def test_pulse_width_zero_is_the_default(
@@ -338,7 +340,8 @@ def test_pulse_width_zero_is_the_default(
     assert (abs(float(late[1]) - 10.0) < 1e-6) == high  # V2 = 1 A into 10 ohm
     warnings = [f for f in findings(deck) if f[2] == "warning" and "PW" in f[3]]
     if warned:
-        column = len("I1 0 a ") + len(" ".join(function.split()[:5])) + 2
+        pw = list(re.finditer(r"[^\s()]+", function))[6]  # PULSE V1 V2 TD TR TF PW
+        column = len("I1 0 a ") + pw.start() + 1
         assert [(w[0], w[1]) for w in warnings] == [(2, column)], warnings
     else:
         assert warnings == []

@@ -308,14 +308,15 @@ def card_problems(syntax: CardSyntax, text: str, model_of: ModelLookup) -> list[
     if isinstance(syntax, ElementSyntax) and syntax.letter == "r":
         return _resistor(syntax, len(text.rstrip()), model_of)
     if isinstance(syntax, ElementSyntax) and syntax.letter in ("v", "i"):
-        return _pulse_width(syntax)
+        return _pulse_width(syntax, text)
     return []
 
 
-def _pulse_width(syntax: ElementSyntax) -> list[Problem]:
+def _pulse_width(syntax: ElementSyntax, text: str) -> list[Problem]:
     """4.1.1: PW defaults to TSTOP, and ngspice 39 reads a PW of 0 as not given, so the
-    source rises once and stays at V2: a triangle or a spike written with PW 0 is not one."""
-    function = syntax.source().function
+    source rises once and stays at V2: a triangle or a spike written with PW 0 is not one.
+    *text* lets the grammar read a PULSE without parentheses too (ngspice 39 runs it)."""
+    function = syntax.source(text).function
     if function is None or function.name.key != "pulse" or len(function.args) < 6:
         return []
     width = function.args[5]
