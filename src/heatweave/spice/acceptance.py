@@ -474,10 +474,11 @@ def duplicates(index: DeckIndex) -> Iterator[Finding]:
             )
             earlier.append(card)
             if clash is not None:
-                line = clash.location()
+                first = clash.location()
+                at = f"{first.file}:{first.line}" if first else "an unknown place"
                 yield Finding(
                     "error",
-                    f"duplicate element name {head} (first at line {line.line if line else 0})",
+                    f"duplicate element name {head} (first at {at})",
                     card.location(),
                     "element names must be unique within a (sub)circuit, case ignored; "
                     "ngspice 39 stops with 'device already exists'",
