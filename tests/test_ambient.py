@@ -57,7 +57,11 @@ def write(tmp_path: Path, analysis: str = ".op", annotation: str = ANNOTATION) -
 def stock_va(tmp_path: Path, ohms: float, temp: float) -> float:
     """V(a) from stock ngspice: R1 a plain resistor of *ohms*, the circuit at *temp*."""
     text = DECK.format(analysis=f".temp {temp!r}\n.control\nop\nprint v(a)\n.endc")
-    text = text.replace("R1 in a 4.7k", f"R1 in a {ohms!r}")
+    return stock_op(tmp_path, text.replace("R1 in a 4.7k", f"R1 in a {ohms!r}"))
+
+
+def stock_op(tmp_path: Path, text: str) -> float:
+    """V(a) that stock ngspice prints for the deck *text*."""
     path = tmp_path / "stock.cir"
     path.write_text(text)
     out = subprocess.run(["ngspice", "-b", str(path)], capture_output=True, text=True, timeout=60)
@@ -217,3 +221,20 @@ def test_annotation_ambient_below_absolute_zero_is_located(
     assert result.exit_code == 2, result.output
     assert f"diode.thermal.toml:{line}:" in result.output
     assert needle in result.output
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+@pytest.mark.parametrize("card", [".optxyz temp=50", ".OPTION\n+ temp = 50", ".opt temp=50 $ x"])
+def test_every_options_spelling_ngspice_reads_is_reported(tmp_path: Path, card: str) -> None:
+    # Stock ngspice 39 (run here) takes any card whose name starts with .opt as options:
+    # the diode's forward voltage at temp=50 is the one at .temp 50, not the one at 27 degC.
+    va = stock_op(tmp_path, DECK.format(analysis=f"{card}\n.control\nop\nprint v(a)\n.endc"))
+    assert va == pytest.approx(stock_va(tmp_path, 4.7e3, 50.0), abs=VOLTS)
+    assert abs(va - stock_va(tmp_path, 4.7e3, 27.0)) > 0.02  # ~2 mV/K
+    deck, toml = write(tmp_path, f"{card}\n.op")
+    outcome = runner.run(deck, toml, runner.RunOptions(ambient=25.0))
+    rendered = [f.render() for f in outcome.prepared.findings]
+    line = 6 + card[: card.lower().index("temp")].count("\n")  # where temp= is written
+    said = [r for r in rendered if "temp=50 is not used" in r]
+    assert [r.split(": warning")[0].rsplit(":", 2)[1] for r in said] == [str(line)], rendered

@@ -16,18 +16,17 @@ per run: the elements without a thermal network stay at the profile's value at t
 
 from __future__ import annotations
 
-import re
 from collections.abc import Iterable
 
 from heatweave.emit.splice import insert_before_end, line_ending
 from heatweave.errors import Finding
 from heatweave.quantities import format_number, parse_number
 from heatweave.spice.deck import Card, Deck, iter_cards
+from heatweave.spice.options import option_settings
+from heatweave.spice.syntax import Param
 from heatweave.thermal.circuit import ThermalCircuit
 
-#: ``.options`` spellings ngspice accepts.
-OPTION_CARDS = frozenset({".option", ".options", ".opt"})
-_SETTING = re.compile(r"(?i)(?<![\w.])(temp|tnom)\s*=\s*([^\s,()]+)")
+_KEYS = ("temp", "tnom")
 #: Two temperatures this close (K) are the same setting written differently.
 SAME = 1e-9
 
@@ -88,11 +87,17 @@ def temperature_findings(
     for deck, low in decks:
         if ".temp" not in low and "temp" not in low and "tnom" not in low:
             continue
+        # Options cards as ngspice 39 reads them (any name starting with .opt), in file
+        # order with the .temp cards.
+        settings: dict[int, list[Param]] = {}
+        for card, param in option_settings(deck):
+            if param.key.key in _KEYS:
+                settings.setdefault(id(card), []).append(param)
         for card in iter_cards(deck.body):
             if card.name == ".temp":
                 found.extend(_temp_card(card, ambient))
-            elif card.name in OPTION_CARDS:
-                found.extend(_option_card(card, ambient))
+            elif id(card) in settings:
+                found.extend(_option_card(card, settings[id(card)], ambient))
     return found
 
 
@@ -118,14 +123,15 @@ def _temp_card(card: Card, ambient: float) -> list[Finding]:
     ]
 
 
-def _option_card(card: Card, ambient: float) -> list[Finding]:
+def _option_card(card: Card, params: list[Param], ambient: float) -> list[Finding]:
     out = []
     logical = card.logical().text
-    for match in _SETTING.finditer(logical):
-        key, value = match.group(1).lower(), match.group(2)
+    for param in params:
+        key = param.key.key
+        value = logical[param.value.offset : param.value.end]
         if not _disagrees(value, ambient):
             continue
-        where = card.location(match.start())
+        where = card.location(param.offset)
         if key == "temp":
             out.append(
                 Finding(
