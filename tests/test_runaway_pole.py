@@ -71,3 +71,50 @@ def test_critical_current_is_the_closed_form(
     assert err.diagnosis.drive == pytest.approx(1.0 / gain, rel=DRIVE_TOL)
     assert err.diagnosis.source[1] == pytest.approx(critical, rel=DRIVE_TOL / 2)
     assert err.diagnosis.loop_gain == pytest.approx(1.0, abs=DRIVE_TOL)
+
+
+def steady_rise(i: float, r0: float, rth: float, tc1: float) -> float:
+    """Closed form above: theta = Rth I^2 R0 / (1 - I^2 R0 Rth tc1), tref at the ambient."""
+    return rth * i * i * r0 / (1.0 - i * i * r0 * rth * tc1)
+
+
+# (R0, Rth, tc1, loop gain below 1): the steady state exists, but beyond 1000 degC
+# (heatweave.run.results.IMPLAUSIBLE_TEMPERATURE) for the first three, just below it last.
+BEYOND = [
+    (100.0, 50.0, 0.004, 0.9946),  # 4.59e4 degC
+    (100.0, 50.0, 0.004, 0.85),  # 1.44e3 degC
+    (10.0, 200.0, 0.0039, 0.9),
+]
+
+
+@pytest.mark.parametrize("start", sorted(STARTS))
+@pytest.mark.parametrize(("r0", "rth", "tc1", "gain"), BEYOND)
+def test_a_steady_state_beyond_1000_degc_is_refused(
+    tmp_path: Path, start: str, r0: float, rth: float, tc1: float, gain: float
+) -> None:
+    """An operating point whose steady state lies beyond 1000 degC is refused as the same
+    deck's transient is (exit 7), with the closed-form temperature, not reported with exit 0."""
+    current = i_crit(r0, rth, tc1) * math.sqrt(gain)
+    hot = 25.0 + steady_rise(current, r0, rth, tc1)
+    assert hot > 1000.0
+    line, analysis = STARTS[start]
+    deck, note = tmp_path / "d.cir", tmp_path / "d.thermal.toml"
+    deck.write_text(DECK.format(i=current, r0=r0, analysis=analysis))
+    note.write_text(NOTE.format(start=line, tc1=tc1, tref=25.0, rth=rth))
+    with pytest.raises(ThermalRunawayError) as caught:
+        runner.run(str(deck), str(note), runner.RunOptions())
+    text = str(caught.value)
+    assert "RS" in text and "1000 degC" in text
+    assert f"{hot:.4g} degC" in text
+
+
+def test_a_steady_state_below_1000_degc_stands(tmp_path: Path) -> None:
+    """Just below the bound the operating point is the closed form (and no error)."""
+    r0, rth, tc1 = 100.0, 50.0, 0.004
+    current = 0.1988  # theta = 943 K (closed form above)
+    deck, note = tmp_path / "d.cir", tmp_path / "d.thermal.toml"
+    deck.write_text(DECK.format(i=current, r0=r0, analysis=".op"))
+    note.write_text(NOTE.format(start="", tc1=tc1, tref=25.0, rth=rth))
+    outcome = runner.run(str(deck), str(note), runner.RunOptions())
+    hot = 25.0 + steady_rise(current, r0, rth, tc1)
+    assert outcome.results.part("RS").temperature == pytest.approx(hot, rel=1e-4)

@@ -7,9 +7,16 @@ the branch end); this module words them for the reader.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
 
 from heatweave.errors import Location, ThermalRunawayError
 from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE
+
+if TYPE_CHECKING:
+    from heatweave.thermal.balance import FloatArray
+    from heatweave.thermal.circuit import ThermalCircuit
 
 HINT = (
     "lower the drive, give the part a lower thermal resistance (more copper, a heat sink), "
@@ -82,3 +89,21 @@ class RunawayError(ThermalRunawayError):
     ) -> None:
         super().__init__(message, location, hint)
         self.diagnosis = diagnosis
+
+
+def beyond_bound(circuit: ThermalCircuit, full: FloatArray) -> RunawayError | None:
+    """An operating point whose steady state (at full dissipation, found by continuation)
+    lies beyond :data:`IMPLAUSIBLE_TEMPERATURE`: refused as the same deck's transient is,
+    which passes that bound on its way there; ``None`` when every part stays below it."""
+    rows = np.asarray(full[: len(circuit.parts)], dtype=float)
+    if not rows.size or float(np.max(rows)) <= IMPLAUSIBLE_TEMPERATURE:
+        return None
+    i = int(np.argmax(rows))
+    part = circuit.parts[i]
+    return RunawayError(
+        f"{part.path} has no physical steady state: the one at full dissipation lies at "
+        f"{float(rows[i]):.4g} degC, beyond {IMPLAUSIBLE_TEMPERATURE:g} degC",
+        HINT,
+        None,
+        part.location,
+    )

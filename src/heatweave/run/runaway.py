@@ -55,7 +55,7 @@ import numpy.typing as npt
 from heatweave.emit.names import DRIVE_SOURCE as DRIVE_SOURCE_CARD
 from heatweave.emit.names import fix_source, power_source
 from heatweave.errors import SimulatorError, ThermalRunawayError
-from heatweave.run.diagnosis import HINT, Diagnosis, RunawayError
+from heatweave.run.diagnosis import HINT, Diagnosis, RunawayError, beyond_bound
 from heatweave.run.diagnosis_decks import TIGHT as TIGHT  # kept here for its callers
 from heatweave.run.diagnosis_decks import driven_deck as driven_deck
 from heatweave.run.diagnosis_decks import simulate_deck
@@ -455,4 +455,7 @@ def explain(
             HINT,
             None,
         )
+    if end is not None and end.full is not None and results is not None:
+        return beyond_bound(prepared.emitted.circuit, end.full)
     return None
+
