@@ -141,6 +141,40 @@ def test_tables_in_a_folder_others_may_write_are_never_loaded(tmp_path: Path) ->
     assert (folder / f"tables-{key}.lark").read_bytes() == planted  # not used, not replaced
 
 
+def _kept_name() -> str:
+    from heatweave.spice.tablecache import table_key
+
+    return f"tables-{table_key(grammar_dir(), 'lalr maybe_placeholders=False')}.lark"
+
+
+def test_a_link_at_the_tables_name_is_neither_followed_nor_written_through(
+    tmp_path: Path,
+) -> None:
+    # lark opens its cache file by name, for reading and then for writing: a link there
+    # (the user's own mistake, or a folder restored from a backup) would have its target
+    # read and, when that is no table, overwritten with the tables (seen: a text file
+    # replaced by 30 kB of tables, exit 0).  A cache that cannot be used is skipped.
+    folder = tmp_path / "xdg" / "heatweave"
+    folder.mkdir(parents=True, mode=0o700)
+    target = tmp_path / "notes.txt"
+    target.write_text("the user's own notes\n")
+    (folder / _kept_name()).symlink_to(target)
+    done = _lint(tmp_path)
+    assert done.returncode == 0, done.stdout + done.stderr
+    assert target.read_text() == "the user's own notes\n"
+    assert (folder / _kept_name()).is_symlink()  # left alone, not replaced
+
+
+def test_a_fifo_at_the_tables_name_is_skipped_not_waited_on(tmp_path: Path) -> None:
+    # lark's open() of a FIFO blocks until a writer comes, with the ending signals held
+    # back around it: the run hung for good, deaf to Ctrl-C and SIGTERM (seen).
+    folder = tmp_path / "xdg" / "heatweave"
+    folder.mkdir(parents=True, mode=0o700)
+    os.mkfifo(folder / _kept_name())
+    done = _lint(tmp_path)  # its timeout (60 s) fails the test instead of hanging
+    assert done.returncode == 0, done.stdout + done.stderr
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("delay", [0.3, 0.5, 0.7, 0.9, 1.1, 1.3, 1.6, 2.0])
 def test_sigterm_at_any_moment_of_a_first_lint(tmp_path: Path, delay: float) -> None:

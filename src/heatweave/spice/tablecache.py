@@ -13,7 +13,10 @@ one file per grammar, lark and Python version:
   it does, so a signal never cuts the file short;
 * a file cut short anyway (SIGKILL, a full disk) fails lark's own check when next loaded:
   lark builds the tables again and writes the file anew.  A wrong table is never loaded;
-* writing new tables removes those of other versions.
+* writing new tables removes those of other versions;
+* anything but a regular file at the file's name (a link, a FIFO, a folder) is left alone
+  and the tables built in memory: lark would read and write through a link, and wait on a
+  FIFO for good.
 
 Without a usable folder the tables are built in memory every time.
 """
@@ -80,7 +83,17 @@ def with_kept_tables(build: Callable[[str | bool], T], grammar_folder: Path, opt
     if folder is None:
         return build(False)
     kept = folder / f"tables-{table_key(grammar_folder, options)}.lark"
-    new = not kept.exists()
+    try:
+        mode: int | None = os.lstat(kept).st_mode
+    except FileNotFoundError:
+        mode = None
+    except OSError:
+        return build(False)
+    if mode is not None and not stat.S_ISREG(mode):
+        # lark opens the name itself: a link would be read and written through, a FIFO
+        # waited on for good (with the signals held back).  Skip the cache, touch nothing.
+        return build(False)
+    new = mode is None
     with signals_deferred():  # lark writes the file in place: no signal cuts it short
         result = build(str(kept))
     if new:
