@@ -458,4 +458,3 @@ def explain(
     if end is not None and end.full is not None and results is not None:
         return beyond_bound(prepared.emitted.circuit, end.full)
     return None
-
