@@ -29,11 +29,12 @@ from heatweave.cli.common import (
     may_replace_report,
     report_findings,
     simulation_options,
+    step_option,
     timeout_option,
     use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
-from heatweave.errors import EXIT_CHECK_FAILED, HeatweaveError
+from heatweave.errors import EXIT_CHECK_FAILED, HeatweaveError, UsageError
 from heatweave.files import write_atomic
 from heatweave.reports.junit import Case, Suite, render, shared_time
 from heatweave.run import runner
@@ -73,6 +74,7 @@ if TYPE_CHECKING:
     "time constants are long against its period, else full.",
 )
 @analysis_options
+@step_option
 @simulation_options
 @html_option
 @timeout_option("the check (its run without self-heating included)")
@@ -86,6 +88,7 @@ def check(
     method_name: str,
     op: bool,
     tran: tuple[float, float] | None,
+    max_step: float | None,
     ambient: float | None,
     backend: str,
     allow_control: bool,
@@ -122,9 +125,16 @@ def check(
         options = RunOptions(
             analyses=analyses_of(op, tran), ambient=ambient, backend=backend,
             allow_control=allow_control, init_file=init_file, timeout=timeout,
+            max_step=max_step,
         )  # fmt: skip
         options = with_deadline(options)  # one limit for every run of the check
         method = choose(inputs, options, method_name)
+        if max_step is not None and method.drive is not None:
+            raise UsageError(
+                "--max-step sets the maximum step of the deck's own run, and this check holds "
+                "the periodic steady state, which settle finds with transients of its own",
+                hint="leave --max-step out, or check the run itself with --method full",
+            )
         settled, outcome, fast = None, None, None
         needed = checks.needs_baseline(signals)
         if method.drive is not None:

@@ -182,6 +182,18 @@ def analysis_options(func: F) -> F:
     )(func)
 
 
+def step_option(func: F) -> F:
+    """``--max-step TMAX``: the transient's maximum step (a SPICE quantity)."""
+    return click.option(
+        "--max-step",
+        type=SpiceQuantity("s", positive=True),
+        metavar="TMAX",
+        help="The transient's largest time step, e.g. 5u, in place of the .tran card's TMAX "
+        "(the deck is not changed). Without it heatweave runs again with a smaller step "
+        "when the result is not verified.",
+    )(func)
+
+
 def analyses_of(op: bool, tran: tuple[float, float] | None) -> tuple[str, ...]:
     """The analyses asked for on the command line (none: the deck's own cards)."""
 

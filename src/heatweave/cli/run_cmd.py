@@ -24,6 +24,7 @@ from heatweave.cli.common import (
     require_plotting,
     run_control_options,
     simulation_options,
+    step_option,
     use_colour,
 )
 from heatweave.cli.html_out import check_html_path, html_option, write_html
@@ -144,6 +145,7 @@ def check_probes_early(probes: tuple[str, ...], index: DeckIndex) -> None:
 @click.command()
 @deck_options
 @analysis_options
+@step_option
 @simulation_options
 @report_options("Write the waveforms as CSV (- is stdout).")
 @click.option(
@@ -170,6 +172,7 @@ def run(
     annotations: str | None,
     op: bool,
     tran: tuple[float, float] | None,
+    max_step: float | None,
     ambient: float | None,
     backend: str,
     allow_control: bool,
@@ -206,7 +209,7 @@ def run(
     with fraction_progress(not quiet and is_terminal(), "simulating") as progress:
         options = RunOptions(
             analyses=analyses, ambient=ambient, backend=backend, allow_control=allow_control,
-            init_file=init_file, timeout=timeout, progress=progress,
+            init_file=init_file, timeout=timeout, progress=progress, max_step=max_step,
         )  # fmt: skip
         report, findings, method_line = _simulate(
             deck, annotation_path, inputs, options, method, probe

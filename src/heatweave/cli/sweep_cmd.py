@@ -31,6 +31,7 @@ from heatweave.cli.common import (
     report_options,
     require_plotting,
     run_control_options,
+    step_option,
     style_severity,
     use_colour,
 )
@@ -98,6 +99,7 @@ def _has_tolerances(annotation: Annotation) -> bool:
     "--seed", type=click.IntRange(min=0), metavar="S", help="Seed of the Monte Carlo draws."
 )
 @analysis_options
+@step_option
 @click.option(
     "--backend",
     type=click.Choice(BACKENDS),
@@ -160,6 +162,7 @@ def sweep(
     seed: int | None,
     op: bool,
     tran: tuple[float, float] | None,
+    max_step: float | None,
     backend: str,
     allow_control: bool,
     init_file: str | None,
@@ -210,6 +213,7 @@ def sweep(
     plan = SweepPlan(ambients, params, draws or 0, seed)
     options = RunOptions(
         analyses=analyses_of(op, tran),
+        max_step=max_step,
         backend=backend,
         allow_control=allow_control,
         init_file=init_file,

@@ -38,6 +38,7 @@ from heatweave.run.prepare import (
     deck_analyses_of,
     deck_folder,
     made_safe,
+    stepped,
     time_left,
     whole_limit,
     with_deadline,
@@ -105,6 +106,8 @@ def source_corners(inputs: Inputs, options: RunOptions) -> SourceCorners:
     """The corners of the deck's PULSE and PWL sources over its transient (none without
     one): the co-simulation makes ngspice land on each after every resume."""
     analyses = _analyses(inputs, options)
+    if options.max_step is not None:
+        analyses = stepped(analyses, options.max_step, inputs.deck_path)
     tran = Transient.parse(analyses[0]) if len(analyses) == 1 else None
     if tran is None:
         return SourceCorners(())
@@ -233,6 +236,8 @@ def run(
     inputs = inputs or load_inputs(deck_path, annotation_path)
     circuit, findings = prepared or _circuit(inputs, options, annotation)
     analyses = _analyses(inputs, options)
+    if options.max_step is not None:
+        analyses = stepped(analyses, options.max_step, inputs.deck_path)
     tran = Transient.parse(analyses[0]) if len(analyses) == 1 else None
     if tran is None or tran.tstart != 0 or not isinstance(circuit.ambient, float | int):
         raise UsageError(

@@ -18,6 +18,7 @@ from heatweave.annotation import Annotation
 from heatweave.emit.emitter import Emitted, Inputs, emit_inputs
 from heatweave.errors import Finding, SimulationTimeoutError, SimulatorError, UsageError
 from heatweave.run.locate import locate
+from heatweave.run.maxstep import is_tran, with_max_step
 from heatweave.run.safedeck import SafeDeck, safe_deck
 from heatweave.simulators import Progress, SimResult, get_simulator, timed_out
 from heatweave.spice.deck import Card, Deck
@@ -49,6 +50,8 @@ class RunOptions:
     #: When the time is up (:func:`time.monotonic`); set from ``timeout`` by
     #: :func:`with_deadline` when a run starts.
     deadline: float | None = None
+    #: The transient's maximum step (``--max-step``), in place of the ``.tran`` card's TMAX.
+    max_step: float | None = None
 
 
 def with_deadline(options: RunOptions) -> RunOptions:
@@ -149,16 +152,36 @@ def prepare(
             f"{inputs.deck_path} asks for no analysis (.op, .tran, ...)",
             hint="add an analysis card to the deck, or pass --op or --tran TSTEP TSTOP",
         )
+    analyses = tuple(options.analyses)
+    if options.max_step is not None:
+        analyses = stepped(analyses or tuple(own), options.max_step, inputs.deck_path)
     return Prepared(
         emitted,
         safe.text,
-        tuple(options.analyses),
-        deck_analyses=not options.analyses,
+        analyses,
+        deck_analyses=not analyses,
         findings=emitted.findings + safe.findings,
         cwd=options.cwd or deck_folder(inputs),
         deck=safe.deck,
         project=inputs.project,
     )
+
+
+def stepped(analyses: tuple[str, ...], step: float, deck: str) -> tuple[str, ...]:
+    """*analyses* with the transient's maximum step set to *step* (``--max-step``)."""
+    if not any(is_tran(text) for text in analyses):
+        raise UsageError(
+            f"--max-step sets a transient's maximum step, and {deck} runs no transient",
+            hint="leave --max-step out, or run a transient (--tran TSTEP TSTOP)",
+        )
+    found = with_max_step(analyses, step)
+    if found is None:
+        raise UsageError(
+            f"--max-step cannot be set on {deck}'s .tran card: its numbers are not plain "
+            "SPICE numbers (an expression or a parameter)",
+            hint="write the .tran card's TSTEP and TSTOP as numbers, or pass --tran TSTEP TSTOP",
+        )
+    return found
 
 
 def simulate(prepared: Prepared, options: RunOptions) -> SimResult:
@@ -182,4 +205,3 @@ def simulate(prepared: Prepared, options: RunOptions) -> SimResult:
             if prepared.project is not None:
                 locate(err, prepared.project)
             raise
-

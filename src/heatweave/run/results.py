@@ -32,6 +32,7 @@ from heatweave.emit.emitter import Emitted
 from heatweave.emit.names import added_names, own_vectors
 from heatweave.errors import Finding, SimulatorError
 from heatweave.run.drive import Drive, deck_drive, period_note
+from heatweave.run.unverified import Disagreement
 from heatweave.simulators import Plot, SimResult
 from heatweave.spice.hierarchy import (
     DeckIndex,
@@ -64,6 +65,9 @@ class PartResult:
     resistance_series: FloatArray | None = field(default=None, repr=False)
     plan: PartPlan | None = field(default=None, repr=False, compare=False)
     valley_temperature: float | None = None
+    #: How much ``power`` depends on what happens between the simulator's time points (W):
+    #: :func:`sampling_error`; ``None`` where not estimated.
+    power_error: float | None = None
 
     @property
     def resistance_change(self) -> float | None:
@@ -100,6 +104,8 @@ class RunResults:
     #: ``(min, max)`` of signals (``v(out)``, ``i(vamm)``) over every time point of the
     #: simulator where the series above are coarser (the co-simulation's window ends).
     extremes: dict[str, tuple[float, float]] = field(default_factory=dict, repr=False)
+    #: Figures the run's own numbers do not back (:mod:`heatweave.run.stepcheck`).
+    unverified: tuple[Disagreement, ...] = ()
 
     def part(self, path: str) -> PartResult:
         """A part's results by instance path (case-insensitive)."""
@@ -128,6 +134,25 @@ def period_mean(time: FloatArray, values: FloatArray, period: float | None) -> f
     return float(np.trapezoid(v, t) / (t[-1] - t[0]))
 
 
+def sampling_error(time: FloatArray, excess: FloatArray, period: float | None) -> float:
+    """How far :func:`period_mean`'s trapezoid of the power lies from the exact mean of the
+    power of straight-line voltages and currents between the same time points (W), over the
+    same window: *excess* holds, per step, the trapezoid's integral minus that exact one
+    (a resistor's ``h dV^2 / 6R``, a product's ``h dV dI / 6``).  Where the waveform is
+    resolved the two agree; a step across a ramp or a corner shows up here."""
+    if len(time) < 2 or not time[-1] > time[0]:
+        return 0.0
+    start = float(time[0]) if period is None else max(float(time[-1]) - period, float(time[0]))
+    inside = time[1:] > start
+    return abs(float(np.sum(excess[inside]))) / (float(time[-1]) - start)
+
+
+def step_excess(drop: FloatArray, current: FloatArray, time: FloatArray) -> FloatArray:
+    """Per step, the trapezoid's integral of ``drop * current`` minus the exact integral of
+    the product of the two straight lines between the points: ``h d(drop) d(current) / 6``."""
+    return np.diff(time) * np.diff(drop) * np.diff(current) / 6.0
+
+
 def build_part(
     plan: PartPlan,
     temperature: FloatArray,
@@ -139,6 +164,7 @@ def build_part(
     samples: tuple[FloatArray, FloatArray, float] | None = None,
     temperature_value: float | None = None,
     temperature_peak: float | None = None,
+    excess: FloatArray | None = None,
 ) -> PartResult:
     """One part's result from its waveforms: the one definition of every key.
 
@@ -153,7 +179,8 @@ def build_part(
     from them; *temperature_peak* is then the highest temperature at those time points
     (the co-simulation's *temperature* holds its window ends only).  *temperature_value*
     replaces the final temperature where the method reports another one (``settle``: the
-    period mean, with ``valley_temperature`` the period's lowest)."""
+    period mean, with ``valley_temperature`` the period's lowest).  *excess* (per step of
+    *time*, :func:`step_excess`) gives ``power_error``, :func:`sampling_error`."""
     transient = time is not None and len(time) > 1
     if samples is not None:
         mean, peak = period_mean(samples[0], samples[1], period), samples[2]
@@ -178,6 +205,11 @@ def build_part(
         resistance_series=resistance if transient else None,
         plan=plan,
         valley_temperature=float(np.min(temperature)) if temperature_value is not None else None,
+        power_error=(
+            sampling_error(time, excess, period)
+            if excess is not None and time is not None and transient
+            else None
+        ),
     )
 
 
@@ -291,18 +323,24 @@ def extract(
             resistance_series: FloatArray | None = r_series
             drop = voltage(nodes[0]) - voltage(nodes[1])
             power = drop * drop / r_series
+            excess = None if time is None else step_excess(drop, drop / r_series, time)
         else:
             resistance_series = None
             power = np.zeros_like(temp)
+            excess = None if time is None else np.zeros(max(len(time) - 1, 0))
             name = safe(part.path)
             for k in range(len(nodes) - 1):
                 sense = device_name(resolved, f"v{PREFIX}s_{name}_{k + 1}")
-                power = power + (voltage(nodes[k]) - voltage(nodes[-1])) * _vector(
-                    plot, f"i({sense})"
-                )
-        parts.append(
-            build_part(part, temp, power, time=time, resistance=resistance_series, period=period)
-        )
+                across = voltage(nodes[k]) - voltage(nodes[-1])
+                flow = _vector(plot, f"i({sense})")
+                power = power + across * flow
+                if excess is not None and time is not None:
+                    excess = excess + step_excess(across, flow, time)
+        found = build_part(
+            part, temp, power, time=time, resistance=resistance_series, period=period,
+            excess=excess,
+        )  # fmt: skip
+        parts.append(found)
     nodes_final: dict[str, float] = {}
     node_series: dict[str, FloatArray] = {}
     ambient_values = ambient_of(plot, circuit, time)

@@ -39,6 +39,7 @@ from heatweave.run.results import (
     range_findings,
 )
 from heatweave.run.runaway import explain
+from heatweave.run.stepcheck import vet
 from heatweave.run.verify import verify_run
 from heatweave.simulators import SimResult
 from heatweave.simulators.diagnose import overflowed
@@ -80,8 +81,9 @@ def run(
             if explained is not None:
                 raise explained
         verified = verify_run(inputs, options, prepared, sim, results)
-        sim, results = verified.sim, verified.results
-        prepared = replace(prepared, findings=prepared.findings + verified.findings)
+        vetted = vet(inputs, options, prepared, verified)  # a transient's step, checked
+        sim, results = vetted.sim, vetted.results
+        prepared = replace(vetted.prepared, findings=prepared.findings + vetted.findings)
     except (SimulatorError, SimulationTimeoutError) as err:
         # The warnings from emitting still matter (a dropped .control block, say).
         err.findings = (*prepared.findings, *err.findings)

@@ -1,0 +1,220 @@
+"""Is a transient resolved finely enough?  Two checks on ngspice's own time points.
+
+ngspice's maximum step defaults to the deck's ``TSTEP``, which a designer picks for the
+plot, not for the heat.  Two things then go wrong without a word from ngspice:
+
+* *integration*: the thermal capacitors are fed by heat sources quadratic in the circuit's
+  voltages, which ngspice linearises about the previous time point, short by ``dV^2 / R``
+  at every step (README, "How exact ``--method full`` is").  Where the power changes a lot
+  per step the temperatures fall far below the heat the deck's own powers deliver.  Check:
+  the thermal network is linear, so its exact response to the powers at ngspice's points
+  (:func:`heatweave.thermal.replay.network_response`) must agree with ngspice's
+  temperatures at every point, to ngspice's own accuracy on a node voltage
+  (``reltol |T| + vntol``, the heat balance's ``eps``);
+* *sampling*: the period mean of the power is a trapezoid over ngspice's points; a ramp or
+  a corner crossed in one or two steps makes it depend on what happens between them.
+  Check: :attr:`heatweave.run.results.PartResult.power_error` (the trapezoid against the
+  exact mean of straight-line voltages and currents between the same points) must be at
+  most ``2 reltol`` of the mean power (the balance's accuracy on a power).
+
+A figure that fails either is not verified: :func:`disagreements` lists them, and
+:func:`heatweave.run.runner.run` runs again with a smaller maximum step.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from heatweave.errors import Finding, SimulationTimeoutError, SimulatorError
+from heatweave.run.maxstep import Tran, the_tran, with_max_step
+from heatweave.run.prepare import Prepared, RunOptions, deck_analyses_of, simulate
+from heatweave.run.results import RunResults, extract, period_mean
+from heatweave.run.unverified import Disagreement
+from heatweave.run.verify import Verified, solver_tolerances, verify_run
+from heatweave.run.waves import seconds
+from heatweave.thermal.balance import ABSTOL_P, ABSTOL_T
+from heatweave.thermal.circuit import ThermalCircuit
+from heatweave.thermal.replay import network_response
+
+if TYPE_CHECKING:
+    from heatweave.emit.emitter import Inputs
+    from heatweave.simulators import SimResult
+
+#: At most this many runs again, each with a smaller maximum step.
+MAX_RERUNS = 4
+#: A maximum step is never set below the transient's span over this many steps.
+MAX_STEPS = 5_000_000
+#: Each run again divides the step by at least 2 and at most 32.
+SHRINK = (1 / 32, 1 / 2)
+
+
+def disagreements(
+    results: RunResults, circuit: ThermalCircuit, reltol: float, vntol: float
+) -> tuple[Disagreement, ...]:
+    """Every part (and shared node) of a transient whose figures fail the checks of the
+    module docstring; ``()`` for an operating point, or a transient that does not start at
+    0 (its thermal state at the first point is not known here)."""
+    time = results.time
+    if time is None or len(time) < 2 or float(time[0]) != 0.0 or not circuit.parts:
+        return ()
+    found: list[Disagreement] = []
+    for part in results.parts:
+        if part.power_error is None or part.power_series is None:
+            continue
+        window = results.period if results.period is not None else float(time[-1] - time[0])
+        mean = abs(period_mean(time, part.power_series, window))
+        bound = 2 * reltol * mean + ABSTOL_P
+        if part.power_error > bound:
+            found.append(Disagreement(part.path, "sampling", part.power_error, bound,
+                                      reference=mean))  # fmt: skip
+    by_path = {p.path: p for p in results.parts}
+    series = [by_path[p.path].power_series for p in circuit.parts]
+    ambient = results.ambient_series
+    if any(s is None for s in series) or ambient is None:
+        return tuple(found)
+    powers = np.vstack([s for s in series if s is not None])
+    exact = network_response(circuit, time, powers, ambient)
+    if exact is None:
+        return tuple(found)
+    names = [p.path for p in circuit.parts] + [n.label for n in circuit.nodes]
+    own = [by_path[p.path].temperature_series for p in circuit.parts]
+    own += [results.node_series.get(n.label) for n in circuit.nodes]
+    for k, (name, simulated) in enumerate(zip(names, own, strict=True)):
+        if simulated is None:
+            continue
+        gap = np.abs(simulated - exact[k])
+        allowed = reltol * np.abs(simulated) + vntol
+        worst = int(np.argmax(gap - allowed))
+        if gap[worst] > allowed[worst]:
+            subject = name if k < len(circuit.parts) else f"node {name}"
+            found.append(Disagreement(subject, "integration", float(gap[worst]),
+                                      float(allowed[worst]), float(time[worst])))  # fmt: skip
+    return tuple(found)
+
+
+HINT = (
+    "give the transient a smaller maximum step (--max-step, or the .tran card's TMAX): "
+    "ngspice's default is the deck's TSTEP"
+)
+
+
+def unverified_finding(found: tuple[Disagreement, ...], step: str, why: str) -> Finding:
+    """The warning that the figures of *found* are not verified with maximum step *step*
+    (in words: ``the deck's 250 us``); *why* says why no smaller step was tried."""
+    said = "; ".join(item.words() for item in found)
+    return Finding(
+        "warning",
+        f"not verified with {step} maximum step: {said}; the temperatures and powers "
+        f"reported for these parts are not backed by the run's own numbers ({why})",
+        None,
+        HINT,
+    )
+
+
+def check_run(results: RunResults, prepared: Prepared) -> tuple[Disagreement, ...]:
+    """:func:`disagreements` of *results*, to the tolerances the deck ran with."""
+    circuit = prepared.emitted.circuit
+    assert circuit is not None
+    reltol, extra = solver_tolerances(prepared.text)
+    return disagreements(results, circuit, reltol, ABSTOL_T + extra)
+
+
+@dataclass(frozen=True, slots=True)
+class Vetted:
+    """A transient's results once their step is verified (or said not to be)."""
+
+    prepared: Prepared
+    sim: SimResult
+    results: RunResults
+    findings: tuple[Finding, ...]
+
+
+def vet(inputs: Inputs, options: RunOptions, prepared: Prepared, verified: Verified) -> Vetted:
+    """*results* when :func:`check_run` finds nothing; else the transient run again with a
+    smaller maximum step (the ``tran`` command's TMAX; the deck is not changed) until it
+    does, at most :data:`MAX_RERUNS` times and never below :data:`MAX_STEPS` steps over
+    the span.  Figures still unverified are listed on the results (``check`` fails them)
+    and in a warning.  The findings are those of the run kept (*verified*'s, or those of
+    the last run again), with what was done."""
+    sim, results, findings = verified.sim, verified.results, verified.findings
+    found = check_run(results, prepared)
+    if not found:
+        return Vetted(prepared, sim, results, findings)
+    tran = the_tran(analyses_of(prepared))
+    step = tran.max_step if tran is not None else None
+    first, first_step = found, step
+    said = f"the deck's {seconds(step)}" if step is not None else "the deck's"
+    if prepared.analyses and prepared.analyses != tuple(deck_analyses_of(prepared.deck)):
+        said = f"a {seconds(step)}" if step is not None else "the run's"
+    why = f"{MAX_RERUNS} runs again with smaller steps did not reach it"
+    for _ in range(MAX_RERUNS):
+        smaller, stop = next_step(options, prepared, tran, found)
+        if stop:
+            why = stop
+        if smaller is None or tran is None:
+            break
+        analyses = with_max_step(analyses_of(prepared), smaller)
+        assert analyses is not None  # next_step read the transient
+        again = replace(prepared, analyses=analyses, deck_analyses=False)
+        try:
+            new_sim = simulate(again, options)
+            new_results = extract(new_sim, again.emitted, inputs.index)
+            checked = verify_run(inputs, options, again, new_sim, new_results)
+        except (SimulatorError, SimulationTimeoutError) as err:
+            why = f"the run again with maximum step {seconds(smaller)} failed: {err.message}"
+            break
+        prepared, sim, results, step = again, checked.sim, checked.results, smaller
+        tran = the_tran(analyses)
+        findings = checked.findings
+        found = check_run(results, prepared)
+        if not found:
+            break
+    if step != first_step and step is not None:
+        findings = (rerun_note(first, said, step), *findings)
+    if found:
+        where = f"{seconds(step)}" if step != first_step and step is not None else said
+        findings = (*findings, unverified_finding(found, where, why))
+        results = replace(results, unverified=found)
+    return Vetted(prepared, sim, results, findings)
+
+
+def next_step(
+    options: RunOptions, prepared: Prepared, tran: Tran | None, found: tuple[Disagreement, ...]
+) -> tuple[float | None, str]:
+    """The maximum step to run again with, or ``None`` and why not.  Both errors fall with
+    the square of the step, so the step shrinks by the square root of how far the worst
+    figure is past its bound (with a margin), between the :data:`SHRINK` factors."""
+    if options.allow_control:
+        return None, "the deck's .control block drives its own analyses"
+    if tran is None or with_max_step(analyses_of(prepared), tran.max_step) is None:
+        return None, "heatweave cannot read the .tran card's numbers to set its maximum step"
+    worst = max(item.value / item.bound for item in found)
+    factor = min(max(0.7 / math.sqrt(worst), SHRINK[0]), SHRINK[1])
+    floor = (tran.tstop - tran.tstart) / MAX_STEPS
+    if tran.max_step <= floor * (1 + 1e-9):
+        return None, (
+            f"a smaller step than {seconds(tran.max_step)} would take more than "
+            f"{MAX_STEPS:,} steps; set one with --max-step"
+        )
+    return max(float(f"{tran.max_step * factor:.2g}"), floor), ""
+
+
+def rerun_note(found: tuple[Disagreement, ...], said: str, step: float) -> Finding:
+    """The note that the transient ran again with maximum step *step*, and why."""
+    reasons = "; ".join(item.words() for item in found)
+    return Finding(
+        "note",
+        f"max step {seconds(step)}: with {said} maximum step {reasons}; heatweave ran the "
+        f"transient again with a maximum step of {seconds(step)} (your files are unchanged)",
+        None,
+        None,
+    )
+
+
+def analyses_of(prepared: Prepared) -> tuple[str, ...]:
+    """The analyses a prepared run asks for: ``--op``/``--tran``, else the deck's cards."""
+    return prepared.analyses or tuple(deck_analyses_of(prepared.deck))

@@ -1,0 +1,45 @@
+"""A figure of a transient that its own numbers do not back (:mod:`heatweave.run.stepcheck`
+finds them; reports and ``check`` say so)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True, slots=True)
+class Disagreement:
+    """A figure of a transient that its own numbers do not back.
+
+    ``kind`` is ``integration`` (``value``: ngspice's temperature against the network's
+    own response, K, the largest at ``at`` s) or ``sampling`` (``value``: the estimated
+    error of the mean power, W); ``bound`` is what the check allows."""
+
+    subject: str
+    kind: str
+    value: float
+    bound: float
+    at: float | None = None
+    reference: float | None = None
+
+    def words(self) -> str:
+        """The disagreement in words."""
+        if self.kind == "integration":
+            return (
+                f"{self.subject}'s temperature is {self.value:.3g} K from the thermal network's "
+                f"own response to the dissipation ngspice computed (at t = {self.at:.4g} s; "
+                f"ngspice's accuracy there is {self.bound:.2g} K)"
+            )
+        share = 100 * self.value / self.reference if self.reference else float("inf")
+        return (
+            f"{self.subject}'s mean dissipation depends by {self.value:.3g} W ({share:.2g} %) "
+            f"on what happens between ngspice's time points (at most {self.bound:.2g} W)"
+        )
+
+    def limit_detail(self) -> str:
+        """What ``check``'s line for this figure measures."""
+        if self.kind == "integration":
+            return (
+                f"ngspice's temperature against the thermal network's own response to its "
+                f"dissipation, largest at t = {self.at:.4g} s: not verified"
+            )
+        return "the mean dissipation's dependence on ngspice's time points: not verified"
