@@ -187,8 +187,9 @@ def check(
             from heatweave.reports.model import build_report, report_of
 
             if fast is not None:
+                ran = fast.analyses or options.analyses or own_analyses(inputs)
                 report = report_of(
-                    inputs, fast.results, options.analyses or own_analyses(inputs), "shared",
+                    inputs, fast.results, ran, "shared",
                     fast.findings, (), (fast.method, fast.reason),
                 )  # fmt: skip
             else:

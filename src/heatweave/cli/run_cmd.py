@@ -253,7 +253,7 @@ def _simulate(
     else:
         own = tuple(deck_analyses_of(inputs.project.deck))
         report = report_of(
-            inputs, fast.results, options.analyses or own, "shared", fast.findings,
+            inputs, fast.results, fast.analyses or options.analyses or own, "shared", fast.findings,
             probe_signals(probe, fast.results), (fast.method, fast.reason),
         )  # fmt: skip
     return report, list(fast.findings), f"method: {fast.method} ({fast.reason})"

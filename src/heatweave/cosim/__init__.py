@@ -16,7 +16,7 @@ and falls back to the full deck where the co-simulation would not be accurate.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -50,6 +50,10 @@ from heatweave.run.results import (
     range_findings,
 )
 from heatweave.run.runner import RunOutcome
+from heatweave.run.sampling import square_law_excess
+from heatweave.run.stepcheck import refine, sampling
+from heatweave.run.unverified import Disagreement
+from heatweave.run.verify import solver_tolerances
 from heatweave.spice.deck import Card, Deck, Node
 from heatweave.spice.hierarchy import DeckIndex, device_name, global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
@@ -92,6 +96,9 @@ class FastOutcome:
     findings: tuple[Finding, ...] = ()
     full: RunOutcome | None = field(default=None, repr=False)
     trace: Trace | None = field(default=None, repr=False)
+    #: The analyses as run when heatweave set their maximum step (``tran ... TMAX``);
+    #: ``()``: as the deck or the options give them.
+    analyses: tuple[str, ...] = ()
 
 
 def electrical_time_scale(index: DeckIndex) -> float | None:
@@ -225,7 +232,49 @@ def run(
     tolerance: float = DEFAULT_TOLERANCE,
     prepared: tuple[ThermalCircuit, tuple[Finding, ...]] | None = None,
 ) -> FastOutcome:
-    """Co-simulate one run (same inputs as :func:`heatweave.run.runner.run`).
+    """Co-simulate one run (:func:`once`), run again with smaller maximum steps while a
+    part's mean power depends on what lies between ngspice's time points
+    (:func:`heatweave.run.stepcheck.refine`, as the full deck is); what still does is
+    listed on the results and in a warning."""
+    options = with_deadline(options)  # one limit for every run
+    inputs = inputs or load_inputs(deck_path, annotation_path)
+    prepared = prepared or _circuit(inputs, options, annotation)
+
+    def attempt(given: RunOptions) -> FastOutcome:
+        return once(deck_path, annotation_path, given, inputs=inputs, tolerance=tolerance,
+                    prepared=prepared)  # fmt: skip
+
+    outcome = attempt(options)
+    reltol, _ = solver_tolerances(inputs.project.deck)
+    found = sampling(outcome.results, reltol)
+    if not found:
+        return outcome
+
+    def again(step: float) -> tuple[FastOutcome, tuple[Disagreement, ...]]:
+        ran = attempt(replace(options, max_step=step))
+        return ran, sampling(ran.results, reltol)
+
+    analyses = _analyses(inputs, options)
+    if options.max_step is not None:
+        analyses = stepped(analyses, options.max_step, inputs.deck_path)
+    own = not options.analyses and options.max_step is None
+    done = refine(analyses, False, own, found, again)
+    last = done.kept or outcome
+    results = replace(last.results, unverified=done.found) if done.found else last.results
+    return replace(last, results=results, findings=last.findings + done.findings)
+
+
+def once(
+    deck_path: str,
+    annotation_path: str,
+    options: RunOptions = DEFAULT_OPTIONS,
+    *,
+    inputs: Inputs | None = None,
+    annotation: Annotation | None = None,
+    tolerance: float = DEFAULT_TOLERANCE,
+    prepared: tuple[ThermalCircuit, tuple[Finding, ...]] | None = None,
+) -> FastOutcome:
+    """Co-simulate one run once (same inputs as :func:`heatweave.run.runner.run`).
 
     Raises :class:`UsageError` when the run is not one the co-simulation can do (see
     :func:`choose_method`; the time-scale check is left to the caller), and when
@@ -293,7 +342,9 @@ def run(
     # A part beyond its model's range, a drive without one period: as runner.run says.
     past = range_findings(results) + drive_findings(results, inputs.index)
     past += start_findings(trace.first_time, analyses)
-    return FastOutcome(results, "cosim", reason, findings + safe.findings + past, trace=trace)
+    stepped_analyses = analyses if options.max_step is not None else ()
+    return FastOutcome(results, "cosim", reason, findings + safe.findings + past, trace=trace,
+                       analyses=stepped_analyses)  # fmt: skip
 
 
 #: Cards the co-simulation leaves out: it issues its own transient and needs every node.
@@ -338,9 +389,11 @@ def to_results(
     n_parts = len(circuit.parts)
     parts = []
     for j, part in enumerate(circuit.parts):
-        samples = None
+        samples, excess = None, None
         if trace.tail_time.shape[0]:
             samples = (trace.tail_time, trace.tail_power[j], float(trace.peak_power[j]))
+            # the resistance is held over each step: the power alone gives the excess
+            excess = square_law_excess(trace.tail_time, trace.tail_power[j])
         hottest = float(trace.peak_temperature[j]) if trace.peak_temperature.size else None
         parts.append(
             build_part(
@@ -352,6 +405,7 @@ def to_results(
                 period=period,
                 samples=samples,
                 temperature_peak=hottest,
+                excess=excess,
             )
         )
     nodes = {

@@ -32,6 +32,7 @@ from heatweave.emit.emitter import Emitted
 from heatweave.emit.names import added_names, own_vectors
 from heatweave.errors import Finding, SimulatorError
 from heatweave.run.drive import Drive, deck_drive, period_note
+from heatweave.run.sampling import sampling_error, step_excess
 from heatweave.run.unverified import Disagreement
 from heatweave.simulators import Plot, SimResult
 from heatweave.spice.hierarchy import (
@@ -134,25 +135,6 @@ def period_mean(time: FloatArray, values: FloatArray, period: float | None) -> f
     return float(np.trapezoid(v, t) / (t[-1] - t[0]))
 
 
-def sampling_error(time: FloatArray, excess: FloatArray, period: float | None) -> float:
-    """How far :func:`period_mean`'s trapezoid of the power lies from the exact mean of the
-    power of straight-line voltages and currents between the same time points (W), over the
-    same window: *excess* holds, per step, the trapezoid's integral minus that exact one
-    (a resistor's ``h dV^2 / 6R``, a product's ``h dV dI / 6``).  Where the waveform is
-    resolved the two agree; a step across a ramp or a corner shows up here."""
-    if len(time) < 2 or not time[-1] > time[0]:
-        return 0.0
-    start = float(time[0]) if period is None else max(float(time[-1]) - period, float(time[0]))
-    inside = time[1:] > start
-    return abs(float(np.sum(excess[inside]))) / (float(time[-1]) - start)
-
-
-def step_excess(drop: FloatArray, current: FloatArray, time: FloatArray) -> FloatArray:
-    """Per step, the trapezoid's integral of ``drop * current`` minus the exact integral of
-    the product of the two straight lines between the points: ``h d(drop) d(current) / 6``."""
-    return np.diff(time) * np.diff(drop) * np.diff(current) / 6.0
-
-
 def build_part(
     plan: PartPlan,
     temperature: FloatArray,
@@ -180,7 +162,7 @@ def build_part(
     (the co-simulation's *temperature* holds its window ends only).  *temperature_value*
     replaces the final temperature where the method reports another one (``settle``: the
     period mean, with ``valley_temperature`` the period's lowest).  *excess* (per step of
-    *time*, :func:`step_excess`) gives ``power_error``, :func:`sampling_error`."""
+    *time*, or of the samples' time) gives ``power_error``, :func:`sampling_error`."""
     transient = time is not None and len(time) > 1
     if samples is not None:
         mean, peak = period_mean(samples[0], samples[1], period), samples[2]
@@ -190,6 +172,7 @@ def build_part(
     else:
         mean, peak = float(power[-1]), None
     model = plan.model
+    over = samples[0] if samples is not None else time  # the points *excess* is over
     reported = float(temperature[-1]) if temperature_value is None else temperature_value
     return PartResult(
         path=plan.path,
@@ -206,8 +189,8 @@ def build_part(
         plan=plan,
         valley_temperature=float(np.min(temperature)) if temperature_value is not None else None,
         power_error=(
-            sampling_error(time, excess, period)
-            if excess is not None and time is not None and transient
+            sampling_error(over, excess, period)
+            if excess is not None and over is not None and transient
             else None
         ),
     )

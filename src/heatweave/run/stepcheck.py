@@ -24,13 +24,14 @@ A figure that fails either is not verified: :func:`disagreements` lists them, an
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Generic, TypeVar
 
 import numpy as np
 
 from heatweave.errors import Finding, SimulationTimeoutError, SimulatorError
-from heatweave.run.maxstep import Tran, the_tran, with_max_step
+from heatweave.run.maxstep import the_tran, with_max_step
 from heatweave.run.prepare import Prepared, RunOptions, deck_analyses_of, simulate
 from heatweave.run.results import RunResults, extract, period_mean
 from heatweave.run.unverified import Disagreement
@@ -43,6 +44,8 @@ from heatweave.thermal.replay import network_response
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
     from heatweave.simulators import SimResult
+
+Kept = TypeVar("Kept")
 
 #: At most this many runs again, each with a smaller maximum step.
 MAX_RERUNS = 4
@@ -61,16 +64,7 @@ def disagreements(
     time = results.time
     if time is None or len(time) < 2 or float(time[0]) != 0.0 or not circuit.parts:
         return ()
-    found: list[Disagreement] = []
-    for part in results.parts:
-        if part.power_error is None or part.power_series is None:
-            continue
-        window = results.period if results.period is not None else float(time[-1] - time[0])
-        mean = abs(period_mean(time, part.power_series, window))
-        bound = 2 * reltol * mean + ABSTOL_P
-        if part.power_error > bound:
-            found.append(Disagreement(part.path, "sampling", part.power_error, bound,
-                                      reference=mean))  # fmt: skip
+    found = list(sampling(results, reltol))
     by_path = {p.path: p for p in results.parts}
     series = [by_path[p.path].power_series for p in circuit.parts]
     ambient = results.ambient_series
@@ -93,6 +87,27 @@ def disagreements(
             subject = name if k < len(circuit.parts) else f"node {name}"
             found.append(Disagreement(subject, "integration", float(gap[worst]),
                                       float(allowed[worst]), float(time[worst])))  # fmt: skip
+    return tuple(found)
+
+
+def sampling(results: RunResults, reltol: float) -> tuple[Disagreement, ...]:
+    """Every part whose mean power depends on what lies between the simulator's time
+    points by more than ``2 reltol`` of itself (:attr:`PartResult.power_error`), over the
+    window ``power`` is averaged over (the whole run without a periodic source)."""
+    time = results.time
+    if time is None or len(time) < 2:
+        return ()
+    found = []
+    for part in results.parts:
+        if part.power_error is None:
+            continue
+        mean = abs(part.power)
+        if results.period is None and part.power_series is not None:
+            mean = abs(period_mean(time, part.power_series, float(time[-1] - time[0])))
+        bound = 2 * reltol * mean + ABSTOL_P
+        if part.power_error > bound:
+            found.append(Disagreement(part.path, "sampling", part.power_error, bound,
+                                      reference=mean))  # fmt: skip
     return tuple(found)
 
 
@@ -134,63 +149,90 @@ class Vetted:
 
 
 def vet(inputs: Inputs, options: RunOptions, prepared: Prepared, verified: Verified) -> Vetted:
-    """*results* when :func:`check_run` finds nothing; else the transient run again with a
-    smaller maximum step (the ``tran`` command's TMAX; the deck is not changed) until it
-    does, at most :data:`MAX_RERUNS` times and never below :data:`MAX_STEPS` steps over
-    the span.  Figures still unverified are listed on the results (``check`` fails them)
-    and in a warning.  The findings are those of the run kept (*verified*'s, or those of
-    the last run again), with what was done."""
-    sim, results, findings = verified.sim, verified.results, verified.findings
-    found = check_run(results, prepared)
+    """*verified*'s results when :func:`check_run` finds nothing; else the transient run
+    again with smaller maximum steps (:func:`refine`; the deck is not changed).  Figures
+    still unverified are listed on the results (``check`` fails them) and in a warning.
+    The findings are those of the run kept (*verified*'s, or the last run again's), with
+    what was done."""
+    found = check_run(verified.results, prepared)
     if not found:
-        return Vetted(prepared, sim, results, findings)
-    tran = the_tran(analyses_of(prepared))
-    step = tran.max_step if tran is not None else None
-    first, first_step = found, step
-    said = f"the deck's {seconds(step)}" if step is not None else "the deck's"
-    if prepared.analyses and prepared.analyses != tuple(deck_analyses_of(prepared.deck)):
-        said = f"a {seconds(step)}" if step is not None else "the run's"
+        return Vetted(prepared, verified.sim, verified.results, verified.findings)
+
+    def again(step: float) -> tuple[Vetted, tuple[Disagreement, ...]]:
+        analyses = with_max_step(analyses_of(prepared), step)
+        assert analyses is not None  # refine read the transient
+        ran = replace(prepared, analyses=analyses, deck_analyses=False)
+        sim = simulate(ran, options)
+        checked = verify_run(inputs, options, ran, sim, extract(sim, ran.emitted, inputs.index))
+        return Vetted(ran, checked.sim, checked.results, checked.findings), check_run(
+            checked.results, ran
+        )
+
+    own = not options.analyses and options.max_step is None
+    done = refine(analyses_of(prepared), options.allow_control, own, found, again)
+    last = done.kept or Vetted(prepared, verified.sim, verified.results, verified.findings)
+    results = replace(last.results, unverified=done.found) if done.found else last.results
+    return Vetted(last.prepared, last.sim, results, last.findings + done.findings)
+
+
+@dataclass(frozen=True, slots=True)
+class Refined(Generic[Kept]):
+    """What :func:`refine` ran: the last run again (``None``: none ran), what still fails
+    there (or in the first run), and the note and warning to print."""
+
+    kept: Kept | None
+    found: tuple[Disagreement, ...]
+    findings: tuple[Finding, ...]
+
+
+def refine(
+    analyses: tuple[str, ...],
+    allow_control: bool,
+    own: bool,
+    found: tuple[Disagreement, ...],
+    again: Callable[[float], tuple[Kept, tuple[Disagreement, ...]]],
+) -> Refined[Kept]:
+    """Run *again* with smaller maximum steps (:func:`next_step`) until it finds nothing,
+    at most :data:`MAX_RERUNS` times and never below :data:`MAX_STEPS` steps over the
+    span.  *found* fails with the step of *analyses* (the deck's own when *own*)."""
+    tran = the_tran(analyses)
+    first, step = found, tran.max_step if tran is not None else None
+    said = "the deck's" if own else "a"
+    said = f"{said} {seconds(step)}" if step is not None else said
     why = f"{MAX_RERUNS} runs again with smaller steps did not reach it"
+    kept: Kept | None = None
     for _ in range(MAX_RERUNS):
-        smaller, stop = next_step(options, prepared, tran, found)
-        if stop:
+        smaller, stop = next_step(analyses, allow_control, found)
+        if smaller is None:
             why = stop
-        if smaller is None or tran is None:
             break
-        analyses = with_max_step(analyses_of(prepared), smaller)
-        assert analyses is not None  # next_step read the transient
-        again = replace(prepared, analyses=analyses, deck_analyses=False)
         try:
-            new_sim = simulate(again, options)
-            new_results = extract(new_sim, again.emitted, inputs.index)
-            checked = verify_run(inputs, options, again, new_sim, new_results)
+            kept, found = again(smaller)
         except (SimulatorError, SimulationTimeoutError) as err:
             why = f"the run again with maximum step {seconds(smaller)} failed: {err.message}"
             break
-        prepared, sim, results, step = again, checked.sim, checked.results, smaller
-        tran = the_tran(analyses)
-        findings = checked.findings
-        found = check_run(results, prepared)
+        analyses, step = with_max_step(analyses, smaller) or analyses, smaller
         if not found:
             break
-    if step != first_step and step is not None:
-        findings = (rerun_note(first, said, step), *findings)
+    notes: tuple[Finding, ...] = ()
+    if kept is not None and step is not None:
+        notes = (rerun_note(first, said, step),)
     if found:
-        where = f"{seconds(step)}" if step != first_step and step is not None else said
-        findings = (*findings, unverified_finding(found, where, why))
-        results = replace(results, unverified=found)
-    return Vetted(prepared, sim, results, findings)
+        where = seconds(step) if kept is not None and step is not None else said
+        notes = (*notes, unverified_finding(found, where, why))
+    return Refined(kept, found, notes)
 
 
 def next_step(
-    options: RunOptions, prepared: Prepared, tran: Tran | None, found: tuple[Disagreement, ...]
+    analyses: tuple[str, ...], allow_control: bool, found: tuple[Disagreement, ...]
 ) -> tuple[float | None, str]:
-    """The maximum step to run again with, or ``None`` and why not.  Both errors fall with
-    the square of the step, so the step shrinks by the square root of how far the worst
-    figure is past its bound (with a margin), between the :data:`SHRINK` factors."""
-    if options.allow_control:
+    """The maximum step to run *analyses* again with, or ``None`` and why not.  Both errors
+    fall with the square of the step, so the step shrinks by the square root of how far the
+    worst figure is past its bound (with a margin), between the :data:`SHRINK` factors."""
+    if allow_control:
         return None, "the deck's .control block drives its own analyses"
-    if tran is None or with_max_step(analyses_of(prepared), tran.max_step) is None:
+    tran = the_tran(analyses)
+    if tran is None or with_max_step(analyses, tran.max_step) is None:
         return None, "heatweave cannot read the .tran card's numbers to set its maximum step"
     worst = max(item.value / item.bound for item in found)
     factor = min(max(0.7 / math.sqrt(worst), SHRINK[0]), SHRINK[1])
