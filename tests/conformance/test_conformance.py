@@ -86,6 +86,18 @@ REJECT = {
         "Z1 names the model 'nomes', and no .model card defines one",
         "Unable to find definition of model nomes",
     ),
+    "r34_resistor_word_value": (
+        "R2 has the value 'foo-bar', which is no number and names no model",
+        "unknown parameter (foo)",
+    ),
+    "r35_resistor_unbraced_expression": (
+        "R2 has the value 'rv*2', which is no number and names no model",
+        "unknown parameter (rv)",
+    ),
+    "r36_resistor_undefined_word": (
+        "R2 has the value 'rload', which is no number and names no model",
+        "unknown parameter (rload)",
+    ),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

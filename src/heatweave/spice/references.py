@@ -5,8 +5,8 @@ or fewer nodes than its subcircuit has ports ("Too many/Too few parameters for s
 type"), a D, J, Q or M card naming no model a ``.model`` card defines ("could not find a
 valid modelname"), a Z card doing so ("Unable to find definition of model", r33), an A card
 whose last word names no model ("MIF-ERROR - unable to find definition of model", r32), a
-resistor with a name after its value that no ``.model`` defines
-("unknown parameter"), and a brace expression calling a function no ``.func`` defines
+resistor with a name after its value, or a word for its value, that no ``.model``
+defines ("unknown parameter"), and a brace expression calling a function no ``.func`` defines
 ("Cannot compute substitute").  Each check only refuses what is certainly undefined: a name
 in braces, a model name a binned ``.model`` (``name.1``) extends, or a parameter name passes.
 """
@@ -76,8 +76,8 @@ def _known(name: str, models: set[str]) -> bool:
 
 def _model(card: Card, models: set[str], defined: set[str]) -> Iterator[Finding]:
     fields = card.fields()
-    if card.letter == "R" and (len(fields) < 5 or "=" in fields[4]):
-        return  # no word after the value: the common card, read without the grammar
+    if card.letter == "R" and _plain_resistor(fields):
+        return  # a value and no word after it: the common card, read without the grammar
     if card.letter != "R" and any(_known(f, models) for f in fields[1:]):
         return  # a defined model among its words (the grammar is not loaded for it)
     try:
@@ -88,9 +88,12 @@ def _model(card: Card, models: set[str], defined: set[str]) -> Iterator[Finding]
         return
     words = [f for f in syntax.positional if isinstance(f, Value)]
     if syntax.letter == "r":
+        if words and words[0].kind in (ValueKind.NAME, ValueKind.EXPRESSION):
+            yield from _word_value(card, syntax, words[0], models, defined)
+            return
         # R n+ n- value name: the name after a value is the card's model (manual 3.3.1)
         names = [w for k, w in enumerate(words) if k > 0 and w.kind is ValueKind.NAME]
-        if not words or words[0].kind is ValueKind.NAME or not names:
+        if not words or not names:
             return
         name = names[0]
         if _known(name.text, models) or name.key in defined:
@@ -117,6 +120,38 @@ def _model(card: Card, models: set[str], defined: set[str]) -> Iterator[Finding]
         card.location(where),
         f"a {card.letter} element needs a model: define it with .model, or include the file "
         "that does",
+    )  # fmt: skip
+
+
+_VALUE_START = frozenset("0123456789.+-{'")
+
+
+def _plain_resistor(fields: list[str]) -> bool:
+    """``R n+ n- <number or {expr}> [k=v ...]`` or ``R n+ n- k=v ...``: no word that could
+    name a model, so nothing for :func:`_model` to check."""
+    if len(fields) < 4 or fields[4:5] == ["="]:
+        return True  # no value (lint's card rules warn), or r= / resistance= first
+    return fields[3][:1] in _VALUE_START and (len(fields) < 5 or "=" in fields[4])
+
+
+def _word_value(
+    card: Card, syntax: ElementSyntax, word: Value, models: set[str], defined: set[str]
+) -> Iterator[Finding]:
+    """``R n+ n- word``: ngspice 39 reads the word as a model name and, when no ``.model``
+    defines it, refuses the card ('unknown parameter'), also for an unbraced expression
+    such as ``foo-bar`` or ``rv*2`` (conformance r34, r35).  A bare ``.param`` name is read
+    as its value (ngspice warns it found no such model, then runs)."""
+    if _known(word.text, models) or (word.kind is ValueKind.NAME and word.key in defined):
+        return
+    yield Finding(
+        "error", f"{syntax.name.text} has the value {word.text!r}, which is no number and "
+        "names no model a .model card defines: ngspice 39 refuses the card ('unknown "
+        "parameter')",
+        card.location(word.offset),
+        "write a number (1k), an expression in braces ({...}) or quotes, or define the model "
+        f"(.model {word.text} R rsh=...)" if word.kind is ValueKind.NAME
+        else f"an expression goes in braces ({{{word.text}}}) or quotes (manual 2.9.2); a "
+        "model name needs its .model card",
     )  # fmt: skip
 
 
