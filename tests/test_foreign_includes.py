@@ -118,14 +118,18 @@ def test_no_command_shows_a_hostile_include(tmp_path: Path, name: str, command: 
 
 
 @needs_ngspice
-def test_ngspice_rejecting_a_withheld_card_is_located_without_its_text(tmp_path: Path) -> None:
-    """ngspice echoes the card it rejects; heatweave names its FILE:LINE and not its text."""
+def test_a_withheld_card_ngspice_would_reject_is_refused_without_its_text(
+    tmp_path: Path,
+) -> None:
+    """ngspice rejects a resistor whose value is a word no .model defines, and echoes the
+    card; heatweave refuses it first (exit 2, tests/conformance r34 to r36), naming its
+    FILE:LINE:COLUMN and not its text."""
     deck = deck_including(tmp_path, "card-like.txt", HOSTILE["card-like.txt"][0])
     code, output = invoke(["run", str(deck), "--method", "full", "--backend", "batch"])
-    assert code == 3, output
+    assert code == 2, output
     assert (
-        f"{tmp_path / 'card-like.txt'}:1:1: error: ngspice rejects this card (the line is "
-        "not shown because card-like.txt is not proven to be a SPICE file)"
+        f"{tmp_path / 'card-like.txt'}:1:10: error: an error in this line: the line and what "
+        "this message would quote from it are not shown"
     ) in output
     assert SECRET not in output
 
