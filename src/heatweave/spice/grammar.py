@@ -8,15 +8,17 @@ and say in plain words what was expected, never lark's terminal names.
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import importlib.resources
+import re
 from pathlib import Path
 from typing import TYPE_CHECKING, cast
 
 from heatweave.errors import DeckSyntaxError
 from heatweave.spice.cardbuild import BuildError, ToSyntax, use_text
 from heatweave.spice.deck import Card
-from heatweave.spice.syntax import Call, CardSyntax, Token, Value
+from heatweave.spice.syntax import TRANSIENT_FUNCTIONS, Call, CardSyntax, Token, Value
 from heatweave.spice.tablecache import with_kept_tables
 
 if TYPE_CHECKING:  # lark is imported on first use, so importing this module stays cheap
@@ -89,13 +91,65 @@ def parse_card(text: str) -> CardSyntax:
         result = cast(CardSyntax, parser().parse(text))
     except UnexpectedInput as exc:
         error = _describe(exc, text)
-        if unclosed_model(text) is None:
+        closed = _closed(text)
+        if closed is None:
             raise error from None
-        # ngspice 39 reads a .model whose '(' never closes as if it closed at the end.
-        return parse_card(text + ")")
+        inserted, fixed = closed
+        # The ')' ngspice supplies is read, and the offsets after it are the card's again.
+        return cast(CardSyntax, _shift(parse_card(fixed), inserted))
     except BuildError as exc:
         raise CardSyntaxError(exc.offset, exc.message, exc.hint) from None
     return result
+
+
+def _closed(text: str) -> tuple[int, str] | None:
+    """Where ngspice 39 supplies the ')' of a '(' that never closes, and *text* with it.
+
+    A ``.model``'s list closes at the card's end.  A V or I card's transient function
+    (``PULSE(0 10 0 1u 1u 5u 10u``, which stock ngspice 39 runs) closes before the next
+    source keyword (``ac``, ``dc``, ``distof1/2``), else at the end: checked against
+    ngspice's mean power over a period (tests/test_waves_sources.py).
+    """
+    at = unclosed_model(text)
+    end = len(text.rstrip())
+    if at is None:
+        at = unclosed_source(text)
+        if at is None:
+            return None
+        keyword = _SOURCE_KEYWORD.search(text, at)
+        end = keyword.start() if keyword is not None else end
+    return end, text[:end] + ")" + text[end:]
+
+
+def _shift(node: object, inserted: int) -> object:
+    """*node* with every offset past the ')' inserted at *inserted* moved back by one."""
+    if isinstance(node, tuple):
+        return tuple(_shift(item, inserted) for item in node)
+    if not dataclasses.is_dataclass(node) or isinstance(node, type):
+        return node
+    changes: dict[str, object] = {}
+    for field in dataclasses.fields(node):
+        value = getattr(node, field.name)
+        if field.name in ("offset", "end") and isinstance(value, int):
+            if value > inserted:
+                changes[field.name] = value - 1
+        elif isinstance(value, tuple) or dataclasses.is_dataclass(value):
+            changes[field.name] = _shift(value, inserted)
+    return dataclasses.replace(node, **changes)
+
+
+_SOURCE_KEYWORD = re.compile(r"[\s,]+(?:ac|dc|distof[12])(?=[\s,=(]|$)", re.IGNORECASE)
+
+
+def unclosed_source(text: str) -> int | None:
+    """Where the '(' of a V or I card's transient function opens, when it never closes."""
+    if text[:1].lower() not in ("v", "i"):
+        return None
+    at = _unclosed(text, "(", ")")
+    if not (at < len(text.rstrip()) and text[at] == "("):
+        return None
+    before = text[:at].replace(",", " ").split()
+    return at if len(before) > 3 and before[-1].lower() in TRANSIENT_FUNCTIONS else None
 
 
 def unclosed_model(text: str) -> int | None:

@@ -14,7 +14,7 @@ from heatweave.errors import DeckSyntaxError, Finding, HeatweaveError, Location,
 from heatweave.spice.acceptance import rejections
 from heatweave.spice.cardparts import subckt_ports, x_card_parts
 from heatweave.spice.deck import Block, Card, ControlBlock, Deck, Node
-from heatweave.spice.grammar import syntax_of, unclosed_model
+from heatweave.spice.grammar import syntax_of, unclosed_model, unclosed_source
 from heatweave.spice.hierarchy import DeckIndex, Scope, global_names
 from heatweave.spice.lint_cards import card_problems
 from heatweave.spice.netlist import card_nodes
@@ -96,6 +96,13 @@ def _parse_all(decks: Iterable[Deck], index: DeckIndex) -> Iterator[Finding]:
                 yield Finding(
                     "warning", "the '(' of this .model never closes; ngspice 39 reads the "
                     "card to its end", card.location(opening), "add the ')'",
+                )  # fmt: skip
+            opening = unclosed_source(logical)
+            if opening is not None:
+                yield Finding(
+                    "warning", "the '(' of this source function never closes; ngspice 39 "
+                    "closes it before the next ac, dc or distof keyword, else at the card's end",
+                    card.location(opening), "add the ')'",
                 )  # fmt: skip
             for problem in card_problems(syntax, logical, model_of):
                 where = card.location(problem.offset)
