@@ -143,6 +143,8 @@ def _word_value(
     as its value (ngspice warns it found no such model, then runs)."""
     if _known(word.text, models) or (word.kind is ValueKind.NAME and word.key in defined):
         return
+    if word.text[:1] in "{'":
+        return  # {big}k: a brace with a word glued on, which the model check reads
     yield Finding(
         "error", f"{syntax.name.text} has the value {word.text!r}, which is no number and "
         "names no model a .model card defines: ngspice 39 refuses the card ('unknown "
