@@ -118,3 +118,17 @@ def test_a_steady_state_below_1000_degc_stands(tmp_path: Path) -> None:
     outcome = runner.run(str(deck), str(note), runner.RunOptions())
     hot = 25.0 + steady_rise(current, r0, rth, tc1)
     assert outcome.results.part("RS").temperature == pytest.approx(hot, rel=1e-4)
+
+
+def test_past_every_resolvable_drive_no_critical_value_is_made_up(tmp_path: Path) -> None:
+    """Loop gain I^2 R0 Rth tc1 = 3.9e22: the critical share of the dissipation (2.6e-23)
+    is below the finest the continuation follows; the message says so instead of "0 % of
+    the dissipation, I1 = 0 A" (it did)."""
+    deck, note = tmp_path / "d.cir", tmp_path / "d.thermal.toml"
+    deck.write_text(DECK.format(i=1e9, r0=10.0, analysis=".op"))
+    note.write_text(NOTE.format(start="", tc1=0.0039, tref=25.0, rth=1e12))
+    with pytest.raises(RunawayError) as caught:
+        runner.run(str(deck), str(note), runner.RunOptions())
+    text = str(caught.value)
+    assert "no steady state even at the smallest share" in text
+    assert " 0 A" not in text and "at 0 %" not in text

@@ -41,6 +41,13 @@ class Diagnosis:
         """The diagnosis in words."""
         if self.model_range is not None:
             return self._range_sentence(self.model_range)
+        if not self.drive > 0:
+            # Past the finest share the continuation follows: no critical value to give.
+            return (
+                "no steady state even at the smallest share of the full dissipation followed "
+                f"(from {self.part} unheated at {self.temperature:.4g} degC): its loop gain "
+                "Rth*dP/dT passes 1 at a drive too small to resolve, far below the deck's"
+            )
         text = (
             f"loop gain Rth*dP/dT reached {self.loop_gain:.3g} at {100 * self.drive:.3g} % of "
             f"the full dissipation ({self.part} at {self.temperature:.4g} degC) and the "
