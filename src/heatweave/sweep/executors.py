@@ -165,6 +165,9 @@ WAKE_EVERY = 0.25
 #: Seconds workers have to clean up after SIGTERM before they are killed.
 ABORT_GRACE = 5.0
 
+#: Seconds the pool's manager thread has to end once its workers are gone.
+MANAGER_GRACE = 10.0
+
 
 class ProcessExecutor:
     """Jobs in *workers* local processes.  A fork server gives each a clean start; it
@@ -223,6 +226,8 @@ class ProcessExecutor:
         ``InvalidStateError`` (a traceback on stderr) for one already cancelled."""
         self._aborted = True
         workers = list((getattr(self._pool, "_processes", None) or {}).values())
+        # shutdown() forgets the manager thread: take it first, to wait for it below.
+        manager = getattr(self._pool, "_executor_manager_thread", None)
         self._pool.shutdown(wait=False, cancel_futures=True)
         for worker in workers:
             worker.terminate()
@@ -232,9 +237,11 @@ class ProcessExecutor:
             if worker.is_alive():
                 worker.kill()
                 worker.join(1.0)
-        manager = getattr(self._pool, "_executor_manager_thread", None)
-        if manager is not None:  # it notices the workers are gone and ends
-            manager.join(max(deadline - time.monotonic(), 1.0))
+        # The manager notices the workers are gone and ends, closing its wakeup pipe.  One
+        # still running at interpreter exit races the pool's exit hook, which writes to
+        # that pipe ("Exception ignored ... Bad file descriptor" on stderr).
+        if manager is not None:
+            manager.join(max(deadline - time.monotonic(), 0.0) + MANAGER_GRACE)
 
 
 class DaskExecutor:
