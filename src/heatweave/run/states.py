@@ -9,6 +9,10 @@ on the circuit, so every such part is scanned, not a list of models.  A crossing
 heat balance rises through zero (a linear negative tc1 straight across a supply has one
 below its stable one's partner) is unstable and never a state.
 
+First :func:`heatweave.run.unique.prove` tries to show that the operating point is the only
+steady state (a bound, any number of parts, no simulation); where it does, nothing is
+scanned and nothing said.  Otherwise the scans below run.
+
 The scan holds parts at fixed temperatures with sources on their hot nodes; the current a
 holding source takes is the heat surplus at that node (heat in minus heat out, with every
 other part free), so its zeros are steady states and its slopes say which are stable:
@@ -41,6 +45,7 @@ from scipy import ndimage
 from heatweave.emit.names import HELD_AT_ONCE, hold
 from heatweave.errors import Finding, SimulatorError
 from heatweave.run.diagnosis_decks import TIGHT, simulate_deck
+from heatweave.run.unique import Bound, prove
 from heatweave.spice.transform import insert_before_end, new_cards
 from heatweave.thermal.balance import thermal_nodes
 
@@ -49,6 +54,7 @@ if TYPE_CHECKING:
     from heatweave.run.results import RunResults
     from heatweave.run.runaway import FloatArray
     from heatweave.simulators import Plot
+    from heatweave.spice.hierarchy import DeckIndex
     from heatweave.thermal.circuit import PartPlan, ThermalCircuit
 
 SCAN_STEP = 0.5  # K between held temperatures
@@ -332,22 +338,29 @@ HINT = (
 
 
 def statement(
-    options: RunOptions, prepared: Prepared, results: RunResults, source: str = NGSPICE
-) -> Statement:
+    options: RunOptions, prepared: Prepared, results: RunResults, index: DeckIndex,
+    source: str = NGSPICE,
+) -> Statement:  # fmt: skip
     """Which stable steady states the operating point *results* has besides the one
-    reported, in words (see the module docstring); *source* says where that one came from."""
+    reported, in words (see the module docstring); *source* says where that one came from.
+    Where :func:`heatweave.run.unique.prove` shows it is the only one, nothing is scanned."""
     circuit = prepared.emitted.circuit
     assert circuit is not None
     if results.analysis != "op":
         return Statement()
     parts = feedback_parts(circuit)
+    if not parts:
+        return Statement()
+    bound = prove(circuit, index, results)
+    if bound.proven:  # the only steady state: nothing to scan for
+        return Statement()
     if len(parts) == 1:
         return single(options, prepared, results, parts[0])
     if len(parts) == 2:
         found = joint(prepared, options, parts)
         if found is not None:
             return pair(results, parts, found, source)
-    return several(options, prepared, results, parts, source)
+    return several(options, prepared, results, parts, source, bound)
 
 
 def single(
@@ -410,7 +423,7 @@ def pair(results: RunResults, parts: list[PartPlan], found: list[State], source:
 
 def several(
     options: RunOptions, prepared: Prepared, results: RunResults, parts: list[PartPlan],
-    source: str,
+    source: str, bound: Bound,
 ) -> Statement:  # fmt: skip
     """Three or more parts (or two the joint scan could not hold): each held alone with
     the others free; a warning where that cannot decide (see the module docstring)."""
@@ -418,8 +431,8 @@ def several(
     if count > MAX_SCANNED:
         text = (
             f"{count} annotated parts have resistances that depend on temperature: too many to "
-            f"scan for other stable steady states, so the one reported ({source}) may not be "
-            "the only one"
+            f"scan for other stable steady states, and the bound that proves a single one "
+            f"does not ({bound.why}), so the one reported ({source}) may not be the only one"
         )
         return Statement((Finding("warning", text, None, HINT),))
     findings = []

@@ -20,8 +20,9 @@ A state that fails is never the answer.  :func:`recover` looks for the circuit's
 3. otherwise no steady state exists and the error says why, with the loop gain.
 
 The state found is solved again by ngspice from that point (``.nodeset``) and verified once
-more.  Every verified operating point is also scanned for other stable states
-(:mod:`heatweave.run.states`): a warning names them and says which one is reported and why.
+more.  Every verified operating point is also proven the only steady state
+(:mod:`heatweave.run.unique`) or scanned for other stable states (:mod:`heatweave.run.states`):
+a warning names them and says which one is reported and why.
 """
 
 from __future__ import annotations
@@ -183,7 +184,7 @@ def verify_run(
     verdict = verdict_of(results, circuit, at, prepared.deck)
     fallback = fell_back(sim.log)
     if verdict.ok and not fallback:
-        said = statement(options, prepared, results)
+        said = statement(options, prepared, results, inputs.index)
         if said.instead is None:
             return Verified(sim, results, verdict.warnings + said.findings)
         return resolve(inputs, options, prepared, said.instead, said.why, said.how, True)
@@ -272,7 +273,7 @@ def resolve(
         "a transient from cold (--tran) shows how the circuit gets there",
     )
     # A state recovered otherwise may have others beside it: said as for any other.
-    said = statement(options, prepared, results, f"the state {how}")
+    said = statement(options, prepared, results, inputs.index, f"the state {how}")
     notes = said.findings
     if said.instead is not None:
         notes += (Finding("warning", f"{said.text}; the one reported is the state {how}", None,
