@@ -432,7 +432,8 @@ def several(
         text = (
             f"{count} annotated parts have resistances that depend on temperature: too many to "
             f"scan for other stable steady states, and the bound that proves a single one "
-            f"does not ({bound.why}), so the one reported ({source}) may not be the only one"
+            f"does not hold here ({bound.why}), so the one reported ({source}) may not be "
+            "the only one"
         )
         return Statement((Finding("warning", text, None, HINT),))
     findings = []
