@@ -201,8 +201,7 @@ def part_limits(results: RunResults, ambient: FloatArray) -> list[LimitResult]:
             out.append(_power_limit(part, results, ambient))
     # A figure the run's own numbers do not back fails, whatever the part's ratings say.
     for item in results.unverified:
-        unit = "K" if item.kind == "integration" else "W"
-        out.append(LimitResult(item.subject, item.kind, item.value, item.bound, unit, True,
+        out.append(LimitResult(item.subject, item.kind, item.value, item.bound, item.unit, True,
                                item.limit_detail()))  # fmt: skip
     return out
 

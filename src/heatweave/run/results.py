@@ -69,6 +69,10 @@ class PartResult:
     #: How much ``power`` depends on what happens between the simulator's time points (W):
     #: :func:`sampling_error`; ``None`` where not estimated.
     power_error: float | None = None
+    #: Per step of ``power_series``'s time (or the samples' time), the trapezoid's
+    #: integral of the power minus the exact one of straight-line voltages and currents
+    #: (J): what ``power_error`` is summed from (``settle`` sums it over its own period).
+    power_excess: FloatArray | None = field(default=None, repr=False, compare=False)
 
     @property
     def resistance_change(self) -> float | None:
@@ -193,6 +197,7 @@ def build_part(
             if excess is not None and over is not None and transient
             else None
         ),
+        power_excess=excess if transient else None,
     )
 
 

@@ -117,7 +117,14 @@ HINT = (
 )
 
 
-def unverified_finding(found: tuple[Disagreement, ...], step: str, why: str) -> Finding:
+def step_hint(option: str) -> str:
+    """The warning's hint for a command whose step *option* sets (``--max-step``: run's)."""
+    return HINT if option == "--max-step" else f"give a smaller step with {option}"
+
+
+def unverified_finding(
+    found: tuple[Disagreement, ...], step: str, why: str, hint: str = HINT
+) -> Finding:
     """The warning that the figures of *found* are not verified with maximum step *step*
     (in words: ``the deck's 250 us``); *why* says why no smaller step was tried."""
     said = "; ".join(item.words() for item in found)
@@ -126,7 +133,7 @@ def unverified_finding(found: tuple[Disagreement, ...], step: str, why: str) -> 
         f"not verified with {step} maximum step: {said}; the temperatures and powers "
         f"reported for these parts are not backed by the run's own numbers ({why})",
         None,
-        HINT,
+        hint,
     )
 
 
@@ -191,10 +198,15 @@ def refine(
     own: bool,
     found: tuple[Disagreement, ...],
     again: Callable[[float], tuple[Kept, tuple[Disagreement, ...]]],
+    option: str = "--max-step",
+    snap: Callable[[float], float] | None = None,
 ) -> Refined[Kept]:
     """Run *again* with smaller maximum steps (:func:`next_step`) until it finds nothing,
     at most :data:`MAX_RERUNS` times and never below :data:`MAX_STEPS` steps over the
-    span.  *found* fails with the step of *analyses* (the deck's own when *own*)."""
+    span.  *found* fails with the step of *analyses* (the deck's own when *own*);
+    *option* is the command's option that sets the step, named in the warning, and
+    *snap* moves each step chosen to one the command can use (``settle``: a whole
+    fraction of its period)."""
     tran = the_tran(analyses)
     first, step = found, tran.max_step if tran is not None else None
     said = "the deck's" if own else "a"
@@ -202,10 +214,11 @@ def refine(
     why = f"{MAX_RERUNS} runs again with smaller steps did not reach it"
     kept: Kept | None = None
     for _ in range(MAX_RERUNS):
-        smaller, stop = next_step(analyses, allow_control, found)
+        smaller, stop = next_step(analyses, allow_control, found, option)
         if smaller is None:
             why = stop
             break
+        smaller = snap(smaller) if snap is not None else smaller
         try:
             kept, found = again(smaller)
         except (SimulatorError, SimulationTimeoutError) as err:
@@ -219,13 +232,14 @@ def refine(
         notes = (rerun_note(first, said, step),)
     if found:
         where = seconds(step) if kept is not None and step is not None else said
-        notes = (*notes, unverified_finding(found, where, why))
+        notes = (*notes, unverified_finding(found, where, why, step_hint(option)))
     return Refined(kept, found, notes)
 
 
 def next_step(
-    analyses: tuple[str, ...], allow_control: bool, found: tuple[Disagreement, ...]
-) -> tuple[float | None, str]:
+    analyses: tuple[str, ...], allow_control: bool, found: tuple[Disagreement, ...],
+    option: str = "--max-step",
+) -> tuple[float | None, str]:  # fmt: skip
     """The maximum step to run *analyses* again with, or ``None`` and why not.  Both errors
     fall with the square of the step, so the step shrinks by the square root of how far the
     worst figure is past its bound (with a margin), between the :data:`SHRINK` factors."""
@@ -240,7 +254,7 @@ def next_step(
     if tran.max_step <= floor * (1 + 1e-9):
         return None, (
             f"a smaller step than {seconds(tran.max_step)} would take more than "
-            f"{MAX_STEPS:,} steps; set one with --max-step"
+            f"{MAX_STEPS:,} steps; set one with {option}"
         )
     return max(float(f"{tran.max_step * factor:.2g}"), floor), ""
 

@@ -11,8 +11,10 @@ class Disagreement:
     """A figure of a transient that its own numbers do not back.
 
     ``kind`` is ``integration`` (``value``: ngspice's temperature against the network's
-    own response, K, the largest at ``at`` s) or ``sampling`` (``value``: the estimated
-    error of the mean power, W); ``bound`` is what the check allows."""
+    own response, K, the largest at ``at`` s), ``sampling`` (``value``: the estimated
+    error of the mean power, W) or ``ripple`` (``value``: how far a settled period's peak
+    and valley temperatures may move for that error of its power, K); ``bound`` is what
+    the check allows."""
 
     subject: str
     kind: str
@@ -21,8 +23,19 @@ class Disagreement:
     at: float | None = None
     reference: float | None = None
 
+    @property
+    def unit(self) -> str:
+        """The unit of ``value`` and ``bound``."""
+        return "W" if self.kind == "sampling" else "K"
+
     def words(self) -> str:
         """The disagreement in words."""
+        if self.kind == "ripple":
+            return (
+                f"{self.subject}'s peak and valley temperatures depend by up to "
+                f"{self.value:.3g} K on what happens between ngspice's time points (at most "
+                f"{self.bound:.2g} K)"
+            )
         if self.kind == "integration":
             return (
                 f"{self.subject}'s temperature is {self.value:.3g} K from the thermal network's "
@@ -41,5 +54,10 @@ class Disagreement:
             return (
                 f"ngspice's temperature against the thermal network's own response to its "
                 f"dissipation, largest at t = {self.at:.4g} s: not verified"
+            )
+        if self.kind == "ripple":
+            return (
+                "the peak and valley temperatures' dependence on ngspice's time points: "
+                "not verified"
             )
         return "the mean dissipation's dependence on ngspice's time points: not verified"

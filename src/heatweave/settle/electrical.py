@@ -118,6 +118,10 @@ class Cycle:
     periods: int  # periods simulated
     repeat: float  # relative difference of the last two periods (largest signal)
     series: dict[str, FloatArray] = field(default_factory=dict, repr=False)  # node voltages
+    #: Per step of ``time`` and part, the trapezoid's integral of the power minus the exact
+    #: one of straight-line voltages and currents (J; :mod:`heatweave.run.sampling`); the
+    #: first step is the whole simulator step the period starts in.
+    excess: FloatArray = field(default_factory=lambda: np.zeros((0, 0)), repr=False)
 
 
 class Electrical:
@@ -141,7 +145,7 @@ class Electrical:
         #: two periods compared lie after it.
         self.min_periods = 2 + max(0, math.ceil(start / period - 1e-9))
         self.base: Prepared = prepare(
-            inputs, replace(options, analyses=(self._analysis(2),)), heating=False
+            inputs, replace(options, analyses=(self.analysis(2),)), heating=False
         )
         circuit = self.base.emitted.circuit
         assert circuit is not None
@@ -154,24 +158,31 @@ class Electrical:
         """The preparation's findings."""
         return list(self.base.findings)
 
-    def _analysis(self, periods: int) -> str:
+    def analysis(self, periods: int, tstep: float | None = None) -> str:
+        """The transient card of *periods* periods, largest step *tstep* (default: own)."""
+        step = tstep or self.tstep
         stop = periods * self.period
         # Keep only the last two periods (and a margin) in memory.
-        start = max(0.0, stop - 2.0 * self.period - 2.0 * self.tstep)
-        numbers = (self.tstep, stop, start, self.tstep)
+        start = max(0.0, stop - 2.0 * self.period - 2.0 * step)
+        numbers = (step, stop, start, step)
         return "tran " + " ".join(format_number(n) for n in numbers)
 
-    def simulate(self, temps: Sequence[float], periods: int) -> RunResults:
+    def simulate(
+        self, temps: Sequence[float], periods: int, tstep: float | None = None
+    ) -> RunResults:
         """One transient of *periods* periods with resistor parts at *temps* (degC)."""
         deck = fixed_resistor_deck(self.base.deck, self.resistors, temps)
-        analyses = (self._analysis(periods),)
+        analyses = (self.analysis(periods, tstep),)
         prepared = replace(self.base, text=deck.write(), deck=deck, analyses=analyses)
         sim = simulate(prepared, self.options)
         return extract(sim, self.base.emitted, self.inputs.index)
 
-    def cycle(self, temps: Sequence[float], periods: int, max_periods: int) -> Cycle:
+    def cycle(
+        self, temps: Sequence[float], periods: int, max_periods: int, tstep: float | None = None
+    ) -> Cycle:
         """The last period at *temps*, simulating more periods (doubling, up to
-        *max_periods*) until two successive periods agree within the waveform tolerance.
+        *max_periods*) until two successive periods agree within the waveform tolerance;
+        largest step *tstep* (default: the electrical half's own).
 
         Raises :class:`ConvergenceError` naming the signal that still changes when they
         never do: the circuit does not repeat with the period (or not yet), and no
@@ -180,9 +191,9 @@ class Electrical:
         periods = max(periods, self.min_periods)
         max_periods = max(max_periods, periods)
         while True:
-            results = self.simulate(temps, periods)
+            results = self.simulate(temps, periods, tstep)
             assert results.time is not None
-            power = self._power(results, fixed)
+            power, excess = self._power(results, fixed)
             names = sorted(results.voltage_series)
             signals = np.column_stack([power, *(results.voltage_series[n] for n in names)])
             errors = repeat_error(results.time, signals, self.period)
@@ -208,21 +219,34 @@ class Electrical:
         means, _rms = period_stats(times, last)
         voltages = {name: float(means[n + k]) for k, name in enumerate(names)}
         series = {name: last[:, n + k] for k, name in enumerate(names)}
-        return Cycle(times, last[:, :n], means[:n], voltages, periods, error, series)
+        # the steps of the window: from the simulator's step the period starts in
+        first = int(np.searchsorted(results.time, end - self.period, side="right")) - 1
+        return Cycle(times, last[:, :n], means[:n], voltages, periods, error, series,
+                     excess[max(first, 0) :])  # fmt: skip
 
-    def _power(self, results: RunResults, fixed: dict[str, float]) -> FloatArray:
-        """Each part's instantaneous dissipation (``samples x parts``).
+    def _power(self, results: RunResults, fixed: dict[str, float]) -> tuple[FloatArray, FloatArray]:
+        """Each part's instantaneous dissipation (``samples x parts``) and its per-step
+        sampling excess (``steps x parts``, :attr:`PartResult.power_excess`).
 
         ``extract`` computes a resistor's power as V^2 / R(T_node); with heating off the
-        hot-spot node sits at ambient, so its R is rescaled to the resistance held fixed.
+        hot-spot node sits at ambient, so its R (and the excess with it) is rescaled to
+        the resistance held fixed.
         """
-        columns = []
+        assert results.time is not None
+        columns, excesses = [], []
         for part in results.parts:
             assert part.power_series is not None
             series = part.power_series
+            excess = part.power_excess
+            if excess is None:
+                excess = np.zeros(len(results.time) - 1)
             if part.path in fixed and part.resistance_series is not None:
                 assert part.plan is not None and part.plan.model is not None
                 held = float(part.plan.model.resistance(fixed[part.path]))
                 series = series * part.resistance_series / held
+                excess = excess * part.resistance_series[:-1] / held
             columns.append(series)
-        return np.column_stack(columns) if columns else np.zeros((0, 0))
+            excesses.append(excess)
+        if not columns:
+            return np.zeros((0, 0)), np.zeros((0, 0))
+        return np.column_stack(columns), np.column_stack(excesses)

@@ -35,7 +35,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import numpy.typing as npt
@@ -48,13 +48,20 @@ from heatweave.run.results import (
     SETTLED,
     PartResult,
     RunResults,
-    build_part,
     range_warning,
 )
+from heatweave.run.unverified import Disagreement
 from heatweave.run.verify import NoSteadyStateError
 from heatweave.run.waves import DrivePeriod, drive_period, seconds
 from heatweave.settle.electrical import Cycle, Electrical
 from heatweave.settle.thermal import periodic
+from heatweave.settle.vetting import (
+    disagreements,
+    late_warning,
+    settled_parts,
+    vet_cycle,
+    vetting_tolerances,
+)
 from heatweave.settle.warmup import Envelope, warm_up
 from heatweave.thermal.balance import Verdict, check_state
 from heatweave.thermal.solver import ThermalSystem, assemble
@@ -147,6 +154,8 @@ class Settled:
     #: With ``SettleOptions.baseline``: the period without self-heating, its times from the
     #: period's start and node voltages.
     baseline: tuple[FloatArray, dict[str, FloatArray]] | None = field(default=None, repr=False)
+    #: Figures the settled period's own numbers do not back (:mod:`heatweave.settle.vetting`).
+    unverified: tuple[Disagreement, ...] = ()
 
     def as_results(self) -> RunResults:
         """The settled period as the results of a run over that one period (analysis
@@ -158,6 +167,7 @@ class Settled:
         return RunResults(
             SETTLED, self.ambient, self.parts, dict(self.nodes), dict(self.voltages),
             self.time, node_series, dict(self.voltage_series), period=self.period,
+            unverified=self.unverified,
         )  # fmt: skip
 
 
@@ -253,15 +263,16 @@ class _Loop:
             gain[:, j] = (out[self.index] - lower[self.index]) / GAIN_STEP
         return gain
 
-    def run(self) -> tuple[Cycle, list[Step]]:
-        """Iterate from ambient until settled: the last period and every step taken.
+    def run(self, start: FloatArray | None = None) -> tuple[Cycle, list[Step]]:
+        """Iterate from ambient (or *start*) until settled: the last period and every step
+        taken.
 
         Steps are kept inside :meth:`bounds`.  A part held at its bound whose heating
         pushes it past the bound is examined there: with a loop gain of 1 or more it runs
         away out of the range; below 1 (a hot part, not a runaway) a model range is left
         open and the iteration goes on beyond it, reported by :func:`range_warnings`."""
         n = len(self.index)
-        temps = np.full(n, self.ambient)
+        temps = np.full(n, self.ambient) if start is None else start
         low, high = self.bounds()
         steps: list[Step] = []
         jac = -np.eye(n)  # Broyden's estimate of d(G(T) - T)/dT; -I = plain relaxation
@@ -383,15 +394,22 @@ def settle(
     system = assemble(circuit)
     loop = _Loop(electrical, system, ambient, options)
     cycle, steps = loop.run()
+    # run's sampling check; a finer step found, the iteration goes on with it
+    tolerances = vetting_tolerances(electrical.base.text)
+    done, found = vet_cycle(electrical, system, loop.settled_at, cycle,
+                            (loop.periods, options.max_periods), ambient, tolerances)  # fmt: skip
+    if done.kept is not None:
+        electrical.tstep = done.kept[0]
+        cycle, more = loop.run(loop.settled_at)
+        steps += [replace(step, iteration=len(steps) + step.iteration) for step in more]
     ripple = periodic(system, cycle.time, cycle.power, ambient)
     verdict = verify_settled(loop, ripple.mean, cycle.mean_power)
-    parts = [
-        build_part(
-            plan, ripple.outputs[:, k], cycle.power[:, k], time=cycle.time - cycle.time[0],
-            period=period, temperature_value=float(ripple.mean[k]),
-        )  # the cycle mean is the settled temperature; peak and valley its extremes
-        for k, plan in enumerate(circuit.parts)
-    ]  # fmt: skip
+    parts = settled_parts(circuit, cycle, ripple, period)
+    unverified = done.found
+    if done.kept is not None:  # the period reported is the last iteration's: checked again
+        unverified = disagreements(system, circuit, cycle, ripple, period, tolerances)
+    kept = done.findings if unverified else tuple(f for f in done.findings if f.severity == "note")
+    checked = kept + late_warning(found, done, unverified, electrical.tstep)
     n = len(circuit.parts)
     labels = [node.label for node in circuit.nodes]
     envelope = None
@@ -418,7 +436,7 @@ def settle(
         periods=cycle.periods,
         gain=rho,
         history=tuple(steps),
-        findings=(*electrical.findings, *range_warnings(parts), *verdict.warnings),
+        findings=(*electrical.findings, *checked, *range_warnings(parts), *verdict.warnings),
         envelope=envelope,
         drive=drive,
         voltage_series=cycle.series,
@@ -426,6 +444,7 @@ def settle(
         power=cycle.power,
         temperatures=ripple.outputs,
         baseline=baseline,
+        unverified=unverified,
     )
 
 

@@ -122,3 +122,36 @@ def _stepped(
         if done:
             break
     return np.array(rows)
+
+
+def ripple_bound(system: ThermalSystem, period: float, excess: FloatArray,
+                 time: FloatArray) -> FloatArray | None:  # fmt: skip
+    """How far each output's temperature (parts, then shared nodes) within the periodic
+    steady state may move when every part's power is the exact product of straight-line
+    voltages and currents between the samples rather than :func:`periodic`'s straight
+    line through them; ``None`` when the network has no well-conditioned modes.
+
+    *excess* holds per step of *time* and part the trapezoid's integral minus the exact
+    one (:mod:`heatweave.run.sampling`).  On a step the two powers differ by a parabola of
+    one sign, zero at both ends: its integral is the excess, its largest value 3/2 of the
+    excess over the step.  The periodic response to a periodic difference ``dP`` is
+    ``integral g_T(s) dP(t - s) ds`` over a period, with the periodized impulse response
+    ``g_T(s) = sum_m r_m e^(lam_m s) / (1 - e^(lam_m T))`` (residues ``r_m`` of the modes),
+    so ``|dT| <= sum_m |r_m| / (1 - e^(lam_m T)) * sum |excess|``, plus the direct
+    feedthrough's ``|D| max |dP|``.
+    """
+    n = len(system.parts)
+    spread = np.sum(np.abs(excess), axis=0).reshape(n)  # J per part over the period
+    bound = np.zeros(len(system.outputs))
+    if system.size:
+        modes = Propagator(system).modes
+        if modes is None:
+            return None
+        rates, vectors, inverse = modes
+        residues = np.abs(system.c @ vectors)[:, :, None] * np.abs(inverse @ system.b[:, :n])
+        periodized = residues / -np.expm1(rates * period)[None, :, None]
+        bound += np.sum(periodized, axis=1) @ spread
+    if np.any(system.d[:, :n] != 0.0) and len(time) > 1:
+        steps = np.maximum(np.diff(time), np.finfo(float).tiny)[:, None]
+        bound += np.abs(system.d[:, :n]) @ np.max(1.5 * np.abs(excess) / steps, axis=0)
+    return bound

@@ -1,0 +1,192 @@
+"""``settle``'s period mean and ripple are verified against ngspice's time points, as ``run``'s.
+
+Closed forms (each derived beside its check):
+
+* a current PULSE train ``I`` with straight edges ``tr``, ``tf`` into a resistor ``R``:
+  ``i^2`` over an edge integrates to a third of its width, so the exact mean power is
+  ``I^2 R (pw + (tr + tf) / 3) / T``; the mean rise of a part with no TCR is ``Rth`` times
+  it (the period mean of ``x' = A x + B u``, README "settle");
+* with edges of a nanosecond the power is a rectangular wave, and a first-order ``Rth``,
+  ``Cth`` driven by it peaks and bottoms at the textbook values of
+  :func:`test_settle.rectangular_train`;
+* a sine of amplitude ``V`` across ``R``: ``Vrms^2 / R = V^2 / 2R``.
+
+The tolerance is ``run``'s (:mod:`heatweave.run.stepcheck`): a mean power within
+``2 reltol`` of itself (``reltol`` = 1e-3, ngspice's default), a temperature within
+``reltol |T| + vntol``.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from heatweave.cli import main
+from heatweave.run import stepcheck
+from heatweave.settle.periodic import Settled, SettleOptions, settle
+from heatweave.thermal.balance import ABSTOL_P
+from test_settle import rectangular_train
+
+pytestmark = pytest.mark.skipif(shutil.which("ngspice") is None, reason="needs ngspice")
+
+RELTOL = 1e-3  # ngspice's default
+RTH, CTH, R, AMBIENT, PERIOD = 10.0, 1e-3, 10.0, 25.0, 1e-3
+ANNOTATION = f"""schema = 1
+[ambient]
+temperature = {AMBIENT}
+[part.R1]
+model = "linear"
+tc1 = 0
+rth = {RTH}
+cth = {CTH}
+power_rating = 100
+"""
+
+
+def pulse_deck(tmp_path: Path, rise: float, width: float, control: bool = False) -> tuple[str, str]:
+    """A 1 A current PULSE train of period 1 ms into R1 (edges *rise*, width *width*)."""
+    deck = tmp_path / "train.cir"
+    extra = ".control\n.endc\n" if control else ""
+    deck.write_text(
+        "current train into a resistor\n"
+        f"I1 0 a PULSE(0 1 0 {rise} {rise} {width} {PERIOD})\n"
+        f"R1 a 0 {R}\n.tran 1u 10m\n{extra}.end\n"
+    )
+    annotation = tmp_path / "train.thermal.toml"
+    annotation.write_text(ANNOTATION)
+    return str(deck), str(annotation)
+
+
+def exact_mean_power(rise: float, width: float) -> float:
+    """``I^2 R (pw + 2 tr / 3) / T`` with I = 1 A (module docstring)."""
+    return R * (width + 2.0 * rise / 3.0) / PERIOD
+
+
+def power_bound(power: float) -> float:
+    """What ``run`` allows a mean power: ``2 reltol`` of it plus the balance's floor."""
+    return 2 * RELTOL * power + ABSTOL_P
+
+
+def notes(settled: Settled, words: str) -> list[str]:
+    return [f.message for f in settled.findings if words in f.message]
+
+
+@pytest.mark.parametrize(
+    ("rise", "width", "tstep"),
+    [(1e-6, 499e-6, None), (1e-6, 499e-6, 2e-6), (100e-6, 400e-6, 5e-6), (20e-6, 300e-6, None)],
+)
+def test_pulse_train_mean_power_and_rise_are_the_closed_form(
+    tmp_path: Path, rise: float, width: float, tstep: float | None
+) -> None:
+    deck, annotation = pulse_deck(tmp_path, rise, width)
+    settled = settle(deck, annotation, SettleOptions(tstep=tstep))
+    (part,) = settled.parts
+    exact = exact_mean_power(rise, width)
+    assert not settled.unverified and not notes(settled, "max step")
+    assert part.power_error is not None
+    # the estimate is the trapezoid against straight-line currents, which the PULSE's
+    # edges are (ngspice steps on their corners): it is the error, to ngspice's accuracy
+    assert abs(part.power - exact) <= part.power_error + 1e-9 * exact
+    assert part.power_error <= power_bound(exact)
+    # mean rise = Rth x mean power; the thermal solve adds nothing
+    assert part.temperature - AMBIENT == pytest.approx(RTH * part.power, rel=1e-12)
+    assert abs(part.temperature - (AMBIENT + RTH * exact)) <= RTH * power_bound(exact)
+
+
+def test_rectangular_train_peak_and_valley_are_the_first_order_closed_form(tmp_path: Path) -> None:
+    # nanosecond edges: the power is a rectangle of 10 W for pw (+ 2/3 ns of edges, 7e-12 J
+    # against Cth: 7e-9 K at most, far below the tolerance)
+    width = 500e-6
+    deck, annotation = pulse_deck(tmp_path, 1e-9, width)
+    settled = settle(deck, annotation, SettleOptions())
+    (part,) = settled.parts
+    mean, peak, valley = rectangular_train(((RTH, RTH * CTH),), R * 1.0, width / PERIOD, PERIOD)
+    assert part.peak_temperature is not None and part.valley_temperature is not None
+    allowed = RELTOL * (AMBIENT + peak) + 1e-6
+    assert part.temperature == pytest.approx(AMBIENT + mean, abs=allowed)
+    assert part.peak_temperature == pytest.approx(AMBIENT + peak, abs=allowed)
+    assert part.valley_temperature == pytest.approx(AMBIENT + valley, abs=allowed)
+
+
+@pytest.mark.parametrize(("tstep", "rerun"), [(None, False), (25e-6, True)])
+def test_sine_drive_mean_power_is_vrms_squared_over_r(
+    tmp_path: Path, tstep: float | None, rerun: bool
+) -> None:
+    deck = tmp_path / "sine.cir"
+    deck.write_text("sine across a resistor\nV1 a 0 SIN(0 10 1k)\nR1 a 0 10\n.tran 1u 5m\n.end\n")
+    annotation = tmp_path / "sine.thermal.toml"
+    annotation.write_text(ANNOTATION)
+    # 40 steps a period: run again finer, at a whole fraction of the period (else the
+    # sine's points land at other phases in successive periods, which then differ)
+    settled = settle(str(deck), str(annotation), SettleOptions(tstep=tstep))
+    (part,) = settled.parts
+    exact = 10.0**2 / 2 / R  # Vrms^2 / R
+    assert not settled.unverified and len(notes(settled, "max step")) == rerun
+    assert abs(part.power - exact) <= power_bound(exact)
+    assert abs(part.temperature - (AMBIENT + RTH * exact)) <= RTH * power_bound(exact)
+
+
+def test_coarse_step_is_run_again_finer_and_then_meets_the_closed_form(tmp_path: Path) -> None:
+    # 100 us edges at 50 us steps: the trapezoid of i^2 on the edges is 0.6 % high
+    rise, width = 100e-6, 400e-6
+    deck, annotation = pulse_deck(tmp_path, rise, width)
+    settled = settle(deck, annotation, SettleOptions(tstep=50e-6))
+    (note,) = notes(settled, "max step")
+    assert "with a 50 us maximum step R1's mean dissipation depends" in note
+    assert not settled.unverified and not notes(settled, "not verified")
+    (part,) = settled.parts
+    exact = exact_mean_power(rise, width)
+    assert abs(part.power - exact) <= power_bound(exact)
+    assert abs(part.temperature - (AMBIENT + RTH * exact)) <= RTH * power_bound(exact)
+    # and the peak against the same deck settled at a fine step given
+    fine = settle(deck, annotation, SettleOptions(tstep=1e-6)).parts[0]
+    assert fine.peak_temperature is not None and part.peak_temperature is not None
+    assert part.peak_temperature == pytest.approx(fine.peak_temperature, abs=0.1)
+
+
+def test_an_unverified_period_warns_and_its_bounds_hold(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    rise, width = 100e-6, 400e-6
+    deck, annotation = pulse_deck(tmp_path, rise, width)
+    monkeypatch.setattr(stepcheck, "MAX_RERUNS", 0)
+    settled = settle(deck, annotation, SettleOptions(tstep=50e-6))
+    (warning,) = notes(settled, "not verified")
+    assert warning.startswith("not verified with a 50 us maximum step: R1's mean dissipation")
+    kinds = {(item.subject, item.kind) for item in settled.unverified}
+    assert kinds == {("R1", "sampling"), ("R1", "ripple")}
+    # the estimates are honest: the figures lie within them of the verified ones
+    (part,) = settled.parts
+    by_kind = {item.kind: item.value for item in settled.unverified}
+    exact = exact_mean_power(rise, width)
+    assert abs(part.power - exact) <= by_kind["sampling"] * (1 + 1e-6)
+    monkeypatch.undo()
+    fine = settle(deck, annotation, SettleOptions(tstep=1e-6)).parts[0]
+    assert part.peak_temperature is not None and fine.peak_temperature is not None
+    assert part.valley_temperature is not None and fine.valley_temperature is not None
+    assert abs(part.peak_temperature - fine.peak_temperature) <= by_kind["ripple"]
+    assert abs(part.valley_temperature - fine.valley_temperature) <= by_kind["ripple"]
+
+
+def test_settle_check_fails_a_period_it_cannot_verify(tmp_path: Path) -> None:
+    # --allow-control: the deck's .control block may drive its own analyses, so no run
+    # again with a smaller step is made (as run): the figures stay unverified
+    deck, annotation = pulse_deck(tmp_path, 100e-6, 400e-6, control=True)
+    out = tmp_path / "out.json"
+    args = ["settle", deck, "-a", annotation, "--tstep", "50u", "--allow-control"]
+    done = CliRunner().invoke(main, [*args, "--check", "--json", str(out)])
+    assert done.exit_code == 1, done.output
+    assert "not verified with a 50 us maximum step" in done.output
+    assert "drives its own analyses" in done.output
+    lines = [line for line in done.output.splitlines() if line.startswith("FAIL")]
+    assert any("R1 sampling" in line for line in lines), done.output
+    assert any("R1 ripple" in line for line in lines), done.output
+    data = json.loads(out.read_text())
+    assert any("not verified" in w for w in data["warnings"])
+    # without --check the warning is printed and the exit status is 0 (as run)
+    plain = CliRunner().invoke(main, args)
+    assert plain.exit_code == 0 and "not verified" in plain.output
