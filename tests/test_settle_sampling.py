@@ -22,16 +22,23 @@ import json
 import shutil
 from pathlib import Path
 
+import numpy as np
 import pytest
 from click.testing import CliRunner
 
 from heatweave.cli import main
+from heatweave.networks import Single
 from heatweave.run import stepcheck
+from heatweave.run.sampling import step_excess
 from heatweave.settle.periodic import Settled, SettleOptions, settle
+from heatweave.settle.thermal import periodic, ripple_bound
 from heatweave.thermal.balance import ABSTOL_P
+from heatweave.thermal.solver import assemble
 from test_settle import rectangular_train
+from test_thermal_solver import AMBIENT as AMBIENT_T
+from test_thermal_solver import MIXED, circuit, part
 
-pytestmark = pytest.mark.skipif(shutil.which("ngspice") is None, reason="needs ngspice")
+needs_ngspice = pytest.mark.skipif(shutil.which("ngspice") is None, reason="needs ngspice")
 
 RELTOL = 1e-3  # ngspice's default
 RTH, CTH, R, AMBIENT, PERIOD = 10.0, 1e-3, 10.0, 25.0, 1e-3
@@ -75,6 +82,7 @@ def notes(settled: Settled, words: str) -> list[str]:
     return [f.message for f in settled.findings if words in f.message]
 
 
+@needs_ngspice
 @pytest.mark.parametrize(
     ("rise", "width", "tstep"),
     [(1e-6, 499e-6, None), (1e-6, 499e-6, 2e-6), (100e-6, 400e-6, 5e-6), (20e-6, 300e-6, None)],
@@ -97,6 +105,7 @@ def test_pulse_train_mean_power_and_rise_are_the_closed_form(
     assert abs(part.temperature - (AMBIENT + RTH * exact)) <= RTH * power_bound(exact)
 
 
+@needs_ngspice
 def test_rectangular_train_peak_and_valley_are_the_first_order_closed_form(tmp_path: Path) -> None:
     # nanosecond edges: the power is a rectangle of 10 W for pw (+ 2/3 ns of edges, 7e-12 J
     # against Cth: 7e-9 K at most, far below the tolerance)
@@ -112,6 +121,7 @@ def test_rectangular_train_peak_and_valley_are_the_first_order_closed_form(tmp_p
     assert part.valley_temperature == pytest.approx(AMBIENT + valley, abs=allowed)
 
 
+@needs_ngspice
 @pytest.mark.parametrize(("tstep", "rerun"), [(None, False), (25e-6, True)])
 def test_sine_drive_mean_power_is_vrms_squared_over_r(
     tmp_path: Path, tstep: float | None, rerun: bool
@@ -130,6 +140,7 @@ def test_sine_drive_mean_power_is_vrms_squared_over_r(
     assert abs(part.temperature - (AMBIENT + RTH * exact)) <= RTH * power_bound(exact)
 
 
+@needs_ngspice
 def test_coarse_step_is_run_again_finer_and_then_meets_the_closed_form(tmp_path: Path) -> None:
     # 100 us edges at 50 us steps: the trapezoid of i^2 on the edges is 0.6 % high
     rise, width = 100e-6, 400e-6
@@ -148,6 +159,7 @@ def test_coarse_step_is_run_again_finer_and_then_meets_the_closed_form(tmp_path:
     assert part.peak_temperature == pytest.approx(fine.peak_temperature, abs=0.1)
 
 
+@needs_ngspice
 def test_an_unverified_period_warns_and_its_bounds_hold(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
@@ -172,6 +184,7 @@ def test_an_unverified_period_warns_and_its_bounds_hold(
     assert abs(part.valley_temperature - fine.valley_temperature) <= by_kind["ripple"]
 
 
+@needs_ngspice
 def test_settle_check_fails_a_period_it_cannot_verify(tmp_path: Path) -> None:
     # --allow-control: the deck's .control block may drive its own analyses, so no run
     # again with a smaller step is made (as run): the figures stay unverified
@@ -190,3 +203,53 @@ def test_settle_check_fails_a_period_it_cannot_verify(tmp_path: Path) -> None:
     # without --check the warning is printed and the exit status is 0 (as run)
     plain = CliRunner().invoke(main, args)
     assert plain.exit_code == 0 and "not verified" in plain.output
+
+
+# -- the ripple bound against the periodic response to the exact power ---------------------
+
+
+def coarse_and_fine(period: float, steps: int, parts: int) -> tuple[np.ndarray, ...]:
+    """Triangle-ish currents (one per part) sampled at *steps* points a period, their
+    power ``i^2`` there, and a grid 400 times finer with the power of the straight-line
+    currents (the parabola the bound is about; straight lines between its points move a
+    temperature by about 1/400^2 of the coarse error)."""
+    time = np.linspace(0.0, period, steps + 1)
+    phase = np.arange(parts)[None, :] * 0.37
+    current = np.abs(((time[:, None] / period + phase) % 1.0) - 0.5) * 4.0 - 0.3
+    fine = np.linspace(0.0, period, steps * 400 + 1)
+    fine_current = np.column_stack([np.interp(fine, time, current[:, k]) for k in range(parts)])
+    return time, current, current**2, fine, fine_current**2
+
+
+@pytest.mark.parametrize("steps", [7, 12, 40])
+def test_ripple_bound_holds_against_the_response_to_the_exact_power(steps: int) -> None:
+    # reference: periodic() on a grid fine enough to carry the parabolas (its own
+    # exactness for straight-line power is checked in test_settle against the closed form)
+    system = assemble(MIXED)
+    period = 0.05
+    time, current, power, fine, fine_power = coarse_and_fine(period, steps, 3)
+    excess = np.column_stack([step_excess(current[:, k], current[:, k], time) for k in range(3)])
+    bound = ripple_bound(system, period, excess, time)
+    assert bound is not None
+    coarse = periodic(system, time, power, AMBIENT_T).outputs
+    exact = periodic(system, fine, fine_power, AMBIENT_T).outputs
+    moved = np.abs(coarse - exact[::400])
+    assert np.all(moved <= bound[None, :])
+    peaks = np.abs(coarse.max(axis=0) - exact.max(axis=0))
+    valleys = np.abs(coarse.min(axis=0) - exact.min(axis=0))
+    assert np.all(peaks <= bound) and np.all(valleys <= bound)
+
+
+def test_ripple_bound_of_a_slow_first_order_part_is_the_mean_shift() -> None:
+    # tau = 1 s over a 10 ms period: every temperature moves by about Rth x the mean
+    # power's error, and the bound is about that (within 1 %)
+    system = assemble(circuit([part("R3", Single(80.0, 1.0 / 80.0))], []))
+    period = 0.01
+    time, current, power, fine, fine_power = coarse_and_fine(period, 9, 1)
+    excess = step_excess(current[:, 0], current[:, 0], time)[:, None]
+    bound = ripple_bound(system, period, excess, time)
+    assert bound is not None
+    coarse = periodic(system, time, power, AMBIENT_T).outputs
+    exact = periodic(system, fine, fine_power, AMBIENT_T).outputs
+    moved = float(np.max(np.abs(coarse - exact[::400])))
+    assert moved <= bound[0] <= 1.01 * moved
