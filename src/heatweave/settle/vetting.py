@@ -100,10 +100,12 @@ def vet_cycle(
         return (step, ran), check(ran)
 
     def snap(step: float) -> float:
-        # a whole fraction of the period: the points of successive periods line up, as
-        # the repeat check compares them (a sine sampled at other phases differs by the
-        # interpolation's (w h)^2 / 8 from one period to the next)
-        return electrical.period / math.ceil(electrical.period / step * (1 - 1e-9))
+        # a whole fraction of the period (to 4 digits): the points of successive periods
+        # line up, as the repeat check compares them (a sine sampled at other phases
+        # differs by the interpolation's (w h)^2 / 8 from one period to the next); the
+        # exact fraction in full digits can land a rounding error past a source's corner,
+        # and ngspice's points then differ from period to period (1 ms / 13 on a PULSE)
+        return float(f"{electrical.period / math.ceil(electrical.period / step - 1e-9):.4g}")
 
     analyses = (electrical.analysis(limits[0]),)
     allow = electrical.options.allow_control
