@@ -27,16 +27,17 @@ import pytest
 from click.testing import CliRunner
 
 from heatweave.cli import main
-from heatweave.networks import Single
+from heatweave.networks import Cauer, Foster, Single
 from heatweave.run import stepcheck
 from heatweave.run.sampling import step_excess
 from heatweave.settle.periodic import Settled, SettleOptions, settle
 from heatweave.settle.thermal import periodic, ripple_bound
 from heatweave.thermal.balance import ABSTOL_P
-from heatweave.thermal.solver import assemble
+from heatweave.thermal.sampled import SampledResponse
+from heatweave.thermal.solver import Propagator, assemble
 from test_settle import rectangular_train
 from test_thermal_solver import AMBIENT as AMBIENT_T
-from test_thermal_solver import MIXED, circuit, part
+from test_thermal_solver import MIXED, board, circuit, part
 
 needs_ngspice = pytest.mark.skipif(shutil.which("ngspice") is None, reason="needs ngspice")
 
@@ -257,3 +258,30 @@ def test_ripple_bound_of_a_slow_first_order_part_is_the_mean_shift() -> None:
     exact = periodic(system, fine, fine_power, AMBIENT_T).outputs
     moved = float(np.max(np.abs(coarse - exact[::400])))
     assert moved <= bound[0] <= 1.01 * moved
+
+
+def test_periodic_state_is_the_exact_response_to_straight_line_power() -> None:
+    # settle.thermal.periodic against thermal.sampled (the exact modal response run's
+    # replay uses) run from rest over 400 periods of the same samples (every time constant
+    # here is under 20 ms: the start has decayed by e^-1000): the last period must be it
+    fast = circuit(
+        [
+            part("R1", Cauer(((5.0, 2e-4), (15.0, 4e-4))), "board"),
+            part("R2", Foster(((12.0, 1e-4), (40.0, 2e-4)))),
+        ],
+        [board(rth=3.0, cth=1e-3)],
+    )
+    system = assemble(fast)
+    assert float(np.max(system.time_constants)) < 0.02
+    period, repeats = 0.05, 400
+    time, _current, power, _fine, _fine_power = coarse_and_fine(period, 23, 2)
+    state = periodic(system, time, power, AMBIENT_T)
+    steps = len(time) - 1
+    long_time = np.concatenate(
+        [time[:-1] + k * period for k in range(repeats)] + [[repeats * period]]
+    )
+    long_power = np.vstack([power[:-1]] * repeats + [power[-1:]])
+    inputs = np.vstack([long_power.T, np.full((1, len(long_time)), AMBIENT_T)])
+    response = SampledResponse(Propagator(system))
+    _, outputs = response.run(system.rest_state(AMBIENT_T), long_time, inputs)
+    np.testing.assert_allclose(outputs[:, -steps - 1 :].T, state.outputs, rtol=0, atol=1e-9)
