@@ -275,17 +275,16 @@ class _Loop:
                 break
             self.landed(t)
             first = float(t[0]) if first is None else first
-            drops = self._drops(start, t.shape[0])
+            inputs = self._inputs(start, t.shape[0])
             self.clock.lap("read")
+            drops = inputs[:n_parts]
             power = window_power(t, drops, self.held)
-            samples = drops / self.held[:, None]  # window_power left the squared drops
+            samples = np.divide(drops, self.held[:, None], out=drops)  # squared by then
             self.keep(t, samples)
             step = float(t[-1] - t[0])
             u = system.inputs(power, self.ambient)
-            inputs = np.vstack((samples, np.full((1, t.shape[0]), self.ambient)))
-            z, at_samples = self.response.run(z, t, inputs)
-            self.hottest = np.maximum(self.hottest, at_samples.max(axis=1))
-            temps = at_samples[:, -1]
+            z, temps, top = self.response.peaks(z, t, inputs)
+            self.hottest = np.maximum(self.hottest, top)
             now, start = float(t[-1]), start + t.shape[0] - 1
             times.append(now)
             ends.append(start)
@@ -324,12 +323,18 @@ class _Loop:
             extremes,
         )
 
-    def _drops(self, start: int, length: int) -> FloatArray:
-        """The voltage across every resistor at the window's *length* samples."""
-        matrix = np.zeros((len(self.nodes) + 1, length))  # last row: ground
-        for k, name in enumerate(self.nodes):
-            matrix[k] = self.tail(name, start, length)
-        return np.asarray(matrix[self.index_a] - matrix[self.index_b])
+    def _inputs(self, start: int, length: int) -> FloatArray:
+        """The thermal inputs' array for the window's *length* samples from *start*: the
+        voltage across every resistor (one row each), then the ambient."""
+        matrix = np.empty((len(self.nodes) + 1, length))
+        matrix[-1] = 0.0  # ground
+        self.session.read_rows(self.nodes, start, matrix[:-1])
+        inputs = np.empty((len(self.probes) + 1, length))
+        drops = inputs[:-1]
+        np.take(matrix, self.index_a, axis=0, out=drops, mode="clip")
+        drops -= np.take(matrix, self.index_b, axis=0, mode="clip")
+        inputs[-1] = self.ambient
+        return inputs
 
     def _signals(
         self, ends: npt.NDArray[np.intp]

@@ -304,6 +304,13 @@ class Session(ABC):
     def samples(self, name: str, start: int = 0, stop: int | None = None) -> FloatArray:
         """Samples ``[start:stop]`` of vector *name* of the running transient (a copy)."""
 
+    def read_rows(self, names: Sequence[str], start: int, out: FloatArray) -> None:
+        """Samples ``start .. start + out.shape[1]`` of each vector of *names* into the
+        rows of *out*, in order (raises as :meth:`samples` does, or when one is shorter)."""
+        stop = start + int(out.shape[1])
+        for row, name in zip(out, names, strict=True):
+            row[:] = self.samples(name, start, stop)
+
     @abstractmethod
     def node_voltages(self) -> dict[str, FloatArray]:
         """Every node voltage of the transient so far, by node name (a copy)."""

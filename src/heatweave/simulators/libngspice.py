@@ -34,6 +34,7 @@ POLL = 0.02
 HALT_GRACE = 2.0
 
 _ENCODING = "utf-8"
+_DOUBLE = ctypes.sizeof(ctypes.c_double)
 
 _SendChar = ctypes.CFUNCTYPE(ctypes.c_int, ctypes.c_char_p, ctypes.c_int, ctypes.c_void_p)
 _SendStat = _SendChar
@@ -299,6 +300,25 @@ class Library:
         data = np.ctypeslib.as_array(info.v_realdata, shape=(length,))
         return int(info.v_type), np.array(data[begin:end], dtype=np.float64)
 
+
+    def read_into(self, name: str, start: int, out: npt.NDArray[np.float64]) -> bool:
+        """Copy samples ``start .. start + len(out)`` of the real vector *name* into *out*
+        (one contiguous row of float64); ``False``, with *out* untouched, when there is no
+        such real vector or it has fewer samples.  One copy, straight from ngspice's memory:
+        the co-simulation reads hundreds of vectors at every window."""
+        if out.dtype != np.float64 or not out.flags.c_contiguous or start < 0:
+            return False
+        pointer = self._lib.ngGet_Vec_Info(name.encode(_ENCODING, "surrogateescape"))
+        if not pointer:
+            return False
+        info = pointer.contents
+        count = int(out.shape[0])
+        if info.v_compdata or not info.v_realdata or start + count > int(info.v_length):
+            return False
+        if count:
+            source = ctypes.cast(info.v_realdata, ctypes.c_void_p).value or 0
+            ctypes.memmove(out.ctypes.data, source + start * _DOUBLE, count * _DOUBLE)
+        return True
 
 MISSING_HINT = (
     "install it with 'apt-get install libngspice0-dev', set HEATWEAVE_LIBNGSPICE to the "

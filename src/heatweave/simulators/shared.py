@@ -353,6 +353,15 @@ class SharedSession(Session):
             raise SimulatorError(f"ngspice has no vector {name!r} during the co-simulation")
         return np.ascontiguousarray(found[1].real, dtype=np.float64)
 
+    def read_rows(self, names: Sequence[str], start: int, out: FloatArray) -> None:
+        """See :meth:`Session.read_rows`: each row copied once, straight from ngspice's
+        memory (:meth:`Library.read_into`); a vector it cannot copy so takes
+        :meth:`samples`."""
+        stop = start + int(out.shape[1])
+        for row, name in zip(out, names, strict=True):
+            if not self._library.read_into(name, start, row):
+                row[:] = self.samples(name, start, stop)
+
     def node_voltages(self) -> dict[str, FloatArray]:
         """See :meth:`Session.node_voltages`."""
         return self._signals(VOLTAGE, "v(")

@@ -16,26 +16,74 @@ stretches short enough (:data:`SPAN` of the fastest time constant) that ``1 / E`
 overflow.  This is the window mean's response plus the ripple's response, by superposition
 (the network is linear), so every temperature at every sample is the network's state for
 the power ngspice computed, and its largest value is the instantaneous peak.
+
+For speed the arithmetic runs on arrays of samples x modes (a running sum down the rows
+of such an array is a vector add per row), a stretch fitting the processor's cache; a
+simulator repeats a few step lengths, so the step weights are computed once per distinct
+length in a window; and the sparse matrices ``V^-1 B`` and ``C V`` are applied as a few
+column gathers (:class:`SparseRows`).
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 
 import numpy as np
 import numpy.typing as npt
-from scipy.sparse import csr_matrix
 
 from heatweave.thermal.solver import Propagator
 
 FloatArray = npt.NDArray[np.float64]
+IndexArray = npt.NDArray[np.intp]
 
 #: A stretch of one summation spans at most this many of the fastest time constants.
 SPAN = 30.0
-#: A stretch's arrays (modes x steps) hold about this many numbers (a few 100 kB).
+#: A stretch's arrays (steps x modes) hold about this many numbers (a few 100 kB).
 CACHE_WORDS = 32768
 #: Below this |x| the phi functions come from their series (their formulas cancel).
 SERIES_BELOW = 0.05
+
+
+class SparseRows:
+    """A matrix ``M`` with few nonzeros a row, applied to samples in rows: ``X -> X M^T``.
+
+    Row ``r``'s ``k``-th nonzero goes into slot ``k``; a slot is one column gather, one
+    product and one sum over all rows that have that many nonzeros (the rows are taken in
+    the order of decreasing count, so each slot's rows are a leading block).  The sum of a
+    row runs over its nonzeros in column order, from zero, as a CSR product's does.
+    """
+
+    def __init__(self, matrix: FloatArray) -> None:
+        m = np.asarray(matrix, dtype=np.float64)
+        self.rows, self.columns = int(m.shape[0]), int(m.shape[1])
+        counts = np.count_nonzero(m, axis=1)
+        order = np.argsort(-counts, kind="stable")
+        #: Where each row ended up, when the order is not the natural one.
+        self.back: IndexArray | None = None
+        if np.any(order != np.arange(self.rows)):
+            self.back = np.argsort(order)
+        where_row, where_col = np.nonzero(m[order])
+        starts = np.searchsorted(where_row, np.arange(self.rows))
+        rank = np.arange(where_row.shape[0]) - starts[where_row]  # k of each nonzero
+        self.slots: list[tuple[int, IndexArray, FloatArray]] = []
+        for k in range(int(counts.max(initial=0))):
+            pick = rank == k  # rows in order, so these are rows 0 .. size - 1
+            cols = where_col[pick]
+            rows = order[where_row[pick]]
+            self.slots.append((int(cols.shape[0]), cols, m[rows, cols]))
+
+    def apply(self, x: FloatArray) -> FloatArray:
+        """``x M^T`` for *x* of samples x columns (C order): samples x rows."""
+        out = np.zeros((x.shape[0], self.rows))
+        for k, (size, cols, values) in enumerate(self.slots):
+            term = np.take(x, cols, axis=1)
+            term *= values
+            if k == 0 and size == self.rows:
+                out = term
+            else:
+                out[:, :size] += term
+        return out if self.back is None else np.take(out, self.back, axis=1)
 
 
 class SampledResponse:
@@ -50,10 +98,18 @@ class SampledResponse:
         if modes is None:
             raise ValueError("the thermal network has no well-conditioned modes")
         system = propagator.system
-        self.rates, self.vectors, self.inverse = modes
-        self.forcing = csr_matrix(self.inverse @ system.b)  # block structure: mostly zeros
-        self.readout = csr_matrix(system.c @ self.vectors)
-        self.direct = system.d if np.any(system.d != 0.0) else None
+        rates, vectors, inverse = modes
+        forcing = inverse @ system.b
+        # Modes by decreasing number of inputs, so that the forcing's slots need no
+        # reordering (the modes' order is free).
+        order = np.argsort(-np.count_nonzero(forcing, axis=1), kind="stable")
+        self.rates = np.ascontiguousarray(rates[order])
+        self.vectors = np.ascontiguousarray(vectors[:, order])
+        self.inverse = np.ascontiguousarray(inverse[order])
+        self.forcing = SparseRows(forcing[order])
+        self.readout = SparseRows(system.c @ self.vectors)
+        self.direct = SparseRows(system.d) if np.any(system.d != 0.0) else None
+        self.outputs = int(system.c.shape[0])
         self.fastest = float(np.max(-self.rates)) if self.rates.size else 0.0
         # Steps per stretch: a stretch's arrays stay within the processor's cache.
         self.chunk = max(16, CACHE_WORDS // max(self.rates.size, 1))
@@ -62,29 +118,70 @@ class SampledResponse:
         self, z0: FloatArray, times: FloatArray, inputs: FloatArray
     ) -> tuple[FloatArray, FloatArray]:
         """``(state at the last time, outputs at every time)`` from state *z0* at
-        ``times[0]``, for *inputs* (one column of ``u`` per time, straight lines between)."""
-        outputs = np.empty((self.readout.shape[0], times.shape[0]))
-        w = self.inverse @ z0
-        if self.rates.size == 0:
-            outputs[:] = 0.0
-        else:
-            start, last = 0, times.shape[0] - 1
-            while True:
-                stop = self._stretch_end(times, start)
-                forcing = np.asarray(self.forcing @ inputs[:, start : stop + 1])
-                states = self._stretch(w, times[start : stop + 1], forcing)
-                outputs[:, start : stop + 1] = self.readout @ states
-                w = states[:, -1]
-                if stop >= last:
-                    break
-                start = stop
-        if self.direct is not None:
-            outputs += self.direct @ inputs
-        return np.asarray(self.vectors @ w), outputs
+        ``times[0]``, for *inputs* (one column of ``u`` per time, straight lines between).
+        The outputs have one row per output (a view of an array of samples x outputs)."""
+        outputs = np.empty((times.shape[0], self.outputs))
 
-    def _stretch_end(self, times: FloatArray, start: int) -> int:
+        def store(start: int, block: FloatArray) -> None:
+            outputs[start : start + block.shape[0]] = block
+
+        return self._sweep(z0, times, inputs, store), outputs.T
+
+    def peaks(
+        self, z0: FloatArray, times: FloatArray, inputs: FloatArray
+    ) -> tuple[FloatArray, FloatArray, FloatArray]:
+        """``(state at the last time, outputs there, each output's largest value at any
+        time)``: what :meth:`run` gives, without keeping every output."""
+        top = np.full(self.outputs, -np.inf)
+        last = [top]
+
+        def note(start: int, block: FloatArray) -> None:
+            np.maximum(top, block.max(axis=0), out=top)
+            last[0] = block[-1]
+
+        state = self._sweep(z0, times, inputs, note)
+        return state, np.array(last[0]), top
+
+    def _sweep(
+        self,
+        z0: FloatArray,
+        times: FloatArray,
+        inputs: FloatArray,
+        sink: Callable[[int, FloatArray], None],
+    ) -> FloatArray:
+        """Hand *sink* the outputs stretch by stretch (first sample's index, samples x
+        outputs, every sample once); return the state at the last time.  *inputs* may be
+        either memory order: a stretch of it is copied into samples x inputs."""
+        samples = inputs.T
+        w = self.inverse @ np.asarray(z0, dtype=np.float64)
+        n = times.shape[0]
+        if self.rates.size == 0 or n < 2:
+            sink(0, self._outputs(w[None, :], np.ascontiguousarray(samples[:1])))
+            return np.asarray(self.vectors @ w)
+        lengths, which = np.unique(np.diff(times), return_inverse=True)
+        weights = self.weights(lengths)
+        start, last = 0, n - 1
+        while start < last:
+            stop = self.stretch_end(times, start)
+            part = np.ascontiguousarray(samples[start : stop + 1])
+            forcing = self.forcing.apply(part)
+            states = self.stretch(w, times[start : stop + 1], forcing, weights, which[start:stop])
+            skip = 0 if start == 0 else 1  # the stretch's first sample ended the last one
+            sink(start + skip, self._outputs(states[skip:], part[skip:]))
+            w = states[-1]
+            start = stop
+        return np.asarray(self.vectors @ w)
+
+    def _outputs(self, states: FloatArray, inputs: FloatArray) -> FloatArray:
+        """The outputs (samples x outputs) for modal *states* and *inputs* (samples x)."""
+        out = self.readout.apply(states)
+        if self.direct is not None:
+            out += self.direct.apply(inputs)
+        return out
+
+    def stretch_end(self, times: FloatArray, start: int) -> int:
         """The last sample of the stretch from *start*: at least one step, at most
-        :data:`SPAN` fastest time constants long."""
+        :data:`SPAN` fastest time constants and :attr:`chunk` steps long."""
         last = int(times.shape[0]) - 1
         if start >= last:
             return last
@@ -92,28 +189,44 @@ class SampledResponse:
         stop = int(np.searchsorted(times, limit, side="right")) - 1
         return int(min(max(stop, start + 1), last, start + self.chunk))
 
-    def _stretch(self, w0: FloatArray, times: FloatArray, forcing: FloatArray) -> FloatArray:
-        """Modal states (modes x samples) over one stretch (see the module docstring)."""
-        rates = self.rates
-        if times.shape[0] < 2:
-            return w0[:, None].copy()
-        dt = np.diff(times)
-        first, second = step_weights(np.multiply.outer(rates, dt))
-        if times.shape[0] == 2:  # one step: no running sum (e^x may underflow to 0)
-            step = np.exp(rates * dt[0]) * w0
-            step += dt[0] * (forcing[:, 0] * first[:, 0] + forcing[:, 1] * second[:, 0])
-            return np.column_stack((w0, step))
-        growth = np.exp(np.multiply.outer(rates, times[1:] - times[0]))  # E_k >= e^-SPAN
-        states = np.empty((rates.shape[0], times.shape[0]))
-        states[:, 0] = w0
-        rest = states[:, 1:]
-        np.multiply(first, forcing[:, :-1], out=rest)
-        second *= forcing[:, 1:]
-        rest += second
-        rest *= dt
+    def weights(self, lengths: FloatArray) -> tuple[FloatArray, FloatArray, FloatArray]:
+        """Per distinct step length (rows) and mode (columns): ``e^x`` and the weights of
+        a step's two end samples, ``dt (phi1 - phi2)`` and ``dt phi2``."""
+        x = np.multiply.outer(lengths, self.rates)
+        first, second = step_weights(x)
+        first *= lengths[:, None]
+        second *= lengths[:, None]
+        return np.exp(x), first, second
+
+    def stretch(
+        self,
+        w0: FloatArray,
+        times: FloatArray,
+        forcing: FloatArray,
+        weights: tuple[FloatArray, FloatArray, FloatArray],
+        which: IndexArray,
+    ) -> FloatArray:
+        """Modal states (samples x modes) over one stretch from *w0* at ``times[0]`` (see
+        the module docstring); step ``k`` has the weights of row ``which[k]``."""
+        decay, first, second = weights
+        states = np.empty((times.shape[0], w0.shape[0]))
+        states[0] = w0
+        rest = states[1:]
+        if which.shape[0] == 1:  # one step: no running sum (e^x may underflow to 0)
+            k = int(which[0])
+            np.multiply(decay[k], w0, out=rest[0])
+            rest[0] += first[k] * forcing[0] + second[k] * forcing[1]
+            return states
+        np.take(first, which, axis=0, out=rest)
+        rest *= forcing[:-1]
+        late = np.take(second, which, axis=0)
+        late *= forcing[1:]
+        rest += late
+        growth = np.multiply.outer(times[1:] - times[0], self.rates, out=late)
+        np.exp(growth, out=growth)  # E_k >= e^-SPAN
         rest /= growth  # beta_k / E_{k+1}
-        np.cumsum(rest, axis=1, out=rest)
-        rest += w0[:, None]
+        np.cumsum(rest, axis=0, out=rest)
+        rest += w0
         rest *= growth
         return states
 
