@@ -341,17 +341,7 @@ class _Loop:
     ) -> tuple[dict[str, FloatArray], dict[str, FloatArray], dict[str, tuple[float, float]]]:
         """Every node voltage and branch current of the transient at the window ends, and
         each one's ``(min, max)`` over every time point (keys ``v(NAME)``, ``i(NAME)``)."""
-        found: tuple[dict[str, FloatArray], dict[str, FloatArray]] = ({}, {})
-        extremes: dict[str, tuple[float, float]] = {}
-        for kind, table, out in zip(
-            "vi", (self.session.node_voltages(), self.session.branch_currents()), found,
-            strict=True,
-        ):  # fmt: skip
-            for name, values in table.items():
-                out[name] = values[np.minimum(ends, values.shape[0] - 1)].copy()
-                if values.shape[0]:
-                    extremes[f"{kind}({name})"] = (float(values.min()), float(values.max()))
-        return found[0], found[1], extremes
+        return self.session.signals_at(ends)
 
     def _stats(self) -> str:
         return self.session.stats()

@@ -284,6 +284,26 @@ class Simulator(ABC):
         )
 
 
+#: Node voltages and branch currents at chosen samples (by node or device name), and every
+#: signal's ``(min, max)`` keyed ``v(NAME)`` or ``i(NAME)``.
+SignalSummary = tuple[dict[str, FloatArray], dict[str, FloatArray], dict[str, tuple[float, float]]]
+
+
+def summarise(
+    tables: tuple[Mapping[str, FloatArray], Mapping[str, FloatArray]], at: npt.NDArray[np.intp]
+) -> SignalSummary:
+    """The :data:`SignalSummary` of node voltages and branch currents *tables* (each
+    name's samples): copies of the samples *at*, clipped to the last, and the extremes."""
+    found: tuple[dict[str, FloatArray], dict[str, FloatArray]] = ({}, {})
+    extremes: dict[str, tuple[float, float]] = {}
+    for kind, table, out in zip("vi", tables, found, strict=True):
+        for name, values in table.items():
+            out[name] = values[np.minimum(at, values.shape[0] - 1)]
+            if values.shape[0]:
+                extremes[f"{kind}({name})"] = (float(values.min()), float(values.max()))
+    return found[0], found[1], extremes
+
+
 class Session(ABC):
     """A loaded circuit whose transient runs in parts: :meth:`advance` to a pause,
     :meth:`alter` element values, :meth:`advance` again (ngspice's ``resume``)."""
@@ -310,6 +330,12 @@ class Session(ABC):
         stop = start + int(out.shape[1])
         for row, name in zip(out, names, strict=True):
             row[:] = self.samples(name, start, stop)
+
+    def signals_at(self, at: npt.NDArray[np.intp]) -> SignalSummary:
+        """Every node voltage and branch current at the samples *at* (clipped to each
+        one's last sample), and each one's ``(min, max)`` over all its samples
+        (:func:`summarise`)."""
+        return summarise((self.node_voltages(), self.branch_currents()), at)
 
     @abstractmethod
     def node_voltages(self) -> dict[str, FloatArray]:

@@ -61,6 +61,19 @@ class _VectorInfo(ctypes.Structure):
     ]
 
 
+class _VectorAddresses(ctypes.Structure):
+    """``struct vector_info`` with its data pointers as plain addresses (for copying)."""
+
+    _fields_ = [
+        ("v_name", ctypes.c_void_p),
+        ("v_type", ctypes.c_int),
+        ("v_flags", ctypes.c_short),
+        ("v_realdata", ctypes.c_void_p),
+        ("v_compdata", ctypes.c_void_p),
+        ("v_length", ctypes.c_int),
+    ]
+
+
 _Strings = ctypes.POINTER(ctypes.c_char_p)
 
 
@@ -138,6 +151,11 @@ class Library:
         lib.ngGet_Vec_Info.argtypes = [ctypes.c_char_p]
         lib.ngSpice_SetBkpt.restype = ctypes.c_bool
         lib.ngSpice_SetBkpt.argtypes = [ctypes.c_double]
+        # The same function once more, its answer read as addresses (lib[name] is a new
+        # function object, so the binding above keeps its own types).
+        self._addresses = lib["ngGet_Vec_Info"]
+        self._addresses.restype = ctypes.POINTER(_VectorAddresses)
+        self._addresses.argtypes = [ctypes.c_char_p]
 
     # --- callbacks (called from ngspice, possibly in its background thread) -----------
 
@@ -300,31 +318,58 @@ class Library:
         data = np.ctypeslib.as_array(info.v_realdata, shape=(length,))
         return int(info.v_type), np.array(data[begin:end], dtype=np.float64)
 
-
-    def read_into(self, name: str, start: int, out: npt.NDArray[np.float64]) -> bool:
-        """Copy samples ``start .. start + len(out)`` of the real vector *name* into *out*
-        (one contiguous row of float64); ``False``, with *out* untouched, when there is no
-        such real vector or it has fewer samples.  One copy, straight from ngspice's memory:
-        the co-simulation reads hundreds of vectors at every window."""
-        if out.dtype != np.float64 or not out.flags.c_contiguous or start < 0:
-            return False
-        pointer = self._lib.ngGet_Vec_Info(name.encode(_ENCODING, "surrogateescape"))
+    def view(
+        self, name: str
+    ) -> tuple[int, npt.NDArray[np.float64] | npt.NDArray[np.complex128]] | None:
+        """What :meth:`vector` gives for all samples, but the values are a read-only view
+        of ngspice's own memory, not a copy: good only until ngspice next runs or frees
+        the vector, so to be read at once (the co-simulation's summary of every signal)."""
+        pointer = self._addresses(name.encode(_ENCODING, "surrogateescape"))
         if not pointer:
-            return False
+            return None
         info = pointer.contents
-        count = int(out.shape[0])
-        if info.v_compdata or not info.v_realdata or start + count > int(info.v_length):
-            return False
-        if count:
-            source = ctypes.cast(info.v_realdata, ctypes.c_void_p).value or 0
-            ctypes.memmove(out.ctypes.data, source + start * _DOUBLE, count * _DOUBLE)
-        return True
+        length = int(info.v_length)
+        values: npt.NDArray[Any]
+        if info.v_compdata and length:
+            pairs = (ctypes.c_double * (2 * length)).from_address(info.v_compdata)
+            values = np.ctypeslib.as_array(pairs).view(np.complex128)
+        elif info.v_realdata and length and not info.v_compdata:
+            values = np.ctypeslib.as_array((ctypes.c_double * length).from_address(info.v_realdata))
+        else:
+            values = np.zeros(0, dtype=np.complex128 if info.v_compdata else np.float64)
+        values.flags.writeable = False
+        return int(info.v_type), values
+
+    def read_rows(
+        self, names: Sequence[str], start: int, out: npt.NDArray[np.float64]
+    ) -> list[int]:
+        """Copy samples ``start .. start + out.shape[1]`` of each real vector of *names*
+        into the rows of *out* (float64, C order, a row per name), straight from ngspice's
+        memory: the co-simulation reads hundreds of vectors at every window.  Returns the
+        positions of the names it could not copy so (no such real vector, fewer samples),
+        their rows untouched."""
+        if out.dtype != np.float64 or not out.flags.c_contiguous or start < 0:
+            return list(range(len(names)))
+        count = int(out.shape[1])
+        base, stride, size = int(out.ctypes.data), int(out.strides[0]), count * _DOUBLE
+        offset = start * _DOUBLE
+        locate = self._addresses
+        missed = []
+        for k, name in enumerate(names):
+            pointer = locate(name.encode(_ENCODING, "surrogateescape"))
+            info = pointer.contents if pointer else None
+            usable = info is not None and info.v_realdata and not info.v_compdata
+            if info is None or not usable or start + count > info.v_length:
+                missed.append(k)
+            elif size:
+                ctypes.memmove(base + k * stride, info.v_realdata + offset, size)
+        return missed
+
 
 MISSING_HINT = (
     "install it with 'apt-get install libngspice0-dev', set HEATWEAVE_LIBNGSPICE to the "
     "library's path, or use --backend batch"
 )
-
 
 
 def _loadable(path: str) -> ctypes.CDLL:

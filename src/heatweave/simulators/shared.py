@@ -30,6 +30,7 @@ from pathlib import Path
 from typing import ClassVar
 
 import numpy as np
+import numpy.typing as npt
 
 from heatweave import files
 from heatweave.errors import LibngspiceMissingError, SimulatorError
@@ -42,6 +43,7 @@ from .base import (
     Plot,
     Progress,
     Session,
+    SignalSummary,
     SimResult,
     Simulator,
     check_analysis,
@@ -49,6 +51,7 @@ from .base import (
     input_folder,
     place_init_file,
     private_environment,
+    summarise,
     timed_out,
     working_folder,
 )
@@ -355,12 +358,13 @@ class SharedSession(Session):
 
     def read_rows(self, names: Sequence[str], start: int, out: FloatArray) -> None:
         """See :meth:`Session.read_rows`: each row copied once, straight from ngspice's
-        memory (:meth:`Library.read_into`); a vector it cannot copy so takes
+        memory (:meth:`Library.read_rows`); a vector it cannot copy so takes
         :meth:`samples`."""
+        if len(names) != out.shape[0]:
+            raise ValueError(f"{len(names)} names for {out.shape[0]} rows")
         stop = start + int(out.shape[1])
-        for row, name in zip(out, names, strict=True):
-            if not self._library.read_into(name, start, row):
-                row[:] = self.samples(name, start, stop)
+        for k in self._library.read_rows(names, start, out):
+            out[k] = self.samples(names[k], start, stop)
 
     def node_voltages(self) -> dict[str, FloatArray]:
         """See :meth:`Session.node_voltages`."""
@@ -370,13 +374,20 @@ class SharedSession(Session):
         """See :meth:`Session.branch_currents`."""
         return self._signals(CURRENT, "i(")
 
-    def _signals(self, kind: str, head: str) -> dict[str, FloatArray]:
-        """The real vectors of type *kind* named ``head...)``, by the name inside."""
+    def signals_at(self, at: npt.NDArray[np.intp]) -> SignalSummary:
+        """See :meth:`Session.signals_at`; read through views of ngspice's memory
+        (:meth:`Library.view`), with no copy of the whole vectors."""
+        voltages = self._signals(VOLTAGE, "v(", copy=False)
+        return summarise((voltages, self._signals(CURRENT, "i(", copy=False)), at)
+
+    def _signals(self, kind: str, head: str, copy: bool = True) -> dict[str, FloatArray]:
+        """The real vectors of type *kind* named ``head...)``, by the name inside; copies,
+        or views good until ngspice runs again."""
         library = self._library
         plot = library.current_plot()
         out: dict[str, FloatArray] = {}
         for raw in library.vector_names(plot):
-            found = library.vector(f"{plot}.{raw}")
+            found = library.vector(f"{plot}.{raw}") if copy else library.view(f"{plot}.{raw}")
             if found is None or _VECTOR_TYPES.get(found[0]) != kind:
                 continue
             if np.iscomplexobj(found[1]):

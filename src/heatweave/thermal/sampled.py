@@ -48,10 +48,12 @@ SERIES_BELOW = 0.05
 class SparseRows:
     """A matrix ``M`` with few nonzeros a row, applied to samples in rows: ``X -> X M^T``.
 
-    Row ``r``'s ``k``-th nonzero goes into slot ``k``; a slot is one column gather, one
-    product and one sum over all rows that have that many nonzeros (the rows are taken in
-    the order of decreasing count, so each slot's rows are a leading block).  The sum of a
-    row runs over its nonzeros in column order, from zero, as a CSR product's does.
+    Row ``r``'s ``k``-th nonzero goes into slot ``k``; a slot is one product and one sum
+    over all rows that have that many nonzeros (the rows are taken in the order of
+    decreasing count, so each slot's rows are a leading block), on a block of columns of
+    ``X`` when the slot's columns run consecutively, on one column when they are all the
+    same, else on a gather of them.  The sum of a row runs over its nonzeros in column
+    order, from zero, as a CSR product's does.
     """
 
     def __init__(self, matrix: FloatArray) -> None:
@@ -66,23 +68,39 @@ class SparseRows:
         where_row, where_col = np.nonzero(m[order])
         starts = np.searchsorted(where_row, np.arange(self.rows))
         rank = np.arange(where_row.shape[0]) - starts[where_row]  # k of each nonzero
-        self.slots: list[tuple[int, IndexArray, FloatArray]] = []
+        self.slots: list[tuple[slice | int | IndexArray, FloatArray]] = []
         for k in range(int(counts.max(initial=0))):
             pick = rank == k  # rows in order, so these are rows 0 .. size - 1
             cols = where_col[pick]
-            rows = order[where_row[pick]]
-            self.slots.append((int(cols.shape[0]), cols, m[rows, cols]))
+            values = m[order[where_row[pick]], cols]
+            first = int(cols[0])
+            if np.all(cols == first):
+                self.slots.append((first, values))
+            elif np.array_equal(cols, np.arange(first, first + cols.shape[0])):
+                self.slots.append((slice(first, first + cols.shape[0]), values))
+            else:
+                self.slots.append((cols, values))
 
     def apply(self, x: FloatArray) -> FloatArray:
-        """``x M^T`` for *x* of samples x columns (C order): samples x rows."""
-        out = np.zeros((x.shape[0], self.rows))
-        for k, (size, cols, values) in enumerate(self.slots):
-            term = np.take(x, cols, axis=1)
-            term *= values
-            if k == 0 and size == self.rows:
-                out = term
+        """``x M^T`` for *x* of samples x columns: samples x rows."""
+        out: FloatArray | None = None
+        for cols, values in self.slots:
+            if isinstance(cols, int):
+                term = np.multiply.outer(x[:, cols], values)
+            elif isinstance(cols, slice):
+                term = x[:, cols] * values
             else:
-                out[:, :size] += term
+                term = np.take(x, cols, axis=1)
+                term *= values
+            size = values.shape[0]
+            if out is None and size == self.rows:
+                out = term
+                continue
+            if out is None:
+                out = np.zeros((x.shape[0], self.rows))
+            out[:, :size] += term
+        if out is None:
+            return np.zeros((x.shape[0], self.rows))
         return out if self.back is None else np.take(out, self.back, axis=1)
 
 
