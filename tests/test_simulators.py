@@ -34,6 +34,7 @@ from heatweave.simulators import (
     Simulator,
     get_simulator,
 )
+from heatweave.simulators.base import summarise
 from heatweave.simulators.shared import DEBIAN_LIBRARY, ENV_LIBRARY
 
 FIXTURES = Path(__file__).parent / "fixtures" / "sim"
@@ -441,6 +442,39 @@ def test_session_pauses_alters_and_resumes() -> None:
     assert vcap[len(first) - 1] == pytest.approx(1.0 - np.exp(-first[-1] / 1e-3), abs=1e-5)
     assert time[-1] == pytest.approx(3e-3, rel=1e-9)
     np.testing.assert_array_equal(voltages["cap"], vcap)
+
+
+def test_session_reads_rows_and_summaries_as_its_copies_give_them() -> None:
+    # read_rows copies straight from ngspice's memory and signals_at reads views of it:
+    # both must give exactly what the copying accessors give, and the capacitor charging
+    # through 1 kOhm (tau 1 ms) follows 1 - exp(-t / 1 ms) up to 1 ms (first-order step
+    # response, standard circuit theory, from memory).
+    simulator = make("shared")
+    with simulator.session(RC_PLAIN, cwd=FIXTURES, timeout=30) as session:
+        session.advance("tran 5u 3m 0 5u uic", 1e-3)
+        first = float(session.samples("time")[0])  # uic: the first point is after 0
+        count = session.samples("time").shape[0]
+        rows = np.full((2, count - 3), np.nan)
+        session.read_rows(["cap", "in"], 3, rows)
+        np.testing.assert_array_equal(rows[0], session.samples("cap", 3))
+        np.testing.assert_array_equal(rows[1], session.samples("in", 3))
+        for names, out in ((["nosuch"], rows[:1]), (["cap"], np.zeros((1, count + 1)))):
+            with pytest.raises(SimulatorError):
+                session.read_rows(names, 0, out)  # no such vector; more than it holds
+        ends = np.array([0, count // 2, count - 1, count + 5])
+        voltages, currents, extremes = session.signals_at(ends)
+        copies = session.node_voltages(), session.branch_currents()
+        want = summarise(copies, ends)
+    assert voltages.keys() == want[0].keys() and currents.keys() == want[1].keys()
+    for name, values in voltages.items():
+        np.testing.assert_array_equal(values, want[0][name])
+    for name, values in currents.items():
+        np.testing.assert_array_equal(values, want[1][name])
+    assert extremes == want[2]
+    low, high = extremes["v(cap)"]
+    assert low == pytest.approx(1.0 - np.exp(-first / 1e-3), rel=1e-4)
+    assert high == pytest.approx(1.0 - np.exp(-1.0), abs=2e-3)  # 1 ms + at most one step
+    assert "i(vstep)" in extremes
 
 
 def test_session_timeout_halts_the_transient_and_the_next_run_works() -> None:

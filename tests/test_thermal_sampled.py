@@ -10,7 +10,13 @@ References:
 * the ramp response of the same network, ``T - Ta = k R (t - tau (1 - e^{-t/tau}))`` for
   ``P = k t`` (Laplace transform of ``k / s^2`` through ``R / (1 + s tau)``; common practice);
 * scipy.integrate.solve_ivp (Radau, tight tolerances) on the assembled ODE of a mixed
-  network (Cauer, Foster, shared nodes, a coupling) under the piecewise-linear input.
+  network (Cauer, Foster, shared nodes, a coupling) under the piecewise-linear input;
+* scipy.linalg.expm of the augmented matrix ``[[A, B, 0], [0, 0, I], [0, 0, 0]]``, whose
+  exponential carries ``(z, u, du/dt)`` exactly across a step where ``u`` is a straight
+  line (C. Van Loan, "Computing integrals involving the matrix exponential", IEEE Trans.
+  Automatic Control 23 (1978); the same construction as for a held input, one order up),
+  step by step with no shared arithmetic with the modal solver;
+* the matrix product itself (numpy, dense) for :class:`SparseRows`.
 """
 
 from __future__ import annotations
@@ -21,11 +27,12 @@ from fractions import Fraction
 import numpy as np
 import pytest
 import scipy.integrate
+import scipy.linalg
 
-from heatweave.networks import Single
-from heatweave.thermal.sampled import SampledResponse, step_weights
+from heatweave.networks import Foster, Single
+from heatweave.thermal.sampled import SampledResponse, SparseRows, step_weights
 from heatweave.thermal.solver import Propagator, assemble
-from test_thermal_solver import AMBIENT, MIXED, circuit, part
+from test_thermal_solver import AMBIENT, MIXED, board, circuit, part
 
 RTH, CTH = 50.0, 6e-4
 TAU = RTH * CTH
@@ -118,3 +125,98 @@ def test_step_weights_meet_their_formulas(scale: float) -> None:
         two = (em1 - v) / (v * v)
         assert second[k] == pytest.approx(float(two), rel=1e-13)
         assert first[k] == pytest.approx(float(em1 / v - two), rel=1e-13)
+
+
+def exact_by_expm(system, z0: np.ndarray, t: np.ndarray, u: np.ndarray) -> np.ndarray:
+    """Outputs at every time, stepping ``(z, u, du/dt)`` with expm of the augmented matrix
+    (Van Loan 1978), one matrix exponential per distinct step length."""
+    n, q = system.a.shape[0], system.b.shape[1]
+    big = np.zeros((n + 2 * q, n + 2 * q))
+    big[:n, :n], big[:n, n : n + q], big[n : n + q, n + q :] = system.a, system.b, np.eye(q)
+    found: dict[float, np.ndarray] = {}
+    z, out = z0, [system.temperatures(z0, u[:, 0])]
+    for k in range(1, t.shape[0]):
+        h = float(t[k] - t[k - 1])
+        if h not in found:
+            found[h] = scipy.linalg.expm(big * h)
+        slope = (u[:, k] - u[:, k - 1]) / h
+        z = (found[h] @ np.concatenate((z, u[:, k - 1], slope)))[:n]
+        out.append(system.temperatures(z, u[:, k]))
+    return np.array(out).T
+
+
+# A ngspice-like grid: steps of a few lengths repeated (the weights are made once per
+# length), windows longer than a cache-sized stretch and than SPAN fastest time constants.
+def simulator_grid(stop: float, seed: int) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    steps = rng.choice([1e-4, 2.5e-4, 1e-3, 3e-5], size=int(stop / 3e-4), p=[0.5, 0.2, 0.2, 0.1])
+    return np.concatenate(([0.0], np.cumsum(steps)))
+
+
+def stretches(response: SampledResponse, t: np.ndarray) -> int:
+    count, start = 0, 0
+    while start < t.shape[0] - 1:
+        start, count = response.stretch_end(t, start), count + 1
+    return count
+
+
+FEEDTHROUGH = circuit(  # a board without heat capacity: temperatures follow the power at once
+    [part("R1", Foster(((10.0, 0.1),)), "board"), part("R2", Single(30.0, 2e-4))],
+    [board(rth=30.0, cth=0.0)],
+)
+
+
+@pytest.mark.parametrize(("net", "stop"), [(MIXED, 1.5), (FEEDTHROUGH, 0.6)])
+def test_every_sample_matches_the_augmented_matrix_exponential(net, stop: float) -> None:
+    system = assemble(net)
+    response = SampledResponse(Propagator(system))
+    t = simulator_grid(stop, seed=4)
+    assert stretches(response, t) >= 3
+    rng = np.random.default_rng(5)
+    n_parts = len(system.parts)
+    power = np.abs(np.sin(np.outer(np.arange(1, n_parts + 1), t) * 40.0)) * 2.0
+    power += rng.uniform(0.0, 0.3, power.shape)
+    u = np.vstack([power, AMBIENT + 3.0 * np.sin(5.0 * t)[None, :]])  # the ambient moves too
+    z0 = system.rest_state(AMBIENT) + np.linspace(0.0, 4.0, system.size)
+    want = exact_by_expm(system, z0, t, u)
+    rise = np.abs(want - AMBIENT).max()
+    z_end, temps = response.run(z0, t, u)
+    np.testing.assert_allclose(temps, want, rtol=0, atol=1e-10 * rise)
+    # the same from inputs stored samples-first (what a caller may hand over)
+    z_f, temps_f = response.run(z0, t, np.asfortranarray(u))
+    np.testing.assert_allclose(temps_f, want, rtol=0, atol=1e-10 * rise)
+    # peaks: the state, the last outputs and each output's largest sample, as run gives
+    z_p, last, top = response.peaks(z0, t, u)
+    np.testing.assert_allclose(last, want[:, -1], rtol=0, atol=1e-10 * rise)
+    np.testing.assert_allclose(top, want.max(axis=1), rtol=0, atol=1e-10 * rise)
+    np.testing.assert_array_equal(z_p, z_end)
+    np.testing.assert_array_equal(z_f, z_end)
+    assert system.temperatures(z_end, u[:, -1]) == pytest.approx(want[:, -1], abs=1e-10 * rise)
+
+
+def test_one_sample_is_the_outputs_of_the_start() -> None:
+    system = assemble(MIXED)
+    z0 = system.rest_state(AMBIENT) + 1.0
+    u = system.inputs([0.3, 0.2, 0.1], AMBIENT)[:, None]
+    z, temps = SampledResponse(Propagator(system)).run(z0, np.array([0.0]), u)
+    np.testing.assert_allclose(temps[:, 0], system.temperatures(z0, u[:, 0]), rtol=1e-13)
+    np.testing.assert_allclose(z, z0, rtol=1e-13)
+
+
+def test_sparse_rows_is_the_matrix_product() -> None:
+    # Rows with 0 to 4 nonzeros, out of order; slots on consecutive columns, on one column
+    # and on scattered ones: x M^T against numpy's dense product.
+    m = np.zeros((7, 9))
+    m[0, [1, 4, 5, 8]] = [1.5, -2.0, 0.25, 3.0]
+    m[2, 8] = 7.0
+    m[3, [0, 8]] = [-1.0, 2.0]
+    m[4, [1, 8]] = [4.0, 0.5]
+    m[5, [2, 3, 8]] = [1e-3, 9.0, -6.0]
+    m[6, 8] = 1.0  # row 1 stays empty
+    x = np.random.default_rng(6).normal(size=(13, 9))
+    np.testing.assert_allclose(SparseRows(m).apply(x), x @ m.T, rtol=1e-14, atol=1e-14)
+    diagonal = np.diag(np.arange(1.0, 6.0))  # one slot on consecutive columns
+    ambient = np.hstack((diagonal, np.full((5, 1), 0.5)))  # and one on a single column
+    y = x[:, :6]
+    np.testing.assert_allclose(SparseRows(ambient).apply(y), y @ ambient.T, rtol=1e-14)
+    np.testing.assert_array_equal(SparseRows(np.zeros((3, 4))).apply(x[:, :4]), 0.0)

@@ -24,7 +24,7 @@ from typing import ClassVar
 import numpy as np
 import numpy.typing as npt
 
-from heatweave.errors import SimulationTimeoutError, UsageError
+from heatweave.errors import SimulationTimeoutError, SimulatorError, UsageError
 from heatweave.processes import signals_deferred
 
 from .naming import vector_name
@@ -329,7 +329,13 @@ class Session(ABC):
         rows of *out*, in order (raises as :meth:`samples` does, or when one is shorter)."""
         stop = start + int(out.shape[1])
         for row, name in zip(out, names, strict=True):
-            row[:] = self.samples(name, start, stop)
+            values = self.samples(name, start, stop)
+            if values.shape[0] != row.shape[0]:
+                raise SimulatorError(
+                    f"ngspice's vector {name!r} has {start + values.shape[0]} samples during "
+                    f"the co-simulation, not the {stop} its time has"
+                )
+            row[:] = values
 
     def signals_at(self, at: npt.NDArray[np.intp]) -> SignalSummary:
         """Every node voltage and branch current at the samples *at* (clipped to each

@@ -362,9 +362,8 @@ class SharedSession(Session):
         :meth:`samples`."""
         if len(names) != out.shape[0]:
             raise ValueError(f"{len(names)} names for {out.shape[0]} rows")
-        stop = start + int(out.shape[1])
         for k in self._library.read_rows(names, start, out):
-            out[k] = self.samples(names[k], start, stop)
+            super().read_rows(names[k : k + 1], start, out[k : k + 1])
 
     def node_voltages(self) -> dict[str, FloatArray]:
         """See :meth:`Session.node_voltages`."""
