@@ -200,13 +200,17 @@ class _Loop:
         start too, to interpolate it)."""
         if power.size:
             self.peak = np.maximum(self.peak, power.max(axis=1))
-        if self.tail_time.shape[0]:  # a window starts at the last one's final sample
+        held = max(self.tail_time.shape[0] - 1, 0)  # a window starts at the last one's end
+        if held:
             t = np.concatenate((self.tail_time[:-1], t))
-            power = np.concatenate((self.tail_power[:, :-1], power), axis=1)
         first = t.shape[0] - 1
         if self.period is not None:
             first = max(int(np.searchsorted(t, t[-1] - self.period, side="right")) - 1, 0)
-        self.tail_time, self.tail_power = t[first:].copy(), power[:, first:].copy()
+        if first >= held:  # the window alone holds the period: join nothing
+            power = power[:, first - held :]
+        else:
+            power = np.concatenate((self.tail_power[:, first:-1], power), axis=1)
+        self.tail_time, self.tail_power = t[first:].copy(), np.array(power)
 
     def landing(self, now: float, until: float | None) -> FloatArray:
         """The corners the next part of the transient must land on: those after *now* up to
