@@ -145,11 +145,20 @@ def exact_by_expm(system, z0: np.ndarray, t: np.ndarray, u: np.ndarray) -> np.nd
     return np.array(out).T
 
 
-# A ngspice-like grid: steps of a few lengths repeated (the weights are made once per
-# length), windows longer than a cache-sized stretch and than SPAN fastest time constants.
+# A ngspice-like grid: runs of equal steps (a run over a whole stretch takes the tables
+# kept per step length), and stretches of mixed steps (the general path); windows longer
+# than a cache-sized stretch and than SPAN fastest time constants.  Dyadic step lengths
+# keep every difference of the times exact.
 def simulator_grid(stop: float, seed: int) -> np.ndarray:
     rng = np.random.default_rng(seed)
-    steps = rng.choice([1e-4, 2.5e-4, 1e-3, 3e-5], size=int(stop / 3e-4), p=[0.5, 0.2, 0.2, 0.1])
+    lengths = [2.0**-13, 2.0**-11, 3 * 2.0**-14, 5 * 2.0**-16]
+    steps: list[float] = []
+    while sum(steps) < stop:
+        if rng.uniform() < 0.5:  # one length for 0.05 .. 0.4 s
+            length = float(rng.choice(lengths))
+            steps += [length] * int(rng.uniform(0.05, 0.4) / length)
+        else:
+            steps += [float(x) for x in rng.choice(lengths, size=int(rng.integers(50, 800)))]
     return np.concatenate(([0.0], np.cumsum(steps)))
 
 
@@ -192,6 +201,7 @@ def test_every_sample_matches_the_augmented_matrix_exponential(net, stop: float)
     np.testing.assert_array_equal(z_p, z_end)
     np.testing.assert_array_equal(z_f, z_end)
     assert system.temperatures(z_end, u[:, -1]) == pytest.approx(want[:, -1], abs=1e-10 * rise)
+    assert len(response._even) > 0  # runs of one length took the kept tables
 
 
 def test_one_sample_is_the_outputs_of_the_start() -> None:

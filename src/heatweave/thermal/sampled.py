@@ -20,8 +20,10 @@ the power ngspice computed, and its largest value is the instantaneous peak.
 For speed the arithmetic runs on arrays of samples x modes (a running sum down the rows
 of such an array is a vector add per row), a stretch fitting the processor's cache; a
 simulator repeats a few step lengths, so the step weights are computed once per distinct
-length in a window; and the sparse matrices ``V^-1 B`` and ``C V`` are applied as a few
-column gathers (:class:`SparseRows`).
+length in a window, and a stretch of equal steps (most of them) takes ``beta``'s weights
+over ``E`` and ``E`` itself from tables kept per step length; the sparse matrices
+``V^-1 B`` and ``C V`` are applied as a few column blocks or gathers (:class:`SparseRows`).
+The engine asks only for each output's peak and last value (:meth:`SampledResponse.peaks`).
 """
 
 from __future__ import annotations
@@ -43,6 +45,12 @@ SPAN = 30.0
 CACHE_WORDS = 32768
 #: Below this |x| the phi functions come from their series (their formulas cancel).
 SERIES_BELOW = 0.05
+#: At most this many step lengths' tables are kept (:meth:`SampledResponse.even`).
+EVEN_KEPT = 16
+
+#: A window's distinct step lengths, and per length (rows) and mode: ``e^x``, and the
+#: weights of a step's start and end samples.
+Weights = tuple[FloatArray, FloatArray, FloatArray, FloatArray]
 
 
 class SparseRows:
@@ -131,6 +139,7 @@ class SampledResponse:
         self.fastest = float(np.max(-self.rates)) if self.rates.size else 0.0
         # Steps per stretch: a stretch's arrays stay within the processor's cache.
         self.chunk = max(16, CACHE_WORDS // max(self.rates.size, 1))
+        self._even: dict[float, tuple[FloatArray, FloatArray, FloatArray]] = {}
 
     def run(
         self, z0: FloatArray, times: FloatArray, inputs: FloatArray
@@ -207,34 +216,60 @@ class SampledResponse:
         stop = int(np.searchsorted(times, limit, side="right")) - 1
         return int(min(max(stop, start + 1), last, start + self.chunk))
 
-    def weights(self, lengths: FloatArray) -> tuple[FloatArray, FloatArray, FloatArray]:
-        """Per distinct step length (rows) and mode (columns): ``e^x`` and the weights of
-        a step's two end samples, ``dt (phi1 - phi2)`` and ``dt phi2``."""
+    def weights(self, lengths: FloatArray) -> Weights:
+        """Per distinct step length (rows) and mode (columns): the lengths, ``e^x`` and the
+        weights of a step's two end samples, ``dt (phi1 - phi2)`` and ``dt phi2``."""
         x = np.multiply.outer(lengths, self.rates)
         first, second = step_weights(x)
         first *= lengths[:, None]
         second *= lengths[:, None]
-        return np.exp(x), first, second
+        return lengths, np.exp(x), first, second
+
+    def even(self, weights: Weights, row: int) -> tuple[FloatArray, FloatArray, FloatArray]:
+        """For a run of steps all of length ``lengths[row]``: step ``k``'s end weights
+        divided by ``E_{k+1}``, and ``E_{k+1} = e^{rate (k+1) dt}`` itself (steps x modes),
+        as far as a stretch can reach.  Kept per step length: a simulator steps mostly at
+        a few lengths, so these are made once and each stretch only multiplies and sums."""
+        dt = float(weights[0][row])
+        found = self._even.get(dt)
+        if found is None:
+            rows = min(self.chunk, int(SPAN / (self.fastest * dt)) + 1)  # e^x >= e^-2 SPAN
+            growth = np.exp(np.multiply.outer(np.arange(1.0, rows + 1.0) * dt, self.rates))
+            found = (weights[2][row] / growth, weights[3][row] / growth, growth)
+            if len(self._even) >= EVEN_KEPT:
+                self._even.clear()
+            self._even[dt] = found
+        return found
 
     def stretch(
         self,
         w0: FloatArray,
         times: FloatArray,
         forcing: FloatArray,
-        weights: tuple[FloatArray, FloatArray, FloatArray],
+        weights: Weights,
         which: IndexArray,
     ) -> FloatArray:
         """Modal states (samples x modes) over one stretch from *w0* at ``times[0]`` (see
         the module docstring); step ``k`` has the weights of row ``which[k]``."""
-        decay, first, second = weights
+        _, decay, first, second = weights
         states = np.empty((times.shape[0], w0.shape[0]))
         states[0] = w0
         rest = states[1:]
-        if which.shape[0] == 1:  # one step: no running sum (e^x may underflow to 0)
+        steps = which.shape[0]
+        if steps == 1:  # one step: no running sum (e^x may underflow to 0)
             k = int(which[0])
             np.multiply(decay[k], w0, out=rest[0])
             rest[0] += first[k] * forcing[0] + second[k] * forcing[1]
             return states
+        if which[0] == which[-1] and np.all(which == which[0]):
+            early, late_weight, growth = self.even(weights, int(which[0]))
+            if growth.shape[0] >= steps:
+                np.multiply(forcing[:-1], early[:steps], out=rest)
+                rest += forcing[1:] * late_weight[:steps]  # beta_k / E_{k+1}
+                np.cumsum(rest, axis=0, out=rest)
+                rest += w0
+                rest *= growth[:steps]
+                return states
         np.take(first, which, axis=0, out=rest)
         rest *= forcing[:-1]
         late = np.take(second, which, axis=0)
