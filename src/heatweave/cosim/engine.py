@@ -165,6 +165,14 @@ def cosimulate(
         return _Loop(session, plan).run()
 
 
+def rows(index: Sequence[int]) -> slice | npt.NDArray[np.intp]:
+    """Row numbers to pick: a slice (a view, no copy) when they run consecutively."""
+    found = np.array(index, dtype=np.intp)
+    if found.shape[0] and np.array_equal(found, np.arange(found[0], found[0] + found.shape[0])):
+        return slice(int(found[0]), int(found[0]) + found.shape[0])
+    return found
+
+
 class _Loop:
     """One co-simulation's state between windows."""
 
@@ -179,11 +187,15 @@ class _Loop:
         self.response = SampledResponse(Propagator(system))  # ValueError: no modes
         tau_min = float(system.time_constants[0])
         self.rule = WindowRule(plan.tolerance, tau_min, min_window=tran.tstep)
-        self.nodes = sorted({n for p in probes for n in (p.node_a, p.node_b) if n is not None})
+        # The terminals read at every window: first ends in the resistors' order, then the
+        # second ends not among them, then ground; a chain of resistors then takes its
+        # drops as the difference of two blocks of rows, without gathering any.
+        ends = [p.node_a for p in probes] + [p.node_b for p in probes]
+        self.nodes = list(dict.fromkeys(n for n in ends if n is not None))
         row = {name: k for k, name in enumerate(self.nodes)}
         ground = len(self.nodes)
-        self.index_a = np.array([row.get(p.node_a, ground) if p.node_a else ground for p in probes])
-        self.index_b = np.array([row.get(p.node_b, ground) if p.node_b else ground for p in probes])
+        self.index_a = rows([row[p.node_a] if p.node_a else ground for p in probes])
+        self.index_b = rows([row[p.node_b] if p.node_b else ground for p in probes])
         self.held = np.zeros(self.bank.size)
         self.period = plan.period
         self.corners = plan.corners
@@ -334,9 +346,7 @@ class _Loop:
         matrix[-1] = 0.0  # ground
         self.session.read_rows(self.nodes, start, matrix[:-1])
         inputs = np.empty((len(self.probes) + 1, length))
-        drops = inputs[:-1]
-        np.take(matrix, self.index_a, axis=0, out=drops, mode="clip")
-        drops -= np.take(matrix, self.index_b, axis=0, mode="clip")
+        np.subtract(matrix[self.index_a], matrix[self.index_b], out=inputs[:-1])
         inputs[-1] = self.ambient
         return inputs
 
