@@ -85,14 +85,24 @@ MAX_INPUT_BYTES = 1 << 30
 
 
 def _at_most(handle: BinaryIO, path: str | os.PathLike[str]) -> bytes:
-    """All of *handle*, refused when it holds more than :data:`MAX_INPUT_BYTES`."""
-    data = handle.read(MAX_INPUT_BYTES + 1)
-    if len(data) > MAX_INPUT_BYTES:
-        raise UnreadableInputError(
-            f"cannot read {path}: it holds more than {MAX_INPUT_BYTES} bytes",
-            hint="split it into files of their own (a deck can .include them)",
-        )
-    return data
+    """All of *handle*, refused when it holds more than :data:`MAX_INPUT_BYTES`.
+
+    Read in chunks: one ``read(MAX_INPUT_BYTES + 1)`` allocates a buffer of the limit
+    (1 GiB) for a file of any size before shrinking it."""
+    chunks: list[bytes] = []
+    size = 0
+    while chunk := handle.read(min(_CHUNK, MAX_INPUT_BYTES + 1 - size)):
+        chunks.append(chunk)
+        size += len(chunk)
+        if size > MAX_INPUT_BYTES:
+            raise UnreadableInputError(
+                f"cannot read {path}: it holds more than {MAX_INPUT_BYTES} bytes",
+                hint="split it into files of their own (a deck can .include them)",
+            )
+    return chunks[0] if len(chunks) == 1 else b"".join(chunks)
+
+
+_CHUNK = 1 << 20
 
 
 def _kind(mode: int) -> str:
