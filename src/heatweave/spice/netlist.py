@@ -29,11 +29,13 @@ from heatweave.spice.syntax import ElementSyntax
 
 _NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[A-Za-z]*"
 _NODE = r"[^\s,=()'{}\"\[\]<>~%]+"
-#: A resistor card in its plainest form: name, two nodes, a number, numeric key=value pairs.
+#: A resistor card in its plainest form: name, two nodes, a number, numeric key=value pairs
+#: (at most 16: the regex engine keeps a frame per repetition, about 1.5 kB, so an unbounded
+#: run of pairs on a long card took 365 MiB a megabyte; longer cards take the general path).
 #: Such a card is valid for the grammar too, so the rewrite path may skip the full parse.
+_PAIRS = rf"((?:[ \t]+[A-Za-z_]\w*[ \t]*=[ \t]*{_NUM}){{0,16}})"
 SIMPLE_RESISTOR = re.compile(
-    rf"[ \t]*[Rr]{_NODE}[ \t]+({_NODE})[ \t]+({_NODE})[ \t]+({_NUM})"
-    rf"((?:[ \t]+[A-Za-z_]\w*[ \t]*=[ \t]*{_NUM})*)[ \t]*$"
+    rf"[ \t]*[Rr]{_NODE}[ \t]+({_NODE})[ \t]+({_NODE})[ \t]+({_NUM}){_PAIRS}[ \t]*$"
 )
 _PAIR = re.compile(rf"([A-Za-z_]\w*)[ \t]*=[ \t]*({_NUM})")
 # The same on a card's raw text, for a one-line card without comment characters (``;``,
@@ -41,7 +43,7 @@ _PAIR = re.compile(rf"([A-Za-z_]\w*)[ \t]*=[ \t]*({_NUM})")
 _RAW_NODE = r"[^\s,=()'{}\"\[\]<>~%;$/]+"
 _SIMPLE_RAW = re.compile(
     rf"[ \t]*[Rr]{_RAW_NODE}[ \t]+({_RAW_NODE})[ \t]+({_RAW_NODE})[ \t]+({_NUM})"
-    rf"((?:[ \t]+[A-Za-z_]\w*[ \t]*=[ \t]*{_NUM})*)[ \t]*\n?\Z"
+    rf"{_PAIRS}[ \t]*\n?\Z"
 )
 
 
@@ -64,13 +66,15 @@ MODEL_ENDS_NODES = {"Q": 3, "M": 4, "N": 2}
 
 def positional_spans(card: Card) -> list[tuple[str, int, int]]:
     """(field, start, end) of the fields before the first ``key=value``, name excluded."""
-    logical = card.logical().text
-    spans = [(m.group(0), m.start(), m.end()) for m in _FIELD.finditer(logical)]
-    out = []
-    for i, span in enumerate(spans[1:], start=1):
-        if span[0] == "=" or (i + 1 < len(spans) and spans[i + 1][0] == "="):
+    found = _FIELD.finditer(card.logical().text)
+    next(found, None)  # the name
+    out: list[tuple[str, int, int]] = []
+    for m in found:  # lazily: a long card's pairs are never listed
+        if m.group(0) == "=":
+            if out:
+                out.pop()  # the key before it
             break
-        out.append(span)
+        out.append((m.group(0), m.start(), m.end()))
     return out
 
 
