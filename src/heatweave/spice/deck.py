@@ -16,6 +16,7 @@ that text only for the cards that need it.
 from __future__ import annotations
 
 import bisect
+import functools
 import re
 import unicodedata
 from collections.abc import Iterator
@@ -52,6 +53,9 @@ class SourceFile:
     text: str
     _newlines: list[int] = field(default_factory=list, repr=False)
     quotable: bool = True
+    # Each line's text made once: every finding on a long line shares it (a copy each was
+    # 2.4 GB for 25,000 findings on one 100 kB card).
+    _lines: dict[int, str] = field(default_factory=dict, repr=False)
 
     def position(self, offset: int) -> tuple[int, int]:
         """1-based (line, column) of a character offset in the file."""
@@ -64,10 +68,14 @@ class SourceFile:
 
     def line_text(self, line: int) -> str:
         """The text of a 1-based line, without its line ending."""
+        known = self._lines.get(line)
+        if known is not None:
+            return known
         self.position(0)
         start = self._newlines[line - 2] + 1 if line > 1 else 0
         end = self._newlines[line - 1] if line - 1 < len(self._newlines) else len(self.text)
-        return self.text[start:end].rstrip("\r")
+        known = self._lines[line] = self.text[start:end].rstrip("\r")
+        return known
 
     def location(self, offset: int) -> Location:
         """A :class:`Location` for a character offset, with the source line."""
@@ -91,8 +99,7 @@ class Logical:
 
     def physical(self, offset: int) -> tuple[int, int]:
         """(line index within the card, 0-based column) of a logical offset."""
-        starts = [p[0] for p in self.pieces]
-        i = max(bisect.bisect_right(starts, offset) - 1, 0)
+        i = max(bisect.bisect_right(self.pieces, offset, key=_first) - 1, 0)
         start, line, column = self.pieces[i]
         return line, column + (offset - start)
 
@@ -178,33 +185,7 @@ class Card:
 
     def logical(self) -> Logical:
         """Join continuation lines and cut inline comments, as ngspice reads the card."""
-        text = self.text
-        newline = text.find("\n")
-        if newline < 0 or newline == len(text) - 1:  # one physical line: the common case
-            line = text[:newline] if newline >= 0 else text
-            body = line.rstrip("\r").lstrip(" \t")
-            content = strip_inline_comment(body).rstrip(" \t")
-            return Logical(content, ((0, 0, len(line) - len(line.lstrip(" \t"))),))
-        pieces: list[tuple[int, int, int]] = []
-        chunks: list[str] = []
-        length = 0
-        for index, raw in enumerate(self.physical_lines()):
-            body = raw.lstrip(" \t")
-            indent = len(raw) - len(body)
-            if index == 0:
-                column = indent
-            elif body.startswith("+"):
-                body = body[1:]
-                column = indent + 1
-                chunks.append(" ")
-                length += 1
-            else:  # a comment or blank line between continuations
-                continue
-            content = strip_inline_comment(body)
-            pieces.append((length, index, column))
-            chunks.append(content)
-            length += len(content)
-        return Logical("".join(chunks).rstrip(" \t"), tuple(pieces))
+        return _logical(self.text)
 
     def fields(self) -> list[str]:
         """The card's fields split as ngspice splits them (blanks, ``,``, ``=``, ``(``, ``)``),
@@ -217,8 +198,7 @@ class Card:
         if self.source is None:
             return None
         line_index, column = self.logical().physical(logical_offset)
-        lines = self.text.split("\n")
-        before = sum(len(x) + 1 for x in lines[:line_index])
+        before = _line_starts(self.text)[line_index] if line_index else 0
         return self.source.location(self.offset + before + column)
 
     def with_text(self, text: str) -> Card:
@@ -235,6 +215,48 @@ class Card:
             out.append(marker + line)
         text = "".join(out)
         return text if text.endswith("\n") else text + "\n"
+
+
+@functools.lru_cache(maxsize=64)
+def _logical(text: str) -> Logical:
+    """:meth:`Card.logical` of a card's *text*, kept for the last cards asked about: lint
+    asks once per finding, and a card of a megabyte took milliseconds each time."""
+    newline = text.find("\n")
+    if newline < 0 or newline == len(text) - 1:  # one physical line: the common case
+        line = text[:newline] if newline >= 0 else text
+        body = line.rstrip("\r").lstrip(" \t")
+        content = strip_inline_comment(body).rstrip(" \t")
+        return Logical(content, ((0, 0, len(line) - len(line.lstrip(" \t"))),))
+    pieces: list[tuple[int, int, int]] = []
+    chunks: list[str] = []
+    length = 0
+    for index, raw in enumerate(split_lines(text)):
+        body = raw.lstrip(" \t")
+        indent = len(raw) - len(body)
+        if index == 0:
+            column = indent
+        elif body.startswith("+"):
+            body = body[1:]
+            column = indent + 1
+            chunks.append(" ")
+            length += 1
+        else:  # a comment or blank line between continuations
+            continue
+        content = strip_inline_comment(body)
+        pieces.append((length, index, column))
+        chunks.append(content)
+        length += len(content)
+    return Logical("".join(chunks).rstrip(" \t"), tuple(pieces))
+
+
+@functools.lru_cache(maxsize=64)
+def _line_starts(text: str) -> tuple[int, ...]:
+    """Where each physical line of a card's *text* starts (for :meth:`Card.location`)."""
+    return (0, *(m.end() for m in re.finditer("\n", text)))
+
+
+def _first(piece: tuple[int, int, int]) -> int:
+    return piece[0]
 
 
 _FIELD = re.compile(r"\{(?:[^{}]|\{[^{}]*\})*\}|'[^']*'|\"[^\"]*\"|[^\s,=()'{\"]+|=")
