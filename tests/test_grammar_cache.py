@@ -23,8 +23,9 @@ import pytest
 from heatweave.errors import EXIT_INTERRUPTED, EXIT_TERMINATED
 from heatweave.spice.grammar import grammar_dir
 
-# A diode card needs the grammar (the plain R/V cards of the other tests may not).
-DECK = "diode\nV1 a 0 DC 1\nR1 a k 1k\nD1 k 0 dmod\n.model dmod D(is=1e-14)\n.op\n.end\n"
+# A brace value needs the grammar: plain cards, words and key=value pairs only, are read
+# without it (spice.cardscan).
+DECK = "diode\nV1 a 0 DC 1\nR1 a k {1k}\nD1 k 0 dmod\n.model dmod D(is=1e-14)\n.op\n.end\n"
 
 # Runs the command line with lark's save() sending a signal to this very process after
 # writing part of the file (signal name in argv[1], deck in argv[2]).

@@ -52,7 +52,7 @@ from heatweave.spice.syntax import (
     classify,
 )
 
-__all__ = ["BuildError", "ToSyntax", "use_text"]
+__all__ = ["BuildError", "ToSyntax", "make_call", "make_group", "use_text"]
 
 _LOCAL = threading.local()
 
@@ -96,14 +96,11 @@ class ToSyntax(Transformer[LarkToken, Any]):
     # -- field rules ----------------------------------------------------------------------
     def call(self, children: list[Any]) -> Call:
         name, group = children
-        args = tuple(f for f in group.items if not isinstance(f, Param))
-        params = tuple(f for f in group.items if isinstance(f, Param))
-        return Call(self.text[name.offset : group.end], name.offset, name, args, params)
+        return make_call(name, group, self.text)
 
     def group(self, children: list[Any]) -> Group:
         start, end = children[0].start_pos, children[-1].end_pos
-        items = join_fields(children[1:-1], self.text)
-        return Group(self.text[start:end], start, tuple(items))
+        return make_group(start, end, children[1:-1], self.text)
 
     def vector(self, children: list[Any]) -> Port:
         nodes: list[Token] = []
@@ -209,6 +206,18 @@ class ToSyntax(Transformer[LarkToken, Any]):
     def other_dot(self, children: list[Any]) -> CardSyntax:
         keyword, *fields = children
         return build_dot(keyword, fields, self.text)
+
+
+def make_call(name: Token, group: Group, text: str) -> Call:
+    """``name(args)``: the group's pairs become the call's params, the rest its args."""
+    args = tuple(f for f in group.items if not isinstance(f, Param))
+    params = tuple(f for f in group.items if isinstance(f, Param))
+    return Call(text[name.offset : group.end], name.offset, name, args, params)
+
+
+def make_group(start: int, end: int, fields: list[Field], text: str) -> Group:
+    """The parenthesised group ``text[start:end]`` holding *fields*."""
+    return Group(text[start:end], start, tuple(join_fields(fields, text)))
 
 
 def _first_name(fields: list[Field]) -> Token | None:

@@ -17,6 +17,7 @@ from typing import TYPE_CHECKING, cast
 
 from heatweave.errors import DeckSyntaxError
 from heatweave.spice.cardbuild import BuildError, ToSyntax, use_text
+from heatweave.spice.cardscan import scan_card
 from heatweave.spice.deck import Card
 from heatweave.spice.syntax import TRANSIENT_FUNCTIONS, Call, CardSyntax, Token, Value
 from heatweave.spice.tablecache import with_kept_tables
@@ -87,8 +88,9 @@ def parse_card(text: str) -> CardSyntax:
 
     use_text(text)
     try:
+        # A plain card (words and key=value pairs) skips lark: same syntax, linear time.
         # The inline transformer makes parse() return syntax objects, not a Tree.
-        result = cast(CardSyntax, parser().parse(text))
+        result = scan_card(text) or cast(CardSyntax, parser().parse(text))
     except UnexpectedInput as exc:
         error = _describe(exc, text)
         closed = _closed(text)
