@@ -19,7 +19,7 @@ import re
 from typing import Any
 
 from heatweave.spice.cardbuild import ToSyntax, make_call, make_group
-from heatweave.spice.syntax import CardSyntax, Field, Token, classify
+from heatweave.spice.syntax import CardSyntax, Field, Param, Token, classify
 
 # A word no rule joins to its neighbours (heatweave.spice.cardfields): no operator at
 # either end, no separator, bracket, brace or quote anywhere.
@@ -91,12 +91,11 @@ def _fields(text: str, pos: int) -> tuple[list[Field], int]:
     fields: list[Field] = []
     match = _ITEM.match
     while (found := match(text, pos)) is not None:
-        word = classify(found.group(1), found.start(1))
-        value = found.group(2)
+        word, value = found.group(1, 2)
         if value is None:
-            fields.append(word)
-        else:
-            fields.append(_BUILD.pair([word, classify(value, found.start(2))]))
+            fields.append(classify(word, found.start(1)))
+        else:  # what ToSyntax.pair makes of two plain words
+            fields.append(Param(Token(word, found.start(1)), classify(value, found.start(2))))
         pos = found.end()
     return fields, pos
 
