@@ -7,7 +7,7 @@ here the cards are evaluated in passes until nothing more can be computed.
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 
 from heatweave.spice.deck import Card
@@ -26,19 +26,18 @@ class ParamDef:
     offset: int  # of the value in the card's logical text
 
 
-def param_defs(card: Card) -> list[ParamDef]:
-    """The assignments of a ``.param`` card (none when it does not parse)."""
+def param_defs(card: Card) -> Iterator[ParamDef]:
+    """The assignments of a ``.param`` card (none when it does not parse), one at a time:
+    a card of a million pairs is read four times by lint, never held as a list."""
     logical = card.logical().text
     try:
         syntax = parse_card(logical)
     except CardSyntaxError:
-        return []
+        return
     if not isinstance(syntax, ParamCardSyntax):
-        return []
-    return [
-        ParamDef(p.key.key, logical[p.value.offset : p.value.end], card, p.value.offset)
-        for p in syntax.params
-    ]
+        return
+    for p in syntax.params:
+        yield ParamDef(p.key.key, logical[p.value.offset : p.value.end], card, p.value.offset)
 
 
 def func_def(card: Card) -> Func | None:
@@ -55,20 +54,20 @@ def func_def(card: Card) -> Func | None:
 
 def values(cards: Iterable[Card]) -> tuple[dict[str, float], dict[str, Func]]:
     """Numeric values of the ``.param`` cards among *cards* and their ``.func`` cards."""
-    defs: list[ParamDef] = []
+    params: list[Card] = []
     funcs: dict[str, Func] = {}
     for card in cards:
         name = card.name
         if name == ".param":
-            defs.extend(param_defs(card))
+            params.append(card)
         elif name == ".func":
             func = func_def(card)
             if func is not None:
                 funcs[func.name] = func
-    return solve(defs, funcs), funcs
+    return solve((d for card in params for d in param_defs(card)), funcs), funcs
 
 
-def solve(defs: list[ParamDef], funcs: dict[str, Func]) -> dict[str, float]:
+def solve(defs: Iterable[ParamDef], funcs: dict[str, Func]) -> dict[str, float]:
     """Evaluate *defs* in passes (a later definition of a name wins, as in ngspice)."""
     last = {d.name: d for d in defs}
     known: dict[str, float] = {}

@@ -64,8 +64,9 @@ NODE_COUNT = {
 MODEL_ENDS_NODES = {"Q": 3, "M": 4, "N": 2}
 
 
-def positional_spans(card: Card) -> list[tuple[str, int, int]]:
-    """(field, start, end) of the fields before the first ``key=value``, name excluded."""
+def positional_spans(card: Card, most: int | None = None) -> list[tuple[str, int, int]]:
+    """(field, start, end) of the fields before the first ``key=value``, name excluded;
+    the first *most* of them when given."""
     found = _FIELD.finditer(card.logical().text)
     next(found, None)  # the name
     out: list[tuple[str, int, int]] = []
@@ -74,13 +75,17 @@ def positional_spans(card: Card) -> list[tuple[str, int, int]]:
             if out:
                 out.pop()  # the key before it
             break
+        if len(out) == most:  # the field after the last one kept is known not to be a key
+            break
         out.append((m.group(0), m.start(), m.end()))
     return out
 
 
 def _node_spans(card: Card, index: DeckIndex | None) -> list[tuple[str, int, int]]:
     letter = card.letter
-    fields = positional_spans(card)
+    count = NODE_COUNT.get(letter)
+    fixed = count is not None and letter not in "DUXK" and letter not in MODEL_ENDS_NODES
+    fields = positional_spans(card, count if fixed else None)
     if letter == "X":
         nodes, _sub, _params = x_card_parts(card)
         return fields[: len(nodes)]
@@ -96,7 +101,6 @@ def _node_spans(card: Card, index: DeckIndex | None) -> list[tuple[str, int, int
             if text.lower() in models:
                 return fields[:i]
         return fields[: MODEL_ENDS_NODES[letter]]
-    count = NODE_COUNT.get(letter)
     if letter == "K":  # K couples two inductors it names: no terminals (3.3.12)
         return []
     if count is None or (letter == "U" and _digital_gate(fields)):
