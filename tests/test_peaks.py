@@ -168,3 +168,27 @@ def test_probe_min_max_are_over_every_time_point(tmp_path: Path, method: str) ->
     series = outcome.results.voltage_series["a"]
     if method == "cosim":  # the series are window ends: the premise of this test
         assert float(np.max(series)) < near and float(np.min(series)) > -near
+
+
+# A deck with no capacitor and no inductor under uic: nothing is charged at t = 0, so the
+# warning speaks of the instant left out without an inrush it cannot have (Ohm's law at
+# every instant: P = V^2 / R, the same at t = 0 as at the first point for a DC source).
+# INRUSH less its capacitor, the resistor straight across the source.
+R_LOAD = 100.0
+RESISTIVE = INRUSH.replace(f"C1 out 0 {C_BANK} IC=0\n", "").replace(
+    f"R1 in out {R_CHARGE}", f"R1 in 0 {R_LOAD}"
+)
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("method", ["full", "cosim"])
+def test_uic_warning_speaks_of_the_deck_at_hand(tmp_path: Path, method: str) -> None:
+    deck, toml = write(tmp_path, RESISTIVE, annotation(RTH_C, CTH_C))
+    outcome = cosim.run_auto(deck, toml, RunOptions(), method=method)
+    warned = [f for f in outcome.findings if "not 0" in f.message]
+    assert len(warned) == 1 and "uic" in warned[0].message
+    said = warned[0].message + " " + (warned[0].hint or "")
+    assert "capacitor" not in said and "inrush" not in said
+    # The peak power is V^2/R (Ohm's law): nothing is missed at t = 0 with a DC source.
+    part = outcome.results.parts[0]
+    assert part.peak_power == pytest.approx(V_DC**2 / R_LOAD, rel=1e-3)

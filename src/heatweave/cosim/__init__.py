@@ -341,7 +341,7 @@ def once(
     reason = f"co-simulation in {counted(trace.windows, 'window')}"
     # A part beyond its model's range, a drive without one period: as runner.run says.
     past = range_findings(results) + drive_findings(results, inputs.index)
-    past += start_findings(trace.first_time, analyses)
+    past += start_findings(trace.first_time, analyses, inputs.index)
     stepped_analyses = analyses if options.max_step is not None else ()
     return FastOutcome(results, "cosim", reason, findings + safe.findings + past, trace=trace,
                        analyses=stepped_analyses)  # fmt: skip

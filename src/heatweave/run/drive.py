@@ -91,19 +91,33 @@ def period_note(found: Drive, span: float | None) -> Finding | None:
     return None
 
 
-def start_findings(first: float | None, analyses: Sequence[str]) -> tuple[Finding, ...]:
+def start_findings(
+    first: float | None, analyses: Sequence[str], index: DeckIndex
+) -> tuple[Finding, ...]:
     """A warning when a transient's results start after t = 0 (*first*, s): its peaks miss
     what came before.  ngspice 39 leaves t = 0 out of a ``.tran ... uic`` run (it computes
-    no operating point there), and the instant it leaves out is where an inrush into an
-    uncharged capacitor is largest; it cannot be computed from the first point."""
+    no operating point there); where the deck (*index*) has a capacitor, the instant left
+    out is where an inrush into it, uncharged, is largest, and it cannot be computed from
+    the first point.  A deck without one is told only what is left out."""
     if first is None or not first > 0.0:
         return ()
     at = f"the transient's first time point is {first:.4g} s, not 0"
     if any("uic" in text.lower().split() for text in analyses):
+        why = f"{at} (ngspice 39 leaves t = 0 out of a `.tran ... uic` run)"
+        if not has_capacitor(index):
+            return (
+                Finding(
+                    "warning",
+                    f"{why}: peak_power and peak_temperature are the peaks from {first:.4g} s "
+                    "on; the sources' values at t = 0 are left out",
+                    None,
+                    "drop uic to have t = 0 in the results",
+                ),
+            )
         return (
             Finding(
                 "warning",
-                f"{at} (ngspice 39 leaves t = 0 out of a `.tran ... uic` run): peak_power is "
+                f"{why}: peak_power is "
                 f"the largest dissipation from {first:.4g} s on and misses the initial "
                 "instant, where an inrush into an uncharged capacitor is largest (V^2/R "
                 "through the resistor); peak_temperature misses only the starting "
@@ -123,3 +137,8 @@ def start_findings(first: float | None, analyses: Sequence[str]) -> tuple[Findin
             "give the transient no tstart to see the whole run",
         ),
     )
+
+
+def has_capacitor(index: DeckIndex) -> bool:
+    """True when the circuit (subcircuits expanded, includes too) has a capacitor."""
+    return any(path.rsplit(".", 1)[-1][:1] in "cC" for path in index.element_paths())

@@ -93,7 +93,7 @@ def run(
     beyond = range_findings(results) + drive_findings(results, inputs.index)
     if results.time is not None and len(results.time):
         analyses = prepared.analyses or tuple(deck_analyses_of(prepared.deck))
-        beyond += start_findings(float(results.time[0]), analyses)
+        beyond += start_findings(float(results.time[0]), analyses, inputs.index)
     if beyond:
         prepared = replace(prepared, findings=prepared.findings + beyond)
     return RunOutcome(prepared, sim, results)
