@@ -67,7 +67,7 @@ CHOICES = [
     (thermal(resistor("R1", Single(50.0, 2e-4))), ["tran 100u 1"], None, "full", "only"),
     (SEPARATED, ["op"], 1e-3, "full", "not a transient"),
     (SEPARATED, ["tran 10u 1", "op"], 1e-3, "full", "2 analyses"),
-    (SEPARATED, ["tran 10u 1 0.5"], 1e-3, "full", "tstart"),
+    (SEPARATED, ["tran 10u 1 0.5"], 1e-3, "cosim", "separate"),  # reported from tstart
     (thermal(resistor("R1", Single(50.0, 0.002)), heat_only("Q1")), ["tran 10u 1"], 1e-3,
      "full", "heat-only"),
     (thermal(resistor("R1", Single(50.0, 0.002)), ambient=((0.0, 25.0), (1.0, 40.0))),

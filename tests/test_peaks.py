@@ -192,3 +192,33 @@ def test_uic_warning_speaks_of_the_deck_at_hand(tmp_path: Path, method: str) -> 
     # The peak power is V^2/R (Ohm's law): nothing is missed at t = 0 with a DC source.
     part = outcome.results.parts[0]
     assert part.peak_power == pytest.approx(V_DC**2 / R_LOAD, rel=1e-3)
+
+
+# A tstart under the co-simulation (issue: `run --method cosim` exited 2 on it): the
+# results are what the full deck saves, [tstart, tstop], and every peak is over them.
+# The same charge as above, switched on at t = 0, saved from 5 ms; the hottest instant
+# (3.5 ms, module docstring) is before 5 ms, so both methods report the temperature at 5 ms
+# as the peak, the closed form of the convolution there.
+@pytest.mark.ngspice
+def test_cosim_takes_a_tstart_as_the_full_deck_does(tmp_path: Path) -> None:
+    charged = INRUSH.replace(f"DC {V_DC}", f"PWL(0 0 1n {V_DC})")  # no period to separate
+    charged = charged.replace(" IC=0", "").replace("20m uic", "20m 5m")
+    deck, toml = write(tmp_path, charged, annotation(RTH_C, CTH_C))
+    fast = cosim.run_auto(deck, toml, RunOptions(), method="cosim")
+    full = cosim.run_auto(deck, toml, RunOptions(), method="full")
+    assert fast.method == "cosim"
+    time = fast.results.time
+    assert time is not None and 5e-3 * (1 - 1e-9) <= time[0] < 5e-3 + 1e-5
+    warned = [f.message for f in fast.findings if "not 0" in f.message]
+    assert len(warned) == 1 and "not over the whole run" in warned[0]
+    a, b = 2 / (R_CHARGE * C_BANK), 1 / (RTH_C * CTH_C)
+    t0 = 5e-3
+    rise = V_DC**2 / R_CHARGE / CTH_C * (math.exp(-b * t0) - math.exp(-a * t0)) / (a - b)
+    part, ref = fast.results.parts[0], full.results.parts[0]
+    assert part.peak_temperature == pytest.approx(AMBIENT + rise, abs=1e-3 * rise)
+    assert part.peak_temperature == pytest.approx(ref.peak_temperature, abs=0.01)
+    # P(t) = V^2/R e^{-2t/RC}: the largest from 5 ms on is at 5 ms.
+    p5 = V_DC**2 / R_CHARGE * math.exp(-a * t0)
+    assert part.peak_power == pytest.approx(p5, rel=1e-2)
+    assert part.peak_power == pytest.approx(ref.peak_power, rel=1e-2)
+    assert part.temperature == pytest.approx(ref.temperature, abs=0.01)

@@ -288,9 +288,9 @@ def once(
     if options.max_step is not None:
         analyses = stepped(analyses, options.max_step, inputs.deck_path)
     tran = Transient.parse(analyses[0]) if len(analyses) == 1 else None
-    if tran is None or tran.tstart != 0 or not isinstance(circuit.ambient, float | int):
+    if tran is None or not tran.tstart < tran.tstop or not isinstance(circuit.ambient, float | int):
         raise UsageError(
-            "the co-simulation runs one transient from 0 with a fixed ambient",
+            "the co-simulation runs one transient (tstart below tstop) with a fixed ambient",
             hint="use the full method for this run",
         )
     if any(not p.is_resistor for p in circuit.parts) or circuit.start != "cold":

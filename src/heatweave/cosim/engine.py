@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import time as clock
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -82,7 +82,8 @@ class Probe:
 
 @dataclass(frozen=True, slots=True)
 class Trace:
-    """What the loop produced, on the window grid ``time`` (s, from 0).
+    """What the loop produced, on the window grid ``time`` (s, from 0, or from the
+    transient's tstart: what comes before it is run but not reported, as ngspice saves it).
 
     ``temperatures`` has one row per output of the thermal system (parts, then shared
     nodes), ``power`` and ``resistance`` one row per part: the mean dissipation over the
@@ -200,6 +201,12 @@ class _Loop:
         self.period = plan.period
         self.corners = plan.corners
         self.max_step = tran.tmax or min(tran.tstep, (tran.tstop - tran.tstart) / 50)
+        # A tstart: ngspice runs from 0 with the step it would take for the deck's card and
+        # lands on tstart; what is reported is what the full deck saves, [tstart, tstop].
+        self.command = tran.command()
+        if tran.tstart > 0.0:
+            self.command = replace(tran, tstart=0.0, tmax=self.max_step).command()
+        self.saved = tran.tstart * (1 - 1e-12)  # reported from here on
         self.tail_time = np.zeros(0)
         self.tail_power = np.zeros((self.bank.size, 0))
         self.peak = np.full(self.bank.size, -np.inf)
@@ -209,7 +216,14 @@ class _Loop:
     def keep(self, t: FloatArray, power: FloatArray) -> None:
         """Record a window's instantaneous dissipation (*power* at its time points *t*):
         its peak, and the samples of the last drive period (one sample before the period's
-        start too, to interpolate it)."""
+        start too, to interpolate it); what lies before tstart is not reported."""
+        if t.shape[0] and t[-1] < self.saved:
+            return
+        if t[0] < self.saved:
+            t, power = (
+                t[np.searchsorted(t, self.saved) :],
+                power[:, np.searchsorted(t, self.saved) :],
+            )
         if power.size:
             self.peak = np.maximum(self.peak, power.max(axis=1))
         held = max(self.tail_time.shape[0] - 1, 0)  # a window starts at the last one's end
@@ -227,10 +241,15 @@ class _Loop:
     def landing(self, now: float, until: float | None) -> FloatArray:
         """The corners the next part of the transient must land on: those after *now* up to
         where it may pause (one step past *until*)."""
-        if self.corners is None:
-            return np.zeros(0)
         high = self.tran.tstop if until is None else min(until + self.max_step, self.tran.tstop)
-        return self.corners.between(now + LANDING * self.max_step, high)[0]
+        found = (
+            np.zeros(0)
+            if self.corners is None
+            else self.corners.between(now + LANDING * self.max_step, high)[0]
+        )
+        if now < self.saved <= high:  # a time point on tstart, where the results start
+            found = np.union1d(found, [self.tran.tstart])
+        return found
 
     def end_before_crowding(self, now: float, target: float) -> float:
         """*target*, or earlier: the :data:`MAX_LANDING`-th corner after *now*, so that no
@@ -276,21 +295,25 @@ class _Loop:
         temps = system.temperatures(z, system.inputs(power, self.ambient))
         self.hold(bank.resistance(temps[:n_parts]))
         times, rows, powers, ohms = [0.0], [temps], [power], [bank.resistance(temps[:n_parts])]
-        self.hottest = temps.copy()
+        if not self.saved > 0.0:
+            self.hottest = temps.copy()
         first = None
         ends = [0]
         h, start, now = self.rule.first(), 0, 0.0
         gain = system.dc_gain[:n_parts, :n_parts]
         while now < self.tran.tstop * (1 - 1e-12):
             target = self.end_before_crowding(now, now + h)
+            if now < self.saved < target:  # a window ends on tstart
+                target = self.tran.tstart
             until = target if target < self.tran.tstop * (1 - 1e-9) else None
-            self.session.advance(self.tran.command(), until, self.landing(now, until).tolist())
+            self.session.advance(self.command, until, self.landing(now, until).tolist())
             self.clock.lap("ngspice")
             t = self.tail("time", start)
             if t.shape[0] < 2:
                 break
             self.landed(t)
-            first = float(t[0]) if first is None else first
+            if first is None and t[-1] >= self.saved:
+                first = float(t[np.searchsorted(t, self.saved)])
             inputs = self._inputs(start, t.shape[0])
             self.clock.lap("read")
             drops = inputs[:n_parts]
@@ -299,8 +322,15 @@ class _Loop:
             self.keep(t, samples)
             step = float(t[-1] - t[0])
             u = system.inputs(power, self.ambient)
-            z, temps, top = self.response.peaks(z, t, inputs)
-            self.hottest = np.maximum(self.hottest, top)
+            if t[0] < self.saved <= t[-1]:  # the window holding tstart: peaks from there on
+                z, at_samples = self.response.run(z, t, inputs)
+                later = at_samples[:, np.searchsorted(t, self.saved) :]
+                self.hottest = np.maximum(self.hottest, later.max(axis=1))
+                temps = at_samples[:, -1].copy()
+            else:
+                z, temps, top = self.response.peaks(z, t, inputs)
+                if t[-1] >= self.saved:
+                    self.hottest = np.maximum(self.hottest, top)
             now, start = float(t[-1]), start + t.shape[0] - 1
             times.append(now)
             ends.append(start)
@@ -317,6 +347,10 @@ class _Loop:
             mid = part_temps + rate * min(h, self.tran.tstop - now) / 2
             self.clock.lap("thermal")
             self.hold(bank.resistance(mid), self.rule.alter_threshold(gain, power))
+        if self.saved > 0.0:  # the window grid from tstart on (a window ends there)
+            kept = int(np.searchsorted(np.array(times), self.saved))
+            times, rows, powers = times[kept:], rows[kept:], powers[kept:]
+            ohms, ends = ohms[kept:], ends[kept:]
         powers[0] = powers[1] if len(powers) > 1 else powers[0]
         voltages, currents, extremes = self._signals(np.array(ends))
         self.clock.lap("read")
@@ -354,7 +388,8 @@ class _Loop:
         self, ends: npt.NDArray[np.intp]
     ) -> tuple[dict[str, FloatArray], dict[str, FloatArray], dict[str, tuple[float, float]]]:
         """Every node voltage and branch current of the transient at the window ends, and
-        each one's ``(min, max)`` over every time point (keys ``v(NAME)``, ``i(NAME)``)."""
+        each one's ``(min, max)`` over every time point from the first end on, where the
+        results start (keys ``v(NAME)``, ``i(NAME)``)."""
         return self.session.signals_at(ends)
 
     def _stats(self) -> str:

@@ -139,8 +139,9 @@ def choose_method(
     *analyses* are the requests to run (``tran 10u 1``); *electrical* is the slowest
     electrical time scale known (s), e.g. :func:`source_time_scale` of the deck; without
     one, ten transient steps stand in for it.  The co-simulation needs: exactly one
-    transient, from 0; resistors only (heat-only parts need their V*I, which needs the full
-    deck); a fixed ambient; a cold start; every part and node with heat capacity (no
+    transient (a tstart is run from 0 and reported from there, as the full deck saves
+    it); resistors only (heat-only parts need their V*I, which needs the full deck); a
+    fixed ambient; a cold start; every part and node with heat capacity (no
     instant temperature feedback); and the fastest thermal time constant at least
     :data:`SEPARATION` times the electrical time scale.
     """
@@ -152,8 +153,6 @@ def choose_method(
     tran = Transient.parse(analyses[0])
     if tran is None:
         return "full", f"'{analyses[0]}' is not a transient; the full deck is cheap for it"
-    if tran.tstart != 0.0:
-        return "full", "the transient saves data only after tstart; the co-simulation needs it all"
     heat_only = [p.path for p in circuit.parts if not p.is_resistor]
     if heat_only:
         return "full", f"heat-only parts ({', '.join(heat_only[:3])}) need the full deck"

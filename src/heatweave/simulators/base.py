@@ -293,14 +293,17 @@ def summarise(
     tables: tuple[Mapping[str, FloatArray], Mapping[str, FloatArray]], at: npt.NDArray[np.intp]
 ) -> SignalSummary:
     """The :data:`SignalSummary` of node voltages and branch currents *tables* (each
-    name's samples): copies of the samples *at*, clipped to the last, and the extremes."""
+    name's samples): copies of the samples *at*, clipped to the last, and the extremes
+    from the first of *at* on (a transient reported from its tstart)."""
     found: tuple[dict[str, FloatArray], dict[str, FloatArray]] = ({}, {})
     extremes: dict[str, tuple[float, float]] = {}
+    since = int(at[0]) if at.shape[0] else 0
     for kind, table, out in zip("vi", tables, found, strict=True):
         for name, values in table.items():
             out[name] = values[np.minimum(at, values.shape[0] - 1)]
-            if values.shape[0]:
-                extremes[f"{kind}({name})"] = (float(values.min()), float(values.max()))
+            kept = values[since:]
+            if kept.shape[0]:
+                extremes[f"{kind}({name})"] = (float(kept.min()), float(kept.max()))
     return found[0], found[1], extremes
 
 
@@ -339,8 +342,8 @@ class Session(ABC):
 
     def signals_at(self, at: npt.NDArray[np.intp]) -> SignalSummary:
         """Every node voltage and branch current at the samples *at* (clipped to each
-        one's last sample), and each one's ``(min, max)`` over all its samples
-        (:func:`summarise`)."""
+        one's last sample), and each one's ``(min, max)`` over its samples from the first
+        of *at* on (:func:`summarise`)."""
         return summarise((self.node_voltages(), self.branch_currents()), at)
 
     @abstractmethod
