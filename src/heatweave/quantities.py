@@ -56,6 +56,37 @@ def parse_number(text: str) -> float | None:
     return float(m.group("num")) * scale_of(m.group("suffix") or "")
 
 
+def parse_quantity(text: str, unit: str = "") -> tuple[float | None, str | None]:
+    """A quantity typed on the command line: ``(value, None)``, or ``(None, why not)``.
+
+    Stricter than a deck (:func:`parse_number`, where ngspice ignores trailing letters): a
+    number, an optional scale factor, then at most *unit* (``5ms``, ``100ppm``), each
+    case-insensitive.  ``5x`` or ``1k5`` is a typo here, not 5 or 1000; ``mil`` is a length
+    and is taken only where the option has no unit; where the unit is kelvin, a ``K`` is
+    refused, since SPICE reads it as kilo."""
+    if unit and not unit[0].isalpha() and text.rstrip().endswith(unit):  # 5%
+        text, unit = text.rstrip()[: -len(unit)], ""
+    m = _NUMBER.match(text)
+    if m is None:
+        return None, f"{text!r} is not a number"
+    number, suffix = float(m.group("num")), m.group("suffix") or ""
+    low, own = suffix.lower(), unit.lower()
+    if unit.upper() == "K" and low.startswith("k"):
+        return None, (
+            f"{text!r}: SPICE reads {suffix[0]!r} as kilo, while the unit here is kelvin; "
+            f"write a plain number of K, e.g. {m.group('num')}"
+        )
+    if low in ("", own):
+        return number, None
+    for name, factor in _SCALES:
+        if low.startswith(name) and low[len(name) :] in ("", own):
+            if name == "mil" and own:
+                break
+            return number * factor, None
+    what = f"nor {unit} (the unit here)" if unit else "and this value has no unit"
+    return None, (f"{text!r}: {suffix!r} is neither a scale factor (T G Meg K m u n p f) {what}")
+
+
 def counted(count: int, noun: str, plural: str | None = None) -> str:
     """``1 window``, ``3 windows``: a count with its noun in the right number."""
     return f"{count} {noun if count == 1 else plural or noun + 's'}"
@@ -83,13 +114,14 @@ class SpiceQuantity(click.ParamType):  # type: ignore[type-arg]
     def convert(
         self, value: object, param: click.Parameter | None, ctx: click.Context | None
     ) -> float:
+        problem = None
         if isinstance(value, int | float):
             number: float | None = float(value)
         else:
-            number = parse_number(str(value))
+            number, problem = parse_quantity(str(value), self.unit)
         if number is None:
             self.fail(
-                f"{value!r} is not a number; write it as ngspice would, e.g. 10m, 2.5u, 1e-3"
+                f"{problem}; write a number with a scale factor, e.g. 10m, 2.5u, 1e-3"
                 + (f" ({self.unit})" if self.unit else ""),
                 param,
                 ctx,

@@ -19,13 +19,15 @@ from heatweave.emit.emitter import Inputs
 from heatweave.emit.sections import MARK
 from heatweave.emit.splice import insert_before_end
 from heatweave.errors import Location, UsageError
-from heatweave.quantities import NOT_FINITE, format_number, parse_number, temperature_problem
+from heatweave.quantities import NOT_FINITE, format_number, parse_quantity, temperature_problem
 from heatweave.spice.deck import Block, Card, Node
 from heatweave.spice.hierarchy import DeckIndex
 from heatweave.spice.project import Project
 
 #: A sweep larger than this is almost certainly a typo in STEP.
 MAX_POINTS = 100_000
+
+_NUMBER_START = re.compile(r"\s*[+-]?\.?\d")
 
 _RANGE_HINT = (
     "write START:STOP:STEP, e.g. -40:125:5, a single value such as 85, or a list: 1m,2m,5m"
@@ -43,14 +45,18 @@ def parse_range(text: str, what: str, temperature: bool = False) -> tuple[float,
             values.extend(parse_range(piece.strip(), what, temperature))
         return tuple(values)
     pieces = text.split(":")
-    numbers = [parse_number(p) for p in pieces]
-    if len(pieces) not in (1, 3) or any(n is None for n in numbers):
+    read = [parse_quantity(p) for p in pieces]  # a scale factor and nothing after it
+    if len(pieces) not in (1, 3) or any(_NUMBER_START.match(p) is None for p in pieces):
         raise UsageError(f"{what} {text!r} is not a value or a range", hint=_RANGE_HINT)
-    for piece in pieces[:2] if temperature else ():
-        problem = temperature_problem(piece)
+    # The step of temperatures is a plain number of kelvin, as start and stop are degC.
+    for k, piece in enumerate(pieces if temperature else ()):
+        problem = temperature_problem(piece if k < 2 else piece.strip().lstrip("+-"))
         if problem is not None:
             raise UsageError(f"{what} {text!r}: {problem}", hint=_RANGE_HINT)
-    found = [float(n) for n in numbers if n is not None]
+    for number, problem in read:
+        if number is None:
+            raise UsageError(f"{what} {text!r}: {problem}", hint=_RANGE_HINT)
+    found = [float(n) for n, _problem in read if n is not None]
     for piece, value in zip(pieces, found, strict=True):
         if not math.isfinite(value):
             raise UsageError(f"{what} {text!r}: {piece!r} {NOT_FINITE}", hint=_RANGE_HINT)
