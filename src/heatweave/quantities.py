@@ -56,6 +56,44 @@ def parse_number(text: str) -> float | None:
     return float(m.group("num")) * scale_of(m.group("suffix") or "")
 
 
+_INPEVAL = re.compile(
+    r"\s*(?P<sign>[+-]?)(?P<whole>\d*)(?:\.(?P<frac>\d*))?(?:[eE](?P<exp>[+-]?\d+))?"
+    r"(?P<suffix>(?:[A-Za-z]\w*)?)"
+)
+_EXPONENTS: dict[str, int] = {"t": 12, "g": 9, "k": 3, "m": -3, "u": -6, "n": -9, "p": -12,
+                              "f": -15}  # fmt: skip
+
+
+def ngspice_double(text: str) -> float | None:
+    """The double ngspice 39 reads from a plain number, bit for bit: its reader adds up the
+    digits as ``mantissa = 10 * mantissa + digit`` and multiplies by ``pow(10, exponent)``
+    (decimals, ``e``, scale factor), which is not always the nearest double to the
+    decimal: ``0.3m`` and ``300u`` differ by an ulp, and ngspice compares them so (a PWL's
+    ``r=`` must equal one of its times).  ``None`` when *text* is not a plain number."""
+    m = _INPEVAL.fullmatch(text)
+    if m is None or not (m.group("whole") or m.group("frac")):
+        return None
+    mantissa, exponent = 0.0, 0
+    for digit in m.group("whole"):
+        mantissa = 10 * mantissa + int(digit)
+    for digit in m.group("frac") or "":
+        mantissa = 10 * mantissa + int(digit)
+        exponent -= 1
+    exponent += int(m.group("exp") or 0)
+    low = m.group("suffix").lower()
+    if low.startswith("meg"):
+        exponent += 6
+    elif low.startswith("mil"):
+        mantissa, exponent = mantissa * 25.4, exponent - 6
+    elif low[:1] in _EXPONENTS:
+        exponent += _EXPONENTS[low[:1]]
+    sign = -1.0 if m.group("sign") == "-" else 1.0
+    try:
+        return sign * mantissa * math.pow(10.0, exponent)
+    except OverflowError:
+        return None
+
+
 def parse_quantity(text: str, unit: str = "") -> tuple[float | None, str | None]:
     """A quantity typed on the command line: ``(value, None)``, or ``(None, why not)``.
 

@@ -98,6 +98,14 @@ REJECT = {
         "R2 has the value 'rload', which is no number and names no model",
         "unknown parameter (rload)",
     ),
+    "r37_pwl_repeat_off_grid": (
+        "V1's PWL repeats from r=300u, which is not one of its time points",
+        "does not match any time point given",
+    ),
+    "r38_current_pwl_repeat": (
+        "I1: a current source takes no r=",
+        "unknown parameter (r)",
+    ),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

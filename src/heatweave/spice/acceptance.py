@@ -41,6 +41,7 @@ from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Scope
 from heatweave.spice.lint_cards import empty_analyses
 from heatweave.spice.references import reference_errors, undefined_call
+from heatweave.spice.source_options import source_option_errors
 from heatweave.spice.syntax import (
     Call,
     DotSyntax,
@@ -90,6 +91,7 @@ def rejections(index: DeckIndex) -> list[Finding]:
     found.extend(_couplings(cards))
     found.extend(_if_blocks(dots))
     found.extend(non_ascii(cards))
+    found.extend(source_option_errors(cards))
     return found
 
 
