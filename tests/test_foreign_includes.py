@@ -239,3 +239,62 @@ def test_an_unproven_include_with_a_slip_is_located_but_not_quoted(tmp_path: Pat
     (tmp_path / "leg.inc").write_text((tmp_path / "leg").read_text())
     deck.write_text(deck.read_text().replace(".include leg\n", ".include leg.inc\n"))
     assert "dangling_node" in invoke(["lint", str(deck)])[1]
+
+
+# An unproven include that runs, whose node and source names are words of its own: no report
+# of any command may list them (a name is content of the file), unless the user named it
+# (an annotated part, a --probe).  The deck's own names are listed as before.
+SECRET_NODE = "tok3n_s3cr3t"
+RUNNING = f"RLEG mid {SECRET_NODE} 10k\nVSENSE{SECRET_NODE} {SECRET_NODE} 0 0\n"
+
+REPORTS = {
+    "run": (["run", "--method", "full", "--backend", "batch", "--json", "{out}/r.json", "--csv",
+             "{out}/r.csv", "--html", "{out}/r.html"], "r.json"),
+    "cosim": (["run", "--method", "cosim", "--json", "{out}/r.json", "--csv", "{out}/r.csv"],
+              "r.json"),
+    "check": (["check", "--method", "full", "--backend", "batch", "--json", "{out}/c.json",
+               "--junit", "{out}/c.xml", "--html", "{out}/c.html"], "c.json"),
+    "settle": (["settle", "--period", "1m", "--warmup", "2m", "--backend", "batch", "--json",
+                "{out}/s.json", "--csv", "{out}/s.csv", "--html", "{out}/s.html"], "s.json"),
+    "sweep": (["sweep", "--ambient", "25:35:10", "-j", "1", "--backend", "batch", "--json",
+               "{out}/w.json", "--csv", "{out}/w.csv", "--html", "{out}/w.html"], "w.json"),
+}  # fmt: skip
+
+
+@needs_ngspice
+@pytest.mark.parametrize("command", REPORTS)
+def test_no_report_lists_a_name_of_an_unproven_include(tmp_path: Path, command: str) -> None:
+    deck = deck_including(tmp_path, "board_rc", RUNNING)
+    out = tmp_path / "out"
+    out.mkdir()
+    args, main_json = REPORTS[command]
+    code, output = invoke([args[0], str(deck), *(a.format(out=out) for a in args[1:])])
+    assert code == 0, output
+    assert SECRET_NODE not in output.lower()
+    for written in out.iterdir():
+        assert SECRET_NODE.encode() not in written.read_bytes().lower(), written.name
+    text = (out / main_json).read_text()
+    if command != "check":  # its JSON lists no signals
+        assert '"mid"' in text  # the deck's own node is listed
+        # and the report says what it left out, or the command does on its terminal
+        assert "left out: a name is content of its file" in text + output
+
+
+@needs_ngspice
+def test_a_probe_the_user_names_is_reported(tmp_path: Path) -> None:
+    deck = deck_including(tmp_path, "board_rc", RUNNING)
+    written = tmp_path / "r.json"
+    code, output = invoke(["run", str(deck), "--method", "full", "--backend", "batch",
+                           "--probe", SECRET_NODE, "--json", str(written)])  # fmt: skip
+    assert code == 0, output
+    report = json.loads(written.read_text())
+    # a node held at 0 V by VSENSE (a 0 V source)
+    assert report["voltages"][SECRET_NODE] == pytest.approx(0.0, abs=1e-9)
+
+
+def test_a_mistyped_probe_is_not_told_a_name_of_an_unproven_include(tmp_path: Path) -> None:
+    deck = deck_including(tmp_path, "board_rc", RUNNING)
+    code, output = invoke(["run", str(deck), "--probe", SECRET_NODE[:-1] + "x"])
+    assert code == 2, output
+    assert "the deck has no node" in output and SECRET_NODE not in output
+    assert "mid" in output  # the hint still lists the deck's own nodes

@@ -44,6 +44,7 @@ from heatweave.run.runner import RunOutcome
 from heatweave.settle.periodic import Settled
 from heatweave.spice.hierarchy import DeckIndex, global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
+from heatweave.spice.private import is_private, private_words
 from heatweave.thermal.circuit import AMBIENT_NODE
 
 FloatArray = npt.NDArray[np.float64]
@@ -173,7 +174,8 @@ def resolve_limits(annotation: Annotation, index: DeckIndex) -> tuple[Signal, ..
         plus, minus = match[1].lower(), (match[2] or "0").lower()
         for node in (plus, minus):
             if node not in nodes and node not in _GROUND:
-                near = closest(node, sorted(nodes))
+                hidden = private_words(index.project)  # no hint names their words
+                near = closest(node, sorted(n for n in nodes if not is_private(n, hidden)))
                 raise AnnotationError(
                     f'limit "{spec.signal}" names node "{node}", which the deck does not have',
                     spec.location,

@@ -34,6 +34,7 @@ from heatweave.files import write_atomic
 from heatweave.spice.acceptance import refuse_rejected
 from heatweave.spice.hierarchy import global_names, top_level_node
 from heatweave.spice.netlist import card_nodes
+from heatweave.spice.private import is_private, private_words
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
@@ -43,9 +44,12 @@ if TYPE_CHECKING:
     from heatweave.spice.hierarchy import DeckIndex
 
 
-def probe_nodes(probes: tuple[str, ...], known: Collection[str]) -> tuple[str, ...]:
+def probe_nodes(
+    probes: tuple[str, ...], known: Collection[str], hidden: frozenset[str] = frozenset()
+) -> tuple[str, ...]:
     """The node voltages among ``--probe`` names (``out`` or ``V(out)``) as node names, each
-    checked against the *known* node names (lower case, as ngspice names them)."""
+    checked against the *known* node names (lower case, as ngspice names them); a hint names
+    none that holds a *hidden* word (:func:`heatweave.spice.private.private_words`)."""
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.model import parse_probe
 
@@ -57,32 +61,37 @@ def probe_nodes(probes: tuple[str, ...], known: Collection[str]) -> tuple[str, .
         if probe.name not in known:
             raise UsageError(
                 f"--probe {text}: the deck has no node {probe.name!r}",
-                hint=nodes_hint(probe.name, known),
+                hint=nodes_hint(probe.name, [k for k in known if not is_private(k, hidden)]),
             )
         found.append(probe.name)
     return tuple(found)
 
 
-def probe_signals(probes: tuple[str, ...], results: RunResults) -> tuple[Probe, ...]:
+def probe_signals(
+    probes: tuple[str, ...], results: RunResults, hidden: frozenset[str] = frozenset()
+) -> tuple[Probe, ...]:
     """``--probe`` names as signals of the finished run: node voltages (``out``,
     ``V(out)``) and branch currents (``I(vamm)``), each checked against its vectors."""
-    return known_signals(probes, results.voltages, results.currents)
+    return known_signals(probes, results.voltages, results.currents, hidden)
 
 
 def known_signals(
-    probes: tuple[str, ...], voltages: Collection[str], currents: Collection[str]
+    probes: tuple[str, ...],
+    voltages: Collection[str],
+    currents: Collection[str],
+    hidden: frozenset[str] = frozenset(),
 ) -> tuple[Probe, ...]:
     """``--probe`` names as signals, each checked against the node *voltages* and branch
     *currents* a run recorded (lower case, as ngspice names them)."""
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.reports.model import parse_probe
 
-    probe_nodes(probes, voltages)
+    probe_nodes(probes, voltages, hidden)
     found = []
     for text in probes:
         probe = parse_probe(text)
         if probe.kind == "i" and probe.name not in currents:
-            every = sorted(currents)
+            every = sorted(c for c in currents if not is_private(c, hidden))
             raise UsageError(
                 f"--probe {text}: ngspice recorded no branch current of {probe.name!r}",
                 hint="ngspice records the current of voltage sources and inductors only; put "
@@ -139,7 +148,7 @@ def check_probes_early(probes: tuple[str, ...], index: DeckIndex) -> None:
     wanted = tuple(p for p in probes if "#" not in p and parse_probe(p).kind == "v")
     known = deck_nodes(index) if wanted else None
     if known is not None:
-        probe_nodes(wanted, known)
+        probe_nodes(wanted, known, private_words(index.project))
 
 
 @click.command()
@@ -235,9 +244,10 @@ def _simulate(
     from heatweave.reports import build_report
     from heatweave.run.runner import run as run_deck
 
+    hidden = private_words(inputs.project)  # no hint names a word of an unproven include
     if method == "full":
         outcome = run_deck(deck, annotation_path, options, inputs=inputs)
-        report = build_report(inputs, outcome, probe_signals(probe, outcome.results))
+        report = build_report(inputs, outcome, probe_signals(probe, outcome.results, hidden))
         why = "asked for the full electrothermal deck"
         report = replace(report, method_reason=why)
         return report, list(outcome.prepared.findings), f"method: full ({why})"
@@ -248,13 +258,13 @@ def _simulate(
 
     fast = run_auto(deck, annotation_path, options, method=method, inputs=inputs)
     if fast.full is not None:
-        report = build_report(inputs, fast.full, probe_signals(probe, fast.results))
+        report = build_report(inputs, fast.full, probe_signals(probe, fast.results, hidden))
         report = replace(report, method_reason=fast.reason)
     else:
         own = tuple(deck_analyses_of(inputs.project.deck))
         report = report_of(
             inputs, fast.results, fast.analyses or options.analyses or own, "shared", fast.findings,
-            probe_signals(probe, fast.results), (fast.method, fast.reason),
+            probe_signals(probe, fast.results, hidden), (fast.method, fast.reason),
         )  # fmt: skip
     return report, list(fast.findings), f"method: {fast.method} ({fast.reason})"
 

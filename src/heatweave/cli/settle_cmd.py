@@ -127,6 +127,7 @@ def settle(
     # numpy and scipy load here, when the command runs, not for --help
     from heatweave.cli.check_cmd import junit_case, report_limits, write_junit
     from heatweave.emit.emitter import load_inputs
+    from heatweave.reports.private import settled_without_private
     from heatweave.reports.settle import progress_line, render_csv, render_json, render_table
     from heatweave.settle.periodic import SettleOptions, Step
     from heatweave.settle.periodic import settle as settle_deck
@@ -173,8 +174,11 @@ def settle(
             failed = junit_case(deck, "settle", error=err.render())
             write_junit(junit_file, deck, (failed,), time.monotonic() - started)
         raise
-    report_findings(list(settled.findings))
     found = limits.evaluate_settled(settled, signals) if check else None
+    # a name only an unproven include holds is left out, unless a [limit] names it
+    named = {node for s in signals for node in (s.plus, s.minus)}
+    settled = settled_without_private(settled, inputs, named)
+    report_findings(list(settled.findings))
     if json_file is not None:
         write_atomic(json_file, render_json(settled, inputs, found))
     if csv_file is not None:

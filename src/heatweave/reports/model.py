@@ -19,9 +19,11 @@ import numpy as np
 from heatweave.annotation.ratings import Margins, margins
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import Finding
+from heatweave.reports.private import without_private
 from heatweave.run.prepare import deck_analyses_of
 from heatweave.run.results import FloatArray, PartResult, RunResults, rated_ambient
 from heatweave.run.runner import RunOutcome
+from heatweave.spice.private import left_out_note
 
 PPM = 1e6
 #: From this many ppm drifts are shown in % (plots and the sweep table alike): thermistors
@@ -188,7 +190,12 @@ def report_of(
     probes: tuple[Probe, ...] = (),
     method: tuple[str, str] = ("full", ""),
 ) -> RunReport:
-    """The report of *results*, however they were computed (full deck or co-simulation)."""
+    """The report of *results*, however they were computed (full deck or co-simulation);
+    signals named in an included file not proven SPICE are left out, with a note, unless
+    probed (:mod:`heatweave.spice.private`)."""
+    results, left = without_private(results, inputs, {p.name for p in probes})
+    if left:
+        findings = (*findings, Finding("note", left_out_note(inputs.project, left), None))
     if results.ambient_series is not None:
         ambient = results.ambient_series
     else:
@@ -207,3 +214,4 @@ def report_of(
         method=method[0],
         method_reason=method[1],
     )
+

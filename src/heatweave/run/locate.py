@@ -17,12 +17,10 @@ import os
 import re
 
 from heatweave.errors import Plain, SimulatorError
-from heatweave.spice.deck import Card, Deck
+from heatweave.spice.deck import Card
+from heatweave.spice.private import WORDS, quotable
 from heatweave.spice.project import Project
 
-# How ngspice and heatweave split a card into words (blanks, , = ( ) quotes braces, and the
-# dots of expanded names such as r.x1.rs).
-_WORDS = re.compile(r"[^\s,=(){}'\".]+")
 # Runs of letters and digits inside a word (hunter2 in hunter2-x), which a message may show
 # without the rest.
 _PIECES = re.compile(r"[^\W_]{4,}")
@@ -52,7 +50,7 @@ def locate(error: SimulatorError, project: Project) -> SimulatorError:
 def withhold(error: SimulatorError, project: Project) -> None:
     """Replace what *error* says when it names a word of an included file not proven SPICE
     (ngspice's text may quote a line of a password file that reads as cards)."""
-    hidden = [inc for inc in project.includes if not _quotable(inc.deck)]
+    hidden = [inc for inc in project.includes if not quotable(inc.deck)]
     if not hidden:
         return
     # Words of four characters or more (shorter ones hide nothing: a node 0, a value 1k),
@@ -60,10 +58,10 @@ def withhold(error: SimulatorError, project: Project) -> None:
     words: set[str] = set()
     for inc in hidden:
         text = inc.deck.write().lower()
-        words.update(w for w in _WORDS.findall(text) if len(w) > 3)
+        words.update(w for w in WORDS.findall(text) if len(w) > 3)
         words.update(_PIECES.findall(text))
-    for deck in (project.deck, *(inc.deck for inc in project.includes if _quotable(inc.deck))):
-        words.difference_update(_WORDS.findall(deck.write().lower()))
+    for deck in (project.deck, *(inc.deck for inc in project.includes if quotable(inc.deck))):
+        words.difference_update(WORDS.findall(deck.write().lower()))
     said = " ".join(t for t in (error.message, error.hint or "", error.card or "",
                                 error.reason or "") if t).lower()  # fmt: skip
     if not any(w in said for w in words):
@@ -78,10 +76,6 @@ def withhold(error: SimulatorError, project: Project) -> None:
         "name ends in a SPICE suffix (.inc, .cir, .lib ...)"
     )
     error.card = error.reason = None
-
-
-def _quotable(deck: Deck) -> bool:
-    return deck.source is None or deck.source.quotable
 
 
 def find_card(quoted: str, project: Project) -> Card | None:
