@@ -7,6 +7,7 @@ The results are written here in the documented JSON forms of ``run``, ``settle``
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 from pathlib import Path
@@ -194,6 +195,11 @@ def _saved(tmp_path: Path, name: str, data: dict[str, Any]) -> str:
     return str(path)
 
 
+def _at(deck: str, in_repository: str | None, sha256: str = "") -> dict[str, Any]:
+    """The deck keys of a result: its path, where it sits in its repository, its hash."""
+    return {"deck": deck, "deck_in_repository": in_repository, "deck_sha256": sha256 or None}
+
+
 def _sweep(deck: str, ambient: float) -> dict[str, Any]:
     corner = {"index": 0, "ambient": ambient, "params": {}, "draw": None, "status": "ok",
               "parts": {"R1": run_part(ambient + 20.0, 0.0, 0.2, 100.0)}}  # fmt: skip
@@ -207,6 +213,12 @@ def _sweep(deck: str, ambient: float) -> dict[str, Any]:
         (OLD, {**NEW, "deck": "other/amplifier.cir"}, "of board.cir and "),
         # one file name, but no part in common: two designs that share a name
         (OLD, run_result({"Q7": run_part(40.0, 0.0, 0.1, 115.0)}), "have no part in common"),
+        # one file name in two folders of a repository: two decks, by where they sit in it
+        (
+            {**OLD, **_at("/src/amp/board.cir", "amp/board.cir")},
+            {**NEW, **_at("/src/psu/board.cir", "psu/board.cir")},
+            "is a result of amp/board.cir and ",
+        ),
     ],
 )
 def test_results_of_two_decks_are_refused_unless_asked(
@@ -230,6 +242,16 @@ def test_results_of_two_decks_are_refused_unless_asked(
         (OLD, {**NEW, "deck": "C:\\ci\\boards\\board.cir"}),  # written on another system
         (OLD, {**NEW, "deck": "-"}),  # standard input has no name to hold
         (_sweep("board.cir", 25.0), _sweep("board.cir", 85.0)),  # other corners, same parts
+        # one deck in two checkouts of its repository (another folder, one place in it)
+        (
+            {**OLD, **_at("/home/u/wt/amp/board.cir", "amp/board.cir")},
+            {**NEW, **_at("/ci/build/amp/board.cir", "amp/board.cir")},
+        ),
+        # one deck's very bytes under two names (a copy renamed)
+        (
+            {**OLD, **_at("board.cir", None, "ab" * 32)},
+            {**NEW, **_at("plate.cir", None, "ab" * 32)},
+        ),
     ],
 )
 def test_results_of_one_deck_are_compared(
@@ -239,3 +261,30 @@ def test_results_of_one_deck_are_compared(
     result = CliRunner().invoke(main, ["compare", *paths, "-q"])
     assert result.exit_code == 0, result.output
     assert "warning" not in result.output
+
+
+@pytest.mark.ngspice
+def test_run_records_the_deck_so_that_compare_knows_two_of_one_name(tmp_path: Path) -> None:
+    """Two boards of one file name in two folders of one repository: run --json records
+    each deck's place in it (and its hash), and compare refuses to pair them; one board in
+    two checkouts of the repository is paired."""
+    results = {}
+    for repo, folder, ohms in (("wt1", "amp", 100), ("wt1", "psu", 200), ("wt2", "amp", 110)):
+        (tmp_path / repo / ".git").mkdir(parents=True, exist_ok=True)  # a work tree's top
+        where = tmp_path / repo / folder
+        where.mkdir()
+        (where / "board.cir").write_text(f"board\nV1 a 0 DC 5\nR1 a 0 {ohms}\n.op\n.end\n")
+        (where / "board.thermal.toml").write_text(
+            'schema = 1\n[part.R1]\nmodel = "linear"\ntc1 = 0.0\nrth = 50\n'
+        )
+        out = tmp_path / f"{repo}-{folder}.json"
+        ran = CliRunner().invoke(main, ["run", str(where / "board.cir"), "--json", str(out)])
+        assert ran.exit_code == 0, ran.output
+        results[(repo, folder)] = str(out)
+        data = json.loads(out.read_text())
+        assert data["deck_in_repository"] == f"{folder}/board.cir"
+        assert data["deck_sha256"] == hashlib.sha256((where / "board.cir").read_bytes()).hexdigest()
+    two = CliRunner().invoke(main, ["compare", results["wt1", "amp"], results["wt1", "psu"]])
+    assert two.exit_code == 2 and "amp/board.cir" in two.output and "psu/board.cir" in two.output
+    one = CliRunner().invoke(main, ["compare", results["wt1", "amp"], results["wt2", "amp"], "-q"])
+    assert one.exit_code in (0, 1), one.output  # compared (1: the gate judged the change)

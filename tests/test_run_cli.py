@@ -119,7 +119,8 @@ def test_outputs_are_whole_and_only_where_asked(tmp_path: Path) -> None:
     assert (out / "f.png").read_bytes().startswith(PNG_SIGNATURE)
     data = json.loads((out / "r.json").read_text())
     assert list(data) == [
-        "heatweave_version", "deck", "annotations", "analysis", "analysis_commands",
+        "heatweave_version", "deck", "deck_in_repository", "deck_sha256", "annotations",
+        "analysis", "analysis_commands",
         "backend", "method", "ambient", "parts", "nodes", "voltages", "currents", "probes",
         "warnings", "cautions",
     ]  # fmt: skip

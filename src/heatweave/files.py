@@ -303,3 +303,17 @@ def refuse_overwrite(
                     f"{option} and {other} both write to {path}",
                     hint="give each output a file of its own",
                 )
+
+
+def repository_path(path: str) -> str | None:
+    """Where the file *path* sits in the git work tree holding it (``amp/board.cir``,
+    ``/``-separated), or ``None`` outside one or for standard input (``-``).  The work
+    tree's top is the nearest folder above that has a ``.git`` entry (a folder, or the file
+    of a linked work tree); git itself is not run."""
+    if path == "-":
+        return None
+    target = Path(os.path.realpath(path))
+    for folder in target.parents:
+        if (folder / ".git").exists():
+            return target.relative_to(folder).as_posix()
+    return None

@@ -69,6 +69,14 @@ class Snapshot:
     parts: Mapping[str, PartFigures]
     limits: Mapping[tuple[str, str], LimitFigures]
     warnings: tuple[str, ...] = ()
+    #: The deck's path inside its git work tree ("/"-separated) and the SHA-256 of its
+    #: bytes, as the result records them (``None``: not in a repository, or not recorded).
+    deck_in_repository: str | None = None
+    deck_sha256: str | None = None
+
+
+def _text(value: object) -> str | None:
+    return value if isinstance(value, str) and value else None
 
 
 def _float(value: object) -> float | None:
@@ -208,20 +216,32 @@ def snapshot_of(data: Mapping[str, Any], label: str) -> Snapshot:
         parts=parts,
         limits=limits,
         warnings=tuple(str(w) for w in data.get("warnings") or []),
+        deck_in_repository=_text(data.get("deck_in_repository")),
+        deck_sha256=_text(data.get("deck_sha256")),
     )
 
 
 def other_deck(old: Snapshot, new: Snapshot) -> str | None:
     """Why *old* and *new* are results of two different decks, or ``None``.
 
-    Revisions of one design keep the deck's file name (its folder may differ: two
-    checkouts, two working folders); results of different file names, or with parts and
-    none in common, are two designs, whose changes mean nothing.  A deck read from
-    standard input (``-``) has no name to hold.
+    A deck is known by what the results record of it: where it sits in its repository
+    (two checkouts hold one deck at one place; ``amp/board.cir`` and ``psu/board.cir`` are
+    two), else its bytes (one deck under two names), else its file name (results of decks
+    outside a repository, or written before heatweave recorded more: revisions of one
+    design keep the name, whatever the folder).  Results with parts and none in common are
+    two designs, whose changes mean nothing.  A deck read from standard input (``-``) has
+    no name to hold.
     """
+    places = [side.deck_in_repository for side in (old, new)]
     # The name after the last "/" or "\\": a result may have been written on either system.
     names = [PureWindowsPath(side.deck).name for side in (old, new)]
-    if "-" not in names and "" not in names and names[0] != names[1]:
+    same_bytes = old.deck_sha256 is not None and old.deck_sha256 == new.deck_sha256
+    if same_bytes:
+        pass  # one deck, whatever its names
+    elif places[0] is not None and places[1] is not None:
+        if places[0] != places[1]:
+            return f"{old.label} is a result of {places[0]} and {new.label} of {places[1]}"
+    elif "-" not in names and "" not in names and names[0] != names[1]:
         return f"{old.label} is a result of {names[0]} and {new.label} of {names[1]}"
     if old.parts and new.parts and not _designs(old) & _designs(new):
         return f"{old.label} and {new.label} have no part in common"

@@ -9,6 +9,11 @@ differences in K, resistances in ohm, dissipation in W, voltages in V.
     The heatweave version that wrote the report.
 ``deck``
     The deck's path as given on the command line.
+``deck_in_repository``
+    The deck's path inside the git work tree holding it (``amp/board.cir``), or ``null``
+    outside one; ``compare`` knows one deck from another of the same name by it.
+``deck_sha256``
+    The SHA-256 of the deck's text as read (``null`` where there is none).
 ``annotations``
     ``{"path": ..., "sha256": ...}``: the annotation file and the SHA-256 of its bytes.
 ``analysis``
@@ -120,6 +125,8 @@ def as_dict(report: RunReport) -> dict[str, Any]:
     return {
         "heatweave_version": __version__,
         "deck": report.deck,
+        "deck_in_repository": report.deck_in_repository,
+        "deck_sha256": report.deck_sha256,
         "annotations": {"path": report.annotations, "sha256": report.annotations_sha256},
         "analysis": results.analysis,
         "analysis_commands": list(report.analyses),

@@ -12,6 +12,7 @@ the temperature margin uses the hottest temperature reached.
 
 from __future__ import annotations
 
+import hashlib
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -19,6 +20,7 @@ import numpy as np
 from heatweave.annotation.ratings import Margins, margins
 from heatweave.emit.emitter import Inputs
 from heatweave.errors import Finding
+from heatweave.files import encode, repository_path
 from heatweave.reports.private import without_private
 from heatweave.run.prepare import deck_analyses_of
 from heatweave.run.results import FloatArray, PartResult, RunResults, rated_ambient
@@ -131,6 +133,9 @@ class RunReport:
     ambient_series: FloatArray | None = field(default=None, repr=False)
     method: str = "full"  # "full" (the electrothermal deck) or "cosim" (the fast path)
     method_reason: str = ""
+    #: The deck's place in its repository and the SHA-256 of its bytes (:func:`deck_identity`).
+    deck_in_repository: str | None = None
+    deck_sha256: str | None = None
 
     @property
     def transient(self) -> bool:
@@ -200,8 +205,11 @@ def report_of(
         ambient = results.ambient_series
     else:
         ambient = np.full(len(results.time) if results.time is not None else 1, results.ambient)
+    in_repository, digest = deck_identity(inputs)
     return RunReport(
         deck=inputs.deck_path,
+        deck_in_repository=in_repository,
+        deck_sha256=digest,
         annotations=inputs.annotation_path,
         annotations_sha256=inputs.annotation.sha256,
         analyses=analyses,
@@ -215,3 +223,17 @@ def report_of(
         method_reason=method[1],
     )
 
+
+def deck_identity(inputs: Inputs) -> tuple[str | None, str | None]:
+    """What a result records of its deck, so that ``compare`` knows one deck from another
+    of the same file name: its path inside its git work tree (``None`` outside one) and the
+    SHA-256 of its text as read (``None`` where there is none)."""
+    source = inputs.project.deck.source
+    digest = hashlib.sha256(encode(source.text)).hexdigest() if source is not None else None
+    return repository_path(inputs.deck_path), digest
+
+
+def deck_keys(inputs: Inputs) -> dict[str, str | None]:
+    """``deck_in_repository`` and ``deck_sha256`` as every JSON result writes them."""
+    in_repository, digest = deck_identity(inputs)
+    return {"deck_in_repository": in_repository, "deck_sha256": digest}

@@ -35,7 +35,7 @@ from heatweave.emit.emitter import Inputs
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.csv_report import TIME_HEADER, render_columns, temperature_header
 from heatweave.reports.json_report import part_dict
-from heatweave.reports.model import PPM, PartRow, part_row
+from heatweave.reports.model import PPM, PartRow, deck_keys, part_row
 from heatweave.reports.table import WIDTH, number
 from heatweave.run.waves import seconds as seconds  # its home before run/waves
 from heatweave.settle.periodic import Settled, Step
@@ -92,6 +92,7 @@ def as_dict(
     return {
         "heatweave_version": __version__,
         "deck": inputs.deck_path,
+        **deck_keys(inputs),
         "annotations": {"path": inputs.annotation_path, "sha256": inputs.annotation.sha256},
         "analysis": "settle",
         "period": settled.period,

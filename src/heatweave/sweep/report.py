@@ -44,7 +44,7 @@ from heatweave import __version__
 from heatweave.quantities import counted
 from heatweave.reports.cautions import CAUTION_LINE, CAUTION_TEXT
 from heatweave.reports.json_report import json_text
-from heatweave.reports.model import PPM_LIMIT
+from heatweave.reports.model import PPM_LIMIT, deck_keys
 from heatweave.reports.table import WIDTH, cell_styles, grid
 from heatweave.run.prepare import deck_analyses_of
 from heatweave.sweep import limits as sweep_limits
@@ -96,6 +96,7 @@ def as_dict(result: SweepResult) -> dict[str, Any]:
     out = {
         "heatweave_version": __version__,
         "deck": inputs.deck_path,
+        **deck_keys(inputs),
         "annotations": {"path": inputs.annotation_path, "sha256": inputs.annotation.sha256},
         "analysis_commands": analyses(result),
         "executor": result.executor,
@@ -185,7 +186,6 @@ def _settings(result: SweepResult) -> str:
         what.append(f"Monte Carlo {counted(plan.draws, 'draw')}, seed {plan.seed}")
     ran = "; ".join(analyses(result)) or "deck analyses"
     return f"{result.inputs.deck_path}: {ran}, {', '.join(what)} ({result.executor} executor)"
-
 
 
 def drift_text(ppm: float | None) -> str:
