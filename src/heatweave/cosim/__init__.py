@@ -241,8 +241,7 @@ def run(
     prepared = prepared or _circuit(inputs, options, annotation)
 
     def attempt(given: RunOptions) -> FastOutcome:
-        return once(deck_path, annotation_path, given, inputs=inputs, tolerance=tolerance,
-                    prepared=prepared)  # fmt: skip
+        return once(inputs, given, prepared, tolerance)
 
     outcome = attempt(options)
     reltol, _ = solver_tolerances(inputs.project.deck)
@@ -265,25 +264,20 @@ def run(
 
 
 def once(
-    deck_path: str,
-    annotation_path: str,
-    options: RunOptions = DEFAULT_OPTIONS,
-    *,
-    inputs: Inputs | None = None,
-    annotation: Annotation | None = None,
+    inputs: Inputs,
+    options: RunOptions,
+    prepared: tuple[ThermalCircuit, tuple[Finding, ...]],
     tolerance: float = DEFAULT_TOLERANCE,
-    prepared: tuple[ThermalCircuit, tuple[Finding, ...]] | None = None,
 ) -> FastOutcome:
-    """Co-simulate one run once (same inputs as :func:`heatweave.run.runner.run`).
+    """Co-simulate one run once, for :func:`run` (which loads *inputs* and builds the
+    thermal circuit and its findings, *prepared*).
 
     Raises :class:`UsageError` when the run is not one the co-simulation can do (see
     :func:`choose_method`; the time-scale check is left to the caller), and when
     ``options.allow_control`` asks to keep the deck's ``.control`` blocks, which only the
-    full deck can (:func:`run_auto` sends such runs there).  *prepared* is the
-    thermal circuit and its findings when the caller has built them already.
+    full deck can (:func:`run_auto` sends such runs there).
     """
-    inputs = inputs or load_inputs(deck_path, annotation_path)
-    circuit, findings = prepared or _circuit(inputs, options, annotation)
+    circuit, findings = prepared
     analyses = _analyses(inputs, options)
     if options.max_step is not None:
         analyses = stepped(analyses, options.max_step, inputs.deck_path)

@@ -127,14 +127,17 @@ def unverified_finding(
 ) -> Finding:
     """The warning that the figures of *found* are not verified with maximum step *step*
     (in words: ``the deck's 250 us``); *why* says why no smaller step was tried."""
-    said = "; ".join(item.words() for item in found)
-    return Finding(
-        "warning",
+    return _about("warning", found, hint, lambda said: (
         f"not verified with {step} maximum step: {said}; the temperatures and powers "
-        f"reported for these parts are not backed by the run's own numbers ({why})",
-        None,
-        hint,
-    )
+        f"reported for these parts are not backed by the run's own numbers ({why})"
+    ))  # fmt: skip
+
+
+def _about(
+    severity: str, found: tuple[Disagreement, ...], hint: str | None, told: Callable[[str], str]
+) -> Finding:
+    """A finding about *found*: *told* puts the disagreements, in words, into its message."""
+    return Finding(severity, told("; ".join(item.words() for item in found)), None, hint)
 
 
 def check_run(results: RunResults, prepared: Prepared) -> tuple[Disagreement, ...]:
@@ -261,14 +264,10 @@ def next_step(
 
 def rerun_note(found: tuple[Disagreement, ...], said: str, step: float) -> Finding:
     """The note that the transient ran again with maximum step *step*, and why."""
-    reasons = "; ".join(item.words() for item in found)
-    return Finding(
-        "note",
+    return _about("note", found, None, lambda reasons: (
         f"max step {seconds(step)}: with {said} maximum step {reasons}; heatweave ran the "
-        f"transient again with a maximum step of {seconds(step)} (your files are unchanged)",
-        None,
-        None,
-    )
+        f"transient again with a maximum step of {seconds(step)} (your files are unchanged)"
+    ))  # fmt: skip
 
 
 def analyses_of(prepared: Prepared) -> tuple[str, ...]:
