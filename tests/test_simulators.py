@@ -35,7 +35,7 @@ from heatweave.simulators import (
     get_simulator,
 )
 from heatweave.simulators.base import summarise
-from heatweave.simulators.shared import DEBIAN_LIBRARY, ENV_LIBRARY
+from heatweave.simulators.shared import DEBIAN_LIBRARY, ENV_LIBRARY, _forward_only
 
 FIXTURES = Path(__file__).parent / "fixtures" / "sim"
 BACKENDS = ["batch", "shared"]
@@ -272,6 +272,16 @@ def test_shared_progress_reaches_one() -> None:
     assert len(seen) >= 2 and seen[-1] == 1.0
     assert all(0.0 <= f <= 1.0 for f in seen)
     assert seen == sorted(seen)
+
+
+def test_progress_never_steps_back() -> None:
+    # Seen under load: ngspice's status line said 12.5 % and then 11.2 % (a time step
+    # rejected and retried); a progress bar moved backwards.
+    seen: list[float] = []
+    forward = _forward_only(seen.append)
+    for fraction in (0.1, 0.125, 0.112, 0.125, 0.5, 0.3, 1.0, 1.0):
+        forward(fraction)
+    assert seen == [0.1, 0.125, 0.5, 1.0]
 
 
 def test_shared_keeps_ngspice_quiet(capfd: pytest.CaptureFixture[str]) -> None:

@@ -222,6 +222,19 @@ def _read_plots(library: Library) -> tuple[Plot, ...]:
     return tuple(plots)
 
 
+def _forward_only(progress: Progress) -> Progress:
+    """*progress*, told only of fractions past the furthest so far: ngspice's status line
+    can step back a little (a rejected time step), and a progress bar should not."""
+    furthest = [0.0]
+
+    def forward(fraction: float) -> None:
+        if fraction > furthest[0]:
+            furthest[0] = fraction
+            progress(fraction)
+
+    return forward
+
+
 def _deadline(timeout: float | None) -> float | None:
     return None if timeout is None else time.monotonic() + timeout
 
@@ -268,7 +281,7 @@ class SharedSimulator(Simulator):
             try:
                 library.reset()
                 library.log.clear()
-                library.progress = progress
+                library.progress = None if progress is None else _forward_only(progress)
                 with inside(folder.resolve(), cwd):
                     with stray_stderr(library.log):
                         prepare_library(library, folder.resolve(), cwd, init_file)
