@@ -190,6 +190,11 @@ def test_ambient_profile_says_what_cannot_follow_it(tmp_path: Path) -> None:
         ("77F", "carries a unit or scale factor ('F')"),
         ("300K", "carries a unit or scale factor ('K')"),
         ("-300", "below absolute zero"),
+        # Above 1000 degC no state is reported (README "How a result is verified"): an
+        # ambient there is the input's fault, not a runaway (it was exit 7 "lower the
+        # drive", and 1e300 exit 3 "did not converge, check for floating nodes").
+        ("1500", "above 1000 degC"),
+        ("1e300", "above 1000 degC"),
         ("1e400", "is not a finite temperature"),  # overflows an IEEE 754 double to infinity
         ("warm", "not a "),  # "not a temperature"; sweep: "not a value or a range"
     ],
@@ -204,6 +209,7 @@ def test_bad_ambient_on_the_command_line_exits_2(
     assert result.exit_code == 2, result.output
     assert needle in result.output
     assert "--ambient" in result.output
+    assert "1m,2m" not in result.output  # no scale factors proposed for a temperature
 
 
 @pytest.mark.parametrize(
@@ -211,6 +217,8 @@ def test_bad_ambient_on_the_command_line_exits_2(
     [
         ("temperature = -300", "below absolute zero", 3),
         ("profile = [[0, 25], [10, -274]]", "below absolute zero", 3),
+        ("temperature = 1e300", "above 1000 degC", 3),
+        ("profile = [[0, 25], [10, 1200]]", "above 1000 degC", 3),
     ],
 )
 def test_annotation_ambient_below_absolute_zero_is_located(

@@ -176,15 +176,19 @@ NOT_FINITE = "is not a finite number (it overflows to infinity); write a value b
 
 #: 0 K in degC; no temperature lies below it.
 ABSOLUTE_ZERO = -273.15
+#: degC above which heatweave reports no state (``heatweave.run.results.IMPLAUSIBLE_TEMPERATURE``):
+#: an ambient above it leaves no part a physical answer, so it is refused where written.
+HOTTEST_AMBIENT = 1000.0
 _PLAIN = re.compile(r"\s*[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?\s*$")
 
 
-def temperature_problem(text: str) -> str | None:
+def temperature_problem(text: str, span: bool = True) -> str | None:
     """Why *text* is not a temperature in degC, or ``None`` when it is one.
 
     A temperature is a plain number: a letter after it is refused, since SPICE would read
     ``77F`` as 77 femto and ``300K`` as 300 kilo, while the writer meant Fahrenheit or
-    kelvin; a value below absolute zero is refused too."""
+    kelvin; with *span* (not for a step in kelvin) a value below absolute zero or above
+    :data:`HOTTEST_AMBIENT` is refused too."""
     if not _PLAIN.match(text):
         unit = _NUMBER.match(text)
         if unit is not None and unit.group("suffix"):
@@ -197,13 +201,19 @@ def temperature_problem(text: str) -> str | None:
     value = float(text)
     if not math.isfinite(value):
         return f"{text!r} is not a finite temperature (it overflows to infinity)"
-    return below_absolute_zero(value)
+    return outside_ambient_range(value) if span else None
 
 
-def below_absolute_zero(value: float) -> str | None:
-    """A sentence saying *value* (degC) lies below absolute zero, or ``None``."""
+def outside_ambient_range(value: float) -> str | None:
+    """A sentence saying *value* (degC) lies below absolute zero or above
+    :data:`HOTTEST_AMBIENT`, or ``None``."""
     if value < ABSOLUTE_ZERO:
         return f"{value:g} degC lies below absolute zero ({ABSOLUTE_ZERO:g} degC)"
+    if value > HOTTEST_AMBIENT:
+        return (
+            f"{value:g} degC lies above {HOTTEST_AMBIENT:g} degC, the hottest state heatweave "
+            "reports (every part would be hotter still)"
+        )
     return None
 
 
@@ -216,7 +226,7 @@ class Temperature(click.ParamType):  # type: ignore[type-arg]
         self, value: object, param: click.Parameter | None, ctx: click.Context | None
     ) -> float:
         if isinstance(value, int | float):
-            problem = below_absolute_zero(float(value))
+            problem = outside_ambient_range(float(value))
             number = float(value)
         else:
             problem = temperature_problem(str(value))

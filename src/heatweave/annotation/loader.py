@@ -35,7 +35,7 @@ from heatweave.annotation.types import (
     ReviewSpec,
 )
 from heatweave.errors import AnnotationError, Location, UnreadableInputError
-from heatweave.quantities import ABSOLUTE_ZERO, below_absolute_zero
+from heatweave.quantities import outside_ambient_range
 from heatweave.spice.deck import unprintable
 from heatweave.tempmodels import REGISTRY, ParamValue, TempModel
 from heatweave.tomlspots import KeyPath, Locator, syntax_error
@@ -188,19 +188,18 @@ def _ambient(table: object, reader: TableReader) -> Ambient:
                 reader.value_location(("ambient", "profile")),
                 "write [time s, degC] pairs in time order, e.g. [[0, 25], [600, 40]]",
             )
-        coldest = min(v for _, v in profile)
-        if below_absolute_zero(coldest):
+        worst = [v for _, v in profile if outside_ambient_range(v)]
+        if worst:
             raise AnnotationError(
-                f"the ambient profile reaches {coldest:g} degC, below absolute zero "
-                f"({ABSOLUTE_ZERO:g} degC)",
+                f"the ambient profile reaches {outside_ambient_range(worst[0])}",
                 reader.value_location(("ambient", "profile")),
                 "write the profile's temperatures in degC",
             )
         return Ambient(temperature=profile[0][1], profile=profile)
     temperature = got.number("temperature")
-    if temperature is not None and below_absolute_zero(temperature):
+    if temperature is not None and outside_ambient_range(temperature):
         raise AnnotationError(
-            f"ambient temperature {below_absolute_zero(temperature)}",
+            f"ambient temperature {outside_ambient_range(temperature)}",
             reader.value_location(("ambient", "temperature")),
             "write the ambient in degC, e.g. temperature = 25.0",
         )

@@ -31,6 +31,7 @@ from heatweave.annotation import AMBIENT
 from heatweave.emit.emitter import Emitted
 from heatweave.emit.names import added_names, own_vectors
 from heatweave.errors import Finding, SimulatorError
+from heatweave.quantities import HOTTEST_AMBIENT
 from heatweave.run.drive import Drive, deck_drive, period_note
 from heatweave.run.sampling import sampling_error, step_excess
 from heatweave.run.unverified import Disagreement
@@ -428,7 +429,7 @@ def range_warning(plan: PartPlan, temperature: float, bound: float) -> Finding:
 
 
 #: Above this (degC) a part temperature is no longer a physical answer but a runaway.
-IMPLAUSIBLE_TEMPERATURE = 1000.0
+IMPLAUSIBLE_TEMPERATURE = HOTTEST_AMBIENT
 
 
 def implausible(results: RunResults) -> bool:

@@ -32,6 +32,10 @@ _NUMBER_START = re.compile(r"\s*[+-]?\.?\d")
 _RANGE_HINT = (
     "write START:STOP:STEP, e.g. -40:125:5, a single value such as 85, or a list: 1m,2m,5m"
 )
+_TEMPERATURE_HINT = (
+    "write START:STOP:STEP in degC, e.g. -40:125:5, a single value such as 85, or a list: "
+    "-40,25,85"
+)
 
 
 def parse_range(text: str, what: str, temperature: bool = False) -> tuple[float, ...]:
@@ -44,22 +48,24 @@ def parse_range(text: str, what: str, temperature: bool = False) -> tuple[float,
         for piece in text.split(","):
             values.extend(parse_range(piece.strip(), what, temperature))
         return tuple(values)
+    hint = _TEMPERATURE_HINT if temperature else _RANGE_HINT
     pieces = text.split(":")
     read = [parse_quantity(p) for p in pieces]  # a scale factor and nothing after it
     if len(pieces) not in (1, 3) or any(_NUMBER_START.match(p) is None for p in pieces):
-        raise UsageError(f"{what} {text!r} is not a value or a range", hint=_RANGE_HINT)
+        raise UsageError(f"{what} {text!r} is not a value or a range", hint=hint)
     # The step of temperatures is a plain number of kelvin, as start and stop are degC.
     for k, piece in enumerate(pieces if temperature else ()):
-        problem = temperature_problem(piece if k < 2 else piece.strip().lstrip("+-"))
+        step = k == 2  # kelvin: a plain number of any size
+        problem = temperature_problem(piece.strip().lstrip("+-") if step else piece, not step)
         if problem is not None:
-            raise UsageError(f"{what} {text!r}: {problem}", hint=_RANGE_HINT)
+            raise UsageError(f"{what} {text!r}: {problem}", hint=hint)
     for number, problem in read:
         if number is None:
-            raise UsageError(f"{what} {text!r}: {problem}", hint=_RANGE_HINT)
+            raise UsageError(f"{what} {text!r}: {problem}", hint=hint)
     found = [float(n) for n, _problem in read if n is not None]
     for piece, value in zip(pieces, found, strict=True):
         if not math.isfinite(value):
-            raise UsageError(f"{what} {text!r}: {piece!r} {NOT_FINITE}", hint=_RANGE_HINT)
+            raise UsageError(f"{what} {text!r}: {piece!r} {NOT_FINITE}", hint=hint)
     if len(found) == 1:
         return (found[0],)
     start, stop, step = found
