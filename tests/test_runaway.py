@@ -309,3 +309,31 @@ def test_points_past_the_fold_are_cut(stalled: int, expected_end: int) -> None:
     stall = temps[-1] + np.array([0.002, 0.001, 0.003])[:stalled]
     row = np.concatenate([temps, stall])[None, :]
     assert last_on_branch(row, row.shape[1] - 1) == expected_end
+
+
+def test_runaway_on_an_ac_drive_does_not_call_the_unheated_op_its_steady_state(
+    tmp_path: Path,
+) -> None:
+    # A sine's mean power into R is A^2 / 2R (closed form), so the fold of the power balance
+    # (scipy fsolve above) is crossed when A / sqrt(2) passes the DC critical voltage.  The
+    # operating point has the sine at its DC value, 0 V: nothing dissipates there, and the
+    # error once said "its steady state at full dissipation lies at 25 degC" (the ambient).
+    v_crit, _t_fold = ntc_fold(1000.0, 3500.0, 100.0, 25.0)
+    amplitude = 1.2 * math.sqrt(2.0) * v_crit
+    deck = tmp_path / "line.cir"
+    deck.write_text(
+        f"thermistor on an ac line\nV1 rail 0 SIN(0 {amplitude!r} 50)\nRT rail 0 1000\n"
+        ".tran 1m 5\n.end\n"
+    )
+    note = tmp_path / "line.thermal.toml"
+    note.write_text(
+        'schema = 1\n[ambient]\ntemperature = 25.0\n[part.RT]\nmodel = "ntc-beta"\n'
+        "beta = 3500\nrth = 100.0\ncth = 0.005\n"
+    )
+    with pytest.raises(ThermalRunawayError) as caught:
+        runner.run(str(deck), str(note), runner.RunOptions())
+    err = caught.value
+    assert err.exit_code == EXIT_THERMAL_RUNAWAY
+    assert "RT passed 1000 degC" in err.message
+    assert "its steady state at full dissipation" not in err.message
+    assert "every source at its DC value" in err.message

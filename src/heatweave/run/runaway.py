@@ -449,7 +449,11 @@ def explain(
         tail = ""
         if end is not None and end.full is not None:
             hottest = float(np.max(end.full))
-            tail = f"; its steady state at full dissipation lies at {hottest:.4g} degC"
+            tail = (
+                f"; with every source at its DC value (the operating point) the steady state "
+                f"lies at {hottest:.4g} degC, so the heat that runs it away comes from the "
+                "sources' time-varying drive, which that steady state leaves out"
+            )
         return RunawayError(
             f"temperatures grow without a physical bound in the transient: {grew}{tail}",
             HINT,
