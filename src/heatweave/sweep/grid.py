@@ -55,8 +55,8 @@ def parse_range(text: str, what: str, temperature: bool = False) -> tuple[float,
         raise UsageError(f"{what} {text!r} is not a value or a range", hint=hint)
     # The step of temperatures is a plain number of kelvin, as start and stop are degC.
     for k, piece in enumerate(pieces if temperature else ()):
-        step = k == 2  # kelvin: a plain number of any size
-        problem = temperature_problem(piece.strip().lstrip("+-") if step else piece, not step)
+        is_step = k == 2  # kelvin: a plain number of any size
+        problem = temperature_problem(piece.strip().lstrip("+-") if is_step else piece, not is_step)
         if problem is not None:
             raise UsageError(f"{what} {text!r}: {problem}", hint=hint)
     for number, problem in read:
