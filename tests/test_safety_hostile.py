@@ -268,3 +268,54 @@ def test_an_included_file_that_is_not_spice_is_never_quoted(
     assert "not a SPICE file" in result.output
     assert SECRET not in result.output
     assert "Traceback" not in result.output
+
+
+# ------------------------------------------------------------------ include card spellings
+
+# ngspice 39 reads a card whose name starts with ".inc" as .include and one starting with
+# ".lib" as .lib (checked with `ngspice -b` in the allowed case below): each must be inlined
+# and its .control dropped, not left for ngspice to read itself.
+SPELLINGS = {
+    "includex": ".includex {f}\n",
+    "incfoo": ".INCFOO {f}\n",
+    "library": ".library {f} low\n",
+    "libx": ".Libx {f} low\n",
+}
+
+
+def spelled_project(root: Path) -> tuple[Path, Path]:
+    marks = root / "marks"
+    marks.mkdir()
+    cards = ""
+    for name, card in SPELLINGS.items():
+        body = control(marks / name)
+        if "low" in card:
+            body = f".lib low\nR{name} out 0 1meg\n{body}.endl\n"
+        (root / f"{name}.lib").write_text(body)
+        cards += card.format(f=f"{name}.lib")
+    deck = root / "d.cir"
+    deck.write_text(
+        f"spelled includes\n{cards}V1 in 0 DC 5\nRTOP in out 1k\nRBOT out 0 1k\n.op\n.end\n"
+    )
+    (root / "d.thermal.toml").write_text(NOTES)
+    return deck, marks
+
+
+@pytest.mark.parametrize("allowed", [False, True])
+@pytest.mark.parametrize("backend", ["batch", "shared"])
+def test_an_include_card_spelled_as_ngspice_reads_it_is_inlined(
+    tmp_path: Path, backend: str, allowed: bool
+) -> None:
+    deck, marks = spelled_project(tmp_path)
+    extra = ["--allow-control"] if allowed else []
+    result = heatweave(
+        ["run", str(deck), "--method", "full", "--backend", backend, "-q", *extra],
+        tmp_path, dict(os.environ),
+    )
+    assert result.returncode == 0, result.stderr
+    assert "Traceback" not in result.stderr
+    made = sorted(p.name for p in marks.iterdir())
+    assert made == (sorted(SPELLINGS) if allowed else []), result.stderr
+    if not allowed:  # each dropped block is named at the file that holds it
+        for name in SPELLINGS:
+            assert f"{name}.lib:" in result.stderr, name

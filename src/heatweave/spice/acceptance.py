@@ -55,14 +55,14 @@ from heatweave.spice.syntax import (
 )
 
 # Dot cards ngspice 39.3 reads: by their full name, or (second set) by any name that
-# starts so (".optio", ".params" and ".includ" are read as .options, .param, .include).
+# starts so (".optio", ".params", ".includ" and ".library" are read as .options, .param,
+# .include, .lib).
 KNOWN_DOT_CARDS = frozenset((
     ".op", ".tran", ".ac", ".dc", ".noise", ".disto", ".pz", ".sens", ".tf", ".sp", ".pss",
     ".optran", ".meas", ".measure", ".save", ".print", ".plot", ".width", ".ic", ".nodeset",
-    ".temp", ".end", ".endc", ".prot", ".unprot", ".if", ".elseif", ".else", ".endif", ".lib",
-    ".endl",
+    ".temp", ".end", ".endc", ".prot", ".unprot", ".if", ".elseif", ".else", ".endif", ".endl",
 ))  # fmt: skip
-KNOWN_DOT_PREFIXES = (".opt", ".inc", ".param", ".func", ".global", ".four", ".probe",
+KNOWN_DOT_PREFIXES = (".opt", ".inc", ".lib", ".param", ".func", ".global", ".four", ".probe",
                       ".csparam", ".model", ".control", ".title", ".subckt", ".ends")  # fmt: skip
 _NOT_FINITE = frozenset({"nan", "inf", "+inf", "-inf", "infinity"})
 _EVALUATED = frozenset("rclvi")  # element values ngspice computes before the simulation

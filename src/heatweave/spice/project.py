@@ -62,15 +62,17 @@ _MAY_INCLUDE = re.compile(r"\.(?:[iI][nN][cC]|[lL][iI][bB])")
 def include_target(card: Card) -> tuple[str, str | None] | None:
     """(file name, library section) of an include card, or ``None`` for other cards."""
     name = card.name
-    if name not in (".include", ".inc", ".lib"):
+    # ngspice 39 reads any name starting so (".includex", ".library"): checked with -b.
+    library = name.startswith(".lib")
+    if not (library or name.startswith(".inc")):
         return None
     fields = card.fields()
     if len(fields) < 2:
         return None
-    if name == ".lib" and len(fields) < 3:
+    if library and len(fields) < 3:
         return None  # a section header inside a library file
     target = fields[1].strip("\"'")
-    section = fields[2].strip("\"'") if name == ".lib" else None
+    section = fields[2].strip("\"'") if library else None
     return target, section
 
 
