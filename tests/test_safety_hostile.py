@@ -319,3 +319,33 @@ def test_an_include_card_spelled_as_ngspice_reads_it_is_inlined(
     if not allowed:  # each dropped block is named at the file that holds it
         for name in SPELLINGS:
             assert f"{name}.lib:" in result.stderr, name
+
+
+# ------------------------------------------------------------------ spinit elsewhere
+
+# ngspice reads spinit from SPICE_SCRIPTS, else from SPICE_LIB_DIR/scripts (manual 16.5,
+# 16.7.1): a spinit there is a command file too; only the installation's own is read.
+SPINIT_VARIABLES = {"SPICE_SCRIPTS": "", "SPICE_LIB_DIR": "scripts"}
+
+
+@pytest.mark.parametrize("variable", SPINIT_VARIABLES)
+def test_a_spinit_named_by_the_environment_is_not_read(tmp_path: Path, variable: str) -> None:
+    marker = tmp_path / "marker"
+    scripts = tmp_path / "lib" / SPINIT_VARIABLES[variable]
+    scripts.mkdir(parents=True, exist_ok=True)
+    (scripts / "spinit").write_text(f"shell touch {marker}\n")
+    env = {**os.environ, variable: str(tmp_path / "lib")}
+    plain = tmp_path / "plain.cir"
+    plain.write_text("plain\nV1 a 0 1\nR1 a 0 1k\n.op\n.end\n")
+    subprocess.run(["ngspice", "-b", str(plain)], cwd=tmp_path, env=env, capture_output=True,
+                   timeout=60, check=False)  # fmt: skip
+    assert marker.exists()  # stock ngspice does read it
+    marker.unlink()
+    deck = tmp_path / "d.cir"
+    deck.write_text("divider\nV1 in 0 DC 5\nRTOP in out 1k\nRBOT out 0 1k\n.op\n.end\n")
+    (tmp_path / "d.thermal.toml").write_text(NOTES)
+    for backend in ("batch", "shared"):
+        result = heatweave(["run", str(deck), "--method", "full", "--backend", backend, "-q"],
+                           tmp_path, env)  # fmt: skip
+        assert result.returncode == 0, result.stderr
+        assert not marker.exists(), backend

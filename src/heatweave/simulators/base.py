@@ -172,8 +172,9 @@ def working_folder(workdir: str | os.PathLike[str] | None) -> Iterator[Path]:
 
 #: The name ngspice looks for in its working folder at start-up (manual 16.6).
 INIT_NAME = ".spiceinit"
-#: Variables that lead ngspice to a user's init file (manual 16.6, 16.7): never passed on.
-INIT_VARIABLES = ("SPICE_USERINIT_DIR", "USERPROFILE")
+#: Variables that lead ngspice to a user's init file (manual 16.6, 16.7) or to a spinit
+#: other than the installation's own (16.5, 16.7.1): never passed on.
+INIT_VARIABLES = ("SPICE_USERINIT_DIR", "USERPROFILE", "SPICE_SCRIPTS", "SPICE_LIB_DIR")
 INPUT_VARIABLE = "NGSPICE_INPUT_DIR"
 
 

@@ -129,8 +129,9 @@ def stray_stderr(sink: list[str]) -> Iterator[None]:
 @contextmanager
 def inside(folder: Path, input_dir: str | os.PathLike[str] | None = None) -> Iterator[None]:
     """Run the body with *folder* as the working directory and the private environment of
-    :func:`private_environment` (so libngspice finds no init file there, in ``HOME`` or in
-    ``SPICE_USERINIT_DIR``), restoring the old folder and variables afterwards."""
+    :func:`private_environment` (so libngspice finds no init file there, in ``HOME``, in
+    ``SPICE_USERINIT_DIR`` or in ``SPICE_SCRIPTS``), restoring the old folder and variables
+    afterwards."""
     before = os.getcwd()
     wanted = private_environment(folder, input_dir)
     names = set(wanted) | set(INIT_VARIABLES)
