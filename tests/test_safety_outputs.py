@@ -133,6 +133,25 @@ def test_every_output_option_refuses_every_input(
     assert not (project / "MARKER").exists()
 
 
+@pytest.mark.parametrize("card", [".includex extra.inc", ".Library extra.inc low"])
+@pytest.mark.parametrize("option", ["emit -o", "run --json", "check --junit", "sweep --csv"])
+def test_an_include_spelled_as_ngspice_reads_it_is_an_input_too(
+    project: Path, option: str, card: str
+) -> None:
+    """ngspice 39 reads any card name starting ".inc" or ".lib" as an include (issue 14)."""
+    deck = project / "d.cir"
+    text = deck.read_text().replace(".include parts.inc\n", f".include parts.inc\n{card}\n")
+    deck.write_text(text)
+    (project / "extra.inc").write_text(".lib low\nRX out 0 1meg\n.endl\n" if "low" in card
+                                       else "RX out 0 1meg\n")  # fmt: skip
+    command, extra, words = COMMANDS[option]
+    before = snapshot(project)
+    result = CliRunner().invoke(main, [*command, "d.cir", *extra, *words, "extra.inc"])
+    assert result.exit_code == 2, result.output
+    assert "never overwrites" in result.output
+    assert snapshot(project) == before
+
+
 @pytest.mark.parametrize("spelling", ["relative", "dotdot", "symlink", "hardlink"])
 @pytest.mark.parametrize("option", [name for name in COMMANDS if not name.startswith("emit")])
 def test_every_output_option_refuses_the_init_file(
