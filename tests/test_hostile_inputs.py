@@ -49,6 +49,9 @@ SPECIAL_INPUTS = [
     (["network", "fit", "{x}", "--stages", "1"], "a Zth table", 2),
     # a pipe nobody wrote to kept compare waiting; /dev/zero filled its memory (issue 14)
     (["compare", "{x}", "d.cir"], "a saved result", 2),
+    # the init file: a pipe kept run waiting, /dev/zero was read until memory ran out
+    (["run", "d.cir", "--init-file", "{x}"], "an init file", 2),
+    (["sweep", "d.cir", "--ambient", "20:30:10", "--init-file", "{x}"], "an init file", 2),
 ]
 
 

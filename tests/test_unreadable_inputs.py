@@ -2,8 +2,9 @@
 command (issue 14: lint said 1, "a check failed", for a missing deck; a folder where the
 annotation file should be was taken as no annotation file; a path through a file gave a
 traceback).  Missing files, folders, paths through a file, broken links, pipes and files
-that may not be read, as the deck, as ``-a FILE``, and as the ``DECK.thermal.toml`` beside
-the deck.  Run in process: every case is refused before anything is simulated.
+that may not be read, as the deck, as ``-a FILE``, as ``--init-file FILE`` (a pipe was
+waited on for ever, ``/dev/zero`` read until memory ran out) and as the ``DECK.thermal.toml``
+beside the deck.  Run in process: every case is refused before anything is simulated.
 """
 
 from __future__ import annotations
@@ -79,6 +80,10 @@ COMMANDS = [
     ("run -a", ["run", "d.cir", "-a", "{notes}"]),
     ("check -a", ["check", "d.cir", "-a", "{notes}"]),
     ("sweep -a", ["sweep", "d.cir", "-a", "{notes}", "--ambient", "20:30:10"]),
+    ("run --init-file", ["run", "d.cir", "--init-file", "{notes}"]),
+    ("check --init-file", ["check", "d.cir", "--init-file", "{notes}"]),
+    ("settle --init-file", ["settle", "d.cir", "--init-file", "{notes}", "--period", "1m"]),
+    ("sweep --init-file", ["sweep", "d.cir", "--init-file", "{notes}", "--ambient", "20:30:10"]),
     ("lint beside", ["lint", "b.cir"]),
     ("emit beside", ["emit", "b.cir"]),
     ("run beside", ["run", "b.cir"]),

@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING, ParamSpec, TypeVar
 import click
 
 from heatweave.errors import EXIT_INTERRUPTED, Finding, HeatweaveError, UsageError
-from heatweave.files import refuse_overwrite
+from heatweave.files import read_bytes, refuse_overwrite
 from heatweave.processes import Terminated, catch_termination, leave, restore
 from heatweave.quantities import SpiceQuantity, Temperature, format_number
 
@@ -139,7 +139,22 @@ def init_file_option(func: F) -> F:
         type=click.Path(dir_okay=False, exists=True, resolve_path=True),
         metavar="FILE",
         help=INIT_FILE_HELP,
+        callback=_regular_init_file,
     )(func)
+
+
+def _regular_init_file(ctx: click.Context, param: click.Parameter, value: str | None) -> str | None:
+    """Refuse an init file that cannot be read or is no regular file (a pipe may never
+    end, /dev/zero does not) before anything runs; ngspice reads it when it starts."""
+    if value is not None:
+        try:
+            read_bytes(value)
+        except HeatweaveError as err:
+            raise click.BadParameter(err.message, ctx, param) from None
+        except OSError as err:
+            why = f"cannot read {value}: {err.strerror or err}"
+            raise click.BadParameter(why, ctx, param) from None
+    return value
 
 
 def simulation_options(func: F) -> F:

@@ -25,6 +25,7 @@ import numpy as np
 import numpy.typing as npt
 
 from heatweave.errors import SimulationTimeoutError, SimulatorError, UsageError
+from heatweave.files import read_bytes
 from heatweave.processes import signals_deferred
 
 from .naming import vector_name
@@ -221,7 +222,7 @@ def place_init_file(init_file: str | os.PathLike[str] | None, folder: Path) -> P
         return None
     source = Path(init_file)
     try:
-        data = source.read_bytes()
+        data = read_bytes(source)  # a regular file only: not a pipe, not /dev/zero
     except OSError as err:
         raise UsageError(
             f"cannot read the init file {source}: {err.strerror or err}",
