@@ -375,3 +375,25 @@ def test_one_part_across_a_supply(tmp_path: Path, case: str) -> None:
     assert circuit is not None
     bound = prove(circuit, load_inputs(deck, note).index, outcome.results)
     assert bound.proven is (count == 1)
+
+
+@pytest.mark.parametrize("spread", [1500.0, 1e6, math.inf])
+def test_a_spread_too_wide_for_floats_bounds_nothing(spread: float) -> None:
+    """A part whose ln R may stray by more than a float's range (tc1 = 1e10 /K: issue 14's
+    'no traceback for any input') gives the whole power as the bound, not an overflow."""
+    up = np.array([0.4, 0.1])
+    bound = power_bound(up, 0.5, spread)
+    assert np.all(bound == math.inf)
+
+
+def test_a_steep_linear_part_gives_no_traceback(tmp_path: Path) -> None:
+    """tc1 = 1e10 /K: the full method's proof overflowed (OverflowError, exit 1)."""
+    deck = tmp_path / "u.cir"
+    deck.write_text("divider\nV1 in 0 DC 5\nR1 in out 1k\nR2 out 0 1k\n.op\n.end\n")
+    (tmp_path / "u.thermal.toml").write_text(
+        'schema = 1\n[part.R1]\nmodel = "linear"\nrth = 60.0\ntc1 = 1e10\ncth = 0.02\n'
+    )
+    result = CliRunner().invoke(main, ["run", str(deck), "--method", "full"])
+    assert result.exception is None or isinstance(result.exception, SystemExit), result.output
+    assert "Traceback" not in result.output
+    assert result.exit_code != 1, result.output  # 1 is "a check failed"

@@ -244,7 +244,11 @@ def certify(
     high = tops.copy()
     for _ in range(ROUNDS):
         spread, _steep = box.ranges(high)
-        lowered = np.minimum(high, ambient + solve(power_bound(up, total, spread)))
+        most = power_bound(up, total, spread)
+        if not np.isfinite(most).all():
+            return Bound(False, why="a part's resistance may change past what a float "
+                                    "holds within the bound")  # fmt: skip
+        lowered = np.minimum(high, ambient + solve(most))
         if np.any(temps > lowered + 1e-6 * (1 + np.abs(lowered))):
             return Bound(False, why="the bound does not enclose the operating point")
         settled = bool(np.all(high - lowered <= 1e-6 * (1 + np.abs(high))))
@@ -252,7 +256,11 @@ def certify(
         if settled:
             break
     spread, steep = box.ranges(high)
-    gain = gain_bound(solve, np.sqrt(power_bound(up, total, spread)), steep, len(rows))
+    most = power_bound(up, total, spread)
+    if not np.isfinite(most).all():
+        return Bound(False, why="a part's resistance may change past what a float holds "
+                                "within the bound")  # fmt: skip
+    gain = gain_bound(solve, np.sqrt(most), steep, len(rows))
     if gain < 1.0:
         return Bound(True, gain)
     warmest = float(np.max(high))
@@ -293,8 +301,15 @@ class Box:
 def power_bound(up: FloatArray, total: float, spread: float) -> FloatArray:
     """Each part's greatest dissipation anywhere in a box whose ln R lies within *spread*
     of the reported state (powers *up*, summing to *total*)."""
+    if spread / 2 > _LARGEST_EXPONENT:  # beyond a float: no bound (a tc1 of 1e10 /K)
+        return np.full(len(up), math.inf)
     root = np.sqrt(up) + math.sqrt(total) * math.expm1(spread / 2)
-    return np.asarray(np.minimum(root**2, total * math.exp(spread)), dtype=float)
+    with np.errstate(over="ignore"):
+        return np.asarray(np.minimum(root**2, total * np.exp(spread)), dtype=float)
+
+
+#: The greatest x whose exp(x) a float holds.
+_LARGEST_EXPONENT = math.log(np.finfo(float).max)
 
 
 def thermal_solver(circuit: ThermalCircuit) -> SolvePower:
