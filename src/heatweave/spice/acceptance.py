@@ -154,7 +154,7 @@ def _empty(index: DeckIndex, cards: list[Card]) -> Iterator[Finding]:
     if any(isinstance(n, ControlBlock) for n in deck.body):
         return
     for card in cards:
-        if card.is_element or card.name in (".subckt", ".model", ".lib", ".include", ".inc"):
+        if card.is_element or card.name.startswith((".subckt", ".model", ".lib", ".inc")):
             return
     where = deck.source.location(0) if deck.source is not None else None
     yield Finding(
@@ -354,7 +354,7 @@ def _parameters(index: DeckIndex, cards: list[Card], dots: list[Card]) -> Iterat
             continue
         if top is None:
             top = {id(c) for c in index.top.cards}
-        if id(card) in top and card.name != ".param":
+        if id(card) in top and not card.name.startswith(".param"):
             try:
                 evaluate(expr.text, params, funcs)
             except ExprError as err:

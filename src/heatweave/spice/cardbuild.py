@@ -238,7 +238,7 @@ def _param_card(keyword: Token, fields: list[Field]) -> ParamCardSyntax:
 def build_dot(keyword: Token, fields: list[Field], text: str) -> CardSyntax:
     """Dot cards whose head is a plain keyword: typed where it matters, else DotSyntax."""
     word = keyword.key
-    if word in (".param", ".csparam"):
+    if word.startswith(".param") or word == ".csparam":  # ngspice 39: .params is .param
         return _param_card(keyword, join_fields(fields, text, across_blanks=False))
     fields = join_fields(fields, text)
     positional, params = split_fields(fields)

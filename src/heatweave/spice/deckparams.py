@@ -58,7 +58,7 @@ def values(cards: Iterable[Card]) -> tuple[dict[str, float], dict[str, Func]]:
     funcs: dict[str, Func] = {}
     for card in cards:
         name = card.name
-        if name == ".param":
+        if name.startswith(".param"):  # ngspice 39 reads .params as .param
             params.append(card)
         elif name == ".func":
             func = func_def(card)

@@ -86,6 +86,7 @@ def parse_card(text: str) -> CardSyntax:
     """
     from lark import UnexpectedInput  # lark is loaded by now (see above): no cost here
 
+    text = _keyword_equals(text)
     use_text(text)
     try:
         # A plain card (words and key=value pairs) skips lark: same syntax, linear time.
@@ -102,6 +103,20 @@ def parse_card(text: str) -> CardSyntax:
     except BuildError as exc:
         raise CardSyntaxError(exc.offset, exc.message, exc.hint) from None
     return result
+
+
+# ngspice 39.3 runs ".temp=30", ".tran=1u 10u" and ".options=reltol=1e-4": an '=' right
+# after these keywords is a separator (2.1.4.1); after .ic, .param or .save it stops.
+_KEYWORD_EQUALS = re.compile(r"(?i)\.(?:temp|tran|opt[^\s=]*)[ \t]*(=)")
+
+
+def _keyword_equals(text: str) -> str:
+    """*text* with the '=' after a ``.temp``, ``.tran`` or ``.options`` keyword read as a
+    blank, as ngspice 39 reads it (same length: every offset stays)."""
+    match = _KEYWORD_EQUALS.match(text)
+    if match is None:
+        return text
+    return text[: match.start(1)] + " " + text[match.end(1) :]
 
 
 def _closed(text: str) -> tuple[int, str] | None:

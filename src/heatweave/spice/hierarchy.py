@@ -148,7 +148,7 @@ class DeckIndex:
             nodes = self._expand(self.project.deck.body)
             sources = [self.project.deck, *(inc.deck for inc in self.project.includes)]
             if may_have_conditionals(d.source.text for d in sources if d.source):
-                cards = [n for n in nodes if type(n) is Card and n.name in _PARAMS]
+                cards = [n for n in nodes if type(n) is Card and n.name.startswith(_PARAMS)]
                 self._conditions = deckparams.values(cards)
             self._top = self._scope("", None, self._decide(nodes))
         return self._top

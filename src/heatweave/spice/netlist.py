@@ -400,7 +400,7 @@ def _param_cards(
     for card in body:
         if not isinstance(card, Card):
             continue
-        if card.name == ".param":
+        if card.name.startswith(".param"):  # ngspice 39 reads .params as .param
             _assign(_pairs(card.fields()[1:]), values, values, funcs)
         elif project is not None and project.includes and card.is_dot:
             included = project.include_for(card)
