@@ -41,6 +41,7 @@ from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Scope
 from heatweave.spice.lint_cards import empty_analyses
 from heatweave.spice.references import reference_errors, undefined_call
+from heatweave.spice.refused_words import refused_words
 from heatweave.spice.source_options import source_option_errors
 from heatweave.spice.syntax import (
     Call,
@@ -86,6 +87,7 @@ def rejections(index: DeckIndex) -> list[Finding]:
     found.extend(_unknown_dot_cards(dots))
     found.extend(_parameters(index, cards, dots))
     found.extend(reference_errors(index, _defined_names(index, dots)))
+    found.extend(refused_words(index, dots))
     found.extend(_recursion(index))
     found.extend(duplicates(index))
     found.extend(_couplings(cards))

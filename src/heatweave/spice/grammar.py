@@ -98,6 +98,8 @@ def parse_card(text: str) -> CardSyntax:
         if closed is None:
             raise error from None
         inserted, fixed = closed
+        if _closed(fixed) is not None:  # still open (".model ('"): the ')' did not help
+            raise error from None
         # The ')' ngspice supplies is read, and the offsets after it are the card's again.
         return cast(CardSyntax, _shift(parse_card(fixed), inserted))
     except BuildError as exc:

@@ -28,11 +28,12 @@ from heatweave.spice.syntax import ElementSyntax, Value, ValueKind
 _NEEDS_MODEL = frozenset("DJQMZ")
 _REFUSAL = {"Z": "Unable to find definition of model"}  # ngspice 39's words where they differ
 _NAME = re.compile(r"[A-Za-z_][\w.$-]*\Z")
-# Functions ngspice 39's expression parsers know beyond heatweave's evaluator (not refused).
+# Functions ngspice 39's B, E and G expression parser knows beyond heatweave's evaluator.
 _OTHER_FUNCTIONS = frozenset({
     "sqr", "re", "im", "db", "ph", "mag", "u", "u2", "uramp", "ddt", "sdt", "table", "tbl",
     "if", "rand", "fabs", "atan2", "hypot", "exp10", "sign", "round", "trunc", "mod",
 })  # fmt: skip
+_NUMPARAM_EXTRA = frozenset({"sqr"})  # brace expressions know it beyond the evaluator's
 
 
 def reference_errors(index: DeckIndex, defined: set[str]) -> Iterator[Finding]:
@@ -179,18 +180,22 @@ _CALL = re.compile(r"([A-Za-z_][\w.]*)\s*\(")
 def undefined_call(
     card: Card, text: str, offset: int, unknown: set[str], funcs: Mapping[str, object]
 ) -> Finding | None:
-    """A call in the expression *text* (at *offset*) of a R, C or L value to a function no
-    ``.func`` defines and ngspice does not know."""
-    if card.letter not in "RCL" or unknown & _OTHER_FUNCTIONS:
-        return None
+    """A call in the expression *text* (at *offset*), which ngspice evaluates before the
+    simulation (a ``.param`` value, a brace or quoted value of R, C, L, V, I or X), to a
+    function no ``.func`` defines.  Those expressions know only the functions of manual
+    2.9.5 (and ``sqr``): ``if``, ``u``, ``table`` and the other functions of B, E and G
+    expressions stop ngspice 39 there too (found by ``tests/fuzz/lintdiff.py``)."""
     for match in _CALL.finditer(text):
         name = match.group(1).lower()
-        if name in unknown and name not in funcs:
+        if name in unknown and name not in funcs and name not in _NUMPARAM_EXTRA:
+            elsewhere = name in _OTHER_FUNCTIONS
             return Finding(
                 "error", f"{card.head} calls the function {match.group(1)!r}, which no .func "
                 "defines: ngspice 39 stops with 'Cannot compute substitute'",
                 card.location(offset + match.start(1)),
-                f"define it with .func {match.group(1)}(...) = {{...}} (manual 2.10), or check "
-                "the spelling",
+                (f"{match.group(1)}() belongs to behavioural (B, E, G) expressions, not to "
+                 "the {...} values ngspice computes before the simulation (manual 2.9.5); "
+                 if elsewhere else "") + f"define it with .func {match.group(1)}(...) = "
+                "{...} (manual 2.10), or check the spelling",
             )  # fmt: skip
     return None
