@@ -199,4 +199,7 @@ def test_an_annotated_resistor_naming_an_undefined_model_is_refused(
         result = heatweave([command, "d.cir"], tmp_path)
         assert result.returncode == (0 if accepted else 2), (command, result.stderr)
         if not accepted:
-            assert "d.cir:4:" in result.stderr and "no .model card defines" in result.stderr
+            # the model check names the model; a word glued to a brace ({big}k) is named
+            # as ngspice 39 names it, before the model check runs
+            said = "no .model card defines" if "{big}k" not in cards else "unknown parameter (k)"
+            assert "d.cir:4:" in result.stderr and said in result.stderr

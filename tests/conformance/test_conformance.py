@@ -128,6 +128,9 @@ REJECT = {
     "r46_short_options_word": (
         ".opt is read as .options, but its values as expressions", "Undefined parameter [gear]",
     ),
+    "r47_resistor_word_glued_to_brace": (
+        "has the word 'k' glued to its value {rnom}", "unknown parameter (k)",
+    ),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

@@ -145,7 +145,8 @@ def _word_value(
     if _known(word.text, models) or (word.kind is ValueKind.NAME and word.key in defined):
         return
     if word.text[:1] in "{'":
-        return  # {big}k: a brace with a word glued on, which the model check reads
+        yield from _glued_word(card, syntax, word)
+        return
     yield Finding(
         "error", f"{syntax.name.text} has the value {word.text!r}, which is no number and "
         "names no model a .model card defines: ngspice 39 refuses the card ('unknown "
@@ -155,6 +156,26 @@ def _word_value(
         f"(.model {word.text} R rsh=...)" if word.kind is ValueKind.NAME
         else f"an expression goes in braces ({{{word.text}}}) or quotes (manual 2.9.2); a "
         "model name needs its .model card",
+    )  # fmt: skip
+
+
+_GLUED = re.compile(r"(\{[^{}]*\}|'[^']*')([A-Za-z_]\w*)")
+
+
+def _glued_word(card: Card, syntax: ElementSyntax, word: Value) -> Iterator[Finding]:
+    """``{big}k``: ngspice 39 reads the word glued to a brace or quoted value as a
+    parameter name and refuses the card ('unknown parameter (k)', found by
+    ``tests/fuzz/lintdiff.py``)."""
+    match = _GLUED.match(word.text)
+    if match is None:
+        return
+    glued = match.group(2)
+    yield Finding(
+        "error", f"{syntax.name.text} has the word {glued!r} glued to its value "
+        f"{match.group(1)}: ngspice 39 stops with 'unknown parameter ({glued.lower()})'",
+        card.location(word.offset + match.start(2)),
+        f"a scale factor goes inside the braces ({{({match.group(1)[1:-1]})*1{glued}}}), "
+        "or leave a blank before a model name",
     )  # fmt: skip
 
 
