@@ -5,7 +5,9 @@ ngspice 39.3 in ``tests/conformance/reject`` (r37 on): each card here stops ngsp
 "unknown parameter (...)" or "could not find a valid modelname".  Only what ngspice was
 seen to refuse is listed (a deny list, never an allow list): a deck ngspice runs must pass.
 
-- a list (``tc=1m,1u``, ``ic=1,2``) on an R, C or L parameter, which takes one value;
+- a list (``tc=1m,1u``, ``ic=1,2``) on an R, C or L parameter, which takes one value
+  (unless the value follows the circuit, ``{1k+50*temper}``: ngspice makes that card a B
+  source, and none of the R, C and L rules here hold for it);
 - an R card with a model name after a value written in braces or quotes or starting with
   a '.' (``R1 a b {rv} rmod``, ``R1 a b .5k rmod``; ``R1 a b 0.5k rmod`` runs);
 - a C or L card with a word after its value (``C1 a b 1p cmod``: the model goes first,
@@ -22,6 +24,7 @@ seen to refuse is listed (a deny list, never an allow list): a deck ngspice runs
 
 from __future__ import annotations
 
+import re
 from collections.abc import Iterable, Iterator, Mapping
 
 from heatweave.errors import DeckSyntaxError, Finding
@@ -45,6 +48,9 @@ _REFUSED: dict[tuple[str, int], frozenset[str]] = {
 }
 _KINDS = {"nmos": "mos", "pmos": "mos", "npn": "bjt", "pnp": "bjt"}
 _OPTIONS = frozenset({".option", ".options"})
+# A value that follows the circuit (manual 3.3.4): ngspice 39 turns the R, C or L into a B
+# source, which takes "tc=1m,1u" and more (checked: such cards run).
+_RUNTIME = re.compile(r"(?i)\b(?:temper|time|hertz)\b|\b[vi]\s*\(")
 
 
 def refused_words(index: DeckIndex, dots: Iterable[Card]) -> Iterator[Finding]:
@@ -83,6 +89,8 @@ def _short_options(card: Card, syntax: DotSyntax) -> Iterator[Finding]:
 def _card(card: Card, syntax: ElementSyntax, models: Mapping[str, Card]) -> Iterator[Finding]:
     name = syntax.name.text
     letter = card.letter
+    if letter in "RCL" and _RUNTIME.search(card.logical().text):
+        return  # ngspice 39 makes it a B source, which reads its words otherwise
     if letter in "RCL":
         text = card.logical().text
         for param in syntax.params:
