@@ -131,6 +131,9 @@ REJECT = {
     "r47_resistor_word_glued_to_brace": (
         "has the word 'k' glued to its value {rnom}", "unknown parameter (k)",
     ),
+    "r48_resistor_keyword_word_glued": (
+        "has the word 'k' glued to its value {rnom}", "unknown parameter (k)",
+    ),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

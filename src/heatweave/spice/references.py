@@ -145,7 +145,7 @@ def _word_value(
     if _known(word.text, models) or (word.kind is ValueKind.NAME and word.key in defined):
         return
     if word.text[:1] in "{'":
-        yield from _glued_word(card, syntax, word)
+        yield from glued_word(card, syntax, word)
         return
     yield Finding(
         "error", f"{syntax.name.text} has the value {word.text!r}, which is no number and "
@@ -162,7 +162,7 @@ def _word_value(
 _GLUED = re.compile(r"(\{[^{}]*\}|'[^']*')([A-Za-z_]\w*)")
 
 
-def _glued_word(card: Card, syntax: ElementSyntax, word: Value) -> Iterator[Finding]:
+def glued_word(card: Card, syntax: ElementSyntax, word: Value) -> Iterator[Finding]:
     """``{big}k``: ngspice 39 reads the word glued to a brace or quoted value as a
     parameter name and refuses the card ('unknown parameter (k)', found by
     ``tests/fuzz/lintdiff.py``)."""

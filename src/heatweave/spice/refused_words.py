@@ -31,6 +31,7 @@ from heatweave.errors import DeckSyntaxError, Finding
 from heatweave.spice.deck import Card
 from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
 from heatweave.spice.hierarchy import DeckIndex
+from heatweave.spice.references import glued_word
 from heatweave.spice.syntax import DotSyntax, ElementSyntax, ModelSyntax, Value, ValueKind
 
 # Words a C or L card may carry after its value: the card's own parameter names, which
@@ -104,6 +105,9 @@ def _card(card: Card, syntax: ElementSyntax, models: Mapping[str, Card]) -> Iter
                                "parameters")  # fmt: skip
     if letter == "R":
         yield from _resistor_model(card, syntax, models)
+        for param in syntax.params:  # r={rv}k as R n+ n- {rv}k (references.glued_word)
+            if param.key.key in ("r", "resistance") and isinstance(param.value, Value):
+                yield from glued_word(card, syntax, param.value)
     elif letter in "CL":
         yield from _after_value(card, syntax)
     elif letter == "D":
