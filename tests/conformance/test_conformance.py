@@ -106,32 +106,32 @@ REJECT = {
         "I1: a current source takes no r=",
         "unknown parameter (r)",
     ),
-    # Found by the lint/ngspice differential check, tests/fuzz/lintdiff.py (r37 on).
-    "r37_param_behavioural_function": ("calls the function 'if'", "Formula() error"),
-    "r38_capacitor_model_after_value": (
+    # Found by the lint/ngspice differential check, tests/fuzz/lintdiff.py (r39 on).
+    "r39_param_behavioural_function": ("calls the function 'if'", "Formula() error"),
+    "r40_capacitor_model_after_value": (
         "C1 has the word 'cpoly' after its value", "unknown parameter (cpoly)",
     ),
-    "r39_resistor_tc_list": ("tc= takes one value, not a list", "unknown parameter (1u)"),
-    "r40_diode_bare_area": (
+    "r41_resistor_tc_list": ("tc= takes one value, not a list", "unknown parameter (1u)"),
+    "r42_diode_bare_area": (
         "D1 gives its area as a bare number", "could not find a valid modelname",
     ),
-    "r41_mesfet_initial_condition": ("Z1 has ic=", "unknown parameter (ic)"),
-    "r43_bsim_instance_temperature": (
+    "r43_mesfet_initial_condition": ("Z1 has ic=", "unknown parameter (ic)"),
+    "r44_bsim_instance_temperature": (
         "dtemp=, which the level 8 model does not take", "unknown parameter (dtemp)",
     ),
-    "r44_vbic_collector_area": (
+    "r45_vbic_collector_area": (
         "areac=, which the level 4 model does not take", "unknown parameter (areac)",
     ),
-    "r45_resistor_model_after_brace": (
+    "r46_resistor_model_after_brace": (
         "names the model rtemp after the value {rnom}", "unknown parameter (rtemp)",
     ),
-    "r46_short_options_word": (
+    "r47_short_options_word": (
         ".opt is read as .options, but its values as expressions", "Undefined parameter [gear]",
     ),
-    "r47_resistor_word_glued_to_brace": (
+    "r48_resistor_word_glued_to_brace": (
         "has the word 'k' glued to its value {rnom}", "unknown parameter (k)",
     ),
-    "r48_resistor_keyword_word_glued": (
+    "r49_resistor_keyword_word_glued": (
         "has the word 'k' glued to its value {rnom}", "unknown parameter (k)",
     ),
 }

@@ -14,7 +14,7 @@ seen to refuse is listed (a deny list, never an allow list): a deck ngspice runs
   ``C1 a b cmod 1p``), unless the word is one of the card's own flags;
 - a D card with a bare number after its model (``D1 a b dmod 2``): ngspice 39 reads the
   four-word form as ``D n+ n- tj model`` (7.3), so the number is taken for the model;
-- ``ic=`` on a Z (MESFET) card, ``r=`` and ``td=`` on an I source (only V takes them);
+- ``ic=`` on a Z (MESFET) card (``r=``/``td=`` of sources: :mod:`~heatweave.spice.source_options`);
 - ``temp``/``dtemp`` on MOSFETs of the BSIM and related levels, ``areab``/``areac`` on
   VBIC and HICUM bipolar models;
 - a word value (``method=gear``) on an options card written short (``.opt``, ``.optio``):
@@ -59,7 +59,7 @@ def refused_words(index: DeckIndex, dots: Iterable[Card]) -> Iterator[Finding]:
     39 refuses."""
     for scope in index.top.walk():
         for card in scope.cards:
-            if card.letter not in "RCLDZIMQ":
+            if card.letter not in "RCLDZMQ":
                 continue
             try:
                 syntax = syntax_of(card)
@@ -118,15 +118,12 @@ def _card(card: Card, syntax: ElementSyntax, models: Mapping[str, Card]) -> Iter
                            "the model: ngspice 39 reads 'D n+ n- tj model' and stops with "
                            "'could not find a valid modelname'",
                            f"write area={area.text} (manual 7.1)")  # fmt: skip
-    elif letter == "Z" or letter == "I":
-        keys = {"ic"} if letter == "Z" else {"r", "td"}
+    elif letter == "Z":
         for param in syntax.params:
-            if param.key.key in keys:
+            if param.key.key == "ic":
                 yield _refused(card, param.offset, f"{name} has {param.key.text}=, which "
-                               f"ngspice 39 does not take on a{'n I' if letter == 'I' else ' Z'}"
-                               f" card: it stops with 'unknown parameter ({param.key.key})'",
-                               "remove it" + (" (r= and td= of PWL are for V sources)"
-                                              if letter == "I" else ""))  # fmt: skip
+                               "ngspice 39 does not take on a Z card: it stops with 'unknown "
+                               "parameter (ic)'", "remove it")  # fmt: skip
     else:
         yield from _by_level(card, syntax, models)
 
