@@ -158,7 +158,7 @@ def test_transient_runaway_names_part_and_time(tmp_path: Path) -> None:
     with pytest.raises(RunawayError) as caught:
         runner.run(deck, note, runner.RunOptions())
     message = caught.value.message
-    assert "transient" in message and "RT passed 1000 degC at t = " in message
+    assert "transient" in message and "RT passed 1000 degC between t = " in message
     assert "no steady state exists" in message
 
 

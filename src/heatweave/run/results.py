@@ -446,26 +446,47 @@ def implausible(results: RunResults) -> bool:
     return False
 
 
-def growth(results: RunResults) -> str | None:
-    """When and where a transient's temperatures left physical values, in words."""
+#: Why a runaway's crossing gets no time when its step check failed.
+UNPINNED = "its step is not verified: see the warning"
 
-    if results.time is None:
+
+def growth(results: RunResults) -> str | None:
+    """When and where a transient's temperatures left physical values, in words: between
+    the two time points that bracket each crossing (what lies between them is not known),
+    and no time at all where the run's step check failed (:attr:`RunResults.unverified`)."""
+    first = crossing(results)
+    if first is None or results.time is None:
         return None
-    first: tuple[float, str] | None = None
-    for part in results.parts:
+    part = results.parts[first[1]]
+    series = part.temperature_series
+    assert series is not None
+    text = f"{part.path} passed {IMPLAUSIBLE_TEMPERATURE:g} degC"
+    if results.unverified:
+        return f"{text} at a time this run does not pin down ({UNPINNED})"
+    text += " " + bracket(results.time, series, IMPLAUSIBLE_TEMPERATURE)
+    tmax = part.plan.tmax if part.plan is not None else None
+    if tmax is not None and bool(np.any(series > tmax)):
+        text += f" (its tmax {tmax:g} degC {bracket(results.time, series, tmax)})"
+    return text
+
+
+def crossing(results: RunResults) -> tuple[int, int] | None:
+    """(time index, part index) where a part's temperature first left physical values."""
+    found: tuple[int, int] | None = None
+    for k, part in enumerate(results.parts):
         series = part.temperature_series
-        if series is None:
+        if series is None or results.time is None:
             continue
         bad = np.flatnonzero(~np.isfinite(series) | (series > IMPLAUSIBLE_TEMPERATURE))
-        if bad.size == 0:
-            continue
-        at = float(results.time[bad[0]])
-        text = f"{part.path} passed {IMPLAUSIBLE_TEMPERATURE:g} degC at t = {at:.4g} s"
-        tmax = part.plan.tmax if part.plan is not None else None
-        over = np.flatnonzero(series > tmax) if tmax is not None else np.array([], dtype=int)
-        if over.size:
-            passed = f"{float(results.time[over[0]]):.4g}"
-            text += f" (its tmax {tmax:g} degC at t = {passed} s)"
-        if first is None or at < first[0]:
-            first = (at, text)
-    return first[1] if first else None
+        if bad.size and (found is None or int(bad[0]) < found[0]):
+            found = (int(bad[0]), k)
+    return found
+
+
+def bracket(time: np.ndarray, series: np.ndarray, bound: float) -> str:
+    """``at t = ...`` (the first point) or ``between t = ... and ... s``: where *series*
+    first passes *bound*, to the time points that bracket it."""
+    k = int(np.flatnonzero(~np.isfinite(series) | (series > bound))[0])
+    if k == 0:
+        return f"at t = {float(time[0]):.5g} s"
+    return f"between t = {float(time[k - 1]):.5g} and {float(time[k]):.5g} s"

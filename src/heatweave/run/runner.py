@@ -39,7 +39,7 @@ from heatweave.run.results import (
     range_findings,
 )
 from heatweave.run.runaway import explain
-from heatweave.run.stepcheck import vet
+from heatweave.run.stepcheck import vet, vet_growth
 from heatweave.run.verify import verify_run
 from heatweave.simulators import SimResult
 from heatweave.simulators.diagnose import overflowed
@@ -77,8 +77,10 @@ def run(
             raise (explained or failure) from None
         results = extract(sim, prepared.emitted, inputs.index)
         if suspect(results, sim, prepared, inputs):
-            explained = explain_runaway(inputs, options, prepared, None, results)
+            grown, notes = vet_growth(inputs, options, prepared, results)  # its times, checked
+            explained = explain_runaway(inputs, options, prepared, None, grown)
             if explained is not None:
+                explained.findings = (*explained.findings, *notes)
                 raise explained
         verified = verify_run(inputs, options, prepared, sim, results)
         vetted = vet(inputs, options, prepared, verified)  # a transient's step, checked

@@ -33,7 +33,7 @@ import numpy as np
 from heatweave.errors import Finding, SimulationTimeoutError, SimulatorError
 from heatweave.run.maxstep import the_tran, with_max_step
 from heatweave.run.prepare import Prepared, RunOptions, deck_analyses_of, simulate
-from heatweave.run.results import RunResults, extract, period_mean
+from heatweave.run.results import RunResults, crossing, extract, period_mean
 from heatweave.run.unverified import Disagreement
 from heatweave.run.verify import Verified, solver_tolerances, verify_run
 from heatweave.run.waves import seconds
@@ -64,24 +64,32 @@ def disagreements(
     time = results.time
     if time is None or len(time) < 2 or float(time[0]) != 0.0 or not circuit.parts:
         return ()
-    found = list(sampling(results, reltol))
+    return sampling(results, reltol) + integration(results, circuit, reltol, vntol, len(time))
+
+
+def integration(
+    results: RunResults, circuit: ThermalCircuit, reltol: float, vntol: float, end: int
+) -> tuple[Disagreement, ...]:
+    """The integration check of the module docstring over the first *end* time points."""
+    time = results.time
     by_path = {p.path: p for p in results.parts}
     series = [by_path[p.path].power_series for p in circuit.parts]
     ambient = results.ambient_series
-    if any(s is None for s in series) or ambient is None:
-        return tuple(found)
-    powers = np.vstack([s for s in series if s is not None])
-    exact = network_response(circuit, time, powers, ambient)
+    if time is None or end < 2 or any(s is None for s in series) or ambient is None:
+        return ()
+    powers = np.vstack([s[:end] for s in series if s is not None])
+    exact = network_response(circuit, time[:end], powers, ambient[:end])
     if exact is None:
-        return tuple(found)
+        return ()
     names = [p.path for p in circuit.parts] + [n.label for n in circuit.nodes]
     own = [by_path[p.path].temperature_series for p in circuit.parts]
     own += [results.node_series.get(n.label) for n in circuit.nodes]
+    found = []
     for k, (name, simulated) in enumerate(zip(names, own, strict=True)):
         if simulated is None:
             continue
-        gap = np.abs(simulated - exact[k])
-        allowed = reltol * np.abs(simulated) + vntol
+        gap = np.abs(simulated[:end] - exact[k])
+        allowed = reltol * np.abs(simulated[:end]) + vntol
         worst = int(np.argmax(gap - allowed))
         if gap[worst] > allowed[worst]:
             subject = name if k < len(circuit.parts) else f"node {name}"
@@ -183,6 +191,68 @@ def vet(inputs: Inputs, options: RunOptions, prepared: Prepared, verified: Verif
     last = done.kept or Vetted(prepared, verified.sim, verified.results, verified.findings)
     results = replace(last.results, unverified=done.found) if done.found else last.results
     return Vetted(last.prepared, last.sim, results, last.findings + done.findings)
+
+
+def check_growth(results: RunResults, prepared: Prepared) -> tuple[Disagreement, ...]:
+    """The integration check (to the deck's tolerances) of a transient that runs away, over
+    its points up to the first past :data:`IMPLAUSIBLE_TEMPERATURE`: the times it reports
+    there hold only where ngspice's temperatures agree with its own powers."""
+    first = crossing(results)
+    circuit = prepared.emitted.circuit
+    if first is None or circuit is None or results.time is None or float(results.time[0]):
+        return ()
+    reltol, extra = solver_tolerances(prepared.text)
+    end = first[0] + 1
+    return heat_sampling(results, reltol, end) + integration(
+        results, circuit, reltol, ABSTOL_T + extra, end
+    )
+
+
+def heat_sampling(results: RunResults, reltol: float, end: int) -> tuple[Disagreement, ...]:
+    """Every part whose heat over the first *end* time points depends on what lies between
+    them (:attr:`PartResult.power_excess`, summed in size) by more than ``2 reltol`` of
+    itself: the temperatures there integrate that heat."""
+    time = results.time
+    if time is None or end < 2:
+        return ()
+    span = float(time[end - 1] - time[0])
+    found = []
+    for part in results.parts:
+        excess, power = part.power_excess, part.power_series
+        if excess is None or power is None or len(excess) != len(time) - 1 or not span > 0:
+            continue
+        mean = abs(float(np.trapezoid(power[:end], time[:end]))) / span
+        value = float(np.sum(np.abs(excess[: end - 1]))) / span
+        bound = 2 * reltol * mean + ABSTOL_P
+        if value > bound:
+            found.append(Disagreement(part.path, "sampling", value, bound,
+                                      float(time[end - 1]), mean))  # fmt: skip
+    return tuple(found)
+
+
+def vet_growth(
+    inputs: Inputs, options: RunOptions, prepared: Prepared, results: RunResults
+) -> tuple[RunResults, tuple[Finding, ...]]:
+    """A runaway transient's results whose crossing times hold (:func:`check_growth`): run
+    again with smaller maximum steps where they do not, as :func:`vet` does; results still
+    unverified carry :attr:`RunResults.unverified`, so no time is told.  With the note and
+    warning of what was done."""
+    found = check_growth(results, prepared)
+    if not found:
+        return results, ()
+
+    def again(step: float) -> tuple[RunResults, tuple[Disagreement, ...]]:
+        analyses = with_max_step(analyses_of(prepared), step)
+        assert analyses is not None  # refine read the transient
+        ran = replace(prepared, analyses=analyses, deck_analyses=False)
+        rerun = extract(simulate(ran, options), ran.emitted, inputs.index)
+        return rerun, check_growth(rerun, ran)
+
+    own = not options.analyses and options.max_step is None
+    done = refine(analyses_of(prepared), options.allow_control, own, found, again)
+    if done.kept is None or crossing(done.kept) is None:  # no run again passed it
+        return replace(results, unverified=done.found or found), done.findings
+    return replace(done.kept, unverified=done.found), done.findings
 
 
 @dataclass(frozen=True, slots=True)

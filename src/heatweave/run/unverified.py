@@ -12,9 +12,9 @@ class Disagreement:
 
     ``kind`` is ``integration`` (``value``: ngspice's temperature against the network's
     own response, K, the largest at ``at`` s), ``sampling`` (``value``: the estimated
-    error of the mean power, W) or ``ripple`` (``value``: how far a settled period's peak
-    and valley temperatures may move for that error of its power, K); ``bound`` is what
-    the check allows."""
+    error of the mean power, W, up to ``at`` s where set) or ``ripple`` (``value``: how
+    far a settled period's peak and valley temperatures may move for that error of its
+    power, K); ``bound`` is what the check allows."""
 
     subject: str
     kind: str
@@ -43,9 +43,11 @@ class Disagreement:
                 f"ngspice's accuracy there is {self.bound:.2g} K)"
             )
         share = 100 * self.value / self.reference if self.reference else float("inf")
+        until = f" up to t = {self.at:.4g} s" if self.at is not None else ""
         return (
-            f"{self.subject}'s mean dissipation depends by {self.value:.3g} W ({share:.2g} %) "
-            f"on what happens between ngspice's time points (at most {self.bound:.2g} W)"
+            f"{self.subject}'s mean dissipation{until} depends by {self.value:.3g} W "
+            f"({share:.2g} %) on what happens between ngspice's time points "
+            f"(at most {self.bound:.2g} W)"
         )
 
     def limit_detail(self) -> str:
