@@ -134,6 +134,13 @@ REJECT = {
     "r49_resistor_keyword_word_glued": (
         "has the word 'k' glued to its value {rnom}", "unknown parameter (k)",
     ),
+    # .lib cards keep ';' and '//' in the section name (r50 on).
+    "r50_lib_section_semicolon": (
+        "library section 'fast;glued' not found", "section definition fast;glued not found",
+    ),
+    "r51_lib_section_slashes": (
+        "library section 'slow//note' not found", "section definition slow//note not found",
+    ),
 }
 NOTE = 'schema = 1\n[part.Rsense]\nmodel = "linear"\ntc1 = 0.001\nrth = 40.0\n'
 

@@ -72,8 +72,28 @@ def include_target(card: Card) -> tuple[str, str | None] | None:
     if library and len(fields) < 3:
         return None  # a section header inside a library file
     target = fields[1].strip("\"'")
-    section = fields[2].strip("\"'") if library else None
+    section = _raw_section(card, fields[2]) if library else None
     return target, section
+
+
+def _raw_section(card: Card, cut: str) -> str:
+    """The section name of a ``.lib FILE SECTION`` card as ngspice 39 reads it: up to the
+    next blank of the card's first line, with no inline comment cut (``fast;c``, ``fast//c``
+    and ``fast,c`` name sections of those names; ``"x.lib";c`` names ``;c``: checked with
+    ``ngspice -b``).  *cut* is the field as the comment-cutting reader saw it."""
+    line = card.text.split("\n", 1)[0].rstrip("\r").lstrip(" \t")
+    rest = line.split(None, 1)[-1]  # after the keyword
+    close = rest.find(rest[0], 1) if rest[:1] in ("'", '"') else -1
+    after = (
+        rest[close + 1 :]
+        if close > 0
+        else rest.split(None, 1)[-1]
+        if " " in rest or "\t" in rest
+        else ""
+    )
+    words = after.split()
+    raw = words[0] if words else cut
+    return raw.strip("\"'")
 
 
 def _follow(
