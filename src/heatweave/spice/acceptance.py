@@ -40,6 +40,7 @@ from heatweave.spice.expressions import (
 from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
 from heatweave.spice.hierarchy import DeckIndex, Scope
 from heatweave.spice.lint_cards import empty_analyses
+from heatweave.spice.model_levels import unknown_levels
 from heatweave.spice.references import reference_errors, undefined_call
 from heatweave.spice.refused_words import refused_words
 from heatweave.spice.source_options import source_option_errors
@@ -88,6 +89,7 @@ def rejections(index: DeckIndex) -> list[Finding]:
     found.extend(_parameters(index, cards, dots))
     found.extend(reference_errors(index, _defined_names(index, dots)))
     found.extend(refused_words(index, dots))
+    found.extend(unknown_levels(index))
     found.extend(_recursion(index))
     found.extend(duplicates(index))
     found.extend(_couplings(cards))
