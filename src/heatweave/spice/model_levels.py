@@ -59,7 +59,7 @@ def unknown_levels(index: DeckIndex) -> Iterator[Finding]:
             if name is None or name in seen:
                 continue
             model = index.models[name]
-            found = _level(model)
+            found = model_level(model)
             if found is None or FAMILIES.get(found[0]) != family:
                 continue
             seen.add(name)
@@ -76,7 +76,7 @@ def unknown_levels(index: DeckIndex) -> Iterator[Finding]:
                 )
 
 
-def _level(model: Card) -> tuple[str, Param, int] | None:
+def model_level(model: Card) -> tuple[str, Param, int] | None:
     """(model type, the level= parameter, its whole-number value), or ``None``."""
     try:
         syntax = parse_card(model.logical().text)

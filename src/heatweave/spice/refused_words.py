@@ -29,10 +29,11 @@ from collections.abc import Iterable, Iterator, Mapping
 
 from heatweave.errors import DeckSyntaxError, Finding
 from heatweave.spice.deck import Card
-from heatweave.spice.grammar import CardSyntaxError, parse_card, syntax_of
+from heatweave.spice.grammar import syntax_of
 from heatweave.spice.hierarchy import DeckIndex
+from heatweave.spice.model_levels import model_level
 from heatweave.spice.references import glued_word
-from heatweave.spice.syntax import DotSyntax, ElementSyntax, ModelSyntax, Value, ValueKind
+from heatweave.spice.syntax import DotSyntax, ElementSyntax, Value, ValueKind
 
 # Words a C or L card may carry after its value: the card's own parameter names, which
 # ngspice 39 reads as flags there (checked: "C1 a b 1p c" runs).
@@ -177,18 +178,9 @@ def _by_level(card: Card, syntax: ElementSyntax, models: Mapping[str, Card]) -> 
 
 
 def _kind_level(model: Card) -> tuple[str, int] | None:
-    try:
-        syntax = parse_card(model.logical().text)
-    except CardSyntaxError:
-        return None
-    if not isinstance(syntax, ModelSyntax):
-        return None
-    kind = _KINDS.get(syntax.type.text.lower())
-    level = syntax.param("level")
-    if kind is None or level is None or not isinstance(level.value, Value):
-        return None
-    number = level.value.number
-    return (kind, int(number)) if number is not None and number.is_integer() else None
+    found = model_level(model)
+    kind = _KINDS.get(found[0]) if found is not None else None
+    return (kind, found[2]) if kind is not None and found is not None else None
 
 
 def _is_model(field: object, models: Mapping[str, Card]) -> bool:
