@@ -27,6 +27,9 @@ Method (continuation in a drive parameter):
    part temperatures held fixed (sources on the hot nodes) at +-:data:`FD_STEP` K.  The part
    with the largest gain is named; the largest eigenvalue of ``lambda Z J`` is the loop gain
    of the whole circuit.
+   Where one resistor part folds over, the fold's drive is placed again from held part
+   temperatures (:mod:`heatweave.run.fold`, :func:`polished`): the sweep can stall just past
+   a flat fold on points that pass the heat balance.
 5. For a deck of linear elements with one independent source, dissipation scales with the
    square of the source, so the critical source value is ``sqrt(lambda*)`` times the deck's.
 6. A model defined over a limited range (the RTD's Callendar-Van Dusen polynomial, IEC
@@ -59,14 +62,15 @@ from heatweave.run.diagnosis import HINT, Diagnosis, RunawayError, beyond_bound
 from heatweave.run.diagnosis_decks import TIGHT as TIGHT  # kept here for its callers
 from heatweave.run.diagnosis_decks import driven_deck as driven_deck
 from heatweave.run.diagnosis_decks import simulate_deck
+from heatweave.run.fold import driving_point as driving_point  # kept here for its callers
+from heatweave.run.fold import fold_drive, terminals
+from heatweave.run.fold import voltage as _voltage
 from heatweave.run.results import IMPLAUSIBLE_TEMPERATURE, growth
 from heatweave.run.sources import single_source
 from heatweave.spice.deck import Deck
-from heatweave.spice.hierarchy import global_names, top_level_node
-from heatweave.spice.netlist import card_nodes
 from heatweave.spice.transform import insert_before_end, new_cards
-from heatweave.thermal.balance import check_state, conductances, thermal_nodes
-from heatweave.thermal.circuit import AMBIENT_NODE, PartPlan, ThermalCircuit
+from heatweave.thermal.balance import check_state, thermal_nodes
+from heatweave.thermal.circuit import ThermalCircuit
 
 if TYPE_CHECKING:
     from heatweave.emit.emitter import Inputs
@@ -87,6 +91,10 @@ FD_STEP = 0.1  # K
 # on, FINE_STEPS at a time, at most MAX_LEVELS deep.
 DRIVE_TOL = 1e-3
 MAX_LEVELS = 6
+# A fold placed from held temperatures (run/fold.py) replaces the continuation's end when it
+# lies within this share of it and a verified state exists POLISH_CHECK below it.
+POLISH_SPAN = 0.25
+POLISH_CHECK = 1e-4
 
 
 class Continuation:
@@ -246,8 +254,28 @@ def follow(cont: Continuation) -> BranchEnd | None:
     while True:
         found = segment(cont, lo, start)
         if not isinstance(found, tuple):
-            return found
+            return found if found is None else polished(cont, found)
         lo, start = found  # a coarse step was taken for a jump but is on the branch
+
+
+def polished(cont: Continuation, end: BranchEnd) -> BranchEnd:
+    """*end* with a fold's drive placed by :func:`heatweave.run.fold.fold_drive` where that
+    finds one near it (within :data:`POLISH_SPAN` of the drive) and a steady state that
+    passes :func:`first_off` exists :data:`POLISH_CHECK` below it; *end* unchanged else."""
+    if cont.index is None or not end.lost or end.edge is not None or not end.drive > 0:
+        return end
+    found = fold_drive(cont, cont.index, float(np.max(end.temps)))
+    if found is None or abs(found[0] / end.drive - 1) > POLISH_SPAN:
+        return end
+    drive, temps = found
+    below = drive * (1 - POLISH_CHECK)
+    try:
+        plot = cont.sweep(below * (1 - POLISH_CHECK), below * POLISH_CHECK, 1, temps)
+    except SimulatorError:
+        return end
+    if first_off(cont, plot, cont.temperatures(plot)) is not None:
+        return end
+    return BranchEnd(drive, temps, True, None)
 
 
 def segment(
@@ -327,29 +355,6 @@ def last_on_branch(temps: FloatArray, end: int) -> int:
         return end
     steps = np.max(np.abs(np.diff(temps[:, : end + 1], axis=1)), axis=0)
     return int(np.argmax(steps)) + 1
-
-
-def driving_point(circuit: ThermalCircuit) -> tuple[list[str], FloatArray]:
-    """Steady-state thermal impedances between all thermal nodes (K/W), ambient as ground."""
-    inverse: FloatArray = np.linalg.inv(conductances(circuit).toarray()).astype(np.float64)
-    return thermal_nodes(circuit), inverse
-
-
-def terminals(part: PartPlan, index: DeckIndex) -> tuple[str, str]:
-    """The two top-level node names of a resistor part, as ngspice names them."""
-
-    resolved = index.resolve(part.path)
-    assert resolved is not None
-    found = card_nodes(resolved.card, index)
-    globals_ = global_names(index) | {AMBIENT_NODE}
-    a, b = (top_level_node(resolved, n, globals_) for n in found[:2])
-    return a, b
-
-
-def _voltage(plot: Plot, node: str) -> FloatArray:
-    if node in ("0", "gnd"):
-        return np.zeros(len(np.asarray(plot.scale_values)))
-    return np.real(np.asarray(plot[f"v({node})"])).astype(float)
 
 
 def power_jacobian(cont: Continuation, index: DeckIndex, temps: FloatArray) -> FloatArray:
